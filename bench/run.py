@@ -1,0 +1,177 @@
+"""polyconv benchmarks: ratios against numpy, scipy and python-flint measured in the same run.
+
+Usage::
+
+    python bench/run.py float            # float engines vs numpy / scipy (writes bench/RESULTS.md)
+    python bench/run.py float --quick    # fewer sizes, fewer repeats (does not write)
+
+Every contender is timed in one process, interleaved round by round (so drift in machine load hits
+all of them alike), and the best of the rounds is kept.  A ratio below 1 means polyconv is faster.
+The env notes say OPENBLAS_CORETYPE / OPENBLAS_L2_SIZE may be set on this machine; they do not
+touch the FFT paths measured here, so this script leaves them alone.
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+import platform
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+import scipy
+import scipy.signal as ss
+
+HERE = Path(__file__).resolve().parent
+sys.path.insert(0, str(HERE.parent))
+
+import polyconv  # noqa: E402
+from polyconv import planning  # noqa: E402
+
+RESULTS = HERE / "RESULTS.md"
+
+
+def time_once(fn, min_seconds: float) -> float:
+    """Seconds per call of ``fn`` over a loop lasting at least ``min_seconds``."""
+    loops, total = 0, 0.0
+    start = time.perf_counter()
+    while True:
+        fn()
+        loops += 1
+        total = time.perf_counter() - start
+        if total >= min_seconds:
+            return total / loops
+
+
+def interleaved_best(contenders: dict, rounds: int, min_seconds: float) -> dict:
+    """Best-of-``rounds`` seconds per contender, each round timing every contender once."""
+    for fn in contenders.values():
+        fn()  # warm-up: plans, caches, thread start
+    best = {name: math.inf for name in contenders}
+    for _ in range(rounds):
+        for name, fn in contenders.items():
+            best[name] = min(best[name], time_once(fn, min_seconds))
+    return best
+
+
+def all_contenders(x, y, with_numpy: bool, with_direct: bool) -> dict:
+    """auto, the references and polyconv's own engines on one pair."""
+    c = {"auto": lambda: polyconv.convolve(x, y),
+         "fftconvolve": lambda: ss.fftconvolve(x, y),
+         "oaconvolve": lambda: ss.oaconvolve(x, y)}
+    if with_numpy:
+        c["numpy"] = lambda: np.convolve(x, y)
+    c.update(engine_contenders(x, y))
+    if not with_direct:
+        c.pop("pc:direct", None)
+    return c
+
+
+def engine_contenders(x, y) -> dict:
+    """polyconv's own engines that can run on this pair (forced with method=)."""
+    out = {}
+    n1, n2 = x.shape[-1], y.shape[-1]
+    if n1 * n2 <= 2**31:
+        out["pc:direct"] = lambda: polyconv.convolve(x, y, method="direct")
+    out["pc:fft"] = lambda: polyconv.convolve(x, y, method="fft")
+    try:
+        polyconv.plan(x, y, method="overlap-add")
+        out["pc:overlap-add"] = lambda: polyconv.convolve(x, y, method="overlap-add")
+    except ValueError:
+        pass
+    return out
+
+
+def bench_float(quick: bool) -> tuple[list[str], list[str]]:
+    rng = np.random.default_rng(1)
+    rounds = 3 if quick else 5
+    min_seconds = 0.02 if quick else 0.1
+    equal_rows, long_rows = [], []
+
+    exps = range(6, 17, 2) if quick else range(6, 23)
+    for e in exps:
+        n = 2**e
+        x, y = rng.standard_normal(n), rng.standard_normal(n)
+        c = all_contenders(x, y, with_numpy=n <= 2**14, with_direct=n <= 2**14)
+        t = interleaved_best(c, rounds if n < 2**20 else 3, min_seconds)
+        equal_rows.append(_row(f"2^{e} x 2^{e}", t, polyconv.plan(x, y).engine))
+        print(equal_rows[-1], flush=True)
+
+    n = 2**18 if quick else 2**22
+    x = rng.standard_normal(n)
+    for m in ([16, 256, 4096] if quick else [16, 32, 64, 128, 256, 512, 1024, 2048, 4096]):
+        y = rng.standard_normal(m)
+        c = all_contenders(x, y, with_numpy=m <= 512, with_direct=m <= 512)
+        t = interleaved_best(c, 3, min_seconds)
+        long_rows.append(_row(f"2^{int(math.log2(n))} x {m}", t, polyconv.plan(x, y).engine))
+        print(long_rows[-1], flush=True)
+    return equal_rows, long_rows
+
+
+def _ratio(a: float, b: float | None) -> str:
+    return "-" if b is None or not math.isfinite(b) else f"{a / b:.2f}"
+
+
+def _row(label: str, t: dict, engine: str) -> str:
+    auto = t["auto"]
+    own = {k: v for k, v in t.items() if k.startswith("pc:")}
+    best_name = min(own, key=own.get)
+    return (f"| {label} | {auto * 1e3:.4g} | {engine} | {_ratio(auto, t.get('fftconvolve'))} | "
+            f"{_ratio(auto, t.get('oaconvolve'))} | {_ratio(auto, t.get('numpy'))} | "
+            f"{_ratio(auto, own[best_name])} ({best_name[3:]}) |")
+
+
+HEADER = ("| sizes | auto ms | engine chosen | auto / fftconvolve | auto / oaconvolve | "
+          "auto / numpy | auto / best own engine |\n|---|---|---|---|---|---|---|")
+
+
+def write_results(command: str, equal_rows: list[str], long_rows: list[str]) -> None:
+    text = RESULTS.read_text() if RESULTS.exists() else "# polyconv benchmark results\n"
+    start, end = "<!-- float:start -->", "<!-- float:end -->"
+    section = "\n".join([
+        start,
+        "## Float convolution (issue: foundation and float engine)",
+        "",
+        f"Command: `{command}`  ",
+        f"Machine: {platform.machine()}, {planning.configured_threads()} threads usable, "
+        f"Python {platform.python_version()}, numpy {np.__version__}, scipy {scipy.__version__}; "
+        f"{time.strftime('%Y-%m-%d')}.  ",
+        "Best of interleaved rounds; ratio < 1 means polyconv is faster.  polyconv uses two "
+        "threads for transforms above the calibrated size (scipy's calls are single-threaded "
+        "as called here).",
+        "",
+        "Equal lengths:",
+        "",
+        HEADER,
+        *equal_rows,
+        "",
+        "Long x short:",
+        "",
+        HEADER,
+        *long_rows,
+        end,
+    ])
+    if start in text and end in text:
+        text = text[: text.index(start)] + section + text[text.index(end) + len(end):]
+    else:
+        text = text.rstrip() + "\n\n" + section + "\n"
+    RESULTS.write_text(text)
+
+
+def main() -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("suite", choices=["float"], help="which benchmark to run")
+    parser.add_argument("--quick", action="store_true", help="fewer sizes; does not write")
+    args = parser.parse_args()
+    print(HEADER)
+    equal_rows, long_rows = bench_float(args.quick)
+    if not args.quick:
+        write_results("python bench/run.py float", equal_rows, long_rows)
+        print(f"wrote {RESULTS}")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,144 @@
+"""Public entry points: validate -> plan -> engine -> shape.
+
+``convolve`` and ``plan`` share the first two stages; ``convolve`` then runs exactly one engine and
+shapes its full (or truncated) product into the requested mode, dtype and axis.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from . import inputs, planning, shaping
+from .engines.direct import convolve_direct
+from .engines.exact_direct import convolve_exact_direct
+from .engines.fft import convolve_fft
+from .engines.overlap_add import convolve_overlap_add
+from .planning import Plan
+
+
+def _prepare(a, b, mode, method, modulus, length, axis):
+    pair = inputs.prepare_pair(a, b, axis)
+    inputs.check_mode(mode)
+    trunc = inputs.check_length(length, mode)
+    mod = inputs.check_modulus(modulus, pair.kind)
+    x, y = pair.a, pair.b
+    if trunc is not None:
+        x, y = x[..., :trunc], y[..., :trunc]
+    n1, n2 = x.shape[-1], y.shape[-1]
+    keep = None if trunc is None else min(trunc, n1 + n2 - 1)
+    the_plan = planning.choose(pair.kind, n1, n2, x.shape[:-1], y.shape[:-1], pair.batch_shape,
+                               mode, method, keep)
+    return pair, x, y, trunc, mod, the_plan
+
+
+def plan(a, b, *, mode: str = "full", method: str = "auto", modulus: int | None = None,
+         length: int | None = None, axis: int = -1) -> Plan:
+    """Say how :func:`convolve` would compute this product, without computing it.
+
+    Parameters are those of :func:`convolve`.
+
+    Returns
+    -------
+    Plan
+        ``engine``, ``exact``, ``certificate``, ``error_bound``, ``predicted_seconds``, ``reason``
+        and the engine's parameters; ``str(plan)`` explains it in a few lines.
+
+    Examples
+    --------
+    >>> import numpy as np, polyconv
+    >>> polyconv.plan(np.ones(10), np.ones(3)).engine
+    'direct'
+    """
+    return _prepare(a, b, mode, method, modulus, length, axis)[-1]
+
+
+def convolve(a, b, *, mode: str = "full", method: str = "auto", modulus: int | None = None,
+             length: int | None = None, axis: int = -1) -> np.ndarray:
+    """Linear convolution of ``a`` and ``b`` (the coefficients of the product polynomial).
+
+    ``c[k] = sum_i a[i] b[k - i]``, coefficient ``i`` being that of ``x**i`` (numpy.convolve's
+    order).
+
+    Parameters
+    ----------
+    a, b : array_like
+        Sequences of numbers, at least 1-D.  N-D inputs are convolved along ``axis``; the other
+        axes broadcast (a batch of sequences goes through one transform call).
+    mode : {"full", "same", "valid"}
+        As numpy.convolve defines them: "full" gives all ``n1 + n2 - 1`` coefficients, "same"
+        the central ``max(n1, n2)``, "valid" the ``max - min + 1`` that need no zero padding.
+    method : str
+        "auto" (the cost model picks), or an engine: "direct", "fft", "overlap-add" for floats,
+        "direct-exact" for integers.  :func:`plan` tells what "auto" would do.
+    modulus : int, optional
+        Integer operands only: return the product's coefficients reduced to ``[0, modulus)``.
+    length : int, optional
+        Mode "full" only: return just the first ``length`` coefficients (a truncated product),
+        zero padded if the product is shorter.
+    axis : int
+        The convolution axis of each operand.
+
+    Returns
+    -------
+    numpy.ndarray
+        Floats give float64 or complex128 (float32/complex64 stay single precision).  Integers
+        give the exact product: int64 when a bound proves that every coefficient fits, otherwise
+        an object array of Python ints; with ``modulus``, int64 when the modulus fits.
+
+    Notes
+    -----
+    Non-finite inputs: the direct engine propagates NaN and inf exactly as numpy.convolve does.
+    The transform engines would smear them over every output, so when an input holds NaN or inf
+    they compute with those entries set to zero and then set to NaN every output that a
+    non-finite input contributes to (inf included: its sign is not recoverable from a
+    transform).  Outputs out of reach of any non-finite input are exact as usual.
+
+    Raises
+    ------
+    ValueError, TypeError
+        For bad input, naming the argument and what was expected.
+
+    Examples
+    --------
+    >>> import polyconv
+    >>> polyconv.convolve([1.0, 2.0, 3.0], [0.0, 1.0, 0.5])
+    array([0. , 1. , 2.5, 4. , 1.5])
+    """
+    pair, x, y, trunc, mod, the_plan = _prepare(a, b, mode, method, modulus, length, axis)
+    if 0 in pair.batch_shape:
+        full = shaping.empty_result(the_plan, pair.kind, x, y)
+    else:
+        full = run(the_plan, x, y, mod)
+    return shaping.finish(full, the_plan, pair.axis, trunc)
+
+
+def run(the_plan: Plan, x: np.ndarray, y: np.ndarray, modulus: int | None = None) -> np.ndarray:
+    """Run the plan's engine on prepared operands (axis last); full or truncated product."""
+    engine = the_plan.engine
+    if engine == "direct-exact":
+        return convolve_exact_direct(x, y, modulus, the_plan.output_length
+                                     if the_plan.mode == "full" else None)
+    work = shaping.float_work_dtype(x.dtype, y.dtype, the_plan.kind)
+    x = x.astype(work, copy=False)
+    y = y.astype(work, copy=False)
+    if engine == "direct":
+        return convolve_direct(x, y)
+    with np.errstate(invalid="ignore", over="ignore"):  # a NaN input is handled just below
+        out = _run_transform(the_plan, x, y)
+    if not shaping.looks_finite(out, first_entries_only=engine == "fft"):
+        bad = shaping.nonfinite_masks(x, y)
+        if bad is not None:
+            x, y = shaping.zero_nonfinite(x), shaping.zero_nonfinite(y)
+            out = shaping.mark_nonfinite(_run_transform(the_plan, x, y), bad,
+                                         x.shape[-1], y.shape[-1])
+    return out
+
+
+def _run_transform(the_plan: Plan, x: np.ndarray, y: np.ndarray) -> np.ndarray:
+    if the_plan.engine == "fft":
+        keep = shaping.needed_entries(the_plan.mode, x.shape[-1], y.shape[-1],
+                                      the_plan.output_length)
+        return convolve_fft(x, y, the_plan.transform_length, keep, the_plan.threads)
+    if x.shape[-1] < y.shape[-1]:
+        x, y = y, x
+    return convolve_overlap_add(x, y, the_plan.transform_length, the_plan.threads)

@@ -1,0 +1,154 @@
+"""Measure this machine and fit the cost model's constants.
+
+``polyconv calibrate`` calls :func:`measure` and saves the table with
+:func:`polyconv.costs.save_user_costs`.  Every constant is fitted from timings of the engines
+themselves (best of several runs), so the chooser compares like with like:
+
+* ``direct``: ``t = c0 + c_mac n1 n2 + c_out (n1 + n2)`` by least squares on relative error over a
+  grid of 1-D sizes;
+* ``direct_batch``: ``t = c0 + m (c_step + c_elem B n)`` likewise on batched shapes;
+* ``fft``: the fixed cost ``c0`` from the smallest transforms, then ``rate_by_log2n[k]`` =
+  ``(t - c0) / (N log2 N)`` for one real 1-D product at ``N = 2**k`` on one thread;
+* ``threads``: the smallest ``N`` at which two threads beat one, and the speed-ups at large ``N``;
+* ``overlap_add``: ``c0`` and ``c_pt`` fitted to what overlap-add costs beyond its transforms.
+"""
+
+from __future__ import annotations
+
+import math
+import platform
+import time
+from collections.abc import Callable
+
+import numpy as np
+
+from . import planning
+from .costs import default_costs
+from .engines.direct import convolve_direct
+from .engines.fft import convolve_fft
+from .engines.overlap_add import convolve_overlap_add
+
+
+def best_time(fn: Callable[[], object], budget: float = 0.05, repeats: int = 5) -> float:
+    """Best-of-``repeats`` seconds per call of ``fn()``; each repeat loops ~``budget / repeats``."""
+    fn()
+    start = time.perf_counter()
+    fn()
+    one = max(time.perf_counter() - start, 1e-7)
+    loops = max(1, int(budget / repeats / one))
+    best = math.inf
+    for _ in range(repeats):
+        start = time.perf_counter()
+        for _ in range(loops):
+            fn()
+        best = min(best, (time.perf_counter() - start) / loops)
+    return best
+
+
+def _fit_relative(rows: list[list[float]], times: list[float]) -> list[float]:
+    """Non-negative least squares on relative error (columns dropped while a weight is negative)."""
+    x = np.asarray(rows, dtype=float)
+    t = np.asarray(times, dtype=float)
+    active = list(range(x.shape[1]))
+    coef = np.zeros(x.shape[1])
+    while active:
+        w = x[:, active] / t[:, None]
+        sol, *_ = np.linalg.lstsq(w, np.ones_like(t), rcond=None)
+        if (sol >= 0).all():
+            coef[active] = sol
+            break
+        active.pop(int(np.argmin(sol)))
+    return [float(c) for c in coef]
+
+
+def measure(quick: bool = False, progress: Callable[[str], None] | None = None) -> dict:
+    """Time the engines on this machine and return a cost table (see module docstring).
+
+    Parameters
+    ----------
+    quick : bool
+        Fewer sizes and shorter timing budgets (about ten seconds instead of about a minute);
+        the FFT table then stops at ``N = 2**18`` and extrapolates beyond.
+    progress : callable, optional
+        Called with a short message before each group of measurements.
+    """
+    say = progress or (lambda msg: None)
+    rng = np.random.default_rng(20261201)
+    budget = 0.02 if quick else 0.08
+    table = default_costs()
+    table["machine"] = f"{platform.node()} ({platform.machine()}, {platform.processor() or '?'})"
+    table["measured"] = time.strftime("%Y-%m-%d %H:%M:%S")
+
+    say("direct engine, 1-D")
+    rows, times = [], []
+    sizes = [(8, 8), (32, 32), (64, 64), (128, 128), (256, 256), (512, 512), (1024, 1024),
+             (4096, 8), (4096, 32), (16384, 64), (65536, 16), (65536, 128), (2000, 300)]
+    for n1, n2 in sizes[: 9 if quick else None]:
+        x, y = rng.standard_normal(n1), rng.standard_normal(n2)
+        times.append(best_time(lambda x=x, y=y: convolve_direct(x, y), budget))
+        rows.append([1.0, n1 * n2, n1 + n2])
+    c0, cmac, cout = _fit_relative(rows, times)
+    table["direct"] = {"overhead": c0, "per_mac": cmac, "per_output": cout}
+
+    say("direct engine, batched")
+    rows, times = [], []
+    for batch, n, m in [(4, 64, 8), (16, 256, 16), (64, 1024, 4), (8, 4096, 32), (256, 64, 64),
+                        (32, 512, 128)]:
+        x, y = rng.standard_normal((batch, n)), rng.standard_normal((batch, m))
+        times.append(best_time(lambda x=x, y=y: convolve_direct(x, y), budget))
+        rows.append([1.0, m, m * batch * n])
+    c0, cstep, celem = _fit_relative(rows, times)
+    table["direct_batch"] = {"overhead": c0, "per_step": cstep, "per_element": celem}
+
+    say("fft engine")
+    top = 18 if quick else 22
+    rates, fixed = {}, None
+    for k in range(4, top + 1):
+        n_fft = 2**k
+        n = n_fft // 2
+        x, y = rng.standard_normal(n), rng.standard_normal(n)
+        t = best_time(lambda x=x, y=y, n_fft=n_fft: convolve_fft(x, y, n_fft, n_fft - 1, 1),
+                      budget)
+        if fixed is None:
+            fixed = 0.8 * t
+        rates[str(k)] = max(t - fixed, 1e-12) / (n_fft * k)
+    table["fft"] = {"overhead": fixed, "rate_by_log2n": rates}
+
+    say("threads")
+    threads = planning.configured_threads()
+    thread_table = {"min_points": 2**62, "speedup_1d": 1.0, "speedup_batch": 1.0}
+    if threads >= 2:
+        for k in range(12, top + 1):
+            n_fft = 2**k
+            x, y = rng.standard_normal(n_fft // 2), rng.standard_normal(n_fft // 2)
+            one = best_time(lambda x=x, y=y, n=n_fft: convolve_fft(x, y, n, n - 1, 1), budget)
+            two = best_time(lambda x=x, y=y, n=n_fft: convolve_fft(x, y, n, n - 1, threads), budget)
+            if two < 0.95 * one:
+                thread_table["min_points"] = min(thread_table["min_points"], n_fft)
+                thread_table["speedup_1d"] = one / two
+        xb, yb = rng.standard_normal((8, 2**(top - 4))), rng.standard_normal((8, 2**(top - 4)))
+        n_fft = 2**(top - 3)
+        one = best_time(lambda: convolve_fft(xb, yb, n_fft, n_fft - 1, 1), budget)
+        two = best_time(lambda: convolve_fft(xb, yb, n_fft, n_fft - 1, threads), budget)
+        thread_table["speedup_batch"] = max(1.0, one / two)
+    table["threads"] = thread_table
+
+    say("overlap-add engine")
+    rows, times = [], []
+    configs = [(2**12, 16, 128), (2**16, 16, 128), (2**16, 64, 512), (2**14, 128, 1024),
+               (2**18, 128, 1024), (2**16, 256, 2048), (2**16, 512, 4096), (2**18, 64, 8192),
+               (2**16, 1024, 16384)]
+    if not quick:
+        configs += [(2**20, 32, 256), (2**20, 256, 4096), (2**20, 2048, 16384)]
+    for n_long, m, n_fft in configs:
+        x, y = rng.standard_normal(n_long), rng.standard_normal(m)
+        t = best_time(lambda x=x, y=y, n=n_fft: convolve_overlap_add(x, y, n, 1), budget)
+        blocks = -(-n_long // (n_fft - m + 1))
+        transforms = planning.fft_rate(table, n_fft) * n_fft * math.log2(n_fft) * (2 * blocks
+                                                                                   + 1) / 3
+        times.append(max(t - transforms, 0.05 * t))
+        rows.append([1.0, blocks * n_fft])
+    c0, cpt = _fit_relative(rows, times)
+    table["overlap_add"] = {"overhead": c0, "per_point": cpt}
+    say("done")
+    return table

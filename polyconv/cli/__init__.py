@@ -1,0 +1,1 @@
+"""The ``polyconv`` command line: a thin shell over the library."""

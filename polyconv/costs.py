@@ -1,0 +1,96 @@
+"""The cost model's measured constants, kept as data.
+
+Defaults ship in ``polyconv/data/costs.json``.  ``polyconv calibrate`` re-measures the current
+machine and writes a per-user file (never into the installed package); when that file exists the
+library prefers it.  Its location is, in order of preference:
+
+1. the environment variable ``POLYCONV_COSTS`` (a path to a JSON file);
+2. ``$XDG_CONFIG_HOME/polyconv/costs.json``;
+3. ``~/.config/polyconv/costs.json``.
+
+The file holds plain numbers; see :func:`polyconv.calibrate.measure` for how each is measured.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import tempfile
+from importlib import resources
+from pathlib import Path
+
+_cache: dict | None = None
+_cache_source: str | None = None
+#: bumped whenever the table in force is (re)loaded, so plan caches keyed on it go stale
+generation = 0
+
+REQUIRED_KEYS = ("direct", "direct_batch", "fft", "overlap_add", "threads")
+
+
+def user_cost_path() -> Path:
+    """Where ``polyconv calibrate`` writes and the library looks for this machine's costs."""
+    explicit = os.environ.get("POLYCONV_COSTS")
+    if explicit:
+        return Path(explicit).expanduser()
+    base = os.environ.get("XDG_CONFIG_HOME") or os.path.join(os.path.expanduser("~"), ".config")
+    return Path(base) / "polyconv" / "costs.json"
+
+
+def default_costs() -> dict:
+    """The constants shipped with the package."""
+    text = resources.files("polyconv").joinpath("data/costs.json").read_text(encoding="utf-8")
+    return json.loads(text)
+
+
+def _valid(table: object) -> bool:
+    return isinstance(table, dict) and all(k in table for k in REQUIRED_KEYS)
+
+
+def load_costs(refresh: bool = False) -> dict:
+    """The cost table in force: the user's calibrated file if present and readable, else defaults.
+
+    The result is cached; ``refresh=True`` re-reads the files.
+    """
+    global _cache, _cache_source, generation
+    if _cache is not None and not refresh:
+        return _cache
+    table, source = None, "defaults shipped with polyconv"
+    path = user_cost_path()
+    if path.is_file():
+        try:
+            candidate = json.loads(path.read_text(encoding="utf-8"))
+        except (OSError, ValueError):
+            candidate = None
+        if _valid(candidate):
+            table, source = candidate, str(path)
+    if table is None:
+        table = default_costs()
+    _cache, _cache_source = table, source
+    generation += 1
+    return table
+
+
+def cost_source() -> str:
+    """Where the cost table in force came from (a path, or the shipped defaults)."""
+    load_costs()
+    return _cache_source or ""
+
+
+def save_user_costs(table: dict, path: Path | None = None) -> Path:
+    """Write ``table`` atomically (temporary file, then rename) and make it the table in force."""
+    if not _valid(table):
+        raise ValueError(f"a cost table needs the keys {REQUIRED_KEYS}")
+    path = Path(path) if path is not None else user_cost_path()
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=".costs-", suffix=".json", dir=path.parent)
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8") as fh:
+            json.dump(table, fh, indent=2, sort_keys=True)
+            fh.write("\n")
+        os.replace(tmp, path)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+    load_costs(refresh=True)
+    return path

@@ -1,0 +1,217 @@
+"""Turn user array-likes into classified operands.
+
+This is the first stage of the data flow ``inputs -> planning -> engine -> shape``. Nothing here
+computes a product: it checks what the caller gave, names the argument at fault when something is
+wrong, moves the convolution axis last and decides which *kind* of arithmetic the operands need.
+
+Kinds
+-----
+``"real"``
+    Real floating point (any float dtype; integers mixed with floats land here too).
+``"complex"``
+    Complex floating point.
+``"integer"``
+    Fixed-width numpy integers or booleans: the product is computed exactly.
+``"bigint"``
+    An object array whose entries are Python ints (or ``gmpy2.mpz``): computed exactly.
+"""
+
+from __future__ import annotations
+
+import numbers
+from dataclasses import dataclass
+
+import numpy as np
+
+MODES = ("full", "same", "valid")
+
+#: numpy dtype kinds accepted as numbers
+_FLOAT_KINDS = "f"
+_COMPLEX_KINDS = "c"
+_INTEGER_KINDS = "iub"
+
+
+@dataclass(frozen=True, slots=True)
+class OperandPair:
+    """Two validated operands with the convolution axis moved last.
+
+    Attributes
+    ----------
+    a, b : numpy.ndarray
+        The operands, convolution axis last, at least 1-D.  Their leading (batch) axes broadcast.
+    kind : str
+        ``"real"``, ``"complex"``, ``"integer"`` or ``"bigint"`` (see module docstring).
+    batch_shape : tuple of int
+        The broadcast shape of the leading axes.
+    axis : int
+        The user's axis, normalised against the output's number of dimensions.
+    """
+
+    a: np.ndarray
+    b: np.ndarray
+    kind: str
+    batch_shape: tuple
+    axis: int
+
+
+def _as_array(x, name: str) -> np.ndarray:
+    if isinstance(x, np.ndarray):
+        arr = x
+    else:
+        try:
+            arr = np.asarray(x)
+        except (ValueError, TypeError) as exc:  # ragged nested lists and the like
+            raise ValueError(
+                f"{name} must be an array-like of numbers with a regular shape; numpy said: {exc}"
+            ) from None
+    if arr.ndim == 0:
+        raise ValueError(f"{name} must be a sequence (at least 1-D), got a scalar (0-d array)")
+    return arr
+
+
+def _kind_of(arr: np.ndarray, name: str) -> str:
+    k = arr.dtype.kind
+    if k in _FLOAT_KINDS:
+        return "real"
+    if k in _COMPLEX_KINDS:
+        return "complex"
+    if k in _INTEGER_KINDS:
+        return "integer"
+    if k == "O":
+        return _object_kind(arr, name)
+    raise TypeError(
+        f"{name} must hold numbers (bool, integer, float or complex), got dtype {arr.dtype}"
+    )
+
+
+def _object_kind(arr: np.ndarray, name: str) -> str:
+    """Classify an object array: all integers -> "bigint"; otherwise numbers -> float kinds."""
+    flat = arr.ravel()
+    if flat.size == 0:
+        return "real"
+    if all(isinstance(v, numbers.Integral) for v in flat):
+        return "bigint"
+    if all(isinstance(v, numbers.Real) for v in flat):
+        return "real"
+    if all(isinstance(v, numbers.Complex) for v in flat):
+        return "complex"
+    bad = next(v for v in flat if not isinstance(v, numbers.Complex))
+    raise TypeError(f"{name} must hold numbers; found an entry of type {type(bad).__name__}")
+
+
+_KIND_RANK = {"integer": 0, "bigint": 1, "real": 2, "complex": 3}
+
+
+def combine_kinds(ka: str, kb: str) -> str:
+    """The kind of arithmetic a product of a ``ka`` and a ``kb`` operand needs."""
+    return ka if _KIND_RANK[ka] >= _KIND_RANK[kb] else kb
+
+
+def prepare_pair(a, b, axis: int = -1) -> OperandPair:
+    """Validate two operands and move the convolution axis last.
+
+    Parameters
+    ----------
+    a, b : array_like
+        Operands.  Each must be at least 1-D with a non-empty convolution axis.
+    axis : int
+        The axis along which to convolve, counted in each operand separately (``-1``: the last).
+
+    Returns
+    -------
+    OperandPair
+
+    Raises
+    ------
+    ValueError
+        On 0-d or empty operands, an axis out of range or batch shapes that do not broadcast.
+    TypeError
+        On non-numeric data or a non-integer axis.
+    """
+    if not isinstance(axis, (int, np.integer)) or isinstance(axis, bool):
+        raise TypeError(f"axis must be an int, got {type(axis).__name__}")
+    a = _as_array(a, "a")
+    b = _as_array(b, "b")
+    kind = combine_kinds(_kind_of(a, "a"), _kind_of(b, "b"))
+    if a.ndim == 1 and b.ndim == 1:
+        if axis not in (0, -1):
+            raise ValueError(f"axis={axis} is out of range for 1-D inputs a and b")
+        if a.shape[0] == 0 or b.shape[0] == 0:
+            _raise_empty(a, b)
+        return OperandPair(a, b, kind, (), 0)
+    a = _move_axis_last(a, axis, "a")
+    b = _move_axis_last(b, axis, "b")
+    if a.shape[-1] == 0 or b.shape[-1] == 0:
+        _raise_empty(a, b)
+    try:
+        batch = np.broadcast_shapes(a.shape[:-1], b.shape[:-1])
+    except ValueError:
+        raise ValueError(
+            f"the batch shapes of a {a.shape[:-1]} and b {b.shape[:-1]} (all axes but axis={axis}) "
+            "do not broadcast"
+        ) from None
+    out_ndim = len(batch) + 1
+    return OperandPair(a, b, kind, tuple(batch),
+                       _normalise_out_axis(axis, a.ndim, b.ndim, out_ndim))
+
+
+def _normalise_out_axis(axis: int, ndim_a: int, ndim_b: int, out_ndim: int) -> int:
+    """Where the convolution axis sits in the output.
+
+    A negative axis counts from the end in every array, so it keeps its meaning.  A non-negative
+    axis is kept when both operands have the output's number of dimensions; otherwise it is placed
+    by counting from the end of the operand with the most dimensions.
+    """
+    if axis < 0:
+        return out_ndim + axis
+    ref = max(ndim_a, ndim_b)
+    return out_ndim - (ref - axis)
+
+
+def _move_axis_last(arr: np.ndarray, axis: int, name: str) -> np.ndarray:
+    if not -arr.ndim <= axis < arr.ndim:
+        raise ValueError(f"axis={axis} is out of range for {name} with {arr.ndim} dimensions")
+    if axis in (-1, arr.ndim - 1):
+        return arr
+    return np.moveaxis(arr, axis, -1)
+
+
+def _raise_empty(a: np.ndarray, b: np.ndarray) -> None:
+    name = "a" if a.shape[-1] == 0 else "b"
+    raise ValueError(f"{name} is empty along the convolution axis: expected at least one element")
+
+
+def check_mode(mode: str) -> str:
+    """Return ``mode`` if it is one of full/same/valid, else raise ValueError."""
+    if mode not in MODES:
+        raise ValueError(f"mode must be one of 'full', 'same', 'valid'; got {mode!r}")
+    return mode
+
+
+def check_length(length, mode: str) -> int | None:
+    """Validate the truncation ``length`` (first coefficients of the full product)."""
+    if length is None:
+        return None
+    if isinstance(length, bool) or not isinstance(length, (int, np.integer)):
+        raise TypeError(f"length must be a positive int or None, got {type(length).__name__}")
+    if length < 1:
+        raise ValueError(f"length must be >= 1, got {length}")
+    if mode != "full":
+        raise ValueError(f"length is only defined for mode='full', got mode={mode!r}")
+    return int(length)
+
+
+def check_modulus(modulus, kind: str) -> int | None:
+    """Validate ``modulus``: an integer >= 2, only for integer operands."""
+    if modulus is None:
+        return None
+    if isinstance(modulus, bool) or not isinstance(modulus, numbers.Integral):
+        raise TypeError(f"modulus must be an integer >= 2 or None, got {type(modulus).__name__}")
+    m = int(modulus)
+    if m < 2:
+        raise ValueError(f"modulus must be an integer >= 2, got {m}")
+    if kind in ("real", "complex"):
+        raise TypeError(
+            f"modulus={m} needs integer operands; a and b hold {kind} floating point numbers"
+        )
+    return m
