@@ -3,8 +3,8 @@
 Public names only; see README.md for a tour and DEVELOPERS.md for the module map.
 """
 
-from .api import convolve, plan
+from .api import convolve, error_bound, plan
 from .planning import Plan
 
-__all__ = ["convolve", "plan", "Plan"]
+__all__ = ["convolve", "plan", "error_bound", "Plan"]
 __version__ = "0.1.0"

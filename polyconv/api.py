@@ -6,11 +6,14 @@ shapes its full (or truncated) product into the requested mode, dtype and axis.
 
 from __future__ import annotations
 
+import dataclasses
+import math
+
 import numpy as np
 
-from . import inputs, planning, shaping
+from . import inputs, planning, planning_exact, run_exact, shaping
+from .bounds import fft_error_bound, norm2_upper
 from .engines.direct import convolve_direct
-from .engines.exact_direct import convolve_exact_direct
 from .engines.fft import convolve_fft
 from .engines.overlap_add import convolve_overlap_add
 from .planning import Plan
@@ -26,9 +29,16 @@ def _prepare(a, b, mode, method, modulus, length, axis):
         x, y = x[..., :trunc], y[..., :trunc]
     n1, n2 = x.shape[-1], y.shape[-1]
     keep = None if trunc is None else min(trunc, n1 + n2 - 1)
-    the_plan = planning.choose(pair.kind, n1, n2, x.shape[:-1], y.shape[:-1], pair.batch_shape,
-                               mode, method, keep)
-    return pair, x, y, trunc, mod, the_plan
+    planning.check_method(method)
+    if pair.kind in ("integer", "bigint"):
+        x, y = run_exact.normalise_integers(x, mod), run_exact.normalise_integers(y, mod)
+        facts = run_exact.integer_facts(x, y, mod)
+        the_plan = planning_exact.choose_exact(facts, pair.kind, pair.batch_shape, mode, method,
+                                               keep)
+    else:
+        the_plan = planning.choose(pair.kind, n1, n2, x.shape[:-1], y.shape[:-1],
+                                   pair.batch_shape, mode, method, keep)
+    return pair, x, y, trunc, the_plan
 
 
 def plan(a, b, *, mode: str = "full", method: str = "auto", modulus: int | None = None,
@@ -49,7 +59,12 @@ def plan(a, b, *, mode: str = "full", method: str = "auto", modulus: int | None 
     >>> polyconv.plan(np.ones(10), np.ones(3)).engine
     'direct'
     """
-    return _prepare(a, b, mode, method, modulus, length, axis)[-1]
+    the_plan = _prepare(a, b, mode, method, modulus, length, axis)[-1]
+    if not the_plan.exact:
+        pair = inputs.prepare_pair(a, b, axis)
+        bound = error_bound(pair.a, pair.b, the_plan)
+        the_plan = dataclasses.replace(the_plan, error_bound=bound)
+    return the_plan
 
 
 def convolve(a, b, *, mode: str = "full", method: str = "auto", modulus: int | None = None,
@@ -104,20 +119,19 @@ def convolve(a, b, *, mode: str = "full", method: str = "auto", modulus: int | N
     >>> polyconv.convolve([1.0, 2.0, 3.0], [0.0, 1.0, 0.5])
     array([0. , 1. , 2.5, 4. , 1.5])
     """
-    pair, x, y, trunc, mod, the_plan = _prepare(a, b, mode, method, modulus, length, axis)
+    pair, x, y, trunc, the_plan = _prepare(a, b, mode, method, modulus, length, axis)
     if 0 in pair.batch_shape:
         full = shaping.empty_result(the_plan, pair.kind, x, y)
     else:
-        full = run(the_plan, x, y, mod)
+        full = run(the_plan, x, y)
     return shaping.finish(full, the_plan, pair.axis, trunc)
 
 
-def run(the_plan: Plan, x: np.ndarray, y: np.ndarray, modulus: int | None = None) -> np.ndarray:
+def run(the_plan: Plan, x: np.ndarray, y: np.ndarray) -> np.ndarray:
     """Run the plan's engine on prepared operands (axis last); full or truncated product."""
     engine = the_plan.engine
-    if engine == "direct-exact":
-        return convolve_exact_direct(x, y, modulus, the_plan.output_length
-                                     if the_plan.mode == "full" else None)
+    if the_plan.exact:
+        return run_exact.run_exact(the_plan, x, y)
     work = shaping.float_work_dtype(x.dtype, y.dtype, the_plan.kind)
     x = x.astype(work, copy=False)
     y = y.astype(work, copy=False)
@@ -142,3 +156,52 @@ def _run_transform(the_plan: Plan, x: np.ndarray, y: np.ndarray) -> np.ndarray:
     if x.shape[-1] < y.shape[-1]:
         x, y = y, x
     return convolve_overlap_add(x, y, the_plan.transform_length, the_plan.threads)
+
+
+def error_bound(a, b, the_plan: Plan | None = None) -> float:
+    """Rigorous bound on the absolute error of any output coefficient of a float product.
+
+    For the FFT engines this is Percival's bound (C. Percival, Math. Comp. 72 (2003) 387-395,
+    Theorem 5.1; restated in Brent & Zimmermann, *Modern Computer Arithmetic*, section 3.3.2):
+
+        max_k |c'_k - c_k| <= ||a||_2 ||b||_2 [(1+eps)^(3n) (1+sqrt5 eps)^(3n+1) (1+beta)^(3n) - 1]
+
+    for a transform of length ``2^n`` with twiddle error ``beta``, evaluated in exact rational
+    arithmetic (:func:`polyconv.bounds.fft_error_bound`).  The FFT library is pocketfft, which is
+    mixed radix: we count ``n = ceil(log2 N)`` levels for a transform of length ``N`` plus one more
+    when ``N`` is not a power of two (a radix-3 or -5 pass does at most a few more roundings per
+    output than the radix-2 levels it replaces), and take ``beta = 4 eps`` as measured for
+    pocketfft's twiddles (bench/RESULTS.md); these are stated assumptions about pocketfft, not
+    theorems.  Overlap-add adds two block products per output: twice the block bound.  Direct
+    summation: ``gamma_m ||a||_2 ||b||_2`` with ``m = min(n1, n2)`` (Higham, *Accuracy and
+    Stability of Numerical Algorithms*, 2nd ed., section 3.1, with Cauchy-Schwarz).
+
+    Parameters
+    ----------
+    a, b : array_like
+        Float operands (1-D; for N-D the largest row norms are used).
+    the_plan : Plan, optional
+        The plan whose engine to bound; default the plan ``convolve`` would use.
+
+    Returns
+    -------
+    float
+        The bound (absolute, for float64 arithmetic; ``0.0`` for an exact integer plan).
+    """
+    if the_plan is None:
+        the_plan = plan(a, b)
+    if the_plan.exact:
+        return 0.0
+    pair = inputs.prepare_pair(a, b)
+    x = np.asarray(pair.a, dtype=np.complex128 if pair.kind == "complex" else np.float64)
+    y = np.asarray(pair.b, dtype=x.dtype)
+    norm_a = max(norm2_upper(np.abs(r)) for r in x.reshape(-1, x.shape[-1]))
+    norm_b = max(norm2_upper(np.abs(r)) for r in y.reshape(-1, y.shape[-1]))
+    if the_plan.engine == "direct":
+        m = min(the_plan.lengths)
+        gamma = m * 2.0**-53 / (1 - m * 2.0**-53)
+        return math.nextafter(gamma * norm_a * norm_b, math.inf)
+    n_fft = the_plan.transform_length
+    levels = 1 << ((n_fft - 1).bit_length() + (0 if n_fft & (n_fft - 1) == 0 else 1))
+    per_block = fft_error_bound(norm_a, norm_b, levels)
+    return 2 * per_block if the_plan.engine == "overlap-add" else per_block

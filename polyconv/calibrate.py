@@ -23,6 +23,7 @@ from collections.abc import Callable
 import numpy as np
 
 from . import planning
+from .calibrate_exact import measure_exact
 from .costs import default_costs
 from .engines.direct import convolve_direct
 from .engines.fft import convolve_fft
@@ -82,7 +83,8 @@ def measure(quick: bool = False, progress: Callable[[str], None] | None = None) 
     say("direct engine, 1-D")
     rows, times = [], []
     sizes = [(8, 8), (32, 32), (64, 64), (128, 128), (256, 256), (512, 512), (1024, 1024),
-             (4096, 8), (4096, 32), (16384, 64), (65536, 16), (65536, 128), (2000, 300)]
+             (4096, 8), (4096, 32), (16384, 64), (65536, 16), (65536, 128), (2000, 300),
+             (2**22, 16), (2**22, 64), (2**20, 128)]
     for n1, n2 in sizes[: 9 if quick else None]:
         x, y = rng.standard_normal(n1), rng.standard_normal(n2)
         times.append(best_time(lambda x=x, y=y: convolve_direct(x, y), budget))
@@ -139,7 +141,8 @@ def measure(quick: bool = False, progress: Callable[[str], None] | None = None) 
                (2**18, 128, 1024), (2**16, 256, 2048), (2**16, 512, 4096), (2**18, 64, 8192),
                (2**16, 1024, 16384)]
     if not quick:
-        configs += [(2**20, 32, 256), (2**20, 256, 4096), (2**20, 2048, 16384)]
+        configs += [(2**20, 32, 256), (2**20, 256, 4096), (2**20, 2048, 16384),
+                    (2**22, 32, 512), (2**22, 128, 1024), (2**22, 512, 4096)]
     for n_long, m, n_fft in configs:
         x, y = rng.standard_normal(n_long), rng.standard_normal(m)
         t = best_time(lambda x=x, y=y, n=n_fft: convolve_overlap_add(x, y, n, 1), budget)
@@ -150,5 +153,6 @@ def measure(quick: bool = False, progress: Callable[[str], None] | None = None) 
         rows.append([1.0, blocks * n_fft])
     c0, cpt = _fit_relative(rows, times)
     table["overlap_add"] = {"overhead": c0, "per_point": cpt}
+    table["exact"] = measure_exact(table, quick, best_time, _fit_relative, say)
     say("done")
     return table

@@ -24,7 +24,7 @@ _cache_source: str | None = None
 #: bumped whenever the table in force is (re)loaded, so plan caches keyed on it go stale
 generation = 0
 
-REQUIRED_KEYS = ("direct", "direct_batch", "fft", "overlap_add", "threads")
+REQUIRED_KEYS = ("direct", "direct_batch", "fft", "overlap_add", "threads", "exact")
 
 
 def user_cost_path() -> Path:

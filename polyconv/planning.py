@@ -28,7 +28,7 @@ from .costs import load_costs
 from .fastlen import fast_length
 
 FLOAT_ENGINES = ("direct", "fft", "overlap-add")
-EXACT_ENGINES = ("direct-exact",)
+EXACT_ENGINES = ("direct-exact", "fft-exact", "limbs", "kronecker", "ntt")
 METHODS = ("auto",) + FLOAT_ENGINES + EXACT_ENGINES
 
 _CERTIFICATES = ("bound", "check", "construction", "none")
@@ -73,6 +73,14 @@ class Plan:
         Threads the engine may use.
     alternatives : tuple of (str, float)
         Every engine considered with its predicted seconds, fastest first.
+    settings : tuple of (str, value)
+        Further engine parameters (limb sizes and counts for "limbs").
+    fallback : str or None
+        For certificate "check": the engine that recomputes the product if the check fails.
+    modulus : int or None
+        The modulus outputs are reduced by.
+    output_int64 : bool
+        For exact plans: whether the result is returned as int64 (else Python ints).
     """
 
     engine: str
@@ -90,6 +98,17 @@ class Plan:
     block_length: int | None = None
     threads: int = 1
     alternatives: tuple = field(default=())
+    settings: tuple = ()
+    fallback: str | None = None
+    modulus: int | None = None
+    output_int64: bool = False
+
+    def setting(self, name: str, default=None):
+        """The engine parameter ``name`` from :attr:`settings` (``default`` if absent)."""
+        for key, value in self.settings:
+            if key == name:
+                return value
+        return default
 
     def __str__(self) -> str:
         n1, n2 = self.lengths
@@ -98,7 +117,7 @@ class Plan:
             f"polyconv plan: {self.engine} for {self.kind} operands of lengths {n1} and {n2}"
             f"{batch}, mode {self.mode!r} -> {self.output_length} outputs",
             f"  why:         {self.reason}",
-            f"  predicted:   {_fmt_seconds(self.predicted_seconds)}",
+            f"  predicted:   {format_seconds(self.predicted_seconds)}",
             f"  exact:       {'yes' if self.exact else 'no'} (certificate: {self.certificate})",
             f"  error bound: {_fmt_bound(self.error_bound)}",
         ]
@@ -108,13 +127,21 @@ class Plan:
                 detail += f", blocks of {self.block_length}"
             detail += f", {self.threads} thread{'s' if self.threads != 1 else ''}"
             lines.append(detail)
+        if self.settings:
+            lines.append("  settings:    " + ", ".join(f"{k}={v}" for k, v in self.settings))
+        if self.modulus is not None:
+            lines.append(f"  modulus:     {self.modulus} (outputs in [0, modulus))")
+        if self.exact:
+            lines.append(f"  output:      {'int64' if self.output_int64 else 'Python ints'}")
+        if self.fallback:
+            lines.append(f"  fallback:    {self.fallback} (if the check fails)")
         if len(self.alternatives) > 1:
-            others = ", ".join(f"{name} {_fmt_seconds(t)}" for name, t in self.alternatives)
+            others = ", ".join(f"{name} {format_seconds(t)}" for name, t in self.alternatives)
             lines.append(f"  considered:  {others}")
         return "\n".join(lines)
 
 
-def _fmt_seconds(t: float) -> str:
+def format_seconds(t: float) -> str:
     if t < 1e-3:
         return f"{t * 1e6:.1f} us"
     if t < 1.0:
@@ -259,6 +286,13 @@ def output_length(mode: str, n1: int, n2: int) -> int:
     return max(n1, n2) - min(n1, n2) + 1
 
 
+def check_method(method) -> str:
+    """Return ``method`` if it names "auto" or an engine, else raise ValueError."""
+    if not isinstance(method, str) or method not in METHODS:
+        raise ValueError(f"method must be one of {', '.join(map(repr, METHODS))}; got {method!r}")
+    return method
+
+
 def choose(kind: str, n1: int, n2: int, batch_a: tuple, batch_b: tuple, batch: tuple,
            mode: str = "full", method: str = "auto", keep: int | None = None) -> Plan:
     """Predict every capable engine's cost and return the Plan for the chosen one.
@@ -286,8 +320,7 @@ def choose(kind: str, n1: int, n2: int, batch_a: tuple, batch_b: tuple, batch: t
     ValueError
         If ``method`` is unknown or cannot handle this kind of operand.
     """
-    if not isinstance(method, str) or method not in METHODS:
-        raise ValueError(f"method must be one of {', '.join(map(repr, METHODS))}; got {method!r}")
+    check_method(method)
     if _costs.generation == 0:
         load_costs()
     return _choose_cached(_costs.generation, kind, n1, n2, batch_a, batch_b, batch, mode, method,
@@ -300,18 +333,9 @@ def _choose_cached(generation: int, kind: str, n1: int, n2: int, batch_a: tuple,
     full = n1 + n2 - 1
     out_len = output_length(mode, n1, n2) if keep is None else keep
     common = dict(kind=kind, mode=mode, lengths=(n1, n2), batch_shape=batch, output_length=out_len)
-    if kind in ("integer", "bigint"):
-        if method not in ("auto", "direct-exact"):
-            raise ValueError(
-                f"method={method!r} is a floating-point engine; integer operands are computed "
-                "exactly: use method='auto' or 'direct-exact'"
-            )
-        return Plan("direct-exact", True, "construction", 0.0,
-                    costs_direct_exact(n1, n2, _prod(batch)),
-                    "integer operands are multiplied exactly with Python integers", **common)
-    if method == "direct-exact":
+    if method in EXACT_ENGINES:
         raise ValueError(
-            f"method='direct-exact' needs integer operands; a and b hold {kind} numbers")
+            f"method={method!r} is an exact integer engine; a and b hold {kind} numbers")
 
     costs = load_costs()
     threads = _THREADS
@@ -340,8 +364,8 @@ def _choose_cached(generation: int, kind: str, n1: int, n2: int, batch_a: tuple,
     if method == "auto":
         engine = ranked[0][0]
         runner_up = ranked[1] if len(ranked) > 1 else None
-        reason = f"{engine} is predicted fastest ({_fmt_seconds(ranked[0][1])}"
-        reason += f"; next {runner_up[0]} {_fmt_seconds(runner_up[1])})" if runner_up else ")"
+        reason = f"{engine} is predicted fastest ({format_seconds(ranked[0][1])}"
+        reason += f"; next {runner_up[0]} {format_seconds(runner_up[1])})" if runner_up else ")"
     else:
         if method not in options:
             raise ValueError(
@@ -366,8 +390,3 @@ def _choose_cached(generation: int, kind: str, n1: int, n2: int, batch_a: tuple,
     return Plan(engine, False, "none", math.inf, options[engine], reason,
                 transform_length=transform, block_length=block, threads=engine_threads,
                 alternatives=ranked, **common)
-
-
-def costs_direct_exact(n1: int, n2: int, batch: int) -> float:
-    """Rough seconds for object-dtype schoolbook multiplication (about 60 ns per product)."""
-    return 5e-6 + 6e-8 * n1 * n2 * batch

@@ -1,0 +1,70 @@
+"""Bound / observed error of float FFT products on adversarial 16-bit x 16-bit inputs.
+
+Run: python bench/exact_error_ratio.py [max_log2n]   (prints a markdown table; ~1 minute to 2^20)
+Also measures pocketfft's twiddle error (FFT of a unit impulse vs roots of unity in long double).
+"""
+
+from __future__ import annotations
+
+import sys
+
+import numpy as np
+from scipy import fft as sfft
+
+from polyconv import bounds
+from polyconv.engines.kronecker import convolve_kronecker
+
+M = 2**16 - 1
+
+
+def cases(n: int, rng: np.random.Generator) -> dict[str, tuple[np.ndarray, np.ndarray]]:
+    ones = np.full(n, M, dtype=np.int64)
+    alt = ones * np.where(np.arange(n) % 2 == 0, 1, -1)
+    signs = ones * rng.choice([-1, 1], n)
+    uniform = rng.integers(-M, M, n, endpoint=True)
+    return {"all +max": (ones, ones), "alternating": (alt, alt), "+max * alternating": (ones, alt),
+            "random signs at max": (signs, ones * rng.choice([-1, 1], n)),
+            "uniform": (uniform, rng.integers(-M, M, n, endpoint=True))}
+
+
+def observed_error(a: np.ndarray, b: np.ndarray, n_fft: int) -> float:
+    approx = sfft.irfft(sfft.rfft(a.astype(float), n_fft) * sfft.rfft(b.astype(float), n_fft),
+                        n_fft)[: a.shape[0] + b.shape[0] - 1]
+    exact = convolve_kronecker(a, b, as_int64=True)
+    return float(np.max(np.abs(approx - exact.astype(np.longdouble))))
+
+
+def twiddle_error(n_fft: int) -> float:
+    impulse = np.zeros(n_fft)
+    impulse[1] = 1.0
+    k = np.arange(n_fft, dtype=np.longdouble)
+    angle = -2 * np.pi * k / np.longdouble(n_fft)
+    exact_re, exact_im = np.cos(angle), np.sin(angle)
+    got = sfft.fft(impulse)
+    err = np.maximum(np.abs(got.real - exact_re), np.abs(got.imag - exact_im))
+    return float(np.max(err) / 2.0**-53)
+
+
+def main() -> None:
+    top = int(sys.argv[1]) if len(sys.argv) > 1 else 20
+    rng = np.random.default_rng(20260501)
+    print("| log2 n | N | case | observed max error | bound | bound / observed |")
+    print("|---|---|---|---|---|---|")
+    for lg in range(10, top + 1):
+        n = 1 << lg
+        n_fft = 2 * n
+        for name, (a, b) in cases(n, rng).items():
+            bound = bounds.fft_error_bound(bounds.norm2_upper(a), bounds.norm2_upper(b), n_fft)
+            err = observed_error(a, b, n_fft)
+            ratio = bound / err if err > 0 else float("inf")
+            print(f"| {lg} | 2^{lg + 1} | {name} | {err:.3g} | {bound:.3g} | {ratio:.1f} |",
+                  flush=True)
+    print()
+    print("| N | worst twiddle error (units of eps = 2^-53) |")
+    print("|---|---|")
+    for lg in range(10, top + 2):
+        print(f"| 2^{lg} | {twiddle_error(1 << lg):.2f} |", flush=True)
+
+
+if __name__ == "__main__":
+    main()

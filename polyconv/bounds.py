@@ -1,0 +1,220 @@
+"""Error bounds, bit sizes and certificates for exact integer products.
+
+A-priori bound (Percival, "Rapid multiplication modulo the sum and difference of highly composite
+numbers", Math. Comp. 72 (2003) 387-395, Theorem 5.1; restated in Brent & Zimmermann, *Modern
+Computer Arithmetic*, 2010, section 3.3.2): for a radix-2 complex FFT of length ``N = 2^n``,
+unit roundoff ``eps = 2^-53`` and precomputed twiddles with error at most ``beta``, the computed
+cyclic convolution ``z'`` of ``x`` and ``y`` satisfies
+
+    max_k |z'_k - z_k| <= ||x||_2 ||y||_2 [ (1+eps)^(3n) (1+sqrt(5) eps)^(3n+1) (1+beta)^(3n) - 1 ].
+
+(the ``sqrt(5) eps`` is the error of a complex multiplication, Brent, Percival & Zimmermann, Math.
+Comp. 76 (2007)).  :func:`fft_error_bound` evaluates it in exact rational arithmetic and rounds up.
+
+Assumptions for pocketfft (numpy/scipy), which is not a plain radix-2 transform:
+
+* the certified path uses power-of-two lengths only, so pocketfft runs radix-4 passes (and one
+  radix-2 pass).  A radix-4 butterfly is two radix-2 levels with trivial inner twiddles (``+-i``,
+  exact), so we take the level count ``n = log2 N`` of the radix-2 theorem as covering it;
+* the real transforms (``rfft``/``irfft``) are a half-length complex transform plus one twiddled
+  post-processing pass: at most ``n`` levels again, so the bound at length ``N`` is used;
+* twiddle error ``beta`` = :data:`TWIDDLE_ERROR` ``= 4 eps``.  pocketfft computes its twiddles
+  from an accurate sin/cos; the FFT of a unit impulse at index 1 returns the roots of unity as
+  the transform produces them (table entries and the products formed on the way), and its worst
+  deviation from roots computed in long double was 2.8-3.6 eps at ``N = 2^10 .. 2^21``
+  (bench/EXACT_NOTES.md).  We take 4 eps as the per-twiddle error: measured, not proven.
+
+These are assumptions, not theorems about pocketfft; the measured worst errors on adversarial
+inputs stay 10-60x below the bound (bench/EXACT_NOTES.md), and the a-posteriori checks below
+(modular rescue, random evaluation) can back any result.
+"""
+
+from __future__ import annotations
+
+import math
+import random
+from fractions import Fraction
+
+import numpy as np
+
+EPS = Fraction(1, 2**53)
+#: Assumed twiddle error of pocketfft (relative to 1), see the module notes.
+TWIDDLE_ERROR = 4 * EPS
+#: A rational upper bound of sqrt(5).
+_SQRT5_UP = Fraction(2236067977500, 10**12) + Fraction(1, 10**11)
+
+
+def _round_up(q: Fraction) -> float:
+    """The smallest float ``>= q``."""
+    f = float(q)
+    return f if Fraction(f) >= q else math.nextafter(f, math.inf)
+
+
+def fft_error_factor(n_fft: int, beta: Fraction = TWIDDLE_ERROR) -> float:
+    """``(1+eps)^(3n) (1+sqrt5 eps)^(3n+1) (1+beta)^(3n) - 1`` for ``n = ceil(log2 n_fft)``,
+    evaluated exactly and rounded up."""
+    n = max(1, (n_fft - 1).bit_length())
+    factor = (1 + EPS) ** (3 * n) * (1 + _SQRT5_UP * EPS) ** (3 * n + 1) * (1 + beta) ** (3 * n)
+    return _round_up(factor - 1)
+
+
+def fft_error_bound(norm2_a: float, norm2_b: float, n_fft: int,
+                    beta: Fraction = TWIDDLE_ERROR) -> float:
+    """Rigorous bound on ``max_k |c'_k - c_k|`` for a float FFT product at length ``n_fft``.
+
+    Parameters
+    ----------
+    norm2_a, norm2_b : float
+        Upper bounds of the operands' Euclidean norms (see :func:`norm2_upper`).
+    n_fft : int
+        Transform length (a power of two on the certified path; others are rounded up).
+    beta : Fraction
+        Twiddle error bound; default :data:`TWIDDLE_ERROR`.
+
+    Returns
+    -------
+    float
+        Percival's bound (module notes), rounded upward.
+    """
+    product = Fraction(norm2_a) * Fraction(norm2_b) * Fraction(fft_error_factor(n_fft, beta))
+    return _round_up(product)
+
+
+def limb_error_bound(limb_bits: int, limbs_a: int, limbs_b: int, n1: int, n2: int,
+                     n_fft: int) -> float:
+    """Bound on the error of each summed limb product of the limb-split engine.
+
+    Balanced limbs have ``|digit| <= 2^(b-1)``, so each limb sequence has norm at most
+    ``2^(b-1) sqrt(n)``.  A summed part adds at most ``k = min(limbs_a, limbs_b)`` products in the
+    frequency domain; we bound it by ``k`` times the single-product bound, doubled to cover the
+    ``k - 1`` extra complex additions per frequency (each ``<= eps`` relative, a far smaller term).
+    """
+    k = min(limbs_a, limbs_b)
+    digit = 2.0 ** (limb_bits - 1)
+    single = fft_error_bound(digit * math.sqrt(n1) * (1 + 2**-50),
+                             digit * math.sqrt(n2) * (1 + 2**-50), n_fft)
+    return _round_up(Fraction(single) * k * (2 if k > 1 else 1))
+
+
+def choose_limbs(max_a: int, max_b: int, n1: int, n2: int, n_fft: int,
+                 max_limb_bits: int = 30) -> tuple[int, int, int] | None:
+    """Largest limb size ``b`` (and the limb counts) whose limb products round exactly.
+
+    Returns ``(limb_bits, limbs_a, limbs_b)`` with :func:`limb_error_bound` ``< 1/2`` and every
+    summed part below ``2^53``, or None when even 1-bit limbs fail.
+    """
+    for bits in range(max_limb_bits, 0, -1):
+        ka = max(1, -(-(max_a.bit_length() + 1) // bits))
+        kb = max(1, -(-(max_b.bit_length() + 1) // bits))
+        part = min(ka, kb) * min(n1, n2) * 4 ** (bits - 1)
+        if part < 2**52 and limb_error_bound(bits, ka, kb, n1, n2, n_fft) < 0.5:
+            return bits, ka, kb
+    return None
+
+
+# ----------------------------------------------------------------------------- bit sizes
+
+
+def max_abs(x: np.ndarray) -> int:
+    """Largest ``|x_i|`` as a Python int (0 for an empty array)."""
+    if x.size == 0:
+        return 0
+    return max(abs(int(x.max())), abs(int(x.min())))
+
+
+def bit_length_max(x: np.ndarray) -> int:
+    """Bits of the largest magnitude: ``max_i |x_i|.bit_length()``."""
+    return max_abs(x).bit_length()
+
+
+def product_bound(a: np.ndarray, b: np.ndarray) -> int:
+    """``min(n1, n2) max|a| max|b|``, a bound on every coefficient of ``a * b``."""
+    return min(a.shape[-1], b.shape[-1]) * max_abs(a) * max_abs(b)
+
+
+def product_bits(a: np.ndarray, b: np.ndarray) -> int:
+    """DESIGN.md section 5's slot width: ``bits(max|a|) + bits(max|b|) + bits(min(n1,n2)) + 1``."""
+    return bit_length_max(a) + bit_length_max(b) + min(a.shape[-1], b.shape[-1]).bit_length() + 1
+
+
+def norm2_upper(x: np.ndarray) -> float:
+    """An upper bound of ``||x||_2`` in float64.
+
+    Integers up to ``2^26`` in magnitude with fewer than ``2^11`` entries sum their squares
+    exactly in int64; otherwise a float64 dot product is inflated by ``gamma_(n+2)`` (Higham,
+    *Accuracy and Stability of Numerical Algorithms*, 2nd ed., section 3.1: a sum of n products
+    has relative error at most ``n eps / (1 - n eps)``; the ``+2`` covers rounding the entries to
+    float and the square root).
+    """
+    n = x.shape[0]
+    if x.dtype.kind in "iub" and bit_length_max(x) <= 26 and n < 2**11:
+        exact = int(np.dot(x.astype(np.int64), x.astype(np.int64)))
+        return _round_up(Fraction(math.isqrt(exact) + (0 if math.isqrt(exact) ** 2 == exact
+                                                        else 1)))
+    xf = x.astype(np.float64)
+    total = float(np.sum(xf * xf))
+    gamma = (n + 2) * 2.0**-53 / (1 - (n + 2) * 2.0**-53)
+    return math.nextafter(math.sqrt(total * (1 + 2 * gamma)), math.inf)
+
+
+# ----------------------------------------------------------------------------- a-posteriori checks
+
+
+def modular_rescue(approx: np.ndarray, residues: np.ndarray, p: int) -> np.ndarray:
+    """Exact ``c`` from a float approximation ``c'`` and ``r = c mod p`` (DESIGN.md section 4).
+
+    ``c = r + p round((c' - r) / p)`` whenever ``|c' - c| < p/2`` (minus the float error of the
+    division, ``|c'| 2^-52``, negligible for ``|c'| << 2^52 p``).  Returns int64: the caller
+    guarantees ``|c| < 2^63``.
+    """
+    r = residues.astype(np.int64)
+    k = np.rint((approx - r) / p).astype(np.int64)
+    return r + k * np.int64(p)
+
+
+#: The Mersenne prime ``2^31 - 1``: products of two residues fit in uint64.
+CHECK_PRIME = 2**31 - 1
+
+
+def random_evaluation_check(a: np.ndarray, b: np.ndarray, c: np.ndarray, trials: int = 3,
+                            rng: random.Random | None = None) -> bool:
+    """Schwartz-Zippel test of ``c == a * b`` at random points modulo ``q = 2^31 - 1``.
+
+    Each trial draws ``t`` uniformly in ``[0, q)`` and compares ``a(t) b(t)`` with ``c(t)`` mod
+    ``q``.  A wrong ``c`` (``a*b - c`` nonzero of degree ``d`` mod ``q``) passes one trial with
+    probability ``<= d / q`` (Schwartz 1980, Zippel 1979), ``trials`` independent ones with
+    ``(d / q)^trials``.  (Differences divisible by ``q`` are invisible: for a certificate,
+    combine with a bound below ``q`` or use several moduli.)  O(n) vectorised work per trial.
+    """
+    rng = rng or random.SystemRandom()
+    ra, rb, rc = (_residues(x, CHECK_PRIME) for x in (a, b, c))
+    for _ in range(trials):
+        t = rng.randrange(CHECK_PRIME)
+        lhs = _evaluate(ra, t) * _evaluate(rb, t) % CHECK_PRIME
+        if lhs != _evaluate(rc, t):
+            return False
+    return True
+
+
+def _residues(x: np.ndarray, q: int) -> np.ndarray:
+    if x.dtype.kind == "u":
+        return x % np.uint64(q)
+    if x.dtype.kind in "ib":
+        return (x.astype(np.int64) % np.int64(q)).astype(np.uint64)
+    return np.mod(x, q).astype(np.uint64)
+
+
+def _evaluate(residues: np.ndarray, t: int) -> int:
+    """``sum_i r_i t^i mod q`` with the powers built by doubling (uint64, no overflow)."""
+    q = np.uint64(CHECK_PRIME)
+    n = residues.shape[0]
+    powers = np.ones(n, dtype=np.uint64)
+    filled, factor = 1, t
+    while filled < n:
+        take = min(filled, n - filled)
+        powers[filled:filled + take] = powers[:take] * np.uint64(factor) % q
+        filled += take
+        factor = factor * factor % CHECK_PRIME
+    terms = residues * powers % q
+    return int(terms.sum(dtype=np.uint64) % q) if n < 2**32 else int(
+        sum(int(s) for s in np.add.reduceat(terms, np.arange(0, n, 2**30))) % CHECK_PRIME)

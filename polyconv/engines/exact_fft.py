@@ -1,0 +1,190 @@
+"""Exact integer convolution by float FFT and rounding, whole or split into limbs.
+
+If a float computation ``c'`` of an integer product ``c`` satisfies ``|c' - c| < 1/2`` everywhere,
+rounding ``c'`` recovers ``c`` exactly.  Whether that holds is the caller's business: it comes from
+a certificate (:func:`polyconv.bounds.fft_error_bound`, Percival 2003) or an a-posteriori check.
+
+Limb split (the "splitting" of D. E. Knuth, TAOCP vol. 2, 4.3.3, applied coefficientwise; see also
+Brent & Zimmermann, *Modern Computer Arithmetic*, section 3.3.2): write every coefficient in
+balanced base ``2^b``, ``x_i = sum_j x_ij 2^(b j)`` with ``|x_ij| <= 2^(b-1)``, so that
+``c_k = sum_m 2^(b m) sum_(j+l=m) (A_j * B_l)_k`` where ``A_j = (x_ij)_i``.  Each inner sum is a
+convolution of small integers, computed exactly by FFTs when the bound allows; the transforms of
+all limb sequences are taken once and the sums formed in the frequency domain, so the cost is
+``ka + kb`` forward and ``ka + kb - 1`` inverse real transforms.  The exact recombination is a
+carry propagation in int64 followed by one byte conversion per coefficient.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from scipy import fft as _sfft
+
+from . import _intpack
+
+
+def convolve_rounded(a: np.ndarray, b: np.ndarray, n_fft: int,
+                     keep: int | None = None) -> np.ndarray:
+    """Float FFT product of integer sequences rounded to the nearest integers (int64).
+
+    Parameters
+    ----------
+    a, b : numpy.ndarray
+        1-D, non-empty, integer or float arrays holding integers exactly representable in float64.
+    n_fft : int
+        Transform length, ``>= n1 + n2 - 1`` (a power of two on the certified path).
+    keep : int, optional
+        Return only the first ``keep`` coefficients.
+
+    Returns
+    -------
+    numpy.ndarray
+        int64, length ``min(keep, n1 + n2 - 1)``.  Exact only if the caller has certified that
+        the float error is below 1/2 and every ``|c_k| < 2^53``.
+    """
+    count = a.shape[0] + b.shape[0] - 1
+    if keep is not None:
+        count = min(count, keep)
+    fa = _sfft.rfft(a.astype(np.float64), n_fft)
+    fa *= _sfft.rfft(b.astype(np.float64), n_fft)
+    return np.rint(_sfft.irfft(fa, n_fft, overwrite_x=True)[:count]).astype(np.int64)
+
+
+def limb_count(max_abs: int, limb_bits: int) -> int:
+    """Balanced limbs of ``limb_bits`` bits needed for values up to ``max_abs`` in magnitude."""
+    return max(1, -(-(max_abs.bit_length() + 1) // limb_bits))
+
+
+def split_limbs(x: np.ndarray, limb_bits: int, n_limbs: int) -> np.ndarray:
+    """Balanced base-``2^b`` digits of each entry: ``(n_limbs, n)`` float64, ``|digit| <= 2^(b-1)``.
+
+    Precondition: ``n_limbs >= limb_count(max|x|, limb_bits)`` and ``limb_bits <= 30``.
+    Magnitudes are cut into plain digits (vectorised on 64-bit words), balanced by a carry pass
+    over the limbs (``d >= 2^(b-1)`` becomes ``d - 2^b`` with a carry of 1; the top limb keeps
+    its carry), and given the sign.
+    """
+    words, negative = _magnitude_words(x)
+    mask = (1 << limb_bits) - 1
+    half = 1 << (limb_bits - 1)
+    out = np.empty((n_limbs, x.shape[0]), dtype=np.float64)
+    carry = np.zeros(x.shape[0], dtype=np.int64)
+    for j in range(n_limbs):
+        digit = _bit_field(words, j * limb_bits, limb_bits, mask) + carry
+        if j < n_limbs - 1:  # the top limb keeps its carry: at most 2^(b-1) by the precondition
+            carry = (digit >= half).astype(np.int64)
+            digit -= carry << limb_bits
+        out[j] = digit
+    if negative is not None:
+        out[:, negative] *= -1.0
+    return out
+
+
+def _magnitude_words(x: np.ndarray) -> tuple[np.ndarray, np.ndarray | None]:
+    """``|x|`` as ``(n, w)`` little-endian uint64 words, and the mask of negative entries."""
+    if x.dtype.kind == "u":
+        return x.astype(np.uint64).reshape(-1, 1), None
+    if x.dtype.kind in "ib":
+        signed = x.astype(np.int64)
+        negative = signed < 0
+        magnitude = signed.view(np.uint64).copy()
+        magnitude[negative] = np.uint64(0) - magnitude[negative]
+        return magnitude.reshape(-1, 1), negative
+    values = x.tolist()
+    negative = np.array([v < 0 for v in values], dtype=bool)
+    width = max(1, -(-max(abs(int(v)).bit_length() for v in values) // 64)) * 8
+    joined = b"".join([abs(int(v)).to_bytes(width, "little") for v in values])
+    rows = np.frombuffer(joined, dtype=np.uint8).reshape(len(values), width)
+    return _intpack.words_from_rows(rows), negative
+
+
+def _bit_field(words: np.ndarray, offset: int, size: int, mask: int) -> np.ndarray:
+    """Bits ``[offset, offset + size)`` of each row's little-endian words (``size <= 32``)."""
+    index, shift = divmod(offset, 64)
+    if index >= words.shape[1]:
+        return np.zeros(words.shape[0], dtype=np.int64)
+    field = words[:, index] >> np.uint64(shift)
+    if shift + size > 64 and index + 1 < words.shape[1]:
+        field |= words[:, index + 1] << np.uint64(64 - shift)
+    return (field & np.uint64(mask)).astype(np.int64)
+
+
+def convolve_limbs(a: np.ndarray, b: np.ndarray, limb_bits: int, limbs_a: int, limbs_b: int,
+                   n_fft: int, keep: int | None = None, as_int64: bool = False) -> np.ndarray:
+    """Exact integer product by limb-split float FFTs (first ``keep`` coefficients if given).
+
+    Parameters
+    ----------
+    a, b : numpy.ndarray
+        1-D, non-empty, int64, uint64 or object arrays of integers.
+    limb_bits : int
+        ``b``, at most 30.  The caller guarantees, from an error bound on the sums of
+        ``min(limbs_a, limbs_b)`` limb products at length ``n_fft``, that every rounded limb
+        product is exact (:func:`polyconv.bounds.limb_error_bound`).
+    limbs_a, limbs_b : int
+        Limb counts, at least :func:`limb_count` of each operand's largest magnitude.
+    n_fft : int
+        Transform length ``>= n1 + n2 - 1``.
+    keep : int, optional
+        Return only the first ``keep`` coefficients.
+    as_int64 : bool
+        The caller proved ``|c_k| < 2^63``: recombine in int64 and return int64.
+
+    Returns
+    -------
+    numpy.ndarray
+        The exact ``c_k``: int64 if ``as_int64``, else an object array of Python ints.
+    """
+    count = a.shape[0] + b.shape[0] - 1
+    if keep is not None:
+        count = min(count, keep)
+    spectra_a = _sfft.rfft(split_limbs(a, limb_bits, limbs_a), n_fft, axis=-1)
+    spectra_b = _sfft.rfft(split_limbs(b, limb_bits, limbs_b), n_fft, axis=-1)
+    sums = np.zeros((limbs_a + limbs_b - 1, spectra_a.shape[1]), dtype=np.complex128)
+    for j in range(limbs_a):
+        sums[j:j + limbs_b] += spectra_a[j] * spectra_b
+    parts = np.rint(_sfft.irfft(sums, n_fft, axis=-1, overwrite_x=True)[:, :count])
+    parts = parts.astype(np.int64)
+    if as_int64:
+        return _recombine_int64(parts, limb_bits)
+    return _recombine_objects(parts, limb_bits)
+
+
+def _recombine_int64(parts: np.ndarray, limb_bits: int) -> np.ndarray:
+    """``sum_m parts[m] 2^(b m)`` in wrapping int64 (exact when the true sum fits)."""
+    out = np.zeros(parts.shape[1], dtype=np.int64)
+    for m in range(parts.shape[0] - 1, -1, -1):
+        out <<= limb_bits
+        out += parts[m]
+    return out
+
+
+def _recombine_objects(parts: np.ndarray, limb_bits: int) -> np.ndarray:
+    """``sum_m parts[m] 2^(b m)`` as Python ints: carries in int64, then bytes, then ints.
+
+    A carry pass turns the parts into digits in ``[0, 2^b)`` plus a final carry in ``{-1, 0}``
+    (the sign); the digits are laid out as bits of a two's-complement row per coefficient.
+    """
+    digits = []
+    carry = np.zeros(parts.shape[1], dtype=np.int64)
+    mask = (1 << limb_bits) - 1
+    m = 0
+    while m < parts.shape[0] or np.any((carry != 0) & (carry != -1)):
+        value = carry + (parts[m] if m < parts.shape[0] else 0)
+        digits.append((value & mask).astype(np.uint8 if limb_bits <= 8 else np.uint64))
+        carry = value >> limb_bits
+        m += 1
+    bits = _digits_to_bits(digits, limb_bits, carry < 0)
+    rows = np.packbits(bits, axis=1, bitorder="little")
+    return _intpack.rows_to_ints(rows, signed=True).astype(object)
+
+
+def _digits_to_bits(digits: list[np.ndarray], limb_bits: int, negative: np.ndarray) -> np.ndarray:
+    """``(n, 8 ceil((D b + 1) / 8))`` bit matrix: digit bits, then sign fill."""
+    total = len(digits) * limb_bits
+    width = 8 * (total // 8 + 1)
+    bits = np.empty((negative.shape[0], width), dtype=np.uint8)
+    shifts = np.arange(limb_bits, dtype=np.uint64)
+    for m, d in enumerate(digits):
+        field = (d.astype(np.uint64)[:, None] >> shifts) & np.uint64(1)
+        bits[:, m * limb_bits:(m + 1) * limb_bits] = field
+    bits[:, total:] = negative[:, None]
+    return bits

@@ -1,0 +1,239 @@
+"""Planning for integer operands: which exact engine, and the certificate that makes it exact.
+
+Inputs are the operands' lengths and magnitudes (:class:`IntegerFacts`); the chooser predicts each
+capable engine's seconds from the cost table's ``exact`` section and returns a
+:class:`polyconv.planning.Plan` whose ``certificate`` says why the result is exact:
+
+* ``"construction"``: exact integer arithmetic (direct summation, Kronecker substitution on GMP
+  integers, number-theoretic transforms with CRT);
+* ``"bound"``: a float FFT whose rigorous error bound (Percival 2003, see :mod:`polyconv.bounds`)
+  is below 1/2, so rounding recovers every coefficient (whole, or split into limbs);
+* ``"check"``: a float FFT whose bound is above 1/2 but small enough that the true error is very
+  likely below it (the bound is 55-110x pessimistic on adversarial inputs, bench/RESULTS.md); the
+  rounded result is accepted only after a random-evaluation check (Schwartz-Zippel) passes, and
+  otherwise recomputed by the plan's ``fallback`` engine.
+
+With a modulus, operands are reduced to ``[0, m)`` first, so every engine sees magnitudes below
+``m``; outputs are reduced last.  An NTT prime modulus adds the number-theoretic transform.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from functools import lru_cache
+
+from . import bounds
+from . import costs as _costs
+from .costs import load_costs
+from .engines.ntt import PRIMES
+from .planning import EXACT_ENGINES, Plan, fft_rate, output_length
+
+#: Above this many float-FFT error-bound units, a "check" certificate is not even attempted: the
+#: measured bound/observed ratio on adversarial inputs is >= 55, so a bound below 16 leaves the
+#: expected worst error below 0.3.
+CHECK_BOUND_LIMIT = 16.0
+#: Float products are exact only for integers below 2**53.
+FLOAT_EXACT_LIMIT = 2**53
+INT64_LIMIT = 2**63
+
+
+@dataclass(frozen=True, slots=True)
+class IntegerFacts:
+    """What the exact chooser needs to know about two integer operands.
+
+    Attributes
+    ----------
+    n1, n2 : int
+        Lengths along the convolution axis (after truncation).
+    max_a, max_b : int
+        Largest magnitudes (after reduction when a modulus is given).
+    norm_a, norm_b : float
+        Upper bounds of the largest row's Euclidean norm (``inf`` when not computed).
+    modulus : int or None
+        The modulus, if any.
+    """
+
+    n1: int
+    n2: int
+    max_a: int
+    max_b: int
+    norm_a: float
+    norm_b: float
+    modulus: int | None
+
+    @property
+    def bound(self) -> int:
+        """``min(n1, n2) max|a| max|b|``: no output coefficient is larger in magnitude."""
+        return min(self.n1, self.n2) * self.max_a * self.max_b
+
+
+def power_of_two_at_least(n: int) -> int:
+    """Smallest power of two ``>= n``."""
+    return 1 << max(0, (n - 1).bit_length())
+
+
+def choose_exact(facts: IntegerFacts, kind: str, batch: tuple, mode: str, method: str,
+                 keep: int | None) -> Plan:
+    """The plan for an exact integer (or modular) product.
+
+    Raises
+    ------
+    ValueError
+        If ``method`` names an engine that cannot give an exact result here.
+    """
+    if _costs.generation == 0:
+        load_costs()
+    return _choose_exact_cached(_costs.generation, facts, kind, batch, mode, method, keep)
+
+
+@lru_cache(maxsize=1024)
+def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch: tuple, mode: str,
+                         method: str, keep: int | None) -> Plan:
+    table = load_costs()
+    c = table["exact"]
+    n1, n2 = facts.n1, facts.n2
+    rows = math.prod(batch) if batch else 1
+    full = n1 + n2 - 1
+    out_len = output_length(mode, n1, n2) if keep is None else keep
+    bound = facts.bound
+    fits_int64 = bound < INT64_LIMIT
+    top = (max(bound, facts.max_a, facts.max_b) + 1).bit_length() + 1  # value bits + sign
+    slot_bits = 8 * max(1, -(-top // 8))
+    words = -(-slot_bits // 64)
+    n_pow2 = power_of_two_at_least(full)
+
+    options: dict[str, float] = {}
+    details: dict[str, dict] = {}
+    certificates: dict[str, str] = {}
+    notes: dict[str, str] = {}
+
+    # direct summation (numpy int64 when the bound allows, Python ints otherwise)
+    if fits_int64:
+        options["direct-exact"] = c["direct_int64"]["overhead"] + c["direct_int64"][
+            "per_mac"] * n1 * n2 * rows
+    else:
+        options["direct-exact"] = c["direct_object"]["overhead"] + c["direct_object"][
+            "per_mac"] * n1 * n2 * rows * (1 + words / 4)
+    certificates["direct-exact"] = "construction"
+    notes["direct-exact"] = "exact schoolbook sums"
+
+    # float FFT with rounding, certified by the bound or by a check
+    float_cost = fft_rate(table, n_pow2) * n_pow2 * math.log2(max(n_pow2, 2))
+    if bound < FLOAT_EXACT_LIMIT:
+        err = bounds.fft_error_bound(facts.norm_a, facts.norm_b, n_pow2) \
+            if math.isfinite(facts.norm_a) else math.inf
+        if err < 0.5:
+            certificates["fft-exact"] = "bound"
+            notes["fft-exact"] = f"float FFT error bound {err:.3g} < 1/2 (Percival 2003)"
+        elif err < CHECK_BOUND_LIMIT:
+            certificates["fft-exact"] = "check"
+            notes["fft-exact"] = (f"float FFT error bound {err:.3g} >= 1/2: rounded result "
+                                  "accepted only if a random-evaluation check passes")
+        if "fft-exact" in certificates:
+            check = c["check_per_point"] * (n1 + n2 + full) if certificates[
+                "fft-exact"] == "check" else 0.0
+            options["fft-exact"] = (c["rounded"]["overhead"] + rows * (
+                float_cost * c["rounded"]["scale"] + c["rounded"]["per_point"] * n_pow2 + check))
+            details["fft-exact"] = {"transform_length": n_pow2, "error_bound": err}
+
+    # limb split of float FFTs, certified by the bound
+    limbs = bounds.choose_limbs(facts.max_a, facts.max_b, n1, n2, n_pow2)
+    if limbs is not None and limbs[1] + limbs[2] <= 12 and (limbs[1] > 1 or limbs[2] > 1):
+        bits, ka, kb = limbs
+        transforms = (ka + kb) + (ka + kb - 1)
+        options["limbs"] = c["limbs"]["overhead"] + rows * (
+            float_cost * transforms / 3 * c["limbs"]["scale"]
+            + c["limbs"]["per_point"] * n_pow2 * (ka + kb))
+        certificates["limbs"] = "bound"
+        notes["limbs"] = f"{ka}+{kb} limbs of {bits} bits, each limb product certified < 1/2"
+        details["limbs"] = {"transform_length": n_pow2, "limb_bits": bits, "limbs_a": ka,
+                            "limbs_b": kb}
+
+    # Kronecker substitution through GMP
+    options["kronecker"] = c["kronecker"]["overhead"] + rows * kronecker_seconds(
+        c["kronecker"], n1, n2, slot_bits, fits_int64 or facts.modulus is not None)
+    certificates["kronecker"] = "construction"
+    notes["kronecker"] = f"one GMP product with {slot_bits}-bit slots"
+
+    # number-theoretic transform modulo an NTT prime
+    m = facts.modulus
+    if m is not None and m in PRIMES and n_pow2 <= (1 << PRIMES[m][1]):
+        options["ntt"] = c["ntt"]["overhead"] + rows * c["ntt"]["per_nlogn"] * n_pow2 * max(
+            1, math.log2(n_pow2))
+        certificates["ntt"] = "construction"
+        notes["ntt"] = f"NTT modulo the prime {m}"
+        details["ntt"] = {"transform_length": n_pow2}
+
+    ranked = tuple(sorted(options.items(), key=lambda kv: kv[1]))
+    if method == "auto":
+        engine = ranked[0][0]
+        why = f"{engine} is predicted fastest among exact engines"
+    elif method in options:
+        engine = method
+        why = f"{engine} was requested with method={method!r}"
+    else:
+        raise ValueError(_cannot(method, facts))
+    fallback = None
+    if certificates[engine] == "check":
+        fallback = min(("direct-exact", "kronecker"), key=options.get)
+    reason = f"{why} ({notes[engine]})"
+    if fallback:
+        reason += f"; if the check fails: {fallback}"
+    d = dict(details.get(engine, {}))
+    d["product_int64"] = fits_int64
+    settings = tuple(sorted((k, v) for k, v in d.items() if k not in ("transform_length",
+                                                                      "error_bound")))
+    return Plan(engine, True, certificates[engine], 0.0, options[engine], reason, kind=kind,
+                mode=mode, lengths=(n1, n2), batch_shape=batch, output_length=out_len,
+                transform_length=d.get("transform_length"), alternatives=ranked,
+                settings=settings, fallback=fallback, modulus=m,
+                output_int64=bool(fits_int64 if m is None else m <= INT64_LIMIT))
+
+
+def kronecker_seconds(c: dict, n1: int, n2: int, slot_bits: int, int64_out: bool) -> float:
+    """GMP product of the packed operands plus packing and unpacking.
+
+    An ``n_min x n_max`` product of packed integers is modelled as ``n_max / n_min`` balanced
+    products of ``n_min * slot_bits``-bit integers, each costing ``r(lg b) b lg b`` with ``r``
+    measured per size (GMP switches algorithms as sizes grow).
+    """
+    small, large = min(n1, n2), max(n1, n2)
+    bits = max(64, small * slot_bits)
+    mul = gmp_rate(c, bits) * bits * math.log2(bits) * (large / small)
+    moved = (n1 + n2 + n1 + n2 - 1) * slot_bits / 8
+    out = 0.0 if int64_out else c["per_object_out"] * (n1 + n2 - 1)
+    return mul + c["per_byte"] * moved + out
+
+
+def gmp_rate(c: dict, bits: int) -> float:
+    """Seconds per ``b lg b`` of a balanced GMP product of ``b``-bit integers (interpolated)."""
+    table = c["mul_rate_by_log2bits"]
+    keys = sorted(int(k) for k in table)
+    x = math.log2(bits)
+    if x <= keys[0]:
+        return table[str(keys[0])]
+    if x >= keys[-1]:
+        return table[str(keys[-1])]
+    hi = next(k for k in keys if k >= x)
+    lo = max(k for k in keys if k <= x)
+    if hi == lo:
+        return table[str(lo)]
+    w = (x - lo) / (hi - lo)
+    return table[str(lo)] * (1 - w) + table[str(hi)] * w
+
+
+def _cannot(method: str, facts: IntegerFacts) -> str:
+    if method == "fft-exact":
+        return ("method='fft-exact' cannot be certified here: the product's coefficients reach "
+                f"{facts.bound.bit_length()} bits or the float error bound is too large; use "
+                "method='auto', 'limbs' or 'kronecker'")
+    if method == "limbs":
+        return "method='limbs' has no certified limb size for these magnitudes; use 'kronecker'"
+    if method == "ntt":
+        return ("method='ntt' needs a modulus that is one of the NTT primes "
+                f"{sorted(PRIMES)} and a product short enough for its transform length")
+    return (f"method={method!r} is a floating-point engine; integer operands are computed "
+            f"exactly with one of {', '.join(EXACT_ENGINES)} (or 'auto')")
+
+

@@ -1,0 +1,129 @@
+"""Running an exact plan: normalise integer operands, run the planned engine row by row, check.
+
+The exact engines work on 1-D rows of int64, uint64 or Python-int (object) arrays; this module
+brings user integers to those dtypes, reduces them by the modulus, computes what the chooser needs
+to know (:func:`integer_facts`), runs the plan's engine on every row of a batch, performs the
+random-evaluation check a ``"check"`` certificate calls for (recomputing with the plan's fallback
+engine when it fails), and returns int64 or Python ints as the plan says.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from . import bounds
+from .engines.exact_direct import convolve_exact_direct
+from .engines.exact_fft import convolve_limbs, convolve_rounded
+from .engines.kronecker import convolve_kronecker, convolve_kronecker_mod, reduce_operand
+from .engines.ntt import convolve_ntt_mod_prime
+from .planning import Plan
+from .planning_exact import FLOAT_EXACT_LIMIT, INT64_LIMIT, IntegerFacts
+
+
+def normalise_integers(x: np.ndarray, modulus: int | None) -> np.ndarray:
+    """int64 / uint64 / object arrays the engines accept, reduced to ``[0, m)`` with a modulus."""
+    kind = x.dtype.kind
+    if kind == "b" or (kind in "iu" and x.dtype.itemsize < 8) or kind == "i":
+        x = x.astype(np.int64, copy=False)
+    elif kind == "O":
+        x = _objects_as_ints(x)
+    if modulus is None:
+        return x
+    x = reduce_operand(x, modulus) if x.ndim == 1 else np.stack(
+        [reduce_operand(row, modulus) for row in x.reshape(-1, x.shape[-1])]).reshape(x.shape)
+    if x.dtype == object and modulus <= INT64_LIMIT:
+        x = x.astype(np.int64)
+    return x
+
+
+def _objects_as_ints(x: np.ndarray) -> np.ndarray:
+    """Object arrays of Python ints or gmpy2.mpz: int64 when every entry fits, else Python ints."""
+    flat = x.ravel()
+    hi = max(flat) if flat.size else 0
+    lo = min(flat) if flat.size else 0
+    if -INT64_LIMIT <= lo and hi < INT64_LIMIT:
+        return x.astype(np.int64)
+    out = np.empty(x.shape, dtype=object)
+    out.ravel()[:] = [int(v) for v in flat]
+    return out
+
+
+def integer_facts(x: np.ndarray, y: np.ndarray, modulus: int | None) -> IntegerFacts:
+    """Lengths, magnitudes and (when a float product could be exact) norm bounds."""
+    max_a, max_b = bounds.max_abs(x), bounds.max_abs(y)
+    n1, n2 = x.shape[-1], y.shape[-1]
+    norm_a = norm_b = math.inf
+    if min(n1, n2) * max_a * max_b < FLOAT_EXACT_LIMIT:
+        norm_a, norm_b = _largest_row_norm(x), _largest_row_norm(y)
+    return IntegerFacts(n1, n2, max_a, max_b, norm_a, norm_b, modulus)
+
+
+def _largest_row_norm(x: np.ndarray) -> float:
+    if x.ndim == 1:
+        return bounds.norm2_upper(x)
+    return max(bounds.norm2_upper(row) for row in x.reshape(-1, x.shape[-1]))
+
+
+def run_exact(the_plan: Plan, x: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """The plan's exact product (full, or its first ``keep`` entries) for every batch row."""
+    keep = the_plan.output_length if the_plan.mode == "full" else None
+    n1, n2 = the_plan.lengths
+    dtype = np.int64 if the_plan.output_int64 else object
+    if x.ndim == 1 and y.ndim == 1:
+        return _finish_row(_product_row(the_plan, x, y, keep), the_plan, dtype)
+    batch = the_plan.batch_shape
+    rows_x = np.broadcast_to(x, batch + (n1,)).reshape(-1, n1)
+    rows_y = np.broadcast_to(y, batch + (n2,)).reshape(-1, n2)
+    length = keep if keep is not None else n1 + n2 - 1
+    out = np.empty((rows_x.shape[0], length), dtype=dtype)
+    for i in range(rows_x.shape[0]):
+        out[i] = _finish_row(_product_row(the_plan, rows_x[i], rows_y[i], keep), the_plan, dtype)
+    return out.reshape(batch + (length,))
+
+
+def _finish_row(row: np.ndarray, the_plan: Plan, dtype) -> np.ndarray:
+    m = the_plan.modulus
+    if m is not None and not _reduced_by_engine(the_plan.engine):
+        row = np.mod(row if row.dtype != np.uint64 else row.astype(object), m)
+    if row.dtype != dtype:
+        row = row.astype(dtype)
+    return row
+
+
+def _reduced_by_engine(engine: str) -> bool:
+    return engine in ("kronecker", "ntt")
+
+
+def _product_row(the_plan: Plan, a: np.ndarray, b: np.ndarray, keep: int | None) -> np.ndarray:
+    engine = the_plan.engine
+    if engine == "fft-exact" and the_plan.certificate == "check":
+        full = convolve_rounded(a, b, the_plan.transform_length)
+        if bounds.random_evaluation_check(a, b, full):
+            return full if keep is None else full[:keep]
+        engine = the_plan.fallback
+    return run_engine(engine, the_plan, a, b, keep)
+
+
+def run_engine(engine: str, the_plan: Plan, a: np.ndarray, b: np.ndarray,
+               keep: int | None) -> np.ndarray:
+    """One exact engine on one pair of 1-D rows, as the plan parametrises it."""
+    product_int64 = the_plan.setting("product_int64", False)
+    m = the_plan.modulus
+    if engine == "direct-exact":
+        return convolve_exact_direct(a, b, keep)
+    if engine == "fft-exact":
+        return convolve_rounded(a, b, the_plan.transform_length, keep)
+    if engine == "limbs":
+        return convolve_limbs(a, b, the_plan.setting("limb_bits"), the_plan.setting("limbs_a"),
+                              the_plan.setting("limbs_b"), the_plan.transform_length, keep,
+                              as_int64=product_int64)
+    if engine == "kronecker":
+        if m is not None:
+            return convolve_kronecker_mod(a, b, m, keep)
+        return convolve_kronecker(a, b, keep, as_int64=product_int64)
+    if engine == "ntt":
+        out = convolve_ntt_mod_prime(a.astype(np.uint64), b.astype(np.uint64), m, keep)
+        return out.astype(np.int64)
+    raise AssertionError(f"unknown exact engine {engine!r}")  # the chooser never plans one

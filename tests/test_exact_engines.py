@@ -1,0 +1,336 @@
+"""Exact integer engines called directly: Kronecker, NTT + CRT, float FFT rounding and limbs.
+
+Every check names its source: "python-flint reference" (flint.fmpz_poly / flint.nmod_poly
+products), "math.comb", or "common practice, no source".
+"""
+
+from __future__ import annotations
+
+import math
+import random
+
+import flint
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from polyconv import bounds
+from polyconv.engines import exact_fft, kronecker, ntt
+
+RNG = np.random.default_rng(12345)
+
+
+def flint_product(a, b) -> list[int]:
+    """python-flint reference: exact product, zero padded to n1 + n2 - 1."""
+    c = flint.fmpz_poly([int(x) for x in a]) * flint.fmpz_poly([int(x) for x in b])
+    out = [int(x) for x in c.coeffs()]
+    return out + [0] * (len(a) + len(b) - 1 - len(out))
+
+
+def flint_product_mod(a, b, m: int) -> list[int]:
+    """python-flint reference: nmod_poly below 2^64, fmpz_poly then % m above."""
+    if m < 2**64:
+        c = (flint.nmod_poly([int(x) % m for x in a], m)
+             * flint.nmod_poly([int(x) % m for x in b], m))
+        out = [int(x) for x in c.coeffs()]
+        return out + [0] * (len(a) + len(b) - 1 - len(out))
+    return [x % m for x in flint_product(a, b)]
+
+
+def as_list(c) -> list[int]:
+    return [int(x) for x in c]
+
+
+LENGTHS = [1, 2, 3, 7, 31, 32, 33, 127, 128, 129, 257]
+
+
+def adversarial(n: int, bits: int, kind: str, signed: bool = True) -> np.ndarray:
+    top = 2**bits - 1
+    if kind == "+max":
+        values = [top] * n
+    elif kind == "-max":
+        values = [-top if signed else top] * n
+    elif kind == "alternating":
+        values = [top if i % 2 == 0 else -top for i in range(n)]
+    else:
+        values = [random.Random(n + bits).randrange(-top, top + 1) for _ in range(n)]
+    if bits <= 62:
+        return np.array(values, dtype=np.int64)
+    return np.array(values, dtype=object)
+
+
+# ----------------------------------------------------------------------------- Kronecker
+
+
+@pytest.mark.parametrize("n1", LENGTHS)
+@pytest.mark.parametrize("bits", [1, 16, 62, 200])
+def test_kronecker_adversarial(n1, bits):
+    for kind in ("+max", "-max", "alternating", "random"):
+        a = adversarial(n1, bits, kind)
+        b = adversarial(max(1, n1 // 2 + 1), bits, "alternating" if kind != "+max" else "-max")
+        expected = flint_product(a, b)  # python-flint reference
+        assert as_list(kronecker.convolve_kronecker(a, b, two_point=False)) == expected
+        assert as_list(kronecker.convolve_kronecker(a, b, two_point=True)) == expected
+
+
+def test_kronecker_fixed_width_extremes():
+    a = np.array([-2**63, 2**63 - 1, -1, 0, 1, -2**63], dtype=np.int64)
+    u = np.array([2**64 - 1, 2**64 - 2, 2**63, 0, 1], dtype=np.uint64)
+    for x, y in ((a, a), (u, u), (a, u), (u, a)):
+        expected = flint_product(x, y)  # python-flint reference
+        assert as_list(kronecker.convolve_kronecker(x, y)) == expected
+        assert as_list(kronecker.convolve_kronecker(x, y, two_point=True)) == expected
+
+
+def test_kronecker_huge_times_tiny():
+    huge = np.array([random.Random(1).getrandbits(5000) - 2**4999 for _ in range(40)], dtype=object)
+    tiny = np.array([1, -1, 0, 1], dtype=np.int64)
+    expected = flint_product(huge, tiny)  # python-flint reference
+    assert as_list(kronecker.convolve_kronecker(huge, tiny)) == expected
+    assert as_list(kronecker.convolve_kronecker(tiny, huge, two_point=True)) == expected
+
+
+def test_kronecker_int64_output_and_keep():
+    a = RNG.integers(-2**20, 2**20, 1000)
+    b = RNG.integers(-2**20, 2**20, 700)
+    out = kronecker.convolve_kronecker(a, b, as_int64=True)
+    assert out.dtype == np.int64
+    assert out.tolist() == flint_product(a, b)  # python-flint reference
+    head = kronecker.convolve_kronecker(a, b, keep=37)
+    assert as_list(head) == flint_product(a, b)[:37]  # python-flint reference
+
+
+def test_kronecker_mpz_inputs():
+    import gmpy2
+    a = np.array([gmpy2.mpz(-3) ** 90, gmpy2.mpz(7), gmpy2.mpz(0)], dtype=object)
+    assert as_list(kronecker.convolve_kronecker(a, a)) == flint_product(a, a)  # python-flint
+
+
+MODULI = [2, 3, 998244353, 4611686018427387847, 2**64 - 1, 10**99 + 289]
+
+
+@pytest.mark.parametrize("m", MODULI)
+def test_kronecker_mod(m):
+    a = RNG.integers(-2**63, 2**63 - 1, 300)
+    b = RNG.integers(0, 2**64 - 1, 129, dtype=np.uint64, endpoint=True)
+    big = np.array([random.Random(m % 1000).getrandbits(400) - 2**399 for _ in range(50)],
+                   dtype=object)
+    for x, y in ((a, b), (big, a), (b, b)):
+        out = kronecker.convolve_kronecker_mod(x, y, m)
+        assert as_list(out) == flint_product_mod(x, y, m)  # python-flint reference
+        assert out.dtype == (np.int64 if m <= 2**63 else object)
+
+
+def test_binomial_coefficients():
+    n = 600
+    ones = np.ones(2, dtype=np.int64)
+    c = np.array([1], dtype=object)
+    power = np.array([1, 1], dtype=object)
+    k = n
+    while k:  # (1 + x)^n by repeated squaring through the engine
+        if k & 1:
+            c = kronecker.convolve_kronecker(c, power)
+        power = kronecker.convolve_kronecker(power, power)
+        k >>= 1
+    assert as_list(c) == [math.comb(n, i) for i in range(n + 1)]  # math.comb
+    limbs = exact_fft.convolve_limbs(c, ones, 20, 40, 1, 1024)
+    assert as_list(limbs) == [math.comb(n + 1, i) for i in range(n + 2)]  # math.comb
+
+
+# ----------------------------------------------------------------------------- NTT and CRT
+
+
+@pytest.mark.parametrize("p", sorted(ntt.PRIMES))
+def test_ntt_primes_and_generators(p):
+    sympy = pytest.importorskip("sympy")
+    g, k = ntt.PRIMES[p]
+    assert sympy.isprime(p) and (p - 1) % 2**k == 0  # sympy primality
+    assert sympy.n_order(g, p) == p - 1  # sympy: g generates (Z/p)^*
+
+
+@pytest.mark.parametrize("p", [998244353, 2013265921, 3221225473, 167772161])
+@pytest.mark.parametrize("n1,n2", [(1, 1), (2, 1), (3, 5), (31, 33), (128, 128), (1000, 24)])
+def test_ntt_mod_prime(p, n1, n2):
+    for a, b in ((RNG.integers(0, p, n1, dtype=np.uint64), RNG.integers(0, p, n2, dtype=np.uint64)),
+                 (np.full(n1, p - 1, np.uint64), np.full(n2, p - 1, np.uint64))):
+        out = ntt.convolve_ntt_mod_prime(a, b, p)
+        assert out.tolist() == flint_product_mod(a, b, p)  # python-flint reference (nmod_poly)
+
+
+def test_ntt_mod_prime_large_transform():
+    p = 998244353
+    a = RNG.integers(0, p, 40000, dtype=np.uint64)
+    b = RNG.integers(0, p, 30001, dtype=np.uint64)
+    out = ntt.convolve_ntt_mod_prime(a, b, p, keep=50000)
+    assert out.tolist() == flint_product_mod(a, b, p)[:50000]  # python-flint reference
+
+
+@pytest.mark.parametrize("bits", [16, 40, 63])
+def test_ntt_crt_exact(bits):
+    for kind in ("+max", "-max", "alternating", "random"):
+        a = adversarial(257, min(bits, 62), kind)
+        b = adversarial(129, min(bits, 62), "alternating")
+        if bits == 63:
+            a = np.full(257, -2**63, dtype=np.int64)
+        primes = ntt.primes_needed(bounds.product_bound(a, b), 512)
+        out = ntt.convolve_ntt_crt(a, b, primes)
+        assert as_list(out) == flint_product(a, b)  # python-flint reference
+    u = np.full(100, 2**64 - 1, dtype=np.uint64)
+    out = ntt.convolve_ntt_crt(u, u, ntt.primes_needed(100 * (2**64 - 1) ** 2, 256))
+    assert as_list(out) == flint_product(u, u)  # python-flint reference
+
+
+def test_crt_int64_output():
+    a = RNG.integers(-2**25, 2**25, 5000)
+    b = RNG.integers(-2**25, 2**25, 4000)
+    primes = ntt.primes_needed(bounds.product_bound(a, b), 9000)
+    out = ntt.convolve_ntt_crt(a, b, primes, as_int64=True)  # |c| < 2^63 proven by the bound
+    assert out.dtype == np.int64
+    assert out.tolist() == flint_product(a, b)  # python-flint reference
+
+
+def test_crt_object_operands():
+    a = np.array([random.Random(5).getrandbits(100) - 2**99 for _ in range(64)], dtype=object)
+    primes = ntt.primes_needed(bounds.product_bound(a, a), 128)
+    out = ntt.convolve_ntt_crt_objects(a, a, primes)
+    assert as_list(out) == flint_product(a, a)  # python-flint reference
+
+
+# ----------------------------------------------------------------------------- float FFT rounding
+
+
+@pytest.mark.parametrize("bits", [16, 63, 300])
+def test_limbs_exact(bits):
+    for n in (1, 2, 33, 1000):
+        for kind in ("+max", "-max", "alternating", "random"):
+            a = adversarial(n, bits, kind)
+            b = adversarial(n + 3, bits, "alternating")
+            n_fft = 1 << (2 * n + 2).bit_length()
+            limb_bits, ka, kb = bounds.choose_limbs(bounds.max_abs(a), bounds.max_abs(b),
+                                                    n, n + 3, n_fft)
+            out = exact_fft.convolve_limbs(a, b, limb_bits, ka, kb, n_fft)
+            assert as_list(out) == flint_product(a, b)  # python-flint reference
+
+
+def test_limbs_uint64_and_int64_output():
+    u = np.full(77, 2**64 - 1, dtype=np.uint64)
+    limb_bits, ka, kb = bounds.choose_limbs(2**64 - 1, 2**64 - 1, 77, 77, 256)
+    assert as_list(exact_fft.convolve_limbs(u, u, limb_bits, ka, kb, 256)) == flint_product(u, u)
+    a = RNG.integers(-2**24, 2**24, 3000)
+    limb_bits, ka, kb = bounds.choose_limbs(2**24, 2**24, 3000, 3000, 8192)
+    out = exact_fft.convolve_limbs(a, a, limb_bits, ka, kb, 8192, as_int64=True)
+    assert out.dtype == np.int64 and out.tolist() == flint_product(a, a)  # python-flint
+
+
+def test_plain_rounding_fails_where_exact_engines_succeed():
+    # 30-bit coefficients at n = 2^16: products reach 2^76, far beyond float64's 53 bits.
+    from scipy import fft as sfft
+    n = 1 << 16
+    a = np.full(n, 2**30 - 1, dtype=np.int64)
+    b = RNG.integers(2**29, 2**30, n)
+    approx = sfft.irfft(sfft.rfft(a.astype(float), 2 * n) * sfft.rfft(b.astype(float), 2 * n),
+                        2 * n)
+    middle = slice(n - 50, n + 50)
+    rounded = [int(v) for v in np.rint(approx[middle])]
+    reference = flint_product(a, b)[middle]  # python-flint reference
+    assert rounded != reference  # plain float FFT + rounding is wrong here
+    assert as_list(kronecker.convolve_kronecker(a, b)[middle]) == reference
+    primes = ntt.primes_needed(bounds.product_bound(a, b), 2 * n)
+    assert as_list(ntt.convolve_ntt_crt(a, b, primes)[middle]) == reference
+    choice = bounds.choose_limbs(2**30, 2**30, n, n, 2 * n)
+    assert as_list(exact_fft.convolve_limbs(a, b, *choice, 2 * n)[middle]) == reference
+
+
+def test_rounding_exact_when_certified():
+    a = RNG.integers(-2**12, 2**12, 4096)
+    b = RNG.integers(-2**12, 2**12, 4096)
+    bound = bounds.fft_error_bound(bounds.norm2_upper(a), bounds.norm2_upper(b), 8192)
+    assert bound < 0.5  # the certificate holds for these inputs
+    assert exact_fft.convolve_rounded(a, b, 8192).tolist() == flint_product(a, b)  # python-flint
+
+
+# ----------------------------------------------------------------------------- bounds and checks
+
+
+@pytest.mark.parametrize("log2n", [10, 12, 14])
+def test_fft_error_bound_dominates_observed(log2n):
+    from scipy import fft as sfft
+    n = 1 << log2n
+    top = 2**16 - 1
+    ones = np.full(n, top, dtype=np.int64)
+    alternating = ones * np.where(np.arange(n) % 2 == 0, 1, -1)
+    for a, b in ((ones, ones), (alternating, alternating), (ones, alternating)):
+        approx = sfft.irfft(sfft.rfft(a.astype(float), 2 * n) * sfft.rfft(b.astype(float), 2 * n),
+                            2 * n)[: 2 * n - 1]
+        exact = np.array(flint_product(a, b), dtype=np.float64)  # python-flint reference
+        observed = float(np.max(np.abs(approx - exact)))
+        bound = bounds.fft_error_bound(bounds.norm2_upper(a), bounds.norm2_upper(b), 2 * n)
+        assert bound >= observed
+
+
+def test_error_factor_first_order():
+    # first order (9.71 n + 2.24) eps + 3 n beta (DESIGN.md section 4, Percival 2003)
+    for n in (10, 20):
+        first = (9.71 * n + 2.24) * 2.0**-53 + 3 * n * 4 * 2.0**-53
+        assert bounds.fft_error_factor(1 << n) == pytest.approx(first, rel=1e-2)
+
+
+def test_bit_helpers():
+    x = np.array([3, -2**40, 5], dtype=np.int64)
+    assert bounds.bit_length_max(x) == 41  # common practice, no source
+    assert bounds.product_bits(x, x) == 41 + 41 + 2 + 1  # DESIGN.md section 5 formula
+    assert bounds.norm2_upper(x) >= math.sqrt(9 + 2**80 + 25)  # common practice, no source
+
+
+def test_modular_rescue():
+    # c = r + p round((c' - r) / p) when |c' - c| < p/2 (DESIGN.md section 4, standard identity)
+    p = 998244353
+    exact = RNG.integers(-2**60, 2**60, 1000)
+    noisy = exact.astype(np.float64) + RNG.uniform(-1000, 1000, 1000)
+    assert bounds.modular_rescue(noisy, exact % p, p).tolist() == exact.tolist()
+
+
+def test_random_evaluation_check():
+    # Schwartz-Zippel (Schwartz 1980, Zippel 1979)
+    a = RNG.integers(-2**40, 2**40, 2000)
+    b = RNG.integers(-2**40, 2**40, 1500)
+    c = kronecker.convolve_kronecker(a, b)
+    rng = random.Random(7)
+    assert bounds.random_evaluation_check(a, b, c, rng=rng)
+    wrong = c.copy()
+    wrong[1234] += 1
+    assert not bounds.random_evaluation_check(a, b, wrong, rng=rng)
+
+
+# ----------------------------------------------------------------------------- properties
+
+
+small_ints = st.lists(st.integers(-2**70, 2**70), min_size=1, max_size=40)
+
+
+@settings(max_examples=60, deadline=None)
+@given(small_ints, small_ints)
+def test_property_engines_agree(xs, ys):
+    a = np.array(xs, dtype=object)
+    b = np.array(ys, dtype=object)
+    ab = as_list(kronecker.convolve_kronecker(a, b))
+    assert ab == as_list(kronecker.convolve_kronecker(b, a))  # commutativity (no source)
+    assert ab == as_list(kronecker.convolve_kronecker(a, b, two_point=True))
+    n_fft = 1 << (len(xs) + len(ys)).bit_length()
+    choice = bounds.choose_limbs(bounds.max_abs(a), bounds.max_abs(b), len(xs), len(ys), n_fft)
+    assert ab == as_list(exact_fft.convolve_limbs(a, b, *choice, n_fft))
+    primes = ntt.primes_needed(bounds.product_bound(a, b), n_fft)
+    assert ab == as_list(ntt.convolve_ntt_crt_objects(a, b, primes))
+    assert ab == flint_product(xs, ys)  # python-flint reference
+
+
+@settings(max_examples=40, deadline=None)
+@given(st.lists(st.integers(0, 2**64 - 1), min_size=1, max_size=30),
+       st.lists(st.integers(-2**63, 2**63 - 1), min_size=1, max_size=30),
+       st.sampled_from(MODULI))
+def test_property_mod(xs, ys, m):
+    a = np.array(xs, dtype=np.uint64)
+    b = np.array(ys, dtype=np.int64)
+    out = kronecker.convolve_kronecker_mod(a, b, m)
+    assert as_list(out) == flint_product_mod(xs, ys, m)  # python-flint reference
