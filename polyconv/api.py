@@ -7,12 +7,11 @@ shapes its full (or truncated) product into the requested mode, dtype and axis.
 from __future__ import annotations
 
 import dataclasses
-import math
 
 import numpy as np
 
 from . import inputs, planning, planning_exact, run_exact, shaping
-from .bounds import fft_error_bound, norm2_upper
+from .bounds import convolution_error_bound, norm2_upper
 from .engines.direct import convolve_direct
 from .engines.fft import convolve_fft
 from .engines.overlap_add import convolve_overlap_add
@@ -197,11 +196,5 @@ def error_bound(a, b, the_plan: Plan | None = None) -> float:
     y = np.asarray(pair.b, dtype=x.dtype)
     norm_a = max(norm2_upper(np.abs(r)) for r in x.reshape(-1, x.shape[-1]))
     norm_b = max(norm2_upper(np.abs(r)) for r in y.reshape(-1, y.shape[-1]))
-    if the_plan.engine == "direct":
-        m = min(the_plan.lengths)
-        gamma = m * 2.0**-53 / (1 - m * 2.0**-53)
-        return math.nextafter(gamma * norm_a * norm_b, math.inf)
-    n_fft = the_plan.transform_length
-    levels = 1 << ((n_fft - 1).bit_length() + (0 if n_fft & (n_fft - 1) == 0 else 1))
-    per_block = fft_error_bound(norm_a, norm_b, levels)
-    return 2 * per_block if the_plan.engine == "overlap-add" else per_block
+    return convolution_error_bound(the_plan.engine, norm_a, norm_b, the_plan.transform_length,
+                                   min(the_plan.lengths))

@@ -80,6 +80,42 @@ def fft_error_bound(norm2_a: float, norm2_b: float, n_fft: int,
     return _round_up(product)
 
 
+def mixed_radix_levels_length(n_fft: int) -> int:
+    """The power of two whose radix-2 level count we charge a pocketfft transform of ``n_fft``.
+
+    ``2^ceil(log2 N)`` for a power of two; one level more otherwise (a radix-3 or -5 pass does a
+    few more roundings per output than the radix-2 levels it replaces: a stated assumption).
+    """
+    power = 1 << max(0, (n_fft - 1).bit_length())
+    return power if power == n_fft else 2 * power
+
+
+def direct_error_bound(norm_a: float, norm_b: float, n_terms: int) -> float:
+    """Max abs error of a directly summed convolution coefficient.
+
+    ``|fl(sum a_i b_(k-i)) - c_k| <= gamma_m sum |a_i b_(k-i)| <= gamma_m ||a||_2 ||b||_2`` with
+    ``m = n_terms`` and ``gamma_m = m u / (1 - m u)`` (Higham, *Accuracy and Stability of
+    Numerical Algorithms*, 2nd ed., section 3.1; Cauchy-Schwarz for the last step).
+    """
+    m = max(int(n_terms), 1)
+    gamma = m * 2.0**-53 / (1 - m * 2.0**-53)
+    return math.nextafter(gamma * float(norm_a) * float(norm_b), math.inf)
+
+
+def convolution_error_bound(engine: str, norm_a: float, norm_b: float,
+                            transform_length: int | None, n_terms: int) -> float:
+    """Error bound of one float product by ``engine`` ("direct", "fft" or "overlap-add").
+
+    fft: :func:`fft_error_bound` at :func:`mixed_radix_levels_length`; overlap-add: each output
+    gathers at most two block products, so twice that at the block length; direct:
+    :func:`direct_error_bound`.
+    """
+    if engine == "direct" or not transform_length:
+        return direct_error_bound(norm_a, norm_b, n_terms)
+    block = fft_error_bound(norm_a, norm_b, mixed_radix_levels_length(transform_length))
+    return 2 * block if engine == "overlap-add" else block
+
+
 def limb_error_bound(limb_bits: int, limbs_a: int, limbs_b: int, n1: int, n2: int,
                      n_fft: int) -> float:
     """Bound on the error of each summed limb product of the limb-split engine.

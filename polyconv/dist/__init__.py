@@ -1,0 +1,36 @@
+"""polyconv.dist: probability distributions on lattices, computed by convolution.
+
+Sums of independent random variables (``X + Y``, :meth:`Lattice.nfold`), compound distributions
+(:func:`compound`), discretisation of continuous laws (:func:`discretize`), delay networks
+(:func:`series`, :func:`all_of`, :func:`first_of`, :func:`mixture`) and risk measures (quantile,
+VaR, TVaR, stop-loss) on :class:`Lattice` objects.  Each Lattice carries a ``trust_floor``, an
+error bound on its probabilities; quantities resting on probabilities below it warn
+(:class:`AccuracyWarning`) or return ``nan`` rather than print rounding noise as numbers.
+
+Cautions
+--------
+Results are model outputs, not advice.  They rest on stated assumptions: independence (of the
+summands, of claim counts and severities, of the branches of a delay network), discretisation of
+continuous laws onto a lattice, and truncation of infinite supports to a finite grid (the missing
+mass is reported as ``truncated_mass``, never renormalised away).  Before using them for reserves,
+capital, prices or deadlines, check them against local regulation and codes and against qualified
+actuarial or engineering practice.
+"""
+
+from .compound import compound
+from .delays import all_of, first_of, mixture, series
+from .discretize import discretize
+from .errors import AccuracyWarning, TruncationWarning
+from .lattice import Lattice
+
+__all__ = [
+    "Lattice",
+    "discretize",
+    "compound",
+    "series",
+    "all_of",
+    "first_of",
+    "mixture",
+    "AccuracyWarning",
+    "TruncationWarning",
+]

@@ -1,0 +1,201 @@
+"""Counting laws for compound distributions: Panjer ``(a, b)`` coefficients and PGFs.
+
+The ``(a, b, 0)`` class (Panjer, "Recursive evaluation of a family of compound distributions",
+ASTIN Bulletin 12 (1981) 22-26): ``p_k = (a + b / k) p_{k-1}`` for ``k >= 1``.  In scipy.stats'
+parametrisations (checked against the pmf ratios ``p_k / p_{k-1}``):
+
+=====================  ===============  ====================  ==============================
+scipy law              ``a``            ``b``                 PGF ``P(z)``
+=====================  ===============  ====================  ==============================
+``poisson(mu)``        ``0``            ``mu``                ``exp(mu (z - 1))``
+``nbinom(n, p)``       ``1 - p``        ``(n - 1)(1 - p)``    ``(p / (1 - (1 - p) z))^n``
+``binom(n, p)``        ``-p / (1 - p)`` ``(n + 1) p/(1 - p)`` ``(1 - p + p z)^n``
+=====================  ===============  ====================  ==============================
+
+(scipy's ``nbinom(n, p)`` counts failures before the ``n``-th success, success probability
+``p``; DESIGN.md's ``NB(r, beta)`` is ``n = r``, ``p = 1 / (1 + beta)``.)  Any other frozen
+discrete law (or one of these with ``loc != 0``) is used through its pmf, summed to a polynomial
+PGF on the support up to where the remaining mass is below ``1e-17``.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import stats
+from scipy.special import logsumexp
+
+from .transform import TransformLaw
+
+GENERIC_TAIL = 1e-17
+"""Counts beyond the point where ``P(N > n) < GENERIC_TAIL`` are dropped for a generic law (their
+mass is reported as truncated)."""
+
+GENERIC_MAX_TERMS = 200_000
+"""Largest support a generic counting law may have (its PGF costs one pass per term)."""
+
+
+@dataclass(frozen=True)
+class CountsLaw:
+    """A frozen scipy counting law, classified.
+
+    Attributes
+    ----------
+    name : str
+        scipy's name of the law.
+    ab : tuple of float or None
+        Panjer's ``(a, b)`` when the law is in the ``(a, b, 0)`` class, else None.
+    transform : TransformLaw
+        PGF and companions for the transform route.
+    log_pgf_at : callable
+        ``log P(f0)`` for real ``0 <= f0 <= 1`` (start of the recursion, in logs so large means
+        do not underflow).
+    tail_mass : float
+        Count mass dropped (generic laws only).
+    """
+
+    name: str
+    ab: tuple[float, float] | None
+    transform: TransformLaw
+    log_pgf_at: object
+    tail_mass: float = 0.0
+
+
+def _bind(frozen) -> dict:
+    dist = frozen.dist
+    names = [s.strip() for s in dist.shapes.split(",")] if dist.shapes else []
+    names.append("loc")
+    values = dict(zip(names, frozen.args, strict=False))
+    values.update(frozen.kwds)
+    values.setdefault("loc", 0)
+    return values
+
+
+def classify(counts) -> CountsLaw:
+    """Turn a scipy.stats frozen discrete distribution into a :class:`CountsLaw`.
+
+    Raises
+    ------
+    TypeError
+        If ``counts`` is not a frozen discrete scipy distribution.
+    ValueError
+        If its support is not within the non-negative integers or too long.
+    """
+    dist = getattr(counts, "dist", None)
+    if not isinstance(dist, stats.rv_discrete) or not hasattr(counts, "pmf"):
+        raise TypeError("counts must be a frozen scipy.stats discrete distribution, e.g. "
+                        f"scipy.stats.poisson(3.0); got {type(counts).__name__}")
+    params = _bind(counts)
+    name = dist.name
+    loc = params.get("loc", 0)
+    if loc == 0:
+        if name == "poisson":
+            return _poisson(float(params["mu"]))
+        if name == "nbinom":
+            return _nbinom(float(params["n"]), float(params["p"]))
+        if name == "binom":
+            return _binom(int(params["n"]), float(params["p"]))
+    return _generic(counts, name)
+
+
+def _poisson(mu: float) -> CountsLaw:
+    if not (math.isfinite(mu) and mu >= 0):
+        raise ValueError(f"counts: poisson mean must be finite and >= 0; got {mu!r}")
+    law = TransformLaw(
+        pgf=lambda z: np.exp(mu * (z - 1.0)),
+        ratio=lambda z: np.full(z.shape, mu),
+        log_pgf_real=lambda s: mu * math.expm1(s) if s < 700 else math.inf,
+        mean=mu,
+        pgf_rel=2 * mu + 4,  # exp of w = mu (z - 1), |w| <= 2 mu: relative error ~ (|w| + 2) u
+    )
+    return CountsLaw("poisson", (0.0, mu), law, lambda f0: -mu * (1.0 - f0))
+
+
+def _nbinom(n: float, p: float) -> CountsLaw:
+    if not (n > 0 and 0 < p <= 1):
+        raise ValueError(f"counts: nbinom needs n > 0 and 0 < p <= 1; got n={n!r}, p={p!r}")
+    q = 1.0 - p
+
+    def log_pgf_real(s: float) -> float:
+        if s >= 700 or q * math.exp(s) >= 1:
+            return math.inf
+        return n * (math.log(p) - math.log1p(-q * math.exp(s)))
+
+    law = TransformLaw(
+        pgf=lambda z: np.exp(n * (math.log(p) - np.log(1.0 - q * z))),
+        ratio=lambda z: n * q / (1.0 - q * z),
+        log_pgf_real=log_pgf_real,
+        mean=n * q / p,
+        pgf_rel=2 * n * q / p + 6,  # conservative: exp(n log(..)) with |n log| ~ n q|z-1|/p
+    )
+    return CountsLaw("nbinom", (q, (n - 1.0) * q), law,
+                     lambda f0: n * (math.log(p) - math.log1p(-q * f0)))
+
+
+def _binom(m: int, p: float) -> CountsLaw:
+    if not (m >= 0 and 0 <= p <= 1):
+        raise ValueError(f"counts: binom needs n >= 0 and 0 <= p <= 1; got n={m!r}, p={p!r}")
+    law = TransformLaw(
+        pgf=lambda z: _ipow_c(1.0 - p + p * z, m),
+        ratio=lambda z: m * p / np.where(1.0 - p + p * z == 0, 1.0, 1.0 - p + p * z),
+        log_pgf_real=lambda s: m * math.log1p(p * math.expm1(s)) if s < 700 else math.inf,
+        mean=m * p,
+        pgf_rel=m * math.sqrt(5.0) + 4,
+    )
+    ab = None if p >= 1 else (-p / (1 - p), (m + 1) * p / (1 - p))
+
+    def log_p0(f0: float) -> float:
+        base = 1.0 - p + p * f0
+        return m * math.log(base) if base > 0 else -math.inf
+
+    return CountsLaw("binom", ab, law, log_p0)
+
+
+def _ipow_c(z: np.ndarray, n: int) -> np.ndarray:
+    result = np.ones_like(z)
+    base = np.array(z, copy=True)
+    while n:
+        if n & 1:
+            result *= base
+        n >>= 1
+        if n:
+            base *= base
+    return result
+
+
+def _generic(counts, name: str) -> CountsLaw:
+    lo, hi = counts.support()
+    if not (math.isfinite(lo) and lo >= 0):
+        raise ValueError(f"counts: support must be within the non-negative integers; {name} "
+                         f"starts at {lo}")
+    top = hi
+    if not math.isfinite(hi):
+        top = lo + 16
+        while counts.sf(top) >= GENERIC_TAIL and top - lo <= GENERIC_MAX_TERMS:
+            top = lo + 2 * (top - lo)
+    if top - lo > GENERIC_MAX_TERMS:
+        raise ValueError(f"counts: {name} needs more than {GENERIC_MAX_TERMS} terms to reach "
+                         f"tail mass {GENERIC_TAIL}; use poisson, nbinom or binom")
+    lo, top = int(lo), int(top)
+    ns = np.arange(lo, top + 1)
+    pn = counts.pmf(ns)
+    tail = float(counts.sf(top))
+    mean = float(np.dot(ns, pn))
+    logp = np.log(np.where(pn > 0, pn, 1.0))
+    logp[pn <= 0] = -np.inf
+
+    def pgf(z):
+        acc = np.zeros_like(z)
+        for c in pn[::-1]:
+            acc = acc * z + c
+        return acc * _ipow_c(z, lo) if lo else acc
+
+    def log_pgf_real(s: float) -> float:
+        return float(logsumexp(logp + ns * s))
+
+    law = TransformLaw(pgf, None, log_pgf_real, mean, pgf_rel=2.0 * lo + 2,
+                       pgf_abs=2.0 * (top - lo + 1))
+    return CountsLaw(name, None, law, lambda f0: log_pgf_real(math.log(f0)) if f0 > 0
+                     else (math.log(pn[0]) if lo == 0 and pn[0] > 0 else -math.inf), tail)
