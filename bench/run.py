@@ -160,11 +160,77 @@ def write_results(command: str, equal_rows: list[str], long_rows: list[str]) -> 
     RESULTS.write_text(text)
 
 
+# ----------------------------------------------------------------------------- exact suite
+
+PRIME62 = 2**62 - 57
+
+
+def bench_exact(quick: bool) -> list[str]:
+    """polyconv.convolve (auto) vs python-flint, end to end from numpy arrays and multiply alone."""
+    import random
+
+    from exact_engines import flint_int_sides, flint_mod_sides, operands
+
+    rng = random.Random(5)
+    rows = []
+    cases = [("16-bit", 15, None), ("63-bit", 62, None), ("1000-bit", 1000, None),
+             ("mod 998244353", 62, 998244353), ("mod 2^62-57", 62, PRIME62)]
+    top = 14 if quick else 20
+    for label, bits, modulus in cases:
+        last = min(top, 16 if bits > 62 else top)
+        for e in range(10, last + 1, 2 if quick else 1):
+            n = 2**e
+            a, b = operands(bits, n, rng)
+            if modulus is None:
+                flint_e2e, flint_mul = flint_int_sides(a, b)
+            else:
+                flint_e2e, flint_mul = flint_mod_sides(a % modulus, b % modulus, modulus)
+            c = {"auto": lambda a=a, b=b, m=modulus: polyconv.convolve(a, b, modulus=m),
+                 "flint e2e": flint_e2e, "flint mul": flint_mul}
+            t = interleaved_best(c, 3 if e <= 16 else 1, 0.05 if quick else 0.2)
+            engine = polyconv.plan(a, b, modulus=modulus)
+            rows.append(f"| {label} | 2^{e} | {t['auto'] * 1e3:.4g} | {engine.engine} "
+                        f"({engine.certificate}) | {t['auto'] / t['flint e2e']:.2f} | "
+                        f"{t['auto'] / t['flint mul']:.2f} |")
+            print(rows[-1], flush=True)
+    return rows
+
+
+EXACT_HEADER = ("| coefficients | n | auto ms | engine (certificate) | auto / flint end-to-end | "
+                "auto / flint multiply alone |\n|---|---|---|---|---|---|")
+
+
+def write_section(name: str, title: str, command: str, body: list[str]) -> None:
+    """Replace (or append) the section ``name`` of bench/RESULTS.md."""
+    text = RESULTS.read_text() if RESULTS.exists() else "# polyconv benchmark results\n"
+    start, end = f"<!-- {name}:start -->", f"<!-- {name}:end -->"
+    section = "\n".join([start, f"## {title}", "", f"Command: `{command}`  ",
+                         f"Machine: {platform.machine()}, Python {platform.python_version()}, "
+                         f"numpy {np.__version__}, scipy {scipy.__version__}; "
+                         f"{time.strftime('%Y-%m-%d')}.", "", *body, end])
+    if start in text and end in text:
+        text = text[: text.index(start)] + section + text[text.index(end) + len(end):]
+    else:
+        text = text.rstrip() + "\n\n" + section + "\n"
+    RESULTS.write_text(text)
+
+
 def main() -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("suite", choices=["float"], help="which benchmark to run")
+    parser.add_argument("suite", choices=["float", "exact"], help="which benchmark to run")
     parser.add_argument("--quick", action="store_true", help="fewer sizes; does not write")
     args = parser.parse_args()
+    if args.suite == "exact":
+        print(EXACT_HEADER)
+        rows = bench_exact(args.quick)
+        if not args.quick:
+            import flint
+            write_section("exact", "Exact integer and modular products vs python-flint",
+                          "python bench/run.py exact",
+                          [f"python-flint {flint.__version__}; end to end = numpy arrays in, "
+                           "conversion, multiply, numpy array out. Ratio < 1: polyconv faster.",
+                           "", EXACT_HEADER, *rows])
+        return 0
     print(HEADER)
     equal_rows, long_rows = bench_float(args.quick)
     if not args.quick:
