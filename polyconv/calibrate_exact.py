@@ -20,7 +20,7 @@ import numpy as np
 
 from . import bounds, planning
 from .engines.exact_direct import convolve_exact_direct
-from .engines.exact_fft import convolve_limbs, convolve_rounded
+from .engines.exact_fft import convolve_limbs, convolve_limbs_mod, convolve_rounded
 from .engines.kronecker import convolve_kronecker
 from .engines.ntt import convolve_ntt_mod_prime
 from .planning_exact import kronecker_seconds
@@ -72,6 +72,20 @@ def measure_exact(table: dict, quick: bool, best_time: Callable, fit: Callable,
     exact["rounded"] = {"overhead": c0, "scale": scale, "per_point": cpt}
     c0, scale, cpt = fit(limb_rows, limb_times)
     exact["limbs"] = {"overhead": c0, "scale": scale, "per_point": cpt}
+    rows, times = [], []
+    for k in range(8, 15 if quick else 17, 2):
+        n_fft = 2**k
+        for modulus in (998244353, 2**62 - 57):
+            x = rng.integers(0, modulus, n_fft // 2)
+            params = bounds.choose_limbs(modulus // 2 + 1, modulus // 2 + 1, n_fft // 2,
+                                         n_fft // 2, n_fft)
+            bits, ka, kb = params
+            times.append(best_time(lambda x=x, n=n_fft, p=params, m=modulus: convolve_limbs_mod(
+                x, x, m, p[0], p[1], p[2], n), budget))
+            flops = planning.fft_rate(table, n_fft) * n_fft * k
+            rows.append([1.0, flops * (2 * (ka + kb) - 1) / 3, n_fft * (ka + kb)])
+    c0, scale, cpt = fit(rows, times)
+    exact["limbs_mod"] = {"overhead": c0, "scale": scale, "per_point": cpt}
 
     say("GMP multiplication and Kronecker packing")
     rates = {}

@@ -137,14 +137,26 @@ def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch:
                 float_cost * c["rounded"]["scale"] + c["rounded"]["per_point"] * n_pow2 + check))
             details["fft-exact"] = {"transform_length": n_pow2, "error_bound": err}
 
-    # limb split of float FFTs, certified by the bound
-    limbs = bounds.choose_limbs(facts.max_a, facts.max_b, n1, n2, n_pow2)
-    if limbs is not None and limbs[1] + limbs[2] <= 12 and (limbs[1] > 1 or limbs[2] > 1):
+    # limb split of float FFTs, certified by the bound; with a modulus the residues are centred
+    # and the limb products recombined modulo m in int64 (moduli below 2^31, or odd below 2^62)
+    m = facts.modulus
+    modular_limbs = m is not None and (m < 2**31 or (m % 2 == 1 and m < 2**62))
+    if modular_limbs:
+        half = m // 2 + 1
+        limbs = bounds.choose_limbs(min(facts.max_a, half), min(facts.max_b, half), n1, n2,
+                                    n_pow2)
+    elif m is None:
+        limbs = bounds.choose_limbs(facts.max_a, facts.max_b, n1, n2, n_pow2)
+        if limbs is not None and limbs[1] == 1 and limbs[2] == 1:
+            limbs = None  # that is fft-exact
+    else:
+        limbs = None
+    if limbs is not None and limbs[1] + limbs[2] <= 12:
         bits, ka, kb = limbs
         transforms = (ka + kb) + (ka + kb - 1)
-        options["limbs"] = c["limbs"]["overhead"] + rows * (
-            float_cost * transforms / 3 * c["limbs"]["scale"]
-            + c["limbs"]["per_point"] * n_pow2 * (ka + kb))
+        k = c["limbs_mod"] if modular_limbs else c["limbs"]
+        options["limbs"] = k["overhead"] + rows * (
+            float_cost * transforms / 3 * k["scale"] + k["per_point"] * n_pow2 * (ka + kb))
         certificates["limbs"] = "bound"
         notes["limbs"] = f"{ka}+{kb} limbs of {bits} bits, each limb product certified < 1/2"
         details["limbs"] = {"transform_length": n_pow2, "limb_bits": bits, "limbs_a": ka,
@@ -157,7 +169,6 @@ def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch:
     notes["kronecker"] = f"one GMP product with {slot_bits}-bit slots"
 
     # number-theoretic transform modulo an NTT prime
-    m = facts.modulus
     if m is not None and m in PRIMES and n_pow2 <= (1 << PRIMES[m][1]):
         options["ntt"] = c["ntt"]["overhead"] + rows * c["ntt"]["per_nlogn"] * n_pow2 * max(
             1, math.log2(n_pow2))

@@ -15,7 +15,7 @@ import numpy as np
 
 from . import bounds
 from .engines.exact_direct import convolve_exact_direct
-from .engines.exact_fft import convolve_limbs, convolve_rounded
+from .engines.exact_fft import convolve_limbs, convolve_limbs_mod, convolve_rounded
 from .engines.kronecker import convolve_kronecker, convolve_kronecker_mod, reduce_operand
 from .engines.ntt import convolve_ntt_mod_prime
 from .planning import Plan
@@ -93,7 +93,7 @@ def _finish_row(row: np.ndarray, the_plan: Plan, dtype) -> np.ndarray:
 
 
 def _reduced_by_engine(engine: str) -> bool:
-    return engine in ("kronecker", "ntt")
+    return engine in ("kronecker", "ntt", "limbs")
 
 
 def _product_row(the_plan: Plan, a: np.ndarray, b: np.ndarray, keep: int | None) -> np.ndarray:
@@ -115,6 +115,10 @@ def run_engine(engine: str, the_plan: Plan, a: np.ndarray, b: np.ndarray,
         return convolve_exact_direct(a, b, keep)
     if engine == "fft-exact":
         return convolve_rounded(a, b, the_plan.transform_length, keep)
+    if engine == "limbs" and m is not None:
+        return convolve_limbs_mod(a, b, m, the_plan.setting("limb_bits"),
+                                  the_plan.setting("limbs_a"), the_plan.setting("limbs_b"),
+                                  the_plan.transform_length, keep)
     if engine == "limbs":
         return convolve_limbs(a, b, the_plan.setting("limb_bits"), the_plan.setting("limbs_a"),
                               the_plan.setting("limbs_b"), the_plan.transform_length, keep,

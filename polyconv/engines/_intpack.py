@@ -44,6 +44,8 @@ def pack(x: np.ndarray, width: int) -> gmpy2.mpz:
     ``x_j`` with ``j < i`` is negative (the mirror image of :func:`unpack_signed`).  Borrows come
     from one ``maximum.accumulate`` over the indices of nonzero entries.
     """
+    if x.dtype == object:
+        return _pack_objects(x.tolist(), 8 * width)
     borrow = _borrows(x)
     if x.dtype.kind in _FIXED:
         rows = _fixed_rows(x, borrow, width)
@@ -53,6 +55,16 @@ def pack(x: np.ndarray, width: int) -> gmpy2.mpz:
                            for v, f in zip(x.tolist(), flags, strict=True)])
         rows = np.frombuffer(joined, dtype=np.uint8)
     return gmpy2.mpz.from_bytes(rows.data, "little", signed=True)
+
+
+def _pack_objects(values: list, bits: int) -> gmpy2.mpz:
+    """``sum_i v_i 2^(bits i)`` for Python ints / mpz by ``gmpy2.pack`` (a C loop): the positive
+    and negative parts are packed apart and subtracted."""
+    if all(v >= 0 for v in values):
+        return gmpy2.pack(values, bits)
+    positive = [v if v > 0 else 0 for v in values]
+    negative = [-v if v < 0 else 0 for v in values]
+    return gmpy2.pack(positive, bits) - gmpy2.pack(negative, bits)
 
 
 def _borrows(x: np.ndarray) -> np.ndarray | None:
@@ -103,6 +115,8 @@ def unpack_signed(z: gmpy2.mpz, width: int, count: int) -> np.ndarray:
     Returns int64 when ``width <= 8``, else an object array of Python ints.  A negative ``z``
     is unpacked as ``-(digits of -z)`` (gmpy2 writes negative numbers' bytes about 2x slower).
     """
+    if width > 16:
+        return _unpack_signed_objects(z, 8 * width, count)
     if z < 0:
         return -unpack_signed(-z, width, count)
     rows = slot_rows(z, width, count)
@@ -110,6 +124,20 @@ def unpack_signed(z: gmpy2.mpz, width: int, count: int) -> np.ndarray:
     borrow = np.flatnonzero(rows[:-1, -1] >= 0x80) + 1
     values[borrow] += 1
     return values
+
+
+def _unpack_signed_objects(z: gmpy2.mpz, bits: int, count: int) -> np.ndarray:
+    """Signed slots by offset: adding ``h = 2^(bits-1)`` to every slot makes them all lie in
+    ``[0, 2^bits)`` with no borrow between them, so ``gmpy2.unpack`` reads ``c_k + h`` directly
+    (the low ``count`` slots: taking ``z + offset`` modulo ``2^(bits count)`` also handles
+    truncation and a negative ``z``)."""
+    half = gmpy2.mpz(1) << (bits - 1)
+    slot = bytes(bits // 8 - 1) + b"\x80"  # bits is a multiple of 8: h in one slot, little-endian
+    offset = gmpy2.mpz.from_bytes(slot * count, "little")
+    shifted = gmpy2.f_mod_2exp(z + offset, bits * count)
+    out = np.empty(count, dtype=object)
+    out[:] = [int(v - half) for v in gmpy2.unpack(shifted, bits)]
+    return out
 
 
 def unpack_unsigned(z: gmpy2.mpz, width: int, count: int) -> np.ndarray:
@@ -171,4 +199,68 @@ def reduce_words(words: np.ndarray, modulus: int) -> np.ndarray:
         w = words[:, j]
         for half in (w >> np.uint64(32), w & low_mask):
             r = ((r << np.uint64(32)) | half) % m
+    return r
+
+
+#: Largest modulus (exclusive) the vectorised modular helpers below support: remainders and
+#: sums of two remainders stay inside int64.
+WIDE_MODULUS_LIMIT = 2**62
+_M32 = np.uint64(0xFFFFFFFF)
+_S32 = np.uint64(32)
+
+
+def mul_wide(x: np.ndarray, y) -> tuple[np.ndarray, np.ndarray]:
+    """Full 128-bit products of uint64 values as ``(high, low)`` words (schoolbook on halves)."""
+    y = np.asarray(y, dtype=np.uint64)
+    x0, x1 = x & _M32, x >> _S32
+    y0, y1 = y & _M32, y >> _S32
+    p00, p01, p10, p11 = x0 * y0, x0 * y1, x1 * y0, x1 * y1
+    mid = (p00 >> _S32) + (p01 & _M32) + (p10 & _M32)
+    low = (mid << _S32) | (p00 & _M32)
+    high = p11 + (p01 >> _S32) + (p10 >> _S32) + (mid >> _S32)
+    return high, low
+
+
+class Montgomery:
+    """Vectorised Montgomery reduction modulo an odd ``m < 2^62`` with radix ``2^64``.
+
+    ``redc(high, low)`` returns ``T 2^-64 mod m`` for ``T = high 2^64 + low < m 2^64``
+    (P. L. Montgomery, "Modular multiplication without trial division", Math. Comp. 44 (1985)
+    519-521): with ``u = low (-m^-1) mod 2^64``, ``T + u m`` is divisible by ``2^64`` and the
+    quotient is below ``2m``.  All arithmetic is uint64 numpy, 128-bit products by
+    :func:`mul_wide`.
+    """
+
+    def __init__(self, modulus: int):
+        if modulus % 2 == 0 or not 2 < modulus < WIDE_MODULUS_LIMIT:
+            raise ValueError("Montgomery reduction needs an odd modulus below 2^62")
+        self.modulus = modulus
+        self.m = np.uint64(modulus)
+        self.neg_inverse = np.uint64((-pow(modulus, -1, 2**64)) % 2**64)
+
+    def redc(self, high: np.ndarray, low: np.ndarray) -> np.ndarray:
+        u = low * self.neg_inverse
+        u_high, _ = mul_wide(u, self.m)
+        t = high + u_high + (low != 0).astype(np.uint64)
+        return t - np.where(t >= self.m, self.m, np.uint64(0))
+
+    def constant(self, value: int) -> np.uint64:
+        """``value 2^64 mod m``: multiplying by it with :meth:`times` multiplies by ``value``."""
+        return np.uint64((value << 64) % self.modulus)
+
+    def times(self, x: np.ndarray, prepared: np.uint64) -> np.ndarray:
+        """``x value mod m`` for ``x < m`` and ``prepared = constant(value)``."""
+        return self.redc(*mul_wide(x, prepared))
+
+
+def reduce_words_wide(words: np.ndarray, modulus: int) -> np.ndarray:
+    """``(sum_j words[:, j] 2^(64 j)) mod m`` for odd ``m < 2^62``: Horner's rule in Montgomery
+    arithmetic (one multiplication by ``2^64 mod m`` per word)."""
+    mont = Montgomery(modulus)
+    m = mont.m
+    radix = mont.constant(pow(2, 64, modulus))
+    r = words[:, -1] % m
+    for j in range(words.shape[1] - 2, -1, -1):
+        r = mont.times(r, radix) + words[:, j] % m
+        r -= np.where(r >= m, m, np.uint64(0))
     return r

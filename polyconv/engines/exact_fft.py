@@ -19,6 +19,7 @@ from __future__ import annotations
 import numpy as np
 from scipy import fft as _sfft
 
+from .. import transforms as tf
 from . import _intpack
 
 
@@ -62,6 +63,8 @@ def split_limbs(x: np.ndarray, limb_bits: int, n_limbs: int) -> np.ndarray:
     over the limbs (``d >= 2^(b-1)`` becomes ``d - 2^b`` with a carry of 1; the top limb keeps
     its carry), and given the sign.
     """
+    if x.dtype == np.int64:
+        return _split_int64(x, limb_bits, n_limbs)
     words, negative = _magnitude_words(x)
     mask = (1 << limb_bits) - 1
     half = 1 << (limb_bits - 1)
@@ -75,6 +78,20 @@ def split_limbs(x: np.ndarray, limb_bits: int, n_limbs: int) -> np.ndarray:
         out[j] = digit
     if negative is not None:
         out[:, negative] *= -1.0
+    return out
+
+
+def _split_int64(x: np.ndarray, limb_bits: int, n_limbs: int) -> np.ndarray:
+    """:func:`split_limbs` for int64 by arithmetic shifts: ``q = (x + 2^(b-1)) >> b`` gives the
+    balanced digit ``x - q 2^b`` in ``[-2^(b-1), 2^(b-1))``; the top limb keeps the rest."""
+    out = np.empty((n_limbs, x.shape[0]), dtype=np.float64)
+    half, shift = np.int64(1 << (limb_bits - 1)), np.int64(limb_bits)
+    rest = x
+    for j in range(n_limbs - 1):
+        quotient = (rest + half) >> shift
+        out[j] = rest - (quotient << shift)
+        rest = quotient
+    out[n_limbs - 1] = rest
     return out
 
 
@@ -133,19 +150,86 @@ def convolve_limbs(a: np.ndarray, b: np.ndarray, limb_bits: int, limbs_a: int, l
     numpy.ndarray
         The exact ``c_k``: int64 if ``as_int64``, else an object array of Python ints.
     """
-    count = a.shape[0] + b.shape[0] - 1
-    if keep is not None:
-        count = min(count, keep)
-    spectra_a = _sfft.rfft(split_limbs(a, limb_bits, limbs_a), n_fft, axis=-1)
-    spectra_b = _sfft.rfft(split_limbs(b, limb_bits, limbs_b), n_fft, axis=-1)
-    sums = np.zeros((limbs_a + limbs_b - 1, spectra_a.shape[1]), dtype=np.complex128)
-    for j in range(limbs_a):
-        sums[j:j + limbs_b] += spectra_a[j] * spectra_b
-    parts = np.rint(_sfft.irfft(sums, n_fft, axis=-1, overwrite_x=True)[:, :count])
-    parts = parts.astype(np.int64)
+    parts = limb_parts(a, b, limb_bits, limbs_a, limbs_b, n_fft, keep)
     if as_int64:
         return _recombine_int64(parts, limb_bits)
     return _recombine_objects(parts, limb_bits)
+
+
+def limb_parts(a: np.ndarray, b: np.ndarray, limb_bits: int, limbs_a: int, limbs_b: int,
+               n_fft: int, keep: int | None = None) -> np.ndarray:
+    """The exact limb products ``P_m = sum_(j+l=m) A_j * B_l`` as int64 rows.
+
+    ``c = sum_m P_m 2^(b m)``.  All limb spectra are taken in two batched transforms and the sums
+    formed in the frequency domain (``limbs_a + limbs_b`` forward, ``limbs_a + limbs_b - 1``
+    inverse real transforms).  Same preconditions as :func:`convolve_limbs`.
+    """
+    count = a.shape[0] + b.shape[0] - 1
+    if keep is not None:
+        count = min(count, keep)
+    spectra_a = tf.rfft(tf.zero_padded(split_limbs(a, limb_bits, limbs_a), n_fft), -1, 1)
+    spectra_b = tf.rfft(tf.zero_padded(split_limbs(b, limb_bits, limbs_b), n_fft), -1, 1)
+    sums = np.zeros((limbs_a + limbs_b - 1, spectra_a.shape[1]), dtype=np.complex128)
+    for j in range(limbs_a):
+        sums[j:j + limbs_b] += spectra_a[j] * spectra_b
+    return np.rint(tf.irfft(sums, n_fft, -1, 1)[:, :count]).astype(np.int64)
+
+
+def centered_residues(x: np.ndarray, modulus: int) -> np.ndarray:
+    """Residues in ``[0, m)`` moved to ``(-m/2, m/2]`` (int64): half the magnitude to split."""
+    x = x.astype(np.int64)
+    return np.where(x > modulus // 2, x - np.int64(modulus), x)
+
+
+def convolve_limbs_mod(a: np.ndarray, b: np.ndarray, modulus: int, limb_bits: int,
+                       limbs_a: int, limbs_b: int, n_fft: int,
+                       keep: int | None = None) -> np.ndarray:
+    """Product modulo ``m`` by limb-split float FFTs, recombined in modular int64 arithmetic.
+
+    Operands are residues in ``[0, m)`` for ``m < 2^31`` or an odd ``m < 2^62``; they are
+    centred (:func:`centered_residues`), split and multiplied exactly limb by limb
+    (:func:`limb_parts`, certified by the caller's bound), and ``c mod m = sum_m (P_m mod m)
+    (2^(b m) mod m) mod m`` is formed without big integers: plain int64 products below
+    ``2^62`` for ``m < 2^31``, Montgomery reduction (:class:`polyconv.engines._intpack.Montgomery`)
+    above.
+
+    Returns
+    -------
+    numpy.ndarray
+        int64 in ``[0, m)``, length ``min(keep, n1 + n2 - 1)``.
+    """
+    parts = limb_parts(centered_residues(a, modulus), centered_residues(b, modulus), limb_bits,
+                       limbs_a, limbs_b, n_fft, keep)
+    if modulus < 2**31:
+        # each (P mod m) 2^(bj) mod m product is below 2^62: add up to two, then reduce
+        acc = np.zeros(parts.shape[1], dtype=np.int64)
+        for j in range(parts.shape[0]):
+            weight = np.int64(pow(2, limb_bits * j, modulus))
+            acc = _float_mod(acc + _float_mod(parts[j], modulus) * weight, modulus)
+        return acc
+    # |P| < 2^52 < m: P mod m is P or P + m
+    mont = _intpack.Montgomery(modulus)
+    acc = np.zeros(parts.shape[1], dtype=np.uint64)
+    for j in range(parts.shape[0]):
+        residue = np.where(parts[j] < 0, parts[j] + np.int64(modulus), parts[j])
+        acc += mont.times(residue.view(np.uint64), mont.constant(pow(2, limb_bits * j, modulus)))
+        acc -= np.where(acc >= mont.m, mont.m, np.uint64(0))
+    return acc.view(np.int64)
+
+
+def _float_mod(x: np.ndarray, modulus: int) -> np.ndarray:
+    """``x mod m`` for int64 ``|x| < 2^63`` and ``m < 2^31`` without integer division.
+
+    The quotient ``floor(x / m)`` is estimated in float64 (``x`` rounded to 53 bits: the estimate
+    is off by at most one since ``|x| 2^-52 < m``), the remainder ``x - q m`` is exact in int64,
+    and one correction step each way lands in ``[0, m)``.
+    """
+    m = np.int64(modulus)
+    q = np.floor(x.astype(np.float64) * (1.0 / modulus)).astype(np.int64)
+    r = x - q * m
+    r += np.where(r < 0, m, np.int64(0))
+    r -= np.where(r >= m, m, np.int64(0))
+    return r
 
 
 def _recombine_int64(parts: np.ndarray, limb_bits: int) -> np.ndarray:

@@ -136,8 +136,9 @@ def convolve_kronecker_mod(a: np.ndarray, b: np.ndarray, modulus: int,
 
     Operands are reduced to ``[0, m)``, multiplied exactly by Kronecker substitution
     (``0 <= c_k <= min(n1, n2) (m-1)^2``, no borrows), and each slot is reduced: for ``m < 2^32``
-    vectorised on 64-bit words (:func:`polyconv.engines._intpack.reduce_words`), otherwise on
-    Python ints.
+    vectorised on 64-bit words (:func:`polyconv.engines._intpack.reduce_words`), for
+    odd ``m < 2^62`` by Montgomery arithmetic on uint64
+    (:func:`polyconv.engines._intpack.reduce_words_wide`), otherwise on Python ints.
 
     Parameters
     ----------
@@ -164,5 +165,8 @@ def convolve_kronecker_mod(a: np.ndarray, b: np.ndarray, modulus: int,
     rows = _intpack.slot_rows(z, width, count)
     if modulus < 2**32:
         return _intpack.reduce_words(_intpack.words_from_rows(rows), modulus).astype(np.int64)
+    if modulus < _intpack.WIDE_MODULUS_LIMIT and modulus % 2 == 1:
+        words = _intpack.words_from_rows(rows)
+        return _intpack.reduce_words_wide(words, modulus).astype(np.int64)
     out = np.mod(_intpack.rows_to_ints(rows, signed=False).astype(object), modulus)
     return out.astype(np.int64) if modulus <= 2**63 else out
