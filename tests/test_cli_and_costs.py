@@ -1,9 +1,11 @@
-"""The console script and the cost table: round trips through a temporary user file."""
+"""The cost table: round trips through a temporary user file (and `polyconv calibrate`).
+
+The other command-line tests live in tests/test_cli_commands.py and tests/test_cli_reports.py.
+"""
 
 from __future__ import annotations
 
 import json
-import math
 
 import numpy as np
 import pytest
@@ -11,26 +13,6 @@ import pytest
 import polyconv
 from polyconv import costs
 from polyconv.cli.main import main
-
-
-def test_demo_prints_dice_counts_matching_the_closed_form(capsys):
-    assert main(["demo", "--json"]) == 0
-    report = json.loads(capsys.readouterr().out)
-    # ways to roll total s with three dice: sum_k (-1)^k C(3,k) C(s - 6k - 1, 2)
-    # (inclusion-exclusion; common practice, no source)
-    for total in range(3, 19):
-        ways = sum((-1) ** k * math.comb(3, k) * math.comb(total - 6 * k - 1, 2)
-                   for k in range(4) if total - 6 * k - 1 >= 2)
-        assert report["dice"][str(total)] == ways
-    pipe = report["pipeline"]
-    assert pipe["p50_ms"] <= pipe["p99_ms"]
-    assert 0.0 <= pipe["miss_probability_60ms"] <= 1.0
-    assert report["smoothing"]["output_length"] == report["smoothing"]["samples"]
-
-
-def test_no_command_prints_help_and_exits_2(capsys):
-    assert main([]) == 2
-    assert "demo" in capsys.readouterr().out
 
 
 def test_user_cost_file_is_preferred_and_written_atomically(tmp_path, monkeypatch):

@@ -1,109 +1,253 @@
-"""``polyconv demo``: short scenarios on invented data, printed to the terminal.
+"""``polyconv demo``: the three kinds of work on bundled, invented scenarios.
 
-All names and numbers here are invented for the demo (a fictional parcel pipeline, a fictional
-sensor); nothing is real data.
+* ``aggregate`` on ``quillmere_claims.toml``: a fictional regional insurer, Quillmere Mutual;
+* ``delays`` on ``larkspur_pipeline.toml``: the order pipeline of a fictional shop, Larkspur
+  Parcel;
+* exact counting by polynomial products: three dice, fifty dice (big integers) and coin change.
+
+Everything is written to one report folder (``./polyconv-demo`` by default): ``report.md``, the
+CSVs and PNGs of each part, and copies of the two spec files to edit and re-run.  The folder is
+built in a temporary sibling and moved into place (see :mod:`polyconv.cli.fileio`).
 """
 
 from __future__ import annotations
 
 import argparse
-import json
-import time
+from importlib import resources
+from pathlib import Path
 
 import numpy as np
 
 from .. import api
+from . import aggregate_cmd, delays_cmd, plots
+from .fileio import ReportFolder, unlimited_int_digits
+from .progress import Steps
+from .report import dumps, fmt, fmt_prob, md_table, paragraph, wrap
+from .spec import parse_spec
 
-CAUTION = (
-    "Model output, not advice: independence of stages is assumed and delays are rounded to a\n"
-    "1 ms grid. Check against qualified engineering practice before relying on a deadline."
-)
+SCENARIOS = ("quillmere_claims.toml", "larkspur_pipeline.toml")
+COINS = (1, 5, 10, 25, 50)
+"""Coin values in cents for the coin-change count."""
 
 EXAMPLE = """example:
-  polyconv demo
-  polyconv demo --json
+  polyconv demo                       writes ./polyconv-demo/ (report.md, CSVs, PNGs, specs)
+  polyconv demo --output /tmp/demo    somewhere else
+  polyconv demo --json                the numbers as JSON
 """
 
 
 def register(sub) -> None:
+    """Add the ``demo`` sub-command to ``sub``."""
     p = sub.add_parser(
         "demo",
-        help="run short scenarios on bundled invented data",
-        description="Multiply exact integer polynomials, add the delays of a fictional "
-        "order pipeline and smooth a long invented sensor trace, showing which engine polyconv "
-        "chose each time and why.",
+        help="run aggregate, delays and exact counting on bundled invented scenarios",
+        description=paragraph(
+            "Run the three kinds of work on invented data: the aggregate claims of a "
+            "fictional insurer (Quillmere Mutual), the delays of a fictional order pipeline "
+            "(Larkspur Parcel) and exact counts from polynomial products (dice, coin change). "
+            "Writes a report folder and prints where."),
         epilog=EXAMPLE,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
+    p.add_argument("-o", "--output", metavar="DIR", default="polyconv-demo",
+                   help="report folder (default: ./polyconv-demo)")
     p.add_argument("--json", action="store_true", help="print a machine-readable summary")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(run=run)
 
 
-def dice_counts() -> dict:
-    """Ways to roll each total with three six-sided dice: coefficients of (x + ... + x^6)^3."""
-    die = np.array([0, 1, 1, 1, 1, 1, 1])
-    two = api.convolve(die, die)
-    three = api.convolve(two, die)
-    return {int(total): int(ways) for total, ways in enumerate(three) if ways}
+def scenario_text(name: str) -> str:
+    """The text of a bundled scenario file."""
+    return resources.files("polyconv").joinpath(f"data/demo/{name}").read_text(encoding="utf-8")
 
 
-def pipeline_latency() -> dict:
-    """End-to-end latency of the invented 'Larkspur Parcel' order pipeline, 1 ms grid."""
-    ms = np.arange(80)
-    stages = {
-        "accept order": np.exp(-0.5 * ((ms - 3) / 1.0) ** 2),
-        "reserve stock": np.where(ms >= 2, np.exp(-(ms - 2) / 6.0), 0.0),
-        "charge card": np.exp(-0.5 * ((ms - 12) / 3.0) ** 2) + 0.05 * (ms >= 30) * (ms < 60),
-    }
-    pmfs = {name: p / p.sum() for name, p in stages.items()}
-    total = np.array([1.0])
-    for p in pmfs.values():
-        total = api.convolve(total, p)
-    cdf = np.cumsum(total)
-    def percentile(q: float) -> int:
-        return int(np.searchsorted(cdf, q - 1e-12))
+# ------------------------------------------------------------------------ exact counting
+
+
+def dice_counts(dice: int, faces: int = 6) -> dict[int, int]:
+    """Ways to roll each total with ``dice`` fair dice: coefficients of
+    ``(x + x^2 + ... + x^faces)^dice``, by repeated exact products (square and multiply)."""
+    die = np.array([0] + [1] * faces, dtype=np.int64)
+    result = np.array([1], dtype=np.int64)
+    power = die
+    k = dice
+    while k:
+        if k & 1:
+            result = api.convolve(result, power)
+        k >>= 1
+        if k:
+            power = api.convolve(power, power)
+    return {t: int(w) for t, w in enumerate(result) if w}
+
+
+def coin_change(amount: int, coins: tuple[int, ...] = COINS) -> list[int]:
+    """Ways to pay every amount ``0..amount`` with unlimited coins: the first ``amount + 1``
+    coefficients of ``prod_c 1 / (1 - x^c)``, as truncated exact products (``length=``)."""
+    ways = np.zeros(amount + 1, dtype=np.int64)
+    ways[0] = 1
+    for c in coins:
+        series = np.zeros(amount + 1, dtype=np.int64)
+        series[::c] = 1
+        ways = api.convolve(ways, series, length=amount + 1)
+    return [int(w) for w in ways]
+
+
+def counting() -> dict:
+    """The counting part of the demo."""
+    three = dice_counts(3)
+    fifty = dice_counts(50)
+    mode_total = max(fifty, key=fifty.get)
+    change = coin_change(10_000)
     return {
-        "stages": list(pmfs),
-        "mean_ms": float(np.dot(np.arange(total.size), total)),
-        "p50_ms": percentile(0.50),
-        "p99_ms": percentile(0.99),
-        "miss_probability_60ms": float(max(0.0, 1.0 - cdf[60])),
+        "three_dice": three,
+        "fifty_dice": {"most_likely_total": mode_total, "ways": fifty[mode_total],
+                       "all_outcomes": sum(fifty.values()), "six_to_the_50": 6**50,
+                       "probability": fifty[mode_total] / 6**50},
+        "coin_change": {"coins_cents": list(COINS), "ways_100": change[100],
+                        "ways_10000": change[10_000],
+                        "plan": str(api.plan(np.ones(10_001, dtype=np.int64),
+                                             np.ones(10_001, dtype=np.int64),
+                                             length=10_001).engine)},
+        "_change_table": change,
     }
 
 
-def smooth_trace() -> dict:
-    """Smooth an invented 2^20-sample sensor trace with a 129-tap window; report the plan."""
-    rng = np.random.default_rng(7)
-    trace = np.cumsum(rng.standard_normal(2**20))
-    window = np.hanning(129)
-    window /= window.sum()
-    the_plan = api.plan(trace, window, mode="same")
-    start = time.perf_counter()
-    smoothed = api.convolve(trace, window, mode="same")
-    seconds = time.perf_counter() - start
-    return {"samples": int(trace.size), "taps": int(window.size), "engine": the_plan.engine,
-            "reason": the_plan.reason, "seconds": seconds, "output_length": int(smoothed.size)}
+def counting_markdown(c: dict, figure: str | None) -> str:
+    """The counting section of report.md."""
+    three = c["three_dice"]
+    f = c["fifty_dice"]
+    cc = c["coin_change"]
+    lines = ["## 3. Exact counts from polynomial products", "",
+             "Three six-sided dice: the coefficient of x^s in (x + x^2 + ... + x^6)^3 is the "
+             "number of ways to roll the total s.", "",
+             md_table(["total"] + [str(t) for t in three], [["ways"] + [str(w) for w in
+                                                                      three.values()]]), "",
+             f"Total {sum(three.values())} = 6^3 outcomes.", "",
+             f"Fifty dice (exact big integers): the most likely total is {f['most_likely_total']}"
+             f", reached in {f['ways']} of the 6^50 = {f['six_to_the_50']} outcomes "
+             f"(probability {f['probability']:.6f}).", "",
+             f"Coin change with coins of {', '.join(map(str, cc['coins_cents']))} cents: "
+             f"{cc['ways_100']} ways to pay 1.00 and {cc['ways_10000']} ways to pay 100.00 "
+             "(first coefficients of the product of 1 / (1 - x^c), truncated products).", "",
+             "Files: `dice.csv` (three dice), `coin_change.csv` (ways to pay 0..10000 cents)"
+             + (f", `{figure}`." if figure else "."), ""]
+    if figure:
+        lines += [f"![]({figure})", ""]
+    return "\n".join(lines)
+
+
+# ------------------------------------------------------------------------------- report
+
+
+def report_markdown(claims, pipeline, counts: dict, figures: dict[str, str | None]) -> str:
+    """``report.md``: the three parts, each with its caution where it applies."""
+    cs, ps = claims.summary, pipeline.summary
+    cur, unit = claims.spec.currency, pipeline.spec.unit
+    parts = ["# polyconv demo (invented scenarios)", "",
+             "Every name and number in this report is invented to show what polyconv "
+             "computes. Edit the copied spec files and re-run `polyconv aggregate` or "
+             "`polyconv delays` on them.", "",
+             f"## 1. {claims.spec.title}", "",
+             "> " + "\n>\n> ".join(aggregate_cmd.caution_lines(claims)), "",
+             f"Spec: `{SCENARIOS[0]}`; details: `claims_summary.md`.", "",
+             md_table(["quantity", "value"], [
+                 ["claims", cs["claims"]],
+                 ["cover per claim", aggregate_cmd._cover_text(claims.spec)],
+                 [f"mean ({cur})", fmt(cs["mean"])],
+                 [f"check E[N] E[X] ({cur})", fmt(cs["mean_check"])],
+                 [f"standard deviation ({cur})", fmt(cs["sd"])]]
+                 + [[f"VaR / TVaR {k} ({cur})", f"{fmt(cs['var'][k])} / {fmt(cs['tvar'][k])}"]
+                    for k in cs["var"]]
+                 + [["trust floor", fmt_prob(cs["trust_floor"])],
+                    ["truncated mass", fmt_prob(cs["truncated_mass"])]]), ""]
+    if figures.get("claims"):
+        parts += [f"![]({figures['claims']})", ""]
+    parts += [f"## 2. {pipeline.spec.title}", "",
+              "> " + "\n>\n> ".join(delays_cmd.caution_lines(pipeline)), "",
+              f"Spec: `{SCENARIOS[1]}`; details: `pipeline_summary.md`.", "",
+              "Network: " + pipeline.descriptions.get(delays_cmd.ROOT, ""), "",
+              md_table(["end-to-end", "value"],
+                       [[f"mean ({unit})", fmt(ps["mean"])]]
+                       + [[f"{k} ({unit})", fmt(v)] for k, v in ps["percentiles"].items()]
+                       + [[f"P(delay > {d} {unit})", fmt_prob(v)]
+                          for d, v in ps["miss_probability"].items()]
+                       + [["trust floor", fmt_prob(ps["trust_floor"])]]), ""]
+    if figures.get("pipeline"):
+        parts += [f"![]({figures['pipeline']})", ""]
+    parts.append(counting_markdown(counts, figures.get("dice")))
+    return "\n".join(parts)
 
 
 def run(args) -> int:
-    dice = dice_counts()
-    latency = pipeline_latency()
-    smooth = smooth_trace()
-    if args.json:
-        print(json.dumps({"dice": dice, "pipeline": latency, "smoothing": smooth}, indent=2))
-        return 0
-    print("polyconv demo (invented data)\n")
-    print("1. Three six-sided dice: ways to roll each total, (x + ... + x^6)^3, exact integers")
-    print("   " + "  ".join(f"{t}:{w}" for t, w in dice.items()))
-    print(f"   total {sum(dice.values())} = 6^3\n")
-    print("2. Fictional 'Larkspur Parcel' order pipeline: " + " -> ".join(latency["stages"]))
-    print(f"   end-to-end mean {latency['mean_ms']:.1f} ms, p50 {latency['p50_ms']} ms, "
-          f"p99 {latency['p99_ms']} ms, P(> 60 ms) = {latency['miss_probability_60ms']:.2e}")
-    for line in CAUTION.splitlines():
-        print("   " + line)
-    print()
-    print(f"3. Smoothing an invented sensor trace: {smooth['samples']} samples x "
-          f"{smooth['taps']} taps")
-    print(f"   engine {smooth['engine']}: {smooth['reason']}")
-    print(f"   took {smooth['seconds'] * 1e3:.1f} ms")
+    """Entry point of ``polyconv demo``."""
+    folder = Path(args.output)
+    with Steps(7, "demo", args.quiet) as steps, unlimited_int_digits():
+        claims_spec = aggregate_cmd.parse(parse_spec(scenario_text(SCENARIOS[0]), SCENARIOS[0]))
+        claims = aggregate_cmd.compute(claims_spec)
+        steps.step("claims")
+        pipe_spec = delays_cmd.parse(parse_spec(scenario_text(SCENARIOS[1]), SCENARIOS[1]))
+        pipeline = delays_cmd.compute(pipe_spec)
+        steps.step("pipeline")
+        counts = counting()
+        steps.step("counting")
+        with ReportFolder(folder) as out:
+            figures: dict[str, str | None] = {}
+            names = aggregate_cmd.write_report(claims, out, prefix="claims_")
+            figures["claims"] = next((n for n in names if n.endswith(".png")), None)
+            steps.step("claims report")
+            names = delays_cmd.write_report(pipeline, out, prefix="pipeline_")
+            figures["pipeline"] = next((n for n in names if n.endswith(".png")), None)
+            steps.step("pipeline report")
+            three = counts["three_dice"]
+            out.write_text("dice.csv", "total,ways\n" + "".join(f"{t},{w}\n"
+                                                              for t, w in three.items()))
+            out.write_text("coin_change.csv", "cents,ways\n" + "".join(
+                f"{i},{w}\n" for i, w in enumerate(counts["_change_table"])))
+            if plots.available():
+                figures["dice"] = "dice.png"
+                out.write_bytes("dice.png", plots.counts_figure(
+                    list(three), list(three.values()),
+                    title="Three six-sided dice: ways to roll each total (exact)",
+                    xlabel="total of three dice (pips)", ylabel="number of ways (of 216)"))
+            for name in SCENARIOS:
+                out.write_text(name, scenario_text(name))
+            out.write_text("report.md", report_markdown(claims, pipeline, counts, figures))
+            steps.step("report.md")
+        summary = {"output": str(folder), "claims": aggregate_cmd.json_summary(claims),
+                   "pipeline": delays_cmd.json_summary(pipeline),
+                   "counting": {k: v for k, v in counts.items() if not k.startswith("_")}}
+        if args.json:
+            print(dumps(summary))
+            return 0
+        print(terminal_text(claims, pipeline, counts, folder))
     return 0
+
+
+def terminal_text(claims, pipeline, counts: dict, folder: Path) -> str:
+    """The short printed summary."""
+    cs, ps = claims.summary, pipeline.summary
+    cur, unit = claims.spec.currency, pipeline.spec.unit
+    top = max(cs["var"])
+    f = counts["fifty_dice"]
+    cc = counts["coin_change"]
+    lines = ["polyconv demo: invented scenarios", "",
+             f"1. {claims.spec.title}",
+             f"   mean {fmt(cs['mean'])} {cur} (E[N] E[X] = {fmt(cs['mean_check'])}), "
+             f"sd {fmt(cs['sd'])}, VaR {top} {fmt(cs['var'][top])}, "
+             f"TVaR {top} {fmt(cs['tvar'][top])}"]
+    lines += wrap(aggregate_cmd.caution_lines(claims), indent="   ")
+    pct = ", ".join(f"{k} {fmt(v)}" for k, v in ps["percentiles"].items())
+    miss = ", ".join(f"P(> {d} {unit}) {fmt_prob(v)}" for d, v in ps["miss_probability"].items())
+    lines += ["", f"2. {pipeline.spec.title}", f"   {pct} {unit}", f"   {miss}"]
+    lines += wrap(delays_cmd.caution_lines(pipeline), indent="   ")
+    lines += ["", "3. Exact counts by polynomial products",
+              "   three dice: " + " ".join(f"{t}:{w}" for t, w in
+                                           counts["three_dice"].items()),
+              f"   fifty dice: total {f['most_likely_total']} in {f['ways']} of 6^50 ways",
+              f"   coin change: {cc['ways_100']} ways to pay 1.00, {cc['ways_10000']} ways "
+              "to pay 100.00", "",
+              f"report written to {folder}/ (open {folder / 'report.md'})"]
+    if not plots.available():
+        lines.append(plots.MISSING_NOTE)
+    return "\n".join(lines)
+

@@ -1,0 +1,307 @@
+"""Files in and out: coefficient sequences, atomic writes and report folders.
+
+Atomicity (chosen here, stated in the README):
+
+* a single output file is written to a temporary file in the same folder and moved into place
+  with :func:`os.replace`, so a reader sees the old file or the new one, never a half-written one;
+* a report folder is built complete in a temporary sibling folder (:class:`ReportFolder`).  On
+  success a new folder is renamed into place in one step; when the folder already exists, each
+  new file replaces its namesake with :func:`os.replace` (files of the folder that this run does
+  not produce are left alone).  On any error or Ctrl-C the temporary folder is removed.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import io
+import json
+import os
+import re
+import shutil
+import sys
+import tempfile
+from collections.abc import Iterator
+from pathlib import Path
+
+import numpy as np
+
+from .errors import CliError
+
+SEQUENCE_SUFFIXES = (".npy", ".txt", ".csv", ".json")
+
+_INT = re.compile(r"^[+-]?\d+$")
+
+
+@contextlib.contextmanager
+def unlimited_int_digits() -> Iterator[None]:
+    """Lift Python's limit on int <-> str conversion (4300 digits) for exact big integers."""
+    get = getattr(sys, "get_int_max_str_digits", None)
+    if get is None:  # pragma: no cover - Python < 3.10.7
+        yield
+        return
+    old = get()
+    sys.set_int_max_str_digits(0)
+    try:
+        yield
+    finally:
+        sys.set_int_max_str_digits(old)
+
+
+# ----------------------------------------------------------------------------------- reading
+
+
+def read_sequence(path: str | Path, name: str = "input") -> np.ndarray:
+    """Read a 1-D sequence of coefficients.
+
+    Parameters
+    ----------
+    path : str or Path
+        ``.npy`` (a numeric 1-D array, no pickles), ``.txt``/``.csv`` (numbers separated by
+        commas, spaces or newlines; ``#`` starts a comment), or ``.json`` (a list of numbers).
+        Integers of any size are read exactly; a file with any float gives floats.
+    name : str
+        How to call this input in error messages.
+
+    Returns
+    -------
+    numpy.ndarray
+        int64 when every entry is an integer that fits, an object array of Python ints for
+        larger integers, float64 otherwise.
+
+    Raises
+    ------
+    CliError
+        Missing file, unknown extension, empty file, non-numeric entries.
+    """
+    p = Path(path)
+    suffix = p.suffix.lower()
+    if suffix not in SEQUENCE_SUFFIXES:
+        raise CliError(f"{name} {str(path)!r}: unknown file type {suffix or '(none)'!r}; "
+                       f"use one of {', '.join(SEQUENCE_SUFFIXES)}")
+    if not p.exists():
+        raise CliError(f"{name} {str(path)!r}: no such file")
+    if p.is_dir():
+        raise CliError(f"{name} {str(path)!r}: is a folder, expected a file")
+    try:
+        if suffix == ".npy":
+            return _read_npy(p, name)
+        text = p.read_text(encoding="utf-8")
+    except UnicodeDecodeError:
+        raise CliError(f"{name} {str(path)!r}: not a UTF-8 text file") from None
+    except OSError as exc:
+        raise CliError(f"{name} {str(path)!r}: cannot read: {exc.strerror or exc}") from None
+    if suffix == ".json":
+        values = _json_values(text, f"{name} {str(path)!r}")
+    else:
+        values = _text_values(text, f"{name} {str(path)!r}")
+    if not values:
+        raise CliError(f"{name} {str(path)!r}: holds no numbers")
+    return to_array(values)
+
+
+def _read_npy(p: Path, name: str) -> np.ndarray:
+    try:
+        arr = np.load(p, allow_pickle=False)
+    except ValueError as exc:
+        if "pickle" in str(exc).lower():
+            raise CliError(f"{name} {str(p)!r}: .npy with Python objects (pickles) is refused; "
+                           "write big integers to a .txt, .csv or .json file") from None
+        raise CliError(f"{name} {str(p)!r}: not a readable .npy file ({exc})") from None
+    except (OSError, EOFError) as exc:
+        raise CliError(f"{name} {str(p)!r}: not a readable .npy file ({exc})") from None
+    if not isinstance(arr, np.ndarray):
+        raise CliError(f"{name} {str(p)!r}: .npz archives are not supported; use .npy")
+    if arr.dtype.kind not in "biuf":
+        raise CliError(f"{name} {str(p)!r}: holds {arr.dtype} data; expected integers or floats")
+    if arr.ndim != 1:
+        raise CliError(f"{name} {str(p)!r}: expected a 1-D array; got shape {arr.shape}")
+    if arr.size == 0:
+        raise CliError(f"{name} {str(p)!r}: holds no numbers")
+    if arr.dtype.kind == "b":
+        arr = arr.astype(np.int64)
+    return arr
+
+
+def _text_values(text: str, what: str) -> list:
+    values: list = []
+    for number, line in enumerate(text.splitlines(), start=1):
+        line = line.split("#", 1)[0]
+        for token in re.split(r"[,\s;]+", line.strip()):
+            if token:
+                values.append(_parse_token(token, f"{what}, line {number}"))
+    return values
+
+
+def _parse_token(token: str, where: str) -> int | float:
+    t = token.replace("_", "") if "_" in token and _INT.match(token.replace("_", "")) else token
+    if _INT.match(t):
+        return int(t)
+    try:
+        return float(t)
+    except ValueError:
+        raise CliError(f"{where}: {token!r} is not a number") from None
+
+
+def _json_values(text: str, what: str) -> list:
+    try:
+        data = json.loads(text)
+    except json.JSONDecodeError as exc:
+        raise CliError(f"{what}: not valid JSON: {exc.msg} (line {exc.lineno}, column "
+                       f"{exc.colno})") from None
+    if not isinstance(data, list):
+        raise CliError(f"{what}: expected a JSON list of numbers; got {type(data).__name__}")
+    for i, v in enumerate(data):
+        if isinstance(v, bool) or not isinstance(v, (int, float)):
+            raise CliError(f"{what}: entry [{i}] is {json.dumps(v)[:40]}, not a number")
+    return data
+
+
+def to_array(values: list) -> np.ndarray:
+    """Numbers to an array: int64 if all are integers that fit, Python ints if larger, else
+    float64."""
+    if all(isinstance(v, int) for v in values):
+        if all(-(2**63) <= v < 2**63 for v in values):
+            return np.array(values, dtype=np.int64)
+        out = np.empty(len(values), dtype=object)
+        out[:] = values
+        return out
+    try:
+        return np.array([float(v) for v in values], dtype=float)
+    except OverflowError:
+        raise CliError("an integer is too large to mix with floating-point entries; "
+                       "give all entries as integers for exact arithmetic") from None
+
+
+# ----------------------------------------------------------------------------------- writing
+
+
+def format_values(arr: np.ndarray) -> list[str]:
+    """Each coefficient as text that reads back exactly (``repr`` of floats, ints in full)."""
+    if arr.dtype.kind == "f":
+        return [repr(float(v)) for v in arr]
+    if arr.dtype.kind == "c":
+        return [repr(complex(v)) for v in arr]
+    return [str(int(v)) for v in arr]
+
+
+def sequence_bytes(arr: np.ndarray, suffix: str) -> bytes:
+    """Encode a result for a file with this suffix (``.npy``, ``.txt``, ``.csv``, ``.json``)."""
+    suffix = suffix.lower()
+    if suffix == ".npy":
+        if arr.dtype == object:
+            ints = [int(v) for v in arr]
+            if ints and not all(-(2**63) <= v < 2**63 for v in ints):
+                raise CliError("the result has integers beyond 64 bits, which .npy cannot hold "
+                               "without pickles; write it to .txt, .csv or .json instead")
+            arr = np.array(ints, dtype=np.int64)
+        buf = io.BytesIO()
+        np.save(buf, arr, allow_pickle=False)
+        return buf.getvalue()
+    if suffix == ".json":
+        if arr.dtype.kind == "f":
+            if not np.all(np.isfinite(arr)):
+                raise CliError("the result holds nan or inf, which JSON cannot represent; "
+                               "write it to .txt, .csv or .npy instead")
+            return (json.dumps([float(v) for v in arr]) + "\n").encode()
+        if arr.dtype.kind == "c":
+            raise CliError("complex results cannot be written as JSON; use .npy")
+        return (json.dumps([int(v) for v in arr]) + "\n").encode()
+    if suffix in (".txt", ".csv"):
+        return ("\n".join(format_values(arr)) + "\n").encode()
+    raise CliError(f"output: unknown file type {suffix or '(none)'!r}; use one of "
+                   f"{', '.join(SEQUENCE_SUFFIXES)}")
+
+
+def atomic_write(path: str | Path, data: bytes | str) -> Path:
+    """Write ``data`` to ``path`` via a temporary file in the same folder and :func:`os.replace`.
+
+    The temporary file is removed on any error, Ctrl-C included.
+    """
+    p = Path(path)
+    folder = p.parent if str(p.parent) else Path(".")
+    if not folder.is_dir():
+        raise CliError(f"output {str(path)!r}: folder {str(folder)!r} does not exist")
+    payload = data.encode("utf-8") if isinstance(data, str) else data
+    fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=".part", dir=folder)
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(payload)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, p)
+    except BaseException:
+        with contextlib.suppress(OSError):
+            os.unlink(tmp)
+        raise
+    return p
+
+
+class ReportFolder:
+    """Build a folder of outputs in a temporary sibling, then move it into place.
+
+    Use as a context manager; files are added with :meth:`write_text`, :meth:`write_bytes` or by
+    writing to :meth:`path`.  Leaving the block normally commits; an exception (or Ctrl-C)
+    removes the temporary folder and leaves the target as it was.
+
+    Parameters
+    ----------
+    target : str or Path
+        The folder to create or update.
+    """
+
+    def __init__(self, target: str | Path):
+        self.target = Path(target)
+        self.staging: Path | None = None
+        self.files: list[str] = []
+
+    def __enter__(self) -> ReportFolder:
+        parent = self.target.parent if str(self.target.parent) else Path(".")
+        if self.target.exists() and not self.target.is_dir():
+            raise CliError(f"output {str(self.target)!r} exists and is not a folder")
+        if not parent.is_dir():
+            raise CliError(f"output {str(self.target)!r}: folder {str(parent)!r} does not exist")
+        try:
+            self.staging = Path(tempfile.mkdtemp(prefix=f".{self.target.name}.", suffix=".part",
+                                                 dir=parent))
+        except OSError as exc:
+            raise CliError(f"output {str(self.target)!r}: cannot create files in "
+                           f"{str(parent)!r}: {exc.strerror or exc}") from None
+        return self
+
+    def path(self, name: str) -> Path:
+        """Where to write the file ``name`` (inside the staging folder); records it."""
+        assert self.staging is not None
+        if name not in self.files:
+            self.files.append(name)
+        return self.staging / name
+
+    def write_text(self, name: str, text: str) -> None:
+        """Add a UTF-8 text file."""
+        self.path(name).write_text(text, encoding="utf-8")
+
+    def write_bytes(self, name: str, data: bytes) -> None:
+        """Add a binary file."""
+        self.path(name).write_bytes(data)
+
+    def __exit__(self, exc_type, exc, tb) -> None:
+        assert self.staging is not None
+        try:
+            if exc_type is None:
+                self._commit()
+        finally:
+            if self.staging.exists():
+                shutil.rmtree(self.staging, ignore_errors=True)
+
+    def _commit(self) -> None:
+        assert self.staging is not None
+        for name in list(self.files):
+            if not (self.staging / name).exists():
+                self.files.remove(name)
+        if not self.target.exists():
+            try:
+                os.rename(self.staging, self.target)
+                return
+            except OSError:  # lost a race with another writer: fall back to file by file
+                self.target.mkdir(parents=False, exist_ok=True)
+        for name in self.files:
+            os.replace(self.staging / name, self.target / name)
