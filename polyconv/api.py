@@ -7,6 +7,7 @@ shapes its full (or truncated) product into the requested mode, dtype and axis.
 from __future__ import annotations
 
 import dataclasses
+import sys
 
 import numpy as np
 
@@ -94,10 +95,12 @@ def convolve(a, b, *, mode: str = "full", method: str = "auto", modulus: int | N
 
     Returns
     -------
-    numpy.ndarray
-        Floats give float64 or complex128 (float32/complex64 stay single precision).  Integers
-        give the exact product: int64 when a bound proves that every coefficient fits, otherwise
-        an object array of Python ints; with ``modulus``, int64 when the modulus fits.
+    numpy.ndarray or dask.array.Array
+        A dask array in (for the long operand) gives a lazy dask array out (see
+        :func:`polyconv.dask_backend.convolve_dask`).  Floats give float64 or complex128
+        (float32/complex64 stay single precision).  Integers give the exact product: int64
+        when a bound proves that every coefficient fits, otherwise an object array of Python
+        ints; with ``modulus``, int64 when the modulus fits.
 
     Notes
     -----
@@ -118,12 +121,31 @@ def convolve(a, b, *, mode: str = "full", method: str = "auto", modulus: int | N
     >>> polyconv.convolve([1.0, 2.0, 3.0], [0.0, 1.0, 0.5])
     array([0. , 1. , 2.5, 4. , 1.5])
     """
+    if _is_dask_array(a) or _is_dask_array(b):
+        return _convolve_dask(a, b, mode, method, modulus, length, axis)
     pair, x, y, trunc, the_plan = _prepare(a, b, mode, method, modulus, length, axis)
     if 0 in pair.batch_shape:
         full = shaping.empty_result(the_plan, pair.kind, x, y)
     else:
         full = run(the_plan, x, y)
     return shaping.finish(full, the_plan, pair.axis, trunc)
+
+
+def _is_dask_array(x) -> bool:
+    """True for a dask array; never imports dask (if it is not loaded, ``x`` cannot be one)."""
+    dask_array = sys.modules.get("dask.array")
+    return dask_array is not None and isinstance(x, dask_array.Array)
+
+
+def _convolve_dask(a, b, mode, method, modulus, length, axis):
+    """A lazy dask result: the dask operand is the long one, the other the kernel."""
+    if method != "auto" or length is not None or axis not in (-1, 0):
+        raise ValueError("with a dask array, convolve supports mode= and modulus= only "
+                         "(1-D operands, method='auto', no length=)")
+    from .dask_backend import convolve_dask  # the optional back end, loaded on first use
+
+    long, kernel = (a, b) if _is_dask_array(a) else (b, a)  # every mode is symmetric
+    return convolve_dask(long, kernel, mode=mode, modulus=modulus)
 
 
 def run(the_plan: Plan, x: np.ndarray, y: np.ndarray) -> np.ndarray:

@@ -86,7 +86,8 @@ def run_exact(the_plan: Plan, x: np.ndarray, y: np.ndarray) -> np.ndarray:
 def _finish_row(row: np.ndarray, the_plan: Plan, dtype) -> np.ndarray:
     m = the_plan.modulus
     if m is not None and not _reduced_by_engine(the_plan.engine):
-        row = np.mod(row if row.dtype != np.uint64 else row.astype(object), m)
+        fits = row.dtype == np.int64 and m < INT64_LIMIT
+        row = np.mod(row if fits else row.astype(object), m)
     if row.dtype != dtype:
         row = row.astype(dtype)
     return row

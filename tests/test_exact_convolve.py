@@ -259,3 +259,12 @@ def test_hypothesis_modular_agrees_with_exact(a, b, m):
     # reference: the exact product reduced mod m (python-flint fmpz_poly)
     got = _as_ints(polyconv.convolve(np.array(a), np.array(b), modulus=m))
     assert got == [v % m for v in _flint_product(a, b)]
+
+
+@pytest.mark.parametrize("modulus", [2**63, 2**63 + 1, 2**64, 2**100 + 277])
+def test_moduli_at_and_above_two_to_the_63(modulus):
+    # reference: Python integer arithmetic on the flint product (an int64 product reduced by a
+    # modulus beyond int64 once overflowed here)
+    a, b = np.array([3, 5, 2**62]), np.array([7, -1])
+    got = polyconv.convolve(a, b, modulus=modulus)
+    assert _as_ints(got) == [v % modulus for v in _flint_product(a, b)]
