@@ -13,7 +13,9 @@ import re
 import sys
 from pathlib import Path
 
-from .. import api
+import numpy as np
+
+from .. import api, streaming
 from .errors import CliError
 from .fileio import (
     SEQUENCE_SUFFIXES,
@@ -31,10 +33,17 @@ EXAMPLE = """examples:
   polyconv multiply a.npy b.npy -o c.npy --explain say which engine ran and why
   polyconv multiply a.txt b.txt --modulus 998244353 --length 1000
   polyconv multiply a.csv b.csv --json             plan and coefficients as JSON
+  polyconv multiply signal.npy taps.npy -o out.npy --memory-budget 512
+                                                   stream a long .npy in constant memory
 
 input files: .npy (numeric, no pickles), .txt/.csv (numbers separated by commas, spaces or
 newlines; '#' starts a comment), .json (a list of numbers).  Integers of any size are exact.
+When both inputs and the output are .npy and the longer input is larger than the memory budget,
+the product is streamed block by block (constant memory; the output appears only when complete).
 """
+
+#: default --memory-budget in MiB: inputs above it are streamed (when the formats allow)
+DEFAULT_BUDGET_MIB = 1024
 
 
 def register(sub) -> None:
@@ -63,6 +72,10 @@ def register(sub) -> None:
                    "(to stderr when the product goes to stdout)")
     p.add_argument("--json", action="store_true",
                    help="print a JSON object with the plan (and the coefficients without -o)")
+    p.add_argument("--memory-budget", metavar="MIB", type=float, default=DEFAULT_BUDGET_MIB,
+                   help="stream .npy inputs larger than this many MiB (default "
+                   f"{DEFAULT_BUDGET_MIB}); needs .npy inputs and a .npy output")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(run=run)
 
 
@@ -109,6 +122,12 @@ def _run(args) -> int:
                            f"use one of {', '.join(SEQUENCE_SUFFIXES)}")
         if out_path.is_dir():
             raise CliError(f"output {args.output!r} is a folder; give a file name")
+    if args.memory_budget <= 0:
+        raise CliError(f"--memory-budget must be a positive number of MiB; got "
+                       f"{args.memory_budget}")
+    streamed = _stream_if_large(args, out_path, modulus, length)
+    if streamed is not None:
+        return streamed
     a = read_sequence(args.a, "input a")
     b = read_sequence(args.b, "input b")
     if modulus is not None and (a.dtype.kind == "f" or b.dtype.kind == "f"):
@@ -134,6 +153,43 @@ def _run(args) -> int:
         print(f"polyconv multiply: wrote {result.size} coefficients to {out_path}")
         if args.explain:
             print(str(the_plan))
+    return 0
+
+
+def _npy_header(path: str) -> tuple[tuple, np.dtype] | None:
+    """Shape and dtype of a .npy file without reading its data (None if not a readable .npy)."""
+    if not path.lower().endswith(".npy"):
+        return None
+    try:
+        arr = np.load(path, mmap_mode="r", allow_pickle=False)
+    except (OSError, ValueError):
+        return None
+    return arr.shape, arr.dtype
+
+
+def _stream_if_large(args, out_path: Path | None, modulus, length) -> int | None:
+    """Stream the product with :func:`polyconv.streaming.convolve_file` when the longer input is
+    a 1-D .npy above the memory budget and the output is .npy; None when in memory is fine."""
+    heads = _npy_header(args.a), _npy_header(args.b)
+    if None in heads or out_path is None or out_path.suffix.lower() != ".npy":
+        return None
+    sizes = [int(np.prod(shape)) * dtype.itemsize for shape, dtype in heads]
+    if max(sizes) <= args.memory_budget * 2**20 or length is not None:
+        return None
+    if any(len(shape) != 1 for shape, _ in heads):
+        return None
+    long_path, short_path = (args.a, args.b) if sizes[0] >= sizes[1] else (args.b, args.a)
+    kernel = read_sequence(short_path, "input b" if short_path == args.b else "input a")
+    from .progress import Counter
+
+    with Counter("multiply (streaming)", args.quiet) as report:
+        streaming.convolve_file(long_path, kernel, out_path, modulus=modulus, progress=report)
+    total = sum(shape[0] for shape, _ in heads) - 1
+    if args.json:
+        print(dumps({"streamed": True, "length": total, "output": str(out_path)}))
+    else:
+        print(f"polyconv multiply: streamed {total} coefficients to {out_path} "
+              f"(input above the {args.memory_budget:g} MiB memory budget)")
     return 0
 
 

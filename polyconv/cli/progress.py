@@ -78,3 +78,35 @@ def track(items: Iterable[T], desc: str, quiet: bool, total: int | None = None) 
                             dynamic_ncols=True)
             return
     yield from items
+
+
+class Counter:
+    """A bar over a count of items, fed by a ``callback(done, total)`` (streaming progress).
+
+    ``with Counter("multiply", quiet) as report: convolve_file(..., progress=report)``.
+    """
+
+    def __init__(self, desc: str, quiet: bool, unit: str = "sample"):
+        self._bar = None
+        self._enabled = bars_enabled(quiet)
+        self._desc, self._unit = desc, unit
+
+    def __enter__(self) -> Counter:
+        return self
+
+    def __call__(self, done: int, total: int) -> None:
+        if not self._enabled:
+            return
+        if self._bar is None:
+            try:
+                from tqdm import tqdm
+            except ImportError:
+                self._enabled = False
+                return
+            self._bar = tqdm(total=total, desc=self._desc, file=sys.stderr, leave=False,
+                             unit=self._unit, unit_scale=True, dynamic_ncols=True)
+        self._bar.update(done - self._bar.n)
+
+    def __exit__(self, exc_type, exc, tb) -> None:
+        if self._bar is not None:
+            self._bar.close()
