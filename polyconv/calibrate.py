@@ -84,13 +84,21 @@ def measure(quick: bool = False, progress: Callable[[str], None] | None = None) 
     rows, times = [], []
     sizes = [(8, 8), (32, 32), (64, 64), (128, 128), (256, 256), (512, 512), (1024, 1024),
              (4096, 8), (4096, 32), (16384, 64), (65536, 16), (65536, 128), (2000, 300),
-             (2**22, 16), (2**22, 64), (2**20, 128)]
+             (2**19, 16), (2**20, 128), (2**22, 16), (2**22, 64)]
+    large = []
     for n1, n2 in sizes[: 9 if quick else None]:
         x, y = rng.standard_normal(n1), rng.standard_normal(n2)
-        times.append(best_time(lambda x=x, y=y: convolve_direct(x, y), budget))
+        t = best_time(lambda x=x, y=y: convolve_direct(x, y), budget)
+        if n1 + n2 >= planning.LARGE_ARRAY:
+            large.append((n1, n2, t))
+            continue
+        times.append(t)
         rows.append([1.0, n1 * n2, n1 + n2])
     c0, cmac, cout = _fit_relative(rows, times)
-    table["direct"] = {"overhead": c0, "per_mac": cmac, "per_output": cout}
+    # large arrays: same multiply-add cost, a per-output cost fitted on them alone
+    per_large = [max(t - c0 - cmac * n1 * n2, 0.0) / (n1 + n2) for n1, n2, t in large]
+    table["direct"] = {"overhead": c0, "per_mac": cmac, "per_output": cout,
+                       "per_output_large": float(np.median(per_large)) if per_large else cout}
 
     say("direct engine, batched")
     rows, times = [], []
@@ -139,10 +147,11 @@ def measure(quick: bool = False, progress: Callable[[str], None] | None = None) 
     rows, times = [], []
     configs = [(2**12, 16, 128), (2**16, 16, 128), (2**16, 64, 512), (2**14, 128, 1024),
                (2**18, 128, 1024), (2**16, 256, 2048), (2**16, 512, 4096), (2**18, 64, 8192),
-               (2**16, 1024, 16384)]
+               (2**16, 1024, 16384), (2**19, 64, 1024)]
     if not quick:
         configs += [(2**20, 32, 256), (2**20, 256, 4096), (2**20, 2048, 16384),
-                    (2**22, 32, 512), (2**22, 128, 1024), (2**22, 512, 4096)]
+                    (2**22, 32, 512), (2**22, 128, 1024), (2**22, 512, 4096),
+                    (2**22, 2048, 16384)]
     for n_long, m, n_fft in configs:
         x, y = rng.standard_normal(n_long), rng.standard_normal(m)
         t = best_time(lambda x=x, y=y, n=n_fft: convolve_overlap_add(x, y, n, 1), budget)
@@ -150,9 +159,9 @@ def measure(quick: bool = False, progress: Callable[[str], None] | None = None) 
         transforms = planning.fft_rate(table, n_fft) * n_fft * math.log2(n_fft) * (2 * blocks
                                                                                    + 1) / 3
         times.append(max(t - transforms, 0.05 * t))
-        rows.append([1.0, blocks * n_fft])
-    c0, cpt = _fit_relative(rows, times)
-    table["overlap_add"] = {"overhead": c0, "per_point": cpt}
+        rows.append([1.0, blocks * n_fft, n_long if n_long >= planning.LARGE_ARRAY else 0.0])
+    c0, cpt, cbig = _fit_relative(rows, times)
+    table["overlap_add"] = {"overhead": c0, "per_point": cpt, "per_sample_large": cbig}
     table["exact"] = measure_exact(table, quick, best_time, _fit_relative, say)
     say("done")
     return table

@@ -11,8 +11,11 @@ Cost formulas (constants from the table; ``lg = log2``)
 * direct, batched: ``t = c0 + m (c_step + c_elem B n)`` (``m`` shift-and-add passes over ``B n``)
 * fft:             ``t = c0 + r(N) N lg N w``, ``w`` = transforms relative to one 1-D product
                    (batch sizes, 2x for complex), ``r`` interpolated from a table measured per lg N
-* overlap-add:     ``t = c0 + r(N) N lg N (2 q B + 1) / 3 + c_pt q N B`` for ``q`` blocks of
-                   transform length ``N``; the block length minimising ``t`` is chosen.
+* overlap-add:     ``t = c0 + r(N) N lg N (2 q B + 1) / 3 + c_pt q N B (+ c_big n B)`` for
+                   ``q`` blocks of transform length ``N``; the block length minimising ``t`` is
+                   chosen; one thread (each group of blocks is too small to split).
+* arrays of ``LARGE_ARRAY`` entries and more pay a per-sample memory term (direct: the
+  per-output constant is fitted on large arrays separately).
 """
 
 from __future__ import annotations
@@ -219,11 +222,17 @@ def thread_speedup(costs: dict, points: int, threads: int, batched: bool) -> flo
     return t["speedup_batch"] if batched else t["speedup_1d"]
 
 
+#: Arrays from this many entries on (2 MiB of float64) no longer fit in the CPU cache: the direct
+#: and overlap-add engines then pay memory traffic per sample, fitted separately.
+LARGE_ARRAY = 2**18
+
+
 def predict_direct(costs: dict, n1: int, n2: int, batch: int) -> float:
     """Seconds for the direct engine."""
     if batch == 1:
         c = costs["direct"]
-        return c["overhead"] + c["per_mac"] * n1 * n2 + c["per_output"] * (n1 + n2)
+        per_output = c["per_output_large"] if n1 + n2 >= LARGE_ARRAY else c["per_output"]
+        return c["overhead"] + c["per_mac"] * n1 * n2 + per_output * (n1 + n2)
     c = costs["direct_batch"]
     return c["overhead"] + min(n1, n2) * (c["per_step"] + c["per_element"] * batch * max(n1, n2))
 
@@ -243,9 +252,9 @@ def predict_overlap_add(costs: dict, n: int, m: int, n_fft: int, batch: int, com
     block = n_fft - m + 1
     blocks = -(-n // block)
     transforms = (2 * blocks * batch + 1) / 3 * complex_factor
-    speed = thread_speedup(costs, blocks * batch * n_fft, threads, batched=True)
-    return (c["overhead"] + fft_rate(costs, n_fft) * n_fft * math.log2(n_fft) * transforms / speed
-            + c["per_point"] * blocks * n_fft * batch)
+    big = c["per_sample_large"] * n * batch if n * batch >= LARGE_ARRAY else 0.0
+    return (c["overhead"] + fft_rate(costs, n_fft) * n_fft * math.log2(n_fft) * transforms
+            + c["per_point"] * blocks * n_fft * batch + big)
 
 
 def best_overlap_add(costs: dict, n: int, m: int, batch: int, complex_factor: float,
@@ -382,11 +391,7 @@ def _choose_cached(generation: int, kind: str, n1: int, n2: int, batch_a: tuple,
                                                    batched) > 1 else 1
     elif engine == "overlap-add":
         transform = oa[1]
-        block = transform - min(n1, n2) + 1
-        n_long = max(n1, n2)
-        blocks = -(-n_long // block)
-        engine_threads = threads if thread_speedup(costs, blocks * transform * max(b_a, b_b),
-                                                   threads, True) > 1 else 1
+        block = transform - min(n1, n2) + 1  # one thread: a group's transform is too small to split
     return Plan(engine, False, "none", math.inf, options[engine], reason,
                 transform_length=transform, block_length=block, threads=engine_threads,
                 alternatives=ranked, **common)
