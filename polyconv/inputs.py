@@ -89,14 +89,15 @@ def _object_kind(arr: np.ndarray, name: str) -> str:
     flat = arr.ravel()
     if flat.size == 0:
         return "real"
-    if all(isinstance(v, numbers.Integral) for v in flat):
+    kinds = set(map(type, flat))  # a few distinct types: classify those, not every entry
+    if all(issubclass(t, numbers.Integral) for t in kinds):
         return "bigint"
-    if all(isinstance(v, numbers.Real) for v in flat):
+    if all(issubclass(t, numbers.Real) for t in kinds):
         return "real"
-    if all(isinstance(v, numbers.Complex) for v in flat):
+    if all(issubclass(t, numbers.Complex) for t in kinds):
         return "complex"
-    bad = next(v for v in flat if not isinstance(v, numbers.Complex))
-    raise TypeError(f"{name} must hold numbers; found an entry of type {type(bad).__name__}")
+    bad = next(t for t in kinds if not issubclass(t, numbers.Complex))
+    raise TypeError(f"{name} must hold numbers; found an entry of type {bad.__name__}")
 
 
 _KIND_RANK = {"integer": 0, "bigint": 1, "real": 2, "complex": 3}

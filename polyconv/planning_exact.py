@@ -118,7 +118,12 @@ def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch:
     certificates["direct-exact"] = "construction"
     notes["direct-exact"] = "exact schoolbook sums"
 
-    # float FFT with rounding, certified by the bound or by a check
+    # float FFT with rounding, certified by the bound or by a check.  Mode "valid" keeps only
+    # entries that a circular product of length >= max(n1, n2) gets right (the middle product):
+    # bound-certified transform engines use that shorter length.
+    circular = mode == "valid"
+    if circular:
+        n_pow2 = power_of_two_at_least(max(n1, n2))
     float_cost = fft_rate(table, n_pow2) * n_pow2 * math.log2(max(n_pow2, 2))
     if bound < FLOAT_EXACT_LIMIT:
         err = bounds.fft_error_bound(facts.norm_a, facts.norm_b, n_pow2) \
@@ -126,7 +131,7 @@ def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch:
         if err < 0.5:
             certificates["fft-exact"] = "bound"
             notes["fft-exact"] = f"float FFT error bound {err:.3g} < 1/2 (Percival 2003)"
-        elif err < CHECK_BOUND_LIMIT:
+        elif err < CHECK_BOUND_LIMIT and not circular:  # the check needs the full product
             certificates["fft-exact"] = "check"
             notes["fft-exact"] = (f"float FFT error bound {err:.3g} >= 1/2: rounded result "
                                   "accepted only if a random-evaluation check passes")
@@ -135,7 +140,8 @@ def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch:
                 "fft-exact"] == "check" else 0.0
             options["fft-exact"] = (c["rounded"]["overhead"] + rows * (
                 float_cost * c["rounded"]["scale"] + c["rounded"]["per_point"] * n_pow2 + check))
-            details["fft-exact"] = {"transform_length": n_pow2, "error_bound": err}
+            details["fft-exact"] = {"transform_length": n_pow2, "error_bound": err,
+                                    "circular": circular}
 
     # limb split of float FFTs, certified by the bound; with a modulus the residues are centred
     # and the limb products recombined modulo m in int64 (moduli below 2^31, or odd below 2^62)
@@ -160,7 +166,7 @@ def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch:
         certificates["limbs"] = "bound"
         notes["limbs"] = f"{ka}+{kb} limbs of {bits} bits, each limb product certified < 1/2"
         details["limbs"] = {"transform_length": n_pow2, "limb_bits": bits, "limbs_a": ka,
-                            "limbs_b": kb}
+                            "limbs_b": kb, "circular": circular}
 
     # Kronecker substitution through GMP
     options["kronecker"] = c["kronecker"]["overhead"] + rows * kronecker_seconds(
@@ -168,13 +174,14 @@ def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch:
     certificates["kronecker"] = "construction"
     notes["kronecker"] = f"one GMP product with {slot_bits}-bit slots"
 
-    # number-theoretic transform modulo an NTT prime
-    if m is not None and m in PRIMES and n_pow2 <= (1 << PRIMES[m][1]):
-        options["ntt"] = c["ntt"]["overhead"] + rows * c["ntt"]["per_nlogn"] * n_pow2 * max(
-            1, math.log2(n_pow2))
+    # number-theoretic transform modulo an NTT prime (always the full length)
+    n_full = power_of_two_at_least(full)
+    if m is not None and m in PRIMES and n_full <= (1 << PRIMES[m][1]):
+        options["ntt"] = c["ntt"]["overhead"] + rows * c["ntt"]["per_nlogn"] * n_full * max(
+            1, math.log2(n_full))
         certificates["ntt"] = "construction"
         notes["ntt"] = f"NTT modulo the prime {m}"
-        details["ntt"] = {"transform_length": n_pow2}
+        details["ntt"] = {"transform_length": n_full}
 
     ranked = tuple(sorted(options.items(), key=lambda kv: kv[1]))
     if method == "auto":

@@ -68,8 +68,13 @@ def _largest_row_norm(x: np.ndarray) -> float:
 
 def run_exact(the_plan: Plan, x: np.ndarray, y: np.ndarray) -> np.ndarray:
     """The plan's exact product (full, or its first ``keep`` entries) for every batch row."""
-    keep = the_plan.output_length if the_plan.mode == "full" else None
     n1, n2 = the_plan.lengths
+    if the_plan.mode == "full":
+        keep = the_plan.output_length
+    elif the_plan.setting("circular"):
+        keep = max(n1, n2)  # a circular product of this length; "valid" reads only its tail
+    else:
+        keep = None
     dtype = np.int64 if the_plan.output_int64 else object
     if x.ndim == 1 and y.ndim == 1:
         return _finish_row(_product_row(the_plan, x, y, keep), the_plan, dtype)

@@ -268,3 +268,25 @@ def test_moduli_at_and_above_two_to_the_63(modulus):
     a, b = np.array([3, 5, 2**62]), np.array([7, -1])
     got = polyconv.convolve(a, b, modulus=modulus)
     assert _as_ints(got) == [v % modulus for v in _flint_product(a, b)]
+
+
+@pytest.mark.parametrize("method", ["auto", "fft-exact", "limbs", "kronecker", "direct-exact"])
+@pytest.mark.parametrize("modulus", [None, 998244353])
+def test_valid_mode_middle_product(method, modulus):
+    # reference: python-flint fmpz_poly product, sliced as numpy.convolve's "valid" mode
+    rng = np.random.default_rng(12)
+    a, b = rng.integers(-2**10, 2**10, 3000), rng.integers(-2**10, 2**10, 1000)
+    if method == "limbs" and modulus is None:
+        a, b = a * 2**22, b * 2**20
+    try:
+        the_plan = polyconv.plan(a, b, mode="valid", method=method, modulus=modulus)
+    except ValueError:
+        pytest.skip(f"{method} not applicable here")
+    got = polyconv.convolve(a, b, mode="valid", method=method, modulus=modulus)
+    full = _flint_product(a, b)
+    want = full[999:3000]
+    if modulus is not None:
+        want = [v % modulus for v in want]
+    assert _as_ints(got) == want
+    if method in ("fft-exact", "limbs"):
+        assert the_plan.transform_length == 4096  # circular: max(n1, n2) suffices
