@@ -34,6 +34,7 @@ from __future__ import annotations
 import math
 import random
 from fractions import Fraction
+from functools import lru_cache
 
 import numpy as np
 
@@ -50,6 +51,7 @@ def _round_up(q: Fraction) -> float:
     return f if Fraction(f) >= q else math.nextafter(f, math.inf)
 
 
+@lru_cache(maxsize=256)
 def fft_error_factor(n_fft: int, beta: Fraction = TWIDDLE_ERROR) -> float:
     """``(1+eps)^(3n) (1+sqrt5 eps)^(3n+1) (1+beta)^(3n) - 1`` for ``n = ceil(log2 n_fft)``,
     evaluated exactly and rounded up."""
@@ -76,8 +78,11 @@ def fft_error_bound(norm2_a: float, norm2_b: float, n_fft: int,
     float
         Percival's bound (module notes), rounded upward.
     """
-    product = Fraction(norm2_a) * Fraction(norm2_b) * Fraction(fft_error_factor(n_fft, beta))
-    return _round_up(product)
+    # three floats multiplied with two roundings, each at most half an ulp: stepping up one ulp
+    # after each multiplication keeps the result an upper bound of the exact product
+    up = math.inf
+    return math.nextafter(math.nextafter(float(norm2_a) * float(norm2_b), up)
+                          * fft_error_factor(n_fft, beta), up)
 
 
 def mixed_radix_levels_length(n_fft: int) -> int:
@@ -129,7 +134,7 @@ def limb_error_bound(limb_bits: int, limbs_a: int, limbs_b: int, n1: int, n2: in
     digit = 2.0 ** (limb_bits - 1)
     single = fft_error_bound(digit * math.sqrt(n1) * (1 + 2**-50),
                              digit * math.sqrt(n2) * (1 + 2**-50), n_fft)
-    return _round_up(Fraction(single) * k * (2 if k > 1 else 1))
+    return math.nextafter(single * k * (2 if k > 1 else 1), math.inf)  # one rounding, stepped up
 
 
 def choose_limbs(max_a: int, max_b: int, n1: int, n2: int, n_fft: int,
@@ -176,19 +181,15 @@ def product_bits(a: np.ndarray, b: np.ndarray) -> int:
 def norm2_upper(x: np.ndarray) -> float:
     """An upper bound of ``||x||_2`` in float64.
 
-    Integers up to ``2^26`` in magnitude with fewer than ``2^11`` entries sum their squares
-    exactly in int64; otherwise a float64 dot product is inflated by ``gamma_(n+2)`` (Higham,
-    *Accuracy and Stability of Numerical Algorithms*, 2nd ed., section 3.1: a sum of n products
-    has relative error at most ``n eps / (1 - n eps)``; the ``+2`` covers rounding the entries to
-    float and the square root).
+    The entries are rounded to float64 and squared and summed in float64; the result is inflated
+    by ``gamma_(n+2)``: a sum of ``n`` products has relative error at most ``n u / (1 - n u)``
+    (Higham, *Accuracy and Stability of Numerical Algorithms*, 2nd ed., section 3.1), and the
+    ``+2`` covers rounding the entries to float and the square root.  Plain numpy reductions
+    (no BLAS call: a threaded BLAS right before FFTs slowed them here).
     """
     n = x.shape[0]
-    if x.dtype.kind in "iub" and bit_length_max(x) <= 26 and n < 2**11:
-        exact = int(np.dot(x.astype(np.int64), x.astype(np.int64)))
-        return _round_up(Fraction(math.isqrt(exact) + (0 if math.isqrt(exact) ** 2 == exact
-                                                        else 1)))
     xf = x.astype(np.float64)
-    total = float(np.sum(xf * xf))
+    total = float(np.add.reduce(xf * xf))
     gamma = (n + 2) * 2.0**-53 / (1 - (n + 2) * 2.0**-53)
     return math.nextafter(math.sqrt(total * (1 + 2 * gamma)), math.inf)
 

@@ -108,8 +108,12 @@ def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch:
     certificates: dict[str, str] = {}
     notes: dict[str, str] = {}
 
-    # direct summation (numpy int64 when the bound allows, Python ints otherwise)
-    if fits_int64:
+    # direct summation (numpy int64 when the bound allows, three int64 half-word products for a
+    # modulus below 2^31, Python ints otherwise)
+    if facts.modulus is not None and facts.modulus < 2**31 and not fits_int64:
+        options["direct-exact"] = 3 * (c["direct_int64"]["overhead"] + c["direct_int64"][
+            "per_mac"] * n1 * n2 * rows)
+    elif fits_int64:
         options["direct-exact"] = c["direct_int64"]["overhead"] + c["direct_int64"][
             "per_mac"] * n1 * n2 * rows
     else:

@@ -14,12 +14,21 @@ import math
 import numpy as np
 
 from . import bounds
-from .engines.exact_direct import convolve_exact_direct
+from .engines.exact_direct import (
+    SMALL_MODULUS_LIMIT,
+    convolve_exact_direct,
+    convolve_exact_direct_mod,
+)
 from .engines.exact_fft import convolve_limbs, convolve_limbs_mod, convolve_rounded
 from .engines.kronecker import convolve_kronecker, convolve_kronecker_mod, reduce_operand
 from .engines.ntt import convolve_ntt_mod_prime
 from .planning import Plan
 from .planning_exact import FLOAT_EXACT_LIMIT, INT64_LIMIT, IntegerFacts
+
+#: Below this many multiply-adds direct int64 summation (a few microseconds) beats any transform,
+#: so the norms that a float-FFT certificate needs are not computed (measured here: the rounded
+#: FFT costs at least ~15 us).
+NORM_MIN_WORK = 2**14
 
 
 def normalise_integers(x: np.ndarray, modulus: int | None) -> np.ndarray:
@@ -51,13 +60,32 @@ def _objects_as_ints(x: np.ndarray) -> np.ndarray:
 
 
 def integer_facts(x: np.ndarray, y: np.ndarray, modulus: int | None) -> IntegerFacts:
-    """Lengths, magnitudes and (when a float product could be exact) norm bounds."""
-    max_a, max_b = bounds.max_abs(x), bounds.max_abs(y)
+    """Lengths, magnitudes and (when a float product could be exact) norm bounds.
+
+    Magnitudes are rounded up to ``2^bits - 1`` and norms up to a sixteenth of an octave: every
+    decision taken from them stays conservative, and operands of similar size share one cached
+    plan instead of re-planning per call.
+    """
+    max_a, max_b = _round_magnitude(bounds.max_abs(x)), _round_magnitude(bounds.max_abs(y))
     n1, n2 = x.shape[-1], y.shape[-1]
     norm_a = norm_b = math.inf
-    if min(n1, n2) * max_a * max_b < FLOAT_EXACT_LIMIT:
-        norm_a, norm_b = _largest_row_norm(x), _largest_row_norm(y)
+    if n1 * n2 >= NORM_MIN_WORK and min(n1, n2) * max_a * max_b < FLOAT_EXACT_LIMIT:
+        norm_a = _round_norm(_largest_row_norm(x))
+        norm_b = _round_norm(_largest_row_norm(y))
     return IntegerFacts(n1, n2, max_a, max_b, norm_a, norm_b, modulus)
+
+
+def _round_magnitude(value: int) -> int:
+    return (1 << value.bit_length()) - 1
+
+
+def _round_norm(norm: float) -> float:
+    """The smallest ``2^(j/16) >= norm`` (0 stays 0)."""
+    if norm <= 0.0:
+        return 0.0
+    j = math.ceil(math.log2(norm) * 16)
+    value = 2.0 ** (j / 16)
+    return value if value >= norm else 2.0 ** ((j + 1) / 16)
 
 
 def _largest_row_norm(x: np.ndarray) -> float:
@@ -117,6 +145,8 @@ def run_engine(engine: str, the_plan: Plan, a: np.ndarray, b: np.ndarray,
     """One exact engine on one pair of 1-D rows, as the plan parametrises it."""
     product_int64 = the_plan.setting("product_int64", False)
     m = the_plan.modulus
+    if engine == "direct-exact" and m is not None and m < SMALL_MODULUS_LIMIT:
+        return convolve_exact_direct_mod(a.astype(np.int64), b.astype(np.int64), m, keep)
     if engine == "direct-exact":
         return convolve_exact_direct(a, b, keep)
     if engine == "fft-exact":

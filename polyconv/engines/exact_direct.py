@@ -39,3 +39,40 @@ def convolve_exact_direct(a: np.ndarray, b: np.ndarray, keep: int | None = None)
     else:
         out = convolve_direct(_intpack.to_objects(a), _intpack.to_objects(b))
     return out if keep is None else out[:keep]
+
+
+SMALL_MODULUS_LIMIT = 2**31
+_LOW16 = np.int64(0xFFFF)
+
+
+def convolve_exact_direct_mod(a: np.ndarray, b: np.ndarray, modulus: int,
+                              keep: int | None = None) -> np.ndarray:
+    """Schoolbook product modulo ``m < 2^31`` in int64, by 16-bit halves and Karatsuba.
+
+    With residues ``x = x0 + 2^16 x1`` (``0 <= x0, x1 < 2^16``), the three int64 convolutions
+    ``c00 = a0 * b0``, ``c11 = a1 * b1`` and ``(a0 + a1) * (b0 + b1) - c00 - c11`` have terms
+    below ``2^34``, so their sums cannot overflow for lengths below ``2^29`` (Karatsuba & Ofman
+    1962, applied to the coefficients); ``c = c00 + 2^16 c01 + 2^32 c11`` is then reduced with
+    products below ``2^62``.
+
+    Parameters
+    ----------
+    a, b : numpy.ndarray
+        1-D int64 residues in ``[0, m)``.
+    modulus : int
+        ``2 <= m < 2^31``.
+    keep : int, optional
+        Return only the first ``keep`` coefficients.
+    """
+    if keep is not None:
+        a, b = a[:keep], b[:keep]
+    a0, a1 = a & _LOW16, a >> 16
+    b0, b1 = b & _LOW16, b >> 16
+    low = np.convolve(a0, b0)
+    high = np.convolve(a1, b1)
+    middle = np.convolve(a0 + a1, b0 + b1) - low - high
+    m = np.int64(modulus)
+    out = np.mod(low, m)
+    out = np.mod(out + np.mod(middle, m) * np.int64(1 << 16), m)
+    out = np.mod(out + np.mod(high, m) * np.int64(pow(2, 32, modulus)), m)
+    return out if keep is None else out[:keep]
