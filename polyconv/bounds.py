@@ -36,6 +36,7 @@ import random
 from fractions import Fraction
 from functools import lru_cache
 
+import gmpy2
 import numpy as np
 
 EPS = Fraction(1, 2**53)
@@ -209,26 +210,43 @@ def modular_rescue(approx: np.ndarray, residues: np.ndarray, p: int) -> np.ndarr
     return r + k * np.int64(p)
 
 
-#: The Mersenne prime ``2^31 - 1``: products of two residues fit in uint64.
-CHECK_PRIME = 2**31 - 1
+#: The check prime: the largest prime below ``2^28``.  Residues below it have products below
+#: ``2^56``, so 128 of them add up in uint64 before any reduction.
+CHECK_PRIME = int(gmpy2.prev_prime(2**28))
+#: False-pass odds the check is run to: at most ``2^-CHECK_SECURITY_BITS``.
+CHECK_SECURITY_BITS = 40
+_BLOCK = 128
 
 
-def random_evaluation_check(a: np.ndarray, b: np.ndarray, c: np.ndarray, trials: int = 3,
-                            rng: random.Random | None = None) -> bool:
-    """Schwartz-Zippel test of ``c == a * b`` at random points modulo ``q = 2^31 - 1``.
+def check_trials(degree: int) -> int:
+    """Trials for false-pass odds ``(degree / q)^trials <= 2^-40``."""
+    per_trial = math.log2(CHECK_PRIME / max(degree, 1))
+    return max(1, math.ceil(CHECK_SECURITY_BITS / per_trial))
+
+
+def random_evaluation_check(a: np.ndarray, b: np.ndarray, c: np.ndarray,
+                            trials: int | None = None, rng: random.Random | None = None) -> bool:
+    """Schwartz-Zippel test of ``c == a * b`` at random points modulo a prime ``q < 2^28``.
 
     Each trial draws ``t`` uniformly in ``[0, q)`` and compares ``a(t) b(t)`` with ``c(t)`` mod
     ``q``.  A wrong ``c`` (``a*b - c`` nonzero of degree ``d`` mod ``q``) passes one trial with
     probability ``<= d / q`` (Schwartz 1980, Zippel 1979), ``trials`` independent ones with
-    ``(d / q)^trials``.  (Differences divisible by ``q`` are invisible: for a certificate,
-    combine with a bound below ``q`` or use several moduli.)  O(n) vectorised work per trial.
+    ``(d / q)^trials``; by default enough trials for odds below ``2^-40``.  (Differences
+    divisible by ``q`` are invisible; the rounding errors this check is for are small.)
+
+    Evaluation in blocks of 128: ``x(t) = sum_j (t^128)^j sum_k x_(128 j + k) t^k``; the inner
+    sums of 128 products below ``2^56`` need no reduction, so each trial costs one
+    multiply-add per coefficient and a reduction per block.
     """
     rng = rng or random.SystemRandom()
-    ra, rb, rc = (_residues(x, CHECK_PRIME) for x in (a, b, c))
+    if trials is None:
+        trials = check_trials(max(c.shape[0], 1))
+    residues = [_residues(x, CHECK_PRIME) for x in (a, b, c)]
+    q = CHECK_PRIME
     for _ in range(trials):
-        t = rng.randrange(CHECK_PRIME)
-        lhs = _evaluate(ra, t) * _evaluate(rb, t) % CHECK_PRIME
-        if lhs != _evaluate(rc, t):
+        t = rng.randrange(q)
+        va, vb, vc = (_evaluate_blocked(r, t) for r in residues)
+        if va * vb % q != vc:
             return False
     return True
 
@@ -237,21 +255,33 @@ def _residues(x: np.ndarray, q: int) -> np.ndarray:
     if x.dtype.kind == "u":
         return x % np.uint64(q)
     if x.dtype.kind in "ib":
-        return (x.astype(np.int64) % np.int64(q)).astype(np.uint64)
+        x = x.astype(np.int64)
+        if x.size and -q < int(x.min()) and int(x.max()) < q:  # one conditional add, no division
+            return np.where(x < 0, x + np.int64(q), x).astype(np.uint64)
+        return (x % np.int64(q)).astype(np.uint64)
     return np.mod(x, q).astype(np.uint64)
 
 
-def _evaluate(residues: np.ndarray, t: int) -> int:
-    """``sum_i r_i t^i mod q`` with the powers built by doubling (uint64, no overflow)."""
+def _powers_mod(t: int, count: int) -> np.ndarray:
+    """``t^i mod q`` for ``i < count`` (uint64), by doubling the filled prefix."""
     q = np.uint64(CHECK_PRIME)
-    n = residues.shape[0]
-    powers = np.ones(n, dtype=np.uint64)
-    filled, factor = 1, t
-    while filled < n:
-        take = min(filled, n - filled)
-        powers[filled:filled + take] = powers[:take] * np.uint64(factor) % q
+    out = np.ones(count, dtype=np.uint64)
+    filled, factor = 1, t % CHECK_PRIME
+    while filled < count:
+        take = min(filled, count - filled)
+        out[filled:filled + take] = out[:take] * np.uint64(factor) % q
         filled += take
         factor = factor * factor % CHECK_PRIME
-    terms = residues * powers % q
-    return int(terms.sum(dtype=np.uint64) % q) if n < 2**32 else int(
-        sum(int(s) for s in np.add.reduceat(terms, np.arange(0, n, 2**30))) % CHECK_PRIME)
+    return out
+
+
+def _evaluate_blocked(residues: np.ndarray, t: int) -> int:
+    """``sum_i r_i t^i mod q`` (see :func:`random_evaluation_check`)."""
+    q = CHECK_PRIME
+    n = residues.shape[0]
+    rows = -(-n // _BLOCK)
+    padded = np.zeros(rows * _BLOCK, dtype=np.uint64)
+    padded[:n] = residues
+    inner = (padded.reshape(rows, _BLOCK) * _powers_mod(t, _BLOCK)).sum(axis=1) % np.uint64(q)
+    outer = inner * _powers_mod(pow(t, _BLOCK, q), rows) % np.uint64(q)
+    return int(outer.sum(dtype=np.uint64)) % q  # rows < 2^35: no overflow

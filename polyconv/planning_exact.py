@@ -29,10 +29,11 @@ from .costs import load_costs
 from .engines.ntt import PRIMES
 from .planning import EXACT_ENGINES, Plan, fft_rate, output_length
 
-#: Above this many float-FFT error-bound units, a "check" certificate is not even attempted: the
-#: measured bound/observed ratio on adversarial inputs is >= 55, so a bound below 16 leaves the
-#: expected worst error below 0.3.
-CHECK_BOUND_LIMIT = 16.0
+#: Above this float-FFT error bound a "check" certificate is not even attempted: the measured
+#: bound/observed ratio on adversarial inputs (every coefficient at +max, alternating signs) is
+#: >= 55 (bench/RESULTS.md), so below 27 even those inputs round correctly and the check passes;
+#: random inputs sit 10^3-10^4 below the bound.
+CHECK_BOUND_LIMIT = 27.0
 #: Float products are exact only for integers below 2**53.
 FLOAT_EXACT_LIMIT = 2**53
 INT64_LIMIT = 2**63
