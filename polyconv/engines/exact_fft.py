@@ -201,12 +201,16 @@ def convolve_limbs_mod(a: np.ndarray, b: np.ndarray, modulus: int, limb_bits: in
     parts = limb_parts(centered_residues(a, modulus), centered_residues(b, modulus), limb_bits,
                        limbs_a, limbs_b, n_fft, keep)
     if modulus < 2**31:
-        # each (P mod m) 2^(bj) mod m product is below 2^62: add up to two, then reduce
+        # every (P_j mod m) (2^(bj) mod m) is below 2^62 - 2^59: up to 8 of them add up in int64
+        # before the single final reduction
+        weights = np.array([pow(2, limb_bits * j, modulus) for j in range(parts.shape[0])],
+                           dtype=np.int64)
+        reduced = _float_mod(parts, modulus)
         acc = np.zeros(parts.shape[1], dtype=np.int64)
-        for j in range(parts.shape[0]):
-            weight = np.int64(pow(2, limb_bits * j, modulus))
-            acc = _float_mod(acc + _float_mod(parts[j], modulus) * weight, modulus)
-        return acc
+        for start in range(0, parts.shape[0], 8):
+            block = np.einsum("j,jk->k", weights[start:start + 8], reduced[start:start + 8])
+            acc = _float_mod(acc + block, modulus) if start else block
+        return _float_mod(acc, modulus)
     # |P| < 2^52 < m: P mod m is P or P + m
     mont = _intpack.Montgomery(modulus)
     acc = np.zeros(parts.shape[1], dtype=np.uint64)
