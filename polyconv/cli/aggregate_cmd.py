@@ -51,6 +51,7 @@ from . import laws, plots
 from .fileio import ReportFolder
 from .progress import Steps
 from .report import (
+    add_spec_report_options,
     caution,
     collect_warnings,
     distribution_csv,
@@ -60,6 +61,7 @@ from .report import (
     level_name,
     md_table,
     paragraph,
+    report_folder,
     text_table,
     wrap,
 )
@@ -105,11 +107,7 @@ def register(sub) -> None:
         epilog=EXAMPLE,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
-    p.add_argument("spec", help="the TOML spec file")
-    p.add_argument("-o", "--output", metavar="DIR", default=None,
-                   help="report folder (default: SPEC-NAME-report in the current folder)")
-    p.add_argument("--json", action="store_true", help="print the summary as JSON")
-    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    add_spec_report_options(p)
     p.set_defaults(run=run)
 
 
@@ -367,11 +365,6 @@ def json_summary(res: AggregateResult) -> dict:
             "caution": caution_lines(res)}
 
 
-def default_folder(spec_path: str) -> Path:
-    """``claims.toml`` -> ``./claims-report``."""
-    return Path(Path(spec_path).stem + "-report")
-
-
 def run(args) -> int:
     """Entry point of ``polyconv aggregate``."""
     doc = load_spec(args.spec)
@@ -379,7 +372,7 @@ def run(args) -> int:
     with Steps(4, "aggregate", args.quiet) as steps:
         res = compute(spec, steps)
         steps.step("write report")
-        folder = Path(args.output) if args.output else default_folder(args.spec)
+        folder = report_folder(args.spec, args.output)
         with ReportFolder(folder) as out:
             write_report(res, out)
     if args.json:

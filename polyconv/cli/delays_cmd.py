@@ -54,6 +54,7 @@ from . import laws, plots
 from .fileio import ReportFolder
 from .progress import Steps
 from .report import (
+    add_spec_report_options,
     caution,
     collect_warnings,
     distribution_csv,
@@ -62,6 +63,7 @@ from .report import (
     fmt_prob,
     md_table,
     paragraph,
+    report_folder,
     text_table,
     wrap,
 )
@@ -112,11 +114,7 @@ def register(sub) -> None:
         epilog=EXAMPLE,
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
-    p.add_argument("spec", help="the TOML spec file")
-    p.add_argument("-o", "--output", metavar="DIR", default=None,
-                   help="report folder (default: SPEC-NAME-report in the current folder)")
-    p.add_argument("--json", action="store_true", help="print the summary as JSON")
-    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    add_spec_report_options(p)
     p.set_defaults(run=run)
 
 
@@ -452,7 +450,7 @@ def run(args) -> int:
     with Steps(count_blocks(spec) + 2, "delays", args.quiet) as steps:
         res = compute(spec, steps)
         steps.step("write report")
-        folder = Path(args.output) if args.output else Path(Path(args.spec).stem + "-report")
+        folder = report_folder(args.spec, args.output)
         with ReportFolder(folder) as out:
             write_report(res, out)
     if args.json:

@@ -8,6 +8,7 @@ import math
 import textwrap
 import warnings
 from collections.abc import Iterator
+from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -174,3 +175,17 @@ def distribution_csv(lat: Lattice, value_name: str) -> str:
     rows += [f"{x[i]:.10g},{float(pmf[i])!r},{float(cdf[i])!r},{float(sf[i])!r}"
              for i in range(end)]
     return "\n".join(rows) + "\n"
+
+
+def add_spec_report_options(parser) -> None:
+    """The options every spec-driven report command shares: SPEC, -o DIR, --json, --quiet."""
+    parser.add_argument("spec", help="the TOML spec file")
+    parser.add_argument("-o", "--output", metavar="DIR", default=None,
+                        help="report folder (default: SPEC-NAME-report in the current folder)")
+    parser.add_argument("--json", action="store_true", help="print the summary as JSON")
+    parser.add_argument("--quiet", action="store_true", help="no progress bar")
+
+
+def report_folder(spec_path: str, output: str | None) -> Path:
+    """``-o DIR`` if given, else ``claims.toml`` -> ``./claims-report``."""
+    return Path(output) if output else Path(Path(spec_path).stem + "-report")
