@@ -27,7 +27,7 @@ import numpy as np
 from scipy import stats
 from scipy.special import logsumexp
 
-from .transform import TransformLaw
+from .transform import TransformLaw, integer_power
 
 GENERIC_TAIL = 1e-17
 """Counts beyond the point where ``P(N > n) < GENERIC_TAIL`` are dropped for a generic law (their
@@ -138,7 +138,7 @@ def _binom(m: int, p: float) -> CountsLaw:
     if not (m >= 0 and 0 <= p <= 1):
         raise ValueError(f"counts: binom needs n >= 0 and 0 <= p <= 1; got n={m!r}, p={p!r}")
     law = TransformLaw(
-        pgf=lambda z: _ipow_c(1.0 - p + p * z, m),
+        pgf=lambda z: integer_power(1.0 - p + p * z, m),
         ratio=lambda z: m * p / np.where(1.0 - p + p * z == 0, 1.0, 1.0 - p + p * z),
         log_pgf_real=lambda s: m * math.log1p(p * math.expm1(s)) if s < 700 else math.inf,
         mean=m * p,
@@ -151,18 +151,6 @@ def _binom(m: int, p: float) -> CountsLaw:
         return m * math.log(base) if base > 0 else -math.inf
 
     return CountsLaw("binom", ab, law, log_p0)
-
-
-def _ipow_c(z: np.ndarray, n: int) -> np.ndarray:
-    result = np.ones_like(z)
-    base = np.array(z, copy=True)
-    while n:
-        if n & 1:
-            result *= base
-        n >>= 1
-        if n:
-            base *= base
-    return result
 
 
 def _generic(counts, name: str) -> CountsLaw:
@@ -190,7 +178,7 @@ def _generic(counts, name: str) -> CountsLaw:
         acc = np.zeros_like(z)
         for c in pn[::-1]:
             acc = acc * z + c
-        return acc * _ipow_c(z, lo) if lo else acc
+        return acc * integer_power(z, lo) if lo else acc
 
     def log_pgf_real(s: float) -> float:
         return float(logsumexp(logp + ns * s))

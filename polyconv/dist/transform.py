@@ -61,13 +61,15 @@ def power_law(n: int) -> TransformLaw:
     ``n sqrt(5) u``: the relative errors of the factors add)."""
 
     def pgf(z):
-        return _ipow(z, n)
+        return integer_power(z, n)
 
     return TransformLaw(pgf, lambda z: n / np.where(z == 0, 1.0, z), lambda s: n * s, float(n),
                         pgf_rel=n * math.sqrt(5.0) + 2.0)
 
 
-def _ipow(z: np.ndarray, n: int) -> np.ndarray:
+def integer_power(z: np.ndarray, n: int) -> np.ndarray:
+    """``z**n`` elementwise for an integer ``n >= 0`` by repeated squaring (no log/exp, so no
+    branch-cut or overflow surprises for complex ``z``)."""
     result = np.ones_like(z)
     base = z.copy()
     while n:
