@@ -127,20 +127,23 @@ HEADER = ("| sizes | auto ms | engine chosen | auto / fftconvolve | auto / oacon
           "auto / numpy | auto / best own engine |\n|---|---|---|---|---|---|---|")
 
 
-def write_results(command: str, equal_rows: list[str], long_rows: list[str]) -> None:
+def write_results(command: str, equal_rows: list[str], long_rows: list[str],
+                  name: str = "float") -> None:
     text = RESULTS.read_text() if RESULTS.exists() else "# polyconv benchmark results\n"
-    start, end = "<!-- float:start -->", "<!-- float:end -->"
+    start, end = f"<!-- {name}:start -->", f"<!-- {name}:end -->"
+    threads = planning.configured_threads()
     section = "\n".join([
         start,
-        "## Float convolution (issue: foundation and float engine)",
+        f"## Float convolution, polyconv on {threads} thread{'s' if threads > 1 else ''}",
         "",
         f"Command: `{command}`  ",
-        f"Machine: {platform.machine()}, {planning.configured_threads()} threads usable, "
+        f"Machine: {platform.machine()}, polyconv threads: {threads}, "
         f"Python {platform.python_version()}, numpy {np.__version__}, scipy {scipy.__version__}; "
         f"{time.strftime('%Y-%m-%d')}.  ",
-        "Best of interleaved rounds; ratio < 1 means polyconv is faster.  polyconv uses two "
-        "threads for transforms above the calibrated size (scipy's calls are single-threaded "
-        "as called here).",
+        "Best of interleaved rounds; ratio < 1 means polyconv is faster.  With more than one "
+        "thread polyconv overlaps the two forward transforms above the calibrated size "
+        "(scipy's calls are single-threaded as called here); `POLYCONV_THREADS=1` gives the "
+        "single-thread table.",
         "",
         "Equal lengths:",
         "",
@@ -219,6 +222,9 @@ def main() -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("suite", choices=["float", "exact"], help="which benchmark to run")
     parser.add_argument("--quick", action="store_true", help="fewer sizes; does not write")
+    parser.add_argument("--section", default=None,
+                        help="name of the bench/RESULTS.md section to (re)write (default: the "
+                        "suite's name, with -1thread when POLYCONV_THREADS=1)")
     args = parser.parse_args()
     if args.suite == "exact":
         print(EXACT_HEADER)
@@ -234,7 +240,10 @@ def main() -> int:
     print(HEADER)
     equal_rows, long_rows = bench_float(args.quick)
     if not args.quick:
-        write_results("python bench/run.py float", equal_rows, long_rows)
+        single = planning.configured_threads() == 1
+        name = args.section or ("float-1thread" if single else "float")
+        command = ("POLYCONV_THREADS=1 " if single else "") + "python bench/run.py float"
+        write_results(command, equal_rows, long_rows, name)
         print(f"wrote {RESULTS}")
     return 0
 

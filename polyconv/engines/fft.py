@@ -16,6 +16,10 @@ import numpy as np
 from .. import transforms as tf
 
 _helper: ThreadPoolExecutor | None = None
+#: Up to this length both 1-D operands go through one batched transform call (saves a call's
+#: overhead); beyond it the stacked array no longer fits in cache and separate calls are faster
+#: (measured: 1.25x slower stacked at 2^17 points on one thread).
+STACK_LIMIT = 2**15
 
 
 def _helper_thread() -> ThreadPoolExecutor:
@@ -56,10 +60,13 @@ def convolve_fft(a: np.ndarray, b: np.ndarray, n_fft: int, keep: int, threads: i
     if dtype.kind == "c":
         return _convolve_complex(a, b, n_fft, keep, threads, dtype)
     if a.ndim == 1 and b.ndim == 1:
-        if threads >= 2:
-            job = _helper_thread().submit(_padded_spectrum, a, n_fft, dtype)
-            fb = _padded_spectrum(b, n_fft, dtype)
-            fa = job.result()
+        if threads >= 2 or n_fft > STACK_LIMIT:
+            if threads >= 2:
+                job = _helper_thread().submit(_padded_spectrum, a, n_fft, dtype)
+                fb = _padded_spectrum(b, n_fft, dtype)
+                fa = job.result()
+            else:
+                fa, fb = _padded_spectrum(a, n_fft, dtype), _padded_spectrum(b, n_fft, dtype)
             fa *= fb
             return tf.irfft(fa, n_fft, -1, 1)[:keep]
         stacked = np.zeros((2, n_fft), dtype=dtype)
