@@ -227,14 +227,16 @@ def thread_speedup(costs: dict, points: int, threads: int, batched: bool) -> flo
 LARGE_ARRAY = 2**18
 
 
-def predict_direct(costs: dict, n1: int, n2: int, batch: int) -> float:
-    """Seconds for the direct engine."""
+def predict_direct(costs: dict, n1: int, n2: int, batch: int, mac_factor: float = 1.0) -> float:
+    """Seconds for the direct engine (``mac_factor``: cost of one multiply-add relative to real
+    float64, about 4 for complex)."""
     if batch == 1:
         c = costs["direct"]
         per_output = c["per_output_large"] if n1 + n2 >= LARGE_ARRAY else c["per_output"]
-        return c["overhead"] + c["per_mac"] * n1 * n2 + per_output * (n1 + n2)
+        return c["overhead"] + mac_factor * (c["per_mac"] * n1 * n2 + per_output * (n1 + n2))
     c = costs["direct_batch"]
-    return c["overhead"] + min(n1, n2) * (c["per_step"] + c["per_element"] * batch * max(n1, n2))
+    return c["overhead"] + min(n1, n2) * (
+        c["per_step"] + mac_factor * c["per_element"] * batch * max(n1, n2))
 
 
 def predict_fft(costs: dict, n_fft: int, work: float, threads: int, batched: bool) -> float:
@@ -358,7 +360,7 @@ def _choose_cached(generation: int, kind: str, n1: int, n2: int, batch_a: tuple,
     n_fft = fast_length(need, real=kind != "complex")
     work = (b_a + b_b + b_out) / 3.0 * cfac
     options = {
-        "direct": predict_direct(costs, n1, n2, b_out) * (3.5 if cfac > 1 else 1.0),
+        "direct": predict_direct(costs, n1, n2, b_out, 4.0 if cfac > 1 else 1.0),
         "fft": predict_fft(costs, n_fft, work, threads, batched),
     }
     oa = None
