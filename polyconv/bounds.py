@@ -22,11 +22,12 @@ Assumptions for pocketfft (numpy/scipy), which is not a plain radix-2 transform:
   from an accurate sin/cos; the FFT of a unit impulse at index 1 returns the roots of unity as
   the transform produces them (table entries and the products formed on the way), and its worst
   deviation from roots computed in long double was 2.8-3.6 eps at ``N = 2^10 .. 2^21``
-  (bench/RESULTS.md, exact engines section).  We take 4 eps as the per-twiddle error: measured, not proven.
+  (bench/RESULTS.md, exact engines section).  We take 4 eps as the per-twiddle error: measured,
+  not proven.
 
 These are assumptions, not theorems about pocketfft; the measured worst errors on adversarial
-inputs stay 10-60x below the bound (bench/RESULTS.md, exact engines section), and the a-posteriori checks below
-(modular rescue, random evaluation) can back any result.
+inputs stay 55-110x below the bound (bench/RESULTS.md, exact engines section), and the
+a-posteriori checks below (modular rescue, random evaluation) can back any result.
 """
 
 from __future__ import annotations

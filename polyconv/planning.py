@@ -44,7 +44,8 @@ class Plan:
     Attributes
     ----------
     engine : str
-        The engine that will run: ``"direct"``, ``"fft"``, ``"overlap-add"``, ``"direct-exact"``.
+        The engine that will run: ``"direct"``, ``"fft"``, ``"overlap-add"`` (floats);
+        ``"direct-exact"``, ``"fft-exact"``, ``"limbs"``, ``"kronecker"``, ``"ntt"`` (integers).
     exact : bool
         True when every output coefficient is exactly the mathematical result.
     certificate : str
