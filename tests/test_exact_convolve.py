@@ -290,3 +290,14 @@ def test_valid_mode_middle_product(method, modulus):
     assert _as_ints(got) == want
     if method in ("fft-exact", "limbs"):
         assert the_plan.transform_length == 4096  # circular: max(n1, n2) suffices
+
+
+@pytest.mark.parametrize("method", ["auto", "limbs", "kronecker", "direct-exact"])
+def test_int64_extremes_every_engine(method):
+    # reference: python-flint fmpz_poly.  Found by bench/exactness_campaign.py: limb splitting
+    # overflowed int64 for coefficients within 2^(b-1) of 2^63.
+    top = 2**63 - 1
+    a = np.array([top if i % 2 == 0 else -top for i in range(37)], dtype=np.int64)
+    b = np.array([top, -top, 5, np.iinfo(np.int64).min, top], dtype=np.int64)
+    got = polyconv.convolve(a, b, method=method)
+    assert _as_ints(got) == _flint_product(a, b)

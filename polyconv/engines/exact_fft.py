@@ -82,13 +82,14 @@ def split_limbs(x: np.ndarray, limb_bits: int, n_limbs: int) -> np.ndarray:
 
 
 def _split_int64(x: np.ndarray, limb_bits: int, n_limbs: int) -> np.ndarray:
-    """:func:`split_limbs` for int64 by arithmetic shifts: ``q = (x + 2^(b-1)) >> b`` gives the
-    balanced digit ``x - q 2^b`` in ``[-2^(b-1), 2^(b-1))``; the top limb keeps the rest."""
+    """:func:`split_limbs` for int64 by arithmetic shifts: ``q = floor((x + 2^(b-1)) / 2^b)``,
+    computed as ``(x >> b) + ((x >> (b-1)) & 1)`` so that nothing overflows near ``2^63``, gives
+    the balanced digit ``x - q 2^b`` in ``[-2^(b-1), 2^(b-1))``; the top limb keeps the rest."""
     out = np.empty((n_limbs, x.shape[0]), dtype=np.float64)
-    half, shift = np.int64(1 << (limb_bits - 1)), np.int64(limb_bits)
+    shift, below, one = np.int64(limb_bits), np.int64(limb_bits - 1), np.int64(1)
     rest = x
     for j in range(n_limbs - 1):
-        quotient = (rest + half) >> shift
+        quotient = (rest >> shift) + ((rest >> below) & one)
         out[j] = rest - (quotient << shift)
         rest = quotient
     out[n_limbs - 1] = rest
