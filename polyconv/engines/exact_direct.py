@@ -72,7 +72,9 @@ def convolve_exact_direct_mod(a: np.ndarray, b: np.ndarray, modulus: int,
     high = np.convolve(a1, b1)
     middle = np.convolve(a0 + a1, b0 + b1) - low - high
     m = np.int64(modulus)
-    out = np.mod(low, m)
-    out = np.mod(out + np.mod(middle, m) * np.int64(1 << 16), m)
-    out = np.mod(out + np.mod(high, m) * np.int64(pow(2, 32, modulus)), m)
+    # low < n 2^32, (middle mod m) 2^16 < 2^47, (high mod m)(2^32 mod m) < 2^62: the sum stays
+    # below 2^63 for n < 2^29, so one final reduction suffices
+    out = low + np.mod(middle, m) * np.int64(1 << 16)
+    out += np.mod(high, m) * np.int64(pow(2, 32, modulus))
+    out = np.mod(out, m)
     return out if keep is None else out[:keep]
