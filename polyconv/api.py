@@ -31,8 +31,9 @@ def _prepare(a, b, mode, method, modulus, length, axis):
     keep = None if trunc is None else min(trunc, n1 + n2 - 1)
     planning.check_method(method)
     if pair.kind in ("integer", "bigint"):
-        x, y = run_exact.normalise_integers(x, mod), run_exact.normalise_integers(y, mod)
-        facts = run_exact.integer_facts(x, y, mod)
+        (x, max_x), (y, max_y) = (run_exact.normalise_integers(x, mod),
+                                  run_exact.normalise_integers(y, mod))
+        facts = run_exact.integer_facts(x, y, mod, max_x, max_y)
         the_plan = planning_exact.choose_exact(facts, pair.kind, pair.batch_shape, mode, method,
                                                keep)
     else:

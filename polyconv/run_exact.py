@@ -31,20 +31,24 @@ from .planning_exact import FLOAT_EXACT_LIMIT, INT64_LIMIT, IntegerFacts
 NORM_MIN_WORK = 2**14
 
 
-def normalise_integers(x: np.ndarray, modulus: int | None) -> np.ndarray:
-    """int64 / uint64 / object arrays the engines accept, reduced to ``[0, m)`` with a modulus."""
+def normalise_integers(x: np.ndarray, modulus: int | None) -> tuple[np.ndarray, int]:
+    """int64 / uint64 / object arrays the engines accept, reduced to ``[0, m)`` with a modulus,
+    and the largest magnitude (known once the extremes are: one pass serves both)."""
     kind = x.dtype.kind
     if kind == "b" or (kind in "iu" and x.dtype.itemsize < 8) or kind == "i":
         x = x.astype(np.int64, copy=False)
     elif kind == "O":
         x = _objects_as_ints(x)
-    if modulus is None:
-        return x
+    if x.size == 0:
+        return x, 0
+    lo, hi = int(x.min()), int(x.max())
+    if modulus is None or (lo >= 0 and hi < modulus):  # nothing to reduce
+        return x, max(-lo, hi)
     x = reduce_operand(x, modulus) if x.ndim == 1 else np.stack(
         [reduce_operand(row, modulus) for row in x.reshape(-1, x.shape[-1])]).reshape(x.shape)
     if x.dtype == object and modulus <= INT64_LIMIT:
         x = x.astype(np.int64)
-    return x
+    return x, modulus - 1
 
 
 def _objects_as_ints(x: np.ndarray) -> np.ndarray:
@@ -59,14 +63,16 @@ def _objects_as_ints(x: np.ndarray) -> np.ndarray:
     return out
 
 
-def integer_facts(x: np.ndarray, y: np.ndarray, modulus: int | None) -> IntegerFacts:
+def integer_facts(x: np.ndarray, y: np.ndarray, modulus: int | None,
+                  max_x: int | None = None, max_y: int | None = None) -> IntegerFacts:
     """Lengths, magnitudes and (when a float product could be exact) norm bounds.
 
     Magnitudes are rounded up to ``2^bits - 1`` and norms up to a sixteenth of an octave: every
     decision taken from them stays conservative, and operands of similar size share one cached
     plan instead of re-planning per call.
     """
-    max_a, max_b = _round_magnitude(bounds.max_abs(x)), _round_magnitude(bounds.max_abs(y))
+    max_a = _round_magnitude(bounds.max_abs(x) if max_x is None else max_x)
+    max_b = _round_magnitude(bounds.max_abs(y) if max_y is None else max_y)
     n1, n2 = x.shape[-1], y.shape[-1]
     norm_a = norm_b = math.inf
     if n1 * n2 >= NORM_MIN_WORK and min(n1, n2) * max_a * max_b < FLOAT_EXACT_LIMIT:
