@@ -72,10 +72,11 @@ def measure_exact(table: dict, quick: bool, best_time: Callable, fit: Callable,
     exact["rounded"] = {"overhead": c0, "scale": scale, "per_point": cpt}
     c0, scale, cpt = fit(limb_rows, limb_times)
     exact["limbs"] = {"overhead": c0, "scale": scale, "per_point": cpt}
-    rows, times = [], []
-    for k in range(8, 15 if quick else 17, 2):
-        n_fft = 2**k
-        for modulus in (998244353, 2**62 - 57):
+    # modular limbs, two regimes: int64 recombination (m < 2^31), Montgomery (odd m < 2^62)
+    for key, modulus in (("limbs_mod", 998244353), ("limbs_mod_wide", 2**62 - 57)):
+        rows, times = [], []
+        for k in range(8, 15 if quick else 19, 2):  # up to 2^18: out of cache, passes cost more
+            n_fft = 2**k
             x = rng.integers(0, modulus, n_fft // 2)
             params = bounds.choose_limbs(modulus // 2 + 1, modulus // 2 + 1, n_fft // 2,
                                          n_fft // 2, n_fft)
@@ -84,8 +85,8 @@ def measure_exact(table: dict, quick: bool, best_time: Callable, fit: Callable,
                 x, x, m, p[0], p[1], p[2], n), budget))
             flops = planning.fft_rate(table, n_fft) * n_fft * k
             rows.append([1.0, flops * (2 * (ka + kb) - 1) / 3, n_fft * (ka + kb)])
-    c0, scale, cpt = fit(rows, times)
-    exact["limbs_mod"] = {"overhead": c0, "scale": scale, "per_point": cpt}
+        c0, scale, cpt = fit(rows, times)
+        exact[key] = {"overhead": c0, "scale": scale, "per_point": cpt}
 
     say("GMP multiplication and Kronecker packing")
     rates = {}

@@ -165,7 +165,10 @@ def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch:
     if limbs is not None and limbs[1] + limbs[2] <= 12:
         bits, ka, kb = limbs
         transforms = (ka + kb) + (ka + kb - 1)
-        k = c["limbs_mod"] if modular_limbs else c["limbs"]
+        if modular_limbs:
+            k = c["limbs_mod"] if m < 2**31 else c.get("limbs_mod_wide", c["limbs_mod"])
+        else:
+            k = c["limbs"]
         options["limbs"] = k["overhead"] + rows * (
             float_cost * transforms / 3 * k["scale"] + k["per_point"] * n_pow2 * (ka + kb))
         certificates["limbs"] = "bound"
