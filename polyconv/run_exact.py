@@ -76,9 +76,19 @@ def integer_facts(x: np.ndarray, y: np.ndarray, modulus: int | None,
     n1, n2 = x.shape[-1], y.shape[-1]
     norm_a = norm_b = math.inf
     if n1 * n2 >= NORM_MIN_WORK and min(n1, n2) * max_a * max_b < FLOAT_EXACT_LIMIT:
-        norm_a = _round_norm(_largest_row_norm(x))
-        norm_b = _round_norm(_largest_row_norm(y))
+        # ||x||_2 <= max|x| sqrt(n): when that already certifies the full-length product, the
+        # O(n) norm passes are not needed
+        norm_a, norm_b = _crude_norm(max_a, n1), _crude_norm(max_b, n2)
+        n_fft = 1 << (n1 + n2 - 2).bit_length()
+        if bounds.fft_error_bound(norm_a, norm_b, n_fft) >= 0.5:
+            norm_a = _round_norm(_largest_row_norm(x))
+            norm_b = _round_norm(_largest_row_norm(y))
     return IntegerFacts(n1, n2, max_a, max_b, norm_a, norm_b, modulus)
+
+
+def _crude_norm(max_abs: int, n: int) -> float:
+    """An upper bound of ``||x||_2`` from ``max|x| sqrt(n)``, rounded up like the real norms."""
+    return _round_norm(math.nextafter(float(max_abs) * math.sqrt(n) * (1 + 2**-50), math.inf))
 
 
 def _round_magnitude(value: int) -> int:

@@ -17,14 +17,14 @@ carry propagation in int64 followed by one byte conversion per coefficient.
 from __future__ import annotations
 
 import numpy as np
-from scipy import fft as _sfft
 
 from .. import transforms as tf
 from . import _intpack
+from .fft import convolve_fft
 
 
 def convolve_rounded(a: np.ndarray, b: np.ndarray, n_fft: int,
-                     keep: int | None = None) -> np.ndarray:
+                     keep: int | None = None, threads: int = 1) -> np.ndarray:
     """Float FFT product of integer sequences rounded to the nearest integers (int64).
 
     Parameters
@@ -35,19 +35,21 @@ def convolve_rounded(a: np.ndarray, b: np.ndarray, n_fft: int,
         Transform length, ``>= n1 + n2 - 1`` (a power of two on the certified path).
     keep : int, optional
         Return only the first ``keep`` coefficients.
+    threads : int
+        Threads the float product may use (the arithmetic, hence the bound, is the same).
 
     Returns
     -------
     numpy.ndarray
         int64, length ``min(keep, n1 + n2 - 1)``.  Exact only if the caller has certified that
-        the float error is below 1/2 and every ``|c_k| < 2^53``.
+        the float error is below 1/2 and every ``|c_k| < 2^53``.  The float product is
+        :func:`polyconv.engines.fft.convolve_fft`'s.
     """
     count = a.shape[0] + b.shape[0] - 1
     if keep is not None:
         count = min(count, keep)
-    fa = _sfft.rfft(a.astype(np.float64), n_fft)
-    fa *= _sfft.rfft(b.astype(np.float64), n_fft)
-    return np.rint(_sfft.irfft(fa, n_fft, overwrite_x=True)[:count]).astype(np.int64)
+    product = convolve_fft(a.astype(np.float64), b.astype(np.float64), n_fft, count, threads)
+    return np.rint(product).astype(np.int64)
 
 
 def limb_count(max_abs: int, limb_bits: int) -> int:
