@@ -37,6 +37,7 @@ from contextlib import contextmanager
 import numpy as np
 
 from .api import convolve
+from .bounds import max_abs
 
 __all__ = ["power", "product", "inverse_series", "poly_divmod", "counting_products",
            "ZeroDivisorError"]
@@ -91,15 +92,6 @@ def _mul(x: np.ndarray, y: np.ndarray, modulus: int | None, *, length: int | Non
 
 
 # ----------------------------------------------------------------------------- small array helpers
-
-
-def _max_abs(x: np.ndarray) -> int:
-    """Largest ``|x[i]|`` of an int64 or object integer array, as a Python int."""
-    if x.size == 0:
-        return 0
-    if x.dtype == object:
-        return max(abs(v) for v in x)
-    return max(abs(int(x.max())), abs(int(x.min())))
 
 
 def _fit(x: np.ndarray, n: int) -> np.ndarray:
@@ -177,7 +169,7 @@ class _Integers(_Ring):
 
     def sub(self, x: np.ndarray, y: np.ndarray) -> np.ndarray:
         if x.dtype == np.int64 and y.dtype == np.int64 and (
-                _max_abs(x) + _max_abs(y) < _INT64_LIMIT):
+                max_abs(x) + max_abs(y) < _INT64_LIMIT):
             return x - y
         return _as_objects(x) - _as_objects(y)
 
@@ -188,7 +180,7 @@ class _Integers(_Ring):
 
     def scale(self, x: np.ndarray, c) -> np.ndarray:
         c = int(c)
-        if x.dtype == np.int64 and _max_abs(x) * abs(c) < _INT64_LIMIT:
+        if x.dtype == np.int64 and max_abs(x) * abs(c) < _INT64_LIMIT:
             return x * c
         return _as_objects(x) * c
 
@@ -200,7 +192,7 @@ class _Integers(_Ring):
         return np.zeros(n, dtype=np.int64)
 
     def finish(self, x: np.ndarray) -> np.ndarray:
-        if x.dtype == object and _max_abs(x) < _INT64_LIMIT:
+        if x.dtype == object and max_abs(x) < _INT64_LIMIT:
             return x.astype(np.int64)
         return x
 
@@ -809,7 +801,7 @@ def _divmod_integers(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarr
     to the symmetric range and proved by the full product ``q b`` (which also gives ``r``)."""
     integers = _Integers()
     d = b.shape[0] - 1
-    bits = max(_max_abs(a).bit_length(), _max_abs(b).bit_length()) + 2  # a guess; may double
+    bits = max(max_abs(a).bit_length(), max_abs(b).bit_length()) + 2  # a guess; may double
     while True:
         ring = _Modular(1 << bits)
         q_mod = _quotient_newton(ring, ring.convert(a), ring.convert(b))

@@ -40,6 +40,8 @@ from functools import lru_cache
 import gmpy2
 import numpy as np
 
+from .engines._intpack import max_abs
+
 EPS = Fraction(1, 2**53)
 #: Assumed twiddle error of pocketfft (relative to 1), see the module notes.
 TWIDDLE_ERROR = 4 * EPS
@@ -156,13 +158,6 @@ def choose_limbs(max_a: int, max_b: int, n1: int, n2: int, n_fft: int,
 
 
 # ----------------------------------------------------------------------------- bit sizes
-
-
-def max_abs(x: np.ndarray) -> int:
-    """Largest ``|x_i|`` as a Python int (0 for an empty array)."""
-    if x.size == 0:
-        return 0
-    return max(abs(int(x.max())), abs(int(x.min())))
 
 
 def bit_length_max(x: np.ndarray) -> int:
