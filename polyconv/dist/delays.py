@@ -84,6 +84,34 @@ def series(*delays: Lattice) -> Lattice:
     return out
 
 
+def _extreme(ds: list[Lattice], offs: list[int], length: int, limit: int,
+             wait_for_all: bool) -> tuple[np.ndarray, np.ndarray]:
+    """CDF and survival function of the maximum (``wait_for_all``) or minimum of independent
+    lattices on the common grid, to ``limit`` points.
+
+    Maximum: ``F = prod F_i`` and ``S = 1 - prod (1 - S_i)``; minimum: ``S = prod S_i`` and
+    ``F = 1 - prod (1 - F_i)``.  The complemented product is ``-expm1(sum log1p(-x_i))`` so small
+    tail probabilities keep their digits.
+    """
+    product = np.ones(limit)
+    log_rest = np.zeros(limit)
+    for o, d in zip(offs, ds, strict=True):
+        c, s = _on_grid(d, o, length)
+        direct, other = (c, s) if wait_for_all else (s, c)
+        product *= direct[:limit]
+        with np.errstate(divide="ignore"):
+            log_rest += np.log1p(-np.minimum(other[:limit], 1.0))
+    complement = -np.expm1(log_rest)
+    return (product, complement) if wait_for_all else (complement, product)
+
+
+def _extreme_lattice(ds: list[Lattice], cdf: np.ndarray, sf: np.ndarray, h: float,
+                     base: float) -> Lattice:
+    """The Lattice of a max or min, with a trust floor from the inputs' and the rounding."""
+    floor = sum(d.trust_floor * len(d) for d in ds) + 4 * len(ds) * UNIT_ROUNDOFF
+    return Lattice(np.clip(_pmf_from(cdf, sf), 0.0, 1.0), h, base, trust_floor=floor)
+
+
 def all_of(*delays: Lattice) -> Lattice:
     """Delay of a join that waits for all branches: ``max(D_1, ..., D_k)``, ``F = prod F_i``.
 
@@ -97,17 +125,8 @@ def all_of(*delays: Lattice) -> Lattice:
     for o, d in zip(offs, ds, strict=True):
         if d.truncated_mass > 0:
             limit = min(limit, o + len(d))
-    cdf = np.ones(limit)
-    log_f = np.zeros(limit)
-    for o, d in zip(offs, ds, strict=True):
-        c, s = _on_grid(d, o, length)
-        cdf *= c[:limit]
-        with np.errstate(divide="ignore"):
-            log_f += np.log1p(-np.minimum(s[:limit], 1.0))
-    sf = -np.expm1(log_f)
-    pmf = _pmf_from(cdf, sf)
-    floor = sum(d.trust_floor * len(d) for d in ds) + 4 * len(ds) * UNIT_ROUNDOFF
-    return Lattice(np.clip(pmf, 0.0, 1.0), h, base, trust_floor=floor)
+    cdf, sf = _extreme(ds, offs, length, limit, wait_for_all=True)
+    return _extreme_lattice(ds, cdf, sf, h, base)
 
 
 def first_of(*delays: Lattice) -> Lattice:
@@ -119,17 +138,8 @@ def first_of(*delays: Lattice) -> Lattice:
     ds = _check(delays, "first_of")
     h, base, offs, length = _grid(ds)
     limit = min(o + len(d) for o, d in zip(offs, ds, strict=True))
-    sf = np.ones(limit)
-    log_f = np.zeros(limit)
-    for o, d in zip(offs, ds, strict=True):
-        c, s = _on_grid(d, o, length)
-        sf *= s[:limit]
-        with np.errstate(divide="ignore"):
-            log_f += np.log1p(-np.minimum(c[:limit], 1.0))
-    cdf = -np.expm1(log_f)
-    pmf = _pmf_from(cdf, sf)
-    floor = sum(d.trust_floor * len(d) for d in ds) + 4 * len(ds) * UNIT_ROUNDOFF
-    return Lattice(np.clip(pmf, 0.0, 1.0), h, base, trust_floor=floor)
+    cdf, sf = _extreme(ds, offs, length, limit, wait_for_all=False)
+    return _extreme_lattice(ds, cdf, sf, h, base)
 
 
 def mixture(weights, delays) -> Lattice:
