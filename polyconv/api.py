@@ -60,11 +60,9 @@ def plan(a, b, *, mode: str = "full", method: str = "auto", modulus: int | None 
     >>> polyconv.plan(np.ones(10), np.ones(3)).engine
     'direct'
     """
-    the_plan = _prepare(a, b, mode, method, modulus, length, axis)[-1]
+    pair, *_, the_plan = _prepare(a, b, mode, method, modulus, length, axis)
     if not the_plan.exact:
-        pair = inputs.prepare_pair(a, b, axis)
-        bound = error_bound(pair.a, pair.b, the_plan)
-        the_plan = dataclasses.replace(the_plan, error_bound=bound)
+        the_plan = dataclasses.replace(the_plan, error_bound=_float_bound(the_plan, pair))
     return the_plan
 
 
@@ -213,10 +211,14 @@ def error_bound(a, b, the_plan: Plan | None = None) -> float:
         The bound (absolute, for float64 arithmetic; ``0.0`` for an exact integer plan).
     """
     if the_plan is None:
-        the_plan = plan(a, b)
+        return plan(a, b).error_bound  # plan() computes it
     if the_plan.exact:
         return 0.0
-    pair = inputs.prepare_pair(a, b)
+    return _float_bound(the_plan, inputs.prepare_pair(a, b))
+
+
+def _float_bound(the_plan: Plan, pair: inputs.OperandPair) -> float:
+    """:func:`error_bound` of a float plan for prepared operands (axis last, largest rows)."""
     x = np.asarray(pair.a, dtype=np.complex128 if pair.kind == "complex" else np.float64)
     y = np.asarray(pair.b, dtype=x.dtype)
     norm_a = max(norm2_upper(np.abs(r)) for r in x.reshape(-1, x.shape[-1]))
