@@ -1,7 +1,10 @@
 """Polynomial algebra on top of :func:`polyconv.convolve`: powers, products, inverses, division.
 
 Every product here is one call of :func:`polyconv.convolve`, so these functions get faster whenever
-the engines behind it do.  Sequences are polynomials with coefficient ``i`` that of ``x**i``
+the engines behind it do; the one exception is the chain of exact integer products inside
+:func:`power` and :func:`product` once coefficients outgrow int64: those intermediates stay as
+byte rows (:mod:`polyconv.engines._intpack`) and are multiplied by
+:func:`polyconv.engines.kronecker.multiply_rows`, so Python ints are created once, at the end.  Sequences are polynomials with coefficient ``i`` that of ``x**i``
 (lowest degree first, as :func:`numpy.convolve`).  Only 1-D sequences are accepted.
 
 Arithmetic follows the inputs, as for :func:`polyconv.convolve`:
@@ -33,11 +36,14 @@ import itertools
 import numbers
 from collections.abc import Iterable, Iterator
 from contextlib import contextmanager
+from dataclasses import dataclass
 
 import numpy as np
 
 from .api import convolve
 from .bounds import max_abs
+from .engines import _intpack
+from .engines.kronecker import multiply_rows
 
 __all__ = ["power", "product", "inverse_series", "poly_divmod", "counting_products",
            "ZeroDivisorError"]
@@ -156,6 +162,18 @@ class _Ring:
     def finish(self, x: np.ndarray) -> np.ndarray:
         return x
 
+    # Chains of products (product trees, powers) run on a "work form" of the sequences, which
+    # only mul_work and length need to understand; plain arrays by default.
+
+    def to_work(self, x: np.ndarray):
+        return x
+
+    def from_work(self, x) -> np.ndarray:
+        return x
+
+    def mul_work(self, x, y, *, length: int | None = None):
+        return self.mul(x, y, length=length)
+
 
 class _Integers(_Ring):
     """Exact integers: int64 while a bound proves no overflow, Python ints (object) beyond."""
@@ -195,6 +213,56 @@ class _Integers(_Ring):
         if x.dtype == object and max_abs(x) < _INT64_LIMIT:
             return x.astype(np.int64)
         return x
+
+    # Work form: byte rows (see polyconv.engines._intpack), so that products whose coefficients
+    # outgrow int64 go from one Kronecker product to the next without creating Python ints.
+
+    def to_work(self, x: np.ndarray) -> _Wide:
+        return _Wide.of_values(x)
+
+    def from_work(self, x: _Wide) -> np.ndarray:
+        return x.values()
+
+    def mul_work(self, x: _Wide, y: _Wide, *, length: int | None = None) -> _Wide:
+        """Products that fit int64 through :func:`polyconv.convolve` (its certified float
+        engines); wider ones by Kronecker substitution on the byte rows."""
+        if min(x.shape[0], y.shape[0]) << (x.bits + y.bits) < _INT64_LIMIT:
+            return _Wide.of_values(self.mul(x.values(), y.values(), length=length))
+        if _product_log is not None:
+            _product_log.append((x.shape[0], y.shape[0], "full", length))
+        rows = multiply_rows(x.as_rows(), y.as_rows(), length, bits=(x.bits, y.bits))
+        return _Wide(None, rows, _intpack.row_bits(rows))
+
+
+@dataclass(frozen=True, slots=True)
+class _Wide:
+    """Exact integers of a chain of products: an int64 array while they fit, else byte rows
+    (:mod:`polyconv.engines._intpack`); ``bits`` bounds them (``-2^bits <= x < 2^bits``)."""
+
+    int64: np.ndarray | None
+    rows: np.ndarray | None
+    bits: int
+
+    @classmethod
+    def of_values(cls, x: np.ndarray) -> _Wide:
+        if x.dtype == np.int64:
+            top = max(int(x.max()), -1 - int(x.min())) if x.size else 0
+            return cls(x, None, top.bit_length())
+        rows = _intpack.values_to_rows(x)
+        return cls(None, rows, _intpack.row_bits(rows))
+
+    @property
+    def shape(self) -> tuple[int, ...]:
+        return self.int64.shape if self.int64 is not None else self.rows.shape
+
+    def values(self) -> np.ndarray:
+        return self.int64 if self.int64 is not None else _intpack.rows_to_values(self.rows)
+
+    def as_rows(self) -> np.ndarray:
+        if self.rows is not None:
+            return self.rows
+        octets = np.ascontiguousarray(self.int64).view(np.uint8).reshape(-1, 8)
+        return octets[:, : self.bits // 8 + 1]
 
 
 class _Modular(_Ring):
@@ -415,8 +483,10 @@ def power(a, k: int, *, modulus: int | None = None, length: int | None = None) -
     if core is None or k * shift >= total:
         return ring.finish(ring.zeros(total))
     room = total - k * shift
-    return ring.finish(_place(_power(ring, core, k, None if n is None else room), k * shift,
-                              total))
+    work = ring.to_work(core)
+    powered = _power(ring, work, k, None if n is None else room)
+    powered = ring.from_work(powered if powered is not work else ring.to_work(core.copy()))
+    return ring.finish(_place(powered, k * shift, total))
 
 
 def _trim(ring: _Ring, x: np.ndarray) -> tuple[np.ndarray | None, int]:
@@ -441,10 +511,10 @@ def _place(values: np.ndarray, shift: int, total: int) -> np.ndarray:
 def _power(ring: _Ring, x: np.ndarray, k: int, n: int | None) -> np.ndarray:
     acc = x
     for bit in bin(k)[3:]:
-        acc = ring.mul(acc, acc, length=_cut(n, 2 * acc.shape[0] - 1))
+        acc = ring.mul_work(acc, acc, length=_cut(n, 2 * acc.shape[0] - 1))
         if bit == "1":
-            acc = ring.mul(acc, x, length=_cut(n, acc.shape[0] + x.shape[0] - 1))
-    return acc.copy() if acc is x else acc
+            acc = ring.mul_work(acc, x, length=_cut(n, acc.shape[0] + x.shape[0] - 1))
+    return acc
 
 
 def _cut(n: int | None, full: int) -> int | None:
@@ -510,8 +580,8 @@ def product(seqs: Iterable, *, modulus: int | None = None, length: int | None = 
         return ring.finish(ring.zeros(total))
     room = total - shift
     cores = [core[:room] for core, _ in trimmed]
-    return ring.finish(_place(_product_tree(ring, cores, None if n is None else room), shift,
-                              total))
+    tree = _product_tree(ring, [ring.to_work(c) for c in cores], None if n is None else room)
+    return ring.finish(_place(ring.from_work(tree), shift, total))
 
 
 def _factors(seqs) -> tuple[list[np.ndarray], str]:
@@ -534,7 +604,7 @@ def _product_tree(ring: _Ring, factors: list[np.ndarray], n: int | None) -> np.n
     while len(heap) > 1:
         _, _, x = heapq.heappop(heap)
         _, _, y = heapq.heappop(heap)
-        z = ring.mul(x, y, length=_cut(n, x.shape[0] + y.shape[0] - 1))
+        z = ring.mul_work(x, y, length=_cut(n, x.shape[0] + y.shape[0] - 1))
         heapq.heappush(heap, (z.shape[0], next(counter), z))
     return heap[0][2]
 

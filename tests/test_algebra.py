@@ -10,6 +10,7 @@ a worked counting example, or "identity" (the defining property, checked exactly
 from __future__ import annotations
 
 import math
+import random
 from functools import reduce
 
 import flint
@@ -95,6 +96,14 @@ def test_power_goes_beyond_int64():
     got = power(a, 9)
     assert got.dtype == object
     assert_exact(got, padded((fz(a) ** 9).coeffs(), 9 * 19 + 1))      # python-flint reference
+
+
+def test_power_large_two_point_and_truncated():
+    """Products of the chain large enough for the two-point Kronecker scheme on byte rows."""
+    a = rand_ints(2000, 16)
+    expected = (fz(a) ** 8).coeffs()                                      # python-flint reference
+    assert_exact(power(a, 8), padded(expected, 8 * 1999 + 1))
+    assert_exact(power(a, 8, length=9000), padded(expected, 9000))
 
 
 @pytest.mark.parametrize("k,length", [(5, 1), (5, 40), (13, 100), (100, 64), (3, 500)])
@@ -199,6 +208,17 @@ def test_product_exact_matches_flint():
     total = sum(len(s) - 1 for s in seqs) + 1
     assert len(got) == total and got.dtype == object
     assert_exact(got, padded(expected.coeffs(), total))
+
+
+def test_product_wide_factors_matches_flint():
+    """Factors beyond int64 (Python ints of 70-200 bits) and a truncated product."""
+    rng = random.Random(3)
+    seqs = [[rng.randint(-2**b, 2**b) for _ in range(n)]
+            for n, b in [(300, 70), (5, 200), (290, 1), (1, 90), (400, 64)]]
+    expected = reduce(lambda p, q: p * q, (fz(s) for s in seqs))           # python-flint ref.
+    total = sum(len(s) - 1 for s in seqs) + 1
+    assert_exact(product(seqs), padded(expected.coeffs(), total))
+    assert_exact(product(seqs, length=700), padded(expected.coeffs(), 700))
 
 
 def test_product_truncated_and_modular():

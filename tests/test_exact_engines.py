@@ -17,7 +17,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from polyconv import bounds
-from polyconv.engines import exact_fft, kronecker, ntt
+from polyconv.engines import _intpack, exact_fft, kronecker, ntt
 
 RNG = np.random.default_rng(12345)
 
@@ -347,3 +347,60 @@ def test_property_mod(xs, ys, m):
     b = np.array(ys, dtype=np.int64)
     out = kronecker.convolve_kronecker_mod(a, b, m)
     assert as_list(out) == flint_product_mod(xs, ys, m)  # python-flint reference
+
+
+# ----------------------------------------------------------------------------- byte rows
+
+
+def _row_values(rows: np.ndarray) -> list[int]:
+    return [int(v) for v in _intpack.rows_to_values(rows)]
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.one_of(st.integers(-2**70, 2**70), st.sampled_from([0, 1, -1, -2**63, 2**63 - 1,
+                                                                       -2**64, 2**64 - 1])),
+                min_size=1, max_size=40), st.integers(0, 3))
+def test_byte_rows_round_trip(values, extra):
+    """Byte rows <-> ints and slot packing/unpacking are exact (the packed integer is the
+    Kronecker evaluation sum x_i 2^(8 w i): common practice, no source)."""
+    rows = _intpack.values_to_rows(np.array(values, dtype=object))
+    assert _row_values(rows) == values
+    bits = _intpack.row_bits(rows)
+    assert all(-2**bits <= v < 2**bits for v in values)
+    assert bits == 0 or not all(-2**(bits - 1) <= v < 2**(bits - 1) for v in values)
+    width = rows.shape[1] + extra
+    if any(v <= -2**(8 * width - 1) for v in values):
+        width += 1
+    z = _intpack.pack_rows(rows, width)
+    assert int(z) == sum(v << (8 * width * i) for i, v in enumerate(values))
+    assert _row_values(_intpack.unpack_rows(z, width, len(values))) == values
+
+
+def test_byte_rows_from_int64_and_uint64():
+    """int64 and uint64 arrays keep their values (common practice, no source)."""
+    x = np.array([0, -1, 2**63 - 1, -2**63, 5], dtype=np.int64)
+    assert _row_values(_intpack.values_to_rows(x)) == [int(v) for v in x]
+    u = np.array([2**64 - 1, 0, 2**63], dtype=np.uint64)
+    assert _row_values(_intpack.values_to_rows(u)) == [int(v) for v in u]
+
+
+@pytest.mark.parametrize("two_point", [False, True])
+@pytest.mark.parametrize("n1,n2,bits1,bits2", [(1, 1, 5, 5), (2, 7, 64, 1), (31, 33, 100, 100),
+                                               (64, 65, 15, 500), (129, 128, 63, 63),
+                                               (200, 3, 1, 1000)])
+def test_multiply_rows_matches_flint(two_point, n1, n2, bits1, bits2):
+    """python-flint reference: random signs, every coefficient at -max, and truncation."""
+    rng = random.Random(n1 * 1000 + n2 + bits1)
+    cases = [([rng.randint(-2**bits1, 2**bits1) for _ in range(n1)],
+              [rng.randint(-2**bits2, 2**bits2) for _ in range(n2)]),
+             ([-2**bits1] * n1, [-2**bits2] * n2),
+             ([(-1)**i * 2**bits1 for i in range(n1)], [2**bits2 - 1] * n2)]
+    for a, b in cases:
+        ref = flint_product(a, b)
+        rows_a = _intpack.values_to_rows(np.array(a, dtype=object))
+        rows_b = _intpack.values_to_rows(np.array(b, dtype=object))
+        out = kronecker.multiply_rows(rows_a, rows_b, two_point=two_point)
+        assert _row_values(out) == ref
+        keep = max(1, (n1 + n2) // 3)
+        out = kronecker.multiply_rows(rows_a, rows_b, keep, two_point=two_point)
+        assert _row_values(out) == ref[:keep]

@@ -264,3 +264,105 @@ def reduce_words_wide(words: np.ndarray, modulus: int) -> np.ndarray:
         r = mont.times(r, radix) + words[:, j] % m
         r -= np.where(r >= m, m, np.uint64(0))
     return r
+
+
+# ----------------------------------------------------------------------------- byte rows
+#
+# A *byte-row vector* holds ``n`` exact integers as an ``(n, w)`` uint8 array: row ``i`` is the
+# little-endian two's complement of ``x_i`` in ``w`` bytes.  Products of growing integers (product
+# trees, powers) keep their intermediates in this form, so no Python int is created between two
+# Kronecker products (common practice, no source).
+
+
+def values_to_rows(x: np.ndarray) -> np.ndarray:
+    """Byte rows of a 1-D int64, uint64, bool or object array (the narrowest width holding all)."""
+    n = x.shape[0]
+    if x.dtype.kind in _FIXED and (x.dtype.kind != "u" or n == 0 or int(x.max()) < 2**63):
+        rows = np.ascontiguousarray(x, dtype="<i8").view(np.uint8).reshape(n, 8)
+        return trim_rows(rows)
+    values = [int(v) for v in x.tolist()]
+    top = max((max(v, -v - 1).bit_length() for v in values), default=0)
+    width = top // 8 + 1
+    joined = b"".join([v.to_bytes(width, "little", signed=True) for v in values])
+    return np.frombuffer(joined, dtype=np.uint8).reshape(n, width)
+
+
+def rows_to_values(rows: np.ndarray) -> np.ndarray:
+    """The integers of byte rows: int64 up to 8 bytes, else an object array of Python ints."""
+    if rows.shape[1] <= 8:
+        return rows_to_ints(rows, signed=True)
+    return rows_to_ints(rows, signed=True).astype(object)
+
+
+def row_bits(rows: np.ndarray) -> int:
+    """``b`` with every ``|x_i| < 2^b`` (``x_i >= -2^b``), read from the top non-sign byte.
+
+    Columns are scanned from the top; a negative row is read in ones' complement (``-1 - x``),
+    so one pass over the highest used column (usually the last) decides.
+    """
+    if rows.size == 0:
+        return 0
+    fill = np.where(rows[:, -1] >= 0x80, np.uint8(0xFF), np.uint8(0))
+    for j in range(rows.shape[1] - 1, -1, -1):
+        top = int((rows[:, j] ^ fill).max())
+        if top:
+            return 8 * j + top.bit_length()
+    return 0
+
+
+def trim_rows(rows: np.ndarray) -> np.ndarray:
+    """The same values in the narrowest width that holds them (a view when possible)."""
+    width = row_bits(rows) // 8 + 1
+    return rows[:, :width] if width < rows.shape[1] else rows
+
+
+def pack_rows(rows: np.ndarray, width: int) -> gmpy2.mpz:
+    """``Z = sum_i x_i 2^(8 width i)`` for byte rows of width at most ``width``.
+
+    Precondition: every ``-2^(8 width - 1) < x_i < 2^(8 width - 1)``.  As in :func:`pack`, the
+    bytes written are those of ``Z`` in two's complement: slot ``i`` holds ``x_i - beta_i``, where
+    the borrow ``beta_i`` is 1 when the last nonzero ``x_j`` with ``j < i`` is negative.  Rows are
+    sign-extended to ``width`` bytes, and the borrows subtracted byte by byte (a borrow moves on to
+    the next byte only from a zero byte, so the loop over bytes ends after a step or two).
+    """
+    n, w = rows.shape
+    buf = np.empty((n, width), dtype=np.uint8)
+    buf[:, :w] = rows
+    negative = rows[:, w - 1] >= 0x80
+    if width > w:
+        buf[:, w:] = np.where(negative, np.uint8(0xFF), np.uint8(0))[:, None]
+    if negative.any():
+        positions = np.where(rows.any(axis=1), np.arange(n), -1)
+        last = np.maximum.accumulate(positions)
+        before = np.empty_like(last)
+        before[0] = -1
+        before[1:] = last[:-1]
+        _add_to_rows(buf, np.flatnonzero((before >= 0) & negative[np.maximum(before, 0)]),
+                     np.uint8(0xFF))
+    return gmpy2.mpz.from_bytes(buf.data, "little", signed=True)
+
+
+def unpack_rows(z: gmpy2.mpz, width: int, count: int) -> np.ndarray:
+    """Byte rows (width ``width``) of the low ``count`` slots of ``z = sum_i x_i 2^(8 width i)``.
+
+    Precondition: every ``-2^(8 width - 1) <= x_i < 2^(8 width - 1)``.  The mirror image of
+    :func:`pack_rows`: slot ``i`` of ``z mod 2^(8 width count)`` holds ``x_i`` minus a borrow that
+    is the top bit of slot ``i - 1`` (see :func:`unpack_signed`), added back byte by byte.
+    """
+    low = gmpy2.f_mod_2exp(z, 8 * width * count)
+    rows = np.frombuffer(low.to_bytes(width * count, "little"),
+                         dtype=np.uint8).reshape(count, width).copy()
+    _add_to_rows(rows, np.flatnonzero(rows[:-1, -1] >= 0x80) + 1, np.uint8(1))
+    return rows
+
+
+def _add_to_rows(rows: np.ndarray, which: np.ndarray, step: np.uint8) -> None:
+    """Add ``+1`` (``step = 1``) or ``-1`` (``step = 0xFF``) to the little-endian integers in
+    ``rows[which]``, modulo ``2^(8 width)``: byte by byte while a carry (borrow) is left."""
+    stop = np.uint8(0) if step == 1 else np.uint8(0xFF)
+    for j in range(rows.shape[1]):
+        if which.size == 0:
+            return
+        column = rows[which, j] + step
+        rows[which, j] = column
+        which = which[column == stop]

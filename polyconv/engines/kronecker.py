@@ -117,6 +117,67 @@ def _evaluate_plus_minus(x: np.ndarray, width: int, half: int) -> tuple[gmpy2.mp
     return even + odd, even - odd
 
 
+def multiply_rows(a: np.ndarray, b: np.ndarray, keep: int | None = None, *,
+                  two_point: bool | None = None,
+                  bits: tuple[int, int] | None = None) -> np.ndarray:
+    """Exact product of two byte-row vectors, returned as byte rows (first ``keep`` if given).
+
+    The Kronecker product of :func:`convolve_kronecker` with operands and result in the byte-row
+    form of :func:`polyconv.engines._intpack.values_to_rows`: packing and unpacking are byte
+    copies and a few linear big-integer operations, and no Python int is created per
+    coefficient.  Meant for chains of products whose coefficients outgrow int64 (product trees,
+    powers), which convert to Python ints once at the end.
+
+    Parameters
+    ----------
+    a, b : numpy.ndarray
+        ``(n1, w1)`` and ``(n2, w2)`` uint8 byte rows, ``n1, n2 >= 1``.
+    keep : int, optional
+        Return only the first ``keep`` coefficients.
+    two_point : bool, optional
+        As for :func:`convolve_kronecker`.
+    bits : (int, int), optional
+        :func:`polyconv.engines._intpack.row_bits` of ``a`` and ``b``, if the caller has them.
+
+    Returns
+    -------
+    numpy.ndarray
+        ``(min(keep, n1 + n2 - 1), w)`` uint8 byte rows, trimmed to the narrowest width.
+    """
+    if keep is not None:
+        a, b = a[:keep], b[:keep]
+    count = a.shape[0] + b.shape[0] - 1
+    if keep is not None:
+        count = min(count, keep)
+    bits_a, bits_b = bits if bits is not None else (_intpack.row_bits(a), _intpack.row_bits(b))
+    bound = min(a.shape[0], b.shape[0]) << (bits_a + bits_b)
+    width = max(slot_width(bound), a.shape[1], b.shape[1])
+    if two_point is None:
+        two_point = 8 * width * max(a.shape[0], b.shape[0]) // 2 >= TWO_POINT_MIN_BITS
+    if two_point and count >= 2:
+        half = 4 * width
+        a_plus, a_minus = _rows_plus_minus(a, width, half)
+        b_plus, b_minus = _rows_plus_minus(b, width, half)
+        h_plus = a_plus * b_plus
+        h_minus = a_minus * b_minus
+        n_even = (count + 1) // 2
+        out = np.empty((count, width), dtype=np.uint8)
+        out[0::2] = _intpack.unpack_rows((h_plus + h_minus) >> 1, width, n_even)
+        out[1::2] = _intpack.unpack_rows((h_plus - h_minus) >> (half + 1), width,
+                                         count - n_even)
+    else:
+        z = _intpack.pack_rows(a, width) * _intpack.pack_rows(b, width)
+        out = _intpack.unpack_rows(z, width, count)
+    return _intpack.trim_rows(out)
+
+
+def _rows_plus_minus(x: np.ndarray, width: int, half: int) -> tuple[gmpy2.mpz, gmpy2.mpz]:
+    """``x(2^half)`` and ``x(-2^half)`` of byte rows, from even and odd parts in full slots."""
+    even = _intpack.pack_rows(x[0::2], width)
+    odd = _intpack.pack_rows(x[1::2], width) << half
+    return even + odd, even - odd
+
+
 def reduce_operand(x: np.ndarray, modulus: int) -> np.ndarray:
     """``x mod modulus`` in ``[0, modulus)``: int64/uint64 when they hold it, else objects."""
     if x.dtype.kind == "i" and modulus < 2**63:
