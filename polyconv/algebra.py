@@ -4,8 +4,9 @@ Every product here is one call of :func:`polyconv.convolve`, so these functions 
 the engines behind it do; the one exception is the chain of exact integer products inside
 :func:`power` and :func:`product` once coefficients outgrow int64: those intermediates stay as
 byte rows (:mod:`polyconv.engines._intpack`) and are multiplied by
-:func:`polyconv.engines.kronecker.multiply_rows`, so Python ints are created once, at the end.  Sequences are polynomials with coefficient ``i`` that of ``x**i``
-(lowest degree first, as :func:`numpy.convolve`).  Only 1-D sequences are accepted.
+:func:`polyconv.engines.kronecker.multiply_rows`, so Python ints are created once, at the end.
+Sequences are polynomials with coefficient ``i`` that of ``x**i`` (lowest degree first, as
+:func:`numpy.convolve`).  Only 1-D sequences are accepted.
 
 Arithmetic follows the inputs, as for :func:`polyconv.convolve`:
 

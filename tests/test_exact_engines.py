@@ -404,3 +404,14 @@ def test_multiply_rows_matches_flint(two_point, n1, n2, bits1, bits2):
         keep = max(1, (n1 + n2) // 3)
         out = kronecker.multiply_rows(rows_a, rows_b, keep, two_point=two_point)
         assert _row_values(out) == ref[:keep]
+
+
+@pytest.mark.parametrize("m", [2, 4, 2**36, 2**63, 2**64])
+def test_kronecker_mod_power_of_two_matches_flint(m):
+    """python-flint reference (fmpz_poly product, then % m): slots reduced by their low bits."""
+    rng = random.Random(m % 1000)
+    a = np.array([rng.randint(-2**70, 2**70) for _ in range(300)], dtype=object)
+    b = RNG.integers(-2**62, 2**62, 257)
+    got = kronecker.convolve_kronecker_mod(a, b, m)
+    assert got.dtype == (np.int64 if m <= 2**63 else object)
+    assert [int(v) for v in got] == [c % m for c in flint_product(a, b)]

@@ -196,7 +196,8 @@ def convolve_kronecker_mod(a: np.ndarray, b: np.ndarray, modulus: int,
     """Exact product modulo any ``modulus >= 2`` (first ``keep`` coefficients if given).
 
     Operands are reduced to ``[0, m)``, multiplied exactly by Kronecker substitution
-    (``0 <= c_k <= min(n1, n2) (m-1)^2``, no borrows), and each slot is reduced: for ``m < 2^32``
+    (``0 <= c_k <= min(n1, n2) (m-1)^2``, no borrows), and each slot is reduced: for ``m = 2^e <=
+    2^64`` by keeping its low ``e`` bits, for ``m < 2^32``
     vectorised on 64-bit words (:func:`polyconv.engines._intpack.reduce_words`), for
     odd ``m < 2^62`` by Montgomery arithmetic on uint64
     (:func:`polyconv.engines._intpack.reduce_words_wide`), otherwise on Python ints.
@@ -224,6 +225,10 @@ def convolve_kronecker_mod(a: np.ndarray, b: np.ndarray, modulus: int,
     width = slot_width(slot_bound(a, b))
     z = _intpack.pack(a, width) * _intpack.pack(b, width)
     rows = _intpack.slot_rows(z, width, count)
+    if modulus & (modulus - 1) == 0 and modulus <= 2**64:  # 2^e: the low e bits of each slot
+        words = _intpack.words_from_rows(rows[:, :8])[:, 0]
+        low = words & np.uint64(modulus - 1)
+        return low.astype(np.int64 if modulus <= 2**63 else object)
     if modulus < 2**32:
         return _intpack.reduce_words(_intpack.words_from_rows(rows), modulus).astype(np.int64)
     if modulus < _intpack.WIDE_MODULUS_LIMIT and modulus % 2 == 1:
