@@ -41,7 +41,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .api import convolve
+from .api import convolve, convolve_integer_rows
 from .bounds import max_abs
 from .engines import _intpack
 from .engines.kronecker import multiply_rows
@@ -95,6 +95,8 @@ def _mul(x: np.ndarray, y: np.ndarray, modulus: int | None, *, length: int | Non
     """One product through :func:`polyconv.convolve` (every product of this module goes here)."""
     if _product_log is not None:
         _product_log.append((x.shape[0], y.shape[0], mode, length))
+    if x.dtype.kind in "iO" and y.dtype.kind in "iO":  # integers, checked by the caller
+        return convolve_integer_rows(x, y, mode=mode, modulus=modulus, length=length)
     return convolve(x, y, mode=mode, modulus=modulus, length=length)
 
 
