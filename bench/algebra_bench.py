@@ -21,8 +21,8 @@ A second table gives the products used by inverse_series and poly_divmod (mod p)
 convolve calls, their transform work in units of one full ``n x n`` product (from the logged
 operand lengths), and the measured time divided by the time of one ``n x n`` product.
 
-Run ``python bench/algebra_bench.py [--max-log 16] [--budget 20]``.  Timings are best of a few
-repeats on this machine; nothing is asserted.
+Run ``python bench/algebra_bench.py [--max-log 20] [--step 1] [--budget 20]``.  Timings are best of
+a few repeats on this machine; nothing is asserted.
 """
 
 from __future__ import annotations
@@ -249,8 +249,9 @@ def main() -> None:
     parser.add_argument("--max-log", type=int, default=16)
     parser.add_argument("--budget", type=float, default=20.0,
                         help="seconds; larger sizes of a case are skipped after a slow one")
+    parser.add_argument("--step", type=int, default=1, help="step of log2(n)")
     args = parser.parse_args()
-    logs = range(args.min_log, args.max_log + 1, 2 if args.max_log - args.min_log > 6 else 1)
+    logs = range(args.min_log, args.max_log + 1, args.step)
     comparison_table(logs, args.budget)
     counts_table(logs, args.budget)
 
