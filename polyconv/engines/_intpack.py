@@ -116,7 +116,7 @@ def unpack_signed(z: gmpy2.mpz, width: int, count: int) -> np.ndarray:
     is unpacked as ``-(digits of -z)`` (gmpy2 writes negative numbers' bytes about 2x slower).
     """
     if width > 16:
-        return _unpack_signed_objects(z, 8 * width, count)
+        return rows_to_ints(unpack_rows(z, width, count), signed=True)
     if z < 0:
         return -unpack_signed(-z, width, count)
     rows = slot_rows(z, width, count)
@@ -124,20 +124,6 @@ def unpack_signed(z: gmpy2.mpz, width: int, count: int) -> np.ndarray:
     borrow = np.flatnonzero(rows[:-1, -1] >= 0x80) + 1
     values[borrow] += 1
     return values
-
-
-def _unpack_signed_objects(z: gmpy2.mpz, bits: int, count: int) -> np.ndarray:
-    """Signed slots by offset: adding ``h = 2^(bits-1)`` to every slot makes them all lie in
-    ``[0, 2^bits)`` with no borrow between them, so ``gmpy2.unpack`` reads ``c_k + h`` directly
-    (the low ``count`` slots: taking ``z + offset`` modulo ``2^(bits count)`` also handles
-    truncation and a negative ``z``)."""
-    half = gmpy2.mpz(1) << (bits - 1)
-    slot = bytes(bits // 8 - 1) + b"\x80"  # bits is a multiple of 8: h in one slot, little-endian
-    offset = gmpy2.mpz.from_bytes(slot * count, "little")
-    shifted = gmpy2.f_mod_2exp(z + offset, bits * count)
-    out = np.empty(count, dtype=object)
-    out[:] = [int(v - half) for v in gmpy2.unpack(shifted, bits)]
-    return out
 
 
 def unpack_unsigned(z: gmpy2.mpz, width: int, count: int) -> np.ndarray:
@@ -150,7 +136,7 @@ def rows_to_ints(rows: np.ndarray, signed: bool) -> np.ndarray:
 
     Rows of at most 8 bytes go through an int64 (or uint64) view; rows of 9 to 16 bytes through
     two words combined by two object operations; longer rows through ``int.from_bytes`` on
-    memoryview slices, one call per row.
+    bytes slices, one call per row.
     """
     count, width = rows.shape
     if width <= 8:
@@ -163,7 +149,7 @@ def rows_to_ints(rows: np.ndarray, signed: bool) -> np.ndarray:
         low = np.ascontiguousarray(rows[:, :8]).view("<u8").reshape(count)
         high = rows_to_ints(rows[:, 8:], signed)
         return (high.astype(object) << 64) + low.astype(object)
-    data = memoryview(np.ascontiguousarray(rows).data).cast("B")
+    data = np.ascontiguousarray(rows).tobytes()  # slicing bytes beats slicing a memoryview
     out = np.empty(count, dtype=object)
     from_bytes = int.from_bytes
     out[:] = [from_bytes(data[i:i + width], "little", signed=signed)
