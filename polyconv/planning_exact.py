@@ -26,6 +26,7 @@ from functools import lru_cache
 from . import bounds
 from . import costs as _costs
 from .costs import load_costs
+from .engines.exact_fft import is_power_of_two
 from .engines.ntt import PRIMES
 from .planning import EXACT_ENGINES, Plan, fft_rate, output_length
 
@@ -149,9 +150,11 @@ def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch:
                                     "circular": circular}
 
     # limb split of float FFTs, certified by the bound; with a modulus the residues are centred
-    # and the limb products recombined modulo m in int64 (moduli below 2^31, or odd below 2^62)
+    # and the limb products recombined modulo m in int64 (moduli below 2^31, odd below 2^62, or
+    # powers of two up to 2^62)
     m = facts.modulus
-    modular_limbs = m is not None and (m < 2**31 or (m % 2 == 1 and m < 2**62))
+    modular_limbs = m is not None and (m < 2**31 or (m % 2 == 1 and m < 2**62)
+                                       or (is_power_of_two(m) and m <= 2**62))
     if modular_limbs:
         half = m // 2 + 1
         limbs = bounds.choose_limbs(min(facts.max_a, half), min(facts.max_b, half), n1, n2,
@@ -166,7 +169,8 @@ def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch:
         bits, ka, kb = limbs
         transforms = (ka + kb) + (ka + kb - 1)
         if modular_limbs:
-            k = c["limbs_mod"] if m < 2**31 else c.get("limbs_mod_wide", c["limbs_mod"])
+            wide = m >= 2**31 and not is_power_of_two(m)  # Montgomery recombination
+            k = c.get("limbs_mod_wide", c["limbs_mod"]) if wide else c["limbs_mod"]
         else:
             k = c["limbs"]
         options["limbs"] = k["overhead"] + rows * (

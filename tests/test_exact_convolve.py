@@ -270,6 +270,20 @@ def test_moduli_at_and_above_two_to_the_63(modulus):
     assert _as_ints(got) == [v % modulus for v in _flint_product(a, b)]
 
 
+@pytest.mark.parametrize("method", ["limbs", "kronecker"])
+@pytest.mark.parametrize("modulus", [2, 2**20, 2**36, 2**62])
+def test_power_of_two_moduli(method, modulus):
+    # reference: python-flint fmpz_poly product, then % modulus (limbs recombine in wrapping
+    # int64, Kronecker keeps the low bits of each slot)
+    rng = np.random.default_rng(modulus % 97)
+    a, b = rng.integers(-2**62, 2**62, 2500), rng.integers(-2**62, 2**62, 1800)
+    got = polyconv.convolve(a, b, modulus=modulus, method=method)
+    assert got.dtype == np.int64
+    assert _as_ints(got) == [v % modulus for v in _flint_product(a, b)]
+    got = polyconv.convolve(a, b, modulus=modulus, method=method, mode="valid")
+    assert _as_ints(got) == [v % modulus for v in _flint_product(a, b)[1799:2500]]
+
+
 @pytest.mark.parametrize("method", ["auto", "fft-exact", "limbs", "kronecker", "direct-exact"])
 @pytest.mark.parametrize("modulus", [None, 998244353])
 def test_valid_mode_middle_product(method, modulus):

@@ -178,6 +178,11 @@ def limb_parts(a: np.ndarray, b: np.ndarray, limb_bits: int, limbs_a: int, limbs
     return np.rint(tf.irfft(sums, n_fft, -1, 1)[:, :count]).astype(np.int64)
 
 
+def is_power_of_two(m: int) -> bool:
+    """True for ``m = 2^e`` with ``e >= 1``."""
+    return m >= 2 and m & (m - 1) == 0
+
+
 def centered_residues(x: np.ndarray, modulus: int) -> np.ndarray:
     """Residues in ``[0, m)`` moved to ``(-m/2, m/2]`` (int64): half the magnitude to split."""
     x = x.astype(np.int64)
@@ -189,12 +194,12 @@ def convolve_limbs_mod(a: np.ndarray, b: np.ndarray, modulus: int, limb_bits: in
                        keep: int | None = None) -> np.ndarray:
     """Product modulo ``m`` by limb-split float FFTs, recombined in modular int64 arithmetic.
 
-    Operands are residues in ``[0, m)`` for ``m < 2^31`` or an odd ``m < 2^62``; they are
-    centred (:func:`centered_residues`), split and multiplied exactly limb by limb
-    (:func:`limb_parts`, certified by the caller's bound), and ``c mod m = sum_m (P_m mod m)
+    Operands are residues in ``[0, m)`` for ``m < 2^31``, an odd ``m < 2^62`` or ``m = 2^e <=
+    2^62``; they are centred (:func:`centered_residues`), split and multiplied exactly limb by
+    limb (:func:`limb_parts`, certified by the caller's bound), and ``c mod m = sum_m (P_m mod m)
     (2^(b m) mod m) mod m`` is formed without big integers: plain int64 products below
     ``2^62`` for ``m < 2^31``, Montgomery reduction (:class:`polyconv.engines._intpack.Montgomery`)
-    above.
+    for odd ``m`` above, and wrapping int64 arithmetic (exact modulo ``2^64``) for ``m = 2^e``.
 
     Returns
     -------
@@ -203,6 +208,9 @@ def convolve_limbs_mod(a: np.ndarray, b: np.ndarray, modulus: int, limb_bits: in
     """
     parts = limb_parts(centered_residues(a, modulus), centered_residues(b, modulus), limb_bits,
                        limbs_a, limbs_b, n_fft, keep)
+    if is_power_of_two(modulus):
+        # 2^e divides 2^64: the sum in wrapping int64 is right modulo 2^64, so its low e bits are
+        return _recombine_int64(parts, limb_bits) & np.int64(modulus - 1)
     if modulus < 2**31:
         # every (P_j mod m) (2^(bj) mod m) is below 2^62 - 2^59: up to 8 of them add up in int64
         # before the single final reduction
