@@ -45,6 +45,7 @@ from .api import convolve, convolve_integer_rows
 from .bounds import max_abs
 from .engines import _intpack
 from .engines.kronecker import multiply_rows
+from .planning import THREADS
 
 __all__ = ["power", "product", "inverse_series", "poly_divmod", "counting_products",
            "ZeroDivisorError"]
@@ -233,7 +234,8 @@ class _Integers(_Ring):
             return _Wide.of_values(self.mul(x.values(), y.values(), length=length))
         if _product_log is not None:
             _product_log.append((x.shape[0], y.shape[0], "full", length))
-        rows = multiply_rows(x.as_rows(), y.as_rows(), length, bits=(x.bits, y.bits))
+        rows = multiply_rows(x.as_rows(), y.as_rows(), length, bits=(x.bits, y.bits),
+                             threads=THREADS)
         return _Wide(None, rows, _intpack.row_bits(rows))
 
 

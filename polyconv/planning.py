@@ -131,6 +131,8 @@ class Plan:
                 detail += f", blocks of {self.block_length}"
             detail += f", {self.threads} thread{'s' if self.threads != 1 else ''}"
             lines.append(detail)
+        elif self.threads > 1:
+            lines.append(f"  threads:     {self.threads}")
         if self.settings:
             lines.append("  settings:    " + ", ".join(f"{k}={v}" for k, v in self.settings))
         if self.modulus is not None:
@@ -175,7 +177,8 @@ def configured_threads() -> int:
         return max(1, os.cpu_count() or 1)
 
 
-_THREADS = configured_threads()
+#: Threads the planners allow (read once, at import).
+THREADS = configured_threads()
 
 
 # ----------------------------------------------------------------------------- cost predictions
@@ -350,7 +353,7 @@ def _choose_cached(generation: int, kind: str, n1: int, n2: int, batch_a: tuple,
             f"method={method!r} is an exact integer engine; a and b hold {kind} numbers")
 
     costs = load_costs()
-    threads = _THREADS
+    threads = THREADS
     b_out = _prod(batch)
     b_a, b_b = _prod(batch_a), _prod(batch_b)
     cfac = 2.0 if kind == "complex" else 1.0

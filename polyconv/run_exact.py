@@ -176,9 +176,10 @@ def run_engine(engine: str, the_plan: Plan, a: np.ndarray, b: np.ndarray,
                               the_plan.setting("limbs_b"), the_plan.transform_length, keep,
                               as_int64=product_int64)
     if engine == "kronecker":
+        threads = the_plan.threads if the_plan.engine == "kronecker" else 1  # 1 as a fallback
         if m is not None:
-            return convolve_kronecker_mod(a, b, m, keep)
-        return convolve_kronecker(a, b, keep, as_int64=product_int64)
+            return convolve_kronecker_mod(a, b, m, keep, threads=threads)
+        return convolve_kronecker(a, b, keep, as_int64=product_int64, threads=threads)
     if engine == "ntt":
         out = convolve_ntt_mod_prime(a.astype(np.uint64), b.astype(np.uint64), m, keep)
         return out.astype(np.int64)

@@ -415,3 +415,21 @@ def test_kronecker_mod_power_of_two_matches_flint(m):
     got = kronecker.convolve_kronecker_mod(a, b, m)
     assert got.dtype == (np.int64 if m <= 2**63 else object)
     assert [int(v) for v in got] == [c % m for c in flint_product(a, b)]
+
+
+@pytest.mark.parametrize("modulus", [None, 998244353, 2**62 - 57, 2**64, 10**30 + 57])
+def test_two_point_on_two_threads_matches_flint(modulus):
+    """python-flint reference: the two-point products run concurrently (GIL released by gmpy2)
+    and still give the exact product, signed or reduced."""
+    rng = random.Random(17)
+    a = np.array([rng.randint(-2**90, 2**90) for _ in range(700)], dtype=object)
+    b = np.array([rng.randint(-2**90, 2**90) for _ in range(513)], dtype=object)
+    if modulus is None:
+        got = kronecker.convolve_kronecker(a, b, two_point=True, threads=2)
+        assert [int(v) for v in got] == flint_product(a, b)
+        rows = kronecker.multiply_rows(_intpack.values_to_rows(a), _intpack.values_to_rows(a),
+                                       two_point=True, threads=2)
+        assert _row_values(rows) == flint_product(a, a)
+    else:
+        got = kronecker.convolve_kronecker_mod(a, b, modulus, 600, two_point=True, threads=2)
+        assert [int(v) for v in got] == [c % modulus for c in flint_product(a, b)[:600]]

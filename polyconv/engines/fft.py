@@ -9,25 +9,15 @@ work of complex ones.  Transforms come from :mod:`polyconv.transforms` (pocketff
 
 from __future__ import annotations
 
-from concurrent.futures import ThreadPoolExecutor
-
 import numpy as np
 
 from .. import transforms as tf
+from ._threads import helper_thread
 
-_helper: ThreadPoolExecutor | None = None
 #: Up to this length both 1-D operands go through one batched transform call (saves a call's
 #: overhead); beyond it the stacked array no longer fits in cache and separate calls are faster
 #: (measured: 1.25x slower stacked at 2^17 points on one thread).
 STACK_LIMIT = 2**15
-
-
-def _helper_thread() -> ThreadPoolExecutor:
-    """One background thread, started on first use, to overlap two forward transforms."""
-    global _helper
-    if _helper is None:
-        _helper = ThreadPoolExecutor(max_workers=1, thread_name_prefix="polyconv-fft")
-    return _helper
 
 
 def _padded_spectrum(x: np.ndarray, n_fft: int, dtype) -> np.ndarray:
@@ -62,7 +52,7 @@ def convolve_fft(a: np.ndarray, b: np.ndarray, n_fft: int, keep: int, threads: i
     if a.ndim == 1 and b.ndim == 1:
         if threads >= 2 or n_fft > STACK_LIMIT:
             if threads >= 2:
-                job = _helper_thread().submit(_padded_spectrum, a, n_fft, dtype)
+                job = helper_thread().submit(_padded_spectrum, a, n_fft, dtype)
                 fb = _padded_spectrum(b, n_fft, dtype)
                 fa = job.result()
             else:

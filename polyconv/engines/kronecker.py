@@ -16,7 +16,9 @@ substitution", J. Symbolic Comput. 44 (2009), the "KS2" scheme): evaluating at `
 ``-2^b`` with ``2b >= s`` gives ``c(2^b) + c(-2^b) = 2 sum c_(2j) 2^(2bj)`` and
 ``c(2^b) - c(-2^b) = 2^(b+1) sum c_(2j+1) 2^(2bj)``: two products of half the size instead of one.
 GMP's cost per bit grows with the size (measured here: 2.7 ns/bit at 1 Mbit, 4.5 ns/bit at 8 Mbit),
-so two half-size products are about 1.25x faster for large operands.
+so two half-size products are about 1.25x faster for large operands.  They are independent, so
+with two threads allowed they run concurrently (:mod:`polyconv.engines._threads`; gmpy2 releases
+the GIL inside GMP), which makes the scheme pay from half the size.
 """
 
 from __future__ import annotations
@@ -25,10 +27,19 @@ import gmpy2
 import numpy as np
 
 from . import _intpack
+from ._threads import gmp_products
 
-#: Packed size (bits per operand) from which the two-point scheme pays (measured on the
-#: development machine; the planner may override it through ``two_point=``).
+#: Packed size (bits per operand) from which the two-point scheme pays, with its two products in
+#: sequence and with them on two threads (measured on the development machine: at 2^17 bits two
+#: threads are 1.03-1.25x faster than one product, one thread is not).
 TWO_POINT_MIN_BITS = 1 << 18
+TWO_POINT_MIN_BITS_THREADED = 1 << 17
+
+
+def uses_two_point(width: int, n1: int, n2: int, threads: int) -> bool:
+    """Whether the default chooses the two-point scheme for ``width``-byte slots."""
+    limit = TWO_POINT_MIN_BITS_THREADED if threads >= 2 else TWO_POINT_MIN_BITS
+    return 8 * width * max(n1, n2) // 2 >= limit
 
 
 def slot_width(bound: int) -> int:
@@ -48,7 +59,8 @@ def slot_bound(a: np.ndarray, b: np.ndarray) -> int:
 
 
 def convolve_kronecker(a: np.ndarray, b: np.ndarray, keep: int | None = None, *,
-                       as_int64: bool = False, two_point: bool | None = None) -> np.ndarray:
+                       as_int64: bool = False, two_point: bool | None = None,
+                       threads: int = 1) -> np.ndarray:
     """Exact full product of two integer sequences (first ``keep`` coefficients if given).
 
     Parameters
@@ -63,7 +75,10 @@ def convolve_kronecker(a: np.ndarray, b: np.ndarray, keep: int | None = None, *,
         view, without creating Python ints.
     two_point : bool, optional
         Force (True) or forbid (False) the two-point scheme; default: used when a packed operand
-        would exceed :data:`TWO_POINT_MIN_BITS` bits.
+        would exceed :data:`TWO_POINT_MIN_BITS` bits (:func:`uses_two_point`).
+    threads : int
+        With two or more, the two-point scheme's two products run concurrently
+        (:func:`polyconv.engines._threads.gmp_products`).
 
     Returns
     -------
@@ -77,9 +92,9 @@ def convolve_kronecker(a: np.ndarray, b: np.ndarray, keep: int | None = None, *,
         count = min(count, keep)
     width = slot_width(slot_bound(a, b))
     if two_point is None:
-        two_point = 8 * width * max(a.shape[0], b.shape[0]) // 2 >= TWO_POINT_MIN_BITS
+        two_point = uses_two_point(width, a.shape[0], b.shape[0], threads)
     if two_point and count >= 2:
-        out = _two_point_product(a, b, width, count)
+        out = _two_point_product(a, b, width, count, threads)
     else:
         z = _intpack.pack(a, width) * _intpack.pack(b, width)
         out = _intpack.unpack_signed(z, width, count)
@@ -92,13 +107,13 @@ def _as_requested(out: np.ndarray, as_int64: bool) -> np.ndarray:
     return out if out.dtype == object else out.astype(object)
 
 
-def _two_point_product(a: np.ndarray, b: np.ndarray, width: int, count: int) -> np.ndarray:
+def _two_point_product(a: np.ndarray, b: np.ndarray, width: int, count: int,
+                       threads: int) -> np.ndarray:
     """KS2: products at ``2^h`` and ``-2^h`` with ``h = 4 width`` bits (half a slot)."""
     half = 4 * width
     a_plus, a_minus = _evaluate_plus_minus(a, width, half)
-    b_plus, b_minus = _evaluate_plus_minus(b, width, half)
-    h_plus = a_plus * b_plus
-    h_minus = a_minus * b_minus
+    b_plus, b_minus = (a_plus, a_minus) if b is a else _evaluate_plus_minus(b, width, half)
+    h_plus, h_minus = gmp_products([(a_plus, b_plus), (a_minus, b_minus)], threads)
     even = (h_plus + h_minus) >> 1
     odd = (h_plus - h_minus) >> (half + 1)
     n_even = (count + 1) // 2
@@ -118,8 +133,8 @@ def _evaluate_plus_minus(x: np.ndarray, width: int, half: int) -> tuple[gmpy2.mp
 
 
 def multiply_rows(a: np.ndarray, b: np.ndarray, keep: int | None = None, *,
-                  two_point: bool | None = None,
-                  bits: tuple[int, int] | None = None) -> np.ndarray:
+                  two_point: bool | None = None, bits: tuple[int, int] | None = None,
+                  threads: int = 1) -> np.ndarray:
     """Exact product of two byte-row vectors, returned as byte rows (first ``keep`` if given).
 
     The Kronecker product of :func:`convolve_kronecker` with operands and result in the byte-row
@@ -138,12 +153,15 @@ def multiply_rows(a: np.ndarray, b: np.ndarray, keep: int | None = None, *,
         As for :func:`convolve_kronecker`.
     bits : (int, int), optional
         :func:`polyconv.engines._intpack.row_bits` of ``a`` and ``b``, if the caller has them.
+    threads : int
+        As for :func:`convolve_kronecker`.  ``b is a`` (a square) packs once and squares.
 
     Returns
     -------
     numpy.ndarray
         ``(min(keep, n1 + n2 - 1), w)`` uint8 byte rows, trimmed to the narrowest width.
     """
+    square = b is a
     if keep is not None:
         a, b = a[:keep], b[:keep]
     count = a.shape[0] + b.shape[0] - 1
@@ -153,20 +171,20 @@ def multiply_rows(a: np.ndarray, b: np.ndarray, keep: int | None = None, *,
     bound = min(a.shape[0], b.shape[0]) << (bits_a + bits_b)
     width = max(slot_width(bound), a.shape[1], b.shape[1])
     if two_point is None:
-        two_point = 8 * width * max(a.shape[0], b.shape[0]) // 2 >= TWO_POINT_MIN_BITS
+        two_point = uses_two_point(width, a.shape[0], b.shape[0], threads)
     if two_point and count >= 2:
         half = 4 * width
         a_plus, a_minus = _rows_plus_minus(a, width, half)
-        b_plus, b_minus = _rows_plus_minus(b, width, half)
-        h_plus = a_plus * b_plus
-        h_minus = a_minus * b_minus
+        b_plus, b_minus = (a_plus, a_minus) if square else _rows_plus_minus(b, width, half)
+        h_plus, h_minus = gmp_products([(a_plus, b_plus), (a_minus, b_minus)], threads)
         n_even = (count + 1) // 2
         out = np.empty((count, width), dtype=np.uint8)
         out[0::2] = _intpack.unpack_rows((h_plus + h_minus) >> 1, width, n_even)
         out[1::2] = _intpack.unpack_rows((h_plus - h_minus) >> (half + 1), width,
                                          count - n_even)
     else:
-        z = _intpack.pack_rows(a, width) * _intpack.pack_rows(b, width)
+        packed = _intpack.pack_rows(a, width)
+        z = gmpy2.square(packed) if square else packed * _intpack.pack_rows(b, width)
         out = _intpack.unpack_rows(z, width, count)
     return _intpack.trim_rows(out)
 
@@ -192,7 +210,8 @@ def _mod_objects(x: np.ndarray, modulus: int) -> np.ndarray:
 
 
 def convolve_kronecker_mod(a: np.ndarray, b: np.ndarray, modulus: int,
-                           keep: int | None = None) -> np.ndarray:
+                           keep: int | None = None, *, two_point: bool | None = None,
+                           threads: int = 1) -> np.ndarray:
     """Exact product modulo any ``modulus >= 2`` (first ``keep`` coefficients if given).
 
     Operands are reduced to ``[0, m)``, multiplied exactly by Kronecker substitution
@@ -210,6 +229,8 @@ def convolve_kronecker_mod(a: np.ndarray, b: np.ndarray, modulus: int,
         Any integer ``>= 2`` (far above ``2^64`` allowed).
     keep : int, optional
         Return only the first ``keep`` coefficients.
+    two_point, threads
+        As for :func:`convolve_kronecker`.
 
     Returns
     -------
@@ -223,8 +244,22 @@ def convolve_kronecker_mod(a: np.ndarray, b: np.ndarray, modulus: int,
         count = min(count, keep)
     a, b = reduce_operand(a, modulus), reduce_operand(b, modulus)
     width = slot_width(slot_bound(a, b))
-    z = _intpack.pack(a, width) * _intpack.pack(b, width)
-    rows = _intpack.slot_rows(z, width, count)
+    if two_point is None:
+        two_point = uses_two_point(width, a.shape[0], b.shape[0], threads)
+    if two_point and count >= 2:
+        # KS2 as in _two_point_product; the c_k are >= 0, so the even and odd parts' slots are
+        # read as they are
+        half = 4 * width
+        a_plus, a_minus = _evaluate_plus_minus(a, width, half)
+        b_plus, b_minus = _evaluate_plus_minus(b, width, half)
+        h_plus, h_minus = gmp_products([(a_plus, b_plus), (a_minus, b_minus)], threads)
+        n_even = (count + 1) // 2
+        rows = np.empty((count, width), dtype=np.uint8)
+        rows[0::2] = _intpack.slot_rows((h_plus + h_minus) >> 1, width, n_even)
+        rows[1::2] = _intpack.slot_rows((h_plus - h_minus) >> (half + 1), width, count - n_even)
+    else:
+        z = _intpack.pack(a, width) * _intpack.pack(b, width)
+        rows = _intpack.slot_rows(z, width, count)
     if modulus & (modulus - 1) == 0 and modulus <= 2**64:  # 2^e: the low e bits of each slot
         words = _intpack.words_from_rows(rows[:, :8])[:, 0]
         low = words & np.uint64(modulus - 1)
