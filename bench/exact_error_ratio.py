@@ -1,7 +1,10 @@
 """Bound / observed error of float FFT products on adversarial 16-bit x 16-bit inputs.
 
-Run: python bench/exact_error_ratio.py [max_log2n]   (prints a markdown table; ~1 minute to 2^20)
+Run: python bench/exact_error_ratio.py [max_log2n] [--limbs]   (markdown tables; ~1 minute to 2^20)
 Also measures pocketfft's twiddle error (FFT of a unit impulse vs roots of unity in long double).
+With ``--limbs``: the limb engine's summed parts (sum_j A_j * B_(m-j) formed in the frequency
+domain, one inverse transform) against :func:`polyconv.bounds.limb_error_bound`, with every limb
+digit at its extreme.
 """
 
 from __future__ import annotations
@@ -45,7 +48,43 @@ def twiddle_error(n_fft: int) -> float:
     return float(np.max(err) / 2.0**-53)
 
 
+def limb_rows(top: int) -> None:
+    """Summed limb parts of the limb engine at the limb sizes the chooser picks for 30-bit
+    operands (centred residues mod 998244353), digits at +max, alternating, and random signs."""
+    rng = np.random.default_rng(7)
+    print("| log2 n | limbs | case | observed max error | bound | bound / observed |")
+    print("|---|---|---|---|---|---|")
+    for lg in range(10, top + 1):
+        n = 1 << lg
+        n_fft = 2 * n
+        half = 998244353 // 2 + 1
+        bits, ka, kb = bounds.choose_limbs(half, half, n, n, n_fft)
+        digit = 2 ** (bits - 1)
+        patterns = {"digits +max": np.full((ka, n), digit),
+                    "alternating": np.tile(digit * np.where(np.arange(n) % 2 == 0, 1, -1),
+                                           (ka, 1)),
+                    "random signs": digit * rng.choice([-1, 1], (ka, n))}
+        bound = bounds.limb_error_bound(bits, ka, kb, n, n, n_fft)
+        for name, limbs in patterns.items():
+            spectra = sfft.rfft(limbs.astype(float), n_fft, axis=-1)
+            sums = np.zeros((2 * ka - 1, spectra.shape[1]), dtype=complex)
+            for j in range(ka):
+                sums[j:j + ka] += spectra[j] * spectra
+            approx = sfft.irfft(sums, n_fft, axis=-1)[:, : 2 * n - 1]
+            err = 0.0
+            for m in range(2 * ka - 1):
+                exact = sum(convolve_kronecker(limbs[j], limbs[m - j], as_int64=True)
+                            for j in range(max(0, m - ka + 1), min(m, ka - 1) + 1))
+                err = max(err, float(np.max(np.abs(approx[m] - exact.astype(np.longdouble)))))
+            print(f"| {lg} | {ka} x {bits} bits | {name} | {err:.3g} | {bound:.3g} | "
+                  f"{bound / err:.1f} |", flush=True)
+
+
 def main() -> None:
+    if "--limbs" in sys.argv:
+        sys.argv.remove("--limbs")
+        limb_rows(int(sys.argv[1]) if len(sys.argv) > 1 else 18)
+        return
     top = int(sys.argv[1]) if len(sys.argv) > 1 else 20
     rng = np.random.default_rng(20260501)
     print("| log2 n | N | case | observed max error | bound | bound / observed |")

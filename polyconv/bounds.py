@@ -56,11 +56,20 @@ def _round_up(q: Fraction) -> float:
 
 
 @lru_cache(maxsize=256)
-def fft_error_factor(n_fft: int, beta: Fraction = TWIDDLE_ERROR) -> float:
-    """``(1+eps)^(3n) (1+sqrt5 eps)^(3n+1) (1+beta)^(3n) - 1`` for ``n = ceil(log2 n_fft)``,
-    evaluated exactly and rounded up."""
+def fft_error_factor(n_fft: int, beta: Fraction = TWIDDLE_ERROR, terms: int = 1) -> float:
+    """``(1+eps)^(3n) (1+sqrt5 eps)^(3n+1) (1+beta)^(3n) (1+eps)^(terms-1) - 1`` for ``n =
+    ceil(log2 n_fft)``, evaluated exactly and rounded up.
+
+    ``terms > 1`` covers a frequency-domain sum ``sum_j X_j Y_j`` of that many pointwise products
+    before one inverse transform: recursive summation gives each product a further relative error
+    of at most ``(1+eps)^(terms-1) - 1`` (Higham, *Accuracy and Stability of Numerical
+    Algorithms*, 2nd ed., section 4.2; a complex addition rounds each part, so its error is at
+    most ``eps`` times the modulus of the sum), which joins the ``(1+sqrt5 eps)`` of the pointwise
+    product in Percival's argument; the bound then scales with ``sum_j ||x_j|| ||y_j||``.
+    """
     n = max(1, (n_fft - 1).bit_length())
-    factor = (1 + EPS) ** (3 * n) * (1 + _SQRT5_UP * EPS) ** (3 * n + 1) * (1 + beta) ** (3 * n)
+    factor = ((1 + EPS) ** (3 * n + terms - 1) * (1 + _SQRT5_UP * EPS) ** (3 * n + 1)
+              * (1 + beta) ** (3 * n))
     return _round_up(factor - 1)
 
 
@@ -131,14 +140,15 @@ def limb_error_bound(limb_bits: int, limbs_a: int, limbs_b: int, n1: int, n2: in
 
     Balanced limbs have ``|digit| <= 2^(b-1)``, so each limb sequence has norm at most
     ``2^(b-1) sqrt(n)``.  A summed part adds at most ``k = min(limbs_a, limbs_b)`` products in the
-    frequency domain; we bound it by ``k`` times the single-product bound, doubled to cover the
-    ``k - 1`` extra complex additions per frequency (each ``<= eps`` relative, a far smaller term).
+    frequency domain before its inverse transform: Percival's bound with the summation term of
+    :func:`fft_error_factor` (``terms = k``), scaled by ``sum_j ||A_j|| ||B_(m-j)|| <= k
+    2^(2b-2) sqrt(n1 n2)``.
     """
     k = min(limbs_a, limbs_b)
     digit = 2.0 ** (limb_bits - 1)
-    single = fft_error_bound(digit * math.sqrt(n1) * (1 + 2**-50),
-                             digit * math.sqrt(n2) * (1 + 2**-50), n_fft)
-    return math.nextafter(single * k * (2 if k > 1 else 1), math.inf)  # one rounding, stepped up
+    norms = (digit * math.sqrt(n1) * (1 + 2**-50)) * (digit * math.sqrt(n2) * (1 + 2**-50))
+    scaled = math.nextafter(math.nextafter(norms, math.inf) * k, math.inf)
+    return math.nextafter(scaled * fft_error_factor(n_fft, TWIDDLE_ERROR, k), math.inf)
 
 
 def choose_limbs(max_a: int, max_b: int, n1: int, n2: int, n_fft: int,
