@@ -26,6 +26,7 @@ from functools import lru_cache
 from . import bounds
 from . import costs as _costs
 from .costs import load_costs
+from .engines.exact_direct import one_split_fits
 from .engines.exact_fft import is_power_of_two
 from .engines.kronecker import uses_two_point
 from .engines.ntt import PRIMES
@@ -111,10 +112,11 @@ def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch:
     certificates: dict[str, str] = {}
     notes: dict[str, str] = {}
 
-    # direct summation (numpy int64 when the bound allows, three int64 half-word products for a
-    # modulus below 2^31, Python ints otherwise)
+    # direct summation (numpy int64 when the bound allows, two or three int64 half-word products
+    # for a modulus below 2^31, Python ints otherwise)
     if facts.modulus is not None and facts.modulus < 2**31 and not fits_int64:
-        options["direct-exact"] = 3 * (c["direct_int64"]["overhead"] + c["direct_int64"][
+        halves = 2 if one_split_fits(min(n1, n2), facts.modulus) else 3
+        options["direct-exact"] = halves * (c["direct_int64"]["overhead"] + c["direct_int64"][
             "per_mac"] * n1 * n2 * rows)
     elif fits_int64:
         options["direct-exact"] = c["direct_int64"]["overhead"] + c["direct_int64"][

@@ -433,3 +433,19 @@ def test_two_point_on_two_threads_matches_flint(modulus):
     else:
         got = kronecker.convolve_kronecker_mod(a, b, modulus, 600, two_point=True, threads=2)
         assert [int(v) for v in got] == [c % modulus for c in flint_product(a, b)[:600]]
+
+
+@pytest.mark.parametrize("split", [True, False])
+@pytest.mark.parametrize("m", [2, 998244353, 2**31 - 1])
+def test_direct_mod_both_splits_match_flint(monkeypatch, split, m):
+    """python-flint reference (nmod_poly): the one-operand split and the Karatsuba halves, with
+    every residue at m - 1 (the largest partial sums)."""
+    from polyconv.engines import exact_direct
+    if not split:
+        monkeypatch.setattr(exact_direct, "one_split_fits", lambda terms, modulus: False)
+    for n1, n2 in [(1, 1), (7, 300), (257, 256)]:
+        a = np.full(n1, m - 1, dtype=np.int64)
+        b = RNG.integers(0, m, n2)
+        b[::3] = m - 1
+        got = exact_direct.convolve_exact_direct_mod(a, b, m)
+        assert as_list(got) == flint_product_mod(a, b, m)
