@@ -92,12 +92,13 @@ def counting_products() -> Iterator[list]:
 
 
 def _mul(x: np.ndarray, y: np.ndarray, modulus: int | None, *, length: int | None = None,
-         mode: str = "full") -> np.ndarray:
+         mode: str = "full", magnitudes: tuple[int, int] | None = None) -> np.ndarray:
     """One product through :func:`polyconv.convolve` (every product of this module goes here)."""
     if _product_log is not None:
         _product_log.append((x.shape[0], y.shape[0], mode, length))
     if x.dtype.kind in "iO" and y.dtype.kind in "iO":  # integers, checked by the caller
-        return convolve_integer_rows(x, y, mode=mode, modulus=modulus, length=length)
+        return convolve_integer_rows(x, y, mode=mode, modulus=modulus, length=length,
+                                     magnitudes=magnitudes)
     return convolve(x, y, mode=mode, modulus=modulus, length=length)
 
 
@@ -231,7 +232,8 @@ class _Integers(_Ring):
         """Products that fit int64 through :func:`polyconv.convolve` (its certified float
         engines); wider ones by Kronecker substitution on the byte rows."""
         if min(x.shape[0], y.shape[0]) << (x.bits + y.bits) < _INT64_LIMIT:
-            return _Wide.of_values(self.mul(x.values(), y.values(), length=length))
+            return _Wide.of_values(_mul(x.values(), y.values(), None, length=length,
+                                        magnitudes=(1 << x.bits, 1 << y.bits)))
         if _product_log is not None:
             _product_log.append((x.shape[0], y.shape[0], "full", length))
         rows = multiply_rows(x.as_rows(), y.as_rows(), length, bits=(x.bits, y.bits),
@@ -289,7 +291,8 @@ class _Modular(_Ring):
 
     def mul(self, x: np.ndarray, y: np.ndarray, *, length: int | None = None,
             mode: str = "full") -> np.ndarray:
-        return _mul(x, y, self.modulus, length=length, mode=mode)
+        top = self.modulus - 1  # every value of this ring is a residue in [0, m)
+        return _mul(x, y, self.modulus, length=length, mode=mode, magnitudes=(top, top))
 
     def sub(self, x: np.ndarray, y: np.ndarray) -> np.ndarray:
         m = self.modulus

@@ -133,20 +133,26 @@ def convolve(a, b, *, mode: str = "full", method: str = "auto", modulus: int | N
 
 
 def convolve_integer_rows(x: np.ndarray, y: np.ndarray, *, mode: str = "full",
-                          modulus: int | None = None, length: int | None = None) -> np.ndarray:
+                          modulus: int | None = None, length: int | None = None,
+                          magnitudes: tuple[int, int] | None = None) -> np.ndarray:
     """:func:`convolve` for callers inside polyconv that hold already-checked operands.
 
     ``x`` and ``y`` are 1-D, non-empty int64 or object arrays of integers, and ``mode``,
     ``modulus`` and ``length`` have been validated (as :mod:`polyconv.algebra` does once per
     call of its public functions).  The product is planned, certified and shaped exactly as in
     :func:`convolve`; only the classification of array-likes is skipped, which is most of the
-    cost of a short product.
+    cost of a short product.  ``magnitudes``, when given, are upper bounds of ``max|x|`` and
+    ``max|y|`` for int64 operands that are already reduced when ``modulus`` is (the pass that
+    would find them is skipped).
     """
     keep = None if length is None else min(length, x.shape[0] + y.shape[0] - 1)
     if length is not None:
         x, y = x[:length], y[:length]
-    (x, max_x), (y, max_y) = (run_exact.normalise_integers(x, modulus),
-                              run_exact.normalise_integers(y, modulus))
+    if magnitudes is not None and x.dtype == np.int64 and y.dtype == np.int64:
+        max_x, max_y = magnitudes
+    else:
+        (x, max_x), (y, max_y) = (run_exact.normalise_integers(x, modulus),
+                                  run_exact.normalise_integers(y, modulus))
     facts = run_exact.integer_facts(x, y, modulus, max_x, max_y)
     kind = "integer" if x.dtype != object and y.dtype != object else "bigint"
     the_plan = planning_exact.choose_exact(facts, kind, (), mode, "auto", keep)
