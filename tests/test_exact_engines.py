@@ -449,3 +449,17 @@ def test_direct_mod_both_splits_match_flint(monkeypatch, split, m):
         b[::3] = m - 1
         got = exact_direct.convolve_exact_direct_mod(a, b, m)
         assert as_list(got) == flint_product_mod(a, b, m)
+
+
+@pytest.mark.parametrize("two_point", [False, True])
+def test_kronecker_wide_slots_match_flint(two_point):
+    """python-flint reference: slots wider than 64 bytes (unpacked through gmpy2.unpack with an
+    offset), signed values, a negative packed product and truncation."""
+    rng = random.Random(23)
+    a = np.array([rng.randint(-2**600, 2**600) for _ in range(150)], dtype=object)
+    b = np.array([-rng.randint(2**590, 2**600) for _ in range(97)], dtype=object)
+    ref = flint_product(a, b)
+    got = kronecker.convolve_kronecker(a, b, two_point=two_point, threads=2)
+    assert [int(v) for v in got] == ref
+    got = kronecker.convolve_kronecker(a, b, 60, two_point=two_point)
+    assert [int(v) for v in got] == ref[:60]
