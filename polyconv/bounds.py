@@ -134,35 +134,62 @@ def convolution_error_bound(engine: str, norm_a: float, norm_b: float,
     return 2 * block if engine == "overlap-add" else block
 
 
+def limb_norms(limb_bits: int, count: int, n: int, norm: float = math.inf) -> list[float]:
+    """Upper bounds of ``||A_j||_2`` for the ``count`` balanced limbs of a length-``n`` sequence.
+
+    Every digit has ``|d| <= 2^(b-1)``, so ``||A_j|| <= 2^(b-1) sqrt(n)``.  When ``||x||_2 <=
+    norm`` is known, the top limb ``A_t = (x - L) / 2^(b t)`` (``t = count - 1``) with the lower
+    part ``|L_i| <= 2^(b-1) (2^(b t) - 1) / (2^b - 1)`` also has ``||A_t|| <= (norm + sqrt(n)
+    2^(b-1) (2^(b t) - 1) / (2^b - 1)) / 2^(b t)`` (triangle inequality), which is smaller for
+    operands well inside their range.
+    """
+    root = math.sqrt(n) * (1 + 2**-50)
+    crude = 2.0 ** (limb_bits - 1) * root
+    out = [crude] * count
+    if count > 1 and math.isfinite(norm):
+        t = limb_bits * (count - 1)
+        low = 2.0 ** (limb_bits - 1) * (2.0**t - 1) / (2.0**limb_bits - 1) * (1 + 2**-50)
+        top = (norm + root * low) / 2.0**t * (1 + 2**-50)
+        out[-1] = min(crude, top)
+    return out
+
+
 def limb_error_bound(limb_bits: int, limbs_a: int, limbs_b: int, n1: int, n2: int,
-                     n_fft: int) -> float:
+                     n_fft: int, norm_a: float = math.inf, norm_b: float = math.inf) -> float:
     """Bound on the error of each summed limb product of the limb-split engine.
 
-    Balanced limbs have ``|digit| <= 2^(b-1)``, so each limb sequence has norm at most
-    ``2^(b-1) sqrt(n)``.  A summed part adds at most ``k = min(limbs_a, limbs_b)`` products in the
-    frequency domain before its inverse transform: Percival's bound with the summation term of
-    :func:`fft_error_factor` (``terms = k``), scaled by ``sum_j ||A_j|| ||B_(m-j)|| <= k
-    2^(2b-2) sqrt(n1 n2)``.
+    Part ``m`` is ``P_m = sum_j A_j * B_(m-j)``, formed as one frequency-domain sum of its ``k_m``
+    pointwise products before one inverse transform: Percival's bound with the summation term of
+    :func:`fft_error_factor` (``terms = k_m``), scaled by ``sum_j ||A_j|| ||B_(m-j)||`` with the
+    limb norms of :func:`limb_norms` (``norm_a``, ``norm_b``: the operands' Euclidean norms when
+    known).  Returns the largest over the parts.
     """
-    k = min(limbs_a, limbs_b)
-    digit = 2.0 ** (limb_bits - 1)
-    norms = (digit * math.sqrt(n1) * (1 + 2**-50)) * (digit * math.sqrt(n2) * (1 + 2**-50))
-    scaled = math.nextafter(math.nextafter(norms, math.inf) * k, math.inf)
-    return math.nextafter(scaled * fft_error_factor(n_fft, TWIDDLE_ERROR, k), math.inf)
+    norms_a = limb_norms(limb_bits, limbs_a, n1, norm_a)
+    norms_b = limb_norms(limb_bits, limbs_b, n2, norm_b)
+    worst = 0.0
+    for m in range(limbs_a + limbs_b - 1):
+        pairs = [(j, m - j) for j in range(limbs_a) if 0 <= m - j < limbs_b]
+        scale = math.fsum(norms_a[j] * norms_b[i] for j, i in pairs) * (1 + 2**-50)
+        bound = scale * fft_error_factor(n_fft, TWIDDLE_ERROR, len(pairs)) * (1 + 2**-50)
+        worst = max(worst, bound)
+    return math.nextafter(worst, math.inf)
 
 
 def choose_limbs(max_a: int, max_b: int, n1: int, n2: int, n_fft: int,
-                 max_limb_bits: int = 30) -> tuple[int, int, int] | None:
+                 max_limb_bits: int = 30, norm_a: float = math.inf,
+                 norm_b: float = math.inf) -> tuple[int, int, int] | None:
     """Largest limb size ``b`` (and the limb counts) whose limb products round exactly.
 
-    Returns ``(limb_bits, limbs_a, limbs_b)`` with :func:`limb_error_bound` ``< 1/2`` and every
-    summed part below ``2^53``, or None when even 1-bit limbs fail.
+    Returns ``(limb_bits, limbs_a, limbs_b)`` with :func:`limb_error_bound` ``< 1/2`` (given the
+    operands' norms when known) and every summed part below ``2^53``, or None when even 1-bit
+    limbs fail.
     """
     for bits in range(max_limb_bits, 0, -1):
         ka = max(1, -(-(max_a.bit_length() + 1) // bits))
         kb = max(1, -(-(max_b.bit_length() + 1) // bits))
         part = min(ka, kb) * min(n1, n2) * 4 ** (bits - 1)
-        if part < 2**52 and limb_error_bound(bits, ka, kb, n1, n2, n_fft) < 0.5:
+        if part < 2**52 and limb_error_bound(bits, ka, kb, n1, n2, n_fft, norm_a,
+                                             norm_b) < 0.5:
             return bits, ka, kb
     return None
 

@@ -56,6 +56,9 @@ class IntegerFacts:
         Upper bounds of the largest row's Euclidean norm (``inf`` when not computed).
     modulus : int or None
         The modulus, if any.
+    centred_norm_a, centred_norm_b : float
+        With a modulus: upper bounds of the largest row's Euclidean norm once the residues are
+        centred to ``(-m/2, m/2]`` (what the limb engine splits); ``inf`` when not computed.
     """
 
     n1: int
@@ -65,6 +68,8 @@ class IntegerFacts:
     norm_a: float
     norm_b: float
     modulus: int | None
+    centred_norm_a: float = math.inf
+    centred_norm_b: float = math.inf
 
     @property
     def bound(self) -> int:
@@ -161,7 +166,8 @@ def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch:
     if modular_limbs:
         half = m // 2 + 1
         limbs = bounds.choose_limbs(min(facts.max_a, half), min(facts.max_b, half), n1, n2,
-                                    n_pow2)
+                                    n_pow2, norm_a=facts.centred_norm_a,
+                                    norm_b=facts.centred_norm_b)
     elif m is None:
         limbs = bounds.choose_limbs(facts.max_a, facts.max_b, n1, n2, n_pow2)
         if limbs is not None and limbs[1] == 1 and limbs[2] == 1:

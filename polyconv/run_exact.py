@@ -19,7 +19,12 @@ from .engines.exact_direct import (
     convolve_exact_direct,
     convolve_exact_direct_mod,
 )
-from .engines.exact_fft import convolve_limbs, convolve_limbs_mod, convolve_rounded
+from .engines.exact_fft import (
+    centered_residues,
+    convolve_limbs,
+    convolve_limbs_mod,
+    convolve_rounded,
+)
 from .engines.kronecker import convolve_kronecker, convolve_kronecker_mod, reduce_operand
 from .engines.ntt import convolve_ntt_mod_prime
 from .planning import Plan
@@ -29,6 +34,8 @@ from .planning_exact import FLOAT_EXACT_LIMIT, INT64_LIMIT, IntegerFacts
 #: so the norms that a float-FFT certificate needs are not computed (measured here: the rounded
 #: FFT costs at least ~15 us).
 NORM_MIN_WORK = 2**14
+#: Moduli for which the limb engine runs (below 2^31, odd below 2^62, powers of two to 2^62).
+CENTRED_NORM_MODULUS_LIMIT = 2**62
 
 
 def normalise_integers(x: np.ndarray, modulus: int | None) -> tuple[np.ndarray, int]:
@@ -83,7 +90,13 @@ def integer_facts(x: np.ndarray, y: np.ndarray, modulus: int | None,
         if bounds.fft_error_bound(norm_a, norm_b, n_fft) >= 0.5:
             norm_a = _round_norm(_largest_row_norm(x))
             norm_b = _round_norm(_largest_row_norm(y))
-    return IntegerFacts(n1, n2, max_a, max_b, norm_a, norm_b, modulus)
+    centred_a = centred_b = math.inf
+    if (modulus is not None and modulus < CENTRED_NORM_MODULUS_LIMIT and n1 * n2 >= NORM_MIN_WORK
+            and x.dtype == np.int64 and y.dtype == np.int64):
+        # the limb engine splits centred residues; their norms can save a limb (bounds.limb_norms)
+        centred_a = _round_norm(_largest_row_norm(centered_residues(x, modulus)))
+        centred_b = _round_norm(_largest_row_norm(centered_residues(y, modulus)))
+    return IntegerFacts(n1, n2, max_a, max_b, norm_a, norm_b, modulus, centred_a, centred_b)
 
 
 def _crude_norm(max_abs: int, n: int) -> float:

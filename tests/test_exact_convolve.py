@@ -315,3 +315,19 @@ def test_int64_extremes_every_engine(method):
     b = np.array([top, -top, 5, np.iinfo(np.int64).min, top], dtype=np.int64)
     got = polyconv.convolve(a, b, method=method)
     assert _as_ints(got) == _flint_product(a, b)
+
+
+def test_centred_norms_save_a_limb_and_stay_exact():
+    # reference: python-flint nmod_poly.  Uniform residues mod 998244353 at n = 2^15 have
+    # centred norms ~ (m/2) sqrt(n/3): the top limb's norm bound (bounds.limb_norms) lets two
+    # 15-bit limbs be certified; residues packed near m/2 need three.
+    m, n = 998244353, 2**15
+    rng = np.random.default_rng(31)
+    uniform = rng.integers(0, m, n)
+    near_half = np.full(n, m // 2) - rng.integers(0, 3, n)
+    for a, limbs in ((uniform, 2), (near_half, 3)):
+        the_plan = polyconv.plan(a, a[::-1], modulus=m, method="limbs")
+        assert dict(the_plan.settings)["limbs_a"] == limbs
+        got = polyconv.convolve(a, a[::-1], modulus=m, method="limbs")
+        want = flint.nmod_poly(a.tolist(), m) * flint.nmod_poly(a[::-1].tolist(), m)
+        assert _as_ints(got) == [int(c) for c in want.coeffs()]
