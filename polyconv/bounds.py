@@ -177,16 +177,18 @@ def limb_error_bound(limb_bits: int, limbs_a: int, limbs_b: int, n1: int, n2: in
 
 def choose_limbs(max_a: int, max_b: int, n1: int, n2: int, n_fft: int,
                  max_limb_bits: int = 30, norm_a: float = math.inf,
-                 norm_b: float = math.inf) -> tuple[int, int, int] | None:
+                 norm_b: float = math.inf, max_limbs: int = 12) -> tuple[int, int, int] | None:
     """Largest limb size ``b`` (and the limb counts) whose limb products round exactly.
 
     Returns ``(limb_bits, limbs_a, limbs_b)`` with :func:`limb_error_bound` ``< 1/2`` (given the
-    operands' norms when known) and every summed part below ``2^53``, or None when even 1-bit
-    limbs fail.
+    operands' norms when known), every summed part below ``2^53`` and at most ``max_limbs`` limbs
+    in all, or None when no limb size qualifies.
     """
     for bits in range(max_limb_bits, 0, -1):
         ka = max(1, -(-(max_a.bit_length() + 1) // bits))
         kb = max(1, -(-(max_b.bit_length() + 1) // bits))
+        if ka + kb > max_limbs:  # smaller limbs only need more of them
+            return None
         part = min(ka, kb) * min(n1, n2) * 4 ** (bits - 1)
         if part < 2**52 and limb_error_bound(bits, ka, kb, n1, n2, n_fft, norm_a,
                                              norm_b) < 0.5:

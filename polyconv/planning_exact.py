@@ -174,7 +174,7 @@ def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch:
             limbs = None  # that is fft-exact
     else:
         limbs = None
-    if limbs is not None and limbs[1] + limbs[2] <= 12:
+    if limbs is not None:  # choose_limbs caps the count at 12
         bits, ka, kb = limbs
         transforms = (ka + kb) + (ka + kb - 1)
         if modular_limbs:

@@ -221,7 +221,7 @@ def test_limbs_exact(bits):
             b = adversarial(n + 3, bits, "alternating")
             n_fft = 1 << (2 * n + 2).bit_length()
             limb_bits, ka, kb = bounds.choose_limbs(bounds.max_abs(a), bounds.max_abs(b),
-                                                    n, n + 3, n_fft)
+                                                    n, n + 3, n_fft, max_limbs=64)
             out = exact_fft.convolve_limbs(a, b, limb_bits, ka, kb, n_fft)
             assert as_list(out) == flint_product(a, b)  # python-flint reference
 
