@@ -463,3 +463,12 @@ def test_kronecker_wide_slots_match_flint(two_point):
     assert [int(v) for v in got] == ref
     got = kronecker.convolve_kronecker(a, b, 60, two_point=two_point)
     assert [int(v) for v in got] == ref[:60]
+
+
+def test_choose_limbs_caps_the_limb_count():
+    """More than 12 limbs in all is left to the Kronecker engine (common practice, no source):
+    5000-bit operands get no limb size; 62-bit ones get few limbs."""
+    assert bounds.choose_limbs(2**5000, 2**5000, 1000, 1000, 2048) is None
+    bits, ka, kb = bounds.choose_limbs(2**62, 2**62, 1000, 1000, 2048)
+    assert ka + kb <= 12 and bits * ka >= 63
+    assert bounds.choose_limbs(2**300, 2**300, 10, 10, 32, max_limbs=64) is not None
