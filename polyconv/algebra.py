@@ -35,6 +35,7 @@ from __future__ import annotations
 import heapq
 import itertools
 import numbers
+import operator
 from collections.abc import Iterable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass
@@ -707,7 +708,7 @@ def _inverse_base(ring: _Ring, a: np.ndarray, n: int, first) -> np.ndarray:
     m = ring.modulus
     b = [first]
     for k in range(1, n):
-        value = -first * sum(coeffs[i] * b[k - i] for i in range(1, k + 1))
+        value = -first * sum(map(operator.mul, coeffs[1:k + 1], reversed(b)))  # a_i b_(k-i)
         b.append(value % m if m is not None else value)
     return ring.finish(ring.convert(np.array(b, dtype=object)))
 

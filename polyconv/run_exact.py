@@ -35,9 +35,11 @@ from .planning_exact import FLOAT_EXACT_LIMIT, INT64_LIMIT, IntegerFacts
 #: FFT costs at least ~15 us).
 NORM_MIN_WORK = 2**14
 #: Centred norms are computed for moduli below this (two limbs of at most 16 bits split them)
-#: and products up to this many terms: beyond n1 n2 = 2^31 two limbs fail even with a zero top
-#: limb, so the O(n) passes would be wasted (0.9 ms at n = 2^16, 7.6 ms at 2^18, measured).
+#: and products of this many terms: below 2^26 two limbs are certified without them (up to
+#: n1 n2 = 2^28 in fact), beyond 2^31 two limbs fail even with a zero top limb, so the O(n)
+#: passes would be wasted (0.9 ms at n = 2^16, 7.6 ms at 2^18, measured).
 CENTRED_NORM_MODULUS_LIMIT = 2**31
+CENTRED_NORM_MIN_WORK = 2**26
 CENTRED_NORM_MAX_WORK = 2**31
 
 
@@ -95,7 +97,7 @@ def integer_facts(x: np.ndarray, y: np.ndarray, modulus: int | None,
             norm_b = _round_norm(_largest_row_norm(y))
     centred_a = centred_b = math.inf
     if (modulus is not None and modulus < CENTRED_NORM_MODULUS_LIMIT
-            and NORM_MIN_WORK <= n1 * n2 <= CENTRED_NORM_MAX_WORK
+            and CENTRED_NORM_MIN_WORK <= n1 * n2 <= CENTRED_NORM_MAX_WORK
             and x.dtype == np.int64 and y.dtype == np.int64):
         # the limb engine splits centred residues; their norms can save a limb (bounds.limb_norms)
         centred_a = _round_norm(_largest_row_norm(centered_residues(x, modulus)))
