@@ -880,7 +880,9 @@ def _divmod_integers(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarr
     to the symmetric range and proved by the full product ``q b`` (which also gives ``r``)."""
     integers = _Integers()
     d = b.shape[0] - 1
-    bits = max(max_abs(a).bit_length(), max_abs(b).bit_length()) + 2  # a guess; may double
+    # a guess, doubled until the product proves it: the quotient's coefficients are typically
+    # about |a| / |b| (a = q b + r with random q, b: |a| ~ sqrt(n) |q| |b|); 4 bits of margin
+    bits = max(8, max_abs(a).bit_length() - max_abs(b).bit_length() + 4)
     while True:
         ring = _Modular(1 << bits)
         q_mod = _quotient_newton(ring, ring.convert(a), ring.convert(b))
