@@ -117,15 +117,16 @@ def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch:
     certificates: dict[str, str] = {}
     notes: dict[str, str] = {}
 
-    # direct summation (numpy int64 when the bound allows, two or three int64 half-word products
-    # for a modulus below 2^31, Python ints otherwise)
+    # direct summation (float64 sums while they stay below 2^53, int64 below 2^63, two or three
+    # half-word products for a modulus below 2^31, Python ints otherwise)
+    direct_float = c.get("direct_float", c["direct_int64"])
     if facts.modulus is not None and facts.modulus < 2**31 and not fits_int64:
         halves = 2 if one_split_fits(min(n1, n2), facts.modulus) else 3
-        options["direct-exact"] = halves * (c["direct_int64"]["overhead"] + c["direct_int64"][
-            "per_mac"] * n1 * n2 * rows)
+        k = direct_float if min(n1, n2) << 34 < FLOAT_EXACT_LIMIT else c["direct_int64"]
+        options["direct-exact"] = halves * (k["overhead"] + k["per_mac"] * n1 * n2 * rows)
     elif fits_int64:
-        options["direct-exact"] = c["direct_int64"]["overhead"] + c["direct_int64"][
-            "per_mac"] * n1 * n2 * rows
+        k = direct_float if bound < FLOAT_EXACT_LIMIT else c["direct_int64"]
+        options["direct-exact"] = k["overhead"] + k["per_mac"] * n1 * n2 * rows
     else:
         options["direct-exact"] = c["direct_object"]["overhead"] + c["direct_object"][
             "per_mac"] * n1 * n2 * rows * (1 + words / 4)
