@@ -779,8 +779,8 @@ def poly_divmod(a, b, *, modulus: int | None = None) -> tuple[np.ndarray, np.nda
     growth is set by the roots of ``b``), so the quotient is instead computed modulo ``2^B`` and
     lifted to the symmetric range; the full product ``q b`` then both proves it (``a - q b`` must
     vanish in degrees ``>= deg b``, and the quotient is unique since ``b``'s leading coefficient
-    is a unit) and gives ``r``.  ``B`` starts from the sizes of ``a`` and ``b`` and doubles until
-    the check passes.
+    is a unit) and gives ``r``.  ``B`` starts at ``bits(max|a|) - bits(max|b|) + 4`` (the size of
+    a typical quotient) and doubles until the check passes.
 
     Floats: the result is as accurate as the division problem allows; dividing by a ``b`` with
     roots of modulus above 1 amplifies rounding errors (with either algorithm).
