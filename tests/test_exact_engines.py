@@ -17,6 +17,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from polyconv import bounds
+from polyconv import convolve as polyconv_convolve
 from polyconv.engines import _intpack, exact_fft, kronecker, ntt
 
 RNG = np.random.default_rng(12345)
@@ -472,3 +473,13 @@ def test_choose_limbs_caps_the_limb_count():
     bits, ka, kb = bounds.choose_limbs(2**62, 2**62, 1000, 1000, 2048)
     assert ka + kb <= 12 and bits * ka >= 63
     assert bounds.choose_limbs(2**300, 2**300, 10, 10, 32, max_limbs=64) is not None
+
+
+def test_direct_zero_times_huge():
+    """Found by bench/exactness_campaign.py: an all-zero operand times 2000-bit values (bound 0)
+    must not go through float64 (common practice, no source: 0 * x = 0)."""
+    from polyconv.engines.exact_direct import convolve_exact_direct
+    huge = np.array([2**2000 + i for i in range(5)], dtype=object)
+    zeros = np.zeros(3, dtype=np.int64)
+    assert as_list(convolve_exact_direct(zeros, huge)) == [0] * 7
+    assert as_list(polyconv_convolve(zeros, huge)) == [0] * 7

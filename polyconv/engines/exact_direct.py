@@ -43,7 +43,9 @@ def convolve_exact_direct(a: np.ndarray, b: np.ndarray, keep: int | None = None)
         a, b = a[:keep], b[:keep]
     max_a, max_b = _intpack.max_abs(a), _intpack.max_abs(b)
     bound = min(a.shape[0], b.shape[0]) * max_a * max_b
-    if bound < FLOAT_EXACT_LIMIT:  # every partial sum is an integer below 2^53: float64 is exact
+    if bound < FLOAT_EXACT_LIMIT and max(max_a, max_b) < FLOAT_EXACT_LIMIT:
+        # every operand and partial sum is an integer below 2^53: float64 is exact (the operand
+        # check matters when one side is all zero and the other huge)
         out = _convolve_float(a, b)
     elif bound < INT64_LIMIT and max(max_a, max_b) < INT64_LIMIT:
         out = convolve_direct(a.astype(np.int64), b.astype(np.int64))
