@@ -84,32 +84,45 @@ else:  # pragma: no cover - depends on scipy's layout
 ROW_BY_ROW_FROM = {"rfft": 2**17, "irfft": 2**15, "fft": 2**15, "ifft": 2**14}
 
 
-def _row_by_row(kernel, name: str, with_length: bool):
-    """``kernel`` applied to one row at a time for long transforms of several rows."""
-    limit = ROW_BY_ROW_FROM[name]
-
-    def transform(x, *args):
-        axis, threads = args[-2], args[-1]
-        length = args[0] if with_length else x.shape[axis]
-        if threads > 1 or x.ndim < 2 or length < limit or axis % x.ndim != x.ndim - 1:
-            return kernel(x, *args)
-        rows = x.reshape(-1, x.shape[-1])
-        if rows.shape[0] == 1:
-            return kernel(x, *args)
-        first = kernel(rows[0], *args[:-2], -1, 1)
-        out = np.empty((rows.shape[0], first.shape[-1]), dtype=first.dtype)
-        out[0] = first
-        for i in range(1, rows.shape[0]):
-            out[i] = kernel(rows[i], *args[:-2], -1, 1)
-        return out.reshape(x.shape[:-1] + (first.shape[-1],))
-
-    return transform
+def _by_rows(kernel, x: np.ndarray, *length) -> np.ndarray:
+    """``kernel`` on one row of ``x`` (last axis) at a time, on one thread."""
+    rows = x.reshape(-1, x.shape[-1])
+    first = kernel(rows[0], *length, -1, 1)
+    out = np.empty((rows.shape[0], first.shape[-1]), dtype=first.dtype)
+    out[0] = first
+    for i in range(1, rows.shape[0]):
+        out[i] = kernel(rows[i], *length, -1, 1)
+    return out.reshape(x.shape[:-1] + (first.shape[-1],))
 
 
-rfft = _row_by_row(_kernels[0], "rfft", False)
-irfft = _row_by_row(_kernels[1], "irfft", True)
-fft = _row_by_row(_kernels[2], "fft", False)
-ifft = _row_by_row(_kernels[3], "ifft", False)
+def _several_long_rows(x: np.ndarray, axis: int, threads: int, length: int, name: str) -> bool:
+    return (threads == 1 and x.ndim > 1 and length >= ROW_BY_ROW_FROM[name]
+            and axis % x.ndim == x.ndim - 1 and x.size > x.shape[-1])
+
+
+def rfft(x: np.ndarray, axis: int, threads: int) -> np.ndarray:
+    if x.ndim > 1 and _several_long_rows(x, axis, threads, x.shape[axis], "rfft"):
+        return _by_rows(_kernels[0], x)
+    return _kernels[0](x, axis, threads)
+
+
+def irfft(spec: np.ndarray, n: int, axis: int, threads: int) -> np.ndarray:
+    if spec.ndim > 1 and _several_long_rows(spec, axis, threads, n, "irfft"):
+        return _by_rows(_kernels[1], spec, n)
+    return _kernels[1](spec, n, axis, threads)
+
+
+def fft(x: np.ndarray, axis: int, threads: int) -> np.ndarray:
+    if x.ndim > 1 and _several_long_rows(x, axis, threads, x.shape[axis], "fft"):
+        return _by_rows(_kernels[2], x)
+    return _kernels[2](x, axis, threads)
+
+
+def ifft(spec: np.ndarray, axis: int, threads: int) -> np.ndarray:
+    if spec.ndim > 1 and _several_long_rows(spec, axis, threads, spec.shape[axis], "ifft"):
+        return _by_rows(_kernels[3], spec)
+    return _kernels[3](spec, axis, threads)
+
 
 rfft.__doc__ = "Real-input forward FFT along ``axis`` (input already at transform length)."
 irfft.__doc__ = "Inverse of :func:`rfft` to ``n`` real points, scaled by ``1/n``."
