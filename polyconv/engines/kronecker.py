@@ -1,4 +1,4 @@
-"""Exact integer convolution by Kronecker substitution and one GMP multiplication.
+"""Exact integer convolution by Kronecker substitution: GMP products of packed coefficients.
 
 Kronecker substitution (L. Kronecker, 1882; see von zur Gathen & Gerhard, *Modern Computer
 Algebra*, section 8.4): the product polynomial ``c = a * b`` satisfies ``c(2^s) = a(2^s) b(2^s)``,
