@@ -34,15 +34,9 @@ def measure_exact(table: dict, quick: bool, best_time: Callable, fit: Callable,
     exact: dict = {}
 
     say("exact direct summation")
-    rows, times = [], []
-    for n in (16, 64, 128, 256, 512) if quick else (16, 32, 64, 128, 256, 512, 1024):
-        # 26-bit values: the bound n 2^50 is past float64's 2^53 but inside int64
-        a, b = rng.integers(-2**25, 2**25, n), rng.integers(-2**25, 2**25, n)
-        times.append(best_time(lambda a=a, b=b: convolve_exact_direct(a, b), budget))
-        rows.append([1.0, n * n])
-    c0, cmac = fit(rows, times)
-    exact["direct_int64"] = {"overhead": c0, "per_mac": cmac}
-    exact["direct_float"] = measure_direct_float(rng, quick, best_time, fit)
+    # 26-bit values: the bound n 2^50 is past float64's 2^53 but inside int64
+    exact["direct_int64"] = measure_direct(rng, 25, quick, best_time, fit)
+    exact["direct_float"] = measure_direct(rng, 15, quick, best_time, fit)
     rows, times = [], []
     for n, bits in [(8, 100), (32, 100), (64, 300), (96, 1000)]:
         a = np.array([int(v) << (bits - 40) for v in rng.integers(-2**40, 2**40, n)],
@@ -132,13 +126,17 @@ def measure_exact(table: dict, quick: bool, best_time: Callable, fit: Callable,
     return exact
 
 
-def measure_direct_float(rng: np.random.Generator, quick: bool, best_time: Callable,
-                         fit: Callable) -> dict:
-    """Schoolbook products whose sums stay below 2^53 (run in float64): overhead and per-MAC."""
+def measure_direct(rng: np.random.Generator, bits: int, quick: bool, best_time: Callable,
+                   fit: Callable) -> dict:
+    """Schoolbook products of ``bits``-bit operands: overhead and seconds per multiply-add.
+
+    15-bit operands keep every sum below 2^53 (the float64 path of
+    :func:`polyconv.engines.exact_direct.convolve_exact_direct`), 25-bit ones go past it (int64).
+    """
     budget = 0.02 if quick else 0.06
     rows, times = [], []
     for n in (16, 64, 128, 256, 512) if quick else (16, 32, 64, 128, 256, 512, 1024):
-        a, b = rng.integers(-2**15, 2**15, n), rng.integers(-2**15, 2**15, n)
+        a, b = rng.integers(-2**bits, 2**bits, n), rng.integers(-2**bits, 2**bits, n)
         times.append(best_time(lambda a=a, b=b: convolve_exact_direct(a, b), budget))
         rows.append([1.0, n * n])
     c0, cmac = fit(rows, times)
