@@ -23,6 +23,8 @@ the GIL inside GMP), which makes the scheme pay from half the size.
 
 from __future__ import annotations
 
+from collections.abc import Callable
+
 import gmpy2
 import numpy as np
 
@@ -85,6 +87,7 @@ def convolve_kronecker(a: np.ndarray, b: np.ndarray, keep: int | None = None, *,
     numpy.ndarray
         Length ``min(keep, n1 + n2 - 1)``: object array of Python ints, or int64 if ``as_int64``.
     """
+    square = b is a
     if keep is not None:
         a, b = a[:keep], b[:keep]
     count = a.shape[0] + b.shape[0] - 1
@@ -94,7 +97,8 @@ def convolve_kronecker(a: np.ndarray, b: np.ndarray, keep: int | None = None, *,
     if two_point is None:
         two_point = uses_two_point(width, a.shape[0], b.shape[0], threads)
     if two_point and count >= 2:
-        out = _two_point_product(a, b, width, count, threads)
+        out = _two_point(a, b, width, count, threads, _intpack.pack, _intpack.unpack_signed,
+                         square)
     else:
         z = _intpack.pack(a, width) * _intpack.pack(b, width)
         out = _intpack.unpack_signed(z, width, count)
@@ -107,29 +111,31 @@ def _as_requested(out: np.ndarray, as_int64: bool) -> np.ndarray:
     return out if out.dtype == object else out.astype(object)
 
 
-def _two_point_product(a: np.ndarray, b: np.ndarray, width: int, count: int,
-                       threads: int) -> np.ndarray:
-    """KS2: products at ``2^h`` and ``-2^h`` with ``h = 4 width`` bits (half a slot)."""
+def _two_point(a: np.ndarray, b: np.ndarray, width: int, count: int, threads: int,
+               pack: Callable, unpack: Callable, square: bool = False) -> np.ndarray:
+    """KS2: products at ``2^h`` and ``-2^h`` with ``h = 4 width`` bits (half a slot).
+
+    ``pack(x, width)`` writes a sequence into full slots (so the even and odd parts give
+    ``x(2^h)`` and ``x(-2^h)``), ``unpack(z, width, count)`` reads the slots of the recovered
+    even and odd coefficient sequences; the two are interleaved along the first axis.
+    """
     half = 4 * width
-    a_plus, a_minus = _evaluate_plus_minus(a, width, half)
-    b_plus, b_minus = (a_plus, a_minus) if b is a else _evaluate_plus_minus(b, width, half)
+
+    def plus_minus(x: np.ndarray) -> tuple[gmpy2.mpz, gmpy2.mpz]:
+        even = pack(x[0::2], width)
+        odd = pack(x[1::2], width) << half
+        return even + odd, even - odd
+
+    a_plus, a_minus = plus_minus(a)
+    b_plus, b_minus = (a_plus, a_minus) if square else plus_minus(b)
     h_plus, h_minus = gmp_products([(a_plus, b_plus), (a_minus, b_minus)], threads)
-    even = (h_plus + h_minus) >> 1
-    odd = (h_plus - h_minus) >> (half + 1)
     n_even = (count + 1) // 2
-    out_even = _intpack.unpack_signed(even, width, n_even)
-    out_odd = _intpack.unpack_signed(odd, width, count - n_even)
-    out = np.empty(count, dtype=np.result_type(out_even, out_odd))
+    out_even = unpack((h_plus + h_minus) >> 1, width, n_even)
+    out_odd = unpack((h_plus - h_minus) >> (half + 1), width, count - n_even)
+    out = np.empty((count,) + out_even.shape[1:], dtype=np.result_type(out_even, out_odd))
     out[0::2] = out_even
     out[1::2] = out_odd
     return out
-
-
-def _evaluate_plus_minus(x: np.ndarray, width: int, half: int) -> tuple[gmpy2.mpz, gmpy2.mpz]:
-    """``x(2^half)`` and ``x(-2^half)`` from even and odd parts packed in full slots."""
-    even = _intpack.pack(x[0::2], width)
-    odd = _intpack.pack(x[1::2], width) << half
-    return even + odd, even - odd
 
 
 def multiply_rows(a: np.ndarray, b: np.ndarray, keep: int | None = None, *,
@@ -173,27 +179,13 @@ def multiply_rows(a: np.ndarray, b: np.ndarray, keep: int | None = None, *,
     if two_point is None:
         two_point = uses_two_point(width, a.shape[0], b.shape[0], threads)
     if two_point and count >= 2:
-        half = 4 * width
-        a_plus, a_minus = _rows_plus_minus(a, width, half)
-        b_plus, b_minus = (a_plus, a_minus) if square else _rows_plus_minus(b, width, half)
-        h_plus, h_minus = gmp_products([(a_plus, b_plus), (a_minus, b_minus)], threads)
-        n_even = (count + 1) // 2
-        out = np.empty((count, width), dtype=np.uint8)
-        out[0::2] = _intpack.unpack_rows((h_plus + h_minus) >> 1, width, n_even)
-        out[1::2] = _intpack.unpack_rows((h_plus - h_minus) >> (half + 1), width,
-                                         count - n_even)
+        out = _two_point(a, b, width, count, threads, _intpack.pack_rows, _intpack.unpack_rows,
+                         square)
     else:
         packed = _intpack.pack_rows(a, width)
         z = gmpy2.square(packed) if square else packed * _intpack.pack_rows(b, width)
         out = _intpack.unpack_rows(z, width, count)
     return _intpack.trim_rows(out)
-
-
-def _rows_plus_minus(x: np.ndarray, width: int, half: int) -> tuple[gmpy2.mpz, gmpy2.mpz]:
-    """``x(2^half)`` and ``x(-2^half)`` of byte rows, from even and odd parts in full slots."""
-    even = _intpack.pack_rows(x[0::2], width)
-    odd = _intpack.pack_rows(x[1::2], width) << half
-    return even + odd, even - odd
 
 
 def reduce_operand(x: np.ndarray, modulus: int) -> np.ndarray:
@@ -247,16 +239,8 @@ def convolve_kronecker_mod(a: np.ndarray, b: np.ndarray, modulus: int,
     if two_point is None:
         two_point = uses_two_point(width, a.shape[0], b.shape[0], threads)
     if two_point and count >= 2:
-        # KS2 as in _two_point_product; the c_k are >= 0, so the even and odd parts' slots are
-        # read as they are
-        half = 4 * width
-        a_plus, a_minus = _evaluate_plus_minus(a, width, half)
-        b_plus, b_minus = _evaluate_plus_minus(b, width, half)
-        h_plus, h_minus = gmp_products([(a_plus, b_plus), (a_minus, b_minus)], threads)
-        n_even = (count + 1) // 2
-        rows = np.empty((count, width), dtype=np.uint8)
-        rows[0::2] = _intpack.slot_rows((h_plus + h_minus) >> 1, width, n_even)
-        rows[1::2] = _intpack.slot_rows((h_plus - h_minus) >> (half + 1), width, count - n_even)
+        # the c_k are >= 0, so the slots of the even and odd parts are read as they are
+        rows = _two_point(a, b, width, count, threads, _intpack.pack, _intpack.slot_rows)
     else:
         z = _intpack.pack(a, width) * _intpack.pack(b, width)
         rows = _intpack.slot_rows(z, width, count)
