@@ -351,9 +351,7 @@ def unpack_rows(z: gmpy2.mpz, width: int, count: int) -> np.ndarray:
     :func:`pack_rows`: slot ``i`` of ``z mod 2^(8 width count)`` holds ``x_i`` minus a borrow that
     is the top bit of slot ``i - 1`` (see :func:`unpack_signed`), added back byte by byte.
     """
-    low = gmpy2.f_mod_2exp(z, 8 * width * count)
-    rows = np.frombuffer(low.to_bytes(width * count, "little"),
-                         dtype=np.uint8).reshape(count, width).copy()
+    rows = slot_rows(gmpy2.f_mod_2exp(z, 8 * width * count), width, count).copy()
     _add_to_rows(rows, np.flatnonzero(rows[:-1, -1] >= 0x80) + 1, np.uint8(1))
     return rows
 
