@@ -80,29 +80,25 @@ def register(sub) -> None:
 
 
 def parse_modulus(text: str | None) -> int | None:
-    """``--modulus`` as an exact integer >= 2."""
-    if text is None:
-        return None
-    t = text.strip().replace("_", "")
-    if not re.fullmatch(r"[+-]?\d+", t):
-        raise CliError(f"--modulus must be a whole number >= 2; got {text!r}")
-    m = int(t)
-    if m < 2:
-        raise CliError(f"--modulus must be at least 2; got {m}")
-    return m
+    """``--modulus`` as an exact integer >= 2 (digits may be grouped with underscores)."""
+    return _whole_number(text, "--modulus", 2, text and text.strip().replace("_", ""))
 
 
 def parse_length(text: str | None) -> int | None:
     """``--length`` as an integer >= 1."""
+    return _whole_number(text, "--length", 1, text and text.strip())
+
+
+def _whole_number(text: str | None, option: str, lowest: int, digits: str | None) -> int | None:
+    """``digits`` (the cleaned ``text``) as an integer ``>= lowest``, or None without ``text``."""
     if text is None:
         return None
-    t = text.strip()
-    if not re.fullmatch(r"[+-]?\d+", t):
-        raise CliError(f"--length must be a whole number >= 1; got {text!r}")
-    n = int(t)
-    if n < 1:
-        raise CliError(f"--length must be at least 1; got {n}")
-    return n
+    if not re.fullmatch(r"[+-]?\d+", digits):
+        raise CliError(f"{option} must be a whole number >= {lowest}; got {text!r}")
+    value = int(digits)
+    if value < lowest:
+        raise CliError(f"{option} must be at least {lowest}; got {value}")
+    return value
 
 
 def run(args) -> int:
