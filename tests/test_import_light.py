@@ -1,0 +1,37 @@
+"""``import polyconv`` stays light: heavy optional modules load on first use only.
+
+A user who only multiplies integer sequences should not pay for scipy.stats (about a second
+cold), matplotlib or a JIT compiler at import time (requirement of the project; common practice
+for libraries with optional heavy parts, no source).
+"""
+
+import json
+import subprocess
+import sys
+
+HEAVY = ("scipy.stats", "matplotlib", "numba", "polyconv.dist")
+
+
+def _loaded_after(code: str) -> list[str]:
+    probe = (f"import sys\n{code}\nimport json\n"
+             f"print(json.dumps([m for m in {HEAVY!r} if m in sys.modules]))")
+    out = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True,
+                         check=True)
+    return json.loads(out.stdout.strip().splitlines()[-1])
+
+
+def test_import_polyconv_loads_no_heavy_module():
+    assert _loaded_after("import polyconv") == []
+
+
+def test_dist_loads_on_first_use():
+    loaded = _loaded_after("import polyconv\nL = polyconv.dist.Lattice([0.5, 0.5])")
+    assert "polyconv.dist" in loaded and "scipy.stats" in loaded
+    assert "matplotlib" not in loaded
+
+
+def test_from_import_dist_still_works():
+    # `from polyconv import dist` must give the same module as attribute access
+    code = ("import polyconv\nfrom polyconv import dist\n"
+            "assert dist is polyconv.dist\nassert dist.Lattice([1.0]).mean() == 0.0")
+    subprocess.run([sys.executable, "-c", code], check=True)
