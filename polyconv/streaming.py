@@ -32,6 +32,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .api import convolve
+from .inputs import as_number_array
 
 #: Smallest default block (samples): large enough that a block product amortises the fixed cost
 #: of one :func:`polyconv.api.convolve` call and of one read and one write, small enough (a few
@@ -204,10 +205,7 @@ class OverlapAdd:
 
 def check_kernel(kernel) -> np.ndarray:
     """The kernel as a 1-D, non-empty numeric array (native byte order)."""
-    try:
-        k = np.asarray(kernel)
-    except (ValueError, TypeError) as exc:
-        raise ValueError(f"kernel must be a 1-D array-like of numbers; numpy said: {exc}") from None
+    k = as_number_array(kernel, "kernel")
     if k.ndim != 1:
         raise ValueError(f"kernel must be 1-D, got an array of shape {k.shape}")
     if k.shape[0] == 0:
@@ -339,10 +337,7 @@ def convolve_chunks(chunks: Iterable, kernel, *,
 
 
 def _check_chunk(chunk, index: int) -> np.ndarray:
-    try:
-        x = np.asarray(chunk)
-    except (ValueError, TypeError) as exc:
-        raise ValueError(f"chunks[{index}] is not an array of numbers; numpy said: {exc}") from None
+    x = as_number_array(chunk, f"chunks[{index}]")
     if x.ndim != 1:
         raise ValueError(f"chunks[{index}] must be 1-D, got shape {x.shape}")
     if x.dtype.kind not in "biufcO":
