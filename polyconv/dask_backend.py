@@ -351,6 +351,14 @@ def _cut(n1: int, n2: int, pieces: int) -> _Blocks:
 
 def _resolve_client(client):
     if client is not None:
+        try:
+            from distributed import Client
+        except ImportError:  # pragma: no cover - dask without distributed
+            raise ValueError("client= needs the distributed package (pip install "
+                             "distributed)") from None
+        if not isinstance(client, Client):
+            raise TypeError("client must be a distributed.Client or None, got "
+                            f"{type(client).__name__}")
         return client
     try:
         from distributed import default_client
