@@ -23,6 +23,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .api import convolve
+from .budget import check_allocation, coefficient_bytes
 from .inputs import MODES, as_number_array
 from .streaming import (
     INT64_LIMIT,
@@ -304,6 +305,9 @@ def exact_product_dask(a, b, *, modulus: int | None = None, client=None,
     blocks = _cut(n1, n2, _check_pieces(pieces, client))
     bound = min(n1, n2) * _operand_max_abs(x) * _operand_max_abs(y)
     summation = exact_summation(bound, modulus)
+    check_allocation((n1 + n2 - 1) * coefficient_bytes("integer", bound.bit_length() + 1),
+                     f"exact_product_dask of a ({n1} coefficients) and b ({n2}), gathered in "
+                     "memory")
     a_parts = _operand_blocks(x, blocks.length, client)
     b_parts = _operand_blocks(y, blocks.length, client)
     out = np.zeros(n1 + n2 - 1, dtype=object if summation.wide else np.int64)
