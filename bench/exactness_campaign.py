@@ -1,14 +1,18 @@
 """Randomised exactness campaign: polyconv's integer products against python-flint.
 
-    python bench/exactness_campaign.py [--seconds 120] [--seed 1]
+    python bench/exactness_campaign.py [--products 100000] [--seconds 3600] [--seed 1]
 
-Draws random shapes and magnitudes (lengths 1..2^15, coefficients from 1 to 2000 bits, signs
-random or adversarial, moduli small, NTT primes, near 2^62/2^63/2^64 and huge), forces every
-applicable exact engine as well as "auto", and compares every coefficient with python-flint's
-fmpz_poly product (reduced by the modulus); one draw in five also checks an exact
-``polyconv.product`` of 2..12 factors (optionally truncated) and a ``polyconv.power``.  Prints a
-tally per engine and stops at the first mismatch with a reproducer.  Long campaigns live here,
-not in the test suite.
+Each draw picks lengths (mostly short, one in ten up to 2^12, one in fifty up to 2^15), an
+adversarial magnitude pattern (random, all at the maximum, alternating signs, zeros, a single huge
+value among small ones, values near 2^63, 2^64 or 2^1024, sparse), an operand form (numpy int64 /
+uint64 / object arrays, or plain lists of Python ints) and a modulus class (none, small, NTT
+primes, odd moduli between 2^31 and 2^52, powers of two, 2^62 - 57, huge primes, even
+composites); it forces every exact engine ("direct-exact", "fft-exact", "limbs", "kronecker",
+"ntt"; an engine that refuses with a ValueError is skipped) and "auto", and compares every
+coefficient with python-flint's fmpz_poly product (reduced by the modulus).  One draw in fifty
+also checks ``polyconv.product`` and ``polyconv.power``.  Stops at the first mismatch with a
+reproducer, or when ``--products`` products or ``--seconds`` are reached; prints the tally per
+engine and per modulus class.  Long campaigns live here, not in the test suite.
 """
 
 from __future__ import annotations
@@ -28,66 +32,127 @@ sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
 import polyconv  # noqa: E402
 
 ENGINES = ("auto", "direct-exact", "fft-exact", "limbs", "kronecker", "ntt")
-MODULI = [None] * 6 + [2, 3, 97, 2**20, 998244353, 469762049, 2**31 - 1, 2**36, 2**61 - 1,
-                       2**62 - 57, 2**62, 2**63, 2**64 - 1, 2**64, 10**40 + 121]
+MODULUS_CLASSES = {
+    "none": [None],
+    "small": [2, 3, 7, 97, 65537, 2**20 + 7],
+    "NTT primes": [998244353, 469762049, 167772161],
+    "odd 2^31..2^52": [2**31 + 11, 2**32 - 1, 3**20, 2**40 + 15, 2**52 - 1, "random-odd"],
+    "2^e": [2**16, 2**31, 2**36, 2**52, 2**62, 2**63, 2**64],
+    "2^62-57": [2**62 - 57],
+    "huge primes": [2**61 - 1, 2**89 - 1, 2**127 - 1, 2**521 - 1],
+    "even composites": [6, 10**12, 3 * 2**31, 2**62 + 2, 2**64 - 2, 10**40 + 120],
+}
+STYLES = ("random", "max", "alternating", "zeros", "single-huge", "near-2^63", "near-2^64",
+          "near-2^1024", "sparse")
 
 
-def operand(rng: random.Random, n: int, bits: int, style: str) -> np.ndarray:
+def magnitude_values(rng: random.Random, n: int, bits: int, style: str) -> list[int]:
     top = (1 << bits) - 1
     if style == "max":
-        values = [top] * n
-    elif style == "alternating":
-        values = [top if i % 2 == 0 else -top for i in range(n)]
-    elif style == "sparse":
-        values = [rng.randint(-top, top) if rng.random() < 0.05 else 0 for _ in range(n)]
-    else:
-        values = [rng.randint(-top, top) for _ in range(n)]
-    if bits <= 62:
+        return [top] * n
+    if style == "alternating":
+        return [top if i % 2 == 0 else -top for i in range(n)]
+    if style == "zeros":
+        return [0] * n
+    if style == "single-huge":
+        values = [rng.randint(-3, 3) for _ in range(n)]
+        values[rng.randrange(n)] = rng.choice([1, -1]) * (1 << rng.choice([63, 64, 200, 1100]))
+        return values
+    if style.startswith("near-"):
+        base = 1 << int(style[7:])
+        return [rng.choice([1, -1]) * (base + rng.randint(-4, 4)) if rng.random() < 0.7
+                else rng.randint(-top, top) for _ in range(n)]
+    if style == "sparse":
+        return [rng.randint(-top, top) if rng.random() < 0.1 else 0 for _ in range(n)]
+    return [rng.randint(-top, top) for _ in range(n)]
+
+
+def as_operand(rng: random.Random, values: list[int]):
+    """The values in one of the forms users pass: list, int64, uint64 or object array."""
+    form = rng.choice(["list", "list", "array", "array"])
+    if form == "list":
+        return values
+    if all(-2**63 <= v < 2**63 for v in values):
         return np.array(values, dtype=np.int64)
-    out = np.empty(n, dtype=object)
+    if all(0 <= v < 2**64 for v in values):
+        return np.array(values, dtype=np.uint64)
+    out = np.empty(len(values), dtype=object)
     out[:] = values
     return out
 
 
-def reference(a, b, modulus) -> list[int]:
-    c = [int(v) for v in (flint.fmpz_poly([int(v) for v in a])
-                          * flint.fmpz_poly([int(v) for v in b])).coeffs()]
+def reference(a: list[int], b: list[int], modulus) -> list[int]:
+    c = [int(v) for v in (flint.fmpz_poly(a) * flint.fmpz_poly(b)).coeffs()]
     c += [0] * (len(a) + len(b) - 1 - len(c))
     return c if modulus is None else [v % modulus for v in c]
 
 
+def draw_lengths(rng: random.Random) -> tuple[int, int]:
+    roll = rng.random()
+    top = 15 if roll < 0.02 else 12 if roll < 0.12 else 6
+    return tuple(max(1, int(2 ** rng.uniform(0, top))) for _ in range(2))
+
+
+def draw_modulus(rng: random.Random) -> tuple[str, int | None]:
+    name = rng.choice(list(MODULUS_CLASSES))
+    m = rng.choice(MODULUS_CLASSES[name])
+    if m == "random-odd":
+        m = rng.randrange(2**31 + 1, 2**52, 2)
+    return name, m
+
+
 def main() -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--seconds", type=float, default=120.0)
+    parser.add_argument("--products", type=int, default=100_000)
+    parser.add_argument("--seconds", type=float, default=3600.0)
     parser.add_argument("--seed", type=int, default=1)
     args = parser.parse_args()
     rng = random.Random(args.seed)
-    tally: Counter = Counter()
-    end = time.monotonic() + args.seconds
-    while time.monotonic() < end:
-        n1, n2 = (max(1, int(2 ** rng.uniform(0, 15))) for _ in range(2))
-        bits = rng.choice([1, 2, 8, 15, 16, 20, 31, 40, 53, 62, 63, 64, 100, 500, 2000])
-        if bits > 62 and n1 * n2 > 2**22:
-            n1, n2 = min(n1, 2**11), min(n2, 2**11)
-        style = rng.choice(["random", "random", "max", "alternating", "sparse"])
-        a, b = operand(rng, n1, bits, style), operand(rng, n2, bits, "random")
-        modulus = rng.choice(MODULI)
-        want = reference(a, b, modulus)
+    engines: Counter = Counter()
+    classes: Counter = Counter()
+    styles: Counter = Counter()
+    start = time.monotonic()
+    end = start + args.seconds
+    draws = 0
+    while time.monotonic() < end and sum(engines.values()) < args.products:
+        draws += 1
+        n1, n2 = draw_lengths(rng)
+        bits = rng.choice([1, 2, 8, 15, 16, 18, 20, 26, 31, 32, 40, 53, 62, 63, 64, 100, 500,
+                           2000])
+        style = rng.choice(STYLES)
+        if (bits > 64 or style in ("near-2^1024", "single-huge")) and n1 * n2 > 2**20:
+            n1, n2 = min(n1, 2**10), min(n2, 2**10)
+        va = magnitude_values(rng, n1, bits, style)
+        vb = magnitude_values(rng, n2, bits, rng.choice(["random", style]))
+        cls, modulus = draw_modulus(rng)
+        want = reference(va, vb, modulus)
+        a, b = as_operand(rng, va), as_operand(rng, vb)
         for engine in ENGINES:
             try:
                 got = polyconv.convolve(a, b, method=engine, modulus=modulus)
             except ValueError:
                 continue  # the engine refuses: it cannot certify this case
-            if [int(v) for v in got] != want:
+            if got.dtype.kind == "f" or [int(v) for v in got] != want:
                 print(f"MISMATCH engine={engine} n1={n1} n2={n2} bits={bits} style={style} "
-                      f"modulus={modulus} seed={args.seed}")
+                      f"modulus={modulus} seed={args.seed} draw={draws}")
                 return 1
-            tally[engine] += 1
-        if rng.random() < 0.2 and not check_chain(rng, tally, args.seed):
+            engines[engine] += 1
+            classes[cls] += 1
+            styles[style] += 1
+        if rng.random() < 0.02 and not check_chain(rng, engines, args.seed):
             return 1
-    print(f"{sum(tally.values())} exact products, all equal to python-flint:")
+    seconds = time.monotonic() - start
+    print(f"{sum(engines.values())} exact products in {draws} draws ({seconds:.0f} s), "
+          "0 mismatches against python-flint")
+    print("per engine:")
     for engine in ENGINES + ("product", "power"):
-        print(f"  {engine:13s} {tally[engine]}")
+        print(f"  {engine:16s} {engines[engine]}")
+    print("per modulus class:")
+    for cls in MODULUS_CLASSES:
+        print(f"  {cls:16s} {classes[cls]}")
+    print("per magnitude pattern (first operand):")
+    for style in STYLES:
+        print(f"  {style:16s} {styles[style]}")
     return 0
 
 
@@ -95,10 +160,10 @@ def check_chain(rng: random.Random, tally: Counter, seed: int) -> bool:
     """A product of 2..12 random factors and a power (polyconv.algebra: intermediates as int64
     or byte rows, Kronecker on rows, two threads when large) against flint."""
     count = rng.randint(2, 12)
-    factors = [operand(rng, max(1, int(2 ** rng.uniform(0, 9))),
-                       rng.choice([1, 8, 16, 31, 62, 100, 300]), rng.choice(["random", "max",
-                                                                          "alternating"]))
-               for _ in range(count)]
+    factors = [np.array(magnitude_values(rng, max(1, int(2 ** rng.uniform(0, 8))),
+                                         rng.choice([1, 8, 16, 31, 62]),
+                                         rng.choice(["random", "max", "alternating"])),
+                        dtype=np.int64) for _ in range(count)]
     length = rng.choice([None, rng.randint(1, 3000)])
     want = flint.fmpz_poly([1])
     for f in factors:

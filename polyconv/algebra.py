@@ -34,6 +34,7 @@ from __future__ import annotations
 
 import heapq
 import itertools
+import math
 import numbers
 import operator
 from collections.abc import Iterable, Iterator
@@ -44,8 +45,10 @@ import numpy as np
 
 from .api import convolve, convolve_integer_rows
 from .bounds import max_abs
+from .budget import check_allocation, coefficient_bytes
 from .engines import _intpack
 from .engines.kronecker import multiply_rows
+from .inputs import as_number_array
 from .planning import THREADS
 
 __all__ = ["power", "product", "inverse_series", "poly_divmod", "counting_products",
@@ -351,10 +354,7 @@ class _Floats(_Ring):
 
 def _sequence(x, name: str, hint: str = "") -> tuple[np.ndarray, str]:
     """Validate one 1-D, non-empty numeric sequence; return it with its kind."""
-    try:
-        arr = x if isinstance(x, np.ndarray) else np.asarray(x)
-    except (ValueError, TypeError) as exc:
-        raise ValueError(f"{name} must be a 1-D sequence of numbers; numpy said: {exc}") from None
+    arr = as_number_array(x, name)
     if arr.ndim != 1:
         got = "a scalar" if arr.ndim == 0 else f"an array of shape {arr.shape}"
         raise ValueError(f"{name} must be a 1-D sequence of numbers (polynomial coefficients, "
@@ -492,6 +492,8 @@ def power(a, k: int, *, modulus: int | None = None, length: int | None = None) -
     if core is None or k * shift >= total:
         return ring.finish(ring.zeros(total))
     room = total - k * shift
+    _check_chain(ring, total, _power_bits(ring, core, k, None if n is None else room),
+                 f"power(a, k={k}{'' if n is None else f', length={n}'})")
     work = ring.to_work(core)
     powered = _power(ring, work, k, None if n is None else room)
     powered = ring.from_work(powered if powered is not work else ring.to_work(core.copy()))
@@ -529,6 +531,70 @@ def _power(ring: _Ring, x: np.ndarray, k: int, n: int | None) -> np.ndarray:
 def _cut(n: int | None, full: int) -> int | None:
     """The ``length`` to ask for: ``n`` when it truncates a product of ``full`` terms."""
     return n if n is not None and n < full else None
+
+
+# ----------------------------------------------------------------------------- memory budget
+
+#: Peak bytes of a chain of products over the bytes of its result: the result, the two operands
+#: of the last product (together at most the result's size again) and the engine's work space
+#: (about two results; common practice, no source).
+CHAIN_PEAK_FACTOR = 4
+
+
+def _check_chain(ring: _Ring, count: int, bits: float, what: str) -> None:
+    """Refuse a result of ``count`` coefficients of up to ``bits`` bits over the memory budget
+    (:func:`polyconv.budget.check_allocation`), before any product is formed."""
+    if isinstance(ring, _Floats):
+        kind, bits = ("complex" if ring.dtype.kind == "c" else "real"), 0
+    elif isinstance(ring, _Modular):
+        kind, bits = "integer", (0 if ring.modulus <= _INT64_LIMIT else ring.modulus.bit_length())
+    else:
+        kind = "integer"
+    per = coefficient_bytes(kind, bits)
+    check_allocation(CHAIN_PEAK_FACTOR * count * per,
+                     f"{what} ({count} coefficients"
+                     + (f" of up to {bits:.3g} bits)" if bits >= 63 else ")"))
+
+
+def _log2_norm1(x: np.ndarray) -> float:
+    """``log2 sum |x_i|`` of an integer array (0 for sums up to 1), rounded up slightly."""
+    if x.dtype == object:
+        total = sum(abs(int(v)) for v in x)
+        return math.log2(total) if total > 1 else 0.0
+    total = float(np.add.reduce(np.abs(x.astype(np.float64)))) * (1 + 2.0**-40)
+    return math.log2(total) if total > 1 else 0.0
+
+
+def _log2_compositions(j: int, parts: int) -> float:
+    """``log2 C(j + parts - 1, j)``: the ways ``j`` splits into ``parts`` ordered terms >= 0."""
+    if j <= 0 or parts <= 1:
+        return 0.0
+    return (math.lgamma(j + parts) - math.lgamma(j + 1) - math.lgamma(parts)) / math.log(2)
+
+
+def _power_bits(ring: _Ring, core: np.ndarray, k: int, length: int | None) -> float:
+    """Bits of the largest coefficient of ``core^k`` (its first ``length``): at most
+    ``k log2 ||core||_1`` (each coefficient is bounded by the power of the 1-norm), and for a
+    truncated power at most ``k log2 max|core| + log2 C(length - 1 + k - 1, length - 1)`` (the
+    terms of coefficient ``j`` are products of ``k`` entries, one per way to split ``j``)."""
+    if not isinstance(ring, _Integers):
+        return 0.0
+    bits = k * _log2_norm1(core)
+    if length is not None:
+        top = max_abs(core)
+        bits = min(bits, k * math.log2(max(top, 1)) + _log2_compositions(length - 1, k))
+    return bits + 1
+
+
+def _product_bits(ring: _Ring, cores: list[np.ndarray], length: int | None) -> float:
+    """Bits of the largest coefficient of a product of ``cores`` (as :func:`_power_bits`)."""
+    if not isinstance(ring, _Integers):
+        return 0.0
+    bits = sum(_log2_norm1(c) for c in cores)
+    if length is not None:
+        tops = sum(math.log2(max(max_abs(c), 1)) for c in cores)
+        bits = min(bits, tops + _log2_compositions(length - 1, len(cores)))
+    return bits + 1
 
 
 # ----------------------------------------------------------------------------- product
@@ -589,6 +655,9 @@ def product(seqs: Iterable, *, modulus: int | None = None, length: int | None = 
         return ring.finish(ring.zeros(total))
     room = total - shift
     cores = [core[:room] for core, _ in trimmed]
+    _check_chain(ring, total, _product_bits(ring, cores, None if n is None else room),
+                 f"product(seqs) of {len(cores)} factors"
+                 + ("" if n is None else f" with length={n}"))
     tree = _product_tree(ring, [ring.to_work(c) for c in cores], None if n is None else room)
     return ring.finish(_place(ring.from_work(tree), shift, total))
 
@@ -670,6 +739,7 @@ def inverse_series(a, length: int, *, modulus: int | None = None) -> np.ndarray:
     n = _check_length(length, required=True)
     m = _check_modulus(modulus, kind, "a holds")
     ring = _ring_for(kind, m)
+    _check_chain(ring, n, 0, f"inverse_series(a, length={n})")
     x = ring.convert(arr[:n])
     first = ring.unit_inverse(x[0])
     if first is None:
@@ -720,6 +790,10 @@ def _inverse(ring: _Ring, a: np.ndarray, n: int, first) -> np.ndarray:
         if target <= b.shape[0]:
             continue
         k = b.shape[0]
+        if isinstance(ring, _Integers):  # integer inverses grow: extrapolate their bits linearly
+            bits = max_abs(b).bit_length() * target / k
+            _check_chain(ring, target, bits, f"inverse_series(a, length={n}), whose "
+                         f"coefficients grow, at its step to {target} terms")
         # a b = 1 + x^k e + O(x^target): e = coefficients k..target-1 of a b (middle product)
         middle = ring.mul(_fit(a, target), b, mode="valid")
         e = middle[1:]

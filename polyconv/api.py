@@ -7,12 +7,14 @@ shapes its full (or truncated) product into the requested mode, dtype and axis.
 from __future__ import annotations
 
 import dataclasses
+import math
 import sys
 
 import numpy as np
 
 from . import inputs, planning, planning_exact, run_exact, shaping
 from .bounds import convolution_error_bound, norm2_upper
+from .budget import check_allocation, coefficient_bytes
 from .engines.direct import convolve_direct
 from .engines.fft import convolve_fft
 from .engines.overlap_add import convolve_overlap_add
@@ -36,10 +38,44 @@ def _prepare(a, b, mode, method, modulus, length, axis):
         facts = run_exact.integer_facts(x, y, mod, max_x, max_y)
         the_plan = planning_exact.choose_exact(facts, pair.kind, pair.batch_shape, mode, method,
                                                keep)
+        bits = (mod - 1).bit_length() if mod is not None else facts.bound.bit_length() + 1
     else:
         the_plan = planning.choose(pair.kind, n1, n2, x.shape[:-1], y.shape[:-1],
                                    pair.batch_shape, mode, method, keep)
+        bits = 0
+    check_budget(the_plan, pair.kind, bits, trunc)
     return pair, x, y, trunc, the_plan
+
+
+#: Transform-sized arrays an FFT product holds at once (two spectra and the inverse transform,
+#: complex128): the engines' working set beside the result (counted from engines/fft.py).
+TRANSFORM_ARRAYS = 3
+
+
+def check_budget(the_plan: Plan, kind: str, bits: int, length: int | None) -> None:
+    """Refuse, before any allocation, a product whose result and work space exceed the memory
+    budget (:mod:`polyconv.budget`): ``rows * length * bytes per coefficient`` for the result
+    (``bits``: coefficient size of exact outputs) plus the transform arrays of the plan's
+    engine (all rows at once for float engines, one row at a time for exact ones; limbs hold
+    one spectrum per limb)."""
+    rows = math.prod(the_plan.batch_shape) if the_plan.batch_shape else 1
+    count = length if length is not None else the_plan.output_length
+    result = rows * count * coefficient_bytes(kind if not the_plan.exact else "integer", bits)
+    work = 0.0
+    if the_plan.transform_length:
+        arrays = TRANSFORM_ARRAYS
+        if the_plan.engine == "limbs":
+            ka, kb = the_plan.setting("limbs_a"), the_plan.setting("limbs_b")
+            arrays = 2 * (ka + kb)
+        work = arrays * 16.0 * the_plan.transform_length * (1 if the_plan.exact else rows)
+    n1, n2 = the_plan.lengths
+    if length is not None and length > n1 + n2 - 1:
+        what = f"length={length}"
+    else:
+        what = (f"the product of a ({n1} coefficients) and b ({n2})"
+                + (f" in a batch of {rows}" if rows > 1 else "")
+                + (f" with length={length}" if length is not None else ""))
+    check_allocation(result + work, what)
 
 
 def plan(a, b, *, mode: str = "full", method: str = "auto", modulus: int | None = None,
@@ -156,6 +192,8 @@ def convolve_integer_rows(x: np.ndarray, y: np.ndarray, *, mode: str = "full",
     facts = run_exact.integer_facts(x, y, modulus, max_x, max_y)
     kind = "integer" if x.dtype != object and y.dtype != object else "bigint"
     the_plan = planning_exact.choose_exact(facts, kind, (), mode, "auto", keep)
+    check_budget(the_plan, kind, (modulus - 1).bit_length() if modulus is not None
+                 else facts.bound.bit_length() + 1, length)
     return shaping.finish(run_exact.run_exact(the_plan, x, y), the_plan, -1, length)
 
 
@@ -192,8 +230,11 @@ def run(the_plan: Plan, x: np.ndarray, y: np.ndarray) -> np.ndarray:
         bad = shaping.nonfinite_masks(x, y)
         if bad is not None:
             x, y = shaping.zero_nonfinite(x), shaping.zero_nonfinite(y)
-            out = shaping.mark_nonfinite(_run_transform(the_plan, x, y), bad,
-                                         x.shape[-1], y.shape[-1])
+        # finite inputs whose product overflows: inf - inf inside a transform would give NaN
+        # where numpy.convolve gives +-inf, so the product is formed on scaled operands
+        out = shaping.run_scaled(lambda u, v: _run_transform(the_plan, u, v), x, y)
+        if bad is not None:
+            out = shaping.mark_nonfinite(out, bad, x.shape[-1], y.shape[-1])
     return out
 
 

@@ -16,6 +16,7 @@ from __future__ import annotations
 import json
 import os
 import tempfile
+import warnings
 from importlib import resources
 from pathlib import Path
 
@@ -46,10 +47,66 @@ def _valid(table: object) -> bool:
     return isinstance(table, dict) and all(k in table for k in REQUIRED_KEYS)
 
 
+#: Keys of the shipped table a calibrated file may lack (the planner has a fallback for each).
+OPTIONAL_KEYS = frozenset({("exact", "direct_float"), ("exact", "limbs_mod_wide"), ("machine",),
+                           ("version",)})
+#: Tables keyed by size (log2 of a length or bit count): any keys, at least one numeric entry.
+_SIZE_TABLES = frozenset({"rate_by_log2n", "mul_rate_by_log2bits"})
+
+
+def table_problem(table: object, reference: dict | None = None, where: tuple = ()) -> str | None:
+    """What is wrong with a cost table, compared key by key with the shipped one (None: fine).
+
+    Every key of the shipped table must be present (save :data:`OPTIONAL_KEYS`) with the same
+    shape: a section is a JSON object, a constant a finite non-negative number (not a boolean).
+    """
+    reference = default_costs() if reference is None else reference
+    name = ".".join(where) or "the file"
+    if not isinstance(table, dict):
+        return f"{name} must be a JSON object, got {type(table).__name__}"
+    for key, want in reference.items():
+        path = where + (key,)
+        label = ".".join(path)
+        if key not in table:
+            if path in OPTIONAL_KEYS:
+                continue
+            return f"the key {label!r} is missing"
+        got = table[key]
+        if key in _SIZE_TABLES:
+            if not isinstance(got, dict) or not got or not all(
+                    _is_constant(v) and _is_int_text(k) for k, v in got.items()):
+                return (f"{label!r} must map sizes (integer strings) to non-negative numbers, "
+                        f"got {got!r:.60}")
+        elif isinstance(want, dict):
+            problem = table_problem(got, want, path)
+            if problem:
+                return problem
+        elif isinstance(want, (int, float)) and not isinstance(want, bool):
+            if not _is_constant(got):
+                return f"{label!r} must be a non-negative number, got {got!r:.60}"
+    return None
+
+
+def _is_constant(v) -> bool:
+    return (isinstance(v, (int, float)) and not isinstance(v, bool)
+            and v == v and 0 <= v < float("inf"))
+
+
+def _is_int_text(k: str) -> bool:
+    return k.lstrip("-").isdigit() and k.isascii()
+
+
 def load_costs(refresh: bool = False) -> dict:
     """The cost table in force: the user's calibrated file if present and readable, else defaults.
 
-    The result is cached; ``refresh=True`` re-reads the files.
+    The result is cached; ``refresh=True`` re-reads the files.  A user file that is not JSON is
+    skipped with a RuntimeWarning naming it (the shipped defaults are used); one that is JSON
+    but lacks a key or holds a wrong type raises.
+
+    Raises
+    ------
+    ValueError
+        Naming the user file and the key at fault.
     """
     global _cache, _cache_source, generation
     if _cache is not None and not refresh:
@@ -59,9 +116,16 @@ def load_costs(refresh: bool = False) -> dict:
     if path.is_file():
         try:
             candidate = json.loads(path.read_text(encoding="utf-8"))
-        except (OSError, ValueError):
+        except (OSError, ValueError) as exc:
+            warnings.warn(f"cost file {str(path)!r} could not be read as JSON ({exc}); using the "
+                          "defaults shipped with polyconv", RuntimeWarning, stacklevel=2)
             candidate = None
-        if _valid(candidate):
+        if candidate is not None:
+            problem = table_problem(candidate)
+            if problem:
+                raise ValueError(f"cost file {str(path)!r} is not a valid cost table: {problem}; "
+                                 "re-run `polyconv calibrate`, or remove the file (or unset "
+                                 "POLYCONV_COSTS) to use the shipped defaults")
             table, source = candidate, str(path)
     if table is None:
         table = default_costs()

@@ -23,7 +23,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from .api import convolve
-from .inputs import MODES
+from .budget import check_allocation, coefficient_bytes
+from .inputs import MODES, as_number_array
 from .streaming import (
     INT64_LIMIT,
     Summation,
@@ -304,6 +305,9 @@ def exact_product_dask(a, b, *, modulus: int | None = None, client=None,
     blocks = _cut(n1, n2, _check_pieces(pieces, client))
     bound = min(n1, n2) * _operand_max_abs(x) * _operand_max_abs(y)
     summation = exact_summation(bound, modulus)
+    check_allocation((n1 + n2 - 1) * coefficient_bytes("integer", bound.bit_length() + 1),
+                     f"exact_product_dask of a ({n1} coefficients) and b ({n2}), gathered in "
+                     "memory")
     a_parts = _operand_blocks(x, blocks.length, client)
     b_parts = _operand_blocks(y, blocks.length, client)
     out = np.zeros(n1 + n2 - 1, dtype=object if summation.wide else np.int64)
@@ -314,11 +318,7 @@ def exact_product_dask(a, b, *, modulus: int | None = None, client=None,
 
 def _check_exact_operand(x, name: str):
     if not is_dask_array(x):
-        try:
-            x = np.asarray(x)
-        except (ValueError, TypeError) as exc:
-            raise ValueError(f"{name} must be a 1-D sequence of integers; numpy said: "
-                             f"{exc}") from None
+        x = as_number_array(x, name)
     if x.ndim != 1:
         raise ValueError(f"{name} must be 1-D, got shape {x.shape}")
     if math.isnan(x.shape[0]):
@@ -355,6 +355,14 @@ def _cut(n1: int, n2: int, pieces: int) -> _Blocks:
 
 def _resolve_client(client):
     if client is not None:
+        try:
+            from distributed import Client
+        except ImportError:  # pragma: no cover - dask without distributed
+            raise ValueError("client= needs the distributed package (pip install "
+                             "distributed)") from None
+        if not isinstance(client, Client):
+            raise TypeError("client must be a distributed.Client or None, got "
+                            f"{type(client).__name__}")
         return client
     try:
         from distributed import default_client
