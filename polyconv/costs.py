@@ -15,9 +15,10 @@ from __future__ import annotations
 
 import json
 import os
-import tempfile
 from importlib import resources
 from pathlib import Path
+
+from . import _atomic
 
 _cache: dict | None = None
 _cache_source: str | None = None
@@ -77,20 +78,12 @@ def cost_source() -> str:
 
 
 def save_user_costs(table: dict, path: Path | None = None) -> Path:
-    """Write ``table`` atomically (temporary file, then rename) and make it the table in force."""
+    """Write ``table`` atomically (:func:`polyconv._atomic.write_bytes`: temporary file, then
+    rename; umask honoured, an existing file's mode kept) and make it the table in force."""
     if not _valid(table):
         raise ValueError(f"a cost table needs the keys {REQUIRED_KEYS}")
     path = Path(path) if path is not None else user_cost_path()
     path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=".costs-", suffix=".json", dir=path.parent)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            json.dump(table, fh, indent=2, sort_keys=True)
-            fh.write("\n")
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+    _atomic.write_bytes(path, json.dumps(table, indent=2, sort_keys=True) + "\n")
     load_costs(refresh=True)
     return path

@@ -1,13 +1,14 @@
 """Files in and out: coefficient sequences, atomic writes and report folders.
 
-Atomicity (chosen here, stated in the README):
+Atomicity (chosen here, stated in the README; the mechanics are in :mod:`polyconv._atomic`):
 
 * a single output file is written to a temporary file in the same folder and moved into place
   with :func:`os.replace`, so a reader sees the old file or the new one, never a half-written one;
-* a report folder is built complete in a temporary sibling folder (:class:`ReportFolder`).  On
-  success a new folder is renamed into place in one step; when the folder already exists, each
-  new file replaces its namesake with :func:`os.replace` (files of the folder that this run does
-  not produce are left alone).  On any error or Ctrl-C the temporary folder is removed.
+* a report folder is built complete in a temporary sibling folder (:class:`ReportFolder`) and
+  then takes the target's place in one step; files of an existing folder that this run does not
+  produce are carried over into the new one.  On any error, Ctrl-C, SIGTERM or SIGHUP the
+  temporary folder is removed and the old folder is untouched.
+* new files and folders honour the umask; a replaced file or folder keeps its mode.
 """
 
 from __future__ import annotations
@@ -15,16 +16,15 @@ from __future__ import annotations
 import contextlib
 import io
 import json
-import os
 import re
 import shutil
 import sys
-import tempfile
 from collections.abc import Iterator
 from pathlib import Path
 
 import numpy as np
 
+from .. import _atomic
 from .errors import CliError
 
 SEQUENCE_SUFFIXES = (".npy", ".txt", ".csv", ".json")
@@ -213,46 +213,37 @@ def sequence_bytes(arr: np.ndarray, suffix: str) -> bytes:
 
 
 def atomic_write(path: str | Path, data: bytes | str) -> Path:
-    """Write ``data`` to ``path`` via a temporary file in the same folder and :func:`os.replace`.
-
-    The temporary file is removed on any error, Ctrl-C included.
-    """
+    """Write ``data`` to ``path`` atomically with :func:`polyconv._atomic.write_bytes`
+    (temporary sibling, then rename; umask honoured, an existing file's mode kept; the temporary
+    is removed on any error, Ctrl-C, SIGTERM or SIGHUP)."""
     p = Path(path)
     folder = p.parent if str(p.parent) else Path(".")
     if not folder.is_dir():
         raise CliError(f"output {str(path)!r}: folder {str(folder)!r} does not exist")
-    payload = data.encode("utf-8") if isinstance(data, str) else data
-    fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=".part", dir=folder)
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(payload)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, p)
-    except BaseException:
-        with contextlib.suppress(OSError):
-            os.unlink(tmp)
-        raise
-    return p
+    return _atomic.write_bytes(p, data)
 
 
 class ReportFolder:
-    """Build a folder of outputs in a temporary sibling, then move it into place.
+    """Build a folder of outputs in a temporary sibling, then swap it into place.
 
     Use as a context manager; files are added with :meth:`write_text`, :meth:`write_bytes` or by
-    writing to :meth:`path`.  Leaving the block normally commits; an exception (or Ctrl-C)
-    removes the temporary folder and leaves the target as it was.
+    writing to :meth:`path`.  Leaving the block normally commits: files of an existing folder
+    that this run does not produce are carried over (hard links) into the new folder, which
+    then replaces the old one in one step (:func:`polyconv._atomic.replace_folder`).  An
+    exception (Ctrl-C, SIGTERM and SIGHUP included) removes the temporary folder and leaves the
+    target as it was.  At every moment the target is the old folder or the new one, complete.
 
     Parameters
     ----------
     target : str or Path
-        The folder to create or update.
+        The folder to create or replace.
     """
 
     def __init__(self, target: str | Path):
         self.target = Path(target)
         self.staging: Path | None = None
         self.files: list[str] = []
+        self.kept: list[str] = []
 
     def __enter__(self) -> ReportFolder:
         parent = self.target.parent if str(self.target.parent) else Path(".")
@@ -261,8 +252,7 @@ class ReportFolder:
         if not parent.is_dir():
             raise CliError(f"output {str(self.target)!r}: folder {str(parent)!r} does not exist")
         try:
-            self.staging = Path(tempfile.mkdtemp(prefix=f".{self.target.name}.", suffix=".part",
-                                                 dir=parent))
+            self.staging = _atomic.make_staging_folder(self.target)
         except OSError as exc:
             raise CliError(f"output {str(self.target)!r}: cannot create files in "
                            f"{str(parent)!r}: {exc.strerror or exc}") from None
@@ -274,6 +264,11 @@ class ReportFolder:
         if name not in self.files:
             self.files.append(name)
         return self.staging / name
+
+    def existing(self, name: str) -> Path | None:
+        """The file ``name`` of the folder being replaced, if there is one."""
+        old = self.target / name
+        return old if old.is_file() else None
 
     def write_text(self, name: str, text: str) -> None:
         """Add a UTF-8 text file."""
@@ -294,14 +289,11 @@ class ReportFolder:
 
     def _commit(self) -> None:
         assert self.staging is not None
-        for name in list(self.files):
-            if not (self.staging / name).exists():
-                self.files.remove(name)
-        if not self.target.exists():
-            try:
-                os.rename(self.staging, self.target)
-                return
-            except OSError:  # lost a race with another writer: fall back to file by file
-                self.target.mkdir(parents=False, exist_ok=True)
-        for name in self.files:
-            os.replace(self.staging / name, self.target / name)
+        self.files = [name for name in self.files if (self.staging / name).exists()]
+        if self.target.is_dir():
+            for name in self.files:  # a replaced file keeps its mode
+                mode = _atomic.existing_mode(self.target / name)
+                if mode is not None:
+                    (self.staging / name).chmod(mode)
+            self.kept = _atomic.carry_over(self.target, self.staging)
+        _atomic.replace_folder(self.staging, self.target)
