@@ -5,6 +5,10 @@ Also measures pocketfft's twiddle error (FFT of a unit impulse vs roots of unity
 With ``--limbs``: the limb engine's summed parts (sum_j A_j * B_(m-j) formed in the frequency
 domain, one inverse transform) against :func:`polyconv.bounds.limb_error_bound`, with every limb
 digit at its extreme.
+With ``--check-limit``: the smallest bound/observed ratio over every length 2^1..2^14 and
+magnitude 2^10..2^26 whose bound lies in the "check" range (0.3..200), through the engine's own
+float product at the chooser's transform length (what ``planning_exact.CHECK_BOUND_LIMIT``
+rests on).
 """
 
 from __future__ import annotations
@@ -80,7 +84,41 @@ def limb_rows(top: int) -> None:
                   f"{bound / err:.1f} |", flush=True)
 
 
+def check_limit_rows() -> None:
+    """Worst bound/observed ratios where a "check" certificate may be planned (bound >= 1/2)."""
+    from polyconv.engines.fft import convolve_fft
+    from polyconv.planning_exact import power_of_two_at_least
+
+    rows = []
+    for lg in range(1, 15):
+        n = 1 << lg
+        n_fft = power_of_two_at_least(2 * n - 1)
+        for bits in range(10, 27):
+            top = 2**bits - 1
+            ones = np.full(n, top, dtype=np.int64)
+            alt = ones * np.where(np.arange(n) % 2 == 0, 1, -1)
+            bound = bounds.fft_error_bound(bounds.norm2_upper(ones), bounds.norm2_upper(ones),
+                                           n_fft)
+            if not 0.3 <= bound <= 200:
+                continue
+            for name, (a, b) in {"all +max": (ones, ones), "alternating": (alt, alt),
+                                 "+max * alternating": (ones, alt)}.items():
+                approx = convolve_fft(a.astype(float), b.astype(float), n_fft, 2 * n - 1, 1)
+                exact = convolve_kronecker(a, b, as_int64=True).astype(np.longdouble)
+                err = float(np.max(np.abs(approx.astype(np.longdouble) - exact)))
+                rows.append((bound / err if err else float("inf"), lg, bits, name, err, bound))
+    rows.sort()
+    print("| log2 n | bits | case | observed max error | bound | bound / observed |")
+    print("|---|---|---|---|---|---|")
+    for ratio, lg, bits, name, err, bound in rows[:8]:
+        print(f"| {lg} | {bits} | {name} | {err:.3g} | {bound:.3g} | {ratio:.1f} |")
+    print(f"\n{len(rows)} cases, smallest ratio {rows[0][0]:.1f}")
+
+
 def main() -> None:
+    if "--check-limit" in sys.argv:
+        check_limit_rows()
+        return
     if "--limbs" in sys.argv:
         sys.argv.remove("--limbs")
         limb_rows(int(sys.argv[1]) if len(sys.argv) > 1 else 18)

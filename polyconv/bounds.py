@@ -26,7 +26,7 @@ Assumptions for pocketfft (numpy/scipy), which is not a plain radix-2 transform:
   not proven.
 
 These are assumptions, not theorems about pocketfft; the measured worst errors on adversarial
-inputs stay 55-110x below the bound (bench/RESULTS.md, exact engines section), and the
+inputs stay 36-110x below the bound (bench/RESULTS.md, exact engines section), and the
 a-posteriori checks below (modular rescue, random evaluation) can back any result.
 """
 

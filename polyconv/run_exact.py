@@ -87,7 +87,9 @@ def integer_facts(x: np.ndarray, y: np.ndarray, modulus: int | None,
     max_b = _round_magnitude(bounds.max_abs(y) if max_y is None else max_y)
     n1, n2 = x.shape[-1], y.shape[-1]
     norm_a = norm_b = math.inf
-    if n1 * n2 >= NORM_MIN_WORK and min(n1, n2) * max_a * max_b < FLOAT_EXACT_LIMIT:
+    if (n1 * n2 >= NORM_MIN_WORK and min(n1, n2) * max_a * max_b < FLOAT_EXACT_LIMIT
+            and max(max_a, max_b) < FLOAT_EXACT_LIMIT):  # (a zero operand keeps the
+        # product small, but the other one must still be exact in float64)
         # ||x||_2 <= max|x| sqrt(n): when that already certifies the full-length product, the
         # O(n) norm passes are not needed
         norm_a, norm_b = _crude_norm(max_a, n1), _crude_norm(max_b, n2)

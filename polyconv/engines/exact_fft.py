@@ -222,11 +222,17 @@ def convolve_limbs_mod(a: np.ndarray, b: np.ndarray, modulus: int, limb_bits: in
             block = np.einsum("j,jk->k", weights[start:start + 8], reduced[start:start + 8])
             acc = _float_mod(acc + block, modulus) if start else block
         return _float_mod(acc, modulus)
-    # |P| < 2^52 < m: P mod m is P or P + m
+    # Montgomery needs residues in [0, m).  A part may be as low as -2^53 while m can be as small
+    # as 2^31, so P + m is not always enough: reduce by integer division (floor mod, exact in
+    # int64) unless every part is known to lie above -m (m > 2^53 > |P|)
     mont = _intpack.Montgomery(modulus)
     acc = np.zeros(parts.shape[1], dtype=np.uint64)
+    m64 = np.int64(modulus)
     for j in range(parts.shape[0]):
-        residue = np.where(parts[j] < 0, parts[j] + np.int64(modulus), parts[j])
+        if modulus > 2**53:
+            residue = np.where(parts[j] < 0, parts[j] + m64, parts[j])
+        else:
+            residue = np.remainder(parts[j], m64)
         acc += mont.times(residue.view(np.uint64), mont.constant(pow(2, limb_bits * j, modulus)))
         acc -= np.where(acc >= mont.m, mont.m, np.uint64(0))
     return acc.view(np.int64)
