@@ -219,7 +219,7 @@ def compute(spec: AggregateSpec, steps: Steps | None = None) -> AggregateResult:
             steps.step("discretise severity")
         points = None
         if math.isfinite(spec.limit):
-            points = int(round((spec.deductible + spec.limit) / spec.step)) + 2
+            points = laws.span_points(spec.deductible + spec.limit, spec.step)
         built = laws.build(spec.severity, spec.step, method=spec.discretisation,
                            max_points=spec.max_points, points=points)
         notes.extend(built.notes)

@@ -16,6 +16,7 @@ from __future__ import annotations
 import contextlib
 import io
 import json
+import math
 import re
 import shutil
 import sys
@@ -24,12 +25,13 @@ from pathlib import Path
 
 import numpy as np
 
-from .. import _atomic
+from .. import _atomic, budget
 from .errors import CliError
 
 SEQUENCE_SUFFIXES = (".npy", ".txt", ".csv", ".json")
 
-_INT = re.compile(r"^[+-]?\d+$")
+_INT = re.compile(r"^[+-]?[0-9]+$")
+_FLOAT = re.compile(r"^[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?$")
 
 
 @contextlib.contextmanager
@@ -99,27 +101,75 @@ def read_sequence(path: str | Path, name: str = "input") -> np.ndarray:
     return to_array(values)
 
 
+NPY_MAGIC = b"\x93NUMPY"
+ZIP_MAGIC = b"PK\x03\x04"
+
+
+def npy_header(path: str | Path, name: str = "input") -> tuple[tuple[int, ...], np.dtype]:
+    """Shape and dtype from a ``.npy`` file's header, without reading its data.
+
+    Raises
+    ------
+    CliError
+        Naming the file: not a ``.npy`` file at all (random bytes), a ``.npz`` archive renamed,
+        a corrupt or unreadable header.
+    """
+    what = f"{name} {str(path)!r}"
+    try:
+        with open(path, "rb") as fh:
+            start = fh.read(len(NPY_MAGIC))
+            if start[:4] == ZIP_MAGIC:
+                raise CliError(f"{what}: is a .npz archive (zip), not a .npy array; save one "
+                               "array with numpy.save")
+            if start != NPY_MAGIC:
+                raise CliError(f"{what}: not a .npy file (it does not start with the .npy "
+                               "magic bytes)")
+            fh.seek(0)
+            version = np.lib.format.read_magic(fh)
+            if version == (1, 0):
+                shape, fortran, dtype = np.lib.format.read_array_header_1_0(fh)
+            elif version == (2, 0):
+                shape, fortran, dtype = np.lib.format.read_array_header_2_0(fh)
+            else:
+                raise CliError(f"{what}: .npy format version {version} is not supported")
+    except OSError as exc:
+        raise CliError(f"{what}: cannot read: {exc.strerror or exc}") from None
+    except (ValueError, EOFError, SyntaxError, TypeError) as exc:
+        detail = " ".join(str(exc).split())[:60]
+        raise CliError(f"{what}: the .npy header is corrupt ({detail}...)") from None
+    return tuple(int(n) for n in shape), np.dtype(dtype)
+
+
 def _read_npy(p: Path, name: str) -> np.ndarray:
+    what = f"{name} {str(p)!r}"
+    shape, dtype = npy_header(p, name)
+    if dtype.hasobject:
+        raise CliError(f"{what}: .npy with Python objects (pickles) is refused; "
+                       "write big integers to a .txt, .csv or .json file")
+    if dtype.kind not in "biuf":
+        raise CliError(f"{what}: holds {dtype} data; expected integers or floats")
+    if len(shape) != 1:
+        raise CliError(f"{what}: expected a 1-D array; got shape {shape}")
+    if shape[0] == 0:
+        raise CliError(f"{what}: holds no numbers")
+    budget.check_allocation(shape[0] * max(dtype.itemsize, 8), f"{what} ({shape[0]} values)")
     try:
         arr = np.load(p, allow_pickle=False)
-    except ValueError as exc:
-        if "pickle" in str(exc).lower():
-            raise CliError(f"{name} {str(p)!r}: .npy with Python objects (pickles) is refused; "
-                           "write big integers to a .txt, .csv or .json file") from None
-        raise CliError(f"{name} {str(p)!r}: not a readable .npy file ({exc})") from None
-    except (OSError, EOFError) as exc:
-        raise CliError(f"{name} {str(p)!r}: not a readable .npy file ({exc})") from None
-    if not isinstance(arr, np.ndarray):
-        raise CliError(f"{name} {str(p)!r}: .npz archives are not supported; use .npy")
-    if arr.dtype.kind not in "biuf":
-        raise CliError(f"{name} {str(p)!r}: holds {arr.dtype} data; expected integers or floats")
-    if arr.ndim != 1:
-        raise CliError(f"{name} {str(p)!r}: expected a 1-D array; got shape {arr.shape}")
-    if arr.size == 0:
-        raise CliError(f"{name} {str(p)!r}: holds no numbers")
+    except (OSError, ValueError, EOFError) as exc:
+        detail = " ".join(str(exc).split())[:60]
+        raise CliError(f"{what}: not a readable .npy file ({detail})") from None
     if arr.dtype.kind == "b":
         arr = arr.astype(np.int64)
+    _refuse_non_finite(arr, what)
     return arr
+
+
+def _refuse_non_finite(arr: np.ndarray, what: str) -> None:
+    if arr.dtype.kind == "f":
+        bad = np.flatnonzero(~np.isfinite(arr))
+        if bad.size:
+            raise CliError(f"{what}: entry [{int(bad[0])}] is {arr[bad[0]]!r}; inputs must be "
+                           "finite numbers")
 
 
 def _text_values(text: str, what: str) -> list:
@@ -136,24 +186,45 @@ def _parse_token(token: str, where: str) -> int | float:
     t = token.replace("_", "") if "_" in token and _INT.match(token.replace("_", "")) else token
     if _INT.match(t):
         return int(t)
-    try:
-        return float(t)
-    except ValueError:
-        raise CliError(f"{where}: {token!r} is not a number") from None
+    if not _FLOAT.match(t):
+        raise CliError(f"{where}: {token!r} is not a number")
+    return _finite(float(t), token, where)
+
+
+def _finite(x: float, token: str, where: str) -> float:
+    if not math.isfinite(x):
+        raise CliError(f"{where}: {token!r} is beyond the floating-point range (about "
+                       "1.8e308); inputs must be finite numbers")
+    return x
 
 
 def _json_values(text: str, what: str) -> list:
+    def constant(token: str):
+        raise CliError(f"{what}: {token} is not a number (not valid JSON, and inputs must be "
+                       "finite numbers)")
+
     try:
-        data = json.loads(text)
+        data = json.loads(text, parse_constant=constant,
+                          parse_float=lambda token: _finite(float(token), token, what))
     except json.JSONDecodeError as exc:
         raise CliError(f"{what}: not valid JSON: {exc.msg} (line {exc.lineno}, column "
                        f"{exc.colno})") from None
+    except RecursionError:
+        raise CliError(f"{what}: nested too deeply; expected a flat JSON list of "
+                       "numbers") from None
     if not isinstance(data, list):
         raise CliError(f"{what}: expected a JSON list of numbers; got {type(data).__name__}")
     for i, v in enumerate(data):
         if isinstance(v, bool) or not isinstance(v, (int, float)):
-            raise CliError(f"{what}: entry [{i}] is {json.dumps(v)[:40]}, not a number")
+            raise CliError(f"{what}: entry [{i}] is {_short_json(v)}, not a number")
     return data
+
+
+def _short_json(v) -> str:
+    try:
+        return json.dumps(v)[:40]
+    except (RecursionError, ValueError):
+        return "a nested value"
 
 
 def to_array(values: list) -> np.ndarray:
