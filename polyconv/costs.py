@@ -14,7 +14,9 @@ The file holds plain numbers; see :func:`polyconv.calibrate.measure` for how eac
 from __future__ import annotations
 
 import json
+import math
 import os
+import warnings
 from importlib import resources
 from pathlib import Path
 
@@ -43,8 +45,41 @@ def default_costs() -> dict:
     return json.loads(text)
 
 
-def _valid(table: object) -> bool:
-    return isinstance(table, dict) and all(k in table for k in REQUIRED_KEYS)
+def table_problem(table: object, reference: dict | None = None, where: str = "") -> str | None:
+    """What is wrong with a cost table (None if nothing): the key missing or of the wrong type.
+
+    Every key of the shipped table must be present, holding a table where the shipped one has
+    a table and a finite number >= 0 where it has a number; a table keyed by sizes (``"10"``,
+    ``"11"``, ...: measured rates) may hold other sizes, but at least one.
+    """
+    if reference is None:
+        if not isinstance(table, dict) or not all(k in table for k in REQUIRED_KEYS):
+            return f"a cost table needs the keys {REQUIRED_KEYS}"
+        reference = default_costs()
+    if isinstance(reference, dict):
+        if not isinstance(table, dict):
+            return f"key {where!r} must be a table, got {type(table).__name__}"
+        if reference and all(k.isdigit() for k in reference):  # measured sizes
+            if not table or not all(isinstance(k, str) and k.isdigit() for k in table):
+                return f"key {where!r} must map sizes (whole numbers) to numbers"
+            pairs = [(k, table[k]) for k in table]
+            refs = dict.fromkeys(table, next(iter(reference.values())))
+        else:
+            missing = [k for k in reference if k not in table]
+            if missing:
+                return f"key {'.'.join(filter(None, (where, missing[0])))!r} is missing"
+            pairs, refs = [(k, table[k]) for k in reference], reference
+        for key, value in pairs:
+            problem = table_problem(value, refs[key], ".".join(filter(None, (where, key))))
+            if problem:
+                return problem
+        return None
+    if isinstance(reference, bool) or not isinstance(reference, (int, float)):
+        return None  # a non-numeric setting: taken as it is
+    if isinstance(table, bool) or not isinstance(table, (int, float)) \
+            or not math.isfinite(table) or table < 0:
+        return f"key {where!r} must be a finite number >= 0, got {json.dumps(table)[:40]}"
+    return None
 
 
 def load_costs(refresh: bool = False) -> dict:
@@ -60,10 +95,14 @@ def load_costs(refresh: bool = False) -> dict:
     if path.is_file():
         try:
             candidate = json.loads(path.read_text(encoding="utf-8"))
-        except (OSError, ValueError):
+        except (OSError, ValueError, RecursionError):
             candidate = None
-        if _valid(candidate):
+        problem = table_problem(candidate) if candidate is not None else "not valid JSON"
+        if problem is None:
             table, source = candidate, str(path)
+        else:
+            warnings.warn(f"cost file {path} ignored ({problem}); using the costs shipped with "
+                          "polyconv (re-run `polyconv calibrate` to rewrite it)", stacklevel=2)
     if table is None:
         table = default_costs()
     _cache, _cache_source = table, source
@@ -80,8 +119,9 @@ def cost_source() -> str:
 def save_user_costs(table: dict, path: Path | None = None) -> Path:
     """Write ``table`` atomically (:func:`polyconv._atomic.write_bytes`: temporary file, then
     rename; umask honoured, an existing file's mode kept) and make it the table in force."""
-    if not _valid(table):
-        raise ValueError(f"a cost table needs the keys {REQUIRED_KEYS}")
+    problem = table_problem(table)
+    if problem is not None:
+        raise ValueError(f"cost table not saved: {problem}")
     path = Path(path) if path is not None else user_cost_path()
     path.parent.mkdir(parents=True, exist_ok=True)
     _atomic.write_bytes(path, json.dumps(table, indent=2, sort_keys=True) + "\n")

@@ -170,7 +170,7 @@ def parse(doc: SpecDoc) -> AggregateSpec:
 
 def _on_step(value: float, step: float) -> bool:
     k = value / step
-    return abs(k - round(k)) <= 1e-9 * max(1.0, abs(k))
+    return math.isfinite(k) and abs(k - round(k)) <= 1e-9 * max(1.0, abs(k))
 
 
 def parse_counts(sec: Section) -> tuple[object, str]:

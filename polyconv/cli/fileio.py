@@ -134,7 +134,7 @@ def npy_header(path: str | Path, name: str = "input") -> tuple[tuple[int, ...], 
                 raise CliError(f"{what}: .npy format version {version} is not supported")
     except OSError as exc:
         raise CliError(f"{what}: cannot read: {exc.strerror or exc}") from None
-    except (ValueError, EOFError, SyntaxError, TypeError) as exc:
+    except Exception as exc:  # noqa: BLE001 - numpy's header parser raises many kinds
         detail = " ".join(str(exc).split())[:60]
         raise CliError(f"{what}: the .npy header is corrupt ({detail}...)") from None
     return tuple(int(n) for n in shape), np.dtype(dtype)
@@ -168,8 +168,8 @@ def _refuse_non_finite(arr: np.ndarray, what: str) -> None:
     if arr.dtype.kind == "f":
         bad = np.flatnonzero(~np.isfinite(arr))
         if bad.size:
-            raise CliError(f"{what}: entry [{int(bad[0])}] is {arr[bad[0]]!r}; inputs must be "
-                           "finite numbers")
+            raise CliError(f"{what}: entry [{int(bad[0])}] is {float(arr[bad[0]])!r}; inputs "
+                           "must be finite numbers")
 
 
 def _text_values(text: str, what: str) -> list:
@@ -255,15 +255,17 @@ def format_values(arr: np.ndarray) -> list[str]:
     return [str(int(v)) for v in arr]
 
 
-def sequence_bytes(arr: np.ndarray, suffix: str) -> bytes:
-    """Encode a result for a file with this suffix (``.npy``, ``.txt``, ``.csv``, ``.json``)."""
+def sequence_bytes(arr: np.ndarray, suffix: str, what: str = "output") -> bytes:
+    """Encode a result for a file with this suffix (``.npy``, ``.txt``, ``.csv``, ``.json``);
+    ``what`` names the file in messages."""
     suffix = suffix.lower()
     if suffix == ".npy":
         if arr.dtype == object:
             ints = [int(v) for v in arr]
             if ints and not all(-(2**63) <= v < 2**63 for v in ints):
-                raise CliError("the result has integers beyond 64 bits, which .npy cannot hold "
-                               "without pickles; write it to .txt, .csv or .json instead")
+                raise CliError(f"{what}: the result has integers beyond 64 bits, which .npy "
+                               "cannot hold without pickles; write it to .txt, .csv or .json "
+                               "instead")
             arr = np.array(ints, dtype=np.int64)
         buf = io.BytesIO()
         np.save(buf, arr, allow_pickle=False)
@@ -271,11 +273,12 @@ def sequence_bytes(arr: np.ndarray, suffix: str) -> bytes:
     if suffix == ".json":
         if arr.dtype.kind == "f":
             if not np.all(np.isfinite(arr)):
-                raise CliError("the result holds nan or inf, which JSON cannot represent; "
+                raise CliError(f"{what}: the result holds nan or inf, which JSON cannot "
+                               "represent; "
                                "write it to .txt, .csv or .npy instead")
             return (json.dumps([float(v) for v in arr]) + "\n").encode()
         if arr.dtype.kind == "c":
-            raise CliError("complex results cannot be written as JSON; use .npy")
+            raise CliError(f"{what}: complex results cannot be written as JSON; use .npy")
         return (json.dumps([int(v) for v in arr]) + "\n").encode()
     if suffix in (".txt", ".csv"):
         return ("\n".join(format_values(arr)) + "\n").encode()

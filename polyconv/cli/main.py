@@ -15,6 +15,7 @@ import os
 import signal
 import sys
 import threading
+import warnings
 from collections.abc import Iterator
 
 from .errors import INTERRUPTED, USAGE_ERROR, CliError, Interrupted
@@ -109,8 +110,13 @@ def main(argv: list[str] | None = None) -> int:
 
 def _run(name: str, args) -> int:
     """Run the parsed command; every failure becomes one line on stderr and status 2."""
+    def show(message, category, filename, lineno, file=None, line=None) -> None:
+        print(f"{name}: warning: {message}", file=sys.stderr)
+
     try:
-        status = args.run(args)
+        with warnings.catch_warnings():
+            warnings.showwarning = show
+            status = args.run(args)
         return 0 if status in (None, 0) else USAGE_ERROR
     except BrokenPipeError:  # e.g. piped into `head`: stop quietly
         _silence_stdout()
@@ -118,7 +124,7 @@ def _run(name: str, args) -> int:
     except CliError as exc:
         message = str(exc)
     except RecursionError:
-        message = (f"{_input_of(args)} is nested too deeply to be read (beyond Python's "
+        message = (f"{_input_of(args)}: nested too deeply to be handled (beyond Python's "
                    f"recursion limit of {sys.getrecursionlimit()}); flatten it")
     except (ValueError, TypeError, OverflowError, ArithmeticError) as exc:
         # the library validates its arguments and names the one at fault

@@ -119,17 +119,18 @@ def parse_memory_budget(text: str | None) -> float | None:
     return value
 
 
-def refuse_overwriting_inputs(out_path: Path | None, inputs: dict[str, str]) -> None:
+def refuse_overwriting_inputs(output: str | None, inputs: dict[str, str]) -> None:
     """Refuse an output that is one of the input files (same path, link or hard link)."""
-    if out_path is None or not out_path.exists():
+    if output is None or not os.path.exists(output):
         return
+    out_path = output
     for name, path in inputs.items():
         try:
             same = os.path.samefile(out_path, path)
         except OSError:
             same = False
         if same:
-            raise CliError(f"output {str(out_path)!r} is {name} {path!r}: the result would "
+            raise CliError(f"output {output!r} is {name} {path!r}: the result would "
                            "overwrite an input; write it to another file")
 
 
@@ -153,7 +154,7 @@ def _run(args) -> int:
                            f"use one of {', '.join(SEQUENCE_SUFFIXES)}")
         if out_path.is_dir():
             raise CliError(f"output {args.output!r} is a folder; give a file name")
-    refuse_overwriting_inputs(out_path, {"input a": args.a, "input b": args.b})
+    refuse_overwriting_inputs(args.output, {"input a": args.a, "input b": args.b})
     streamed = _stream_if_large(args, out_path, modulus, length)
     if streamed is not None:
         return streamed
@@ -170,7 +171,7 @@ def _run(args) -> int:
     the_plan = api.plan(a, b, modulus=modulus, length=length)
     result = api.convolve(a, b, modulus=modulus, length=length)
     if out_path is not None:
-        atomic_write(out_path, sequence_bytes(result, out_path.suffix))
+        atomic_write(out_path, sequence_bytes(result, out_path.suffix, f"output {args.output!r}"))
     if args.json:
         payload = {"plan": plan_dict(the_plan), "length": int(result.size),
                    "output": str(out_path) if out_path else None}
