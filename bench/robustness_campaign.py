@@ -968,6 +968,10 @@ FAMILIES = {
 # ----------------------------------------------------------------------------------- worker
 
 
+class CaseTimeout(BaseException):
+    """Raised by the per-case alarm; a BaseException so no handler under test swallows it."""
+
+
 def worker(conn, case_timeout: float) -> None:
     """Run cases sent by the parent; answer (class, detail, peak RSS growth)."""
     import warnings
@@ -980,7 +984,7 @@ def worker(conn, case_timeout: float) -> None:
     import polyconv.cli.main  # noqa: F401
 
     def alarm(signum, frame):
-        raise TimeoutError("case timeout")
+        raise CaseTimeout(f"over {case_timeout:g} s")
 
     signal.signal(signal.SIGALRM, alarm)
     while True:
@@ -993,8 +997,8 @@ def worker(conn, case_timeout: float) -> None:
         signal.alarm(int(case_timeout))
         try:
             verdict, detail = FAMILIES[family][0](random.Random(seed), work)
-        except TimeoutError:
-            verdict, detail = "hang", f"over {case_timeout:g} s"
+        except CaseTimeout as exc:
+            verdict, detail = "hang", str(exc)
         except MemoryError as exc:
             verdict, detail = "memory", f"MemoryError {exc}"
         except BaseException as exc:  # noqa: BLE001
@@ -1056,7 +1060,17 @@ def main() -> int:
     parser.add_argument("--examples", type=int, default=4, help="reproducers per defect class")
     parser.add_argument("--only", default=None, help="run only families containing this text")
     parser.add_argument("--json", default=None, help="also write the counts to this JSON file")
+    parser.add_argument("--repro", nargs=2, metavar=("FAMILY", "SEED"), default=None,
+                        help="run one case in this process and print its verdict")
     args = parser.parse_args()
+    if args.repro:
+        os.environ["POLYCONV_MEMORY_BUDGET"] = str(BUDGET)
+        sys.set_int_max_str_digits(0)
+        family = next(k for k in FAMILIES if args.repro[0] in k)
+        work = Path(tempfile.mkdtemp(prefix="polyconv-repro-"))
+        print(FAMILIES[family][0](random.Random(int(args.repro[1])), work))
+        print(f"files kept in {work}")
+        return 0
     rng = random.Random(args.seed)
     families = {k: v for k, v in FAMILIES.items() if args.only is None or args.only in k}
     names, weights = list(families), [families[k][1] for k in families]
