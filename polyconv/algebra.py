@@ -46,6 +46,7 @@ from .api import convolve, convolve_integer_rows
 from .bounds import max_abs
 from .engines import _intpack
 from .engines.kronecker import multiply_rows
+from .inputs import as_number_array
 from .planning import THREADS
 
 __all__ = ["power", "product", "inverse_series", "poly_divmod", "counting_products",
@@ -351,10 +352,7 @@ class _Floats(_Ring):
 
 def _sequence(x, name: str, hint: str = "") -> tuple[np.ndarray, str]:
     """Validate one 1-D, non-empty numeric sequence; return it with its kind."""
-    try:
-        arr = x if isinstance(x, np.ndarray) else np.asarray(x)
-    except (ValueError, TypeError) as exc:
-        raise ValueError(f"{name} must be a 1-D sequence of numbers; numpy said: {exc}") from None
+    arr = as_number_array(x, name)
     if arr.ndim != 1:
         got = "a scalar" if arr.ndim == 0 else f"an array of shape {arr.shape}"
         raise ValueError(f"{name} must be a 1-D sequence of numbers (polynomial coefficients, "

@@ -192,8 +192,11 @@ def run(the_plan: Plan, x: np.ndarray, y: np.ndarray) -> np.ndarray:
         bad = shaping.nonfinite_masks(x, y)
         if bad is not None:
             x, y = shaping.zero_nonfinite(x), shaping.zero_nonfinite(y)
-            out = shaping.mark_nonfinite(_run_transform(the_plan, x, y), bad,
-                                         x.shape[-1], y.shape[-1])
+        # finite inputs whose product overflows: inf - inf inside a transform would give NaN
+        # where numpy.convolve gives +-inf, so the product is formed on scaled operands
+        out = shaping.run_scaled(lambda u, v: _run_transform(the_plan, u, v), x, y)
+        if bad is not None:
+            out = shaping.mark_nonfinite(out, bad, x.shape[-1], y.shape[-1])
     return out
 
 

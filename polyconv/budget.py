@@ -13,14 +13,16 @@ The budget, in bytes, is the first of:
 3. :data:`DEFAULT_FRACTION` of the machine's physical memory (:data:`FALLBACK_BYTES` where the
    operating system does not tell).
 
-The check counts the largest arrays an operation holds at once (estimates stated where the check
-is made); it is a guard against requests that cannot fit, not an accounting of every temporary.
+Requests up to :data:`ALWAYS_GRANTED` (1 MiB) always pass.  The check counts the largest arrays
+an operation holds at once (estimates stated where the check is made); it is a guard against
+requests that cannot fit, not an accounting of every temporary.
 """
 
 from __future__ import annotations
 
 import contextlib
 import contextvars
+import functools
 import math
 import os
 import re
@@ -32,6 +34,10 @@ ENV_VARIABLE = "POLYCONV_MEMORY_BUDGET"
 DEFAULT_FRACTION = 0.5
 #: Default budget where physical memory is unknown: 4 GiB.
 FALLBACK_BYTES = 4 * 2**30
+
+#: Requests up to this size (1 MiB) are granted without reading the budget: the interpreter
+#: itself needs more, and small products then pay nothing for the check.
+ALWAYS_GRANTED = 2**20
 
 _SUFFIXES = {"": 1, "B": 1, "K": 2**10, "M": 2**20, "G": 2**30, "T": 2**40}
 _PATTERN = re.compile(r"^\s*([0-9]*\.?[0-9]+(?:[eE][+-]?[0-9]+)?)\s*([KMGT]?)(?:I?B)?\s*$",
@@ -77,6 +83,7 @@ def physical_memory() -> int | None:
     return pages * page_size
 
 
+@functools.lru_cache(maxsize=1)
 def default_budget() -> int:
     """:data:`DEFAULT_FRACTION` of physical memory, else :data:`FALLBACK_BYTES`."""
     total = physical_memory()
@@ -130,6 +137,21 @@ def format_bytes(nbytes: float) -> str:
     raise AssertionError("unreachable")
 
 
+#: Bytes of one Python int of ``b`` bits held in an object array: a 28-byte header, 4 bytes per
+#: 30-bit digit, and the array's 8-byte pointer (CPython's layout; common practice, no source).
+PYINT_OVERHEAD = 36
+
+
+def coefficient_bytes(kind: str, bits: float = 0.0) -> float:
+    """Bytes one stored coefficient takes: float64 8, complex128 16, int64 8 below 63 bits,
+    else a Python int of ``bits`` bits (:data:`PYINT_OVERHEAD` plus its digits)."""
+    if kind == "complex":
+        return 16.0
+    if kind == "real" or bits < 63:
+        return 8.0
+    return PYINT_OVERHEAD + bits / 7.5  # 30 bits per 4-byte digit
+
+
 def check_allocation(nbytes: float, what: str) -> None:
     """Refuse, before allocating, a request of ``nbytes`` over the budget.
 
@@ -147,8 +169,10 @@ def check_allocation(nbytes: float, what: str) -> None:
     MemoryBudgetError
         A ValueError whose message names ``what``, both sizes and how to change the budget.
     """
+    if nbytes <= ALWAYS_GRANTED:  # NaN compares False: refused below
+        return
     budget = memory_budget()
-    if nbytes <= budget:  # NaN compares False: refused below
+    if nbytes <= budget:
         return
     size = format_bytes(nbytes) if math.isfinite(nbytes) else str(nbytes)
     raise MemoryBudgetError(

@@ -14,7 +14,6 @@ The file holds plain numbers; see :func:`polyconv.calibrate.measure` for how eac
 from __future__ import annotations
 
 import json
-import math
 import os
 import warnings
 from importlib import resources
@@ -45,47 +44,70 @@ def default_costs() -> dict:
     return json.loads(text)
 
 
-def table_problem(table: object, reference: dict | None = None, where: str = "") -> str | None:
-    """What is wrong with a cost table (None if nothing): the key missing or of the wrong type.
+def _valid(table: object) -> bool:
+    return isinstance(table, dict) and all(k in table for k in REQUIRED_KEYS)
 
-    Every key of the shipped table must be present, holding a table where the shipped one has
-    a table and a finite number >= 0 where it has a number; a table keyed by sizes (``"10"``,
-    ``"11"``, ...: measured rates) may hold other sizes, but at least one.
+
+#: Keys of the shipped table a calibrated file may lack (the planner has a fallback for each).
+OPTIONAL_KEYS = frozenset({("exact", "direct_float"), ("exact", "limbs_mod_wide"), ("machine",),
+                           ("version",)})
+#: Tables keyed by size (log2 of a length or bit count): any keys, at least one numeric entry.
+_SIZE_TABLES = frozenset({"rate_by_log2n", "mul_rate_by_log2bits"})
+
+
+def table_problem(table: object, reference: dict | None = None, where: tuple = ()) -> str | None:
+    """What is wrong with a cost table, compared key by key with the shipped one (None: fine).
+
+    Every key of the shipped table must be present (save :data:`OPTIONAL_KEYS`) with the same
+    shape: a section is a JSON object, a constant a finite non-negative number (not a boolean).
     """
-    if reference is None:
-        if not isinstance(table, dict) or not all(k in table for k in REQUIRED_KEYS):
-            return f"a cost table needs the keys {REQUIRED_KEYS}"
-        reference = default_costs()
-    if isinstance(reference, dict):
-        if not isinstance(table, dict):
-            return f"key {where!r} must be a table, got {type(table).__name__}"
-        if reference and all(k.isdigit() for k in reference):  # measured sizes
-            if not table or not all(isinstance(k, str) and k.isdigit() for k in table):
-                return f"key {where!r} must map sizes (whole numbers) to numbers"
-            pairs = [(k, table[k]) for k in table]
-            refs = dict.fromkeys(table, next(iter(reference.values())))
-        else:
-            missing = [k for k in reference if k not in table]
-            if missing:
-                return f"key {'.'.join(filter(None, (where, missing[0])))!r} is missing"
-            pairs, refs = [(k, table[k]) for k in reference], reference
-        for key, value in pairs:
-            problem = table_problem(value, refs[key], ".".join(filter(None, (where, key))))
+    reference = default_costs() if reference is None else reference
+    name = ".".join(where) or "the file"
+    if not isinstance(table, dict):
+        return f"{name} must be a JSON object, got {type(table).__name__}"
+    for key, want in reference.items():
+        path = where + (key,)
+        label = ".".join(path)
+        if key not in table:
+            if path in OPTIONAL_KEYS:
+                continue
+            return f"the key {label!r} is missing"
+        got = table[key]
+        if key in _SIZE_TABLES:
+            if not isinstance(got, dict) or not got or not all(
+                    _is_constant(v) and _is_int_text(k) for k, v in got.items()):
+                return (f"{label!r} must map sizes (integer strings) to non-negative numbers, "
+                        f"got {got!r:.60}")
+        elif isinstance(want, dict):
+            problem = table_problem(got, want, path)
             if problem:
                 return problem
-        return None
-    if isinstance(reference, bool) or not isinstance(reference, (int, float)):
-        return None  # a non-numeric setting: taken as it is
-    if isinstance(table, bool) or not isinstance(table, (int, float)) \
-            or not math.isfinite(table) or table < 0:
-        return f"key {where!r} must be a finite number >= 0, got {json.dumps(table)[:40]}"
+        elif isinstance(want, (int, float)) and not isinstance(want, bool):
+            if not _is_constant(got):
+                return f"{label!r} must be a non-negative number, got {got!r:.60}"
     return None
+
+
+def _is_constant(v) -> bool:
+    return (isinstance(v, (int, float)) and not isinstance(v, bool)
+            and v == v and 0 <= v < float("inf"))
+
+
+def _is_int_text(k: str) -> bool:
+    return k.lstrip("-").isdigit() and k.isascii()
 
 
 def load_costs(refresh: bool = False) -> dict:
     """The cost table in force: the user's calibrated file if present and readable, else defaults.
 
-    The result is cached; ``refresh=True`` re-reads the files.
+    The result is cached; ``refresh=True`` re-reads the files.  A user file that is not JSON is
+    skipped with a RuntimeWarning naming it (the shipped defaults are used); one that is JSON
+    but lacks a key or holds a wrong type raises.
+
+    Raises
+    ------
+    ValueError
+        Naming the user file and the key at fault.
     """
     global _cache, _cache_source, generation
     if _cache is not None and not refresh:
@@ -95,14 +117,17 @@ def load_costs(refresh: bool = False) -> dict:
     if path.is_file():
         try:
             candidate = json.loads(path.read_text(encoding="utf-8"))
-        except (OSError, ValueError, RecursionError):
+        except (OSError, ValueError, RecursionError) as exc:
+            warnings.warn(f"cost file {str(path)!r} could not be read as JSON ({exc}); using the "
+                          "defaults shipped with polyconv", RuntimeWarning, stacklevel=2)
             candidate = None
-        problem = table_problem(candidate) if candidate is not None else "not valid JSON"
-        if problem is None:
+        if candidate is not None:
+            problem = table_problem(candidate)
+            if problem:
+                raise ValueError(f"cost file {str(path)!r} is not a valid cost table: {problem}; "
+                                 "re-run `polyconv calibrate`, or remove the file (or unset "
+                                 "POLYCONV_COSTS) to use the shipped defaults")
             table, source = candidate, str(path)
-        else:
-            warnings.warn(f"cost file {path} ignored ({problem}); using the costs shipped with "
-                          "polyconv (re-run `polyconv calibrate` to rewrite it)", stacklevel=2)
     if table is None:
         table = default_costs()
     _cache, _cache_source = table, source
@@ -119,8 +144,10 @@ def cost_source() -> str:
 def save_user_costs(table: dict, path: Path | None = None) -> Path:
     """Write ``table`` atomically (:func:`polyconv._atomic.write_bytes`: temporary file, then
     rename; umask honoured, an existing file's mode kept) and make it the table in force."""
+    if not _valid(table):
+        raise ValueError(f"a cost table needs the keys {REQUIRED_KEYS}")
     problem = table_problem(table)
-    if problem is not None:
+    if problem:
         raise ValueError(f"cost table not saved: {problem}")
     path = Path(path) if path is not None else user_cost_path()
     path.parent.mkdir(parents=True, exist_ok=True)

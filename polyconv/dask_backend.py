@@ -23,7 +23,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .api import convolve
-from .inputs import MODES
+from .inputs import MODES, as_number_array
 from .streaming import (
     INT64_LIMIT,
     Summation,
@@ -314,11 +314,7 @@ def exact_product_dask(a, b, *, modulus: int | None = None, client=None,
 
 def _check_exact_operand(x, name: str):
     if not is_dask_array(x):
-        try:
-            x = np.asarray(x)
-        except (ValueError, TypeError) as exc:
-            raise ValueError(f"{name} must be a 1-D sequence of integers; numpy said: "
-                             f"{exc}") from None
+        x = as_number_array(x, name)
     if x.ndim != 1:
         raise ValueError(f"{name} must be 1-D, got shape {x.shape}")
     if math.isnan(x.shape[0]):
@@ -355,6 +351,14 @@ def _cut(n1: int, n2: int, pieces: int) -> _Blocks:
 
 def _resolve_client(client):
     if client is not None:
+        try:
+            from distributed import Client
+        except ImportError:  # pragma: no cover - dask without distributed
+            raise ValueError("client= needs the distributed package (pip install "
+                             "distributed)") from None
+        if not isinstance(client, Client):
+            raise TypeError("client must be a distributed.Client or None, got "
+                            f"{type(client).__name__}")
         return client
     try:
         from distributed import default_client

@@ -55,18 +55,50 @@ class OperandPair:
 
 
 def _as_array(x, name: str) -> np.ndarray:
-    if isinstance(x, np.ndarray):
-        arr = x
-    else:
-        try:
-            arr = np.asarray(x)
-        except (ValueError, TypeError) as exc:  # ragged nested lists and the like
-            raise ValueError(
-                f"{name} must be an array-like of numbers with a regular shape; numpy said: {exc}"
-            ) from None
+    arr = as_number_array(x, name)
     if arr.ndim == 0:
         raise ValueError(f"{name} must be a sequence (at least 1-D), got a scalar (0-d array)")
     return arr
+
+
+#: Containers numpy would wrap as one opaque 0-d object: no order (sets, dicts) or no length
+#: (iterators, generators).
+_UNORDERED = (set, frozenset, dict)
+
+
+def as_number_array(x, name: str) -> np.ndarray:
+    """``x`` as a numpy array without losing exactness; a clear error naming ``name`` otherwise.
+
+    numpy turns a list of Python ints into float64 when one value lies in ``[2^63, 2^64)`` and
+    another is negative or below it (``[0, 2**63 + 1]``), silently rounding them; such lists (or
+    nested lists and tuples) become object arrays of Python ints here, so they stay exact.
+    Generators, iterators, dicts and sets are refused by name (numpy would wrap them as a
+    scalar).  Arrays are returned as they are.
+    """
+    if isinstance(x, np.ndarray):
+        return x
+    if isinstance(x, _UNORDERED) or (hasattr(x, "__next__") and hasattr(x, "__iter__")):
+        raise TypeError(f"{name} must be an array-like of numbers (list, tuple or numpy array); "
+                        f"got a {type(x).__name__}, which numpy cannot read as a sequence: "
+                        f"pass list(...) of it")
+    try:
+        arr = np.asarray(x)
+    except (ValueError, TypeError, OverflowError) as exc:  # ragged nested lists and the like
+        raise ValueError(
+            f"{name} must be an array-like of numbers with a regular shape; numpy said: {exc}"
+        ) from None
+    if arr.dtype.kind == "f" and arr.size and _holds_int64_overflow(arr):
+        exact = np.asarray(x, dtype=object)
+        if exact.shape == arr.shape and all(
+                isinstance(v, numbers.Integral) for v in exact.ravel()):
+            return exact
+    return arr
+
+
+def _holds_int64_overflow(arr: np.ndarray) -> bool:
+    """True if some entry is at least 2^63 in magnitude (numpy's float64 for big Python ints)."""
+    with np.errstate(invalid="ignore"):
+        return bool(np.nanmax(np.abs(arr), initial=0.0) >= 2.0**63)
 
 
 def _kind_of(arr: np.ndarray, name: str) -> str:

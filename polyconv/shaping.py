@@ -118,6 +118,36 @@ def zero_nonfinite(x: np.ndarray) -> np.ndarray:
     return x
 
 
+def run_scaled(product, x: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """``product(x, y)`` computed as ``2^(ex + ey) product(x 2^-ex, y 2^-ey)`` per row.
+
+    ``2^e`` is the power of two just above each row's largest magnitude, so the scaled operands
+    lie below 1 and no transform overflows; scaling by powers of two is exact (``numpy.ldexp``,
+    save entries pushed below the normal range, which lose less than ``2^-1074`` times the
+    scale, far inside the float error bound), and the final ``ldexp`` rounds once, giving
+    ``+-inf`` exactly where the coefficient overflows float64, as numpy.convolve does.  Operands
+    must be finite.
+    """
+    ex, ey = _row_exponents(x), _row_exponents(y)
+    with np.errstate(invalid="ignore", over="ignore"):
+        out = product(_ldexp(x, -ex), _ldexp(y, -ey))
+        return _ldexp(out, ex + ey)
+
+
+def _row_exponents(x: np.ndarray) -> np.ndarray:
+    largest = np.max(np.abs(x), axis=-1, keepdims=True)
+    return np.frexp(largest)[1]
+
+
+def _ldexp(x: np.ndarray, e: np.ndarray) -> np.ndarray:
+    if x.dtype.kind != "c":
+        return np.ldexp(x, e.astype(np.int32))
+    out = np.empty(np.broadcast_shapes(x.shape, e.shape), dtype=x.dtype)
+    out.real = np.ldexp(x.real, e.astype(np.int32))
+    out.imag = np.ldexp(x.imag, e.astype(np.int32))
+    return out
+
+
 def _windows_hit(mask: np.ndarray, width: int) -> np.ndarray:
     """Full-product positions ``k`` with some ``mask[i]`` true for ``k - width < i <= k``."""
     n = mask.shape[-1]

@@ -33,6 +33,7 @@ import numpy as np
 
 from ._atomic import AtomicFile
 from .api import convolve
+from .inputs import as_number_array
 
 #: Smallest default block (samples): large enough that a block product amortises the fixed cost
 #: of one :func:`polyconv.api.convolve` call and of one read and one write, small enough (a few
@@ -205,10 +206,7 @@ class OverlapAdd:
 
 def check_kernel(kernel) -> np.ndarray:
     """The kernel as a 1-D, non-empty numeric array (native byte order)."""
-    try:
-        k = np.asarray(kernel)
-    except (ValueError, TypeError) as exc:
-        raise ValueError(f"kernel must be a 1-D array-like of numbers; numpy said: {exc}") from None
+    k = as_number_array(kernel, "kernel")
     if k.ndim != 1:
         raise ValueError(f"kernel must be 1-D, got an array of shape {k.shape}")
     if k.shape[0] == 0:
@@ -340,10 +338,7 @@ def convolve_chunks(chunks: Iterable, kernel, *,
 
 
 def _check_chunk(chunk, index: int) -> np.ndarray:
-    try:
-        x = np.asarray(chunk)
-    except (ValueError, TypeError) as exc:
-        raise ValueError(f"chunks[{index}] is not an array of numbers; numpy said: {exc}") from None
+    x = as_number_array(chunk, f"chunks[{index}]")
     if x.ndim != 1:
         raise ValueError(f"chunks[{index}] must be 1-D, got shape {x.shape}")
     if x.dtype.kind not in "biufcO":
@@ -363,28 +358,72 @@ def _check_same_kind(x: np.ndarray, k: np.ndarray, exact: bool, index: int) -> N
 
 # ----------------------------------------------------------------------------- files
 
-class NpySource:
-    """A 1-D ``.npy`` file read block by block through ``numpy.load(mmap_mode="r")``.
+class SourceChangedError(ValueError):
+    """The source file was replaced, truncated or rewritten while it was being read."""
 
-    The file is mapped afresh for every read and the mapping dropped right after copying the
-    block out, so pages already read do not accumulate in the process's resident set.
+
+class NpySource:
+    """A 1-D ``.npy`` file opened once and read block by block from that one open file.
+
+    The header is parsed with ``numpy.lib.format`` (never unpickled); blocks are read with
+    ``os.pread`` from the descriptor opened at the start, into fresh arrays (pages read do not
+    accumulate in the resident set, as a long-lived memory map's would).  A file renamed over
+    the path, truncated, extended or rewritten in place while it is read is detected (device and
+    inode of the path, size, modification and change times of the open file, checked before
+    every block
+    and by :meth:`check_unchanged`) and refused with :class:`SourceChangedError`: the output
+    never mixes two files.
     """
 
     def __init__(self, path):
         self.path = os.fspath(path)
-        mm = _open_npy(self.path)
-        self.dtype = mm.dtype
-        self.length = mm.shape[0]
-        del mm
+        self.fd, self.dtype, self.length, self.offset = _open_npy(self.path)
+        self.identity = _identity(os.fstat(self.fd))
+
+    def close(self) -> None:
+        """Close the file (idempotent)."""
+        if self.fd is not None:
+            os.close(self.fd)
+            self.fd = None
+
+    def __enter__(self) -> NpySource:
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+    def check_unchanged(self) -> None:
+        """Raise :class:`SourceChangedError` if the file is not the one opened, as it was."""
+        now = _identity(os.fstat(self.fd))
+        try:
+            at_path = os.stat(self.path)
+            same_path = (at_path.st_dev, at_path.st_ino) == self.identity[:2]
+        except OSError:
+            same_path = False
+        if now != self.identity or not same_path:
+            what = ("was replaced or removed" if not same_path
+                    else "changed size or was rewritten")
+            raise SourceChangedError(
+                f"source {self.path!r} {what} while it was being read: refusing to mix two "
+                "files' data into one result (nothing was written); run again once the file "
+                "is stable")
 
     def read(self, start: int, stop: int) -> np.ndarray:
         """Samples ``start .. stop - 1`` as a new in-memory array in native byte order."""
-        mm = np.load(self.path, mmap_mode="r", allow_pickle=False)
-        try:
-            block = np.array(mm[start:stop])
-        finally:
-            del mm
-        return _native(block)
+        self.check_unchanged()
+        count = stop - start
+        out = np.empty(count, dtype=self.dtype)
+        view = memoryview(out).cast("B")
+        position = self.offset + start * self.dtype.itemsize
+        got = 0
+        while got < view.nbytes:
+            n = _read_at(self.fd, view[got:], position + got)
+            if n == 0:
+                raise SourceChangedError(
+                    f"source {self.path!r} ended after {start + got // self.dtype.itemsize} "
+                    f"of the {self.length} samples its header announces (truncated while read?)")
+            got += n
+        return _native(out)
 
     def blocks(self, block: int) -> Iterator[np.ndarray]:
         """Consecutive blocks of ``block`` samples (the last may be shorter)."""
@@ -392,29 +431,75 @@ class NpySource:
             yield self.read(start, min(self.length, start + block))
 
 
-def _open_npy(path: str) -> np.ndarray:
+def _read_at(fd: int, view: memoryview, position: int) -> int:
+    """Read into ``view`` from byte ``position`` of ``fd`` (no shared file offset moved)."""
+    if hasattr(os, "preadv"):
+        return os.preadv(fd, [view], position)
+    os.lseek(fd, position, os.SEEK_SET)
+    return os.readv(fd, [view])
+
+
+def _identity(st: os.stat_result) -> tuple[int, int, int, int, int]:
+    return (st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns)
+
+
+#: The first bytes of a zip archive (a .npz file).
+_ZIP_MAGIC = b"PK\x03\x04"
+
+
+def _open_npy(path: str) -> tuple[int, np.dtype, int, int]:
+    """Open ``path`` and parse its ``.npy`` header: ``(fd, dtype, length, data offset)``."""
     if not os.path.exists(path):
         raise FileNotFoundError(f"source {path!r} does not exist")
     if os.path.isdir(path):
         raise ValueError(f"source {path!r} is a directory, expected a .npy file")
     try:
-        mm = np.load(path, mmap_mode="r", allow_pickle=False)
-    except ValueError as exc:
-        raise ValueError(f"source {path!r} is not a memory-mappable .npy file of numbers "
-                         f"(numpy said: {exc})") from None
-    except (OSError, EOFError) as exc:
-        raise ValueError(f"source {path!r} could not be read as a .npy file: {exc}") from None
-    if not isinstance(mm, np.ndarray):  # a .npz archive gives an NpzFile
-        if hasattr(mm, "close"):
-            mm.close()
-        raise ValueError(f"source {path!r} is a .npz archive, expected a single-array .npy file")
-    if mm.ndim != 1:
-        raise ValueError(f"source {path!r} must hold a 1-D array, got shape {mm.shape}")
-    if mm.shape[0] == 0:
+        fd = os.open(path, os.O_RDONLY)
+    except OSError as exc:
+        raise ValueError(f"source {path!r} could not be opened: {exc.strerror}") from None
+    try:
+        dtype, length, offset = _parse_header(fd, path)
+    except BaseException:
+        os.close(fd)
+        raise
+    return fd, dtype, length, offset
+
+
+def _parse_header(fd: int, path: str) -> tuple[np.dtype, int, int]:
+    with os.fdopen(os.dup(fd), "rb") as f:
+        lead = f.read(6)
+        if lead[:4] == _ZIP_MAGIC:
+            raise ValueError(f"source {path!r} is a .npz archive, expected a single-array .npy "
+                             "file")
+        if lead != b"\x93NUMPY":
+            raise ValueError(f"source {path!r} is not a .npy file (it does not start with the "
+                             ".npy magic string)")
+        f.seek(0)
+        try:
+            version = np.lib.format.read_magic(f)
+            reader = (np.lib.format.read_array_header_1_0 if version == (1, 0)
+                      else np.lib.format.read_array_header_2_0)
+            shape, fortran, dtype = reader(f)
+        except (ValueError, SyntaxError, TypeError, EOFError, OSError) as exc:
+            raise ValueError(f"source {path!r} has a damaged .npy header (numpy said: "
+                             f"{exc})") from None
+        offset = f.tell()
+    if dtype.hasobject:
+        raise ValueError(f"source {path!r} holds Python objects (a pickled array): refused, "
+                        "pickles are never loaded")
+    if len(shape) != 1:
+        raise ValueError(f"source {path!r} must hold a 1-D array, got shape {shape}")
+    if shape[0] == 0:
         raise ValueError(f"source {path!r} holds an empty array")
-    if mm.dtype.kind not in "biufc":
-        raise TypeError(f"source {path!r} must hold numbers, got dtype {mm.dtype}")
-    return mm
+    if dtype.kind not in "biufc":
+        raise TypeError(f"source {path!r} must hold numbers, got dtype {dtype}")
+    size = os.fstat(fd).st_size
+    need = offset + shape[0] * dtype.itemsize
+    if size < need:
+        raise ValueError(f"source {path!r} is truncated: its header announces {shape[0]} "
+                         f"samples ({need} bytes with the header), the file has {size} bytes")
+    del fortran  # one axis: C and Fortran order coincide
+    return dtype, shape[0], offset
 
 
 class AtomicNpyWriter:
@@ -590,7 +675,11 @@ def convolve_file(source, kernel, destination, *, modulus: int | None = None,
     >>> np.load(dst)
     array([0, 1, 3, 5, 7, 4])
     """
-    src = NpySource(source)
+    with NpySource(source) as src:
+        _convolve_open_file(src, kernel, destination, modulus, block, progress)
+
+
+def _convolve_open_file(src: NpySource, kernel, destination, modulus, block, progress) -> None:
     k = check_kernel(kernel)
     dest = _check_destination(destination, src.path)
     size = check_block(block) or default_block(k.shape[0])
@@ -607,6 +696,7 @@ def convolve_file(source, kernel, destination, *, modulus: int | None = None,
         if tail.shape[0]:
             writer.write(tail)
             _report(progress, writer.written, total)
+        src.check_unchanged()  # the last block's read is checked; a change after it, too
         writer.commit()
 
 

@@ -24,11 +24,11 @@ def test_parse_budget_refuses_non_sizes(text):
 def test_precedence_context_then_environment(monkeypatch):
     monkeypatch.setenv(budget.ENV_VARIABLE, "1M")
     assert budget.memory_budget() == 2**20
-    with budget.using_budget("2K"):
-        assert budget.memory_budget() == 2048
+    with budget.using_budget("2M"):
+        assert budget.memory_budget() == 2 * 2**20
         with pytest.raises(budget.MemoryBudgetError, match="length=9"):
-            budget.check_allocation(4096, "length=9")
-        budget.check_allocation(2048, "fits exactly")
+            budget.check_allocation(4 * 2**20, "length=9")
+        budget.check_allocation(2 * 2**20, "fits exactly")
     assert budget.memory_budget() == 2**20
     monkeypatch.delenv(budget.ENV_VARIABLE)
     assert budget.memory_budget() == budget.default_budget()

@@ -81,3 +81,47 @@ def test_check_certificate_on_the_worst_measured_input_below_the_limit():
     the_plan = polyconv.plan(a, a, method="fft-exact")
     assert the_plan.certificate == "check"
     assert [int(v) for v in polyconv.convolve(a, a, method="fft-exact")] == flint_product(a, a)
+
+
+def coefficients(p, n: int) -> list[int]:
+    """The first n coefficients of a flint polynomial (zero padded)."""
+    c = [int(v) for v in p.coeffs()]
+    return (c + [0] * n)[:n]
+
+
+BIG_LISTS = [[1], [0, 2**63 + 1], [-1, 2**63], [2**64 - 1, 1], [2**63, -(2**63)]]
+
+
+@pytest.mark.parametrize("b", BIG_LISTS)
+def test_lists_of_python_ints_near_two_to_the_64_stay_exact(b):
+    # reference: python-flint fmpz_poly (numpy would have read these lists as float64)
+    a = [3, -1]
+    got = polyconv.convolve(a, b)
+    assert got.dtype != np.float64 and polyconv.plan(a, b).exact
+    assert [int(v) for v in got] == flint_product(a, b)
+    assert [int(v) for v in polyconv.convolve(a, b, modulus=7)] == flint_product_mod(a, b, 7)
+    nested = polyconv.convolve([a, a], (tuple(b),))
+    assert [[int(v) for v in row] for row in nested] == [flint_product(a, b)] * 2
+
+
+def test_algebra_keeps_lists_of_big_python_ints_exact():
+    # reference: python-flint fmpz_poly divmod / power / series inverse (exact Python ints)
+    q, r = polyconv.poly_divmod([5] * 96, [2**64 - 1, 1])
+    fq, fr = divmod(flint.fmpz_poly([5] * 96), flint.fmpz_poly([2**64 - 1, 1]))
+    assert [int(v) for v in q] == coefficients(fq, 95)
+    assert [int(v) for v in r] == coefficients(fr, 1)
+    base = [0, 2**63 + 1]
+    assert [int(v) for v in polyconv.power(base, 3)] == coefficients(flint.fmpz_poly(base)**3, 4)
+    # 1 / (1 - t x) = sum t^k x^k (geometric series), t = 2^63 + 5
+    t = 2**63 + 5
+    assert [int(v) for v in polyconv.inverse_series([1, -t], 5)] == [t**k for k in range(5)]
+
+
+@pytest.mark.parametrize("bad", [(i for i in range(3)), {1: 2}, {1, 2}, iter([1, 2])],
+                         ids=["generator", "dict", "set", "iterator"])
+def test_unordered_containers_are_refused_by_name(bad):
+    # common practice, no source: a clear TypeError naming the argument, not "a scalar"
+    with pytest.raises(TypeError, match="^b must be an array-like.*pass list"):
+        polyconv.convolve([1, 2], bad)
+    with pytest.raises(TypeError, match="^a must be an array-like"):
+        polyconv.power(bad, 2)
