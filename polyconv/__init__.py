@@ -1,30 +1,53 @@
 """polyconv: fast, exact convolution of sequences, polynomials and distributions.
 
-Public names only; see README.md for a tour and DEVELOPERS.md for the module map.
+Public names only; see README.md for a tour and DEVELOPERS.md for the module map.  Names are
+imported on first use (PEP 562 ``__getattr__``), so ``import polyconv`` and the command line start
+without loading numpy and scipy until they are needed (the CLI handles Ctrl-C from then on).
 """
 
-from .algebra import ZeroDivisorError, inverse_series, poly_divmod, power, product
-from .api import convolve, error_bound, plan
-from .dask_backend import convolve_dask, exact_product_dask
-from .planning import Plan
-from .streaming import convolve_chunks, convolve_file
+from __future__ import annotations
+
+import importlib
+from typing import TYPE_CHECKING
+
+_WHERE = {
+    "convolve": "api", "plan": "api", "error_bound": "api", "Plan": "planning",
+    "convolve_file": "streaming", "convolve_chunks": "streaming",
+    "convolve_dask": "dask_backend", "exact_product_dask": "dask_backend",
+    "power": "algebra", "product": "algebra", "inverse_series": "algebra",
+    "poly_divmod": "algebra", "ZeroDivisorError": "algebra",
+}
 
 __all__ = ["convolve", "plan", "error_bound", "Plan", "dist", "convolve_file", "convolve_chunks",
            "convolve_dask", "exact_product_dask", "power", "product", "inverse_series",
            "poly_divmod", "ZeroDivisorError"]
 __version__ = "0.1.0"
 
+if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors
+    from . import dist
+    from .algebra import ZeroDivisorError, inverse_series, poly_divmod, power, product
+    from .api import convolve, error_bound, plan
+    from .dask_backend import convolve_dask, exact_product_dask
+    from .planning import Plan
+    from .streaming import convolve_chunks, convolve_file
+
 
 def __getattr__(name: str):
-    """Load :mod:`polyconv.dist` (and with it scipy.stats) on first use, not at import.
+    """A public name (or a sub-module such as ``polyconv.dist``), imported on first use."""
+    if name in _WHERE:
+        value = getattr(importlib.import_module(f"{__name__}.{_WHERE[name]}"), name)
+    elif not name.startswith("__"):
+        try:
+            value = importlib.import_module(f"{__name__}.{name}")
+        except ModuleNotFoundError as exc:
+            if exc.name != f"{__name__}.{name}":
+                raise
+            raise AttributeError(f"module {__name__!r} has no attribute {name!r}") from None
+    else:
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    globals()[name] = value
+    return value
 
-    A user who only multiplies sequences should not pay for scipy.stats (about a second cold).
-    """
-    if name == "dist":
-        import importlib
 
-        module = importlib.import_module(".dist", __name__)
-        globals()["dist"] = module
-        return module
-    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
-
+def __dir__() -> list[str]:
+    return sorted(set(globals()) | set(__all__))

@@ -15,10 +15,11 @@ from __future__ import annotations
 
 import json
 import os
-import tempfile
 import warnings
 from importlib import resources
 from pathlib import Path
+
+from . import _atomic
 
 _cache: dict | None = None
 _cache_source: str | None = None
@@ -116,7 +117,7 @@ def load_costs(refresh: bool = False) -> dict:
     if path.is_file():
         try:
             candidate = json.loads(path.read_text(encoding="utf-8"))
-        except (OSError, ValueError) as exc:
+        except (OSError, ValueError, RecursionError) as exc:
             warnings.warn(f"cost file {str(path)!r} could not be read as JSON ({exc}); using the "
                           "defaults shipped with polyconv", RuntimeWarning, stacklevel=2)
             candidate = None
@@ -141,20 +142,15 @@ def cost_source() -> str:
 
 
 def save_user_costs(table: dict, path: Path | None = None) -> Path:
-    """Write ``table`` atomically (temporary file, then rename) and make it the table in force."""
+    """Write ``table`` atomically (:func:`polyconv._atomic.write_bytes`: temporary file, then
+    rename; umask honoured, an existing file's mode kept) and make it the table in force."""
     if not _valid(table):
         raise ValueError(f"a cost table needs the keys {REQUIRED_KEYS}")
+    problem = table_problem(table)
+    if problem:
+        raise ValueError(f"cost table not saved: {problem}")
     path = Path(path) if path is not None else user_cost_path()
     path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=".costs-", suffix=".json", dir=path.parent)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            json.dump(table, fh, indent=2, sort_keys=True)
-            fh.write("\n")
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+    _atomic.write_bytes(path, json.dumps(table, indent=2, sort_keys=True) + "\n")
     load_costs(refresh=True)
     return path

@@ -24,13 +24,14 @@ proves it (every output, and every partial sum of one, is a sum of at most ``min
 
 from __future__ import annotations
 
+import io
 import os
-import secrets
 from collections.abc import Callable, Iterable, Iterator
 from dataclasses import dataclass
 
 import numpy as np
 
+from ._atomic import AtomicFile
 from .api import convolve
 from .budget import check_allocation
 from .inputs import as_number_array
@@ -509,29 +510,29 @@ def _parse_header(fd: int, path: str) -> tuple[np.dtype, int, int]:
 class AtomicNpyWriter:
     """Write a 1-D ``.npy`` file sequentially; it appears at ``path`` only on :meth:`commit`.
 
-    Data go to a fresh temporary file in the destination's folder (same file system, so the
-    final ``os.replace`` is atomic), after a version 1.0 header written by
-    ``numpy.lib.format``.  Plain sequential writes, not a writable memory map: written pages
-    sit in the page cache, not in the process's resident set.  :meth:`abort` (also on any
-    exception inside a ``with`` block, KeyboardInterrupt included) removes the temporary file.
+    A :class:`polyconv._atomic.AtomicFile` (temporary file in the destination's folder, renamed
+    into place; umask honoured, a replaced file's mode kept; disk-full errors name ``path``)
+    after a version 1.0 header written by ``numpy.lib.format``.  Plain sequential writes, not a
+    writable memory map: written pages sit in the page cache, not in the process's resident
+    set.  :meth:`abort` (also on leaving a ``with`` block without :meth:`commit`, on any
+    exception, KeyboardInterrupt and the CLI's SIGTERM/SIGHUP included) removes the temporary.
     """
 
     def __init__(self, path, dtype: np.dtype, length: int, *, sync: bool = True):
         self.path = os.fspath(path)
         self.dtype = np.dtype(dtype)
         self.length = length
-        self.sync = sync
         self.written = 0
-        folder, name = os.path.split(os.path.abspath(self.path))
-        self.temp = os.path.join(folder, f".{name}.{secrets.token_hex(6)}.tmp")
-        fd = os.open(self.temp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666)
-        self.file = os.fdopen(fd, "wb")
+        self.out = AtomicFile(self.path, sync=sync)
+        self.temp = os.fspath(self.out.temp)
         try:
-            np.lib.format.write_array_header_1_0(self.file, {
+            header = io.BytesIO()
+            np.lib.format.write_array_header_1_0(header, {
                 "descr": np.lib.format.dtype_to_descr(self.dtype),
                 "fortran_order": False,
                 "shape": (length,),
             })
+            self.out.write(header.getvalue())
         except BaseException:
             self.abort()
             raise
@@ -540,37 +541,28 @@ class AtomicNpyWriter:
         """Append values (converted to the file's dtype)."""
         data = np.ascontiguousarray(values, dtype=self.dtype)
         if self.written + data.shape[0] > self.length:
+            self.abort()
             raise RuntimeError("more values written than the header announced")
-        self.file.write(memoryview(data).cast("B"))
+        self.out.write(memoryview(data).cast("B"))
         self.written += data.shape[0]
 
     def commit(self) -> None:
         """Check the length, flush (and fsync), and rename the file into place."""
         if self.written != self.length:
+            self.abort()
             raise RuntimeError(f"{self.written} values written, the header announced "
                                f"{self.length}")
-        self.file.flush()
-        if self.sync:
-            os.fsync(self.file.fileno())
-        self.file.close()
-        os.replace(self.temp, self.path)
+        self.out.commit()
 
     def abort(self) -> None:
         """Close and remove the temporary file (never raises for a missing file)."""
-        try:
-            self.file.close()
-        finally:
-            try:
-                os.unlink(self.temp)
-            except FileNotFoundError:
-                pass
+        self.out.abort()
 
     def __enter__(self) -> AtomicNpyWriter:
         return self
 
     def __exit__(self, exc_type, exc, tb) -> None:
-        if exc_type is not None:
-            self.abort()
+        self.abort()  # a no-op after commit
 
 
 def _check_destination(destination, source: str) -> str:

@@ -40,7 +40,8 @@ def test_unreadable_user_file_falls_back_to_defaults(tmp_path, monkeypatch):
     bad.write_text("{ not json")
     monkeypatch.setenv("POLYCONV_COSTS", str(bad))
     try:
-        assert costs.load_costs(refresh=True) == costs.default_costs()
+        with pytest.warns(RuntimeWarning, match="costs.json"):  # names the file
+            assert costs.load_costs(refresh=True) == costs.default_costs()
     finally:
         monkeypatch.delenv("POLYCONV_COSTS")
         costs.load_costs(refresh=True)

@@ -170,7 +170,7 @@ def parse(doc: SpecDoc) -> AggregateSpec:
 
 def _on_step(value: float, step: float) -> bool:
     k = value / step
-    return abs(k - round(k)) <= 1e-9 * max(1.0, abs(k))
+    return math.isfinite(k) and abs(k - round(k)) <= 1e-9 * max(1.0, abs(k))
 
 
 def parse_counts(sec: Section) -> tuple[object, str]:
@@ -219,7 +219,7 @@ def compute(spec: AggregateSpec, steps: Steps | None = None) -> AggregateResult:
             steps.step("discretise severity")
         points = None
         if math.isfinite(spec.limit):
-            points = int(round((spec.deductible + spec.limit) / spec.step)) + 2
+            points = laws.span_points(spec.deductible + spec.limit, spec.step)
         built = laws.build(spec.severity, spec.step, method=spec.discretisation,
                            max_points=spec.max_points, points=points)
         notes.extend(built.notes)

@@ -6,8 +6,9 @@
 * exact counting by polynomial products: three dice, fifty dice (big integers) and coin change.
 
 Everything is written to one report folder (``./polyconv-demo`` by default): ``report.md``, the
-CSVs and PNGs of each part, and copies of the two spec files to edit and re-run.  The folder is
-built in a temporary sibling and moved into place (see :mod:`polyconv.cli.fileio`).
+CSVs and PNGs of each part, and copies of the two spec files to edit and re-run (a copy the user
+has edited is kept, never overwritten).  The folder is built in a temporary sibling and swapped
+into place (see :mod:`polyconv.cli.fileio`).
 """
 
 from __future__ import annotations
@@ -209,18 +210,40 @@ def run(args) -> int:
                     list(three), list(three.values()),
                     title="Three six-sided dice: ways to roll each total (exact)",
                     xlabel="total of three dice (pips)", ylabel="number of ways (of 216)"))
-            for name in SCENARIOS:
-                out.write_text(name, scenario_text(name))
+            kept = write_spec_copies(out)
             out.write_text("report.md", report_markdown(claims, pipeline, counts, figures))
             steps.step("report.md")
-        summary = {"output": str(folder), "claims": aggregate_cmd.json_summary(claims),
+        summary = {"output": str(folder), "kept_edited_specs": kept,
+                   "claims": aggregate_cmd.json_summary(claims),
                    "pipeline": delays_cmd.json_summary(pipeline),
                    "counting": {k: v for k, v in counts.items() if not k.startswith("_")}}
         if args.json:
             print(dumps(summary))
             return 0
         print(terminal_text(claims, pipeline, counts, folder))
+        for name in kept:
+            print(f"kept your edited {folder / name} (the bundled copy was not written; delete "
+                  "the file to get it back)")
     return 0
+
+
+def write_spec_copies(out: ReportFolder) -> list[str]:
+    """Copy the bundled specs into the report, except where the folder being replaced holds an
+    edited copy (one that differs from ours): that copy is kept.  Returns the kept names."""
+    kept = []
+    for name in SCENARIOS:
+        ours = scenario_text(name).encode("utf-8")
+        old = out.existing(name)
+        if old is not None:
+            try:
+                edited = old.read_bytes() != ours
+            except OSError:
+                edited = True
+            if edited:  # ReportFolder carries it over into the new folder
+                kept.append(name)
+                continue
+        out.write_bytes(name, ours)
+    return kept
 
 
 def terminal_text(claims, pipeline, counts: dict, folder: Path) -> str:

@@ -6,7 +6,22 @@ USAGE_ERROR = 2
 """Exit status for bad input: a malformed spec, an unreadable file, a bad option value."""
 
 INTERRUPTED = 130
-"""Exit status after Ctrl-C (128 + SIGINT, the shell convention)."""
+"""Exit status after Ctrl-C (128 + SIGINT, the shell convention), SIGTERM or SIGHUP.
+
+SIGTERM and SIGHUP are handled exactly like Ctrl-C (temporary files removed, no output left
+half-written) and exit with this same status, not 128 + their number: the command line promises
+only the statuses 0, 2 and 130, and scripts test for 130 to mean "stopped by a signal, nothing
+written"."""
+
+
+class Interrupted(KeyboardInterrupt):
+    """SIGINT, SIGTERM or SIGHUP, raised in the main thread like Ctrl-C's KeyboardInterrupt (so
+    every cleanup that handles Ctrl-C handles these too)."""
+
+    def __init__(self, signum: int, name: str):
+        super().__init__(name)
+        self.signum = signum
+        self.name = name
 
 
 class CliError(Exception):

@@ -104,10 +104,18 @@ def natural_points(sec: Section, step: float) -> float:
     """Grid points a law needs from 0: past its ``1 - TAIL`` quantile for a continuous law
     (``inf`` if that is infinite), past its largest value for an empirical one."""
     if describe_kind(sec) == "law":
-        top = float(frozen_law(sec).isf(TAIL))
-        return math.ceil(top / step) + 3 if math.isfinite(top) else math.inf
+        top = float(frozen_law(sec).isf(TAIL)) / step
+        return math.ceil(top) + 3 if math.isfinite(top) else math.inf
     key = "samples" if sec.has("samples") else "values"
-    return math.floor(max(sec.numbers(key, minimum=0.0)) / step + 0.5) + 1
+    top = max(sec.numbers(key, minimum=0.0)) / step + 0.5
+    return math.floor(top) + 1 if math.isfinite(top) else math.inf
+
+
+def span_points(span: float, step: float) -> int | float:
+    """Grid points from 0 just past ``span`` (``round(span / step) + 2``); ``inf`` when the
+    ratio overflows (e.g. a step of 5e-324), which :func:`build` then refuses by name."""
+    ratio = span / step
+    return int(round(ratio)) + 2 if math.isfinite(ratio) else math.inf
 
 
 def build(sec: Section, step: float, *, method: str = "rounding", max_points: int = 1 << 20,
@@ -132,6 +140,10 @@ def build(sec: Section, step: float, *, method: str = "rounding", max_points: in
     Built
     """
     kind = describe_kind(sec)
+    if points is not None and not points <= max_points:
+        raise sec.doc.error(("grid", "max_points"), f"is {max_points}, but the cover (deductible "
+                            f"+ limit) spans {points:.6g} grid points of step {step:g}; raise "
+                            "grid.max_points or coarsen grid.step")
     if kind == "law":
         sec.check_keys(LAW_KEYS)
         frozen = frozen_law(sec)
@@ -148,6 +160,12 @@ def build(sec: Section, step: float, *, method: str = "rounding", max_points: in
                             for k in sec.table("params", {}).keys()))
         return Built(lat, f"{sec.string('law')}({params})", notes)
     sec.check_keys(TABLE_KEYS)
+    need = natural_points(sec, step)
+    if not need <= max_points:
+        key = "samples" if kind == "samples" else "values"
+        raise sec.error(key, f"reach {max(sec.numbers(key)):g}, which needs {need:.6g} grid points "
+                        f"of step {step:g}, above grid.max_points = {max_points}; coarsen "
+                        "grid.step or raise grid.max_points")
     if kind == "samples":
         values = sec.numbers("samples", minimum=0.0)
         probs = [1.0 / len(values)] * len(values)

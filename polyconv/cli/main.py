@@ -9,18 +9,23 @@ variable ``POLYCONV_DEBUG=1`` to see the traceback of an unexpected internal err
 from __future__ import annotations
 
 import argparse
+import contextlib
+import importlib
 import os
+import signal
 import sys
+import threading
+import warnings
+from collections.abc import Iterator
 
-from . import (
-    aggregate_cmd,
-    bench_cmd,
-    calibrate_cmd,
-    delays_cmd,
-    demo_cmd,
-    multiply_cmd,
-)
-from .errors import INTERRUPTED, USAGE_ERROR, CliError
+from .errors import INTERRUPTED, USAGE_ERROR, CliError, Interrupted
+
+COMMANDS = ("multiply", "aggregate", "delays", "demo", "bench", "calibrate")
+"""Sub-commands, each the module ``polyconv.cli.<name>_cmd`` (imported once signals are
+handled, so an interruption while numpy and scipy load is handled too)."""
+
+HANDLED_SIGNALS = tuple(getattr(signal, name) for name in ("SIGINT", "SIGTERM", "SIGHUP")
+                        if hasattr(signal, name))
 
 EPILOG = """examples:
   polyconv multiply a.txt b.txt -o c.txt --explain   exact product of two coefficient files
@@ -43,51 +48,112 @@ def build_parser() -> argparse.ArgumentParser:
         formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
-    for module in (multiply_cmd, aggregate_cmd, delays_cmd, demo_cmd, bench_cmd, calibrate_cmd):
-        module.register(sub)
+    for name in COMMANDS:
+        importlib.import_module(f"{__package__}.{name}_cmd").register(sub)
     return parser
 
 
+@contextlib.contextmanager
+def signals_as_interrupts() -> Iterator[None]:
+    """Turn SIGINT, SIGTERM and SIGHUP into :class:`Interrupted` (a KeyboardInterrupt) while the
+    block runs, so all three take the path of Ctrl-C: temporary files and folders removed, exit
+    status 130.  Only the first signal is raised; later ones are ignored, so the cleanup it
+    starts runs to its end.  The previous handlers are restored afterwards (main thread only:
+    elsewhere the block simply runs)."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    seen: list[int] = []
+
+    def interrupt(signum, frame) -> None:
+        seen.append(signum)
+        if len(seen) == 1:
+            raise Interrupted(signum, signal.Signals(signum).name)
+
+    previous = {}
+    for sig in HANDLED_SIGNALS:
+        with contextlib.suppress(ValueError, OSError):
+            previous[sig] = signal.signal(sig, interrupt)
+    try:
+        yield
+    finally:
+        for sig, handler in previous.items():
+            signal.signal(sig, handler)
+
+
 def main(argv: list[str] | None = None) -> int:
-    """Run the command line; returns the exit status (0 ok, 2 bad input, 130 interrupted)."""
-    parser = build_parser()
+    """Run the command line; returns the exit status (0 ok, 2 bad input, 130 interrupted by
+    Ctrl-C, SIGTERM or SIGHUP).  No other status is returned, and no traceback is printed
+    unless ``POLYCONV_DEBUG`` is set."""
+    name = "polyconv"
     try:
-        args = parser.parse_args(argv)
-    except SystemExit as exc:  # --help (0) or a usage error (2): argparse printed the message
-        return int(exc.code) if isinstance(exc.code, int) else USAGE_ERROR
-    if args.command is None:
-        parser.print_help()
-        return USAGE_ERROR
-    name = f"polyconv {args.command}"
-    try:
-        return int(args.run(args) or 0)
-    except KeyboardInterrupt:
-        print(f"\n{name}: interrupted; no output was left half-written", file=sys.stderr)
+        with signals_as_interrupts():
+            try:
+                parser = build_parser()
+                try:
+                    args = parser.parse_args(argv)
+                except SystemExit as exc:  # --help (0) or a usage error (2): argparse printed it
+                    return int(exc.code) if exc.code in (0, USAGE_ERROR) else USAGE_ERROR
+                if args.command is None:
+                    parser.print_help()
+                    return USAGE_ERROR
+                name = f"polyconv {args.command}"
+                return _run(name, args)
+            except KeyboardInterrupt as exc:
+                what = exc.name if isinstance(exc, Interrupted) else "Ctrl-C"
+                print(f"\n{name}: interrupted ({what}); no output was left half-written",
+                      file=sys.stderr)
+                return INTERRUPTED
+    except KeyboardInterrupt:  # a second signal while the first one's message was printed
         return INTERRUPTED
+
+
+def _run(name: str, args) -> int:
+    """Run the parsed command; every failure becomes one line on stderr and status 2."""
+    def show(message, category, filename, lineno, file=None, line=None) -> None:
+        print(f"{name}: warning: {message}", file=sys.stderr)
+
+    try:
+        with warnings.catch_warnings():
+            warnings.showwarning = show
+            status = args.run(args)
+        return 0 if status in (None, 0) else USAGE_ERROR
     except BrokenPipeError:  # e.g. piped into `head`: stop quietly
         _silence_stdout()
         return 0
     except CliError as exc:
-        print(f"{name}: error: {exc}", file=sys.stderr)
-        return USAGE_ERROR
-    except (ValueError, TypeError, OverflowError) as exc:
+        message = str(exc)
+    except RecursionError:
+        message = (f"{_input_of(args)}: nested too deeply to be handled (beyond Python's "
+                   f"recursion limit of {sys.getrecursionlimit()}); flatten it")
+    except (ValueError, TypeError, OverflowError, ArithmeticError) as exc:
         # the library validates its arguments and names the one at fault
-        print(f"{name}: error: {exc}", file=sys.stderr)
-        return USAGE_ERROR
+        message = str(exc) or type(exc).__name__
     except OSError as exc:
         where = f" ({exc.filename})" if getattr(exc, "filename", None) else ""
-        print(f"{name}: error: {exc.strerror or exc}{where}", file=sys.stderr)
-        return USAGE_ERROR
+        message = f"{exc.strerror or exc}{where}"
     except MemoryError:
-        print(f"{name}: error: out of memory; try a coarser grid or smaller inputs",
-              file=sys.stderr)
-        return USAGE_ERROR
+        message = ("out of memory; try a coarser grid, smaller inputs or a smaller "
+                   "--memory-budget")
     except Exception as exc:  # noqa: BLE001 - last resort: no traceback for users
         if os.environ.get("POLYCONV_DEBUG"):
             raise
-        print(f"{name}: internal error: {type(exc).__name__}: {exc} (set POLYCONV_DEBUG=1 "
-              "for the traceback and please report it)", file=sys.stderr)
-        return 1
+        # status 2 like every failure (the command line returns only 0, 2 and 130); the
+        # wording tells it apart from bad input
+        message = (f"internal error: {type(exc).__name__}: {exc} (set POLYCONV_DEBUG=1 for "
+                   "the traceback and please report it)")
+    print(f"{name}: error: {message}", file=sys.stderr)
+    return USAGE_ERROR
+
+
+def _input_of(args) -> str:
+    """How to name the command's input in a message: its spec or input files."""
+    for key in ("spec", "a"):
+        value = getattr(args, key, None)
+        if value:
+            names = [value] + ([args.b] if key == "a" and getattr(args, "b", None) else [])
+            return " or ".join(repr(str(v)) for v in names)
+    return "an input"
 
 
 def _silence_stdout() -> None:

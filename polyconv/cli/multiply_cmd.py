@@ -9,18 +9,21 @@ per line.
 from __future__ import annotations
 
 import argparse
+import math
+import os
 import re
 import sys
 from pathlib import Path
 
 import numpy as np
 
-from .. import api, streaming
+from .. import api, budget, streaming
 from .errors import CliError
 from .fileio import (
     SEQUENCE_SUFFIXES,
     atomic_write,
     format_values,
+    npy_header,
     read_sequence,
     sequence_bytes,
     unlimited_int_digits,
@@ -72,9 +75,11 @@ def register(sub) -> None:
                    "(to stderr when the product goes to stdout)")
     p.add_argument("--json", action="store_true",
                    help="print a JSON object with the plan (and the coefficients without -o)")
-    p.add_argument("--memory-budget", metavar="MIB", type=float, default=DEFAULT_BUDGET_MIB,
+    p.add_argument("--memory-budget", metavar="MIB", default=None,
                    help="stream .npy inputs larger than this many MiB (default "
-                   f"{DEFAULT_BUDGET_MIB}); needs .npy inputs and a .npy output")
+                   f"{DEFAULT_BUDGET_MIB}; needs .npy inputs and a .npy output) and refuse, "
+                   "before starting, a product that would need more (default: polyconv's "
+                   "memory budget, POLYCONV_MEMORY_BUDGET)")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(run=run)
 
@@ -93,7 +98,7 @@ def _whole_number(text: str | None, option: str, lowest: int, digits: str | None
     """``digits`` (the cleaned ``text``) as an integer ``>= lowest``, or None without ``text``."""
     if text is None:
         return None
-    if not re.fullmatch(r"[+-]?\d+", digits):
+    if not re.fullmatch(r"[+-]?[0-9]+", digits):
         raise CliError(f"{option} must be a whole number >= {lowest}; got {text!r}")
     value = int(digits)
     if value < lowest:
@@ -101,9 +106,40 @@ def _whole_number(text: str | None, option: str, lowest: int, digits: str | None
     return value
 
 
+def parse_memory_budget(text: str | None) -> float | None:
+    """``--memory-budget`` as a finite positive number of MiB (None when not given)."""
+    if text is None:
+        return None
+    t = text.strip()
+    if not re.fullmatch(r"[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?", t):
+        raise CliError(f"--memory-budget must be a positive number of MiB; got {text!r}")
+    value = float(t)
+    if not (math.isfinite(value) and value > 0 and value * 2**20 >= 1):
+        raise CliError(f"--memory-budget must be a finite positive number of MiB; got {text!r}")
+    return value
+
+
+def refuse_overwriting_inputs(output: str | None, inputs: dict[str, str]) -> None:
+    """Refuse an output that is one of the input files (same path, link or hard link)."""
+    if output is None or not os.path.exists(output):
+        return
+    out_path = output
+    for name, path in inputs.items():
+        try:
+            same = os.path.samefile(out_path, path)
+        except OSError:
+            same = False
+        if same:
+            raise CliError(f"output {output!r} is {name} {path!r}: the result would "
+                           "overwrite an input; write it to another file")
+
+
 def run(args) -> int:
     """Entry point of ``polyconv multiply``."""
-    with unlimited_int_digits():
+    mib = parse_memory_budget(args.memory_budget)
+    args.memory_budget = DEFAULT_BUDGET_MIB if mib is None else mib
+    with unlimited_int_digits(), budget.using_budget(
+            None if mib is None else max(1, int(mib * 2**20))):
         return _run(args)
 
 
@@ -118,9 +154,7 @@ def _run(args) -> int:
                            f"use one of {', '.join(SEQUENCE_SUFFIXES)}")
         if out_path.is_dir():
             raise CliError(f"output {args.output!r} is a folder; give a file name")
-    if args.memory_budget <= 0:
-        raise CliError(f"--memory-budget must be a positive number of MiB; got "
-                       f"{args.memory_budget}")
+    refuse_overwriting_inputs(args.output, {"input a": args.a, "input b": args.b})
     streamed = _stream_if_large(args, out_path, modulus, length)
     if streamed is not None:
         return streamed
@@ -130,10 +164,14 @@ def _run(args) -> int:
         which = "a" if a.dtype.kind == "f" else "b"
         raise CliError(f"--modulus needs integer inputs; input {which} holds floating-point "
                        "numbers")
+    total = a.size + b.size - 1 if length is None else length
+    budget.check_allocation(total * _bytes_per_coefficient(a, b, out_path),
+                            f"the product ({total} coefficients"
+                            + (f", --length {length})" if length is not None else ")"))
     the_plan = api.plan(a, b, modulus=modulus, length=length)
     result = api.convolve(a, b, modulus=modulus, length=length)
     if out_path is not None:
-        atomic_write(out_path, sequence_bytes(result, out_path.suffix))
+        atomic_write(out_path, sequence_bytes(result, out_path.suffix, f"output {args.output!r}"))
     if args.json:
         payload = {"plan": plan_dict(the_plan), "length": int(result.size),
                    "output": str(out_path) if out_path else None}
@@ -152,15 +190,24 @@ def _run(args) -> int:
     return 0
 
 
+def _bytes_per_coefficient(a: np.ndarray, b: np.ndarray, out_path: Path | None) -> int:
+    """Peak bytes per output coefficient (an estimate, counted before anything is allocated):
+    the result (8 bytes; Python ints at least 40) and its encoding (``.npy``: another 8 bytes;
+    text: the strings, about 100 bytes per value)."""
+    each = 40 if a.dtype == object or b.dtype == object else 8
+    binary = out_path is not None and out_path.suffix.lower() == ".npy"
+    return each + (8 if binary else 100)
+
+
 def _npy_header(path: str) -> tuple[tuple, np.dtype] | None:
-    """Shape and dtype of a .npy file without reading its data (None if not a readable .npy)."""
-    if not path.lower().endswith(".npy"):
+    """Shape and dtype of a .npy file without reading its data (None if not a .npy name; a
+    file that is not a readable .npy is reported when it is read)."""
+    if not path.lower().endswith(".npy") or not os.path.isfile(path):
         return None
     try:
-        arr = np.load(path, mmap_mode="r", allow_pickle=False)
-    except (OSError, ValueError):
+        return npy_header(path)
+    except CliError:
         return None
-    return arr.shape, arr.dtype
 
 
 def _stream_if_large(args, out_path: Path | None, modulus, length) -> int | None:
@@ -169,7 +216,7 @@ def _stream_if_large(args, out_path: Path | None, modulus, length) -> int | None
     heads = _npy_header(args.a), _npy_header(args.b)
     if None in heads or out_path is None or out_path.suffix.lower() != ".npy":
         return None
-    sizes = [int(np.prod(shape)) * dtype.itemsize for shape, dtype in heads]
+    sizes = [math.prod(shape) * dtype.itemsize for shape, dtype in heads]
     if max(sizes) <= args.memory_budget * 2**20 or length is not None:
         return None
     if any(len(shape) != 1 for shape, _ in heads):

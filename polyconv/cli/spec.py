@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import math
 import re
+import sys
 from pathlib import Path
 from typing import Any
 
@@ -128,6 +129,10 @@ def parse_spec(text: str, source: str = "<string>") -> SpecDoc:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise SpecError(source, "", f"not valid TOML: {exc}") from None
+    except RecursionError:
+        raise SpecError(source, "", "nested too deeply to be read (tables or arrays inside "
+                        f"one another beyond Python's recursion limit of "
+                        f"{sys.getrecursionlimit()}); flatten it") from None
     doc = SpecDoc(data, source, text)
     doc.base_dir = Path(source).resolve().parent if source != "<string>" else Path.cwd()
     return doc
