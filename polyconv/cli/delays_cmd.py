@@ -249,6 +249,24 @@ def count_blocks(spec: DelaySpec) -> int:
     return len(spec.stages) + 1
 
 
+def _used_sections(spec: DelaySpec) -> list[Section]:
+    """The network and every stage reachable from it (an unused stage decides nothing)."""
+    seen: set[str] = set()
+    out = [spec.network]
+    todo = [spec.network]
+    while todo:
+        sec = todo.pop()
+        kind = block_kind(sec)
+        if kind == "leaf":
+            continue
+        for child, _ in children(sec, kind):
+            if child not in seen and child in spec.stages:
+                seen.add(child)
+                out.append(spec.stages[child])
+                todo.append(spec.stages[child])
+    return out
+
+
 def horizon(spec: DelaySpec, notes: list[str]) -> int:
     """One grid length for every continuous stage: the longest any stage needs.
 
@@ -257,7 +275,7 @@ def horizon(spec: DelaySpec, notes: list[str]) -> int:
     with a longer empirical tail.  Discretising every continuous stage as far as the longest
     stage reaches avoids that (capped at ``grid.max_points``).
     """
-    leaves = [sec for sec in (spec.network, *spec.stages.values()) if block_kind(sec) == "leaf"]
+    leaves = [sec for sec in _used_sections(spec) if block_kind(sec) == "leaf"]
     need = max((laws.natural_points(sec, spec.step) for sec in leaves), default=2)
     if need > spec.max_points:
         notes.append(f"stage grids cut at grid.max_points = {spec.max_points} points "
