@@ -1,7 +1,8 @@
 """polyconv.dist: probability distributions on lattices, computed by convolution.
 
 Sums of independent random variables (``X + Y``, :meth:`Lattice.nfold`), compound distributions
-(:func:`compound`), discretisation of continuous laws (:func:`discretize`), delay networks
+(:func:`compound`), continuous laws put on a lattice (:meth:`Lattice.from_law`, bracketed by
+:func:`law_bracket`), delay networks
 (:func:`series`, :func:`all_of`, :func:`first_of`, :func:`mixture`) and risk measures (quantile,
 VaR, TVaR, stop-loss) on :class:`Lattice` objects.  Each Lattice carries a ``trust_floor``, an
 error bound on its probabilities; quantities resting on probabilities below it warn
@@ -19,13 +20,12 @@ actuarial or engineering practice.
 
 from .compound import compound
 from .delays import all_of, first_of, mixture, series
-from .discretize import discretize
 from .errors import AccuracyWarning, TruncationWarning
 from .lattice import Lattice
+from .step_check import CoarseStepWarning, StepCheck, check_step
 
 __all__ = [
     "Lattice",
-    "discretize",
     "compound",
     "series",
     "all_of",
@@ -33,4 +33,7 @@ __all__ = [
     "mixture",
     "AccuracyWarning",
     "TruncationWarning",
+    "CoarseStepWarning",
+    "StepCheck",
+    "check_step",
 ]

@@ -123,6 +123,15 @@ class Lattice:
     def __setattr__(self, name, value):
         raise AttributeError("Lattice is immutable")
 
+    @classmethod
+    def from_law(cls, law, *, step: float, size: int | None = None, rule: str = "nearest"
+                 ) -> Lattice:
+        """A continuous law on ``origin + step * j``: see
+        :func:`polyconv.dist.from_law.lattice_from_law` (rules "nearest", "down", "up",
+        "moments")."""
+        from .from_law import lattice_from_law
+        return lattice_from_law(law, step=step, size=size, rule=rule)
+
     # -- basic properties -------------------------------------------------------------------
     @property
     def pmf(self) -> np.ndarray:
