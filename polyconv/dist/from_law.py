@@ -124,6 +124,23 @@ class LawAccess:
         c = np.clip(c, 0.0, 1.0)
         return c, 1.0 - c
 
+    def tail_values(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """``(min(F, S), S is smaller)`` at increasing points ``x``: the cdf below the median, the
+        sf above it, each evaluated once (small tail probabilities keep their relative
+        accuracy)."""
+        if self.frozen is None:
+            c, s = self.cdf_sf(x)
+            is_sf = c >= 0.5
+            return np.where(is_sf, s, c), is_sf
+        median = float(self.frozen.median())
+        k = int(np.searchsorted(x, median, side="left"))
+        values = np.empty(x.size)
+        values[:k] = self.frozen.cdf(x[:k])
+        values[k:] = self.frozen.sf(x[k:])
+        is_sf = np.zeros(x.size, dtype=bool)
+        is_sf[k:] = True
+        return values, is_sf
+
     def sf(self, x: np.ndarray) -> np.ndarray:
         """``S(x)``."""
         if self.frozen is not None:
@@ -183,34 +200,41 @@ def default_size(law: LawAccess, h: float, origin: float, tail: float = DEFAULT_
     return max(int(math.ceil(n)), 2)
 
 
-def rule_pmf(law: LawAccess, origin: float, h: float, size: int, rule: str
-             ) -> tuple[np.ndarray, float, float]:
-    """Cell masses of ``rule`` on ``size`` points.
+def rule_pmf(law: LawAccess, origin: float, h: float, size: int, rule: str,
+             shift: float = 0.0) -> tuple[np.ndarray, float, float, float]:
+    """Cell masses of ``rule`` on ``size`` points (cell edges moved by ``shift`` if given).
 
     Returns
     -------
-    (pmf, point_error, truncated)
-        ``point_error`` bounds each mass's evaluation error (a few roundoffs of the cdf
-        differences, scipy's cdf accuracy assumed; for ``"moments"`` plus the quadrature error,
-        estimated by comparing 6- and 12-point Gauss-Legendre rules); ``truncated`` the lattice
-        model's mass beyond the last point.
+    (pmf, point_error, l1_error, truncated)
+        ``point_error`` bounds each mass's evaluation error and ``l1_error`` their sum: a few
+        roundoffs of the cdf (below the median) or sf (above it) at both edges of each cell,
+        scipy's cdf accuracy assumed; for ``"moments"`` the quadrature error instead, estimated
+        by comparing 6- and 12-point Gauss-Legendre rules.  ``truncated`` is the lattice model's
+        mass beyond the last point.
     """
+    u = UNIT_ROUNDOFF
     if rule == "moments":
         cells = _cell_integrals(law, origin, h, size + 1, _GL_NODES, _GL_WEIGHTS)
         check = _cell_integrals(law, origin, h, size + 1, _GL_NODES_LO, _GL_WEIGHTS_LO)
-        quad_err = float(np.max(np.abs(cells - check))) / h
+        diff = np.abs(cells - check) / h
         pmf = np.empty(size)
         pmf[0] = 1.0 - cells[0] / h
         pmf[1:] = (cells[:-2] - cells[1:-1]) / h
-        return np.clip(pmf, 0.0, 1.0), 8 * UNIT_ROUNDOFF + 2 * quad_err, float(cells[-2]) / h
-    edges = origin + (np.arange(size + 1, dtype=float) - 1.0 + _OFFSET[rule]) * h
-    cdf, sf = law.cdf_sf(edges)
-    truncated = float(sf[-1])
-    cdf[0], sf[0] = 0.0, 1.0  # everything below the first point joins it
-    from_cdf = np.diff(cdf)
-    from_sf = -np.diff(sf)
-    pmf = np.where(cdf[:-1] >= 0.5, from_sf, from_cdf)
-    return np.clip(pmf, 0.0, 1.0), 8 * UNIT_ROUNDOFF, truncated
+        point = 8 * u + 2 * float(np.max(diff))
+        l1 = 8 * u * size + 2 * float(np.sum(diff))
+        return np.clip(pmf, 0.0, 1.0), point, l1, float(cells[-2]) / h
+    edges = origin + shift + (np.arange(size + 1, dtype=float) - 1.0 + _OFFSET[rule]) * h
+    tail = law.tail_values(edges)  # min(F, S) at each edge, and which one it is
+    tail[0][0], tail[1][0] = 0.0, False  # everything below the first point joins it
+    values, is_sf = tail
+    cdf_side = np.where(is_sf, 1.0 - values, values)
+    pmf = np.diff(cdf_side)
+    from_sf = is_sf[:-1] & is_sf[1:]
+    pmf[from_sf] = values[:-1][from_sf] - values[1:][from_sf]
+    truncated = float(values[-1]) if is_sf[-1] else 1.0 - float(values[-1])
+    l1 = 4 * u * float(np.sum(values)) + 2 * u
+    return np.clip(pmf, 0.0, 1.0), 8 * u, l1, truncated
 
 
 def _cell_integrals(law: LawAccess, origin: float, h: float, n_cells: int, nodes, weights):
@@ -294,17 +318,25 @@ def lattice_from_law(law, *, step: float, size: int | None = None, rule: str = "
     elif size > MAX_POINTS:
         raise ValueError(f"size must be at most {MAX_POINTS} points (memory budget); got {size}")
     size = int(size)
-    pmf, point, truncated = rule_pmf(access, origin, h, size, rule)
+    pmf, point, l1, truncated = rule_pmf(access, origin, h, size, rule)
     moment = truncated_moment(access, origin, h, size, rule, truncated)
-    lattice = make_lattice(pmf, h, origin, point=point, truncated=truncated, moment=moment)
+    lattice = make_lattice(pmf, h, origin, point=point, l1=l1, moment=moment)
     if access.frozen is not None:
         warn_if_coarse(access.frozen, lattice, rule)
     return lattice
 
 
-def make_lattice(pmf: np.ndarray, h: float, origin: float, *, point: float, truncated: float,
+def make_lattice(pmf: np.ndarray, h: float, origin: float, *, point: float, l1: float,
                  moment: float):
-    """A Lattice whose ledger holds the discretisation's evaluation error and truncation."""
+    """A Lattice whose ledger holds the evaluation error of the masses (``point``, ``l1``) and
+    the mass beyond the grid, ``1 - sum(pmf)``, with the bound ``moment`` of its first moment."""
     from .lattice import Lattice
 
-    return Lattice(pmf, h, origin, trust_floor=point)
+    try:
+        from .ledger import ErrorLedger
+    except ImportError:  # before the error-model API: the per-point floor only
+        return Lattice(pmf, h, origin, trust_floor=point)
+    truncated = max(0.0, 1.0 - math.fsum(pmf))
+    ledger = ErrorLedger(point, min(l1, 2.0), truncated, pmf.size,
+                         moment if truncated > 0 else 0.0)
+    return Lattice(pmf, h, origin, errors=ledger)

@@ -118,7 +118,7 @@ def _suggest(access: LawAccess, h: float, rule: str, rtol: float, layer, reach: 
         trial /= 2.0
         origin = lattice_origin(access, trial)
         size = int(min(max((far - origin) / trial + 2, 2), SUGGEST_MAX_POINTS))
-        pmf, _, truncated = rule_pmf(access, origin, trial, size, rule)
+        pmf, _, _, truncated = rule_pmf(access, origin, trial, size, rule)
         moment = truncated_moment(access, origin, trial, size, rule, truncated)
         gap = _worst(_comparisons(frozen, pmf, trial, origin, truncated, moment, rule, layer))[3]
         if gap <= rtol / 2:
