@@ -4,9 +4,11 @@ Sums of independent random variables (``X + Y``, :meth:`Lattice.nfold`), compoun
 (:func:`compound`), continuous laws put on a lattice (:meth:`Lattice.from_law`, bracketed by
 :func:`law_bracket`), delay networks
 (:func:`series`, :func:`all_of`, :func:`first_of`, :func:`mixture`) and risk measures (quantile,
-VaR, TVaR, stop-loss) on :class:`Lattice` objects.  Each Lattice carries a ``trust_floor``, an
-error bound on its probabilities; quantities resting on probabilities below it warn
-(:class:`AccuracyWarning`) or return ``nan`` rather than print rounding noise as numbers.
+VaR, TVaR, stop-loss) on :class:`Lattice` objects.  Each Lattice carries an
+:class:`ErrorLedger` (computed-error bounds per point and in L1, truncated mass, where it may lie
+and its first moment); every query has a certified range (:meth:`Lattice.bounded` returns a
+:class:`Bounded`), quantiles are the lattice's own (never below), and answers whose range is too
+wide warn (:class:`AccuracyWarning`) or come back ``nan`` rather than print rounding noise.
 
 Cautions
 --------
@@ -18,14 +20,18 @@ capital, prices or deadlines, check them against local regulation and codes and 
 actuarial or engineering practice.
 """
 
+from .brackets import Bracket, law_bracket
 from .compound import compound
 from .delays import all_of, first_of, mixture, series
 from .errors import AccuracyWarning, TruncationWarning
 from .lattice import Lattice
+from .ledger import Bounded, ErrorLedger
 from .step_check import CoarseStepWarning, StepCheck, check_step
 
 __all__ = [
     "Lattice",
+    "ErrorLedger",
+    "Bounded",
     "compound",
     "series",
     "all_of",
@@ -36,4 +42,6 @@ __all__ = [
     "CoarseStepWarning",
     "StepCheck",
     "check_step",
+    "law_bracket",
+    "Bracket",
 ]

@@ -146,9 +146,11 @@ def log_split_tail(law: TransformLaw, sev: tuple[np.ndarray, np.ndarray], x: flo
         if jump >= 1.0:
             continue
         capped = (np.minimum(idx, c), mass)
-        total = jump + math.exp(log_chernoff_tail(law, capped, x))
-        if total < 1.0:
-            best = min(best, math.log(total))
+        log_rest = log_chernoff_tail(law, capped, x)
+        if jump == 0.0:
+            best = min(best, log_rest)
+        elif jump + math.exp(log_rest) < 1.0:
+            best = min(best, math.log(jump) + math.log1p(math.exp(log_rest) / jump))
     return best
 
 
