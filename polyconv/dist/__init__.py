@@ -24,6 +24,7 @@ from .brackets import Bracket, law_bracket
 from .compound import compound
 from .delays import all_of, first_of, mixture, series
 from .errors import AccuracyWarning, TruncationWarning
+from .goals import Goal, aggregate_for_goal
 from .lattice import Lattice
 from .ledger import Bounded, ErrorLedger
 from .step_check import CoarseStepWarning, StepCheck, check_step
@@ -44,4 +45,6 @@ __all__ = [
     "check_step",
     "law_bracket",
     "Bracket",
+    "Goal",
+    "aggregate_for_goal",
 ]

@@ -27,8 +27,14 @@ import numpy as np
 
 from . import law_moments
 from .errors import AccuracyWarning
-from .from_law import (LawAccess, check_rule, check_step_value, lattice_origin, rule_pmf,
-                       truncated_moment)
+from .from_law import (
+    LawAccess,
+    check_rule,
+    check_step_value,
+    lattice_origin,
+    rule_pmf,
+    truncated_moment,
+)
 
 STEP_RTOL = 1e-2
 """Default tolerance of the relative gap between lattice and law (1%)."""
