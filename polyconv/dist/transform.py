@@ -241,7 +241,7 @@ def _transform_once(law, f, size, n_fft, theta, log_alias_mass) -> TransformResu
     if n_fft < f.size:
         f = _fold(f, n_fft)
     if log_alias_mass is None:
-        log_alias_mass = log_chernoff_tail(law, reduced_severity(f), float(n_fft))
+        log_alias_mass = log_tail_bound(law, reduced_severity(f), float(n_fft))
     eta = accuracy.fft_relative_error(n_fft)
     pre_round = eta * (law.mean + 1) + (law.pgf_rel + law.pgf_abs) * u
     if theta is None:
