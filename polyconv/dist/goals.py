@@ -19,7 +19,7 @@ checked against the goal with its own bounds; the grid doubles while the goal is
 range is limited by truncation, up to ``max_points`` (memory budget), where it stops with a
 warning naming the measures not met.  When asked to (``step=None`` in :func:`aggregate_for_goal`)
 the step is chosen too: a pilot run on a coarse grid estimates the highest VaR asked, and the step
-is ``rtol`` times that (rounded down to 1, 2 or 5 times a power of ten), so the grid's own
+is ``rtol`` times that (rounded down to a round number), so the grid's own
 resolution meets the goal.
 
 Caution: the goal is about the computation on the lattice model; the discretisation of a

@@ -12,8 +12,8 @@ closed form (:mod:`polyconv.dist.law_moments`, from scipy.stats):
   ``d + l`` and ``d``).
 
 A relative gap above ``rtol`` (default :data:`STEP_RTOL`) warns with a :class:`CoarseStepWarning`
-and suggests a step: the largest of ``h / 2, h / 4, ...`` (rounded down to 1, 2 or 5 times a power
-of ten) whose lattice passes with a margin of 2.  The gap shrinks like ``h^2`` for ``"nearest"``
+and suggests a step: the largest of ``h / 2, h / 4, ...`` (rounded down to a round number,
+:data:`NICE_MANTISSAS`) whose lattice passes with a margin of 2.  The gap shrinks like ``h^2`` for ``"nearest"``
 and like ``h`` for ``"down"``/``"up"`` on smooth densities (common practice, no source).
 """
 
@@ -104,10 +104,14 @@ def _worst(comparisons) -> tuple[str, float, float, float]:
     return worst
 
 
+NICE_MANTISSAS = (8.0, 6.0, 5.0, 4.0, 3.0, 2.5, 2.0, 1.5, 1.0)
+"""Suggested steps are one of these times a power of ten."""
+
+
 def _nice_floor(x: float) -> float:
-    """Largest 1, 2 or 5 times a power of ten not above ``x``."""
+    """Largest of :data:`NICE_MANTISSAS` times a power of ten not above ``x``."""
     e = math.floor(math.log10(x))
-    for m in (5.0, 2.0, 1.0):
+    for m in NICE_MANTISSAS:
         if m * 10.0 ** e <= x * (1 + 1e-12):
             return m * 10.0 ** e
     return 10.0 ** e

@@ -135,6 +135,8 @@ def _stop_loss(cap, levels, ends, d: float) -> tuple[float, float, float]:
 
 
 def _answer(measure, arg, fine, cap, levels, ends, goal: Goal) -> Bounded:
+    if not levels:  # one grid reaches far enough: its own ledger bounds the rest
+        return _judge(_quiet(fine, measure, arg), goal)
     b = ends[0]
     if measure in ("quantile", "var"):
         return _judge(_quiet(fine, measure, arg), goal)
@@ -199,7 +201,9 @@ def _plan(counts, law, h: float, goal: Goal):
     levels = goal.levels() or [0.5]
     top_p = max(levels)
     n_mean = float(counts.mean())
-    claims = n_mean + float(counts.std()) + 1.0
+    # claims on a path with a large claim: the size-biased count E[N^2] / E[N] (lambda + 1 for
+    # a Poisson count)
+    claims = (float(counts.var()) + n_mean ** 2) / n_mean if n_mean > 0 else 1.0
     pilot_h = max(float(law.isf(1e-12)) / PILOT_POINTS, h)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
@@ -266,10 +270,11 @@ PILOT_POINTS = 1 << 16
 
 
 def _coarse_reach(law, n_mean: float, share: float) -> float:
-    """Smallest ``B`` (by bisection in ``log B``) with ``E[N] E[(X - B)+] <= share`` (closed
-    forms of :mod:`polyconv.dist.law_moments`): where the coarse grids may stop."""
+    """Smallest ``B`` (by bisection in ``log B``) with ``E[N] E[X 1{X > B}] <= share`` (closed
+    forms of :mod:`polyconv.dist.law_moments`): where the last level may stop, its truncated
+    part's first moment (about ``E[N]`` times that) being within the share."""
     def excess(x):
-        return n_mean * max(law_moments.tail_moment(law, x) - x * float(law.sf(x)), 0.0)
+        return n_mean * law_moments.tail_moment(law, x)
 
     lo = max(float(law.median()), 1e-300)
     hi = lo
@@ -324,6 +329,11 @@ def spliced_aggregate(counts, law, *, goal: Goal, step: float | None = None,
         step = choose_step(counts, law, goal, rule=rule)
     h = float(step)
     n_f, plan = _plan(counts, law, h, goal)
+    if not plan:  # a light enough tail: one grid, sized by the goal (polyconv.dist.goals)
+        from .goals import aggregate_for_goal
+        fine = aggregate_for_goal(counts, law, goal=goal, step=h, rule=rule, method=method)
+        answers = {(m, a): _judge(_quiet(fine, m, a), goal) for m, a in goal.measures}
+        return SplicedAnswers(answers, h, len(fine), (), fine)
     for attempt in range(RETRIES + 1):
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", CoarseStepWarning)
