@@ -227,7 +227,7 @@ def aggregate_for_goal(counts, law, *, goal: Goal, step: float | None = None,
 
 def choose_step(counts, law, goal: Goal, *, rule: str = "nearest") -> float:
     """``rtol`` times a pilot estimate of the highest VaR asked (else of the mean), rounded down
-    to 1, 2 or 5 times a power of ten; ``atol`` when that is larger."""
+    to a round number; ``atol`` when that is larger."""
     from .compound import compound
     from .lattice import Lattice
     from .step_check import _nice_floor
