@@ -38,8 +38,8 @@ def demo(tmp_path_factory):
 # ---------------------------------------------------------------- independent references
 
 
-def rounding_pmf(law, step: float, points: int) -> np.ndarray:
-    """Rounding discretisation (Klugman, Panjer & Willmot, Loss Models, ch. 9):
+def nearest_pmf(law, step: float, points: int) -> np.ndarray:
+    """Nearest-point discretisation (Klugman, Panjer & Willmot, Loss Models, ch. 9):
     f_0 = F(h/2), f_j = F((j + 1/2) h) - F((j - 1/2) h), differenced from the sf in the tail."""
     edges = (np.arange(points + 1) - 0.5) * step
     edges[0] = 0.0
@@ -88,7 +88,7 @@ def test_demo_claims_match_panjer_recursion_and_loss_models_formulas(demo):
     mean_n, var_n = spec["claims"]["mean"], spec["claims"]["variance"]
     # per-claim layer min(max(X - d, 0), lim) on the same grid, from scipy's cdf
     kd, kl = round(d / h), round(lim / h)
-    ground = rounding_pmf(sev, h, kd + kl + 1)
+    ground = nearest_pmf(sev, h, kd + kl + 1)
     layer = np.zeros(kl + 1)
     layer[0] = ground[: kd + 1].sum()
     layer[1:kl] = ground[kd + 1 : kd + kl]
@@ -104,7 +104,7 @@ def test_demo_claims_match_panjer_recursion_and_loss_models_formulas(demo):
     # E[S] = E[N] E[Y] (Wald's identity; Klugman, Panjer & Willmot, Loss Models, ch. 9)
     assert s["mean"] == pytest.approx(mean_n * ey, rel=1e-9)
     # E[Y] against the continuous law: E[X ^ (d + lim)] - E[X ^ d] (Loss Models, ch. 8);
-    # rounding discretisation is not mean-preserving, hence the looser tolerance
+    # nearest-point discretisation is not mean-preserving, hence the looser tolerance
     ey_cont = limited_mean(sev, d + lim) - limited_mean(sev, d)
     assert s["mean_per_claim"] == pytest.approx(ey_cont, rel=2e-3)
     # Var S = E[N] Var Y + Var N E[Y]^2 (Loss Models, ch. 9)
@@ -210,7 +210,7 @@ def test_demo_pipeline_matches_an_independent_numpy_evaluation(demo):
     def leaf(name):
         sec = st[name]
         if "law" in sec:
-            return rounding_pmf(getattr(stats, sec["law"])(**sec["params"]), 1.0, n)
+            return nearest_pmf(getattr(stats, sec["law"])(**sec["params"]), 1.0, n)
         values = sec.get("samples", sec.get("values"))
         probs = sec.get("probabilities", [1 / len(values)] * len(values))
         pmf = np.zeros(n)
@@ -271,7 +271,7 @@ def test_delays_round_trip_with_a_repeated_stage(tmp_path, capsys):
     assert main(["delays", str(spec), "-o", str(out), "--json", "--quiet"]) == 0
     s = json.loads(capsys.readouterr().out)
     # the same stage twice = two independent draws: mean 2 + 1.5 + 2 (linearity)
-    expon_grid_mean = float(np.dot(rounding_pmf(stats.expon(scale=2.0), 0.5, 400),
+    expon_grid_mean = float(np.dot(nearest_pmf(stats.expon(scale=2.0), 0.5, 400),
                                    0.5 * np.arange(400)))
     assert s["mean"] == pytest.approx(2 * expon_grid_mean + 1.5, rel=1e-9)
     assert sorted(p.name for p in out.iterdir()) == ["delays.csv", "delays.png", "summary.json",

@@ -26,7 +26,7 @@ Spec format (keys are polyconv's own; every key is checked, unknown keys are ref
     step = 250.0                      # lattice step, in currency units (required)
     points = 20000                    # optional: aggregate grid points (default: from the tail)
     max_points = 1048576              # optional: cap of a severity grid without a limit
-    discretisation = "rounding"       # "rounding" | "lower" | "upper" | "moment-matching"
+    rule = "nearest"                  # "nearest" | "down" | "up" | "moments"
     method = "auto"                   # "auto" | "fft" | "recursion"
 
     [report]                          # optional
@@ -69,7 +69,7 @@ from .spec import Section, SpecDoc, load_spec
 
 DEFAULT_LEVELS = (0.90, 0.95, 0.99, 0.995, 0.999)
 COUNT_LAWS = ("poisson", "negative-binomial", "binomial")
-DISCRETISATIONS = ("rounding", "lower", "upper", "moment-matching")
+RULES = ("nearest", "down", "up", "moments")
 METHODS = ("auto", "fft", "recursion")
 
 EXAMPLE = """example:
@@ -128,7 +128,7 @@ class AggregateSpec:
     step: float
     points: int | None
     max_points: int
-    discretisation: str
+    rule: str
     method: str
     levels: list[float]
     retentions: list[float]
@@ -144,11 +144,11 @@ def parse(doc: SpecDoc) -> AggregateSpec:
     severity = root.table("severity")
     laws.describe_kind(severity)
     grid = root.table("grid")
-    grid.check_keys(("step", "points", "max_points", "discretisation", "method"))
+    grid.check_keys(("step", "points", "max_points", "rule", "method"))
     step = grid.number("step", positive=True)
     points = grid.integer("points", None, minimum=2, maximum=1 << 24)
     max_points = grid.integer("max_points", 1 << 20, minimum=2, maximum=1 << 24)
-    discretisation = grid.string("discretisation", "rounding", DISCRETISATIONS)
+    rule = grid.string("rule", "nearest", RULES)
     method = grid.string("method", "auto", METHODS)
     cover = root.table("cover", {})
     cover.check_keys(("deductible", "limit"))
@@ -165,7 +165,7 @@ def parse(doc: SpecDoc) -> AggregateSpec:
         raise rep.error("levels", "must lie strictly between 0 and 1 (e.g. 0.995)")
     retentions = rep.numbers("retentions", [], minimum=0.0, nonempty=False)
     return AggregateSpec(title, currency, counts, counts_text, severity, deductible, limit, step,
-                         points, max_points, discretisation, method, levels, retentions)
+                         points, max_points, rule, method, levels, retentions)
 
 
 def _on_step(value: float, step: float) -> bool:
@@ -220,7 +220,7 @@ def compute(spec: AggregateSpec, steps: Steps | None = None) -> AggregateResult:
         points = None
         if math.isfinite(spec.limit):
             points = laws.span_points(spec.deductible + spec.limit, spec.step)
-        built = laws.build(spec.severity, spec.step, method=spec.discretisation,
+        built = laws.build(spec.severity, spec.step, rule=spec.rule,
                            max_points=spec.max_points, points=points)
         notes.extend(built.notes)
         per_claim = built.lattice
@@ -260,7 +260,7 @@ def measures(spec: AggregateSpec, total: Lattice, per_claim: Lattice) -> dict:
         "grid_points": len(total),
         "deductible": spec.deductible,
         "limit": spec.limit if math.isfinite(spec.limit) else None,
-        "discretisation": spec.discretisation,
+        "rule": spec.rule,
         "method": spec.method,
     }
     return out
@@ -276,7 +276,7 @@ def caution_lines(res: AggregateResult) -> list[str]:
         independence="the claim count and the claim amounts are independent, the amounts "
         "independent and identically distributed",
         discretisation=f"claim amounts on a grid of step {res.spec.step:g} "
-        f"{res.spec.currency} ({res.spec.discretisation})",
+        f"{res.spec.currency} ({res.spec.rule} rule)",
         truncation=f"aggregate grid of {s['grid_points']} points; mass beyond it "
         f"{s['truncated_mass']:.2e}, beyond the severity grid {s['severity_truncated_mass']:.2e}",
         practice="actuarial",

@@ -8,7 +8,7 @@ Spec format (polyconv's own keys; unknown keys are refused)::
     [grid]
     step = 1.0                        # common time step (required)
     max_points = 1048576              # optional cap of one stage's grid
-    discretisation = "rounding"       # "rounding" | "lower" | "upper" | "moment-matching"
+    rule = "nearest"                  # "nearest" | "down" | "up" | "moments"
 
     [report]                          # optional
     percentiles = [50, 90, 99, 99.9]
@@ -71,7 +71,7 @@ from .spec import Section, SpecDoc, load_spec
 
 DEFAULT_PERCENTILES = (50.0, 90.0, 99.0, 99.9)
 COMBINATORS = ("in_sequence", "all_of", "first_of", "one_of")
-DISCRETISATIONS = ("rounding", "lower", "upper", "moment-matching")
+RULES = ("nearest", "down", "up", "moments")
 ROOT = "(network)"
 """Internal name of the evaluated block (stage names are letters, digits, '_' and '-')."""
 
@@ -130,7 +130,7 @@ class DelaySpec:
     unit: str
     step: float
     max_points: int
-    discretisation: str
+    rule: str
     percentiles: list[float]
     deadlines: list[float]
     network: Section
@@ -144,10 +144,10 @@ def parse(doc: SpecDoc) -> DelaySpec:
     title = root.string("title", "Delay network")
     unit = root.string("unit", "units")
     grid = root.table("grid")
-    grid.check_keys(("step", "max_points", "discretisation"))
+    grid.check_keys(("step", "max_points", "rule"))
     step = grid.number("step", positive=True)
     max_points = grid.integer("max_points", 1 << 20, minimum=2, maximum=1 << 24)
-    discretisation = grid.string("discretisation", "rounding", DISCRETISATIONS)
+    rule = grid.string("rule", "nearest", RULES)
     rep = root.table("report", {})
     rep.check_keys(("percentiles", "deadlines"))
     percentiles = rep.numbers("percentiles", list(DEFAULT_PERCENTILES), minimum=0.0,
@@ -163,7 +163,7 @@ def parse(doc: SpecDoc) -> DelaySpec:
             raise stage_table.error(name, "stage names may hold only letters, digits, '_' "
                                     "and '-'")
         stages[name] = stage_table.table(name)
-    spec = DelaySpec(doc, title, unit, step, max_points, discretisation, percentiles,
+    spec = DelaySpec(doc, title, unit, step, max_points, rule, percentiles,
                      deadlines, network, stages)
     _check_graph(spec)
     return spec
@@ -295,7 +295,7 @@ def compute(spec: DelaySpec, steps: Steps | None = None) -> DelayResult:
         if kind == "leaf":
             if steps:
                 steps.step(f"stage {name}")
-            built = laws.build(sec, spec.step, method=spec.discretisation,
+            built = laws.build(sec, spec.step, rule=spec.rule,
                                max_points=spec.max_points, points=points)
             notes.extend(f"stage {name}: {n}" for n in built.notes)
             descriptions[name] = built.description
@@ -372,7 +372,7 @@ def caution_lines(res: DelayResult) -> list[str]:
         independence="every stage and parallel branch is independent of the others; shared "
         "hosts, queues or networks break this",
         discretisation=f"delays on a grid of step {res.spec.step:g} {res.spec.unit} "
-        f"({res.spec.discretisation})",
+        f"({res.spec.rule} rule)",
         truncation=f"{s['grid_points']} grid points; mass beyond the grid "
         f"{s['truncated_mass']:.2e}",
         practice="engineering",

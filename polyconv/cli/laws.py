@@ -5,8 +5,8 @@ One table describes one law, in one of four ways (used by ``aggregate`` severiti
 
 ``law`` + ``params``
     A continuous law of :mod:`scipy.stats` by name with its keyword parameters, e.g.
-    ``law = "lognorm"``, ``params = { s = 1.2, scale = 8000 }``; discretised with
-    :func:`polyconv.dist.discretize`.
+    ``law = "lognorm"``, ``params = { s = 1.2, scale = 8000 }``; put on the grid by
+    :meth:`polyconv.dist.Lattice.from_law`.
 ``values`` + ``probabilities``
     An empirical table; the probabilities must sum to 1 (they are never renormalised).
 ``values`` + ``counts``
@@ -26,7 +26,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy import stats
 
-from ..dist import Lattice, discretize
+from ..dist import Lattice
 from .spec import Section
 
 LAW_KEYS = ("law", "params")
@@ -118,7 +118,7 @@ def span_points(span: float, step: float) -> int | float:
     return int(round(ratio)) + 2 if math.isfinite(ratio) else math.inf
 
 
-def build(sec: Section, step: float, *, method: str = "rounding", max_points: int = 1 << 20,
+def build(sec: Section, step: float, *, rule: str = "nearest", max_points: int = 1 << 20,
           points: int | None = None) -> Built:
     """Put the law described by ``sec`` on the grid ``0, step, 2 step, ...``.
 
@@ -128,8 +128,8 @@ def build(sec: Section, step: float, *, method: str = "rounding", max_points: in
         The table describing the law (see the module docstring).
     step : float
         Grid step.
-    method : str
-        Discretisation method of :func:`polyconv.dist.discretize` for continuous laws.
+    rule : str
+        Discretisation rule of :meth:`polyconv.dist.Lattice.from_law` for continuous laws.
     max_points : int
         Cap on the number of points of a continuous law's grid (the mass beyond is reported).
     points : int, optional
@@ -154,7 +154,7 @@ def build(sec: Section, step: float, *, method: str = "rounding", max_points: in
             if need > max_points:
                 notes.append(f"the grid of {sec.string('law')} was cut at {max_points} points "
                              "(raise grid.max_points to go further)")
-        lat = discretize(frozen, step=step, size=max(points, 2), method=method)
+        lat = Lattice.from_law(frozen, step=step, size=max(points, 2), rule=rule)
         params = ", ".join(f"{k}={v:g}" for k, v in
                            ((k, sec.table("params", {}).number(k))
                             for k in sec.table("params", {}).keys()))

@@ -1,7 +1,8 @@
 """polyconv.dist: probability distributions on lattices, computed by convolution.
 
 Sums of independent random variables (``X + Y``, :meth:`Lattice.nfold`), compound distributions
-(:func:`compound`), discretisation of continuous laws (:func:`discretize`), delay networks
+(:func:`compound`), continuous laws put on a lattice (:meth:`Lattice.from_law`, bracketed by
+:func:`law_bracket`), delay networks
 (:func:`series`, :func:`all_of`, :func:`first_of`, :func:`mixture`) and risk measures (quantile,
 VaR, TVaR, stop-loss) on :class:`Lattice` objects.  Each Lattice carries an
 :class:`ErrorLedger` (computed-error bounds per point and in L1, truncated mass, where it may lie
@@ -19,18 +20,19 @@ capital, prices or deadlines, check them against local regulation and codes and 
 actuarial or engineering practice.
 """
 
+from .brackets import Bracket, law_bracket
 from .compound import compound
 from .delays import all_of, first_of, mixture, series
-from .discretize import discretize
 from .errors import AccuracyWarning, TruncationWarning
+from .goals import Goal, aggregate_for_goal
 from .lattice import Lattice
 from .ledger import Bounded, ErrorLedger
+from .step_check import CoarseStepWarning, StepCheck, check_step
 
 __all__ = [
     "Lattice",
     "ErrorLedger",
     "Bounded",
-    "discretize",
     "compound",
     "series",
     "all_of",
@@ -38,4 +40,11 @@ __all__ = [
     "mixture",
     "AccuracyWarning",
     "TruncationWarning",
+    "CoarseStepWarning",
+    "StepCheck",
+    "check_step",
+    "law_bracket",
+    "Bracket",
+    "Goal",
+    "aggregate_for_goal",
 ]

@@ -37,8 +37,9 @@ from .transform import size_for_tail, transform_compound
 DEFAULT_TAIL = 1e-12
 """Default grid: the smallest with Chernoff-bounded mass beyond it below this tolerance."""
 
-MAX_POINTS = 1 << 22
-"""Memory budget of the default grid (points); a heavier tail stops here and is reported."""
+MAX_POINTS = 1 << 20
+"""Memory budget of the default grid (points, ~100 MB of transforms); a heavier tail stops here
+and is reported (ask for a ``goal`` or a ``size`` instead)."""
 
 RECURSION_AUTO_MAX = 512
 """``method="auto"`` uses the recursion up to this many points (stable laws only)."""
@@ -49,8 +50,8 @@ _RESCALE = 1e280
 _LOG_RESCALE = math.log(_RESCALE)
 
 
-def compound(counts, severity: Lattice, *, method: str = "auto", size: int | None = None
-             ) -> Lattice:
+def compound(counts, severity: Lattice, *, method: str = "auto", size: int | None = None,
+             goal=None) -> Lattice:
     """Distribution of ``S = X_1 + ... + X_N`` on the severity's lattice.
 
     Parameters
@@ -67,6 +68,9 @@ def compound(counts, severity: Lattice, *, method: str = "auto", size: int | Non
         Points of the result, from 0.  Default: the smallest grid, at least as long as the
         severity lattice, whose Chernoff-bounded tail mass is below ``DEFAULT_TAIL``, capped at
         ``MAX_POINTS`` (a :class:`TruncationWarning` reports the cap).
+    goal : polyconv.dist.Goal, optional
+        Instead of ``size``: the shortest grid on which the measures of the goal have certified
+        ranges within its tolerance (:func:`polyconv.dist.goals.compound_for_goal`).
 
     Returns
     -------
@@ -95,6 +99,11 @@ def compound(counts, severity: Lattice, *, method: str = "auto", size: int | Non
         raise TypeError(f"severity must be a Lattice; got {type(severity).__name__}")
     if method not in ("auto", "fft", "recursion"):
         raise ValueError(f"method must be 'auto', 'fft' or 'recursion'; got {method!r}")
+    if goal is not None:  # goal-oriented grid (polyconv.dist.goals)
+        if size is not None:
+            raise ValueError("give either size or goal, not both")
+        from .goals import compound_for_goal
+        return compound_for_goal(counts, severity, goal, method=method)
     f = _severity_vector(severity)
     size = _grid_size(law, f, size)
     stable = law.ab is not None and law.ab[0] >= 0

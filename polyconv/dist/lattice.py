@@ -160,10 +160,11 @@ class Lattice:
 
     @classmethod
     def from_law(cls, law, *, step, size=None, rule="nearest") -> Lattice:
-        """Discretise a continuous or discrete scipy.stats law onto a lattice of ``step``.
+        """Put a continuous scipy.stats law (or a cdf) on a lattice of ``step``.
 
         rule: ``"nearest"``, ``"down"`` (stochastic lower bound), ``"up"`` (upper bound) or
-        ``"moments"`` (local moment matching).  Implemented in :mod:`polyconv.dist.from_law`.
+        ``"moments"`` (local moment matching).  Implemented in
+        :func:`polyconv.dist.from_law.lattice_from_law`.
         """
         # --- from_law hook (branch `grids` owns the implementation; keep this one delegation)
         from .from_law import lattice_from_law

@@ -118,19 +118,61 @@ def log_chernoff_tail(law: TransformLaw, sev: tuple[np.ndarray, np.ndarray], x: 
     return best
 
 
+SPLIT_FRACTIONS = (0.9, 0.7, 0.5, 0.35, 0.2, 0.1)
+"""Caps ``c = fraction * x`` tried by :func:`log_split_tail`."""
+
+
+def log_split_tail(law: TransformLaw, sev: tuple[np.ndarray, np.ndarray], x: float) -> float:
+    """log of an upper bound of ``P(S >= x)`` that stays useful for heavy tails.
+
+    If every claim is at most ``c`` then ``S = sum min(X_i, c)``, so (union bound)
+    ``P(S >= x) <= E[N] P(X > c) + P(sum min(X_i, c) >= x)``; the second term has a Chernoff bound
+    (:func:`log_chernoff_tail`) even when ``X`` has none, the capped severity being bounded.  On
+    the reduced severity (masses at block ends) ``P(X > c) <= `` the mass of blocks ending above
+    ``c``, and capping the block ends keeps the stochastic order, so the bound stays rigorous.
+    The best of the caps in :data:`SPLIT_FRACTIONS` is returned (0.0 when none helps).
+    """
+    idx, mass = sev
+    if x <= 0 or idx.size == 0:
+        return 0.0
+    order = np.argsort(idx)
+    idx, mass = idx[order], mass[order]
+    above = np.cumsum(mass[::-1])[::-1]  # mass of blocks at index >= position
+    best = 0.0
+    for frac in SPLIT_FRACTIONS:
+        c = frac * x
+        k = int(np.searchsorted(idx, c, side="right"))
+        jump = law.mean * (float(above[k]) if k < idx.size else 0.0)
+        if jump >= 1.0:
+            continue
+        capped = (np.minimum(idx, c), mass)
+        log_rest = log_chernoff_tail(law, capped, x)
+        if jump == 0.0:
+            best = min(best, log_rest)
+        elif jump + math.exp(log_rest) < 1.0:
+            best = min(best, math.log(jump) + math.log1p(math.exp(log_rest) / jump))
+    return best
+
+
+def log_tail_bound(law: TransformLaw, sev: tuple[np.ndarray, np.ndarray], x: float) -> float:
+    """log of an upper bound of ``P(S >= x)``: the better of :func:`log_chernoff_tail` and
+    :func:`log_split_tail`."""
+    return min(log_chernoff_tail(law, sev, x), log_split_tail(law, sev, x))
+
+
 def size_for_tail(law: TransformLaw, f: np.ndarray, tol: float, minimum: int, cap: int) -> int:
-    """Smallest grid length ``s`` in ``[minimum, cap]`` with Chernoff ``P(S >= s) <= tol``
-    (``cap`` when none is)."""
+    """Smallest grid length ``s`` in ``[minimum, cap]`` with ``P(S >= s) <= tol`` by
+    :func:`log_tail_bound` (``cap`` when none is)."""
     sev = reduced_severity(f)
     logtol = math.log(tol)
-    if log_chernoff_tail(law, sev, minimum) <= logtol:
+    if log_tail_bound(law, sev, minimum) <= logtol:
         return minimum
-    if log_chernoff_tail(law, sev, cap) > logtol:
+    if log_tail_bound(law, sev, cap) > logtol:
         return cap
     lo, hi = minimum, cap
     while hi - lo > max(1, lo // 256):
         mid = (lo + hi) // 2
-        if log_chernoff_tail(law, sev, mid) <= logtol:
+        if log_tail_bound(law, sev, mid) <= logtol:
             hi = mid
         else:
             lo = mid
@@ -202,7 +244,7 @@ def _transform_once(law, f, size, n_fft, theta, log_alias_mass) -> TransformResu
     if n_fft < f.size:
         f = _fold(f, n_fft)
     if log_alias_mass is None:
-        log_alias_mass = log_chernoff_tail(law, reduced_severity(f), float(n_fft))
+        log_alias_mass = log_tail_bound(law, reduced_severity(f), float(n_fft))
     eta = accuracy.fft_relative_error(n_fft)
     pre_round = eta * (law.mean + 1) + (law.pgf_rel + law.pgf_abs) * u
     if theta is None:

@@ -1,0 +1,359 @@
+"""Two resolutions for heavy tails: a fine grid for the body, a coarse bracket for the far tail.
+
+A TVaR or stop-loss premium of a heavy-tailed aggregate depends on mass far beyond its quantiles
+(Poisson(10) x lognormal(sigma 2): ``E[(S - b)+]`` is still 1e-4 of TVaR(99.5%) at ``b`` ~ 300
+times the VaR).  One fine grid reaching that far costs millions of points.  Instead, for the
+lattice model ``M`` (severity put on step ``h`` by a rule of :meth:`Lattice.from_law`, compound
+``S``) and a grid end ``b = n h``::
+
+    E[(S - d)+] = E[(min(S, b) - d)+] + E[(S - b)+]        (d <= b)
+
+* ``min(S, b)`` is exact on the fine grid: its ``n`` computed points plus the truncated mass at
+  ``b`` (the compound on ``[0, b)`` needs only severity points below ``b``), with the fine
+  lattice's ledger (the mass at ``b`` is known up to its L1 error).
+* ``E[(S - b)+]`` is bracketed by two coarse compounds on step ``H = k h``: each severity point of
+  ``M`` moved down (resp. up) to a multiple of ``H`` gives ``S_down <= S <= S_up`` in the
+  stochastic order (sums keep it: Shaked & Shanthikumar, *Stochastic Orders* (2007), thm 1.A.3,
+  from memory), hence ``E[(S_down - b)+] <= E[(S - b)+] <= E[(S_up - b)+]``.  Both coarse
+  severities come straight from the law: moving the cells of ``M`` to coarse ends is the rule
+  "down" (or "up") on step ``H`` with the cell edges shifted by the fine rule's offset.  Their own
+  certified ranges (:meth:`Lattice.bounded`, the low end of the down side and the high end of the
+  up side) carry rounding and truncation.
+
+The coarse bracket is ``H E[N 1{S > b}]`` wide at most (a coupling moves each claim by less than
+``H``), so the split point ``b`` and ``H`` are chosen together: ``P(S >= b)`` from the heavy-tail
+bound of :func:`polyconv.dist.transform.log_tail_bound` on a pilot severity, ``H`` as large as the
+goal's share allows, the coarse reach from the law's closed-form stop-loss
+(:mod:`polyconv.dist.law_moments`), minimising the total number of points.  Quantiles come from
+the fine grid alone.  TVaR is ``min_x {x + E[(S - x)+] / (1 - p)}`` (Rockafellar & Uryasev,
+J. Banking & Finance 26 (2002)): its high end is the value at the lattice's own VaR with the high
+stop-loss, its low end the smallest value over the certified quantile bracket with the low one.
+
+Caution: a model output, not advice; the ranges are those of the lattice model ``M``, whose
+discretisation of the law is bracketed separately (:func:`polyconv.dist.law_bracket`).
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from typing import NamedTuple
+
+import numpy as np
+
+from . import law_moments
+from .accuracy import UNIT_ROUNDOFF
+from .errors import AccuracyWarning
+from .from_law import _OFFSET, LawAccess, check_rule, make_lattice, rule_pmf
+from .goals import Goal, choose_step
+from .ledger import Bounded, ErrorLedger
+
+SPLIT_SHARE = 0.5
+"""Share of the goal's width given to the coarse bracket of the far tail."""
+
+RETRIES = 3
+"""Times the grids are refined (fine reach doubled, coarse step halved) when the goal is unmet."""
+
+
+class SplicedAnswers(NamedTuple):
+    """Result of :func:`spliced_aggregate`."""
+
+    answers: dict
+    """``(measure, arg) -> Bounded`` for every measure of the goal."""
+    step: float
+    """Fine step ``h``."""
+    fine_points: int
+    levels: tuple
+    """``(step, points)`` of each level of the far tail (steps are multiples of ``h``)."""
+    lattice: object
+    """The fine compound (a Lattice on ``[0, b)``)."""
+
+
+def coarse_pair(law, rule: str, h: float, k: int, size: int):
+    """Severity lattices on step ``H = k h`` below and above the lattice model of ``rule`` on
+    step ``h`` (module docstring): ``(down, up)``, ``size`` points each."""
+    access = LawAccess(law)
+    if rule not in _OFFSET:
+        raise ValueError(f"rule must be 'nearest', 'down' or 'up' for a spliced grid; got {rule!r}")
+    big = k * h
+    lift = (1.0 - _OFFSET[rule]) * h  # a point of the model lies at most this above its amount
+    out = []
+    for side, shift in (("down", -lift), ("up", _OFFSET[rule] * h)):
+        pmf, point, l1, truncated = rule_pmf(access, 0.0, big, size, side, shift=shift)
+        last_edge = shift + (size - 1 + _OFFSET[side]) * big
+        extra = lift + (big if side == "up" else 0.0)
+        tm = law_moments.tail_moment(law, max(last_edge, 0.0))
+        moment = tm * (1 + 4 * UNIT_ROUNDOFF) + extra * truncated
+        out.append(make_lattice(pmf, big, 0.0, point=point, l1=l1, moment=moment))
+    return tuple(out)
+
+
+def capped(lattice):
+    """The law of ``min(S, b)`` for a Lattice on ``[0, b)`` whose truncated mass lies at or
+    beyond ``b``: its points plus the truncated mass at ``b`` (known up to the L1 error)."""
+    from .lattice import Lattice
+
+    led = lattice.errors
+    n = len(lattice)
+    if led.truncated_from < n:
+        raise ValueError("the truncated mass may lie on the grid (truncated_from < len); "
+                         "a spliced answer needs it beyond the grid's end")
+    pmf = np.append(np.asarray(lattice.pmf), lattice.truncated_mass)
+    ledger = ErrorLedger(min(max(led.point, led.l1), 1.0), min(2 * led.l1, 2.0), 0.0, n + 1, 0.0)
+    return Lattice(pmf, lattice.step, lattice.origin, errors=ledger)
+
+
+def _quiet(lattice, measure, arg) -> Bounded:
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        return lattice.bounded(measure, arg)
+
+
+def _tail_excess(levels, ends, d: float) -> tuple[float, float, float]:
+    """``(value, low, high)`` of ``E[(S - d)+]`` for ``d >= ends[0]`` summed over the levels:
+    level ``i`` brackets ``E[(min(S, e_i) - e_{i-1})+]`` (the last one is not capped)."""
+    value = low = high = 0.0
+    for i, (down, up) in enumerate(levels):
+        start = max(ends[i], d)
+        if i + 1 < len(levels) and start >= ends[i + 1]:
+            continue
+        lo_b, hi_b = _quiet(down, "stop_loss", start), _quiet(up, "stop_loss", start)
+        value += 0.5 * (lo_b.value + hi_b.value)
+        low += lo_b.low
+        high += hi_b.high
+    return value, low, high
+
+
+def _stop_loss(cap, levels, ends, d: float) -> tuple[float, float, float]:
+    """``(value, low, high)`` of ``E[(S - d)+]`` (module docstring)."""
+    b = ends[0]
+    if d >= b:
+        return _tail_excess(levels, ends, d)
+    body = _quiet(cap, "stop_loss", d)
+    v, lo, hi = _tail_excess(levels, ends, b)
+    return body.value + v, body.low + lo, body.high + hi
+
+
+def _answer(measure, arg, fine, cap, levels, ends, goal: Goal) -> Bounded:
+    if not levels:  # one grid reaches far enough: its own ledger bounds the rest
+        return _judge(_quiet(fine, measure, arg), goal)
+    b = ends[0]
+    if measure in ("quantile", "var"):
+        return _judge(_quiet(fine, measure, arg), goal)
+    if measure in ("cdf", "sf") and arg < b:
+        return _judge(_quiet(cap, measure, arg), goal)
+    if measure in ("cdf", "sf"):
+        i = max(j for j in range(len(levels)) if ends[j] <= arg)
+        lo, hi = _quiet(levels[i][0], "sf", arg), _quiet(levels[i][1], "sf", arg)
+        value = 0.5 * (lo.value + hi.value)
+        if measure == "sf":
+            return _judge(Bounded(value, lo.low, hi.high, False, ""), goal)
+        return _judge(Bounded(1 - value, 1 - hi.high, 1 - lo.low, False, ""), goal)
+    if measure == "mean":
+        return _judge(Bounded(*_stop_loss(cap, levels, ends, 0.0), False, ""), goal)
+    if measure == "stop_loss":
+        return _judge(Bounded(*_stop_loss(cap, levels, ends, float(arg)), False, ""), goal)
+    p = float(arg)  # tvar
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        q_lo, q_hi = fine.quantile_bracket(p)
+    if not q_hi < b:
+        return Bounded(math.nan, q_lo, math.inf, True, f"the {p} quantile may lie beyond the "
+                       "fine grid")
+    h = fine.step
+    xs = np.arange(round(q_lo / h), round(q_hi / h) + 1) * h
+    lows, highs, values = [], [], []
+    for x in xs:
+        v, lo, hi = _stop_loss(cap, levels, ends, float(x))
+        values.append(x + v / (1 - p))
+        lows.append(x + lo / (1 - p))
+        highs.append(x + hi / (1 - p))
+    k_own = min(int(np.searchsorted(xs, _own_var(fine, p) - h / 2)), len(xs) - 1)
+    return _judge(Bounded(values[k_own], min(lows), min(highs), False, ""), goal)
+
+
+def _own_var(fine, p: float) -> float:
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        return float(fine.value_at_risk(p))
+
+
+def _judge(b: Bounded, goal: Goal) -> Bounded:
+    if b.refused and not (math.isfinite(b.low) and math.isfinite(b.high)):
+        return b
+    value = b.value
+    width = b.high - b.low
+    ref = value if math.isfinite(value) else b.high
+    if not (math.isfinite(width) and width <= goal.tolerance(ref)):
+        return Bounded(math.nan, b.low, b.high, True, f"certified range [{b.low:.6g}, "
+                       f"{b.high:.6g}] is wider than the goal (rtol {goal.rtol:g}, atol "
+                       f"{goal.atol:g})")
+    return Bounded(value, b.low, b.high, False, "")
+
+
+def _plan(counts, law, h: float, goal: Goal):
+    """``(n_fine, [(k_i, n_i)])``: the fine grid and the levels of the far tail (module
+    docstring), from a pilot compound on a coarse step (estimates only: the answers are
+    certified afterwards)."""
+    from .compound import compound
+    from .lattice import Lattice
+
+    levels = goal.levels() or [0.5]
+    top_p = max(levels)
+    n_mean = float(counts.mean())
+    # claims on a path with a large claim: the size-biased count E[N^2] / E[N] (lambda + 1 for
+    # a Poisson count)
+    claims = (float(counts.var()) + n_mean ** 2) / n_mean if n_mean > 0 else 1.0
+    pilot_h = max(float(law.isf(1e-12)) / PILOT_POINTS, h)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        sev = Lattice.from_law(law, step=pilot_h, size=PILOT_POINTS, rule="up")
+        pilot = compound(counts, sev, size=PILOT_POINTS)
+        var = float(pilot.value_at_risk(top_p))
+        tvar = float(pilot.tail_value_at_risk(top_p))
+        if not math.isfinite(tvar):
+            tvar = 4 * var
+        width = goal.tolerance(tvar) * (1 - top_p)
+        for m, a in goal.measures:
+            if m == "stop_loss":
+                width = min(width, goal.tolerance(float(pilot.stop_loss(a))))
+    width = max(width, 1e-300)
+    reach = _coarse_reach(law, n_mean, SPLIT_SHARE * width / 3)
+
+    def sf(x):
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            return max(float(pilot.sf(x)), 1e-300)
+
+    best = None
+    end = max(2.0 * var, max([0.0] + goal.points()) + h, 64 * h)
+    while end < reach and end / h <= goal.max_points:
+        plan = _levels(sf, end, reach, claims, SPLIT_SHARE * width * 2 / 3, h)
+        if plan is not None:
+            cost = end / h + 2 * sum(n for _, n in plan)
+            if best is None or cost < best[0]:
+                best = (cost, int(math.ceil(end / h)), plan)
+        end *= LEVEL_RATIO
+    if best is None:
+        return min(int(math.ceil(reach / h)) + 1, goal.max_points), []
+    return best[1], best[2]
+
+
+def _levels(sf, end: float, reach: float, claims: float, share: float, h: float):
+    """Levels ``[(k_i, n_i)]`` from ``end`` to ``reach`` (ratio :data:`LEVEL_RATIO`), the goal's
+    ``share`` split in proportion to the square root of each level's need (which minimises the
+    total points ``sum e_i claims sf(e_{i-1}) / share_i``); None when a level would need a step
+    below ``h``."""
+    ends = [end]
+    while ends[-1] < reach:
+        ends.append(min(ends[-1] * LEVEL_RATIO, reach))
+    need = [ends[i + 1] * claims * sf(ends[i]) for i in range(len(ends) - 1)]
+    if not need:
+        return []
+    root = sum(math.sqrt(c) for c in need)
+    out = []
+    for i, c in enumerate(need):
+        s_i = share * math.sqrt(c) / root
+        big = s_i / (claims * sf(ends[i]))
+        if big < h:
+            return None
+        k = int(big / h)
+        out.append((k, int(math.ceil(ends[i + 1] / (k * h))) + 1))
+    return out
+
+
+LEVEL_RATIO = 2.0
+"""Each level of the far tail reaches this many times further than the previous one."""
+
+PILOT_POINTS = 1 << 16
+"""Points of the pilot compound that sizes the levels."""
+
+
+def _coarse_reach(law, n_mean: float, share: float) -> float:
+    """Smallest ``B`` (by bisection in ``log B``) with ``E[N] E[X 1{X > B}] <= share`` (closed
+    forms of :mod:`polyconv.dist.law_moments`): where the last level may stop, its truncated
+    part's first moment (about ``E[N]`` times that) being within the share."""
+    def excess(x):
+        return n_mean * law_moments.tail_moment(law, x)
+
+    lo = max(float(law.median()), 1e-300)
+    hi = lo
+    while excess(hi) > share and hi < 1e300:
+        hi *= 4.0
+    for _ in range(60):
+        mid = math.sqrt(lo * hi)
+        if excess(mid) > share:
+            lo = mid
+        else:
+            hi = mid
+    return hi
+
+
+def spliced_aggregate(counts, law, *, goal: Goal, step: float | None = None,
+                      rule: str = "nearest", method: str = "auto") -> SplicedAnswers:
+    """Answers of ``goal`` for a compound with a continuous severity, on two grids.
+
+    Parameters
+    ----------
+    counts : scipy.stats frozen discrete distribution
+        Law of the claim count.
+    law : scipy.stats frozen continuous distribution on ``[0, inf)``
+        Severity law (with closed-form tail moments: see :mod:`polyconv.dist.law_moments`).
+    goal : Goal
+        Measures and precision.
+    step : float, optional
+        Fine step ``h``; None: from a pilot VaR (:func:`polyconv.dist.goals.choose_step`).
+    rule : {"nearest", "down", "up"}
+        Rule of the lattice model.
+    method : {"auto", "fft", "recursion"}
+        Route of the three compounds.
+
+    Returns
+    -------
+    SplicedAnswers
+        A :class:`~polyconv.dist.Bounded` per measure of the goal (refused with a reason when
+        its range misses the goal after :data:`RETRIES` refinements), the grids used and the
+        fine compound.  Model output, not advice (see :mod:`polyconv.dist`).
+    """
+    from .compound import compound
+    from .lattice import Lattice
+    from .step_check import CoarseStepWarning
+
+    if not isinstance(goal, Goal):
+        raise TypeError(f"goal must be a polyconv.dist.Goal; got {type(goal).__name__}")
+    check_rule(rule)
+    if rule == "moments":
+        raise ValueError("rule must be 'nearest', 'down' or 'up' for a spliced grid; got "
+                         "'moments'")
+    if step is None:
+        step = choose_step(counts, law, goal, rule=rule)
+    h = float(step)
+    n_f, plan = _plan(counts, law, h, goal)
+    if not plan:  # a light enough tail: one grid, sized by the goal (polyconv.dist.goals)
+        from .goals import aggregate_for_goal
+        fine = aggregate_for_goal(counts, law, goal=goal, step=h, rule=rule, method=method)
+        answers = {(m, a): _judge(_quiet(fine, m, a), goal) for m, a in goal.measures}
+        return SplicedAnswers(answers, h, len(fine), (), fine)
+    for attempt in range(RETRIES + 1):
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", CoarseStepWarning)
+            sev = Lattice.from_law(law, step=h, size=n_f, rule=rule)
+        fine = compound(counts, sev, method=method, size=n_f)
+        levels, ends = [], [h * n_f]
+        for i, (k, n) in enumerate(plan):
+            down_sev, up_sev = coarse_pair(law, rule, h, k, n)
+            pair = [compound(counts, x, method=method, size=n) for x in (down_sev, up_sev)]
+            if i + 1 < len(plan):
+                pair = [capped(x) for x in pair]
+            levels.append(tuple(pair))
+            ends.append(n * k * h)
+        cap = capped(fine)
+        answers = {(m, a): _answer(m, a, fine, cap, levels, ends, goal)
+                   for m, a in goal.measures}
+        missed = [f"{m}({a}): {r.reason}" for (m, a), r in answers.items() if r.refused]
+        if not missed or attempt == RETRIES:
+            break
+        plan = [(max(1, k // 2), min(2 * n, goal.max_points)) for k, n in plan]
+    if missed:
+        warnings.warn("goal not met: " + "; ".join(missed), AccuracyWarning, stacklevel=2)
+    return SplicedAnswers(answers, h, n_f, tuple((k * h, n) for k, n in plan), fine)
