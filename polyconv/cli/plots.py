@@ -35,7 +35,11 @@ neighbour (and at least :data:`ATOM_SMALLEST`)."""
 
 ATOM_SMALLEST = 1e-4
 MOST_ATOMS = 6
-"""More atoms than this: the distribution is drawn as stems throughout (a lattice law)."""
+"""At most this many atoms are labelled (the largest)."""
+
+STEM_POINTS = 400
+"""A distribution panel showing at most this many grid points draws each as a stem (its
+probability is a mass at that point); more points are drawn as a curve, atoms as stems."""
 
 SCALES = ((1e10, 1e9, "bn"), (1e7, 1e6, "m"))
 """``(axis reach from which, unit, suffix)``: an axis reaching 10m or more is labelled in
@@ -138,7 +142,8 @@ def distribution_figure(lat: Lattice, *, title: str, quantity: str, unit: str,
     lowest = max(noise * 1e-2, 1e-16)
     grid_end = float(x[-1])
     cdf = np.cumsum(pmf)
-    body_end = float(x[min(int(np.searchsorted(cdf, 0.9999)), x.size - 1)])
+    body_level = min(0.9999, 0.999 * float(cdf[-1]))  # a heavy tail cut by the grid
+    body_end = float(x[min(int(np.searchsorted(cdf, body_level)), x.size - 1)])
     body_end = max([body_end, float(x[min(1, x.size - 1)]), *(v for _, v in markers)])
     visible = np.nonzero(sf > lowest)[0]
     tail_end = float(x[visible[-1]]) if visible.size else grid_end
@@ -184,11 +189,15 @@ def _distribution_panel(ax, lat: Lattice, body_end: float, unit: str) -> None:
     x = lat.values
     pmf = np.asarray(lat.pmf)
     atoms = find_atoms(pmf)
-    color = "#1f5f8b"
     if atoms.size > MOST_ATOMS:
-        ax.vlines(x, 0, pmf, color=color, lw=1.0,
+        atoms = np.sort(atoms[np.argsort(pmf[atoms])[-MOST_ATOMS:]])
+    color = "#1f5f8b"
+    in_view = int(np.searchsorted(x, body_end * 1.05 + lat.step))
+    if in_view <= STEM_POINTS:
+        ax.vlines(x, 0, pmf, color=color, lw=1.4,
                   label=f"probability of each amount (grid step {number_name(lat.step)} {unit})")
-        atoms = atoms[:0]
+        ax.plot(x[:in_view], pmf[:in_view], "o", color=color, ms=2.5)
+        atoms = atoms[(atoms == 0) | (atoms == x.size - 1)]  # edge atoms still get a label
     else:
         smooth = pmf.copy()
         smooth[atoms] = np.nan
@@ -214,7 +223,9 @@ def _distribution_panel(ax, lat: Lattice, body_end: float, unit: str) -> None:
         off = " (off scale)" if p > shown else ""
         ax.annotate(f"{_probability(p)} at {amount_text(float(x[k]), body_end)} {unit}{off}",
                     (x[k], shown), textcoords="offset points", xytext=(6, -4), fontsize=8,
-                    color="#c0392b", va="top")
+                    color="#c0392b", va="top",
+                    bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none",
+                          "alpha": 0.85})
     ax.set_ylim(0, top)
     ax.set_ylabel("probability of each grid point")
     ax.set_title("distribution")
