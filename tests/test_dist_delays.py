@@ -71,7 +71,11 @@ def test_truncated_inputs():
     # min is known on the whole of t's lattice: P(min > 2) = P(t > 2) P(B > 2) = .1 * .3
     assert m.sf(2) == pytest.approx(0.1 * 0.3, abs=1e-15)
     j = all_of(t, B)
-    assert j.truncated_mass == pytest.approx(1 - 0.9 * 0.7, abs=1e-15)  # F_t(2) F_B(2)
+    # the maximum's law is known except for t's missing 10%, which lies at or above t's grid
+    # end: P(max <= x) = F_t(x) F_B(x) with F_t(x) = .9 from x = 2 on (product of cdfs)
+    assert j.truncated_mass == pytest.approx(1 - 0.9 * 1.0, abs=1e-15)
+    assert j.origin + j.step * j.errors.truncated_from == pytest.approx(3.0)
+    assert j.cdf(2) == pytest.approx(0.9 * 0.7, abs=1e-15)
 
 
 def test_errors():

@@ -3,9 +3,11 @@
 Sums of independent random variables (``X + Y``, :meth:`Lattice.nfold`), compound distributions
 (:func:`compound`), discretisation of continuous laws (:func:`discretize`), delay networks
 (:func:`series`, :func:`all_of`, :func:`first_of`, :func:`mixture`) and risk measures (quantile,
-VaR, TVaR, stop-loss) on :class:`Lattice` objects.  Each Lattice carries a ``trust_floor``, an
-error bound on its probabilities; quantities resting on probabilities below it warn
-(:class:`AccuracyWarning`) or return ``nan`` rather than print rounding noise as numbers.
+VaR, TVaR, stop-loss) on :class:`Lattice` objects.  Each Lattice carries an
+:class:`ErrorLedger` (computed-error bounds per point and in L1, truncated mass, where it may lie
+and its first moment); every query has a certified range (:meth:`Lattice.bounded` returns a
+:class:`Bounded`), quantiles are the lattice's own (never below), and answers whose range is too
+wide warn (:class:`AccuracyWarning`) or come back ``nan`` rather than print rounding noise.
 
 Cautions
 --------
@@ -22,9 +24,12 @@ from .delays import all_of, first_of, mixture, series
 from .discretize import discretize
 from .errors import AccuracyWarning, TruncationWarning
 from .lattice import Lattice
+from .ledger import Bounded, ErrorLedger
 
 __all__ = [
     "Lattice",
+    "ErrorLedger",
+    "Bounded",
     "discretize",
     "compound",
     "series",

@@ -11,7 +11,7 @@ Two routes, one result:
   (``g_0`` kept as a logarithm, values rescaled by ``1e-280`` when they grow), so a large Poisson
   mean whose ``e^{-lambda}`` underflows needs no splitting.  Stable for ``a >= 0`` (Panjer & Wang,
   ASTIN Bulletin 23 (1993), from memory); for the binomial (``a < 0``) errors can grow, and the
-  trust floor, computed by a running first-order bound, says by how much.
+  error ledger, computed by a running first-order bound, says by how much.
 
 Cautions: a model output, not advice.  It assumes the claim count and the severities are
 independent, the severities identically distributed; it inherits the discretisation of the
@@ -31,6 +31,7 @@ from . import accuracy
 from .counts import CountsLaw, classify
 from .errors import TruncationWarning
 from .lattice import Lattice
+from .ledger import ErrorLedger, untruncated
 from .transform import size_for_tail, transform_compound
 
 DEFAULT_TAIL = 1e-12
@@ -42,6 +43,7 @@ MAX_POINTS = 1 << 22
 RECURSION_AUTO_MAX = 512
 """``method="auto"`` uses the recursion up to this many points (stable laws only)."""
 
+_U = accuracy.UNIT_ROUNDOFF
 _RESCALE = 1e280
 _LOG_RESCALE = math.log(_RESCALE)
 
@@ -68,10 +70,11 @@ def compound(counts, severity: Lattice, *, method: str = "auto", size: int | Non
     Returns
     -------
     Lattice
-        Origin 0, the severity's step, ``size`` points.  ``truncated_mass`` is the mass beyond
-        the grid; ``trust_floor`` bounds each probability's error: transform rounding and
-        aliasing (or the recursion's running bound), plus ``E[N]`` times the severity's floor and
-        truncated mass (a claim beyond the severity lattice is lost from the grid).
+        Origin 0, the severity's step, ``size`` points.  ``truncated_mass`` is the mass not on
+        the grid; ``errors`` (:func:`compound_ledger`) holds the route's rounding and aliasing
+        bound (or the recursion's running bound) with the severity's errors carried through the
+        counting law's PGF, where the truncated mass may lie (from the severity's own truncation
+        point, or the grid's end) and its first moment from ``E[S] = E[N] E[X]``.
 
     Notes
     -----
@@ -92,15 +95,7 @@ def compound(counts, severity: Lattice, *, method: str = "auto", size: int | Non
     if method not in ("auto", "fft", "recursion"):
         raise ValueError(f"method must be 'auto', 'fft' or 'recursion'; got {method!r}")
     f = _severity_vector(severity)
-    if size is None:
-        size = size_for_tail(law.transform, f, DEFAULT_TAIL, f.size, MAX_POINTS)
-        if size >= MAX_POINTS:
-            warnings.warn(f"compound grid capped at {MAX_POINTS} points before the tail mass "
-                          f"fell below {DEFAULT_TAIL}; see truncated_mass", TruncationWarning,
-                          stacklevel=2)
-    elif isinstance(size, bool) or not isinstance(size, numbers.Integral) or size < 1:
-        raise ValueError(f"size must be a positive integer; got {size!r}")
-    size = int(size)
+    size = _grid_size(law, f, size)
     stable = law.ab is not None and law.ab[0] >= 0
     if method == "auto":
         method = "recursion" if stable and size <= RECURSION_AUTO_MAX else "fft"
@@ -108,13 +103,94 @@ def compound(counts, severity: Lattice, *, method: str = "auto", size: int | Non
         if law.ab is None:
             raise ValueError(f"method='recursion' needs a Panjer (a, b, 0) law (poisson, nbinom, "
                              f"binom with loc=0); counts is {law.name}: use method='fft'")
-        g, floor = panjer_recursion(law, f, size)
+        g, errs = panjer_recursion(law, f, size)
+        r_point, r_l1 = float(np.max(errs)), float(np.sum(errs))
     else:
         res = transform_compound(law.transform, f, size)
-        g, floor = res.pmf, res.trust_floor
-    mean_n = law.transform.mean
-    floor += mean_n * (severity.trust_floor + severity.truncated_mass) + law.tail_mass
-    return Lattice(np.minimum(g, 1.0), severity.step, 0.0, trust_floor=floor)
+        g, r_point, r_l1 = res.pmf, res.trust_floor, size * res.trust_floor
+    g = np.minimum(g, 1.0)
+    ledger = compound_ledger(counts, law, severity, f, g, r_point, r_l1)
+    return Lattice._make(g, severity.step, 0.0, ledger)
+
+
+def _grid_size(law: CountsLaw, f: np.ndarray, size: int | None) -> int:
+    """Points of the result: the user's ``size``, or the default grid (tail tolerance)."""
+    if size is None:
+        size = size_for_tail(law.transform, f, DEFAULT_TAIL, f.size, MAX_POINTS)
+        if size >= MAX_POINTS:
+            warnings.warn(f"compound grid capped at {MAX_POINTS} points before the tail mass "
+                          f"fell below {DEFAULT_TAIL}; see truncated_mass", TruncationWarning,
+                          stacklevel=3)
+    elif isinstance(size, bool) or not isinstance(size, numbers.Integral) or size < 1:
+        raise ValueError(f"size must be a positive integer; got {size!r}")
+    return int(size)
+
+
+def _log_pgf_above_one(law: CountsLaw, delta: float) -> float:
+    """``log P_N(1 + delta)`` (``inf`` where the series diverges)."""
+    return law.transform.log_pgf_real(math.log1p(delta))
+
+
+def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g: np.ndarray,
+                    r_point: float, r_l1: float) -> ErrorLedger:
+    """Error ledger of a compound computed from the severity vector ``f`` (route rounding
+    ``r_point``, ``r_l1``).
+
+    * Severity error ``e`` (L1 ``l``, per point ``d``): ``||sum_n P(N=n) (f^{*n} - q^{*n})||_1
+      <= sum_n P(N=n) ((1 + l)^n - 1) = P_N(1 + l) - 1`` (telescoping, each factor of L1 norm
+      at most ``1 + l``), and per point ``<= d P_N'(1 + l)``, with ``P_N'(1 + l) <= (P_N(1 + 2
+      delta) - P_N(1 + delta)) / delta`` for ``delta >= l`` (a PGF is convex on the reals).
+    * Truncated part: mass of the severity's truncated part carried by any claim (from the
+      severity's ``truncated_from``), mass beyond the grid (from ``len(g)``) and, for a generic
+      counting law, the count tail dropped (anywhere).  Its first moment is at most
+      ``E[S] - sum_{k < size} x_k q_k`` with ``E[S] = E[N] E[X]`` (Wald's identity), ``E[X]``
+      at most the severity's certified mean bound: this is what keeps TVaR and stop-loss finite
+      on heavy tails.
+    """
+    e = severity.errors
+    h = severity.step
+    size = g.size
+    mean_n = float(counts.mean())
+    if e.l1 > 0:
+        delta = max(e.l1, 1e-8)
+        log1 = _log_pgf_above_one(law, e.l1)
+        l1_in = math.expm1(log1) if math.isfinite(log1) else math.inf
+        slope = (math.expm1(_log_pgf_above_one(law, 2 * delta))
+                 - math.expm1(_log_pgf_above_one(law, delta))) / delta * (1 + 1e-6)
+        point_in = e.point * max(slope, mean_n)
+    else:
+        l1_in = point_in = 0.0
+    l1 = min(r_l1 + l1_in, 2.0)
+    point = min(r_point + point_in, l1)
+    k0 = f.size - len(severity)
+    froms = [size]
+    if not untruncated(e):
+        froms.append(k0 + e.truncated_from)
+    if law.tail_mass > 0:
+        froms.append(0)
+    tf = int(min(froms))
+    # first moment of the truncated part: E[S] - (represented on-grid moment)
+    br = severity._br()
+    sev_mean_high = br.mean_range(severity._mean())[1]
+    if not math.isfinite(sev_mean_high):
+        moment = math.inf
+    else:
+        x = h * np.arange(size)
+        on_grid = float(np.dot(x, g))
+        j = np.arange(1, size)
+        err = h * float(np.sum(np.minimum(l1, (size - j) * point))) + (size + 2) * _U * on_grid
+        total = mean_n * sev_mean_high * (1 + 4 * _U)
+        if law.tail_mass > 0:
+            total += _count_tail_moment(counts, law) * sev_mean_high
+        moment = max(total - (on_grid - err), 1e-300)
+    return ErrorLedger(point, l1, 0.0, tf, moment)
+
+
+def _count_tail_moment(counts, law: CountsLaw) -> float:
+    """Bound of ``E[N 1{N beyond the summed support}]`` by Cauchy-Schwarz:
+    ``sqrt(E[N^2] P(N > top))`` (scipy's moments)."""
+    m, v = (float(t) for t in counts.stats(moments="mv"))
+    return math.sqrt(max(v + m * m, 0.0) * law.tail_mass)
 
 
 def _severity_vector(severity: Lattice) -> np.ndarray:
@@ -129,7 +205,7 @@ def _severity_vector(severity: Lattice) -> np.ndarray:
     return f
 
 
-def panjer_recursion(law: CountsLaw, f: np.ndarray, size: int) -> tuple[np.ndarray, float]:
+def panjer_recursion(law: CountsLaw, f: np.ndarray, size: int) -> tuple[np.ndarray, np.ndarray]:
     """Panjer's recursion on ``size`` points, scaled, with a running error bound.
 
     Implementation: values are stored reversed (``R[size-1-k] = g_k``) so that the ``m`` values
@@ -141,8 +217,8 @@ def panjer_recursion(law: CountsLaw, f: np.ndarray, size: int) -> tuple[np.ndarr
 
     Returns
     -------
-    (numpy.ndarray, float)
-        The pmf and its trust floor.
+    (numpy.ndarray, numpy.ndarray)
+        The pmf and the bound of each entry's absolute error.
     """
     a, b = law.ab
     u = accuracy.UNIT_ROUNDOFF
@@ -152,7 +228,7 @@ def panjer_recursion(law: CountsLaw, f: np.ndarray, size: int) -> tuple[np.ndarr
     gamma = (m_max + 3) * u / (1 - (m_max + 3) * u)
     log_scale = law.log_pgf_at(f0)
     if log_scale == -math.inf:
-        return np.zeros(size), 0.0
+        return np.zeros(size), np.zeros(size)
     fy = f[1 : m_max + 1]
     y = np.arange(1, m_max + 1, dtype=float)
     signed = np.vstack([a * c * fy, b * c * y * fy])
@@ -184,8 +260,7 @@ def panjer_recursion(law: CountsLaw, f: np.ndarray, size: int) -> tuple[np.ndarr
     g = _unscale(vals, log_scale)
     e = _unscale(errs, log_scale)
     final_rel = (abs(log_scale) + 2) * u  # exp of the accumulated log scale
-    floor = float(np.max(e)) + final_rel * float(np.max(np.abs(g)))
-    return np.maximum(g, 0.0), floor
+    return np.maximum(g, 0.0), e + final_rel * np.abs(g)
 
 
 def _unscale(v: np.ndarray, log_scale: float) -> np.ndarray:

@@ -19,10 +19,17 @@ All inputs must share one ``step`` and have origins that differ by whole steps.
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from .accuracy import UNIT_ROUNDOFF
 from .lattice import Lattice, same_step
+from .ledger import ErrorLedger, untruncated
+from .propagate import abs_moment, truncated_from
+
+WEIGHT_TOL = 1e-12
+"""Tolerance of ``sum(weights) == 1`` in :func:`mixture`."""
 
 
 def _check(delays, name: str) -> list[Lattice]:
@@ -55,21 +62,46 @@ def _grid(delays: list[Lattice]) -> tuple[float, float, list[int], int]:
     return h, base, offs, length
 
 
-def _on_grid(d: Lattice, off: int, length: int) -> tuple[np.ndarray, np.ndarray]:
-    """``F`` and ``S = P(X > x)`` of ``d`` at every common grid point (mass beyond the lattice
-    counted in ``S``; beyond the lattice ``S`` stays at ``truncated_mass``, an upper bound)."""
+def _represented(d: Lattice, off: int, length: int) -> tuple[np.ndarray, np.ndarray, float]:
+    """Represented cdf ``F^(k) = sum_{j <= k} p^_j`` and tail ``R - F^(k)`` (summed from the
+    right, no cancellation) of ``d`` on the common grid, and its mass ``R``."""
     pmf = np.zeros(length)
     pmf[off : off + len(d)] = d.pmf
     cdf = np.cumsum(pmf)
-    sf = np.cumsum(pmf[::-1])[::-1] - pmf + d.truncated_mass
-    return cdf, np.maximum(sf, 0.0)
+    tail = np.zeros(length)
+    tail[:-1] = np.cumsum(pmf[::-1])[::-1][1:]
+    return cdf, tail, float(cdf[-1])
 
 
-def _pmf_from(cdf: np.ndarray, sf: np.ndarray) -> np.ndarray:
-    """Point masses from ``F`` below the median and ``S`` above it (no cancellation in tails)."""
+def _pmf_from(cdf: np.ndarray, tail: np.ndarray) -> np.ndarray:
+    """Point masses from ``F`` below the median and from the tail above it (no cancellation in
+    either tail)."""
+    total = float(cdf[-1] + tail[-1]) if cdf.size else 0.0
     prev_cdf = np.concatenate(([0.0], cdf[:-1]))
-    prev_sf = np.concatenate(([1.0], sf[:-1]))
-    return np.where(prev_cdf >= 0.5, prev_sf - sf, cdf - prev_cdf)
+    prev_tail = np.concatenate(([total], tail[:-1]))
+    return np.maximum(np.where(prev_cdf >= 0.5 * total, prev_tail - tail, cdf - prev_cdf), 0.0)
+
+
+def _rounding(cdf: np.ndarray, tail: np.ndarray, terms: int) -> tuple[float, float]:
+    """``(point, l1)`` rounding of a pmf formed as differences of ``cdf`` / ``tail`` values each
+    computed to relative error ``rel = (terms + 8) u``: each point errs by at most ``rel`` times
+    the two values it is the difference of.  (``terms`` counts the roundings of the sums,
+    products, ``log1p`` and ``expm1`` behind one value; libm's ``log1p``/``expm1`` are taken to
+    err by at most one ulp: an assumption, not a proof.)"""
+    rel = (terms + 8) * UNIT_ROUNDOFF
+    v = np.minimum(cdf, tail)
+    pair = v + np.concatenate(([0.0], v[:-1]))
+    return 2 * rel * float(np.max(pair, initial=0.0)) + 2 * rel, \
+        2 * rel * float(np.sum(pair)) + 2 * rel
+
+
+def _telescoped_l1(l1s: list[float]) -> float:
+    """``sum_i l1_i prod_{j != i} (1 + l1_j)``: L1 change of a product measure (telescoping)."""
+    total = 0.0
+    grow = math.prod(1 + v for v in l1s)
+    for v in l1s:
+        total += v * grow / (1 + v)
+    return total
 
 
 def series(*delays: Lattice) -> Lattice:
@@ -84,62 +116,112 @@ def series(*delays: Lattice) -> Lattice:
     return out
 
 
-def _extreme(ds: list[Lattice], offs: list[int], length: int, limit: int,
-             wait_for_all: bool) -> tuple[np.ndarray, np.ndarray]:
-    """CDF and survival function of the maximum (``wait_for_all``) or minimum of independent
-    lattices on the common grid, to ``limit`` points.
-
-    Maximum: ``F = prod F_i`` and ``S = 1 - prod (1 - S_i)``; minimum: ``S = prod S_i`` and
-    ``F = 1 - prod (1 - F_i)``.  The complemented product is ``-expm1(sum log1p(-x_i))`` so small
-    tail probabilities keep their digits.
-    """
-    product = np.ones(limit)
-    log_rest = np.zeros(limit)
-    for o, d in zip(offs, ds, strict=True):
-        c, s = _on_grid(d, o, length)
-        direct, other = (c, s) if wait_for_all else (s, c)
-        product *= direct[:limit]
-        with np.errstate(divide="ignore"):
-            log_rest += np.log1p(-np.minimum(other[:limit], 1.0))
-    complement = -np.expm1(log_rest)
-    return (product, complement) if wait_for_all else (complement, product)
-
-
-def _extreme_lattice(ds: list[Lattice], cdf: np.ndarray, sf: np.ndarray, h: float,
-                     base: float) -> Lattice:
-    """The Lattice of a max or min, with a trust floor from the inputs' and the rounding."""
-    floor = sum(d.trust_floor * len(d) for d in ds) + 4 * len(ds) * UNIT_ROUNDOFF
-    return Lattice(np.clip(_pmf_from(cdf, sf), 0.0, 1.0), h, base, trust_floor=floor)
-
-
 def all_of(*delays: Lattice) -> Lattice:
     """Delay of a join that waits for all branches: ``max(D_1, ..., D_k)``, ``F = prod F_i``.
 
-    Assumes the branches independent.  ``S = 1 - prod (1 - S_i)`` is evaluated as
-    ``-expm1(sum log1p(-S_i))`` so upper-tail probabilities keep their digits.  The grid stops at
-    the first point where a truncated input's law is unknown.
+    Assumes the branches independent.  The represented part is the law of the maximum of the
+    inputs' computed pmfs: ``F = prod F^_i`` below the median, its tail
+    ``R (1 - prod(1 - T^_i / R_i))`` (as ``-expm1(sum log1p(-T^_i / R_i))``, so upper-tail
+    probabilities keep their digits) above it.
+
+    Error ledger (:mod:`polyconv.dist.ledger`): the law of a maximum is the push-forward of the
+    product measure, so ``l1 <= sum_i l1_i prod_{j != i} (1 + l1_j)`` plus rounding; truncated
+    mass of any input lies at or above its own ``truncated_from`` (a maximum is at least each
+    branch), with first moment at most ``sum_i M_i + sum_i T_i sum_{j != i} E|D_j|``
+    (``|max| <= sum |D_j|``).
     """
     ds = _check(delays, "all_of")
     h, base, offs, length = _grid(ds)
-    limit = length
+    log_rest = np.zeros(length)
+    product = np.ones(length)
+    mass = 1.0
     for o, d in zip(offs, ds, strict=True):
-        if d.truncated_mass > 0:
-            limit = min(limit, o + len(d))
-    cdf, sf = _extreme(ds, offs, length, limit, wait_for_all=True)
-    return _extreme_lattice(ds, cdf, sf, h, base)
+        c, tail, r = _represented(d, o, length)
+        mass *= r
+        if r == 0:
+            product[:] = 0.0
+            continue
+        product *= c
+        with np.errstate(divide="ignore"):
+            log_rest += np.log1p(-np.minimum(tail / r, 1.0))
+    tail_max = mass * -np.expm1(log_rest)
+    pmf = _pmf_from(product, tail_max)
+    r_point, r_l1 = _rounding(product, tail_max, 4 * len(ds) + max(len(d) for d in ds))
+    l1 = _telescoped_l1([d.errors.l1 for d in ds])
+    ledger = ErrorLedger(min(l1 + r_point, 2.0), l1 + r_l1, 0.0,
+                         truncated_from([(d.errors, o) for d, o in zip(ds, offs, strict=True)],
+                                        length), _max_moment(ds))
+    return Lattice._make(pmf, h, base, ledger)
+
+
+def _max_moment(ds: list[Lattice]) -> float:
+    if all(untruncated(d.errors) for d in ds):
+        return 0.0
+    abs_means = [abs_moment(d.pmf, d.step, d.origin, d.errors) + d.errors.truncated_moment
+                 for d in ds]
+    total = 0.0
+    whole = sum(abs_means)
+    for d, a in zip(ds, abs_means, strict=True):
+        e = d.errors
+        if untruncated(e):
+            continue
+        t_high = min(1.0, e.truncated + e.l1)
+        total += e.truncated_moment + (t_high * (whole - a) if whole - a > 0 else 0.0)
+    return total
 
 
 def first_of(*delays: Lattice) -> Lattice:
     """Delay of a race or hedged request: ``min(D_1, ..., D_k)``, ``1 - F = prod (1 - F_i)``.
 
     Assumes the competitors independent (hedged requests to one overloaded service are not).
-    The grid stops at the first input's last point (beyond it that input's law is unknown).
+    The grid stops at the first point where some input's law is not known: its last point, or
+    the lowest point at which its truncated mass may lie.  Below that, each input's survival
+    function is known (truncated mass lies above), so ``S = prod S_i`` there.
+
+    Error ledger: ``S_i(k)`` errs by at most the cumulative error of the points up to ``k``
+    (the truncated total is ``1 - sum`` of the represented part), and the law restricted to the
+    grid is a push-forward of the product of the inputs' laws coarsened above the grid:
+    ``l1 <= sum_i 2 l1_i prod_{j != i} (1 + 2 l1_j)`` plus rounding.  The mass at or above the
+    grid's end is truncated, with first moment at most ``min_j E[D_j 1{D_j >= end}]``
+    (``min <= D_j``; non-negative delays).
     """
     ds = _check(delays, "first_of")
     h, base, offs, length = _grid(ds)
     limit = min(o + len(d) for o, d in zip(offs, ds, strict=True))
-    cdf, sf = _extreme(ds, offs, length, limit, wait_for_all=False)
-    return _extreme_lattice(ds, cdf, sf, h, base)
+    for o, d in zip(offs, ds, strict=True):
+        if not untruncated(d.errors):
+            limit = min(limit, o + d.errors.truncated_from)
+    limit = max(limit, 1)
+    product = np.ones(limit)
+    log_rest = np.zeros(limit)
+    for o, d in zip(offs, ds, strict=True):
+        c, tail, r = _represented(d, o, length)
+        s = np.minimum(tail[:limit] + (1.0 - r), 1.0)  # survival incl. mass above the lattice
+        product *= s
+        with np.errstate(divide="ignore"):
+            log_rest += np.log1p(-np.minimum(c[:limit], 1.0))
+    cdf_min = -np.expm1(log_rest)
+    pmf = _pmf_from(cdf_min, product)
+    r_point, r_l1 = _rounding(cdf_min, product, 4 * len(ds) + max(len(d) for d in ds))
+    l1 = _telescoped_l1([2 * d.errors.l1 for d in ds])
+    moment = _min_moment(ds, offs, limit, h, base)
+    ledger = ErrorLedger(min(l1 + r_point, 2.0), l1 + r_l1, 0.0, limit, moment)
+    return Lattice._make(pmf, h, base, ledger)
+
+
+def _min_moment(ds: list[Lattice], offs: list[int], limit: int, h: float, base: float) -> float:
+    if base + h * limit < 0:
+        return math.inf
+    best = math.inf
+    for o, d in zip(offs, ds, strict=True):
+        e = d.errors
+        start = max(limit - o, 0)
+        x = d.values
+        part = float(np.dot(d.pmf[start:], x[start:])) if start < len(d) else 0.0
+        bound = part * (1 + (len(d) + 2) * UNIT_ROUNDOFF) + e.l1 * float(np.max(np.abs(x))) \
+            + e.truncated_moment
+        best = min(best, bound)
+    return max(best, 1e-300)
 
 
 def mixture(weights, delays) -> Lattice:
@@ -148,24 +230,35 @@ def mixture(weights, delays) -> Lattice:
     Parameters
     ----------
     weights : sequence of float
-        Non-negative, summing to 1 (within ``1e-12``); not renormalised.
+        Non-negative, summing to 1 (within ``WEIGHT_TOL``); not renormalised (the excess, if
+        any, is counted in the L1 error bound).
     delays : sequence of Lattice
         One per weight, same step, origins whole steps apart.
 
-    Assumes the choice of path independent of the path delays.
+    Assumes the choice of path independent of the path delays.  Error ledger: the weighted sums
+    of the inputs' bounds, plus the rounding of a ``k``-term sum (``(k + 1) u`` relative).
     """
     ds = _check(tuple(delays), "mixture")
     try:
         w = np.asarray(weights, dtype=float)
-    except (TypeError, ValueError):
+    except (TypeError, ValueError, OverflowError):
         raise TypeError("weights must be a sequence of real numbers") from None
     if w.ndim != 1 or w.size != len(ds):
         raise ValueError(f"weights must have one entry per delay ({len(ds)}); got shape {w.shape}")
-    if not np.all(np.isfinite(w)) or np.any(w < 0) or abs(float(w.sum()) - 1) > 1e-12:
-        raise ValueError(f"weights must be non-negative and sum to 1; got {weights!r}")
+    if not np.all(np.isfinite(w)) or np.any(w < 0) or \
+            abs(math.fsum(w.tolist()) - 1) > WEIGHT_TOL:
+        raise ValueError(f"weights must be non-negative and sum to 1 (within {WEIGHT_TOL:g}); "
+                         f"got {weights!r}")
     h, base, offs, length = _grid(ds)
     pmf = np.zeros(length)
     for wi, o, d in zip(w, offs, ds, strict=True):
         pmf[o : o + len(d)] += wi * np.asarray(d.pmf)
-    floor = float(sum(wi * d.trust_floor for wi, d in zip(w, ds, strict=True))) + 4 * UNIT_ROUNDOFF
-    return Lattice(np.minimum(pmf, 1.0), h, base, trust_floor=floor)
+    rel = (len(ds) + 1) * UNIT_ROUNDOFF
+    point = float(sum(wi * d.errors.point for wi, d in zip(w, ds, strict=True)))
+    l1 = float(sum(wi * d.errors.l1 for wi, d in zip(w, ds, strict=True)))
+    moment = float(sum(0.0 if untruncated(d.errors) else wi * d.errors.truncated_moment
+                       for wi, d in zip(w, ds, strict=True)))
+    tf = truncated_from([(d.errors, o) for d, o in zip(ds, offs, strict=True)], length)
+    ledger = ErrorLedger(point + rel * float(np.max(pmf)), l1 + rel * float(np.sum(pmf)), 0.0,
+                         tf, moment)
+    return Lattice._make(pmf, h, base, ledger)

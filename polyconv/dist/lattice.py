@@ -5,9 +5,11 @@ and is understood to lie *above* the lattice (as compounding and discretisation 
 never renormalised away (DESIGN.md section 6: renormalising moved heavy-tail probabilities by 1-2%
 in a test case).
 
-Every Lattice carries ``trust_floor``, an absolute bound on the error of each of its probabilities
-from how it was computed (see :mod:`polyconv.dist.accuracy`).  Probabilities, quantiles and tail
-measures that rest on probabilities below it warn (:class:`AccuracyWarning`) or return ``nan``.
+Every Lattice carries an :class:`~polyconv.dist.ledger.ErrorLedger` (:attr:`Lattice.errors`):
+per-point and L1 bounds of the computed error, the truncated mass, where it may lie and a bound of
+its first moment.  Every query has its own certified range from it (:meth:`Lattice.bounded`,
+:meth:`Lattice.quantile_bracket`); plain queries return the lattice's own answer and warn
+(:class:`AccuracyWarning`, :class:`TruncationWarning`) when that range is too wide.
 
 Caution: a model output, not advice; see the package docstring of :mod:`polyconv.dist`.
 """
@@ -20,22 +22,21 @@ import warnings
 
 import numpy as np
 
-from ..api import convolve, plan
-from . import accuracy, risk
+from . import accuracy, propagate, risk
 from .errors import AccuracyWarning, TruncationWarning
-from .transform import power_law, transform_compound
+from .ledger import Bounded, ErrorLedger, validate
 
-STEP_RTOL = 1e-9
+STEP_RTOL = propagate.STEP_RTOL
 """Relative tolerance within which two lattice steps count as equal."""
 
+MASS_TOL = 1e-9
+"""A pmf may sum above 1 by at most ``min(l1, MASS_TOL)`` plus summation rounding."""
 
-def _real(value, name: str) -> float:
-    if isinstance(value, bool) or not isinstance(value, numbers.Real):
-        raise TypeError(f"{name} must be a real number; got {type(value).__name__} {value!r}")
-    out = float(value)
-    if not math.isfinite(out):
-        raise ValueError(f"{name} must be finite; got {value!r}")
-    return out
+MEASURES = ("cdf", "sf", "quantile", "var", "tvar", "stop_loss", "mean", "std")
+"""Measures :meth:`Lattice.bounded` answers."""
+
+
+_real = risk.real_value
 
 
 class Lattice:
@@ -46,20 +47,25 @@ class Lattice:
     pmf : array_like
         Non-negative probabilities of the points, 1-D, summing to at most 1.  Negative entries
         no larger in size than the float-noise tolerance (``trust_floor`` plus a few units of
-        roundoff times ``max(pmf)``) are set to zero and the floor raised to cover them; larger
-        negative entries, non-finite entries or a total above ``1 + tolerance`` raise
+        roundoff times ``max(pmf)``) are set to zero and the error bound raised to cover them;
+        larger negative entries, non-finite entries or a total above ``1 + tolerance`` raise
         ValueError.  A total below 1 is kept: the rest is :attr:`truncated_mass`.
     step : float
         Lattice spacing ``h > 0``.
     origin : float
         Value of the first point.
     trust_floor : float, optional
-        Absolute error bound of each probability, if the pmf was computed (default 0: exact).
+        Absolute error bound of each probability, if the pmf was computed (default 0: exact);
+        at most 1.  Shorthand for ``errors`` with ``point = trust_floor`` and
+        ``l1 = len(pmf) * trust_floor``.
+    errors : ErrorLedger, optional
+        The full ledger (constructors that know more, e.g. a law's truncated moment).  Its
+        ``truncated`` should be ``1 - sum(pmf)`` (known up to ``l1``).
 
     Notes
     -----
-    Truncated mass is assumed to lie above the lattice.  After a sum (``+``, :meth:`nfold`,
-    compounding) it may partly lie among the upper points instead; the floor then includes it.
+    Without ``errors`` the truncated mass is assumed to lie above the lattice with an unknown
+    first moment (so tail measures that depend on it are refused).
 
     ``X + Y`` for two Lattices is the distribution of the sum of *independent* variables (the
     convolution of the pmfs); both must have the same ``step``.  ``X + c`` shifts by a number.
@@ -72,12 +78,13 @@ class Lattice:
     7.0
     """
 
-    __slots__ = ("_pmf", "_step", "_origin", "_floor", "_truncated", "_cache")
+    __slots__ = ("_pmf", "_step", "_origin", "_ledger", "_cache")
 
-    def __init__(self, pmf, step: float = 1.0, origin: float = 0.0, *, trust_floor: float = 0.0):
+    def __init__(self, pmf, step: float = 1.0, origin: float = 0.0, *, trust_floor: float = 0.0,
+                 errors: ErrorLedger | None = None):
         try:
             arr = np.array(pmf, dtype=float, copy=True)
-        except (TypeError, ValueError):
+        except (TypeError, ValueError, OverflowError):
             raise TypeError(f"pmf must be an array of real numbers; got {type(pmf).__name__}"
                             ) from None
         if np.iscomplexobj(np.asarray(pmf)):
@@ -90,35 +97,74 @@ class Lattice:
         if step <= 0:
             raise ValueError(f"step must be positive; got {step!r}")
         origin = _real(origin, "origin")
-        floor = float(trust_floor)
-        if not floor >= 0:
-            raise ValueError(f"trust_floor must be >= 0; got {trust_floor!r}")
+        n = arr.size
+        if errors is not None:
+            ledger = validate(errors, n)
+        else:
+            floor = _real(trust_floor, "trust_floor")
+            if not 0 <= floor <= 1:
+                raise ValueError(f"trust_floor must lie in [0, 1]; got {trust_floor!r}")
+            ledger = ErrorLedger(floor, min(n * floor, 2.0), 0.0, n, 0.0)
         u = accuracy.UNIT_ROUNDOFF
-        noise = floor + 4 * u * float(np.max(np.abs(arr)))
+        noise = ledger.point + 4 * u * float(np.max(np.abs(arr)))
         low = float(np.min(arr))
         if low < -noise:
             k = int(np.argmin(arr))
             raise ValueError(f"pmf must be non-negative; pmf[{k}] = {low!r} is below the "
                              f"float-noise tolerance {noise:.3g}")
         if low < 0:
-            floor = max(floor, -low)
+            bump = -low
+            ledger = ledger._replace(point=max(ledger.point, bump),
+                                     l1=ledger.l1 + float(-np.sum(arr[arr < 0])))
             np.maximum(arr, 0.0, out=arr)
         total = float(np.sum(arr))
-        mass_tol = arr.size * (floor + 2 * u) + 4 * u
+        mass_tol = min(ledger.l1, MASS_TOL) + (n + 4) * u
         if total > 1 + mass_tol:
             raise ValueError(f"pmf sums to {total!r} > 1 (tolerance {mass_tol:.3g}); "
                              "probabilities are not renormalised")
+        missing = _missing(total, n)
+        if errors is None and missing > 0:
+            ledger = ledger._replace(truncated=missing, truncated_moment=math.inf)
+        elif errors is None or ledger.truncated == 0:
+            ledger = ledger._replace(truncated=missing)
         arr.flags.writeable = False
+        self._init(arr, step, origin, ledger)
+
+    def _init(self, arr, step, origin, ledger) -> None:
         object.__setattr__(self, "_pmf", arr)
         object.__setattr__(self, "_step", step)
         object.__setattr__(self, "_origin", origin)
-        object.__setattr__(self, "_floor", floor)
-        missing = 1.0 - total
-        # within the rounding of a pairwise sum the missing mass is noise, not truncation
-        if missing <= (math.log2(arr.size) + 4) * u:
-            missing = 0.0
-        object.__setattr__(self, "_truncated", missing)
+        object.__setattr__(self, "_ledger", ledger)
         object.__setattr__(self, "_cache", {})
+
+    @classmethod
+    def _make(cls, pmf: np.ndarray, step: float, origin: float, ledger: ErrorLedger) -> Lattice:
+        """Internal constructor for computed results: ``pmf`` already non-negative and finite;
+        ``truncated`` is set to ``1 - sum(pmf)`` (clipped at 0, the excess is in ``l1``)."""
+        arr = np.clip(np.asarray(pmf, dtype=float), 0.0, 1.0)
+        arr.flags.writeable = False
+        total = float(np.sum(arr))
+        excess = max(total - 1.0, 0.0)
+        n = arr.size
+        ledger = ErrorLedger(min(float(ledger.point), 1.0), min(float(ledger.l1) + excess, 2.0),
+                             _missing(total, n), int(min(max(ledger.truncated_from, 0), n)),
+                             float(ledger.truncated_moment))
+        if ledger.truncated == 0 and ledger.truncated_moment == math.inf and ledger.l1 == 0:
+            ledger = ledger._replace(truncated_moment=0.0)
+        out = cls.__new__(cls)
+        out._init(arr, float(step), float(origin), ledger)
+        return out
+
+    @classmethod
+    def from_law(cls, law, *, step, size=None, rule="nearest") -> Lattice:
+        """Discretise a continuous or discrete scipy.stats law onto a lattice of ``step``.
+
+        rule: ``"nearest"``, ``"down"`` (stochastic lower bound), ``"up"`` (upper bound) or
+        ``"moments"`` (local moment matching).  Implemented in :mod:`polyconv.dist.from_law`.
+        """
+        # --- from_law hook (branch `grids` owns the implementation; keep this one delegation)
+        from .from_law import lattice_from_law
+        return lattice_from_law(law, step=step, size=size, rule=rule)
 
     def __setattr__(self, name, value):
         raise AttributeError("Lattice is immutable")
@@ -145,37 +191,46 @@ class Lattice:
         return self._origin + self._step * np.arange(self._pmf.size)
 
     @property
+    def errors(self) -> ErrorLedger:
+        """The error ledger: computed-error bounds, truncated mass, its location and moment."""
+        return self._ledger
+
+    @property
     def trust_floor(self) -> float:
-        """Absolute error bound of each probability from how it was computed (0 if exact)."""
-        return self._floor
+        """Bound on the error of each probability (``errors.point``), kept for compatibility."""
+        return self._ledger.point
 
     @property
     def truncated_mass(self) -> float:
         """``1 - sum(pmf)``: probability beyond the lattice (not renormalised away)."""
-        return self._truncated
+        return self._ledger.truncated
 
     def __len__(self) -> int:
         return self._pmf.size
 
     def __repr__(self) -> str:
+        e = self._ledger
         return (f"Lattice(n={self._pmf.size}, step={self._step!r}, origin={self._origin!r}, "
-                f"truncated_mass={self._truncated:.3g}, trust_floor={self._floor:.3g})")
+                f"truncated_mass={e.truncated:.3g}, point_error={e.point:.3g}, "
+                f"l1_error={e.l1:.3g})")
 
     # -- cached sums ------------------------------------------------------------------------
-    def _cum(self) -> np.ndarray:
-        if "cum" not in self._cache:
-            self._cache["cum"] = np.cumsum(self._pmf)
-        return self._cache["cum"]
-
-    def _tails(self):
-        if "tails" not in self._cache:
-            self._cache["tails"] = risk.tail_sums(self._pmf)
-        return self._cache["tails"]
+    def _br(self) -> risk.Bracketer:
+        if "br" not in self._cache:
+            self._cache["br"] = risk.Bracketer(self._pmf, self._step, self._origin,
+                                               self._ledger)
+        return self._cache["br"]
 
     def _warn_truncated(self, what: str, relative_to: float = 1.0) -> None:
-        if self._truncated > risk.TRUNCATION_LEVEL * max(relative_to, 0.0):
+        t = self._ledger.truncated
+        if t > risk.TRUNCATION_LEVEL * max(relative_to, 0.0):
             warnings.warn(f"{what} counts only the lattice: truncated_mass "
-                          f"{self._truncated:.3g} lies beyond it", TruncationWarning, stacklevel=3)
+                          f"{t:.3g} lies beyond it", TruncationWarning, stacklevel=3)
+
+    def _abs_moment(self) -> float:
+        """Upper bound of ``sum |x_k| q_k`` (the represented part's absolute first moment)."""
+        x = np.abs(self.values)
+        return float(np.dot(self._pmf, x)) + self._ledger.l1 * float(np.max(x)) + 1e-300
 
     # -- moments ----------------------------------------------------------------------------
     def moment(self, k: int) -> float:
@@ -189,16 +244,17 @@ class Lattice:
         self._warn_truncated(f"moment({k})")
         return float(np.dot(self._pmf, self.values ** int(k)))
 
-    def mean(self) -> float:
-        """``E[X] = origin * mass + step * sum k p_k`` over the lattice."""
-        self._warn_truncated("mean()")
+    def _mean(self) -> float:
         mass = float(np.sum(self._pmf))
         k = np.arange(self._pmf.size)
         return self._origin * mass + self._step * float(np.dot(self._pmf, k))
 
-    def variance(self) -> float:
-        """``sum p_k (x_k - mean)^2`` over the lattice (the variance when nothing is truncated)."""
-        self._warn_truncated("variance()")
+    def mean(self) -> float:
+        """``E[X] = origin * mass + step * sum k p_k`` over the lattice."""
+        self._warn_truncated("mean()")
+        return self._mean()
+
+    def _variance(self) -> float:
         mass = float(np.sum(self._pmf))
         if mass == 0:
             return 0.0
@@ -206,58 +262,129 @@ class Lattice:
         mk = float(np.dot(self._pmf, k)) / mass
         return self._step ** 2 * float(np.dot(self._pmf, (k - mk) ** 2))
 
+    def variance(self) -> float:
+        """``sum p_k (x_k - mean)^2`` over the lattice (the variance when nothing is truncated)."""
+        self._warn_truncated("variance()")
+        return self._variance()
+
     def std(self) -> float:
         """Square root of :meth:`variance`."""
         return math.sqrt(self.variance())
 
     # -- probabilities ----------------------------------------------------------------------
-    def cdf(self, x):
-        """``P(X <= x)`` (right-continuous; ``x`` within ``1e-9`` steps of a point counts as it).
-
-        Warns (:class:`AccuracyWarning`) where the value is not above its error bound.
-        """
+    def _index(self, x) -> tuple[np.ndarray, np.ndarray]:
         xs = np.asarray(x, dtype=float)
+        return xs, risk.lattice_index(xs, self._origin, self._step, self._pmf.size)
+
+    def _beyond(self, xs: np.ndarray, k: np.ndarray) -> np.ndarray:
+        """Finite points past the last lattice point where truncated mass may lie."""
+        return np.isfinite(xs) & (k >= self._pmf.size) & (self._ledger.truncated > 0)
+
+    def cdf(self, x):
+        """``P(X <= x)``, the lattice's own (cumulative sum of the pmf; right-continuous, ``x``
+        within ``1e-9`` steps of a point counts as it).
+
+        ``cdf(-inf) = 0``, ``cdf(inf) = 1``, ``cdf(nan) = nan``.  Past the last point, where
+        truncated mass may lie, the lattice cannot answer: ``nan`` with a
+        :class:`TruncationWarning` stating the certified range.  Warns
+        (:class:`AccuracyWarning`) where the certified range is wider than the value.
+        """
+        xs, k = self._index(x)
+        br = self._br()
         n = self._pmf.size
-        k = risk.lattice_index(xs, self._origin, self._step)
-        cum = self._cum()
-        kk = np.clip(k, 0, n - 1)
-        out = np.where(k < 0, 0.0, cum[kk])
-        self._flag(out, risk.cumulative_error(kk, n, self._floor), (k >= 0), "cdf")
+        out = np.where(k < 0, 0.0, br.cum[np.clip(k, 0, n - 1)])
+        low, high = br.cdf_range(k)
+        self._flag(xs, k, out, low, high, "cdf")
+        out = np.where(np.isposinf(xs), 1.0, out)
+        out = np.where(np.isnan(xs) | self._beyond(xs, k), np.nan, out)
         return float(out) if out.ndim == 0 else out
 
     def sf(self, x):
         """``P(X > x)``, truncated mass included, summed from the right (no cancellation).
 
-        Use it for deadline-miss or exceedance probabilities.  Warns (:class:`AccuracyWarning`)
-        where the value is not above its error bound.
+        Use it for deadline-miss or exceedance probabilities.  ``sf(inf) = 0``,
+        ``sf(-inf) = 1``, ``sf(nan) = nan``.  Past the last point, where truncated mass may lie,
+        ``nan`` with a :class:`TruncationWarning` stating the certified range (never the
+        truncated mass as if it were data).  Warns (:class:`AccuracyWarning`) where the
+        certified range is wider than the value.
         """
-        xs = np.asarray(x, dtype=float)
+        xs, k = self._index(x)
+        br = self._br()
         n = self._pmf.size
-        k = risk.lattice_index(xs, self._origin, self._step)
-        s, _ = self._tails()
-        m = np.clip(k + 1, 0, n)
-        out = s[m] + self._truncated
-        self._flag(out, risk.cumulative_error(np.minimum(m, n - 1), n, self._floor), (m < n),
-                   "sf")
+        out = br.s[np.clip(k + 1, 0, n)] + self._ledger.truncated
+        out = np.where(k < 0, 1.0, np.minimum(out, 1.0))
+        low, high = br.sf_range(k)
+        self._flag(xs, k, out, low, high, "sf")
+        out = np.where(np.isposinf(xs), 0.0, out)
+        out = np.where(np.isnan(xs) | self._beyond(xs, k), np.nan, out)
         return float(out) if out.ndim == 0 else out
 
-    def _flag(self, values, err, active, name) -> None:
-        if self._floor > 0 and np.any(active & (values <= err) & (values > 0)):
-            warnings.warn(f"{name} value below its error bound from the trust floor "
-                          f"({self._floor:.3g} per probability): numerically meaningless",
-                          AccuracyWarning, stacklevel=3)
+    def _flag(self, xs, k, values, low, high, name) -> None:
+        beyond = self._beyond(xs, k)
+        if np.any(beyond):
+            i = np.flatnonzero(beyond)[0]
+            warnings.warn(f"{name} at {xs.flat[i]!r} is past the last lattice point "
+                          f"{self.values[-1]!r}, where truncated mass may lie: the exact value "
+                          f"is only known to lie in [{low.flat[i]:.3g}, {high.flat[i]:.3g}]; "
+                          "returning nan (extend the grid)", TruncationWarning, stacklevel=3)
+        width = high - low
+        bad = (~beyond) & np.isfinite(xs) & (values > 0) & \
+            (width > risk.PROBABILITY_RTOL * values)
+        if np.any(bad):
+            i = np.flatnonzero(bad)[0]
+            warnings.warn(f"{name} value {values.flat[i]:.3g} is not above its certified error "
+                          f"range [{low.flat[i]:.3g}, {high.flat[i]:.3g}]: numerically "
+                          "meaningless", AccuracyWarning, stacklevel=3)
 
     # -- risk measures ----------------------------------------------------------------------
     def quantile(self, p):
-        """Lower quantile ``min{x on the lattice : F(x) >= p}``, ``0 < p <= 1``.
+        """Lower quantile ``min{x on the lattice : cdf(x) >= p}``, ``0 < p <= 1``.
 
-        ``nan`` with :class:`AccuracyWarning` when ``min(p, 1 - p)`` is within the error of the
-        cumulative probabilities; ``nan`` with :class:`TruncationWarning` when the quantile lies
-        beyond the lattice.  Percentiles of sums do not add.
+        The lattice's own quantile (``cdf`` is :meth:`cdf`), so ``cdf(quantile(p)) >= p``
+        always.  ``nan`` with :class:`TruncationWarning` when the level exceeds the mass on the
+        lattice; an :class:`AccuracyWarning` when the certified bracket
+        (:meth:`quantile_bracket`) is wider than one step.  Percentiles of sums do not add.
         """
-        out = risk.quantile(self._pmf, self._step, self._origin, self._floor, self._truncated,
-                            self._cum(), p)
+        arr = risk.check_level(p, allow_one=True)
+        br = self._br()
+        n = self._pmf.size
+        k = br.own_quantile_index(arr)
+        beyond = k >= n
+        if np.any(beyond):
+            warnings.warn(f"quantile beyond the lattice: level exceeds the retained mass "
+                          f"{br.mass:.17g} (truncated_mass {self.truncated_mass:.3g}); "
+                          "returning nan", TruncationWarning, stacklevel=2)
+        lo, hi = br.quantile_range(arr)
+        wide = (~beyond) & ((hi - lo > 1) | (hi >= n))
+        if np.any(wide):
+            span = "beyond the grid" if np.any(wide & (hi >= n)) else \
+                f"{int(np.max(np.where(wide, hi - lo, 0)))} steps"
+            warnings.warn("quantile: the exact computation's quantile is only known to within "
+                          f"{span} (bracket wider than one step; see quantile_bracket)",
+                          AccuracyWarning, stacklevel=2)
+        out = np.where(beyond, np.nan, self._origin + self._step * k.astype(float))
         return float(out) if out.ndim == 0 else out
+
+    def quantile_bracket(self, p, *, tol: float | None = None) -> tuple[float, float]:
+        """Certified ``(low, high)`` containing the exact computation's quantile at level ``p``.
+
+        From the cdf bounds of the error ledger (:mod:`polyconv.dist.risk`).  ``high = inf``
+        when the quantile may lie beyond the grid.  Warns (:class:`AccuracyWarning`) only when
+        ``high - low > tol`` (default: one step).
+        """
+        arr = risk.check_level(p, allow_one=True)
+        if arr.ndim != 0:
+            raise TypeError(f"p must be a scalar level for quantile_bracket; got {p!r}")
+        tol = self._step if tol is None else _real(tol, "tol")
+        lo, hi = self._br().quantile_range(arr)
+        n = self._pmf.size
+        low = self._origin + self._step * float(lo) if lo < n else \
+            self._origin + self._step * n
+        high = math.inf if hi >= n else self._origin + self._step * float(hi)
+        if high - low > tol * (1 + 1e-9):
+            warnings.warn(f"quantile bracket [{low!r}, {high!r}] at p={float(arr)!r} is wider "
+                          f"than tol {tol!r}", AccuracyWarning, stacklevel=2)
+        return low, high
 
     def value_at_risk(self, p):
         """``VaR_p = min{x : F(x) >= p}``, ``0 < p < 1`` (see :meth:`quantile`).
@@ -272,27 +399,170 @@ class Lattice:
         """``TVaR_p = VaR_p + E[(X - VaR_p)+] / (1 - p)`` (Acerbi & Tasche 2002), ``0 < p < 1``.
 
         The expected shortfall at level ``p``, correct for discrete distributions (atoms at
-        ``VaR_p`` included).  ``nan`` with a warning when it rests on noise or on mass beyond the
-        lattice.  Model output, not advice (see :mod:`polyconv.dist`).
+        ``VaR_p`` included), from the lattice's own VaR and pmf.  ``nan`` with a warning when
+        its certified range is wider than ``DEFAULT_RTOL * max(|TVaR|, step)``
+        (:data:`polyconv.dist.risk.DEFAULT_RTOL`; see :meth:`bounded`).  Model output, not
+        advice (see :mod:`polyconv.dist`).
         """
         arr = risk.check_level(p)
-        var = np.asarray(self.quantile(arr), dtype=float)
-        out = np.full(var.shape, np.nan)
-        ok = np.isfinite(var)
-        if np.any(ok):
-            sl = risk.stop_loss(self._pmf, self._step, self._origin, self._floor,
-                                self._truncated, self._tails(), var[ok])
-            out[ok] = var[ok] + sl / (1 - arr[ok] if arr.ndim else 1 - arr)
+        flat = [self._bounded_tvar(float(q), None, 3).value for q in arr.ravel()]
+        out = np.array(flat).reshape(arr.shape)
         return float(out) if out.ndim == 0 else out
 
     def stop_loss(self, d):
         """Stop-loss premium ``E[(X - d)+]``: exact over the lattice, linear between points.
 
-        Model output, not advice (see :mod:`polyconv.dist`).
+        ``stop_loss(inf) = 0``; ``-inf`` gives ``inf``; ``nan`` gives ``nan``.  ``nan`` with a
+        warning when the certified range is wider than ``DEFAULT_RTOL * max(value, step)``
+        (e.g. truncated mass of unknown first moment beyond the grid).  Model output, not
+        advice (see :mod:`polyconv.dist`).
         """
-        out = risk.stop_loss(self._pmf, self._step, self._origin, self._floor, self._truncated,
-                             self._tails(), d)
+        ds = np.asarray(d, dtype=float)
+        flat = [self._bounded_stop_loss(float(v), None, 3).value for v in ds.ravel()]
+        out = np.array(flat).reshape(ds.shape)
         return float(out) if out.ndim == 0 else out
+
+    # -- answers with their bounds ---------------------------------------------------------
+    def bounded(self, measure: str, arg: float | None = None, *, rtol: float | None = None
+                ) -> Bounded:
+        """One answer with its certified range: ``Bounded(value, low, high, refused, reason)``.
+
+        Parameters
+        ----------
+        measure : {"cdf", "sf", "quantile", "var", "tvar", "stop_loss", "mean", "std"}
+            What to answer; ``arg`` is the point (cdf, sf), the level (quantile, var, tvar) or
+            the retention (stop_loss); none for mean and std.
+        rtol : float, optional
+            Refusal tolerance: the answer is refused (``value = nan``, ``refused = True``, a
+            warning) when ``high - low > rtol * max(|value|, step)``.  Defaults:
+            :data:`polyconv.dist.risk.DEFAULT_RTOL` (1e-3) for tvar, stop_loss, mean and std;
+            for cdf and sf the range may not exceed the value itself (``rtol = 1``, scale the
+            value, not the step); quantile/var are never refused on the grid (the lattice's own
+            quantile is never below the exact one's bracket low end) and warn when the bracket
+            is wider than ``max(step, rtol * |value|)``.
+
+        Notes
+        -----
+        ``low`` and ``high`` bound the exact computation on this lattice (see
+        :mod:`polyconv.dist.ledger`), not the discretisation of a continuous law.
+        """
+        if measure not in MEASURES:
+            raise ValueError(f"measure must be one of {', '.join(MEASURES)}; got {measure!r}")
+        if rtol is not None:
+            rtol = _real(rtol, "rtol")
+            if rtol < 0:
+                raise ValueError(f"rtol must be >= 0; got {rtol!r}")
+        if measure in ("mean", "std"):
+            if arg is not None:
+                raise TypeError(f"bounded({measure!r}) takes no argument; got {arg!r}")
+            return self._bounded_moment(measure, rtol)
+        if arg is None:
+            raise TypeError(f"bounded({measure!r}, arg) needs an argument")
+        if measure in ("cdf", "sf"):
+            return self._bounded_probability(measure, arg, rtol)
+        if measure in ("quantile", "var"):
+            return self._bounded_quantile(measure, arg, rtol)
+        if measure == "tvar":
+            risk.check_level(arg)
+            return self._bounded_tvar(float(arg), rtol, 3)
+        return self._bounded_stop_loss(arg, rtol, 3)
+
+    def _refuse_or_keep(self, value, low, high, rtol, default, what, stacklevel) -> Bounded:
+        rtol = default if rtol is None else rtol
+        scale = max(abs(value), self._step) if math.isfinite(value) else math.inf
+        width = high - low
+        if not math.isfinite(value) or not (width <= rtol * scale):
+            reason = (f"{what}: certified range [{low:.6g}, {high:.6g}] is wider than rtol "
+                      f"{rtol:g} x {scale:.6g}")
+            warnings.warn(reason + "; returning nan", AccuracyWarning, stacklevel=stacklevel + 1)
+            return Bounded(math.nan, low, high, True, reason)
+        return Bounded(value, low, high, False, "")
+
+    def _bounded_probability(self, measure, x, rtol) -> Bounded:
+        xv = float(_real_or_inf(x, "x"))
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            value = self.cdf(xv) if measure == "cdf" else self.sf(xv)
+        _, k = self._index(xv)
+        br = self._br()
+        rng = br.cdf_range(k) if measure == "cdf" else br.sf_range(k)
+        low, high = float(rng[0]), float(rng[1])
+        if math.isinf(xv):
+            low = high = value
+        if math.isnan(value):
+            reason = (f"{measure}({xv!r}) is past the last lattice point, where truncated mass "
+                      f"may lie: only [{low:.3g}, {high:.3g}] is known")
+            warnings.warn(reason, TruncationWarning, stacklevel=3)
+            return Bounded(math.nan, low, high, True, reason)
+        rtol = risk.PROBABILITY_RTOL if rtol is None else rtol
+        if value > 0 and high - low > rtol * value:
+            reason = f"{measure} range [{low:.3g}, {high:.3g}] is wider than rtol {rtol:g} x value"
+            warnings.warn(reason, AccuracyWarning, stacklevel=3)
+            return Bounded(math.nan, low, high, True, reason)
+        return Bounded(value, low, high, False, "")
+
+    def _bounded_quantile(self, measure, p, rtol) -> Bounded:
+        arr = risk.check_level(p, allow_one=measure == "quantile")
+        if arr.ndim != 0:
+            raise TypeError(f"p must be a scalar level; got {p!r}")
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            value = self.quantile(float(arr))
+            low, high = self.quantile_bracket(float(arr))
+        if math.isnan(value) or math.isinf(high):
+            reason = (f"{measure} at p={float(arr)!r} may lie beyond the grid "
+                      f"(bracket [{low:.6g}, {high}])")
+            warnings.warn(reason, TruncationWarning, stacklevel=3)
+            return Bounded(value, low, high, math.isnan(value), reason)
+        tol = max(self._step, (rtol or 0.0) * abs(value))
+        if high - low > tol * (1 + 1e-9):
+            reason = f"{measure} bracket [{low:.6g}, {high:.6g}] is wider than {tol:.6g}"
+            warnings.warn(reason, AccuracyWarning, stacklevel=3)
+            return Bounded(value, low, high, False, reason)
+        return Bounded(value, low, high, False, "")
+
+    def _bounded_tvar(self, p: float, rtol, stacklevel: int) -> Bounded:
+        br = self._br()
+        k = int(br.own_quantile_index(np.asarray(p)))
+        n = self._pmf.size
+        if k >= n:
+            value = math.nan
+        else:
+            value = float(self._origin + self._step * k + br.stop_loss_value(
+                np.asarray(self._origin + self._step * k)) / (1 - p))
+        low, high = br.tvar_range(p)
+        return self._refuse_or_keep(value, low, high, rtol, risk.DEFAULT_RTOL,
+                                    f"TVaR at p={p!r}", stacklevel)
+
+    def _bounded_stop_loss(self, d, rtol, stacklevel: int) -> Bounded:
+        dv = _real_or_inf(d, "d")
+        if math.isnan(dv):
+            return Bounded(math.nan, math.nan, math.nan, True, "stop_loss(nan) is nan")
+        if dv == math.inf:
+            return Bounded(0.0, 0.0, 0.0, False, "")
+        if dv == -math.inf:
+            return Bounded(math.inf, math.inf, math.inf, False, "")
+        br = self._br()
+        value = float(br.stop_loss_value(np.asarray(dv)))
+        lo, hi = br.stop_loss_range(np.asarray(dv))
+        return self._refuse_or_keep(value, float(lo), float(hi), rtol, risk.DEFAULT_RTOL,
+                                    f"stop-loss at d={dv!r}", stacklevel)
+
+    def _bounded_moment(self, measure, rtol) -> Bounded:
+        br = self._br()
+        m1 = self._mean()
+        lo1, hi1 = br.mean_range(m1)
+        if measure == "mean":
+            return self._refuse_or_keep(m1, lo1, hi1, rtol, risk.DEFAULT_RTOL, "mean", 3)
+        m2 = float(np.dot(self._pmf, self.values ** 2))
+        lo2, hi2 = br.second_moment_range(self._pmf, m2)
+        sq_hi = max(lo1 * lo1, hi1 * hi1)
+        sq_lo = 0.0 if lo1 <= 0 <= hi1 else min(lo1 * lo1, hi1 * hi1)
+        var_lo, var_hi = max(lo2 - sq_hi, 0.0), max(hi2 - sq_lo, 0.0)
+        value = math.sqrt(self._variance()) if br.t_high == 0 or self.truncated_mass == 0 \
+            else math.sqrt(self._variance())
+        return self._refuse_or_keep(value, math.sqrt(var_lo), math.sqrt(var_hi), rtol,
+                                    risk.DEFAULT_RTOL, "std", 3)
 
     # -- transformations --------------------------------------------------------------------
     def layer(self, deductible: float, limit: float = math.inf) -> Lattice:
@@ -300,97 +570,53 @@ class Lattice:
 
         ``deductible - origin`` and a finite ``limit`` must be whole multiples of ``step`` (so
         the layer lies on a lattice of the same step, starting at 0).  Mass beyond the lattice
-        goes to ``limit`` when the lattice reaches ``deductible + limit``; otherwise it stays
-        truncated.
+        goes to ``limit`` when all of it lies at or above ``deductible + limit``; otherwise it
+        stays truncated.  Error ledger: merging points adds their errors, so the atom at 0 errs
+        by at most the cumulative error of the merged points (not their count times a floor).
         """
-        d = _real(deductible, "deductible")
-        lim = float(limit) if limit == math.inf else _real(limit, "limit")
-        if lim <= 0:
-            raise ValueError(f"limit must be positive; got {limit!r}")
-        h = self._step
-        shift = (d - self._origin) / h
-        if abs(shift - round(shift)) > 1e-9 * max(1.0, abs(shift)):
-            raise ValueError(f"deductible must lie on the lattice origin + step * k; got {d!r} "
-                             f"with origin {self._origin!r}, step {h!r}")
-        shift = int(round(shift))
-        n = self._pmf.size
-        if math.isinf(lim):
-            width = max(n - 1 - shift, 0) + 1
-        else:
-            w = lim / h
-            if abs(w - round(w)) > 1e-9 * max(1.0, w):
-                raise ValueError(f"limit must be a whole multiple of step {h!r}; got {limit!r}")
-            width = int(round(w)) + 1
-        out = np.zeros(width)
-        k = np.arange(n) - shift
-        pos = np.clip(k, 0, width - 1)
-        np.add.at(out, pos, self._pmf)
-        truncated_to_limit = (not math.isinf(lim)) and (n - 1 - shift >= width - 1)
-        if truncated_to_limit:
-            out[-1] += self._truncated
-        floor = self._floor * max(1, n - width + 1, shift + 1)
-        return Lattice(np.minimum(out, 1.0), h, 0.0, trust_floor=floor)
+        return Lattice._make(*propagate.layer(self, deductible, limit))
 
     def nfold(self, n: int) -> Lattice:
         """Distribution of the sum of ``n`` independent copies, by transform powering.
 
         ``g = IFFT(FFT(f)^n)`` on a transform covering the full support ``n (len - 1) + 1``
         (no wrap-around), ``log2 n`` complex multiplications per frequency instead of ``n - 1``
-        convolutions.  Truncated mass ``t``: a copy beyond the lattice can land anywhere above
-        ``len(pmf) - 1`` points, so each probability may miss up to ``n t``, added to the floor
-        (first order; :mod:`polyconv.dist.accuracy`).
+        convolutions.  Error ledger: :func:`polyconv.dist.ledger.power_errors`.
         """
         if isinstance(n, bool) or not isinstance(n, numbers.Integral) or n < 0:
             raise ValueError(f"n must be a non-negative integer; got {n!r}")
-        n = int(n)
-        if n == 0:
-            return Lattice([1.0], self._step, 0.0)
         if n == 1:
             return self
-        f = np.asarray(self._pmf)
-        full = n * (f.size - 1) + 1
-        res = transform_compound(power_law(n), f, full, n_fft=_fast(full), theta=0.0,
-                                 log_alias_mass=-math.inf)
-        floor = res.trust_floor + n * (self._floor + self._truncated)
-        return Lattice(np.minimum(res.pmf, 1.0), self._step, n * self._origin,
-                       trust_floor=floor)
+        return Lattice._make(*propagate.nfold(self, int(n)))
 
     def __add__(self, other):
         if isinstance(other, Lattice):
-            return _independent_sum(self, other)
+            return Lattice._make(*propagate.independent_sum(self, other))
         if isinstance(other, numbers.Real) and not isinstance(other, bool):
             c = _real(other, "shift")
-            return Lattice(self._pmf, self._step, self._origin + c, trust_floor=self._floor)
+            return Lattice._make(*propagate.shifted(self, c))
         return NotImplemented
 
     __radd__ = __add__
 
 
-def _fast(n: int) -> int:
-    from scipy import fft as sfft
-    return sfft.next_fast_len(n, real=True)
+def _missing(total: float, n: int) -> float:
+    """``1 - total``, with pairwise-summation noise counted as zero."""
+    missing = 1.0 - total
+    if missing <= (math.log2(max(n, 1)) + 4) * accuracy.UNIT_ROUNDOFF:
+        return 0.0
+    return missing
+
+
+def _real_or_inf(value, name: str) -> float:
+    if isinstance(value, bool) or not isinstance(value, numbers.Real):
+        raise TypeError(f"{name} must be a real number; got {type(value).__name__} {value!r}")
+    try:
+        return float(value)
+    except OverflowError:
+        return math.inf if value > 0 else -math.inf
 
 
 def same_step(a: Lattice, b: Lattice) -> bool:
     """Steps equal within :data:`STEP_RTOL`."""
-    return abs(a.step - b.step) <= STEP_RTOL * max(a.step, b.step)
-
-
-def _independent_sum(x: Lattice, y: Lattice) -> Lattice:
-    """Independent sum: pmf convolution through ``polyconv.convolve``; error from the engine's
-    bound (:func:`polyconv.dist.accuracy.convolution_bound`) plus the inputs' floors carried
-    through (:func:`polyconv.dist.accuracy.propagated_sum_floor`)."""
-    if not same_step(x, y):
-        raise ValueError(f"cannot add lattices with different steps ({x.step!r} and {y.step!r}); "
-                         "re-discretise one of them on the other's step")
-    a, b = np.asarray(x.pmf), np.asarray(y.pmf)
-    the_plan = plan(a, b)
-    c = convolve(a, b)
-    bound = accuracy.convolution_bound(the_plan.engine, a, b, the_plan.transform_length)
-    floor = bound + accuracy.propagated_sum_floor(x.trust_floor, float(a.sum()),
-                                                  y.trust_floor, float(b.sum()))
-    # mass beyond either lattice may land anywhere in the upper part of the sum's lattice: each
-    # probability there may miss up to t_x + t_y (a rigorous absolute bound)
-    floor += x.truncated_mass + y.truncated_mass
-    c = np.clip(c, 0.0, 1.0)
-    return Lattice(c, x.step, x.origin + y.origin, trust_floor=floor)
+    return propagate.steps_equal(a.step, b.step)

@@ -1,31 +1,46 @@
-"""Risk measures on a lattice distribution: quantile (VaR), tail value at risk, stop-loss.
+"""Risk measures on a lattice and their certified bounds: cdf, sf, quantile (VaR), TVaR, stop-loss.
 
 Definitions (Acerbi & Tasche, "On the coherence of expected shortfall", J. Banking & Finance 26
 (2002) 1487-1503, for TVaR of a general, possibly discrete, distribution):
 
-* ``VaR_p = min{x : F(x) >= p}`` (the lower ``p``-quantile).
-* ``TVaR_p = VaR_p + E[(S - VaR_p)+] / (1 - p)`` (expected shortfall; equals the Acerbi-Tasche
-  ``ES_p`` also when ``F`` jumps at ``VaR_p``).
+* ``VaR_p = min{x : F(x) >= p}`` (the lower ``p``-quantile), here with ``F`` the lattice's own
+  computed cdf (float cumulative sum), so the answer is never below the lattice's quantile.
+* ``TVaR_p = VaR_p + E[(S - VaR_p)+] / (1 - p) = min_c {c + E[(S - c)+] / (1 - p)}``
+  (Rockafellar & Uryasev, J. Banking & Finance 26 (2002) 1443-1471: the minimum is attained at
+  ``VaR_p``).
 * stop-loss premium ``E[(S - d)+]``, exactly piecewise linear in ``d`` between lattice points.
+
+Bounds (against the exact model of the lattice, see :mod:`polyconv.dist.ledger`).  Write
+``C_k = min(l1, (k + 1) point)`` for the error of ``sum_{j <= k} p^_j`` and
+``B_j = min(l1, (n - j) point)`` for that of ``sum_{k >= j} p^_k``.  Then
+
+* ``F(k) in [P^(k) - C_k, P^(k) + C_k (+ T if truncated mass may lie at or below k)]`` and,
+  from the right, ``F(k) = 1 - Q(>k) - t(>k)``; the tighter end of each route is kept (the
+  right-hand route keeps far tails accurate).
+* stop-loss, by summation by parts (``(x_k - d)+`` increases by at most one step per point):
+  ``|sum_k (x_k - d)+ e_k| <= (x_m - d) B_m + h sum_{j > m} B_j``; the truncated part adds
+  between ``T_low (x_from - d)+`` and its first-moment bound.
+* a quantile bracket: ``[min{k: F_high(k) >= p}, min{k: F_low(k) >= p}]``.
+* TVaR: ``min_c`` over the bracket's points of ``c + SL_low(c)/(1-p)`` (low) and of
+  ``c + SL_high(c)/(1-p)`` (high, valid for any ``c``).
+
+Float rounding of the sums themselves is added (recursive summation: ``gamma_m`` times the sum,
+Higham, *Accuracy and Stability of Numerical Algorithms*, 2nd ed., section 4.2).
 
 Caution: these are model outputs, not advice.  They inherit every assumption of the Lattice they are
 computed from (independence, discretisation, truncation); for reserves, capital or prices defer to
 local regulation and qualified actuarial practice.
-
-The functions work on raw arrays so they can be tested alone; :class:`~polyconv.dist.Lattice`
-methods call them.  Each refuses (returns ``nan`` with an :class:`AccuracyWarning`) when the tail
-probability it rests on is below the error bound carried by the lattice, and warns with a
-:class:`TruncationWarning` when mass beyond the lattice could change the answer.
 """
 
 from __future__ import annotations
 
-import warnings
+import math
+import numbers
 
 import numpy as np
 
 from .accuracy import UNIT_ROUNDOFF
-from .errors import AccuracyWarning, TruncationWarning
+from .ledger import ErrorLedger, t_bounds, untruncated
 
 SNAP = 1e-9
 """An ``x`` within ``SNAP`` lattice steps of a lattice point counts as that point (so 0.3 on a grid
@@ -34,61 +49,68 @@ of step 0.1 is the point 3, whatever the float rounding of 3 * 0.1)."""
 TRUNCATION_LEVEL = 1e-9
 """Truncated mass, relative to the probability a measure rests on, above which it warns."""
 
+DEFAULT_RTOL = 1e-3
+"""Relative tolerance of TVaR, stop-loss, mean and std: refused (``nan`` with a warning) when the
+certified range is wider than ``DEFAULT_RTOL * max(|value|, step)`` (the step: nothing finer can
+be resolved on the lattice)."""
 
-def lattice_index(x, origin: float, step: float) -> np.ndarray:
-    """Index ``k`` of the last lattice point ``origin + step k <= x`` (may be < 0 or >= n)."""
-    return np.floor((np.asarray(x, dtype=float) - origin) / step + SNAP).astype(np.int64)
+PROBABILITY_RTOL = 1.0
+"""cdf and sf are flagged when the certified range is wider than the value itself (not one
+significant digit)."""
+
+_U = UNIT_ROUNDOFF
+
+
+def real_value(value, name: str) -> float:
+    """``float(value)`` for a finite real number; TypeError / ValueError naming ``name``
+    otherwise (booleans refused, integers too large for a float refused)."""
+    if isinstance(value, bool) or not isinstance(value, numbers.Real):
+        raise TypeError(f"{name} must be a real number; got {type(value).__name__} {value!r}")
+    try:
+        out = float(value)
+    except OverflowError:
+        digits = len(str(abs(int(value)))) if isinstance(value, numbers.Integral) else None
+        size = f"an integer of {digits} digits" if digits else repr(value)
+        raise ValueError(f"{name} must be a finite float; {size} is too large") from None
+    if not math.isfinite(out):
+        raise ValueError(f"{name} must be finite; got {value!r}")
+    return out
+
+
+def lattice_index(x, origin: float, step: float, n: int) -> np.ndarray:
+    """Index ``k`` of the last lattice point ``origin + step k <= x``, clipped to ``[-1, n]``
+    (so huge or infinite ``x`` never overflow an integer cast); ``nan`` maps to ``-1`` (callers
+    mask it)."""
+    xs = np.asarray(x, dtype=float)
+    with np.errstate(invalid="ignore", over="ignore"):
+        k = np.floor((xs - origin) / step + SNAP)
+    k = np.where(np.isnan(k), -1.0, np.clip(k, -1.0, float(n)))
+    return k.astype(np.int64)
 
 
 def check_level(p, name: str = "p", allow_one: bool = False) -> np.ndarray:
-    """Validate probability levels ``0 < p < 1`` (``<= 1`` with ``allow_one``)."""
-    try:
-        arr = np.asarray(p, dtype=float)
-    except (TypeError, ValueError):
-        raise TypeError(f"{name} must be a real number or array of them; got {p!r}") from None
+    """Validate probability levels ``0 < p < 1`` (``<= 1`` with ``allow_one``).
+
+    Raises TypeError naming ``name`` for anything but real numbers (strings and booleans
+    included) and ValueError for levels outside the range.
+    """
+    if isinstance(p, (str, bytes, bool, np.bool_)):
+        raise TypeError(f"{name} must be a real number or array of them; got {p!r}")
+    if isinstance(p, numbers.Real):
+        arr = np.asarray(float(p))
+    else:
+        try:
+            arr = np.asarray(p)
+        except (TypeError, ValueError):
+            raise TypeError(f"{name} must be a real number or array of them; got {p!r}") from None
+        if arr.dtype.kind not in "iuf":
+            raise TypeError(f"{name} must be a real number or array of them; got {p!r}")
+        arr = arr.astype(float)
     hi_ok = (arr <= 1) if allow_one else (arr < 1)
     if not np.all(np.isfinite(arr) & (arr > 0) & hi_ok):
         rng = "(0, 1]" if allow_one else "(0, 1)"
         raise ValueError(f"{name} must lie in {rng}; got {p!r}")
     return arr
-
-
-def cumulative_error(k: np.ndarray, n: int, floor: float) -> np.ndarray:
-    """Error bound of a sum of ``k + 1`` lattice probabilities (from the left) or of the tail
-    beyond ``k`` (from the right): ``min(k + 1, n - k) * floor`` plus summation rounding."""
-    k = np.asarray(k)
-    terms = np.minimum(k + 1, np.maximum(n - k, 1))
-    return terms * (floor + UNIT_ROUNDOFF) + 2 * UNIT_ROUNDOFF
-
-
-def quantile(pmf: np.ndarray, step: float, origin: float, floor: float, truncated: float,
-             cum: np.ndarray, p) -> np.ndarray:
-    """``min{x on the lattice : F(x) >= p}``; ``nan`` with a warning where it is not determined.
-
-    ``F(x)`` within its rounding bound of ``p`` counts as reaching ``p``.  Refused (``nan`` and
-    :class:`AccuracyWarning`) when ``min(p, 1 - p)`` is not above the error of the cumulative sums
-    there; ``nan`` with :class:`TruncationWarning` when the quantile lies beyond the lattice.
-    """
-    arr = check_level(p, allow_one=True)
-    n = pmf.size
-    ks = np.arange(n)
-    tol = ks * UNIT_ROUNDOFF + (ks + 1) * floor + 2 * UNIT_ROUNDOFF
-    k = np.searchsorted(cum + tol, arr, side="left")
-    out = origin + step * k.astype(float)
-    beyond = k >= n
-    if np.any(beyond):
-        warnings.warn(f"quantile beyond the lattice: level exceeds the retained mass "
-                      f"{1 - truncated:.17g} (truncated_mass {truncated:.3g}); returning nan",
-                      TruncationWarning, stacklevel=3)
-    kk = np.minimum(k, n - 1)
-    err = cumulative_error(kk, n, floor)
-    noisy = (~beyond) & (np.minimum(arr, 1 - arr) <= err) & (floor > 0)
-    if np.any(noisy):
-        warnings.warn(f"quantile level within the trust floor ({floor:.3g} per probability, "
-                      f"cumulative error up to {float(np.max(err[noisy])):.3g}): "
-                      "numerically meaningless, returning nan", AccuracyWarning, stacklevel=3)
-    out = np.where(beyond | noisy, np.nan, out)
-    return out
 
 
 def tail_sums(pmf: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -105,30 +127,171 @@ def tail_sums(pmf: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return s, t
 
 
-def stop_loss(pmf: np.ndarray, step: float, origin: float, floor: float, truncated: float,
-              tails: tuple[np.ndarray, np.ndarray], d) -> np.ndarray:
-    """``E[(X - d)+]`` over the lattice (exact, piecewise linear in ``d``).
+class Bracketer:
+    """Certified bounds of every query on one Lattice (arrays built once, ``O(n)``).
 
-    With ``m`` the first lattice index above ``d``: ``step T_m + (x_m - d) S_m``.  Mass beyond the
-    lattice is unknown in location: the value is then a lower bound and a
-    :class:`TruncationWarning` is issued when that mass is not negligible.
+    Parameters
+    ----------
+    pmf : numpy.ndarray
+        Computed probabilities (non-negative).
+    step, origin : float
+        The lattice.
+    ledger : ErrorLedger
+        Its error ledger.
     """
-    s, t = tails
-    n = pmf.size
-    d_arr = np.asarray(d, dtype=float)
-    if not np.all(np.isfinite(d_arr)):
-        raise ValueError(f"d must be finite; got {d!r}")
-    m = np.clip(lattice_index(d_arr, origin, step) + 1, 0, n)
-    # a d below the lattice: every point is above it
-    xm = origin + step * m
-    value = step * t[m] + (xm - d_arr) * s[m]
-    err = floor * step * (n - m) * (n - m + 1) / 2.0 + floor * np.abs(xm - d_arr) * (n - m)
-    noisy = (value <= err) & (floor > 0) & (m < n)
-    if np.any(noisy):
-        warnings.warn(f"stop-loss below its error bound from the trust floor ({floor:.3g}): "
-                      "numerically meaningless, returning nan", AccuracyWarning, stacklevel=3)
-        value = np.where(noisy, np.nan, value)
-    if truncated > 0 and np.any(truncated > TRUNCATION_LEVEL * (s[m] + truncated)):
-        warnings.warn(f"stop-loss ignores truncated_mass {truncated:.3g} beyond the lattice: "
-                      "the value is a lower bound", TruncationWarning, stacklevel=3)
-    return value
+
+    def __init__(self, pmf: np.ndarray, step: float, origin: float, ledger: ErrorLedger):
+        n = pmf.size
+        self.n, self.h, self.o, self.ledger, self.pmf = n, step, origin, ledger, pmf
+        self.cum = np.cumsum(pmf)
+        self.s, self.t = tail_sums(pmf)
+        mass = float(self.s[0])
+        self.mass = mass
+        self.t_low, self.t_high = t_bounds(ledger, mass, n)
+        if untruncated(ledger):
+            self.t_low = self.t_high = 0.0
+        k = np.arange(n)
+        self.C = np.minimum(ledger.l1, (k + 1) * ledger.point)
+        j = np.arange(n + 1)
+        self.B = np.minimum(ledger.l1, (n - j) * ledger.point)  # bound of sum_{k>=j} |e_k|
+        sb = np.zeros(n + 2)
+        sb[: n + 1] = np.cumsum(self.B[::-1])[::-1]
+        self.SB = sb  # SB[j] = sum_{i >= j} B_i
+        self.tf = ledger.truncated_from
+        # cdf at index k from both routes
+        rc = (k + 2) * _U * self.cum + 2 * _U
+        tail = self.s[1:]
+        rs = (n - k + 2) * _U * tail
+        maybe_below = k >= self.tf
+        cum_low = self.cum - self.C - rc
+        cum_high = self.cum + self.C + rc + np.where(maybe_below, self.t_high, 0.0)
+        tail_low = np.maximum(tail - self.B[1:] - rs, 0.0) + np.where(maybe_below, 0.0,
+                                                                       self.t_low)
+        tail_high = tail + self.B[1:] + rs + self.t_high
+        self.F_low = np.clip(np.maximum(cum_low, 1.0 - tail_high - 2 * _U), 0.0, 1.0)
+        self.F_high = np.clip(np.minimum(cum_high, 1.0 - tail_low + 2 * _U), 0.0, 1.0)
+        self.S_low = np.clip(np.maximum(tail_low, 1.0 - cum_high - 2 * _U), 0.0, 1.0)
+        self.S_high = np.clip(np.minimum(tail_high, 1.0 - cum_low + 2 * _U), 0.0, 1.0)
+        self._run_high = np.maximum.accumulate(self.F_high)
+        self._run_low = np.maximum.accumulate(self.F_low)
+        self._sl = None
+
+    # -- cdf / sf ---------------------------------------------------------------------------
+    def cdf_range(self, k: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Certified ``(low, high)`` of ``F`` at lattice index ``k`` in ``[-1, n]`` (``n``:
+        beyond the last point)."""
+        kk = np.clip(k, 0, self.n - 1)
+        low = np.where(k < 0, 0.0, self.F_low[kk])
+        high = np.where(k < 0, 0.0, np.where(k >= self.n, 1.0, self.F_high[kk]))
+        return low, high
+
+    def sf_range(self, k: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Certified ``(low, high)`` of ``P(X > x)`` at lattice index ``k``."""
+        kk = np.clip(k, 0, self.n - 1)
+        low = np.where(k < 0, 1.0, np.where(k >= self.n, 0.0, self.S_low[kk]))
+        high = np.where(k < 0, 1.0, self.S_high[kk])
+        return low, high
+
+    # -- quantile ---------------------------------------------------------------------------
+    def own_quantile_index(self, p: np.ndarray) -> np.ndarray:
+        """Smallest ``k`` with computed ``cdf(k) >= p`` (``n`` when none)."""
+        return np.searchsorted(self.cum, p, side="left")
+
+    def quantile_range(self, p: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Indices ``(low, high)`` containing the exact model's quantile index (``high = n``:
+        it may lie beyond the grid)."""
+        lo = np.searchsorted(self._run_high, p, side="left")
+        hi = np.searchsorted(self._run_low, p, side="left")
+        if self.ledger.point == 0 and self.ledger.l1 == 0:
+            lo, hi = self._exact_ties(np.asarray(p, dtype=float), lo, hi)
+        return lo, hi
+
+    def _exact_ties(self, p: np.ndarray, lo: np.ndarray, hi: np.ndarray):
+        """An exact pmf (no computed error): decide ``sum_{j <= k} p_j >= p`` exactly inside
+        the rounding window (``math.fsum`` is correctly rounded, so the sign of
+        ``fsum(p_0..p_k, -p)`` is the sign of the exact difference)."""
+        lo, hi = np.array(lo, copy=True), np.array(hi, copy=True)
+        for i in np.ndindex(p.shape):
+            a, b = int(lo[i]), int(min(hi[i], self.tf - 1, self.n - 1))
+            if b - a > 64 or a > b:
+                continue
+            for k in range(a, b + 1):
+                if math.fsum([*self.pmf[: k + 1].tolist(), -float(p[i])]) >= 0:
+                    lo[i] = hi[i] = k
+                    break
+        return lo, hi
+
+    # -- stop-loss --------------------------------------------------------------------------
+    def stop_loss_value(self, d: np.ndarray) -> np.ndarray:
+        """The lattice's own ``E[(X - d)+]`` (computed pmf only), finite ``d``."""
+        m = np.clip(lattice_index(d, self.o, self.h, self.n) + 1, 0, self.n)
+        xm = self.o + self.h * m
+        return self.h * self.t[m] + (xm - d) * self.s[m]
+
+    def stop_loss_range(self, d: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Certified ``(low, high)`` of the exact ``E[(X - d)+]`` at finite ``d``."""
+        n, h = self.n, self.h
+        m = np.clip(lattice_index(d, self.o, h, n) + 1, 0, n)
+        xm = self.o + h * m
+        value = h * self.t[m] + (xm - d) * self.s[m]
+        err = (xm - d) * self.B[m] + h * self.SB[np.minimum(m + 1, n + 1)]
+        err = err + (2 * (n - m) + 4) * _U * value
+        x_from = self.o + h * self.tf
+        trunc_low = self.t_low * np.maximum(x_from - d, 0.0)
+        trunc_high = self._moment_high() + np.maximum(-d, 0.0) * self.t_high
+        low = np.maximum(value - err, 0.0) + trunc_low
+        high = value + err + trunc_high
+        return low, high
+
+    def _moment_high(self) -> float:
+        if self.t_high == 0:
+            return 0.0
+        return self.ledger.truncated_moment
+
+    def _sl_arrays(self):
+        """Stop-loss at every lattice point ``d = x_k``: own value and certified range."""
+        if self._sl is None:
+            d = self.o + self.h * np.arange(self.n)
+            lo, hi = self.stop_loss_range(d)
+            self._sl = (self.h * self.t[: self.n], lo, hi)
+        return self._sl
+
+    # -- TVaR -------------------------------------------------------------------------------
+    def tvar_range(self, p: float) -> tuple[float, float]:
+        """Certified ``(low, high)`` of the exact ``TVaR_p`` (module docstring)."""
+        lo_k, hi_k = self.quantile_range(np.asarray(p))
+        lo_k, hi_k = int(lo_k), int(hi_k)
+        _, sl_lo, sl_hi = self._sl_arrays()
+        x = self.o + self.h * np.arange(self.n)
+        top = min(hi_k, self.n - 1)
+        if lo_k >= self.n:  # the quantile lies beyond the grid for every model in range
+            return self.o + self.h * self.n, float(np.min(x + sl_hi / (1 - p)))
+        seg = slice(lo_k, top + 1)
+        low = float(np.min(x[seg] + sl_lo[seg] / (1 - p)))
+        if hi_k >= self.n:
+            low = min(low, self.o + self.h * self.n)
+        high = float(np.min(x + sl_hi / (1 - p)))
+        return low, max(high, low)
+
+    # -- moments ----------------------------------------------------------------------------
+    def mean_range(self, value: float) -> tuple[float, float]:
+        """Certified range of the exact mean around the lattice's own ``value``."""
+        err = abs(self.o) * min(self.ledger.l1, self.n * self.ledger.point) \
+            + self.h * float(self.SB[1])
+        absum = float(np.dot(np.abs(self.o + self.h * np.arange(self.n)), np.diff(
+            np.concatenate(([0.0], self.cum)))))
+        err += (self.n + 2) * _U * absum
+        x_from = self.o + self.h * self.tf
+        m = self._moment_high()
+        t_lo = self.t_low * x_from if x_from >= 0 else -m
+        return value - err + t_lo, value + err + m
+
+    def second_moment_range(self, pmf: np.ndarray, value: float) -> tuple[float, float]:
+        """Certified range of the exact ``E[X^2]`` (``inf`` high when truncated mass may have
+        any location)."""
+        w = (abs(self.o) + self.h * np.arange(self.n)) ** 2
+        inc = np.diff(np.concatenate(([0.0], w)))  # increments of a non-decreasing weight
+        err = float(np.dot(inc, self.B[: self.n]))
+        err += (self.n + 2) * _U * float(np.dot(w, pmf))
+        high = value + err + (np.inf if self.t_high > 0 else 0.0)
+        return max(value - err, 0.0), high
