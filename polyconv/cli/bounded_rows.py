@@ -15,11 +15,12 @@ contains the certified range; see :data:`polyconv.cli.report.JSON_DIGITS` for th
 from __future__ import annotations
 
 import math
+import warnings
 from dataclasses import dataclass
 from decimal import ROUND_CEILING, ROUND_FLOOR, Decimal
 
 from ..dist import Lattice
-from .report import csv_number, fmt, fmt_prob, round_significant
+from .report import JSON_DIGITS, csv_number, fmt, fmt_prob, round_significant
 
 STATUS_OK = "ok"
 
@@ -145,8 +146,9 @@ def ask(lat: Lattice, measure: str, arg: float | None = None, *, key: str, label
     key, label, unit, argument_name, argument
         See :class:`MeasureRow` (``argument`` defaults to ``arg``).
     """
-    b = _interim_bounded(lat, measure, arg) if not hasattr(lat, "bounded") else \
-        lat.bounded(measure, arg)
+    with warnings.catch_warnings():  # the row carries the reason; no second note
+        warnings.simplefilter("ignore")
+        b = lat.bounded(measure, arg)
     return MeasureRow(key, label, unit, argument_name,
                       arg if argument is None else argument, float(b.value), float(b.low),
                       float(b.high), bool(b.refused), str(b.reason))
@@ -156,8 +158,9 @@ def ask(lat: Lattice, measure: str, arg: float | None = None, *, key: str, label
 
 
 def range_text(low: float, high: float, probability: bool) -> str:
-    """The certified range as a reader sees it: ``[low, high]`` with just enough digits for
-    the two ends to differ (4 to 17 significant digits), each end rounded outwards.
+    """The certified range as a reader sees it: ``[low, high]``, each end rounded outwards,
+    with just enough significant digits (4 to :data:`~polyconv.cli.report.JSON_DIGITS`) that
+    the printed range is at most twice as wide as the certified one.
 
     ``exact`` when the range is a single number; ``none`` when no range is known.
     """
@@ -165,13 +168,19 @@ def range_text(low: float, high: float, probability: bool) -> str:
         return "none"
     if low == high:
         return "exact"
+    width = high - low
     lo_text = hi_text = ""
-    for digits in range(4, 18):
+    for digits in range(4, JSON_DIGITS + 1):
         lo_text = _outward(low, digits, ROUND_FLOOR, probability)
         hi_text = _outward(high, digits, ROUND_CEILING, probability)
-        if lo_text != hi_text:
+        shown = _value(hi_text) - _value(lo_text)
+        if math.isinf(width) or shown <= 2 * width:
             break
     return f"[{lo_text}, {hi_text}]"
+
+
+def _value(text: str) -> float:
+    return float(text.replace(",", ""))
 
 
 def _outward(x: float, digits: int, rounding: str, probability: bool) -> str:
@@ -188,15 +197,3 @@ def _outward(x: float, digits: int, rounding: str, probability: bool) -> str:
     places = max(0, -q.as_tuple().exponent)
     return f"{q:,.{places}f}"
 
-
-def _interim_bounded(lat, measure, arg):  # INTERIM until the error-model API is merged
-    import warnings
-    from types import SimpleNamespace
-    fn = {"mean": lat.mean, "std": lat.std, "var": lat.value_at_risk,
-          "tvar": lat.tail_value_at_risk, "quantile": lat.quantile, "stop_loss": lat.stop_loss,
-          "sf": lat.sf, "cdf": lat.cdf}[measure]
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
-        v = float(fn() if arg is None else fn(arg))
-    reason = "; ".join(str(w.message) for w in caught)
-    return SimpleNamespace(value=v, low=v, high=v, refused=not math.isfinite(v), reason=reason)

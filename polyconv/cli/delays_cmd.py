@@ -59,6 +59,7 @@ from .report import (
     collect_warnings,
     fmt_prob,
     number_name,
+    percent_level,
     percentile_name,
 )
 from .spec import Section, SpecDoc
@@ -301,7 +302,7 @@ def compute(spec: DelaySpec, steps: Steps | None = None) -> DelayResult:
     with collect_warnings(notes):
         points = horizon(spec, notes)
         total = evaluate(spec.network, ROOT)
-        skeleton.require_mass(total, min(spec.percentiles) / 100.0,
+        skeleton.require_mass(total, percent_level(min(spec.percentiles)),
                               lambda message: spec.doc.error(("grid", "max_points"), message),
                               "raise grid.max_points (or choose a larger grid.step)",
                               "the end-to-end delay", spec.unit)
@@ -318,7 +319,7 @@ def measure_rows(spec: DelaySpec, total: Lattice) -> list[MeasureRow]:
     u = spec.unit
     rows = [ask(total, "mean", key="mean", label="mean", unit=u),
             ask(total, "std", key="sd", label="standard deviation", unit=u)]
-    rows += [ask(total, "quantile", q / 100.0, key="percentiles", label=percentile_name(q),
+    rows += [ask(total, "quantile", percent_level(q), key="percentiles", label=percentile_name(q),
                  unit=u, argument_name="percentile", argument=q) for q in spec.percentiles]
     rows += [ask(total, "sf", d, key="miss_probability",
                  label=f"P(delay > {number_name(d)} {u})", unit="", argument_name="deadline")
@@ -381,7 +382,7 @@ def report_of(res: DelayResult) -> skeleton.DistributionReport:
                      "stages table, (!) marks a measure refused or warned about (reasons in "
                      "summary.json)."],
         tables=[stage_table(res)],
-        markers=skeleton.finite_markers(res.rows, "percentiles"), deadlines=spec.deadlines)
+        markers=skeleton.finite_markers(res.rows, "percentiles"))
 
 
 def write_report(res: DelayResult, out: ReportFolder, prefix: str = "") -> list[str]:

@@ -7,7 +7,10 @@ hands it to this module, which prints it, writes the report folder and the JSON:
 * ``summary.md``: caution, what was computed, the measures table (value, certified range and
   status on every row), notes, the figure;
 * ``summary.json``: the same numbers (:data:`polyconv.cli.report.JSON_DIGITS` significant
-  digits, levels/retentions/deadlines as numbers in lists, the error ledger of the lattice);
+  digits, levels/retentions/deadlines as numbers in lists, the error ledger of the lattice).
+  Each measure is an object ``{label, [level|retention|deadline|percentile], value, low, high,
+  refused, reason}``; ``value`` is null when refused, ``high`` null when no finite upper end
+  is known (JSON has no infinity);
 * ``<stem>.csv``: the distribution (value, probability, cdf, exceedance);
 * ``measures.csv``: one line per measure with its range and refusal flag;
 * ``<stem>.png``: distribution and exceedance curve (when matplotlib is installed).
@@ -99,8 +102,6 @@ class DistributionReport:
         Lines printed under the title.
     markers : list of (str, float)
         Vertical lines of the figure (VaR, percentiles).
-    deadlines : list of float
-        Deadlines marked on the exceedance curve.
     notes : list of str
         What the library warned about, and other remarks.
     """
@@ -119,7 +120,6 @@ class DistributionReport:
     tables: list[Table] = field(default_factory=list)
     preface: list[str] = field(default_factory=list)
     markers: list[tuple[str, float]] = field(default_factory=list)
-    deadlines: list[float] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
 
 
@@ -133,10 +133,7 @@ def grid_rows(lat: Lattice, unit: str) -> list[list[str]]:
 
 def ledger(lat: Lattice) -> dict:
     """The lattice's error ledger for the JSON (what every certified range is built from)."""
-    errors = getattr(lat, "errors", None)
-    if errors is None:  # INTERIM until the error-model API is merged
-        return {"point": lat.trust_floor, "truncated": lat.truncated_mass}
-    return {name: getattr(errors, name) for name in errors._fields}
+    return lat.errors._asdict()
 
 
 def measure_cells(rep: DistributionReport) -> list[list[str]]:
@@ -244,7 +241,9 @@ def figure_png(rep: DistributionReport) -> bytes:
     """The figure of the report."""
     return plots.distribution_figure(rep.lattice, title=rep.title, quantity=rep.quantity,
                                      unit=rep.unit, markers=rep.markers,
-                                     deadlines=rep.deadlines)
+                                     deadlines=[(r.argument, r.value, r.low, r.high)
+                                                for r in rep.rows
+                                                if r.argument_name == "deadline"])
 
 
 def write_files(rep: DistributionReport, out: ReportFolder, prefix: str = "") -> list[str]:

@@ -41,9 +41,9 @@ STEM_POINTS = 400
 """A distribution panel showing at most this many grid points draws each as a stem (its
 probability is a mass at that point); more points are drawn as a curve, atoms as stems."""
 
-SCALES = ((1e10, 1e9, "bn"), (1e7, 1e6, "m"))
-"""``(axis reach from which, unit, suffix)``: an axis reaching 10m or more is labelled in
-millions, one reaching 10bn or more in billions."""
+SCALES = ((1e9, 1e9, "bn"), (1e6, 1e6, "m"))
+"""``(axis reach from which, unit, suffix)``: an axis reaching a million or more is labelled in
+millions (``1m``, ``10m``, ``12.5m``), one reaching a billion or more in billions."""
 
 
 def available() -> bool:
@@ -70,8 +70,8 @@ def _pyplot():
 def amount_text(value: float, top: float) -> str:
     """A tick label of an amount axis reaching ``top``.
 
-    An axis reaching less than 10 million: thousands separators (``250,000``); from 10 million
-    on, millions (``2.5m``, ``10m``, ``12.5m``); from 10 billion on, billions (``20bn``); at
+    An axis reaching less than a million: thousands separators (``250,000``); from a million
+    on, millions (``0.25m``, ``2.5m``, ``10m``); from a billion on, billions (``20bn``); at
     most three significant digits.
     """
     for reach, size, suffix in SCALES:
@@ -94,13 +94,13 @@ def find_atoms(pmf: np.ndarray) -> np.ndarray:
 def error_level(lat: Lattice) -> float:
     """The error bound under which exceedance probabilities are not told apart from rounding
     noise: the lattice's L1 error bound when it has one, else its per-point bound."""
-    errors = getattr(lat, "errors", None)
-    if errors is not None and math.isfinite(errors.l1):
-        return float(errors.l1)
-    return float(lat.trust_floor)
+    errors = lat.errors
+    return float(errors.l1) if math.isfinite(errors.l1) else float(errors.point)
 
 
 def _probability(p: float) -> str:
+    if p == 0:
+        return "0"
     return f"{p:.2g}" if p >= 0.01 else f"{p:.1e}"
 
 
@@ -109,7 +109,7 @@ def _probability(p: float) -> str:
 
 def distribution_figure(lat: Lattice, *, title: str, quantity: str, unit: str,
                         markers: Sequence[tuple[str, float]] = (),
-                        deadlines: Sequence[float] = ()) -> bytes:
+                        deadlines: Sequence[tuple[float, float, float, float]] = ()) -> bytes:
     """Two panels: the probability of each grid point, and the exceedance curve on a log scale.
 
     Parameters
@@ -124,8 +124,9 @@ def distribution_figure(lat: Lattice, *, title: str, quantity: str, unit: str,
         Unit of the values, e.g. ``"EUR"`` or ``"ms"``.
     markers : sequence of (label, value)
         Vertical lines (e.g. VaR or percentiles) drawn on both panels.
-    deadlines : sequence of float
-        Deadlines marked on the exceedance curve with their miss probability.
+    deadlines : sequence of (deadline, value, low, high)
+        Deadlines marked on the exceedance curve with their miss probability (``value``, nan
+        when refused) and its certified range ``[low, high]``.
 
     Returns
     -------
@@ -133,7 +134,7 @@ def distribution_figure(lat: Lattice, *, title: str, quantity: str, unit: str,
         The PNG.
     """
     plt = _pyplot()
-    from matplotlib.ticker import FuncFormatter
+    from matplotlib.ticker import FuncFormatter, MaxNLocator
 
     x = lat.values
     pmf = np.asarray(lat.pmf)
@@ -160,23 +161,21 @@ def distribution_figure(lat: Lattice, *, title: str, quantity: str, unit: str,
         ax1.axvline(v, color=color, lw=0.9, ls="-.", label=text)
         ax2.axvline(v, color=color, lw=0.9, ls="-.", label=text)
     shapes = ["o", "s", "^", "D", "v", "P"]
-    for i, d in enumerate(deadlines):
-        k = int(np.clip(np.floor((d - lat.origin) / lat.step + 1e-9), 0, x.size - 1))
+    for i, (d, miss, low, high) in enumerate(deadlines):
         color = str(0.15 + 0.5 * i / max(len(deadlines), 1))
         ax2.axvline(d, color=color, lw=1.0, ls=":")
-        if d > grid_end:
-            label = f"deadline {d:,.6g} {unit}: beyond the grid, not computed"
-            ax2.plot([grid_end], [max(float(sf[-1]), lowest)], marker=shapes[i % len(shapes)],
-                     color=color, ls="none", label=label)
-            continue
-        miss = float(sf[k]) if d >= lat.origin else 1.0
-        ax2.plot([d], [max(miss, lowest)], marker=shapes[i % len(shapes)], color=color,
-                 ls="none", label=f"deadline {d:,.6g} {unit}: missed with probability "
-                 f"{_probability(miss)}")
+        if math.isfinite(miss):
+            text, y = f"missed with probability {_probability(miss)}", miss
+        else:  # refused: say what is known
+            text, y = (f"not known on this grid (between {_probability(low)} and "
+                       f"{_probability(high)})"), high
+        ax2.plot([min(d, grid_end)], [max(y, lowest)], marker=shapes[i % len(shapes)],
+                 color=color, ls="none", label=f"deadline {fmt(d)} {unit}: {text}")
     margin = 0.015 * (body_end - float(x[0])) + lat.step
     ax1.set_xlim(float(x[0]) - margin, body_end * 1.05 + lat.step)
     ax2.set_xlim(float(x[0]) - margin, right)
     for ax, top in ((ax1, body_end * 1.05), (ax2, right)):
+        ax.xaxis.set_major_locator(MaxNLocator(nbins=7, steps=[1, 2, 2.5, 5, 10]))
         ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _pos, t=top: amount_text(v, t)))
         ax.set_xlabel(f"{quantity} x ({unit})")
     for ax in (ax1, ax2):  # below the panels: never over the data or the atom labels
@@ -234,18 +233,29 @@ def _distribution_panel(ax, lat: Lattice, body_end: float, unit: str) -> None:
 
 def _exceedance_panel(ax, lat: Lattice, sf: np.ndarray, noise: float, lowest: float,
                       unit: str) -> None:
-    """``P(value > x)`` on the grid only: solid above the error bound, faint below it, and a
+    """``P(value > x)`` on the grid only: solid where it is known, faint below the error bound,
+    a band where the probability beyond the grid may lie (``errors.truncated_from`` on), and a
     marked end of grid with the probability beyond it."""
     x = lat.values
+    n = x.size
+    errors = lat.errors
+    beyond = float(errors.truncated)
+    start = min(int(errors.truncated_from), n)  # from here the truncated mass may lie on grid
+    known = np.arange(n) < start
     shown = np.where(sf > lowest, sf, np.nan)
-    above = np.where(sf > noise, shown, np.nan)
-    ax.step(x, above, where="post", color="#b2402a", lw=1.5,
-            label="probability of exceeding x")
+    ax.step(x, np.where(known & (sf > noise), shown, np.nan), where="post", color="#b2402a",
+            lw=1.5, label="probability of exceeding x")
     if noise > 0:
-        faint = np.where(sf <= noise * 1.0000001, shown, np.nan)
+        faint = np.where(known & (sf <= noise * 1.0000001), shown, np.nan)
         ax.step(x, faint, where="post", color="#b2402a", lw=1.0, alpha=0.35, ls="--",
                 label=f"below {noise:.1e}: not told apart from rounding error")
-    end, beyond = float(x[-1]), float(lat.truncated_mass)
+    if start < n and beyond > 0 and sf[start] > lowest:  # (a band out of view is not listed)
+        lower = np.maximum(sf[start:] - beyond, lowest)
+        ax.fill_between(x[start:], lower, np.maximum(sf[start:], lowest), step="post",
+                        color="#b2402a", alpha=0.18, lw=0,
+                        label=f"from {fmt(float(x[start]))} {unit}: only a range is known (the "
+                        f"probability {_probability(beyond)} beyond the grid may lie here)")
+    end = float(x[-1])
     if sf[-1] > lowest or beyond > lowest:
         ax.axvline(end, color="black", lw=1.2, ls=(0, (1, 1)),
                    label=f"end of the grid ({fmt(end)} {unit}): beyond it, probability "

@@ -21,7 +21,7 @@ CAUTION_LINES = (
     "CAUTION: model output, not advice.",
     "Assumptions: independence ({independence}); discretisation ({discretisation}); "
     "truncation ({truncation}).",
-    "Defer to local regulation and to qualified {practice} practice before relying on "
+    "Defer to local regulation and codes and to licensed {practice} practice before relying on "
     "these numbers.",
 )
 
@@ -101,6 +101,12 @@ def level_name(p: float) -> str:
 def percentile_name(q: float) -> str:
     """``99.9`` -> ``"p99.9"``, ``99.9999`` -> ``"p99.9999"`` (the shortest decimal of ``q``)."""
     return f"p{_decimal_text(Decimal(repr(float(q))))}"
+
+
+def percent_level(q: float) -> float:
+    """A percentile as a level without float noise: ``99.9`` -> ``0.999`` (not
+    ``0.9990000000000001``, which ``99.9 / 100`` gives)."""
+    return float(Decimal(repr(float(q))) / 100)
 
 
 def number_name(x: float) -> str:
