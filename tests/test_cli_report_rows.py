@@ -390,3 +390,63 @@ def test_every_report_output_carries_the_caution(tmp_path, command, text, practi
         assert "model output, not advice" in where
         assert "local regulation and codes" in where
         assert f"licensed {practice} practice" in where
+
+
+def _panels(lat, **options):
+    fig = plots.distribution_panels(lat, title="t", quantity="loss", unit="EUR", **options)
+    fig.canvas.draw()
+    return fig
+
+
+def _close(fig) -> None:
+    import matplotlib.pyplot as plt
+
+    plt.close(fig)
+
+
+def test_exceedance_curve_stops_at_the_grid_end_and_says_so():
+    # an exponential-like pmf cut after 200 points, 1e-3 of the mass beyond (invented shape)
+    from polyconv.dist import Lattice
+
+    k = np.arange(200)
+    pmf = stats.geom(0.035).pmf(k + 1)
+    pmf *= (1 - 1e-3) / pmf.sum()
+    lat = Lattice(pmf, step=5e4)
+    fig = _panels(lat)
+    try:
+        ax = fig.axes[1]
+        end = float(lat.values[-1])
+        curve = [ln for ln in ax.lines if ln.get_label() == "probability of exceeding x"]
+        assert curve
+        xs = np.asarray(curve[0].get_xdata(), dtype=float)
+        ys = np.asarray(curve[0].get_ydata(), dtype=float)
+        assert np.nanmax(xs[np.isfinite(ys)]) <= end  # no data drawn past the grid
+        labels = [t.get_text() for t in ax.get_legend().get_texts()]
+        assert any(t.startswith("end of the grid (9,950,000 EUR)") for t in labels)
+        assert ax.get_xlim()[1] <= end * 1.04
+        # plain words in the legends: no formula, no "trust floor"
+        for text in labels + [t.get_text() for t in fig.axes[0].get_legend().get_texts()]:
+            assert "P(" not in text and "trust floor" not in text
+        # amounts reaching 10m read as millions (common practice, no source)
+        ticks = [t.get_text() for t in ax.get_xticklabels() if t.get_text()]
+        assert ticks and all(t == "0" or t.endswith("m") for t in ticks), ticks
+    finally:
+        _close(fig)
+
+
+def test_an_atom_at_zero_is_drawn_and_labelled():
+    from polyconv.dist import Lattice
+
+    # P(S = 0) = e^-0.7 for a Poisson(0.7) count (scipy.stats.poisson), the rest smooth
+    p0 = float(stats.poisson(0.7).pmf(0))
+    rest = stats.gamma(3.0, scale=40.0).pdf(np.arange(1, 1000) + 0.5)
+    rest *= (1 - p0) / rest.sum()
+    lat = Lattice(np.concatenate(([p0], rest)), step=1.0)
+    fig = _panels(lat)
+    try:
+        texts = [t.get_text() for t in fig.axes[0].texts]
+        assert any(t.startswith(f"{p0:.2g} at 0 EUR") for t in texts), texts
+        # the atom is far above the curve: its stem reaches the top, marked off scale
+        assert any("off scale" in t for t in texts)
+    finally:
+        _close(fig)

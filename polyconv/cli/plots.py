@@ -107,9 +107,15 @@ def _probability(p: float) -> str:
 # -- the figures --------------------------------------------------------------------------
 
 
-def distribution_figure(lat: Lattice, *, title: str, quantity: str, unit: str,
+def distribution_figure(lat: Lattice, **options) -> bytes:
+    """The PNG of :func:`distribution_panels` (same arguments)."""
+    fig = distribution_panels(lat, **options)
+    return _png(fig, _pyplot())
+
+
+def distribution_panels(lat: Lattice, *, title: str, quantity: str, unit: str,
                         markers: Sequence[tuple[str, float]] = (),
-                        deadlines: Sequence[tuple[float, float, float, float]] = ()) -> bytes:
+                        deadlines: Sequence[tuple[float, float, float, float]] = ()):
     """Two panels: the probability of each grid point, and the exceedance curve on a log scale.
 
     Parameters
@@ -130,8 +136,8 @@ def distribution_figure(lat: Lattice, *, title: str, quantity: str, unit: str,
 
     Returns
     -------
-    bytes
-        The PNG.
+    matplotlib.figure.Figure
+        The figure (close it with ``matplotlib.pyplot.close`` when done).
     """
     plt = _pyplot()
     from matplotlib.ticker import FuncFormatter, MaxNLocator
@@ -180,7 +186,7 @@ def distribution_figure(lat: Lattice, *, title: str, quantity: str, unit: str,
         ax.set_xlabel(f"{quantity} x ({unit})")
     for ax in (ax1, ax2):  # below the panels: never over the data or the atom labels
         ax.legend(fontsize=8, loc="upper left", bbox_to_anchor=(0.0, -0.13), frameon=False)
-    return _png(fig, plt)
+    return fig
 
 
 def _distribution_panel(ax, lat: Lattice, body_end: float, unit: str) -> None:
@@ -262,7 +268,8 @@ def _exceedance_panel(ax, lat: Lattice, sf: np.ndarray, noise: float, lowest: fl
                    f"{_probability(beyond) if beyond > 0 else '0'}, not drawn")
         ax.plot([end], [max(float(sf[-1]), lowest)], marker=">", color="black", ls="none")
     ax.set_yscale("log")
-    ax.set_ylim(lowest, 1.5)
+    seen = sf[sf > lowest]
+    ax.set_ylim(max(lowest, 0.1 * float(seen.min())) if seen.size else lowest, 1.5)
     ax.set_ylabel("probability of exceeding x (log scale)")
     ax.set_title("exceedance curve")
     ax.grid(alpha=0.3, which="both")
