@@ -320,6 +320,12 @@ def write_report(res: AggregateResult, out: ReportFolder, prefix: str = "") -> l
     return skeleton.write_files(report_of(res), out, prefix)
 
 
+def json_summary(res: AggregateResult) -> dict:
+    """The machine-readable summary (floats already rounded, see
+    :func:`polyconv.cli.distribution_report.json_summary`)."""
+    return skeleton.json_summary(report_of(res))
+
+
 def run(args) -> int:
     """Entry point of ``polyconv aggregate``."""
     return skeleton.run_spec_command(args, name="aggregate", parse=parse, compute=compute,

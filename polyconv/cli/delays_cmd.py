@@ -390,6 +390,12 @@ def write_report(res: DelayResult, out: ReportFolder, prefix: str = "") -> list[
     return skeleton.write_files(report_of(res), out, prefix)
 
 
+def json_summary(res: DelayResult) -> dict:
+    """The machine-readable summary (floats already rounded, see
+    :func:`polyconv.cli.distribution_report.json_summary`)."""
+    return skeleton.json_summary(report_of(res))
+
+
 def run(args) -> int:
     """Entry point of ``polyconv delays``."""
     return skeleton.run_spec_command(args, name="delays", parse=parse, compute=compute,

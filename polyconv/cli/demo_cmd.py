@@ -23,7 +23,7 @@ from . import aggregate_cmd, delays_cmd, plots
 from . import distribution_report as skeleton
 from .fileio import ReportFolder, unlimited_int_digits
 from .progress import Steps
-from .report import md_table, paragraph
+from .report import dumps, md_table, paragraph
 from .spec import parse_spec
 
 SCENARIOS = ("quillmere_claims.toml", "larkspur_pipeline.toml")
@@ -193,12 +193,11 @@ def run(args) -> int:
                 out.write_text(name, scenario_text(name))
             out.write_text("report.md", report_markdown(claims, pipeline, counts, figures))
             steps.step("report.md")
-        summary = {"output": str(folder),
-                   "claims": skeleton.json_summary(aggregate_cmd.report_of(claims)),
-                   "pipeline": skeleton.json_summary(delays_cmd.report_of(pipeline)),
+        summary = {"output": str(folder), "claims": aggregate_cmd.json_summary(claims),
+                   "pipeline": delays_cmd.json_summary(pipeline),
                    "counting": {k: v for k, v in counts.items() if not k.startswith("_")}}
         if args.json:
-            print(skeleton.json_text(summary))
+            print(dumps(summary))
             return 0
         print(terminal_text(claims, pipeline, counts, folder))
     return 0

@@ -42,6 +42,7 @@ from .report import (
     dumps,
     fmt,
     fmt_prob,
+    jsonable,
     md_table,
     number_name,
     paragraph,
@@ -224,16 +225,18 @@ def brief_text(rep: DistributionReport, number: str, indent: str) -> list[str]:
 
 
 def json_summary(rep: DistributionReport) -> dict:
-    """The machine-readable summary (floats rounded when written, see :func:`write_files`)."""
+    """The machine-readable summary: plain JSON values, every float rounded to
+    :data:`~polyconv.cli.report.JSON_DIGITS` significant digits (ranges outwards), no
+    infinities (``null``), so any ``json.dumps`` of it is free of float noise."""
     lat = rep.lattice
-    return {"title": rep.title, **rep.facts, **rows_json(rep.rows),
-            "grid_step": lat.step, "grid_points": len(lat),
-            "truncated_mass": lat.truncated_mass, "errors": ledger(lat),
-            "notes": rep.notes, "caution": rep.caution}
+    return jsonable({"title": rep.title, **rep.facts, **rows_json(rep.rows),
+                     "grid_step": lat.step, "grid_points": len(lat),
+                     "truncated_mass": lat.truncated_mass, "errors": ledger(lat),
+                     "notes": rep.notes, "caution": rep.caution}, JSON_DIGITS)
 
 
 def json_text(summary: dict) -> str:
-    """A summary as JSON text, floats at :data:`~polyconv.cli.report.JSON_DIGITS` digits."""
+    """A summary as JSON text (strict: no NaN or Infinity tokens)."""
     return dumps(summary, digits=JSON_DIGITS)
 
 
