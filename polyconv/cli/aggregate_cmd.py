@@ -47,7 +47,7 @@ from scipy import stats
 
 from ..dist import Lattice, compound
 from . import distribution_report as skeleton
-from . import laws
+from . import grid_mass, laws
 from .bounded_rows import MeasureRow, ask
 from .fileio import ReportFolder
 from .progress import Steps
@@ -217,7 +217,7 @@ def compute(spec: AggregateSpec, steps: Steps | None = None) -> AggregateResult:
         built = laws.build(spec.severity, spec.step, method=spec.discretisation,
                            max_points=spec.max_points, points=points)
         notes.extend(built.notes)
-        skeleton.require_mass(built.lattice, 0.0, *skeleton.leaf_fail(spec.severity),
+        grid_mass.require_mass(built.lattice, 0.0, *grid_mass.leaf_fail(spec.severity),
                               f"the severity ({built.description})", spec.currency)
         per_claim = built.lattice
         if spec.deductible > 0 or math.isfinite(spec.limit):
@@ -229,8 +229,8 @@ def compute(spec: AggregateSpec, steps: Steps | None = None) -> AggregateResult:
             steps.step("compound")
         total = compound(spec.counts, per_claim, method=spec.method, size=spec.points)
         grid_key = ("grid", "points") if spec.points else ("grid", "step")
-        held = skeleton.held_mass(per_claim)
-        skeleton.require_mass(
+        held = grid_mass.held_mass(per_claim)
+        grid_mass.require_mass(
             total, min(spec.levels),
             lambda message: spec.severity.doc.error(grid_key, message),
             "choose a larger grid.step (or more grid.points)",

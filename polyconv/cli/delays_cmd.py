@@ -50,7 +50,7 @@ from dataclasses import dataclass, field
 
 from ..dist import Lattice, all_of, first_of, mixture, series
 from . import distribution_report as skeleton
-from . import laws
+from . import grid_mass, laws
 from .bounded_rows import MeasureRow, ask
 from .fileio import ReportFolder
 from .progress import Steps
@@ -273,7 +273,7 @@ def compute(spec: DelaySpec, steps: Steps | None = None) -> DelayResult:
                                max_points=spec.max_points, points=points)
             notes.extend(f"stage {name}: {n}" for n in built.notes)
             descriptions[name] = built.description
-            skeleton.require_mass(built.lattice, 0.0, *skeleton.leaf_fail(sec),
+            grid_mass.require_mass(built.lattice, 0.0, *grid_mass.leaf_fail(sec),
                                   f"stage {name} ({built.description})", spec.unit)
             return built.lattice
         parts = []
@@ -302,7 +302,7 @@ def compute(spec: DelaySpec, steps: Steps | None = None) -> DelayResult:
     with collect_warnings(notes):
         points = horizon(spec, notes)
         total = evaluate(spec.network, ROOT)
-        skeleton.require_mass(total, percent_level(min(spec.percentiles)),
+        grid_mass.require_mass(total, percent_level(min(spec.percentiles)),
                               lambda message: spec.doc.error(("grid", "max_points"), message),
                               "raise grid.max_points (or choose a larger grid.step)",
                               "the end-to-end delay", spec.unit)
