@@ -200,14 +200,14 @@ def _distribution_panel(ax, lat: Lattice, body_end: float, unit: str) -> None:
     in_view = int(np.searchsorted(x, body_end * 1.05 + lat.step))
     if in_view <= STEM_POINTS:
         ax.vlines(x, 0, pmf, color=color, lw=1.4,
-                  label=f"probability of each amount (grid step {number_name(lat.step)} {unit})")
+                  label=f"probability at each grid point (step {number_name(lat.step)} {unit})")
         ax.plot(x[:in_view], pmf[:in_view], "o", color=color, ms=2.5)
         atoms = atoms[(atoms == 0) | (atoms == x.size - 1)]  # edge atoms still get a label
     else:
         smooth = pmf.copy()
         smooth[atoms] = np.nan
         ax.plot(x, smooth, color=color, lw=1.2,
-                label=f"probability of each amount (grid step {number_name(lat.step)} {unit})")
+                label=f"probability at each grid point (step {number_name(lat.step)} {unit})")
         ax.fill_between(x, np.nan_to_num(smooth), color=color, alpha=0.15)
     rest = np.delete(pmf, atoms)
     rest_top = float(rest.max()) if rest.size else 0.0
@@ -222,7 +222,7 @@ def _distribution_panel(ax, lat: Lattice, body_end: float, unit: str) -> None:
         p = float(pmf[k])
         shown = min(p, top * (0.92 - 0.07 * j))
         ax.vlines([x[k]], 0, shown, color="#c0392b", lw=2.2,
-                  label="atom: probability at a single amount" if j == 0 else None)
+                  label="atom: a probability mass at one value" if j == 0 else None)
         ax.plot([x[k]], [shown], marker="^" if p > shown else "o", color="#c0392b",
                 ls="none")
         off = " (off scale)" if p > shown else ""
