@@ -450,3 +450,20 @@ def test_an_atom_at_zero_is_drawn_and_labelled():
         assert any("off scale" in t for t in texts)
     finally:
         _close(fig)
+
+
+def test_printed_ranges_contain_the_certified_range_and_stay_tight():
+    from polyconv.cli.bounded_rows import range_text
+
+    cases = [(0.999999999999, 1.00000000001, False), (390063.098643, 390063.100575, False),
+             (2.0718608674e-2, 2.0718608678e-2, True), (139655.91, math.inf, False)]
+    for low, high, prob in cases:
+        text = range_text(low, high, prob)
+        lo_text, hi_text = text.strip("[]").split(", ")
+        lo = Fraction(lo_text.replace(",", ""))
+        hi = math.inf if hi_text == "inf" else Fraction(hi_text.replace(",", ""))
+        # outward: the printed range holds the certified one (exact rationals, fractions)
+        assert lo <= Fraction(low) and (hi == math.inf or hi >= Fraction(high)), text
+        if math.isfinite(high):
+            assert hi - lo <= 2 * (Fraction(high) - Fraction(low)), text
+    assert range_text(5.0, 5.0, False) == "exact on this grid"

@@ -162,12 +162,12 @@ def range_text(low: float, high: float, probability: bool) -> str:
     with just enough significant digits (4 to :data:`~polyconv.cli.report.JSON_DIGITS`) that
     the printed range is at most twice as wide as the certified one.
 
-    ``exact`` when the range is a single number; ``none`` when no range is known.
+    ``exact on this grid`` when the range is a single number; ``none`` when no range is known.
     """
     if math.isnan(low) or math.isnan(high):
         return "none"
     if low == high:
-        return "exact"
+        return "exact on this grid"
     width = high - low
     lo_text = hi_text = ""
     for digits in range(4, JSON_DIGITS + 1):
