@@ -128,6 +128,21 @@ def untilted_floor(tilted_floor: float, theta: float, last_index: int) -> float:
     return tilted_floor * math.exp(theta * max(last_index, 0))
 
 
+def untilted_l1(tilted_l2: float, theta: float, size: int) -> float:
+    """L1 bound of the untilted error over ``k < size`` from a bound ``R`` of the tilted-domain
+    error's Euclidean norm: ``sum_k |dg_k| e^{theta k} <= R sqrt(sum_k e^{2 theta k})``
+    (Cauchy-Schwarz).  :func:`transform_compound_floor` is such a bound: each of its terms
+    bounds a Euclidean norm (Parseval for the scaled inverse transform, Higham's normwise FFT
+    bound), which it then uses as a per-coefficient bound."""
+    if size <= 0 or tilted_l2 == 0:
+        return 0.0
+    if theta <= 0:
+        return tilted_l2 * math.sqrt(size)
+    top = theta * (size - 1)
+    ratio = -math.expm1(-2 * theta * size) / -math.expm1(-2 * theta)
+    return tilted_l2 * math.exp(top) * math.sqrt(ratio)
+
+
 def aliasing_bound(log_tail_at_m: float, theta: float, n_fft: int) -> float:
     """Mass wrapped onto any index ``k < M`` by a length-``M`` circular transform, after untilting.
 
@@ -136,6 +151,8 @@ def aliasing_bound(log_tail_at_m: float, theta: float, n_fft: int) -> float:
     untilting multiplies by ``e^{theta k}``, leaving ``sum_j g_{k+jM} e^{-theta j M}
     <= exp(-theta M) P(S >= M)`` uniformly in ``k`` (Grubel & Hermesmeier 1999).
     ``log_tail_at_m`` is the log of an upper bound of ``P(S >= M)`` (e.g. a Chernoff bound).
+    Summed over ``k < M`` the same argument gives the same bound for the L1 norm of the aliased
+    mass (each ``g_{k+jM}`` is counted once).
     """
     return math.exp(min(0.0, log_tail_at_m) - theta * n_fft)
 

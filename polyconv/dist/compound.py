@@ -31,7 +31,7 @@ from . import accuracy
 from .counts import CountsLaw, classify
 from .errors import TruncationWarning
 from .lattice import Lattice
-from .ledger import ErrorLedger, untruncated
+from .ledger import ErrorLedger, cum_bound, untruncated
 from .transform import size_for_tail, transform_compound
 
 DEFAULT_TAIL = 1e-12
@@ -44,6 +44,7 @@ RECURSION_AUTO_MAX = 512
 """``method="auto"`` uses the recursion up to this many points (stable laws only)."""
 
 _U = accuracy.UNIT_ROUNDOFF
+_UL = float(np.finfo(np.longdouble).eps) / 2
 _RESCALE = 1e280
 _LOG_RESCALE = math.log(_RESCALE)
 
@@ -107,9 +108,13 @@ def compound(counts, severity: Lattice, *, method: str = "auto", size: int | Non
         r_point, r_l1 = float(np.max(errs)), float(np.sum(errs))
     else:
         res = transform_compound(law.transform, f, size)
-        g, r_point, r_l1 = res.pmf, res.trust_floor, size * res.trust_floor
+        g, r_point, r_l1 = res.pmf, res.trust_floor, min(res.l1_bound, size * res.trust_floor)
+        # per point: the tilted-domain bound (a Euclidean norm, so also per point) untilted at
+        # each index, plus the aliasing bound (uniform in k)
+        errs = res.rounding_floor * np.exp(res.theta * (np.arange(size) - (size - 1))) \
+            + res.aliasing_floor
     g = np.minimum(g, 1.0)
-    ledger = compound_ledger(counts, law, severity, f, g, r_point, r_l1)
+    ledger = compound_ledger(counts, law, severity, f, g, r_point, r_l1, errs)
     return Lattice._make(g, severity.step, 0.0, ledger)
 
 
@@ -132,13 +137,14 @@ def _log_pgf_above_one(law: CountsLaw, delta: float) -> float:
 
 
 def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g: np.ndarray,
-                    r_point: float, r_l1: float) -> ErrorLedger:
+                    r_point: float, r_l1: float, errs: np.ndarray) -> ErrorLedger:
     """Error ledger of a compound computed from the severity vector ``f`` (route rounding
     ``r_point``, ``r_l1``).
 
     * Severity error ``e`` (L1 ``l``, per point ``d``): ``||sum_n P(N=n) (f^{*n} - q^{*n})||_1
       <= sum_n P(N=n) ((1 + l)^n - 1) = P_N(1 + l) - 1`` (telescoping, each factor of L1 norm
-      at most ``1 + l``), and per point ``<= d P_N'(1 + l)``, with ``P_N'(1 + l) <= (P_N(1 + 2
+      at most ``1 + l``), per point ``<= d P_N'(1 + l)`` and in cumulative sums
+      ``<= K P_N'(1 + l)`` (``K`` the severity's cumulative bound), with ``P_N'(1 + l) <= (P_N(1 + 2
       delta) - P_N(1 + delta)) / delta`` for ``delta >= l`` (a PGF is convex on the reals).
     * Truncated part: mass of the severity's truncated part carried by any claim (from the
       severity's ``truncated_from``), mass beyond the grid (from ``len(g)``) and, for a generic
@@ -158,10 +164,12 @@ def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g:
         slope = (math.expm1(_log_pgf_above_one(law, 2 * delta))
                  - math.expm1(_log_pgf_above_one(law, delta))) / delta * (1 + 1e-6)
         point_in = e.point * max(slope, mean_n)
+        cum_in = cum_bound(e) * max(slope, mean_n)
     else:
-        l1_in = point_in = 0.0
+        l1_in = point_in = cum_in = 0.0
     l1 = min(r_l1 + l1_in, 2.0)
     point = min(r_point + point_in, l1)
+    cum = min(r_l1 + cum_in, l1)
     k0 = f.size - len(severity)
     froms = [size]
     if not untruncated(e):
@@ -175,15 +183,19 @@ def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g:
     if not math.isfinite(sev_mean_high):
         moment = math.inf
     else:
-        x = h * np.arange(size)
-        on_grid = float(np.dot(x, g))
-        j = np.arange(1, size)
-        err = h * float(np.sum(np.minimum(l1, (size - j) * point))) + (size + 2) * _U * on_grid
+        k = np.arange(size)
+        on_grid = h * float(np.dot(k.astype(np.longdouble), g))  # sum within size u_long
+        j = k[1:]
+        # sum_k x_k |e_k|: the route's per-point bounds; the severity's errors carried through
+        # by summation by parts on their cumulative bound
+        err = h * float(np.dot(k, errs)) + h * float(np.sum(np.minimum(
+            min(l1_in, 2 * cum_in), (size - j) * point_in)))
+        err = err * (1 + 4 * _U) + ((size + 2) * _UL + 4 * _U) * on_grid
         total = mean_n * sev_mean_high * (1 + 4 * _U)
         if law.tail_mass > 0:
             total += _count_tail_moment(counts, law) * sev_mean_high
         moment = max(total - (on_grid - err), 1e-300)
-    return ErrorLedger(point, l1, 0.0, tf, moment)
+    return ErrorLedger(point, l1, 0.0, tf, moment, cum)
 
 
 def _count_tail_moment(counts, law: CountsLaw) -> float:

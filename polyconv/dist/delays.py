@@ -25,7 +25,7 @@ import numpy as np
 
 from .accuracy import UNIT_ROUNDOFF
 from .lattice import Lattice, same_step
-from .ledger import ErrorLedger, untruncated
+from .ledger import ErrorLedger, cum_bound, untruncated
 from .propagate import abs_moment, truncated_from
 
 WEIGHT_TOL = 1e-12
@@ -62,37 +62,54 @@ def _grid(delays: list[Lattice]) -> tuple[float, float, list[int], int]:
     return h, base, offs, length
 
 
+LONG_UNIT = float(np.finfo(np.longdouble).eps) / 2
+"""Unit roundoff of numpy's longdouble (2^-64 on x86; equal to float64's elsewhere)."""
+
+
 def _represented(d: Lattice, off: int, length: int) -> tuple[np.ndarray, np.ndarray, float]:
     """Represented cdf ``F^(k) = sum_{j <= k} p^_j`` and tail ``R - F^(k)`` (summed from the
-    right, no cancellation) of ``d`` on the common grid, and its mass ``R``."""
-    pmf = np.zeros(length)
+    right, no cancellation) of ``d`` on the common grid, and its mass ``R``.  Sums run in
+    longdouble, so each value is within ``u + len(d) u_long`` (relative) of the exact sum
+    (recursive summation, Higham section 4.2)."""
+    pmf = np.zeros(length, dtype=np.longdouble)
     pmf[off : off + len(d)] = d.pmf
     cdf = np.cumsum(pmf)
     tail = np.zeros(length)
     tail[:-1] = np.cumsum(pmf[::-1])[::-1][1:]
-    return cdf, tail, float(cdf[-1])
+    return cdf.astype(float), tail, float(cdf[-1])
 
 
-def _pmf_from(cdf: np.ndarray, tail: np.ndarray) -> np.ndarray:
+def _value_rel(count: int, longest: int) -> float:
+    """Relative error of one cdf or tail value of a max/min of ``count`` inputs: each input
+    value ``u + longest u_long``, and a few roundings per input for the product, ``log1p`` and
+    ``expm1`` (libm's ``log1p``/``expm1`` taken to err by at most one ulp: an assumption)."""
+    return (5 * count + 8) * UNIT_ROUNDOFF + count * longest * LONG_UNIT
+
+
+def _pmf_from(cdf: np.ndarray, tail: np.ndarray) -> tuple[np.ndarray, float]:
     """Point masses from ``F`` below the median and from the tail above it (no cancellation in
-    either tail)."""
+    either tail), and the total of negative differences set to zero."""
     total = float(cdf[-1] + tail[-1]) if cdf.size else 0.0
     prev_cdf = np.concatenate(([0.0], cdf[:-1]))
     prev_tail = np.concatenate(([total], tail[:-1]))
-    return np.maximum(np.where(prev_cdf >= 0.5 * total, prev_tail - tail, cdf - prev_cdf), 0.0)
+    raw = np.where(prev_cdf >= 0.5 * total, prev_tail - tail, cdf - prev_cdf)
+    return np.maximum(raw, 0.0), float(-np.sum(raw[raw < 0]))
 
 
-def _rounding(cdf: np.ndarray, tail: np.ndarray, terms: int) -> tuple[float, float]:
-    """``(point, l1)`` rounding of a pmf formed as differences of ``cdf`` / ``tail`` values each
-    computed to relative error ``rel = (terms + 8) u``: each point errs by at most ``rel`` times
-    the two values it is the difference of.  (``terms`` counts the roundings of the sums,
-    products, ``log1p`` and ``expm1`` behind one value; libm's ``log1p``/``expm1`` are taken to
-    err by at most one ulp: an assumption, not a proof.)"""
-    rel = (terms + 8) * UNIT_ROUNDOFF
+def _rounding(cdf: np.ndarray, tail: np.ndarray, rel: float, clipped: float
+              ) -> tuple[float, float, float]:
+    """``(point, l1, cumulative)`` rounding of a pmf formed as differences of ``cdf`` / ``tail``
+    values each within relative ``rel`` of the exact ones: a point errs by at most ``rel``
+    times the two values it is the difference of (plus one rounding of the difference); a
+    cumulative sum of the differences telescopes back to one value (``cdf`` side) or to the
+    mass minus one tail value (tail side), so it errs by at most ``3 rel`` plus the roundings
+    of the differences and the negative differences set to zero."""
     v = np.minimum(cdf, tail)
     pair = v + np.concatenate(([0.0], v[:-1]))
-    return 2 * rel * float(np.max(pair, initial=0.0)) + 2 * rel, \
-        2 * rel * float(np.sum(pair)) + 2 * rel
+    u = UNIT_ROUNDOFF
+    point = (rel + u) * float(np.max(pair, initial=0.0)) + clipped + u
+    l1 = (rel + u) * float(np.sum(pair)) + clipped + u
+    return point, l1, min(3 * rel + 2 * u + clipped, l1)
 
 
 def _telescoped_l1(l1s: list[float]) -> float:
@@ -125,7 +142,9 @@ def all_of(*delays: Lattice) -> Lattice:
     probabilities keep their digits) above it.
 
     Error ledger (:mod:`polyconv.dist.ledger`): the law of a maximum is the push-forward of the
-    product measure, so ``l1 <= sum_i l1_i prod_{j != i} (1 + l1_j)`` plus rounding; truncated
+    product measure, so ``l1 <= sum_i l1_i prod_{j != i} (1 + l1_j)`` plus rounding, and
+    ``|prod F^_i - prod F_i| <= sum_i K_i prod_{j != i} (1 + K_j)`` for the cumulative bound
+    ``K`` (all cdfs in ``[0, 1 + K]``); truncated
     mass of any input lies at or above its own ``truncated_from`` (a maximum is at least each
     branch), with first moment at most ``sum_i M_i + sum_i T_i sum_{j != i} E|D_j|``
     (``|max| <= sum |D_j|``).
@@ -145,12 +164,14 @@ def all_of(*delays: Lattice) -> Lattice:
         with np.errstate(divide="ignore"):
             log_rest += np.log1p(-np.minimum(tail / r, 1.0))
     tail_max = mass * -np.expm1(log_rest)
-    pmf = _pmf_from(product, tail_max)
-    r_point, r_l1 = _rounding(product, tail_max, 4 * len(ds) + max(len(d) for d in ds))
+    pmf, clipped = _pmf_from(product, tail_max)
+    rel = _value_rel(len(ds), max(len(d) for d in ds))
+    r_point, r_l1, r_cum = _rounding(product, tail_max, rel, clipped)
     l1 = _telescoped_l1([d.errors.l1 for d in ds])
+    cum = _telescoped_l1([cum_bound(d.errors) for d in ds])
     ledger = ErrorLedger(min(l1 + r_point, 2.0), l1 + r_l1, 0.0,
                          truncated_from([(d.errors, o) for d, o in zip(ds, offs, strict=True)],
-                                        length), _max_moment(ds))
+                                        length), _max_moment(ds), cum + r_cum)
     return Lattice._make(pmf, h, base, ledger)
 
 
@@ -181,9 +202,10 @@ def first_of(*delays: Lattice) -> Lattice:
     Error ledger: ``S_i(k)`` errs by at most the cumulative error of the points up to ``k``
     (the truncated total is ``1 - sum`` of the represented part), and the law restricted to the
     grid is a push-forward of the product of the inputs' laws coarsened above the grid:
-    ``l1 <= sum_i 2 l1_i prod_{j != i} (1 + 2 l1_j)`` plus rounding.  The mass at or above the
-    grid's end is truncated, with first moment at most ``min_j E[D_j 1{D_j >= end}]``
-    (``min <= D_j``; non-negative delays).
+    ``l1 <= sum_i 2 l1_i prod_{j != i} (1 + 2 l1_j)`` plus rounding; each ``S_i(k)`` errs by at
+    most the input's cumulative bound ``K_i``, so the cumulative bound is that of all_of.  The
+    mass at or above the grid's end is truncated, with first moment at most
+    ``min_j E[D_j 1{D_j >= end}]`` (``min <= D_j``; non-negative delays).
     """
     ds = _check(delays, "first_of")
     h, base, offs, length = _grid(ds)
@@ -201,11 +223,13 @@ def first_of(*delays: Lattice) -> Lattice:
         with np.errstate(divide="ignore"):
             log_rest += np.log1p(-np.minimum(c[:limit], 1.0))
     cdf_min = -np.expm1(log_rest)
-    pmf = _pmf_from(cdf_min, product)
-    r_point, r_l1 = _rounding(cdf_min, product, 4 * len(ds) + max(len(d) for d in ds))
+    pmf, clipped = _pmf_from(cdf_min, product)
+    rel = _value_rel(len(ds), max(len(d) for d in ds))
+    r_point, r_l1, r_cum = _rounding(cdf_min, product, rel, clipped)
     l1 = _telescoped_l1([2 * d.errors.l1 for d in ds])
+    cum = _telescoped_l1([cum_bound(d.errors) for d in ds])
     moment = _min_moment(ds, offs, limit, h, base)
-    ledger = ErrorLedger(min(l1 + r_point, 2.0), l1 + r_l1, 0.0, limit, moment)
+    ledger = ErrorLedger(min(l1 + r_point, 2.0), l1 + r_l1, 0.0, limit, moment, cum + r_cum)
     return Lattice._make(pmf, h, base, ledger)
 
 
@@ -259,6 +283,7 @@ def mixture(weights, delays) -> Lattice:
     moment = float(sum(0.0 if untruncated(d.errors) else wi * d.errors.truncated_moment
                        for wi, d in zip(w, ds, strict=True)))
     tf = truncated_from([(d.errors, o) for d, o in zip(ds, offs, strict=True)], length)
+    cum = float(sum(wi * cum_bound(d.errors) for wi, d in zip(w, ds, strict=True)))
     ledger = ErrorLedger(point + rel * float(np.max(pmf)), l1 + rel * float(np.sum(pmf)), 0.0,
-                         tf, moment)
+                         tf, moment, cum + rel * float(np.sum(pmf)))
     return Lattice._make(pmf, h, base, ledger)

@@ -104,7 +104,7 @@ class Lattice:
             floor = _real(trust_floor, "trust_floor")
             if not 0 <= floor <= 1:
                 raise ValueError(f"trust_floor must lie in [0, 1]; got {trust_floor!r}")
-            ledger = ErrorLedger(floor, min(n * floor, 2.0), 0.0, n, 0.0)
+            ledger = ErrorLedger(floor, min(n * floor, 2.0), 0.0, n, 0.0, min(n * floor, 2.0))
         u = accuracy.UNIT_ROUNDOFF
         noise = ledger.point + 4 * u * float(np.max(np.abs(arr)))
         low = float(np.min(arr))
@@ -114,8 +114,9 @@ class Lattice:
                              f"float-noise tolerance {noise:.3g}")
         if low < 0:
             bump = -low
-            ledger = ledger._replace(point=max(ledger.point, bump),
-                                     l1=ledger.l1 + float(-np.sum(arr[arr < 0])))
+            moved = float(-np.sum(arr[arr < 0]))
+            ledger = ledger._replace(point=max(ledger.point, bump), l1=ledger.l1 + moved,
+                                     cumulative=min(ledger.cumulative, ledger.l1) + moved)
             np.maximum(arr, 0.0, out=arr)
         total = float(np.sum(arr))
         mass_tol = min(ledger.l1, MASS_TOL) + (n + 4) * u
@@ -146,9 +147,11 @@ class Lattice:
         total = float(np.sum(arr))
         excess = max(total - 1.0, 0.0)
         n = arr.size
-        ledger = ErrorLedger(min(float(ledger.point), 1.0), min(float(ledger.l1) + excess, 2.0),
+        l1 = min(float(ledger.l1) + excess, 2.0)
+        ledger = ErrorLedger(min(float(ledger.point), 1.0), l1,
                              _missing(total, n), int(min(max(ledger.truncated_from, 0), n)),
-                             float(ledger.truncated_moment))
+                             float(ledger.truncated_moment),
+                             min(float(ledger.cumulative) + excess, l1))
         if ledger.truncated == 0 and ledger.truncated_moment == math.inf and ledger.l1 == 0:
             ledger = ledger._replace(truncated_moment=0.0)
         out = cls.__new__(cls)

@@ -18,6 +18,7 @@ from ..api import convolve, plan
 from . import accuracy
 from .ledger import (
     ErrorLedger,
+    cum_bound,
     power_errors,
     power_moment,
     sum_errors,
@@ -76,11 +77,11 @@ def independent_sum(x, y) -> tuple[np.ndarray, float, float, ErrorLedger]:
     else:
         r_l1 = c.size * r_point
     ex, ey = x.errors, y.errors
-    point, l1 = sum_errors(ex, ma, float(a.max()), ey, mb, float(b.max()), r_point, r_l1)
+    point, l1, cum = sum_errors(ex, ma, float(a.max()), ey, mb, float(b.max()), r_point, r_l1)
     moment = sum_moment(ex, abs_moment(a, x.step, x.origin, ex), ey,
                         abs_moment(b, y.step, y.origin, ey))
     tf = truncated_from([(ex, 0), (ey, 0)], c.size)
-    return c, x.step, x.origin + y.origin, ErrorLedger(point, l1, 0.0, tf, moment)
+    return c, x.step, x.origin + y.origin, ErrorLedger(point, l1, 0.0, tf, moment, cum)
 
 
 def shifted(x, c: float) -> tuple[np.ndarray, float, float, ErrorLedger]:
@@ -104,10 +105,11 @@ def nfold(x, n: int) -> tuple[np.ndarray, float, float, ErrorLedger]:
     from scipy import fft as sfft
     res = transform_compound(power_law(n), f, full, n_fft=sfft.next_fast_len(full, real=True),
                              theta=0.0, log_alias_mass=-math.inf)
-    point, l1 = power_errors(e, n, res.trust_floor, full * res.trust_floor)
+    point, l1, cum = power_errors(e, n, res.trust_floor,
+                                  min(res.l1_bound, full * res.trust_floor))
     moment = power_moment(e, abs_moment(f, x.step, x.origin, e), n)
     tf = truncated_from([(e, 0)], full)
-    return res.pmf, x.step, n * x.origin, ErrorLedger(point, l1, 0.0, tf, moment)
+    return res.pmf, x.step, n * x.origin, ErrorLedger(point, l1, 0.0, tf, moment, cum)
 
 
 def _whole(value: float, name: str, what: str) -> int:
@@ -156,16 +158,16 @@ def layer(x, deductible, limit) -> tuple[np.ndarray, float, float, ErrorLedger]:
     if w is not None:
         merged_high = max(n - min(shift + w, n), 0)
         point = max(point, min(e.l1, merged_high * e.point))
-    l1 = e.l1
+    l1, cum = e.l1, cum_bound(e)  # merging keeps every cumulative sum of the pmf
     if untruncated(e):
-        return out, h, 0.0, ErrorLedger(point, l1, 0.0, width, 0.0)
+        return out, h, 0.0, ErrorLedger(point, l1, 0.0, width, 0.0, cum)
     t_low, t_high = t_bounds(e, float(pmf.sum()), n)
     if w is not None and e.truncated_from >= shift + w:
         out[-1] += e.truncated
         slack = max(t_high - e.truncated, e.truncated - t_low)
-        return out, h, 0.0, ErrorLedger(point + slack, l1 + slack, 0.0, width, 0.0)
+        return out, h, 0.0, ErrorLedger(point + slack, l1 + slack, 0.0, width, 0.0, cum + slack)
     moment = e.truncated_moment + max(-d, 0.0) * t_high
     if not math.isinf(lim):
         moment = min(moment, lim * t_high)
     tf = min(max(e.truncated_from - shift, 0), width)
-    return out, h, 0.0, ErrorLedger(point, l1, 0.0, tf, moment)
+    return out, h, 0.0, ErrorLedger(point, l1, 0.0, tf, moment, cum)

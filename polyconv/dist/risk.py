@@ -40,7 +40,7 @@ import numbers
 import numpy as np
 
 from .accuracy import UNIT_ROUNDOFF
-from .ledger import ErrorLedger, t_bounds, untruncated
+from .ledger import ErrorLedger, cum_bound, t_bounds, untruncated
 
 SNAP = 1e-9
 """An ``x`` within ``SNAP`` lattice steps of a lattice point counts as that point (so 0.3 on a grid
@@ -59,6 +59,8 @@ PROBABILITY_RTOL = 1.0
 significant digit)."""
 
 _U = UNIT_ROUNDOFF
+_UL = float(np.finfo(np.longdouble).eps) / 2
+"""Unit roundoff of longdouble, in which the cumulative sums run."""
 
 
 def real_value(value, name: str) -> float:
@@ -118,13 +120,15 @@ def tail_sums(pmf: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
     Built from the right by ``T_m = T_{m+1} + S_{m+1}``: sums of non-negative terms, no
     cancellation (so far tails keep their relative accuracy).
+    Sums run in longdouble and are rounded once to float64 (so each ``S_m`` is within
+    ``u + (n - m) u_long`` of the exact sum, relative; ``T_m`` within ``u + 2 n u_long``).
     """
     n = pmf.size
-    s = np.zeros(n + 1)
-    s[:n] = np.cumsum(pmf[::-1])[::-1]
-    t = np.zeros(n + 1)
+    s = np.zeros(n + 1, dtype=np.longdouble)
+    s[:n] = np.cumsum(np.asarray(pmf, dtype=np.longdouble)[::-1])[::-1]
+    t = np.zeros(n + 1, dtype=np.longdouble)
     t[:n] = np.cumsum(s[1:][::-1])[::-1]
-    return s, t
+    return s.astype(float), t.astype(float)
 
 
 class Bracketer:
@@ -143,7 +147,7 @@ class Bracketer:
     def __init__(self, pmf: np.ndarray, step: float, origin: float, ledger: ErrorLedger):
         n = pmf.size
         self.n, self.h, self.o, self.ledger, self.pmf = n, step, origin, ledger, pmf
-        self.cum = np.cumsum(pmf)
+        self.cum = np.cumsum(np.asarray(pmf, dtype=np.longdouble)).astype(float)
         self.s, self.t = tail_sums(pmf)
         mass = float(self.s[0])
         self.mass = mass
@@ -151,23 +155,25 @@ class Bracketer:
         if untruncated(ledger):
             self.t_low = self.t_high = 0.0
         k = np.arange(n)
-        self.C = np.minimum(ledger.l1, (k + 1) * ledger.point)
+        kb = cum_bound(ledger)
+        self.C = np.minimum(kb, (k + 1) * ledger.point)  # |sum_{j <= k} e_j|
         j = np.arange(n + 1)
         self.B = np.minimum(ledger.l1, (n - j) * ledger.point)  # bound of sum_{k>=j} |e_k|
+        self.Bt = np.minimum(self.B, 2 * kb)  # bound of |sum_{k>=j} e_k| (signed)
         sb = np.zeros(n + 2)
-        sb[: n + 1] = np.cumsum(self.B[::-1])[::-1]
-        self.SB = sb  # SB[j] = sum_{i >= j} B_i
+        sb[: n + 1] = np.cumsum(self.Bt[::-1])[::-1]
+        self.SB = sb  # SB[j] = sum_{i >= j} Bt_i
         self.tf = ledger.truncated_from
         # cdf at index k from both routes
-        rc = (k + 2) * _U * self.cum + 2 * _U
+        rc = (_U + (k + 2) * _UL) * self.cum + 2 * _U
         tail = self.s[1:]
-        rs = (n - k + 2) * _U * tail
+        rs = (_U + (n - k + 2) * _UL) * tail
         maybe_below = k >= self.tf
         cum_low = self.cum - self.C - rc
         cum_high = self.cum + self.C + rc + np.where(maybe_below, self.t_high, 0.0)
-        tail_low = np.maximum(tail - self.B[1:] - rs, 0.0) + np.where(maybe_below, 0.0,
-                                                                       self.t_low)
-        tail_high = tail + self.B[1:] + rs + self.t_high
+        tail_low = np.maximum(tail - self.Bt[1:] - rs, 0.0) + np.where(maybe_below, 0.0,
+                                                                        self.t_low)
+        tail_high = tail + self.Bt[1:] + rs + self.t_high
         self.F_low = np.clip(np.maximum(cum_low, 1.0 - tail_high - 2 * _U), 0.0, 1.0)
         self.F_high = np.clip(np.minimum(cum_high, 1.0 - tail_low + 2 * _U), 0.0, 1.0)
         self.S_low = np.clip(np.maximum(tail_low, 1.0 - cum_high - 2 * _U), 0.0, 1.0)
@@ -234,8 +240,9 @@ class Bracketer:
         m = np.clip(lattice_index(d, self.o, h, n) + 1, 0, n)
         xm = self.o + h * m
         value = h * self.t[m] + (xm - d) * self.s[m]
-        err = (xm - d) * self.B[m] + h * self.SB[np.minimum(m + 1, n + 1)]
-        err = err + (2 * (n - m) + 4) * _U * value
+        err = (xm - d) * self.Bt[m] + h * self.SB[np.minimum(m + 1, n + 1)]
+        err = err + (8 * _U + 2 * (n - m + 2) * _UL) * value \
+            + 4 * _U * (np.abs(xm) + np.abs(d)) * self.s[m]  # float x_m - d
         x_from = self.o + h * self.tf
         trunc_low = self.t_low * np.maximum(x_from - d, 0.0)
         trunc_high = self._moment_high() + np.maximum(-d, 0.0) * self.t_high
@@ -264,23 +271,26 @@ class Bracketer:
         _, sl_lo, sl_hi = self._sl_arrays()
         x = self.o + self.h * np.arange(self.n)
         top = min(hi_k, self.n - 1)
+        beyond = (self.o + self.h * self.n) - 4 * _U * (abs(self.o) + self.h * self.n)
         if lo_k >= self.n:  # the quantile lies beyond the grid for every model in range
-            return self.o + self.h * self.n, float(np.min(x + sl_hi / (1 - p)))
+            return beyond, float(np.min(x + sl_hi / (1 - p)))
         seg = slice(lo_k, top + 1)
-        low = float(np.min(x[seg] + sl_lo[seg] / (1 - p)))
+        # float rounding of x_k = origin + step k and of x + SL / (1 - p): a few ulps
+        slack = 6 * _U * (np.abs(x) + np.abs(self.o) + (sl_hi / (1 - p)))
+        low = float(np.min(x[seg] + sl_lo[seg] / (1 - p) - slack[seg]))
         if hi_k >= self.n:
-            low = min(low, self.o + self.h * self.n)
-        high = float(np.min(x + sl_hi / (1 - p)))
+            low = min(low, beyond)
+        high = float(np.min(x + sl_hi / (1 - p) + slack))
         return low, max(high, low)
 
     # -- moments ----------------------------------------------------------------------------
     def mean_range(self, value: float) -> tuple[float, float]:
         """Certified range of the exact mean around the lattice's own ``value``."""
-        err = abs(self.o) * min(self.ledger.l1, self.n * self.ledger.point) \
+        err = abs(self.o) * min(cum_bound(self.ledger), self.n * self.ledger.point) \
             + self.h * float(self.SB[1])
         absum = float(np.dot(np.abs(self.o + self.h * np.arange(self.n)), np.diff(
             np.concatenate(([0.0], self.cum)))))
-        err += (self.n + 2) * _U * absum
+        err += (self.n + 2) * _U * absum + 4 * _U * (abs(self.o) * self.mass + abs(value))
         x_from = self.o + self.h * self.tf
         m = self._moment_high()
         t_lo = self.t_low * x_from if x_from >= 0 else -m

@@ -148,6 +148,9 @@ class TransformResult:
     theta: float
     rounding_floor: float
     aliasing_floor: float
+    l1_bound: float = float("inf")
+    """Bound of the L1 norm of the error over the ``size`` entries (see
+    :func:`polyconv.dist.accuracy.untilted_l1`)."""
 
 
 def transform_compound(law: TransformLaw, f: np.ndarray, size: int, *, n_fft: int | None = None,
@@ -208,7 +211,8 @@ def _transform_once(law, f, size, n_fft, theta, log_alias_mass) -> TransformResu
     ft = f * np.exp(-theta * j) if theta > 0 else f
     phi = sfft.rfft(ft, n_fft)
     big_g = law.pgf(phi)
-    gt = sfft.irfft(big_g, n_fft)[:size]
+    g_full = sfft.irfft(big_g, n_fft)
+    gt = g_full[:size]
     # floor: Lipschitz factor ||P'(phi)||_2 / sqrt(M) over the full (Hermitian) spectrum
     if law.ratio is not None:
         deriv = np.abs(law.ratio(phi) * big_g)
@@ -216,7 +220,7 @@ def _transform_once(law, f, size, n_fft, theta, log_alias_mass) -> TransformResu
         lip = min(lip, law.mean) if law.mean > 0 else lip
     else:
         lip = law.mean
-    l2_out = float(np.sqrt(np.sum(gt * gt)))
+    l2_out = float(np.sqrt(np.sum(g_full * g_full)))  # the inverse transform's whole output
     rounding = accuracy.transform_compound_floor(n_fft, float(np.sum(np.abs(ft))), lip,
                                                  law.pgf_rel * u, law.pgf_abs * u, l2_out)
     if theta > 0:
@@ -226,7 +230,8 @@ def _transform_once(law, f, size, n_fft, theta, log_alias_mass) -> TransformResu
     rounding_u = accuracy.untilted_floor(rounding, theta, size - 1)
     alias = accuracy.aliasing_bound(log_alias_mass, theta, n_fft)
     np.maximum(g, 0.0, out=g)
-    return TransformResult(g, rounding_u + alias, n_fft, theta, rounding_u, alias)
+    l1 = accuracy.untilted_l1(rounding, theta, size) + alias
+    return TransformResult(g, rounding_u + alias, n_fft, theta, rounding_u, alias, l1)
 
 
 def _hermitian_sq_sum(half: np.ndarray, n_fft: int) -> float:

@@ -1,0 +1,441 @@
+"""Randomised campaign of the Lattice error model against high-precision references.
+
+    python bench/risk_campaign.py [--seconds 600] [--seed 1] [--models 10000]
+
+Draws random models: base pmfs (dyadic probabilities, so the float pmf *is* the exact model;
+sometimes with their last points dropped as truncated mass, with or without a known first
+moment), steps, origins, and one or two operations among ``+``, shift, ``nfold``, ``compound``
+(Poisson, negative binomial and binomial counts; FFT route and Panjer recursion), ``layer``,
+``all_of``, ``first_of`` and ``mixture``.  The same model is computed exactly in mpmath
+(50 digits: convolutions, Panjer's recursion with ``g_0 = P_N(f_0)``, products of cdfs) on the same
+lattice, and every answer is checked:
+
+(i)   every returned quantile satisfies the lattice's own ``cdf(q) >= p``;
+(ii)  every certified range contains the reference: cdf and sf at every lattice point,
+      ``quantile_bracket``, ``bounded("tvar")``, ``bounded("stop_loss")``, ``bounded("mean")``;
+(iii) questions past the grid with truncated mass return nan.
+
+It prints counts, failures (with a reproducer seed) and the bound / observed ratios: for cdf/sf
+the per-model ratio ``max_k halfwidth_k / max_k |error_k|`` (over points with a reference), for
+VaR brackets ``(width + step) / (|own - ref| + step)``, for TVaR ``halfwidth / |value - ref|``;
+observed errors are floored at one unit roundoff of the reference value (a float answer cannot
+be closer than that, and many computations here are exact in floats).
+Stop-loss references use ``E[(S - d)+] = E[S] - d + E[(d - S)+]`` with ``E[S]`` exact (Wald's
+identity for compounds), so a reference needs only the on-grid part.
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+import random
+import sys
+import time
+import warnings
+from collections import Counter, defaultdict
+from pathlib import Path
+
+import mpmath as mp
+import numpy as np
+from scipy import stats
+
+sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
+
+from polyconv.dist import ErrorLedger, Lattice, all_of, compound, first_of, mixture  # noqa: E402
+
+mp.mp.dps = 50
+ULP = 2.0 ** -53  # observed errors are floored at one unit roundoff of the reference value
+REF_SLACK = mp.mpf(10) ** -40  # rounding of the 50-digit reference
+LEVELS = (0.5, 0.9, 0.99, 0.995, 0.999)
+STEPS = (1.0, 0.5, 0.1, 2.5, 100.0)
+
+
+class Ref:
+    """Exact model on a lattice: probabilities ``g`` (mpf) at indices ``off + j``, exact for
+    ``j < known``; total mass 1; ``mean`` exact or None."""
+
+    def __init__(self, g, off: int, known: int, mean, full: bool):
+        self.g, self.off, self.known, self.mean, self.full = list(g), off, known, mean, full
+        self.cum = []
+        acc = mp.mpf(0)
+        for v in self.g[:known]:
+            acc += v
+            self.cum.append(acc)
+
+    def cdf(self, i: int):
+        """``F`` at absolute index ``i`` or None when unknown."""
+        j = i - self.off
+        if j < 0:
+            return mp.mpf(0)
+        if j < self.known:
+            return self.cum[j]
+        return mp.mpf(1) if self.full else None
+
+    def quantile(self, p: float):
+        """Smallest absolute index with ``F >= p``, or None when not within the known part."""
+        pm = mp.mpf(p)
+        for j, c in enumerate(self.cum):
+            if c >= pm:
+                return self.off + j
+        return None
+
+    def stop_loss(self, d_index: int, h: float):
+        """``E[(X - x_d)+]`` in steps of ``h`` (``X`` in units of steps), or None."""
+        if self.mean is None or d_index - self.off >= self.known:
+            return None
+        acc = mp.mpf(0)
+        for j in range(0, max(d_index - self.off + 1, 0)):
+            acc += (d_index - self.off - j) * self.g[j]
+        return (self.mean - d_index + acc) * h
+
+
+def conv(a, b):
+    out = [mp.mpf(0)] * (len(a) + len(b) - 1)
+    for i, x in enumerate(a):
+        if x == 0:
+            continue
+        for j, y in enumerate(b):
+            out[i + j] += x * y
+    return out
+
+
+def mean_of(g, off):
+    return sum(((off + j) * v for j, v in enumerate(g)), mp.mpf(0))
+
+
+# ------------------------------------------------------------------------ random models
+def base(rng: random.Random, h: float, allow_trunc: bool = True):
+    n = rng.randint(1, 20)
+    parts = [rng.randint(0, 1 << 10) for _ in range(n)]
+    parts[-1] += 1
+    total = sum(parts)
+    k = 1 << (total.bit_length() + 2)
+    parts[0] += k - total  # dyadic: the float pmf is exact and sums to 1 exactly
+    rng.shuffle(parts)
+    if parts[-1] == 0:
+        parts[-1] = 1
+        parts[0] -= 1
+    probs = [mp.mpf(v) / k for v in parts]
+    off = rng.randint(0, 3)
+    lat_pmf = np.array([v / k for v in parts])
+    ref = Ref(probs, off, n, mean_of(probs, off), True)
+    if allow_trunc and n > 3 and rng.random() < 0.3:
+        drop = rng.randint(1, min(3, n - 1))
+        kept = lat_pmf[:-drop]
+        tail = probs[-drop:]
+        t = float(sum(tail))
+        if rng.random() < 0.5:
+            lat = Lattice(kept, h, off * h)  # truncated moment unknown
+        else:
+            moment = float(sum(((off + n - drop + j) * v for j, v in enumerate(tail)),
+                               mp.mpf(0)) * h) * (1 + 1e-15)
+            lat = Lattice(kept, h, off * h, errors=ErrorLedger(0.0, 0.0, t, kept.size, moment))
+        return lat, ref
+    return Lattice(lat_pmf, h, off * h), ref
+
+
+def counts_law(rng: random.Random):
+    kind = rng.choice(["poisson", "poisson", "nbinom", "binom", "poisson0"])
+    if kind == "poisson":
+        lam = rng.choice([0.5, 1.0, 3.0, 7.5, 15.0])
+        return stats.poisson(lam), ("poisson", lam)
+    if kind == "poisson0":
+        return stats.poisson(0.0), ("poisson", 0.0)
+    if kind == "nbinom":
+        r, p = rng.choice([1.0, 2.0, 4.5]), rng.choice([0.3, 0.5, 0.8])
+        return stats.nbinom(r, p), ("nbinom", r, p)
+    m, p = rng.randint(1, 12), rng.choice([0.1, 0.3, 0.6])
+    return stats.binom(m, p), ("binom", m, p)
+
+
+def panjer_ref(desc, f, size):
+    kind = desc[0]
+    f = [mp.mpf(v) for v in f]
+    if kind == "poisson":
+        lam = mp.mpf(desc[1])
+        a, b = mp.mpf(0), lam
+        g0 = mp.exp(-lam * (1 - f[0]))
+        en = lam
+    elif kind == "nbinom":
+        r, p = mp.mpf(desc[1]), mp.mpf(desc[2])
+        a, b = 1 - p, (r - 1) * (1 - p)
+        g0 = (p / (1 - (1 - p) * f[0])) ** r
+        en = r * (1 - p) / p
+    else:
+        m, p = desc[1], mp.mpf(desc[2])
+        a, b = -p / (1 - p), (m + 1) * p / (1 - p)
+        g0 = (1 - p + p * f[0]) ** m
+        en = m * p
+    g = [g0]
+    c = 1 / (1 - a * f[0])
+    for x in range(1, size):
+        acc = mp.mpf(0)
+        for y in range(1, min(x, len(f) - 1) + 1):
+            acc += (a + b * y / x) * f[y] * g[x - y]
+        g.append(c * acc)
+    return g, en
+
+
+def draw(rng: random.Random):
+    """One random model: (lattice, reference, description)."""
+    h = rng.choice(STEPS)
+    op = rng.choice(["+", "nfold", "compound-fft", "compound-recursion", "layer", "all_of",
+                     "first_of", "mixture", "shift"])
+    if op == "+":
+        (x, rx), (y, ry) = base(rng, h), base(rng, h)
+        lat = x + y
+        g = conv(rx.g, ry.g)
+        ref = Ref(g, rx.off + ry.off, len(g), mean_of(g, rx.off + ry.off), True)
+    elif op == "shift":
+        x, rx = base(rng, h)
+        c = rng.randint(-5, 5)
+        lat = x + c * h
+        ref = Ref(rx.g, rx.off + c, rx.known, rx.mean + c, True)
+    elif op == "nfold":
+        x, rx = base(rng, h)
+        n = rng.randint(0, 6)
+        lat = x.nfold(n)
+        g, off = [mp.mpf(1)], 0
+        for _ in range(n):
+            g, off = conv(g, rx.g), off + rx.off
+        ref = Ref(g, off, len(g), mean_of(g, off), True)
+    elif op.startswith("compound"):
+        x, rx = base(rng, h, allow_trunc=rng.random() < 0.5)
+        counts, desc = counts_law(rng)
+        size = rng.randint(8, 240)
+        method = op.split("-")[1]
+        lat = compound(counts, x, method=method, size=size)
+        f = [mp.mpf(0)] * rx.off + rx.g
+        g, en = panjer_ref(desc, f, size)
+        ref = Ref(g, 0, size, en * (rx.mean), False)
+    elif op == "layer":
+        x, rx = base(rng, h)
+        n = len(x)
+        d_idx = rng.randint(rx.off - 2, rx.off + n + 1)
+        lim_steps = rng.choice([None, rng.randint(1, n + 3)])
+        lat = x.layer(d_idx * h, math.inf if lim_steps is None else lim_steps * h)
+        shift = d_idx - rx.off
+        width = max(len(rx.g) - 1 - shift, 0) + 1 if lim_steps is None else lim_steps + 1
+        g = [mp.mpf(0)] * width
+        for j, v in enumerate(rx.g):
+            g[min(max(j - shift, 0), width - 1)] += v
+        ref = Ref(g, 0, width, mean_of(g, 0), True)
+    elif op in ("all_of", "first_of"):
+        k = rng.randint(2, 4)
+        items = [base(rng, h) for _ in range(k)]
+        fn = all_of if op == "all_of" else first_of
+        lat = fn(*[it[0] for it in items])
+        refs = [it[1] for it in items]
+        lo = min(r.off for r in refs)
+        hi = max(r.off + len(r.g) for r in refs)
+        cdfs = []
+        for i in range(lo, hi):
+            vals = [r.cdf(i) for r in refs]
+            if op == "all_of":
+                cdfs.append(mp.fprod(vals))
+            else:
+                cdfs.append(1 - mp.fprod([1 - v for v in vals]))
+        g = [cdfs[0]] + [cdfs[i] - cdfs[i - 1] for i in range(1, len(cdfs))]
+        ref = Ref(g, lo, len(g), mean_of(g, lo), True)
+    else:  # mixture
+        k = rng.randint(2, 4)
+        items = [base(rng, h) for _ in range(k)]
+        w = [rng.randint(1, 7) for _ in range(k)]
+        tot = 1 << (sum(w).bit_length() + 1)
+        w[0] += tot - sum(w)
+        weights = [v / tot for v in w]
+        lat = mixture(weights, [it[0] for it in items])
+        refs = [it[1] for it in items]
+        lo = min(r.off for r in refs)
+        hi = max(r.off + len(r.g) for r in refs)
+        g = [mp.mpf(0)] * (hi - lo)
+        for wi, r in zip(weights, refs, strict=True):
+            for j, v in enumerate(r.g):
+                g[r.off - lo + j] += mp.mpf(wi) * v
+        ref = Ref(g, lo, len(g), sum((mp.mpf(wi) * r.mean for wi, r in zip(weights, refs,
+                                                                         strict=True))), True)
+    return lat, ref, op
+
+
+# ------------------------------------------------------------------------ checks
+class Tally:
+    def __init__(self):
+        self.counts = Counter()
+        self.failures = []
+        self.ratios = {"cdf": [], "sf": [], "var": [], "tvar": []}
+        self.by_op = defaultdict(list)
+
+    def fail(self, what, seed, detail):
+        self.counts["FAIL " + what] += 1
+        if len(self.failures) < 20:
+            self.failures.append(f"{what} (seed {seed}): {detail}")
+
+
+def check(lat: Lattice, ref: Ref, op: str, seed: int, tally: Tally, rng: random.Random):
+    h = lat.step
+    base_idx = int(round(lat.origin / h))
+    n = len(lat)
+    br = lat._br()
+    ks = np.arange(n)
+    lo_c, hi_c = br.cdf_range(ks)
+    lo_s, hi_s = br.sf_range(ks)
+    cdf_own = br.cum
+    sf_own = np.minimum(br.s[1:] + lat.truncated_mass, 1.0)
+    worst = {"cdf": [0.0, 0.0], "sf": [0.0, 0.0]}
+    for k in range(n):
+        c = ref.cdf(base_idx + k)
+        if c is None:
+            continue
+        s = 1 - c
+        tally.counts["cdf/sf points"] += 1
+        for name, val, lo, hi, own in (("cdf", c, lo_c[k], hi_c[k], cdf_own[k]),
+                                       ("sf", s, lo_s[k], hi_s[k], sf_own[k])):
+            if not (mp.mpf(lo) - REF_SLACK <= val <= mp.mpf(hi) + REF_SLACK):
+                tally.fail(f"{name} range", seed, f"{op} k={k} ref={mp.nstr(val, 20)} "
+                           f"range=[{lo!r}, {hi!r}]")
+            err = max(float(abs(mp.mpf(own) - val)), ULP * float(val))
+            half = max(hi - own, own - lo)
+            worst[name][0] = max(worst[name][0], half)
+            worst[name][1] = max(worst[name][1], err)
+    for name in ("cdf", "sf"):
+        half, err = worst[name]
+        if err > 0:
+            tally.ratios[name].append(half / err)
+            tally.by_op[(name, op)].append(half / err)
+    levels = list(LEVELS) + [rng.random() * 0.999 + 0.0005]
+    for p in levels:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            q = lat.quantile(p)
+            low, high = lat.quantile_bracket(p)
+            tv = lat.bounded("tvar", p)
+        tally.counts["quantiles"] += 1
+        if not math.isnan(q):
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                if not lat.cdf(q) >= p:
+                    tally.fail("own quantile", seed, f"{op} p={p} q={q} cdf={lat.cdf(q)}")
+        qi = ref.quantile(p)
+        if qi is None:
+            # the reference quantile lies beyond its known part: only high must allow it
+            last_known = ref.off + ref.known - 1
+            if high < (last_known + 1 - 1e-9) * h:
+                tally.fail("bracket (beyond)", seed, f"{op} p={p} bracket=({low}, {high})")
+            continue
+        qv = qi * h
+        tally.counts["brackets"] += 1
+        if not (low <= qv + 1e-9 * h <= high + 2e-9 * h and qv - 1e-9 * h <= high):
+            tally.fail("quantile bracket", seed, f"{op} p={p} ref={qv} bracket=({low}, {high})"
+                       f" own={q}")
+        if not math.isnan(q) and math.isfinite(high):
+            tally.ratios["var"].append((high - low + h) / (abs(q - qv) + h))
+        sl = ref.stop_loss(qi, h)
+        if sl is not None:
+            tref = qv + sl / (1 - mp.mpf(p))
+            tally.counts["tvar checks"] += 1
+            if not (mp.mpf(tv.low) - REF_SLACK * (1 + abs(tref)) <= tref
+                    <= mp.mpf(tv.high) + REF_SLACK * (1 + abs(tref))):
+                tally.fail("tvar range", seed, f"{op} p={p} ref={mp.nstr(tref, 17)} "
+                           f"range=[{tv.low!r}, {tv.high!r}] value={tv.value!r}")
+            if tv.refused:
+                tally.counts["tvar refused"] += 1
+            elif math.isfinite(tv.value):
+                err = max(float(abs(mp.mpf(tv.value) - tref)), ULP * abs(float(tref)))
+                if err > 0:
+                    half = max(tv.high - tv.value, tv.value - tv.low)
+                    tally.ratios["tvar"].append(half / err)
+                    tally.by_op[("tvar", op)].append(half / err)
+    for d_idx in (base_idx - 1, base_idx + n // 2, base_idx + n - 1):
+        sl = ref.stop_loss(d_idx, h)
+        if sl is None:
+            continue
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            b = lat.bounded("stop_loss", d_idx * h)
+        tally.counts["stop-loss checks"] += 1
+        if not (mp.mpf(b.low) - REF_SLACK * (1 + abs(sl)) <= sl
+                <= mp.mpf(b.high) + REF_SLACK * (1 + abs(sl))):
+            tally.fail("stop-loss range", seed, f"{op} d={d_idx * h} ref={mp.nstr(sl, 17)} "
+                       f"range=[{b.low!r}, {b.high!r}]")
+    if ref.mean is not None:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            b = lat.bounded("mean")
+        m = ref.mean * h
+        tally.counts["mean checks"] += 1
+        if not (mp.mpf(b.low) - REF_SLACK * (1 + abs(m)) <= m
+                <= mp.mpf(b.high) + REF_SLACK * (1 + abs(m))):
+            tally.fail("mean range", seed, f"{op} ref={mp.nstr(m, 17)} "
+                       f"range=[{b.low!r}, {b.high!r}]")
+    if lat.truncated_mass > 0:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            v = lat.sf(lat.origin + h * (n + 2))
+        tally.counts["beyond-grid questions"] += 1
+        if not math.isnan(v):
+            tally.fail("beyond grid", seed, f"{op} sf past the grid = {v!r}")
+
+
+def summary(values, name):
+    if not values:
+        return f"{name}: no samples"
+    a = np.array(values)
+    q = np.percentile(a, [50, 90, 99])
+    return (f"{name}: n={a.size} median {q[0]:.3g}, p90 {q[1]:.3g}, p99 {q[2]:.3g}, "
+            f"max {a.max():.3g}; within goal {np.mean(a <= GOALS[name]) * 100:.1f}%")
+
+
+GOALS = {"cdf": 100.0, "sf": 100.0, "var": 10.0, "tvar": 10.0}
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--seconds", type=float, default=600.0)
+    ap.add_argument("--seed", type=int, default=1)
+    ap.add_argument("--models", type=int, default=10_000)
+    ap.add_argument("--by-op", action="store_true", help="ratios per operation")
+    args = ap.parse_args(argv)
+    tally = Tally()
+    ops = Counter()
+    t0 = time.monotonic()
+    i = 0
+    while i < args.models and time.monotonic() - t0 < args.seconds:
+        seed = args.seed * 1_000_003 + i
+        rng = random.Random(seed)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            try:
+                lat, ref, op = draw(rng)
+            except Exception as exc:  # a crash is a finding
+                tally.fail("crash", seed, repr(exc))
+                i += 1
+                continue
+        ops[op] += 1
+        try:
+            check(lat, ref, op, seed, tally, rng)
+        except Exception as exc:
+            tally.fail("crash in check", seed, f"{op}: {exc!r}")
+        i += 1
+    elapsed = time.monotonic() - t0
+    print(f"models: {i} in {elapsed:.0f} s (seed {args.seed})")
+    print("operations: " + ", ".join(f"{k} {v}" for k, v in sorted(ops.items())))
+    for k, v in sorted(tally.counts.items()):
+        print(f"  {k}: {v}")
+    for name in ("cdf", "sf", "var", "tvar"):
+        print("  ratio " + summary(tally.ratios[name], name))
+    if args.by_op:
+        for (name, op), vals in sorted(tally.by_op.items()):
+            a = np.array(vals)
+            print(f"    {name:5s} {op:20s} n={a.size:5d} median {np.median(a):9.3g} "
+                  f"p90 {np.percentile(a, 90):9.3g} max {a.max():9.3g}")
+    if tally.failures:
+        print("FAILURES:")
+        for f in tally.failures:
+            print("  " + f)
+        return 1
+    print("no failures")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
