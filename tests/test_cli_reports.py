@@ -70,6 +70,28 @@ def stop_loss(pmf: np.ndarray, values: np.ndarray, d: float) -> float:
     return float(np.sum(np.maximum(values - d, 0.0) * pmf))
 
 
+def row(rows: list[dict], name: str, value: float) -> dict:
+    """The report row asked at ``name == value`` (a level, retention, deadline, percentile)."""
+    (found,) = [r for r in rows if r[name] == value]
+    return found
+
+
+def within(r: dict, reference: float, rel: float = 1e-9) -> bool:
+    """``reference`` lies in the row's certified range, widened by ``rel`` for the rounding of
+    the independent reference computation itself (``high`` null: no finite upper end)."""
+    slack = rel * abs(reference)
+    high = math.inf if r["high"] is None else r["high"]
+    return r["low"] - slack <= reference <= high + slack
+
+
+def agrees(r: dict, reference: float, rel: float) -> bool:
+    """The row's range holds the reference, and its value is the reference unless refused (a
+    refused row has no value and says why)."""
+    if r["refused"]:
+        return r["value"] is None and bool(r["reason"]) and within(r, reference, rel)
+    return r["value"] == pytest.approx(reference, rel=rel) and within(r, reference, rel)
+
+
 def limited_mean(law, u: float) -> float:
     """Limited expected value E[X ^ u] = int_0^u S(x) dx (Klugman, Panjer & Willmot, ch. 3)."""
     return integrate.quad(law.sf, 0, u, limit=200)[0]
@@ -102,25 +124,29 @@ def test_demo_claims_match_panjer_recursion_and_loss_models_formulas(demo):
     g = panjer(1 - p, (r - 1) * (1 - p), g0, layer, s["grid_points"])
     xs = h * np.arange(g.size)
     # E[S] = E[N] E[Y] (Wald's identity; Klugman, Panjer & Willmot, Loss Models, ch. 9)
-    assert s["mean"] == pytest.approx(mean_n * ey, rel=1e-9)
+    assert agrees(s["mean"], mean_n * ey, rel=1e-9) and not s["mean"]["refused"]
     # E[Y] against the continuous law: E[X ^ (d + lim)] - E[X ^ d] (Loss Models, ch. 8);
     # nearest-point discretisation is not mean-preserving, hence the looser tolerance
     ey_cont = limited_mean(sev, d + lim) - limited_mean(sev, d)
-    assert s["mean_per_claim"] == pytest.approx(ey_cont, rel=2e-3)
+    assert s["mean_per_claim"]["value"] == pytest.approx(ey_cont, rel=2e-3)
     # Var S = E[N] Var Y + Var N E[Y]^2 (Loss Models, ch. 9)
-    assert s["sd"] == pytest.approx(math.sqrt(mean_n * vy + var_n * ey**2), rel=1e-8)
+    sd = math.sqrt(mean_n * vy + var_n * ey**2)
+    assert agrees(s["sd"], sd, rel=1e-8)
     for level in (0.90, 0.95, 0.99, 0.995, 0.999):
-        key = f"{level * 100:.10g}%"
         var = lower_quantile(g, xs, level)
-        assert s["var"][key] == var
+        r = row(s["var"], "level", level)
+        assert r["label"] == f"VaR {level * 100:.10g}%"
+        assert r["value"] == var and within(r, var) and not r["refused"]
         # TVaR_p = VaR_p + E[(S - VaR_p)+] / (1 - p) (Acerbi & Tasche 2002)
-        assert s["tvar"][key] == pytest.approx(var + stop_loss(g, xs, var) / (1 - level),
-                                               rel=1e-9)
+        tvar = var + stop_loss(g, xs, var) / (1 - level)
+        r = row(s["tvar"], "level", level)
+        assert r["value"] == pytest.approx(tvar, rel=1e-9) and within(r, tvar)
     for retention in spec["report"]["retentions"]:
-        assert s["stop_loss"][f"{retention:g}"] == pytest.approx(stop_loss(g, xs, retention),
-                                                                 rel=1e-8)
+        ref = stop_loss(g, xs, retention)
+        r = row(s["stop_loss"], "retention", retention)
+        assert r["value"] == pytest.approx(ref, rel=1e-8) and within(r, ref, rel=1e-8)
     assert 0 <= s["truncated_mass"] < 1e-10
-    assert s["trust_floor"] < 1e-9
+    assert s["errors"]["point"] < 1e-9
 
 
 def _write(tmp_path: Path, name: str, text: str) -> Path:
@@ -154,16 +180,17 @@ def test_aggregate_poisson_empirical_round_trip(tmp_path, capsys):
     # compound Poisson: E[S] = lam E[X], Var S = lam E[X^2] (Loss Models, ch. 9)
     ex = 0.5 * 100 + 0.3 * 250 + 0.2 * 1000
     ex2 = 0.5 * 100**2 + 0.3 * 250**2 + 0.2 * 1000**2
-    assert s["mean"] == pytest.approx(3.5 * ex, rel=1e-10)
-    assert s["sd"] == pytest.approx(math.sqrt(3.5 * ex2), rel=1e-9)
+    assert agrees(s["mean"], 3.5 * ex, rel=1e-10)
+    assert agrees(s["sd"], math.sqrt(3.5 * ex2), rel=1e-9)
     # P(S = 0) = e^-lam, and the first row of the CSV says so
     rows = (out / "aggregate.csv").read_text().splitlines()
     assert rows[0] == "amount,probability,cdf,exceedance"
     assert float(rows[1].split(",")[1]) == pytest.approx(math.exp(-3.5), rel=1e-12)
     assert sorted(p.name for p in out.iterdir()) == ["aggregate.csv", "aggregate.png",
-                                                     "summary.json", "summary.md"]
+                                                     "measures.csv", "summary.json",
+                                                     "summary.md"]
     md = (out / "summary.md").read_text()
-    assert "model output, not advice" in md and "qualified actuarial" in md
+    assert "model output, not advice" in md and "licensed actuarial" in md
     # terminal report carries the caution too
     assert main(["aggregate", str(spec), "-o", str(out), "--quiet"]) == 0
     text = capsys.readouterr().out
@@ -189,8 +216,8 @@ def test_aggregate_binomial_counts_against_direct_sum(tmp_path, capsys):
     assert main(["aggregate", str(spec), "-o", str(tmp_path / "r"), "--json", "--quiet"]) == 0
     s = json.loads(capsys.readouterr().out)
     ref = stats.binom(40, 0.1 * 0.3)  # thinning a binomial count keeps it binomial
-    assert s["mean"] == pytest.approx(ref.mean(), rel=1e-12)
-    assert s["var"]["99%"] == ref.ppf(0.99)
+    assert s["mean"]["value"] == pytest.approx(ref.mean(), rel=1e-12)
+    assert row(s["var"], "level", 0.99)["value"] == ref.ppf(0.99)
 
 
 # ------------------------------------------------------------------------------- delays
@@ -236,15 +263,25 @@ def test_demo_pipeline_matches_an_independent_numpy_evaluation(demo):
     for part in (fraud, prepare, hand):
         total = np.convolve(total, part)[:n]
     for q in spec["report"]["percentiles"]:
-        assert s["percentiles"][f"p{q:g}"] < n
-        assert s["percentiles"][f"p{q:g}"] == lower_quantile(total, t, q / 100), q
+        r = row(s["percentiles"], "percentile", q)
+        assert r["label"] == f"p{q:g}" and r["value"] < n
+        ref = lower_quantile(total, t, q / 100)
+        assert r["value"] == ref and within(r, ref), q
     for deadline in spec["report"]["deadlines"]:
         ref = 1 - cdf(total)[int(deadline)]
-        assert s["miss_probability"][f"{deadline:g}"] == pytest.approx(ref, rel=1e-8, abs=1e-13)
+        r = row(s["miss_probability"], "deadline", deadline)
+        assert r["value"] == pytest.approx(ref, rel=1e-8, abs=1e-13)
+        assert r["low"] - 1e-13 <= ref <= r["high"] + 1e-13
     # the mean of a sum is the sum of means (linearity), whatever the dependence
+    # (on the certified ranges: the sum of the stage ranges meets the total's range)
     stage_means = [s["stages"][k]["mean"] for k in ("accept", "fraud_screen", "prepare",
                                                      "hand_over")]
-    assert s["mean"] == pytest.approx(sum(stage_means), rel=1e-9)
+    high = [math.inf if m["high"] is None else m["high"] for m in stage_means + [s["mean"]]]
+    assert s["mean"]["low"] <= sum(high[:-1]) * (1 + 1e-12)
+    assert sum(m["low"] for m in stage_means) <= high[-1] * (1 + 1e-12)
+    if not any(m["refused"] for m in stage_means + [s["mean"]]):
+        assert s["mean"]["value"] == pytest.approx(sum(m["value"] for m in stage_means),
+                                                   rel=1e-9)
 
 
 SIMPLE_DELAYS = """
@@ -273,11 +310,11 @@ def test_delays_round_trip_with_a_repeated_stage(tmp_path, capsys):
     # the same stage twice = two independent draws: mean 2 + 1.5 + 2 (linearity)
     expon_grid_mean = float(np.dot(nearest_pmf(stats.expon(scale=2.0), 0.5, 400),
                                    0.5 * np.arange(400)))
-    assert s["mean"] == pytest.approx(2 * expon_grid_mean + 1.5, rel=1e-9)
-    assert sorted(p.name for p in out.iterdir()) == ["delays.csv", "delays.png", "summary.json",
-                                                     "summary.md"]
+    assert agrees(s["mean"], 2 * expon_grid_mean + 1.5, rel=1e-9)
+    assert sorted(p.name for p in out.iterdir()) == ["delays.csv", "delays.png", "measures.csv",
+                                                     "summary.json", "summary.md"]
     md = (out / "summary.md").read_text()
-    assert "model output, not advice" in md and "qualified engineering" in md
+    assert "model output, not advice" in md and "licensed engineering" in md
     assert "independen" in md and "truncation" in md
 
 
@@ -403,7 +440,7 @@ def test_demo_folder_holds_the_report_and_the_cautions(demo):
             "larkspur_pipeline.toml"} <= names
     report = (folder / "report.md").read_text()
     assert report.count("model output, not advice") >= 2
-    assert "qualified actuarial" in report and "qualified engineering" in report
+    assert "licensed actuarial" in report and "licensed engineering" in report
     for part in ("claims", "pipeline"):
         assert any("not advice" in line for line in summary[part]["caution"])
     # the copied specs run as they are

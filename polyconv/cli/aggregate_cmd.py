@@ -33,39 +33,33 @@ Spec format (keys are polyconv's own; every key is checked, unknown keys are ref
     levels = [0.90, 0.95, 0.99, 0.995, 0.999]
     retentions = [1.0e6, 1.5e6]       # stop-loss E[(S - d)+] at these d
 
-Outputs in the report folder: ``summary.md``, ``summary.json``, ``aggregate.csv`` (amount,
-probability, cdf, exceedance) and ``aggregate.png``.
+Outputs in the report folder (see :mod:`polyconv.cli.distribution_report`): ``summary.md``,
+``summary.json``, ``aggregate.csv`` (amount, probability, cdf, exceedance), ``measures.csv``
+(every measure with its certified range and status) and ``aggregate.png``.
 """
 
 from __future__ import annotations
 
-import argparse
 import math
 from dataclasses import dataclass, field
-from pathlib import Path
 
 from scipy import stats
 
 from ..dist import Lattice, compound
-from . import laws, plots
+from . import distribution_report as skeleton
+from . import grid_mass, laws
+from .bounded_rows import MeasureRow, ask
 from .fileio import ReportFolder
 from .progress import Steps
 from .report import (
-    add_spec_report_options,
     caution,
     collect_warnings,
-    distribution_csv,
-    dumps,
     fmt,
     fmt_prob,
     level_name,
-    md_table,
-    paragraph,
-    report_folder,
-    text_table,
-    wrap,
+    number_name,
 )
-from .spec import Section, SpecDoc, load_spec
+from .spec import Section, SpecDoc
 
 DEFAULT_LEVELS = (0.90, 0.95, 0.99, 0.995, 0.999)
 COUNT_LAWS = ("poisson", "negative-binomial", "binomial")
@@ -96,19 +90,15 @@ Write 'polyconv demo' to see a full spec (polyconv-demo/quillmere_claims.toml).
 
 def register(sub) -> None:
     """Add the ``aggregate`` sub-command to ``sub``."""
-    p = sub.add_parser(
-        "aggregate",
+    skeleton.add_spec_command(
+        sub, name="aggregate",
         help="aggregate loss distribution from a TOML spec (claim counts x severities)",
-        description=paragraph(
+        description=(
             "Compute the distribution of total claims S = X_1 + ... + X_N for a claim "
             "count law N and a severity law X (optionally after a per-claim deductible and limit), "
-            "and write a summary (mean, sd, VaR and TVaR, stop-loss premiums, trust floor), the "
-            "distribution as CSV and a figure."),
-        epilog=EXAMPLE,
-        formatter_class=argparse.RawDescriptionHelpFormatter,
-    )
-    add_spec_report_options(p)
-    p.set_defaults(run=run)
+            "and write a summary (mean, sd, VaR and TVaR, stop-loss premiums, each with its "
+            "certified range or refused on its row), the distribution as CSV and a figure."),
+        epilog=EXAMPLE, run=run)
 
 
 # ------------------------------------------------------------------------------------ spec
@@ -207,12 +197,16 @@ class AggregateResult:
     total: Lattice
     per_claim: Lattice
     severity_text: str
-    summary: dict
+    rows: list[MeasureRow]
     notes: list[str] = field(default_factory=list)
 
 
 def compute(spec: AggregateSpec, steps: Steps | None = None) -> AggregateResult:
-    """Discretise, apply the cover, compound and measure."""
+    """Discretise, apply the cover, compound and measure.
+
+    Raises SpecError (nothing is written) when the severity puts no probability on its grid,
+    or when the aggregate grid holds less probability than the lowest level asked.
+    """
     notes: list[str] = []
     with collect_warnings(notes):
         if steps:
@@ -223,6 +217,8 @@ def compute(spec: AggregateSpec, steps: Steps | None = None) -> AggregateResult:
         built = laws.build(spec.severity, spec.step, rule=spec.rule,
                            max_points=spec.max_points, points=points)
         notes.extend(built.notes)
+        grid_mass.require_mass(built.lattice, 0.0, *grid_mass.leaf_fail(spec.severity),
+                              f"the severity ({built.description})", spec.currency)
         per_claim = built.lattice
         if spec.deductible > 0 or math.isfinite(spec.limit):
             try:
@@ -232,38 +228,39 @@ def compute(spec: AggregateSpec, steps: Steps | None = None) -> AggregateResult:
         if steps:
             steps.step("compound")
         total = compound(spec.counts, per_claim, method=spec.method, size=spec.points)
+        grid_key = ("grid", "points") if spec.points else ("grid", "step")
+        held = grid_mass.held_mass(per_claim)
+        grid_mass.require_mass(
+            total, min(spec.levels),
+            lambda message: spec.severity.doc.error(grid_key, message),
+            "choose a larger grid.step (or more grid.points)",
+            f"the aggregate loss (E[N] = {fmt(float(spec.counts.mean()))} claims; the severity "
+            f"grid holds {held:.3g} of the probability of one claim)", spec.currency)
         if steps:
             steps.step("risk measures")
-        summary = measures(spec, total, per_claim)
-    return AggregateResult(spec, total, per_claim, built.description, summary, notes)
+        rows = measure_rows(spec, total, per_claim)
+    return AggregateResult(spec, total, per_claim, built.description, rows, notes)
 
 
-def measures(spec: AggregateSpec, total: Lattice, per_claim: Lattice) -> dict:
-    """Mean, sd, VaR/TVaR at the levels, stop-loss at the retentions, floors and masses."""
-    mean_n = float(spec.counts.mean())
-    out = {
-        "title": spec.title,
-        "currency": spec.currency,
-        "claims": spec.counts_text,
-        "expected_claims": mean_n,
-        "mean_per_claim": per_claim.mean(),
-        "mean": total.mean(),
-        "mean_check": mean_n * per_claim.mean(),
-        "sd": total.std(),
-        "var": {level_name(p): total.value_at_risk(p) for p in spec.levels},
-        "tvar": {level_name(p): total.tail_value_at_risk(p) for p in spec.levels},
-        "stop_loss": {f"{d:g}": total.stop_loss(d) for d in spec.retentions},
-        "trust_floor": total.trust_floor,
-        "truncated_mass": total.truncated_mass,
-        "severity_truncated_mass": per_claim.truncated_mass,
-        "grid_step": spec.step,
-        "grid_points": len(total),
-        "deductible": spec.deductible,
-        "limit": spec.limit if math.isfinite(spec.limit) else None,
-        "rule": spec.rule,
-        "method": spec.method,
-    }
-    return out
+def measure_rows(spec: AggregateSpec, total: Lattice, per_claim: Lattice) -> list[MeasureRow]:
+    """Mean per claim, mean and sd of the total, VaR/TVaR at the levels, stop-loss at the
+    retentions: each the lattice's own answer with its certified range."""
+    cur = spec.currency
+    rows = [ask(per_claim, "mean", key="mean_per_claim", label="mean per claim after cover",
+                unit=cur),
+            ask(total, "mean", key="mean", label="mean E[S]", unit=cur),
+            ask(total, "std", key="sd", label="standard deviation", unit=cur)]
+    for p in spec.levels:
+        name = level_name(p)
+        rows.append(ask(total, "var", p, key="var", label=f"VaR {name}", unit=cur,
+                        argument_name="level"))
+        rows.append(ask(total, "tvar", p, key="tvar", label=f"TVaR {name}", unit=cur,
+                        argument_name="level"))
+    for d in spec.retentions:
+        rows.append(ask(total, "stop_loss", d, key="stop_loss",
+                        label=f"stop-loss E[(S - {number_name(d)})+]", unit=cur,
+                        argument_name="retention"))
+    return rows
 
 
 # -------------------------------------------------------------------------------- report
@@ -271,112 +268,65 @@ def measures(spec: AggregateSpec, total: Lattice, per_claim: Lattice) -> dict:
 
 def caution_lines(res: AggregateResult) -> list[str]:
     """The caution with this run's assumptions."""
-    s = res.summary
     return caution(
         independence="the claim count and the claim amounts are independent, the amounts "
         "independent and identically distributed",
         discretisation=f"claim amounts on a grid of step {res.spec.step:g} "
         f"{res.spec.currency} ({res.spec.rule} rule)",
-        truncation=f"aggregate grid of {s['grid_points']} points; mass beyond it "
-        f"{s['truncated_mass']:.2e}, beyond the severity grid {s['severity_truncated_mass']:.2e}",
+        truncation=f"aggregate grid of {len(res.total)} points; mass beyond it "
+        f"{fmt_prob(res.total.truncated_mass)}, beyond the severity grid "
+        f"{fmt_prob(res.per_claim.truncated_mass)}",
         practice="actuarial",
     )
 
 
-def _rows(res: AggregateResult) -> list[list[str]]:
-    s = res.summary
-    cur = res.spec.currency
-    rows = [["claims", s["claims"]],
-            ["severity", res.severity_text],
-            ["cover per claim", _cover_text(res.spec)],
-            ["expected claims E[N]", fmt(s["expected_claims"])],
-            [f"mean per claim after cover ({cur})", fmt(s["mean_per_claim"])],
-            [f"mean E[S] ({cur})", fmt(s["mean"])],
-            [f"check E[N] E[X] ({cur})", fmt(s["mean_check"])],
-            [f"standard deviation ({cur})", fmt(s["sd"])]]
-    for key in s["var"]:
-        rows.append([f"VaR {key} ({cur})", fmt(s["var"][key])])
-        rows.append([f"TVaR {key} ({cur})", fmt(s["tvar"][key])])
-    for d, v in s["stop_loss"].items():
-        rows.append([f"stop-loss E[(S - {fmt(float(d))})+] ({cur})", fmt(v)])
-    rows += [["trust floor (error bound per probability)", fmt_prob(s["trust_floor"])],
-             ["truncated mass (beyond the grid)", fmt_prob(s["truncated_mass"])],
-             ["grid", f"{s['grid_points']} points of {res.spec.step:g} {cur}"]]
-    return rows
-
-
-def _cover_text(spec: AggregateSpec) -> str:
+def cover_text(spec: AggregateSpec) -> str:
+    """The per-claim cover in words."""
     if spec.deductible == 0 and not math.isfinite(spec.limit):
         return "none (ground-up)"
     lim = f"{spec.limit:,.0f}" if math.isfinite(spec.limit) else "unlimited"
     return f"deductible {spec.deductible:,.0f}, limit {lim} {spec.currency}"
 
 
-def terminal_text(res: AggregateResult, folder: Path | None) -> str:
-    """What ``polyconv aggregate`` prints."""
-    lines = [res.spec.title, text_table(["quantity", "value"], _rows(res))]
-    if res.notes:
-        lines.append("notes:")
-        lines += wrap([f"- {n}" for n in res.notes], indent="  ")
-    lines += wrap(caution_lines(res))
-    if folder is not None:
-        lines.append(f"report written to {folder}/")
-    return "\n".join(lines)
-
-
-def markdown(res: AggregateResult, figure: str | None) -> str:
-    """``summary.md`` for the report folder."""
-    parts = [f"# {res.spec.title}", "", "> " + "\n>\n> ".join(caution_lines(res)), "",
-             md_table(["quantity", "value"], _rows(res)), ""]
-    parts += ["VaR is the smallest grid amount whose cumulative probability reaches the level; "
-              "TVaR = VaR + E[(S - VaR)+] / (1 - level) (expected shortfall).", ""]
-    if res.notes:
-        parts += ["## Notes", ""] + [f"- {n}" for n in res.notes] + [""]
-    parts += ["## Files", "", "- `aggregate.csv`: amount, probability, cdf, exceedance",
-              "- `summary.json`: the numbers above"]
-    if figure:
-        parts += [f"- `{figure}`: distribution and exceedance curve", "", f"![]({figure})"]
-    return "\n".join(parts) + "\n"
+def report_of(res: AggregateResult) -> skeleton.DistributionReport:
+    """The result as a report (see :mod:`polyconv.cli.distribution_report`)."""
+    spec = res.spec
+    mean_n = float(spec.counts.mean())
+    mean_check = mean_n * res.per_claim.mean()
+    described = [["claims", spec.counts_text], ["severity", res.severity_text],
+                 ["cover per claim", cover_text(spec)],
+                 ["expected claims E[N]", fmt(mean_n)],
+                 [f"check E[N] x mean per claim ({spec.currency})", fmt(mean_check)],
+                 *skeleton.grid_rows(res.total, spec.currency)]
+    facts = {"currency": spec.currency, "claims": spec.counts_text,
+             "severity": res.severity_text, "expected_claims": mean_n,
+             "mean_check": mean_check,
+             "severity_truncated_mass": res.per_claim.truncated_mass,
+             "deductible": spec.deductible,
+             "limit": spec.limit if math.isfinite(spec.limit) else None,
+             "rule": spec.rule, "method": spec.method}
+    return skeleton.DistributionReport(
+        title=spec.title, stem="aggregate", value_name="amount", quantity="aggregate loss",
+        unit=spec.currency, lattice=res.total, described=described, rows=res.rows,
+        caution=caution_lines(res), facts=facts, notes=res.notes,
+        explanation=["VaR is the smallest grid amount whose cumulative probability reaches "
+                     "the level; TVaR = VaR + E[(S - VaR)+] / (1 - level) (expected "
+                     "shortfall)."],
+        markers=skeleton.finite_markers(res.rows, "var", most=3))
 
 
 def write_report(res: AggregateResult, out: ReportFolder, prefix: str = "") -> list[str]:
     """Add this result's files to a report folder; returns the names written."""
-    names = []
-    fig_name = None
-    if plots.available():
-        fig_name = f"{prefix}aggregate.png"
-        markers = [(f"VaR {k}", v) for k, v in res.summary["var"].items()
-                   if v is not None and math.isfinite(v)][-3:]
-        out.write_bytes(fig_name, plots.distribution_figure(
-            res.total, title=res.spec.title, quantity="aggregate loss",
-            unit=res.spec.currency, markers=markers))
-        names.append(fig_name)
-    elif plots.MISSING_NOTE not in res.notes:
-        res.notes.append(plots.MISSING_NOTE)
-    out.write_text(f"{prefix}aggregate.csv", distribution_csv(res.total, "amount"))
-    out.write_text(f"{prefix}summary.json", dumps(json_summary(res)) + "\n")
-    out.write_text(f"{prefix}summary.md", markdown(res, fig_name))
-    return names + [f"{prefix}aggregate.csv", f"{prefix}summary.json", f"{prefix}summary.md"]
+    return skeleton.write_files(report_of(res), out, prefix)
 
 
 def json_summary(res: AggregateResult) -> dict:
-    """The machine-readable summary."""
-    return {**res.summary, "severity": res.severity_text, "notes": res.notes,
-            "caution": caution_lines(res)}
+    """The machine-readable summary (floats already rounded, see
+    :func:`polyconv.cli.distribution_report.json_summary`)."""
+    return skeleton.json_summary(report_of(res))
 
 
 def run(args) -> int:
     """Entry point of ``polyconv aggregate``."""
-    doc = load_spec(args.spec)
-    spec = parse(doc)
-    with Steps(4, "aggregate", args.quiet) as steps:
-        res = compute(spec, steps)
-        steps.step("write report")
-        folder = report_folder(args.spec, args.output)
-        with ReportFolder(folder) as out:
-            write_report(res, out)
-    if args.json:
-        print(dumps({**json_summary(res), "output": str(folder)}))
-    else:
-        print(terminal_text(res, folder))
-    return 0
+    return skeleton.run_spec_command(args, name="aggregate", parse=parse, compute=compute,
+                                     report_of=report_of, step_count=lambda spec: 4)

@@ -37,37 +37,32 @@ A block is exactly one of: a law (``law`` + ``params``), ``samples``, ``values``
 ``probabilities`` or ``counts``, ``in_sequence``, ``all_of``, ``first_of`` or ``one_of``.  Names
 refer to ``[stage.NAME]`` tables; a name used twice stands for two independent draws of that stage.
 
-Outputs in the report folder: ``summary.md``, ``summary.json``, ``delays.csv`` (delay,
-probability, cdf, exceedance) and ``delays.png``.
+Outputs in the report folder (see :mod:`polyconv.cli.distribution_report`): ``summary.md``,
+``summary.json``, ``delays.csv`` (delay, probability, cdf, exceedance), ``measures.csv`` (every
+measure with its certified range and status) and ``delays.png``.
 """
 
 from __future__ import annotations
 
-import argparse
 import math
 import re
 from dataclasses import dataclass, field
-from pathlib import Path
 
 from ..dist import Lattice, all_of, first_of, mixture, series
-from . import laws, plots
+from . import distribution_report as skeleton
+from . import grid_mass, laws
+from .bounded_rows import MeasureRow, ask
 from .fileio import ReportFolder
 from .progress import Steps
 from .report import (
-    add_spec_report_options,
     caution,
     collect_warnings,
-    distribution_csv,
-    dumps,
-    fmt,
     fmt_prob,
-    md_table,
-    paragraph,
-    report_folder,
-    text_table,
-    wrap,
+    number_name,
+    percent_level,
+    percentile_name,
 )
-from .spec import Section, SpecDoc, load_spec
+from .spec import Section, SpecDoc
 
 DEFAULT_PERCENTILES = (50.0, 90.0, 99.0, 99.9)
 COMBINATORS = ("in_sequence", "all_of", "first_of", "one_of")
@@ -104,18 +99,14 @@ Write 'polyconv demo' to see a full spec (polyconv-demo/larkspur_pipeline.toml).
 
 def register(sub) -> None:
     """Add the ``delays`` sub-command to ``sub``."""
-    p = sub.add_parser(
-        "delays",
+    skeleton.add_spec_command(
+        sub, name="delays",
         help="end-to-end delay of a network of stages from a TOML spec",
-        description=paragraph(
+        description=(
             "Combine stage delays (in sequence, parallel wait-for-all, parallel "
             "first-to-finish, weighted branches) on a common time grid and write percentiles, "
             "deadline-miss probabilities, the distribution as CSV and a figure."),
-        epilog=EXAMPLE,
-        formatter_class=argparse.RawDescriptionHelpFormatter,
-    )
-    add_spec_report_options(p)
-    p.set_defaults(run=run)
+        epilog=EXAMPLE, run=run)
 
 
 # ------------------------------------------------------------------------------------ spec
@@ -240,7 +231,8 @@ class DelayResult:
     total: Lattice
     stages: dict[str, Lattice]
     descriptions: dict[str, str]
-    summary: dict
+    rows: list[MeasureRow]
+    stage_rows: dict[str, list[MeasureRow]]
     notes: list[str] = field(default_factory=list)
 
 
@@ -299,6 +291,8 @@ def compute(spec: DelaySpec, steps: Steps | None = None) -> DelayResult:
                                max_points=spec.max_points, points=points)
             notes.extend(f"stage {name}: {n}" for n in built.notes)
             descriptions[name] = built.description
+            grid_mass.require_mass(built.lattice, 0.0, *grid_mass.leaf_fail(sec),
+                                  f"stage {name} ({built.description})", spec.unit)
             return built.lattice
         parts = []
         for child, _ in children(sec, kind):
@@ -326,40 +320,36 @@ def compute(spec: DelaySpec, steps: Steps | None = None) -> DelayResult:
     with collect_warnings(notes):
         points = horizon(spec, notes)
         total = evaluate(spec.network, ROOT)
-        done[ROOT] = total
+        grid_mass.require_mass(total, percent_level(min(spec.percentiles)),
+                              lambda message: spec.doc.error(("grid", "max_points"), message),
+                              "raise grid.max_points (or choose a larger grid.step)",
+                              "the end-to-end delay", spec.unit)
         if steps:
             steps.step("percentiles")
-        summary = measures(spec, total, done)
-    return DelayResult(spec, total, {k: v for k, v in done.items() if k != ROOT},
-                       descriptions, summary, notes)
+        rows = measure_rows(spec, total)
+        stage_rows = {name: stage_measures(lat, spec.unit) for name, lat in done.items()}
+    return DelayResult(spec, total, done, descriptions, rows, stage_rows, notes)
 
 
-def pname(q: float) -> str:
-    """``99.9`` -> ``"p99.9"``."""
-    return f"p{q:g}"
+def measure_rows(spec: DelaySpec, total: Lattice) -> list[MeasureRow]:
+    """Mean, sd, percentiles and deadline-miss probabilities of the end-to-end delay, each the
+    lattice's own answer with its certified range."""
+    u = spec.unit
+    rows = [ask(total, "mean", key="mean", label="mean", unit=u),
+            ask(total, "std", key="sd", label="standard deviation", unit=u)]
+    rows += [ask(total, "quantile", percent_level(q), key="percentiles", label=percentile_name(q),
+                 unit=u, argument_name="percentile", argument=q) for q in spec.percentiles]
+    rows += [ask(total, "sf", d, key="miss_probability",
+                 label=f"P(delay > {number_name(d)} {u})", unit="", argument_name="deadline")
+             for d in spec.deadlines]
+    return rows
 
 
-def measures(spec: DelaySpec, total: Lattice, stages: dict[str, Lattice]) -> dict:
-    """Percentiles, miss probabilities, mean, sd; per-stage mean and median."""
-    per_stage = {}
-    for name, lat in stages.items():
-        if name == ROOT:
-            continue
-        per_stage[name] = {"mean": lat.mean(), "p50": lat.quantile(0.5),
-                           "p99": lat.quantile(0.99)}
-    return {
-        "title": spec.title,
-        "unit": spec.unit,
-        "mean": total.mean(),
-        "sd": total.std(),
-        "percentiles": {pname(q): total.quantile(q / 100.0) for q in spec.percentiles},
-        "miss_probability": {f"{d:g}": total.sf(d) for d in spec.deadlines},
-        "trust_floor": total.trust_floor,
-        "truncated_mass": total.truncated_mass,
-        "grid_step": spec.step,
-        "grid_points": len(total),
-        "stages": per_stage,
-    }
+def stage_measures(lat: Lattice, unit: str) -> list[MeasureRow]:
+    """Mean, median and p99 of one stage."""
+    return [ask(lat, "mean", key="mean", label="mean", unit=unit),
+            ask(lat, "quantile", 0.5, key="p50", label="p50", unit=unit),
+            ask(lat, "quantile", 0.99, key="p99", label="p99", unit=unit)]
 
 
 # -------------------------------------------------------------------------------- report
@@ -367,112 +357,65 @@ def measures(spec: DelaySpec, total: Lattice, stages: dict[str, Lattice]) -> dic
 
 def caution_lines(res: DelayResult) -> list[str]:
     """The caution with this run's assumptions."""
-    s = res.summary
     return caution(
         independence="every stage and parallel branch is independent of the others; shared "
         "hosts, queues or networks break this",
         discretisation=f"delays on a grid of step {res.spec.step:g} {res.spec.unit} "
         f"({res.spec.rule} rule)",
-        truncation=f"{s['grid_points']} grid points; mass beyond the grid "
-        f"{s['truncated_mass']:.2e}",
+        truncation=f"{len(res.total)} grid points; mass beyond the grid "
+        f"{fmt_prob(res.total.truncated_mass)}",
         practice="engineering",
     )
 
 
-def _rows(res: DelayResult) -> list[list[str]]:
-    s = res.summary
+def _stage_cell(row: MeasureRow) -> str:
+    """A stage's measure in the stages table: the value, or ``refused`` (range in the JSON)."""
+    return row.cells()[1] + ("" if row.status() == "ok" else " (!)")
+
+
+def stage_table(res: DelayResult) -> skeleton.Table:
+    """Mean, p50 and p99 of every named stage."""
     u = res.spec.unit
-    rows = [[f"mean ({u})", fmt(s["mean"])], [f"standard deviation ({u})", fmt(s["sd"])]]
-    rows += [[f"{k} ({u})", fmt(v)] for k, v in s["percentiles"].items()]
-    rows += [[f"P(delay > {d} {u})", fmt_prob(v)]
-             for d, v in s["miss_probability"].items()]
-    rows += [["trust floor (error bound per probability)", fmt_prob(s["trust_floor"])],
-             ["truncated mass (beyond the grid)", fmt_prob(s["truncated_mass"])],
-             ["grid", f"{s['grid_points']} points of {res.spec.step:g} {u}"]]
-    return rows
+    rows = [[name, res.descriptions.get(name, "")] + [_stage_cell(r) for r in measures]
+            for name, measures in res.stage_rows.items() if name != ROOT]
+    return skeleton.Table("Stages", ["stage", "what", f"mean ({u})", f"p50 ({u})",
+                                     f"p99 ({u})"], rows)
 
 
-def _stage_rows(res: DelayResult) -> list[list[str]]:
-    return [[name, res.descriptions.get(name, ""), fmt(v["mean"]), fmt(v["p50"]),
-             fmt(v["p99"])] for name, v in res.summary["stages"].items()]
-
-
-def terminal_text(res: DelayResult, folder: Path | None) -> str:
-    """What ``polyconv delays`` prints."""
-    u = res.spec.unit
-    lines = [res.spec.title,
-             "network: " + res.descriptions.get(ROOT, ""),
-             text_table(["end-to-end", "value"], _rows(res)),
-             text_table(["stage", "what", f"mean ({u})", f"p50 ({u})", f"p99 ({u})"],
-                        _stage_rows(res))]
-    if res.notes:
-        lines.append("notes:")
-        lines += wrap([f"- {n}" for n in res.notes], indent="  ")
-    lines += wrap(caution_lines(res))
-    if folder is not None:
-        lines.append(f"report written to {folder}/")
-    return "\n".join(lines)
-
-
-def markdown(res: DelayResult, figure: str | None) -> str:
-    """``summary.md`` for the report folder."""
-    u = res.spec.unit
-    parts = [f"# {res.spec.title}", "", "> " + "\n>\n> ".join(caution_lines(res)), "",
-             "Network: " + res.descriptions.get(ROOT, ""), "",
-             md_table(["end-to-end", "value"], _rows(res)), "",
-             "Percentiles are read off the combined distribution (percentiles of stages do not "
-             "add). A miss probability is P(delay > deadline).", "",
-             "## Stages", "",
-             md_table(["stage", "what", f"mean ({u})", f"p50 ({u})", f"p99 ({u})"],
-                      _stage_rows(res)), ""]
-    if res.notes:
-        parts += ["## Notes", ""] + [f"- {n}" for n in res.notes] + [""]
-    parts += ["## Files", "", "- `delays.csv`: delay, probability, cdf, exceedance",
-              "- `summary.json`: the numbers above"]
-    if figure:
-        parts += [f"- `{figure}`: distribution and exceedance curve", "", f"![]({figure})"]
-    return "\n".join(parts) + "\n"
-
-
-def json_summary(res: DelayResult) -> dict:
-    """The machine-readable summary."""
-    return {**res.summary, "network": res.descriptions.get(ROOT, ""),
-            "descriptions": res.descriptions, "notes": res.notes,
-            "caution": caution_lines(res)}
+def report_of(res: DelayResult) -> skeleton.DistributionReport:
+    """The result as a report (see :mod:`polyconv.cli.distribution_report`)."""
+    spec = res.spec
+    network = res.descriptions.get(ROOT, "")
+    stages = {name: {r.key: r.as_json() for r in rows}
+              for name, rows in res.stage_rows.items() if name != ROOT}
+    facts = {"unit": spec.unit, "network": network, "rule": spec.rule,
+             "descriptions": res.descriptions, "stages": stages}
+    return skeleton.DistributionReport(
+        title=spec.title, stem="delays", value_name="delay", quantity="end-to-end delay",
+        unit=spec.unit, lattice=res.total,
+        described=[["network", network], *skeleton.grid_rows(res.total, spec.unit)],
+        rows=res.rows, caution=caution_lines(res), facts=facts, notes=res.notes,
+        explanation=["Percentiles are read off the combined distribution (percentiles of "
+                     "stages do not add). A miss probability is P(delay > deadline). In the "
+                     "stages table, (!) marks a measure refused or warned about (reasons in "
+                     "summary.json)."],
+        tables=[stage_table(res)],
+        markers=skeleton.finite_markers(res.rows, "percentiles"))
 
 
 def write_report(res: DelayResult, out: ReportFolder, prefix: str = "") -> list[str]:
     """Add this result's files to a report folder; returns the names written."""
-    names = []
-    fig_name = None
-    if plots.available():
-        fig_name = f"{prefix}delays.png"
-        markers = [(f"{k}", v) for k, v in res.summary["percentiles"].items()
-                   if v is not None and math.isfinite(v)]
-        out.write_bytes(fig_name, plots.distribution_figure(
-            res.total, title=res.spec.title, quantity="end-to-end delay", unit=res.spec.unit,
-            markers=markers, deadlines=res.spec.deadlines))
-        names.append(fig_name)
-    elif plots.MISSING_NOTE not in res.notes:
-        res.notes.append(plots.MISSING_NOTE)
-    out.write_text(f"{prefix}delays.csv", distribution_csv(res.total, "delay"))
-    out.write_text(f"{prefix}summary.json", dumps(json_summary(res)) + "\n")
-    out.write_text(f"{prefix}summary.md", markdown(res, fig_name))
-    return names + [f"{prefix}delays.csv", f"{prefix}summary.json", f"{prefix}summary.md"]
+    return skeleton.write_files(report_of(res), out, prefix)
+
+
+def json_summary(res: DelayResult) -> dict:
+    """The machine-readable summary (floats already rounded, see
+    :func:`polyconv.cli.distribution_report.json_summary`)."""
+    return skeleton.json_summary(report_of(res))
 
 
 def run(args) -> int:
     """Entry point of ``polyconv delays``."""
-    doc = load_spec(args.spec)
-    spec = parse(doc)
-    with Steps(count_blocks(spec) + 2, "delays", args.quiet) as steps:
-        res = compute(spec, steps)
-        steps.step("write report")
-        folder = report_folder(args.spec, args.output)
-        with ReportFolder(folder) as out:
-            write_report(res, out)
-    if args.json:
-        print(dumps({**json_summary(res), "output": str(folder)}))
-    else:
-        print(terminal_text(res, folder))
-    return 0
+    return skeleton.run_spec_command(args, name="delays", parse=parse, compute=compute,
+                                     report_of=report_of,
+                                     step_count=lambda spec: count_blocks(spec) + 2)

@@ -21,9 +21,10 @@ import numpy as np
 
 from .. import api
 from . import aggregate_cmd, delays_cmd, plots
+from . import distribution_report as skeleton
 from .fileio import ReportFolder, unlimited_int_digits
 from .progress import Steps
-from .report import dumps, fmt, fmt_prob, md_table, paragraph, wrap
+from .report import dumps, md_table, paragraph
 from .spec import parse_spec
 
 SCENARIOS = ("quillmere_claims.toml", "larkspur_pipeline.toml")
@@ -142,39 +143,18 @@ def counting_markdown(c: dict, figure: str | None) -> str:
 
 def report_markdown(claims, pipeline, counts: dict, figures: dict[str, str | None]) -> str:
     """``report.md``: the three parts, each with its caution where it applies."""
-    cs, ps = claims.summary, pipeline.summary
-    cur, unit = claims.spec.currency, pipeline.spec.unit
     parts = ["# polyconv demo (invented scenarios)", "",
              "Every name and number in this report is invented to show what polyconv "
              "computes. Edit the copied spec files and re-run `polyconv aggregate` or "
-             "`polyconv delays` on them.", "",
-             f"## 1. {claims.spec.title}", "",
-             "> " + "\n>\n> ".join(aggregate_cmd.caution_lines(claims)), "",
-             f"Spec: `{SCENARIOS[0]}`; details: `claims_summary.md`.", "",
-             md_table(["quantity", "value"], [
-                 ["claims", cs["claims"]],
-                 ["cover per claim", aggregate_cmd._cover_text(claims.spec)],
-                 [f"mean ({cur})", fmt(cs["mean"])],
-                 [f"check E[N] E[X] ({cur})", fmt(cs["mean_check"])],
-                 [f"standard deviation ({cur})", fmt(cs["sd"])]]
-                 + [[f"VaR / TVaR {k} ({cur})", f"{fmt(cs['var'][k])} / {fmt(cs['tvar'][k])}"]
-                    for k in cs["var"]]
-                 + [["trust floor", fmt_prob(cs["trust_floor"])],
-                    ["truncated mass", fmt_prob(cs["truncated_mass"])]]), ""]
-    if figures.get("claims"):
-        parts += [f"![]({figures['claims']})", ""]
-    parts += [f"## 2. {pipeline.spec.title}", "",
-              "> " + "\n>\n> ".join(delays_cmd.caution_lines(pipeline)), "",
-              f"Spec: `{SCENARIOS[1]}`; details: `pipeline_summary.md`.", "",
-              "Network: " + pipeline.descriptions.get(delays_cmd.ROOT, ""), "",
-              md_table(["end-to-end", "value"],
-                       [[f"mean ({unit})", fmt(ps["mean"])]]
-                       + [[f"{k} ({unit})", fmt(v)] for k, v in ps["percentiles"].items()]
-                       + [[f"P(delay > {d} {unit})", fmt_prob(v)]
-                          for d, v in ps["miss_probability"].items()]
-                       + [["trust floor", fmt_prob(ps["trust_floor"])]]), ""]
-    if figures.get("pipeline"):
-        parts += [f"![]({figures['pipeline']})", ""]
+             "`polyconv delays` on them.", ""]
+    for number, (res, command, spec_name, part) in enumerate(
+            ((claims, aggregate_cmd, SCENARIOS[0], "claims"),
+             (pipeline, delays_cmd, SCENARIOS[1], "pipeline")), start=1):
+        parts += [skeleton.brief_markdown(command.report_of(res), f"{number}. ",
+                                          f"Spec: `{spec_name}`; details: `{part}_summary.md`."),
+                  ""]
+        if figures.get(part):
+            parts += [f"![]({figures[part]})", ""]
     parts.append(counting_markdown(counts, figures.get("dice")))
     return "\n".join(parts)
 
@@ -248,22 +228,14 @@ def write_spec_copies(out: ReportFolder) -> list[str]:
 
 def terminal_text(claims, pipeline, counts: dict, folder: Path) -> str:
     """The short printed summary."""
-    cs, ps = claims.summary, pipeline.summary
-    cur, unit = claims.spec.currency, pipeline.spec.unit
-    top = max(cs["var"])
     f = counts["fifty_dice"]
     cc = counts["coin_change"]
-    lines = ["polyconv demo: invented scenarios", "",
-             f"1. {claims.spec.title}",
-             f"   mean {fmt(cs['mean'])} {cur} (E[N] E[X] = {fmt(cs['mean_check'])}), "
-             f"sd {fmt(cs['sd'])}, VaR {top} {fmt(cs['var'][top])}, "
-             f"TVaR {top} {fmt(cs['tvar'][top])}"]
-    lines += wrap(aggregate_cmd.caution_lines(claims), indent="   ")
-    pct = ", ".join(f"{k} {fmt(v)}" for k, v in ps["percentiles"].items())
-    miss = ", ".join(f"P(> {d} {unit}) {fmt_prob(v)}" for d, v in ps["miss_probability"].items())
-    lines += ["", f"2. {pipeline.spec.title}", f"   {pct} {unit}", f"   {miss}"]
-    lines += wrap(delays_cmd.caution_lines(pipeline), indent="   ")
-    lines += ["", "3. Exact counts by polynomial products",
+    lines = ["polyconv demo: invented scenarios", ""]
+    for number, (res, command) in enumerate(((claims, aggregate_cmd), (pipeline, delays_cmd)),
+                                            start=1):
+        lines += skeleton.brief_text(command.report_of(res), f"{number}. ", indent="   ")
+        lines.append("")
+    lines += ["3. Exact counts by polynomial products",
               "   three dice: " + " ".join(f"{t}:{w}" for t, w in
                                            counts["three_dice"].items()),
               f"   fifty dice: total {f['most_likely_total']} in {f['ways']} of 6^50 ways",
@@ -273,4 +245,3 @@ def terminal_text(claims, pipeline, counts: dict, folder: Path) -> str:
     if not plots.available():
         lines.append(plots.MISSING_NOTE)
     return "\n".join(lines)
-

@@ -8,6 +8,7 @@ import math
 import textwrap
 import warnings
 from collections.abc import Iterator
+from decimal import ROUND_CEILING, ROUND_FLOOR, ROUND_HALF_EVEN, Decimal
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -20,7 +21,7 @@ CAUTION_LINES = (
     "CAUTION: model output, not advice.",
     "Assumptions: independence ({independence}); discretisation ({discretisation}); "
     "truncation ({truncation}).",
-    "Defer to local regulation and to qualified {practice} practice before relying on "
+    "Defer to local regulation and codes and to licensed {practice} practice before relying on "
     "these numbers.",
 )
 
@@ -89,29 +90,122 @@ def fmt_prob(p: float | None) -> str:
 
 
 def level_name(p: float) -> str:
-    """``0.995`` -> ``"99.5%"``."""
-    return f"{p * 100:.10g}%"
+    """``0.995`` -> ``"99.5%"``; ``0.999999`` -> ``"99.9999%"`` (never rounded up to 100%).
+
+    The label is the decimal shift of ``repr(p)`` (the shortest decimal that reads back as
+    ``p``), so it shows every digit the user wrote and no float noise of ``p * 100``.
+    """
+    return f"{_decimal_text(Decimal(repr(float(p))) * 100)}%"
 
 
-def jsonable(obj: Any) -> Any:
-    """Replace non-finite floats by None and numpy scalars by Python numbers, recursively."""
+def percentile_name(q: float) -> str:
+    """``99.9`` -> ``"p99.9"``, ``99.9999`` -> ``"p99.9999"`` (the shortest decimal of ``q``)."""
+    return f"p{_decimal_text(Decimal(repr(float(q))))}"
+
+
+def percent_level(q: float) -> float:
+    """A percentile as a level without float noise: ``99.9`` -> ``0.999`` (not
+    ``0.9990000000000001``, which ``99.9 / 100`` gives)."""
+    return float(Decimal(repr(float(q))) / 100)
+
+
+def number_name(x: float) -> str:
+    """A number as written, e.g. a retention, deadline or step: ``5e6`` -> ``"5,000,000"``,
+    ``2.5`` -> ``"2.5"``; ``repr`` style (``1e-300``) below 1e-4 or from 1e15 on."""
+    ax = abs(float(x))
+    if ax != 0 and (ax < 1e-4 or ax >= 1e15 or not math.isfinite(ax)):
+        return repr(float(x))
+    text = _decimal_text(Decimal(repr(float(x))))
+    whole, _, frac = text.partition(".")
+    sign = "-" if whole.startswith("-") else ""
+    whole = f"{int(whole.lstrip('-') or 0):,}"
+    return sign + whole + (f".{frac}" if frac else "")
+
+
+def _decimal_text(d: Decimal) -> str:
+    """Plain positional text of a decimal, no exponent, no trailing zeros."""
+    text = format(d.normalize(), "f")
+    if "." in text:
+        text = text.rstrip("0").rstrip(".")
+    return text
+
+
+JSON_DIGITS = 12
+"""Significant digits of every float in a report's JSON and CSV files.
+
+Each float is rounded to 12 significant digits and written as the shortest text that reads
+back as that rounded float (so ``0.30000000000000004`` is written ``0.3``).  Twelve digits keep
+every reported measure well inside its certified range (the bounds we print are far wider than
+a relative 5e-13), while dropping the last bits of binary float noise.  The two ends of a
+certified range are rounded outwards (``low`` down, ``high`` up) so the written range still
+contains the computed one; see :func:`round_significant`.
+"""
+
+
+def round_significant(x: float, digits: int = JSON_DIGITS, direction: str = "nearest") -> float:
+    """``x`` rounded to ``digits`` significant decimal digits.
+
+    Parameters
+    ----------
+    x : float
+        The number; nan and infinities are returned as they are.
+    digits : int
+        Significant digits kept.
+    direction : {"nearest", "down", "up"}
+        Round to nearest (ties to even), towards -inf, or towards +inf.  With ``"down"`` the
+        result is never above ``x`` and with ``"up"`` never below it (the decimal is rounded in
+        that direction, and the float nearest to it cannot cross ``x``, itself a float).
+
+    Returns
+    -------
+    float
+        Its shortest ``repr`` has at most ``digits`` significant digits.
+    """
+    x = float(x)
+    if not math.isfinite(x) or x == 0.0:
+        return x
+    mode = {"nearest": ROUND_HALF_EVEN, "down": ROUND_FLOOR, "up": ROUND_CEILING}[direction]
+    d = Decimal(x)
+    quantum = Decimal(1).scaleb(d.adjusted() - digits + 1)
+    return float(d.quantize(quantum, rounding=mode))
+
+
+def jsonable(obj: Any, digits: int | None = None) -> Any:
+    """Replace non-finite floats by None and numpy scalars by Python numbers, recursively;
+    with ``digits``, round every float to that many significant digits (:data:`JSON_DIGITS`)."""
     if isinstance(obj, dict):
-        return {str(k): jsonable(v) for k, v in obj.items()}
+        return {str(k): jsonable(v, digits) for k, v in obj.items()}
     if isinstance(obj, (list, tuple)):
-        return [jsonable(v) for v in obj]
+        return [jsonable(v, digits) for v in obj]
     if isinstance(obj, np.ndarray):
-        return [jsonable(v) for v in obj.tolist()]
+        return [jsonable(v, digits) for v in obj.tolist()]
+    if isinstance(obj, (bool, np.bool_)):
+        return bool(obj)
     if isinstance(obj, (np.integer,)):
         return int(obj)
     if isinstance(obj, (float, np.floating)):
         x = float(obj)
-        return x if math.isfinite(x) else None
+        if not math.isfinite(x):
+            return None
+        return x if digits is None else round_significant(x, digits)
     return obj
 
 
-def dumps(obj: Any) -> str:
-    """Strict JSON text (no NaN/Infinity tokens)."""
-    return json.dumps(jsonable(obj), indent=2, allow_nan=False)
+def dumps(obj: Any, digits: int | None = None) -> str:
+    """Strict JSON text (no NaN/Infinity tokens); ``digits``: see :func:`jsonable`."""
+    return json.dumps(jsonable(obj, digits), indent=2, allow_nan=False)
+
+
+def csv_number(x: float, direction: str = "nearest") -> str:
+    """A float for a CSV cell: :data:`JSON_DIGITS` significant digits, shortest text, no
+    ``.0`` on whole numbers, empty for nan; ``inf``/``-inf`` spelled out."""
+    x = float(x)
+    if math.isnan(x):
+        return ""
+    if math.isinf(x):
+        return "inf" if x > 0 else "-inf"
+    r = round_significant(x, JSON_DIGITS, direction)
+    return str(int(r)) if r.is_integer() and abs(r) < 1e16 else repr(r)
 
 
 def plan_dict(plan) -> dict:
