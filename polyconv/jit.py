@@ -165,15 +165,27 @@ def _write_marker(seconds: float) -> None:
 
 
 def _disabled_reason() -> str | None:
-    if os.environ.get("POLYCONV_JIT", "").strip() in ("0", "off", "no", "false"):
+    if os.environ.get("POLYCONV_JIT", "").strip().lower() in ("0", "off", "no", "false"):
         return "compiled kernels disabled by POLYCONV_JIT=0"
     if _failure:
         return _failure[0]
+    return _numba_missing()
+
+
+@lru_cache(maxsize=1)
+def _numba_missing() -> str | None:
     if "numba" in sys.modules and sys.modules["numba"] is None:
         return "numba cannot be imported (blocked)"
     if importlib.util.find_spec("numba") is None:
         return "numba is not installed"
     return None
+
+
+@lru_cache(maxsize=1)
+def _unloaded_state() -> str:
+    """``"cached"`` or ``"compile"`` (files are looked at once per process: the planner asks
+    on every call)."""
+    return "cached" if _marker_ok() else "compile"
 
 
 def state() -> str:
@@ -182,7 +194,7 @@ def state() -> str:
         return "compiled"
     if _disabled_reason() is not None:
         return "unavailable"
-    return "cached" if _marker_ok() else "compile"
+    return _unloaded_state()
 
 
 def reason() -> str:

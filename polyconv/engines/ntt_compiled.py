@@ -153,7 +153,9 @@ def _scale_factor(p: int, n: int) -> tuple[int, int]:
 
 
 def _as_int64(x: np.ndarray) -> np.ndarray:
-    return np.ascontiguousarray(x, dtype=np.int64)
+    """Contiguous writable int64 (the kernels' one signature; broadcast views are read-only)."""
+    x = np.ascontiguousarray(x, dtype=np.int64)
+    return x if x.flags.writeable else x.copy()
 
 
 def multiply_mod_primes(a: np.ndarray, b: np.ndarray, primes: tuple[int, ...],
@@ -202,10 +204,8 @@ def _count(a: np.ndarray, b: np.ndarray, keep: int | None) -> int:
 
 def _residue_rows(x: np.ndarray, primes: tuple[int, ...]) -> np.ndarray:
     """``x`` as int64 (when it fits) or as a ``(len(primes), n)`` matrix of residues."""
-    if x.dtype == np.int64:
-        return np.ascontiguousarray(x)
     if x.dtype.kind in "iub" and (x.dtype.kind != "u" or x.size == 0 or int(x.max()) < 2**63):
-        return x.astype(np.int64)
+        return _as_int64(x)
     rows = _intpack.values_to_rows(x)
     if not (rows.flags.c_contiguous and rows.flags.writeable):  # the kernel takes writable C rows
         rows = rows.copy()
@@ -301,3 +301,16 @@ def convolve_mod(a: np.ndarray, b: np.ndarray, m: int, keep: int | None = None) 
 
 def _kernels():
     return jit.kernels("_kernels_ntt")
+
+
+def run_planned(a: np.ndarray, b: np.ndarray, modulus: int | None, bound: int,
+                keep: int | None, as_int64: bool) -> np.ndarray | None:
+    """The product a plan of the exact chooser asked for: modulo ``modulus``, or exact from the
+    planned ``bound``; None when the kernels turned out not to load here (the caller then runs
+    an exact numpy engine instead)."""
+    try:
+        if modulus is not None:
+            return convolve_mod(a, b, modulus, keep)
+        return convolve_exact(a, b, bound, keep, as_int64=as_int64 or None)
+    except jit.JitUnavailableError:
+        return None
