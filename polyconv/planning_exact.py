@@ -23,7 +23,7 @@ import math
 from dataclasses import dataclass
 from functools import lru_cache
 
-from . import bounds
+from . import bounds, jit, planning_compiled
 from . import costs as _costs
 from .costs import load_costs
 from .engines.exact_direct import one_split_fits
@@ -93,12 +93,13 @@ def choose_exact(facts: IntegerFacts, kind: str, batch: tuple, mode: str, method
     """
     if _costs.generation == 0:
         load_costs()
-    return _choose_exact_cached(_costs.generation, facts, kind, batch, mode, method, keep)
+    return _choose_exact_cached(_costs.generation, facts, kind, batch, mode, method, keep,
+                                jit.state())
 
 
 @lru_cache(maxsize=1024)
 def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch: tuple, mode: str,
-                         method: str, keep: int | None) -> Plan:
+                         method: str, keep: int | None, jit_state: str = "") -> Plan:
     table = load_costs()
     c = table["exact"]
     n1, n2 = facts.n1, facts.n2
@@ -209,6 +210,12 @@ def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch:
         notes["ntt"] = f"NTT modulo the prime {m}"
         details["ntt"] = {"transform_length": n_full}
 
+    compiled = planning_compiled.compiled_option(facts, c, rows, n_full, out_len)
+    if compiled is not None:  # compiled NTT kernels (numba), JIT state charged
+        name = planning_compiled.ENGINE
+        options[name], notes[name], details[name] = compiled
+        certificates[name] = "construction"
+
     ranked = tuple(sorted(options.items(), key=lambda kv: kv[1]))
     if method == "auto":
         engine = ranked[0][0]
@@ -221,7 +228,7 @@ def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch:
     fallback = None
     if certificates[engine] == "check":
         fallback = min(("direct-exact", "kronecker"), key=options.get)
-    reason = f"{why} ({notes[engine]})"
+    reason = f"{why} ({notes[engine]})" + planning_compiled.remark(engine, compiled is not None)
     if fallback:
         reason += f"; if the check fails: {fallback}"
     d = dict(details.get(engine, {}))
