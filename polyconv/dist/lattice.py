@@ -367,8 +367,8 @@ class Lattice:
 
 
 def _fast(n: int) -> int:
-    from scipy import fft as sfft
-    return sfft.next_fast_len(n, real=True)
+    from ..transforms import fast_length
+    return fast_length(n, real=True)
 
 
 def same_step(a: Lattice, b: Lattice) -> bool:
