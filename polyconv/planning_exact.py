@@ -144,7 +144,7 @@ def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch:
     if bound < FLOAT_EXACT_LIMIT:
         err = bounds.fft_error_bound(facts.norm_a, facts.norm_b, n_pow2) \
             if math.isfinite(facts.norm_a) else math.inf
-        if err < 0.5:
+        if err < 0.5 and bounds.TWIDDLE_CERTIFIED:
             certificates["fft-exact"] = "bound"
             notes["fft-exact"] = f"float FFT error bound {err:.3g} < 1/2 (Percival 2003)"
         elif err < CHECK_BOUND_LIMIT and not circular:  # the check needs the full product
@@ -176,7 +176,7 @@ def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch:
             limbs = None  # that is fft-exact
     else:
         limbs = None
-    if limbs is not None:  # choose_limbs caps the count at 12
+    if limbs is not None and bounds.TWIDDLE_CERTIFIED:  # choose_limbs caps the count at 12
         bits, ka, kb = limbs
         transforms = (ka + kb) + (ka + kb - 1)
         if modular_limbs:
@@ -231,6 +231,8 @@ def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch:
     reason = f"{why} ({notes[engine]})" + planning_compiled.remark(engine, compiled is not None)
     if fallback:
         reason += f"; if the check fails: {fallback}"
+    if not bounds.TWIDDLE_CERTIFIED:
+        reason += f"; {bounds.TWIDDLE_NOTE}"
     d = dict(details.get(engine, {}))
     d["product_int64"] = fits_int64
     threads = d.pop("threads", 1)
