@@ -27,6 +27,7 @@ import numpy as np
 
 from .. import jit
 from . import _intpack
+from .ntt import _powers  # step^j mod p by doubling (one helper for both NTT engines)
 
 #: NTT primes ``p = c 2^k + 1`` between ``2^29`` and ``2^30`` (so ``4p < 2^32``: lazy butterflies
 #: stay in uint32) with a primitive root ``g``: ``(p, g, k)``, longest transforms first.  Found
@@ -99,18 +100,6 @@ def prime_count(bound: int, length: int, signed: bool = True) -> int:
         return len(primes_for(bound, length, signed))
     except ValueError:
         return 0
-
-
-def _powers(step: int, count: int, p: int) -> np.ndarray:
-    """``step^j mod p`` for ``j < count`` by doubling (vectorised uint64; ``p < 2^32``)."""
-    out = np.ones(count, dtype=np.uint64)
-    filled, factor = 1, step
-    while filled < count:
-        take = min(filled, count - filled)
-        out[filled:filled + take] = out[:take] * np.uint64(factor) % np.uint64(p)
-        filled += take
-        factor = factor * factor % p
-    return out
 
 
 def _stage_table(root: int, n: int, p: int) -> tuple[np.ndarray, np.ndarray]:
