@@ -11,19 +11,33 @@ cyclic convolution ``z'`` of ``x`` and ``y`` satisfies
 (the ``sqrt(5) eps`` is the error of a complex multiplication, Brent, Percival & Zimmermann, Math.
 Comp. 76 (2007)).  :func:`fft_error_bound` evaluates it in exact rational arithmetic and rounds up.
 
-Assumptions for pocketfft (numpy/scipy), which is not a plain radix-2 transform:
+Assumptions for the FFT library (:mod:`polyconv.transforms`: ducc0, else scipy's pocketfft), which
+is mixed-radix, not a plain radix-2 transform:
 
-* the certified path uses power-of-two lengths only, so pocketfft runs radix-4 passes (and one
-  radix-2 pass).  A radix-4 butterfly is two radix-2 levels with trivial inner twiddles (``+-i``,
-  exact), so we take the level count ``n = log2 N`` of the radix-2 theorem as covering it;
+* the certified path uses power-of-two lengths only, so the library runs radix-4 (ducc0 also
+  radix-8) passes and at most one radix-2 pass.  A radix-``2^r`` butterfly is ``r`` radix-2
+  levels whose inner twiddles are ``+-1, +-i`` (exact) or ``(+-1 +-i)/sqrt 2`` (rounded to
+  within ``eps/2 < beta``), so we take the level count ``n = log2 N`` of the radix-2 theorem as
+  covering it;
 * the real transforms (``rfft``/``irfft``) are a half-length complex transform plus one twiddled
   post-processing pass: at most ``n`` levels again, so the bound at length ``N`` is used;
-* twiddle error ``beta`` = :data:`TWIDDLE_ERROR` ``= 4 eps``.  pocketfft computes its twiddles
-  from an accurate sin/cos; the FFT of a unit impulse at index 1 returns the roots of unity as
-  the transform produces them (table entries and the products formed on the way), and its worst
-  deviation from roots computed in long double was 2.8-3.6 eps at ``N = 2^10 .. 2^21``
-  (bench/RESULTS.md, exact engines section).  We take 4 eps as the per-twiddle error: measured,
-  not proven.
+* twiddle error ``beta`` = :data:`TWIDDLE_ERROR`, measured per library and version range
+  (:data:`MEASURED_TWIDDLE_ERROR`) from unit-impulse responses, which return the roots of unity
+  as the transform produces them, against roots at exact reference angles (long double from a
+  40-digit pi, checked against mpmath to 0.003 eps; ``python bench/exact_error_ratio.py
+  --twiddles``, bench/RESULTS.md compiled section).  A real transform of length ``N`` is a
+  complex one of length ``N/2`` plus a post-processing pass with its own twiddles.  The rfft of
+  an impulse at index 1 passes the complex part trivially and exposes the post-processing
+  twiddles alone: worst 1.75 eps (ducc0 0.42.0) and 2.15 eps (pocketfft in scipy 1.17.1) over
+  ``N = 2^4 .. 2^22``.  Complex transforms of an impulse at index 1 multiply each output by a
+  product of one twiddle per level, so their error bounds the tables' from above: worst 4.69 eps
+  (ducc0) and 5.02 eps (pocketfft) over ``N/2 = 2^4 .. 2^21``.  ``beta`` is the larger of the
+  two rounded up: 5 eps (ducc0), 6 eps (pocketfft).  (The irfft of an impulse, 8.37 and 5.56 eps
+  at worst, sums two such complex paths and so measures no single twiddle.)  The earlier 4 eps
+  for pocketfft came from a reference built on float64 ``np.pi``.  Measured, not proven.
+* with any other library or version the "bound" certificate is not issued
+  (:data:`TWIDDLE_CERTIFIED` is False; :data:`TWIDDLE_NOTE` says why): the "check" certificate or
+  the exact engines take over.
 
 These are assumptions, not theorems about pocketfft; the measured worst errors on adversarial
 inputs stay 36-110x below the bound (bench/RESULTS.md, exact engines section), and the
@@ -43,8 +57,38 @@ import numpy as np
 from .engines._intpack import max_abs
 
 EPS = Fraction(1, 2**53)
-#: Assumed twiddle error of pocketfft (relative to 1), see the module notes.
-TWIDDLE_ERROR = 4 * EPS
+#: Per library: (first version measured, first version not measured, twiddle error), see the
+#: module notes (versions as tuples of ints).
+MEASURED_TWIDDLE_ERROR = {
+    "ducc0": ((0, 42), (0, 43), 5 * EPS),
+    "pocketfft-scipy": ((1, 17), (1, 18), 6 * EPS),
+}
+
+
+def _twiddle_error_here() -> tuple[bool, Fraction, str]:
+    """``(certified, beta, note)`` for the library :mod:`polyconv.transforms` runs."""
+    from . import transforms
+
+    entry = MEASURED_TWIDDLE_ERROR.get(transforms.LIBRARY)
+    try:
+        version = tuple(int(v) for v in transforms.LIBRARY_VERSION.split(".")[:2])
+    except ValueError:
+        version = ()
+    if entry is None or not entry[0] <= version < entry[1]:
+        return False, 9 * EPS, (f"{transforms.BACKEND}: twiddle error not measured for this "
+                                "library or version, so no float FFT bound certificate")
+    low, high, beta = entry
+    return True, beta, (f"{transforms.LIBRARY} {'.'.join(map(str, low))}.x twiddle error "
+                        f"{int(beta / EPS)} eps (measured)")
+
+
+#: Whether float FFT products may carry a "bound" certificate with the running library.
+TWIDDLE_CERTIFIED: bool
+#: Twiddle error (relative to 1) of the running library, see the module notes.
+TWIDDLE_ERROR: Fraction
+#: What :data:`TWIDDLE_CERTIFIED` rests on, in words.
+TWIDDLE_NOTE: str
+TWIDDLE_CERTIFIED, TWIDDLE_ERROR, TWIDDLE_NOTE = _twiddle_error_here()
 #: A rational upper bound of sqrt(5).
 _SQRT5_UP = Fraction(2236067977500, 10**12) + Fraction(1, 10**11)
 

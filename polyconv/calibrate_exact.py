@@ -19,6 +19,7 @@ import gmpy2
 import numpy as np
 
 from . import bounds, planning
+from .calibrate_compiled import measure_compiled
 from .engines.exact_direct import convolve_exact_direct
 from .engines.exact_fft import convolve_limbs, convolve_limbs_mod, convolve_rounded
 from .engines.kronecker import convolve_kronecker
@@ -123,6 +124,7 @@ def measure_exact(table: dict, quick: bool, best_time: Callable, fit: Callable,
     c = convolve_rounded(a, a, 2 * n)
     exact["check_per_point"] = best_time(lambda: bounds.random_evaluation_check(a, a, c),
                                          budget) / (4 * n)
+    exact.update(measure_compiled(quick, best_time, fit, say))
     return exact
 
 

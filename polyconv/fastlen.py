@@ -1,13 +1,13 @@
 """Transform lengths: the smallest fast FFT length that avoids wrap-around.
 
 A circular convolution of length ``N`` equals the linear one when ``N >= n1 + n2 - 1`` (zero
-padding; common practice, no source).  Among such ``N`` we take the next 5-smooth length, for
-which pocketfft (the FFT behind numpy and scipy) has dedicated radix-2/3/4/5 kernels.
+padding; common practice, no source).  Among such ``N`` we take the next length the running FFT
+library (:mod:`polyconv.transforms`) is fast at: 5-smooth for real transforms.
 """
 
 from __future__ import annotations
 
-from scipy import fft as _sfft
+from . import transforms
 
 
 def linear_length(n1: int, n2: int) -> int:
@@ -16,5 +16,5 @@ def linear_length(n1: int, n2: int) -> int:
 
 
 def fast_length(minimum: int, real: bool = True) -> int:
-    """Smallest length ``>= minimum`` that pocketfft transforms fast (5-smooth)."""
-    return _sfft.next_fast_len(minimum, real=real)
+    """Smallest length ``>= minimum`` that the FFT library transforms fast (5-smooth)."""
+    return transforms.fast_length(minimum, real=real)

@@ -31,7 +31,7 @@ from .costs import load_costs
 from .fastlen import fast_length
 
 FLOAT_ENGINES = ("direct", "fft", "overlap-add")
-EXACT_ENGINES = ("direct-exact", "fft-exact", "limbs", "kronecker", "ntt")
+EXACT_ENGINES = ("direct-exact", "fft-exact", "limbs", "kronecker", "ntt", "ntt-compiled")
 METHODS = ("auto",) + FLOAT_ENGINES + EXACT_ENGINES
 
 _CERTIFICATES = ("bound", "check", "construction", "none")

@@ -23,7 +23,7 @@ import math
 from dataclasses import dataclass
 from functools import lru_cache
 
-from . import bounds
+from . import bounds, jit, planning_compiled
 from . import costs as _costs
 from .costs import load_costs
 from .engines.exact_direct import one_split_fits
@@ -97,12 +97,13 @@ def choose_exact(facts: IntegerFacts, kind: str, batch: tuple, mode: str, method
     """
     if _costs.generation == 0:
         load_costs()
-    return _choose_exact_cached(_costs.generation, facts, kind, batch, mode, method, keep)
+    return _choose_exact_cached(_costs.generation, facts, kind, batch, mode, method, keep,
+                                jit.state())
 
 
 @lru_cache(maxsize=1024)
 def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch: tuple, mode: str,
-                         method: str, keep: int | None) -> Plan:
+                         method: str, keep: int | None, jit_state: str = "") -> Plan:
     table = load_costs()
     c = table["exact"]
     n1, n2 = facts.n1, facts.n2
@@ -149,7 +150,7 @@ def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch:
     if bound < FLOAT_EXACT_LIMIT and max(facts.max_a, facts.max_b) < FLOAT_EXACT_LIMIT:
         err = bounds.fft_error_bound(facts.norm_a, facts.norm_b, n_pow2) \
             if math.isfinite(facts.norm_a) else math.inf
-        if err < 0.5:
+        if err < 0.5 and bounds.TWIDDLE_CERTIFIED:
             certificates["fft-exact"] = "bound"
             notes["fft-exact"] = f"float FFT error bound {err:.3g} < 1/2 (Percival 2003)"
         elif err < CHECK_BOUND_LIMIT and not circular:  # the check needs the full product
@@ -181,7 +182,7 @@ def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch:
             limbs = None  # that is fft-exact
     else:
         limbs = None
-    if limbs is not None:  # choose_limbs caps the count at 12
+    if limbs is not None and bounds.TWIDDLE_CERTIFIED:  # choose_limbs caps the count at 12
         bits, ka, kb = limbs
         transforms = (ka + kb) + (ka + kb - 1)
         if modular_limbs:
@@ -215,6 +216,12 @@ def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch:
         notes["ntt"] = f"NTT modulo the prime {m}"
         details["ntt"] = {"transform_length": n_full}
 
+    compiled = planning_compiled.compiled_option(facts, c, rows, n_full, out_len)
+    if compiled is not None:  # compiled NTT kernels (numba), JIT state charged
+        name = planning_compiled.ENGINE
+        options[name], notes[name], details[name] = compiled
+        certificates[name] = "construction"
+
     ranked = tuple(sorted(options.items(), key=lambda kv: kv[1]))
     if method == "auto":
         engine = ranked[0][0]
@@ -227,9 +234,11 @@ def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch:
     fallback = None
     if certificates[engine] == "check":
         fallback = min(("direct-exact", "kronecker"), key=options.get)
-    reason = f"{why} ({notes[engine]})"
+    reason = f"{why} ({notes[engine]})" + planning_compiled.remark(engine, compiled is not None)
     if fallback:
         reason += f"; if the check fails: {fallback}"
+    if not bounds.TWIDDLE_CERTIFIED:
+        reason += f"; {bounds.TWIDDLE_NOTE}"
     d = dict(details.get(engine, {}))
     d["product_int64"] = fits_int64
     threads = d.pop("threads", 1)

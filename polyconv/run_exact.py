@@ -27,6 +27,7 @@ from .engines.exact_fft import (
 )
 from .engines.kronecker import convolve_kronecker, convolve_kronecker_mod, reduce_operand
 from .engines.ntt import convolve_ntt_mod_prime
+from .engines.ntt_compiled import run_planned as run_ntt_compiled
 from .planning import Plan
 from .planning_exact import FLOAT_EXACT_LIMIT, INT64_LIMIT, IntegerFacts
 
@@ -164,7 +165,7 @@ def _finish_row(row: np.ndarray, the_plan: Plan, dtype) -> np.ndarray:
 
 
 def _reduced_by_engine(engine: str) -> bool:
-    return engine in ("kronecker", "ntt", "limbs")
+    return engine in ("kronecker", "ntt", "limbs", "ntt-compiled")
 
 
 def _product_row(the_plan: Plan, a: np.ndarray, b: np.ndarray, keep: int | None) -> np.ndarray:
@@ -204,4 +205,7 @@ def run_engine(engine: str, the_plan: Plan, a: np.ndarray, b: np.ndarray,
     if engine == "ntt":
         out = convolve_ntt_mod_prime(a.astype(np.uint64), b.astype(np.uint64), m, keep)
         return out.astype(np.int64)
+    if engine == "ntt-compiled":
+        out = run_ntt_compiled(a, b, m, the_plan.setting("ntt_bound"), keep, product_int64)
+        return out if out is not None else run_engine("kronecker", the_plan, a, b, keep)
     raise AssertionError(f"unknown exact engine {engine!r}")  # the chooser never plans one

@@ -30,6 +30,8 @@ def register(sub) -> None:
     p.add_argument("--show", action="store_true", help="print the table in force and exit")
     p.add_argument("--quiet", action="store_true", help="no progress messages")
     p.add_argument("--json", action="store_true", help="print the written table as JSON")
+    p.add_argument("--kernels", action="store_true",
+                   help="only compile (or load from cache) the numba kernels, then exit")
     p.set_defaults(run=run)
 
 
@@ -38,6 +40,9 @@ def run(args) -> int:
         print(f"# cost table from: {costs.cost_source()}")
         print(json.dumps(costs.load_costs(), indent=2, sort_keys=True))
         return 0
+
+    if args.kernels:
+        return compile_kernels()
 
     def progress(msg: str) -> None:
         if not args.quiet:
@@ -51,4 +56,17 @@ def run(args) -> int:
         print(f"polyconv calibrate: wrote {path}")
         if args.output is not None and args.output.resolve() != costs.user_cost_path().resolve():
             print(f"  (set POLYCONV_COSTS={path} to use it)")
+    return 0
+
+
+def compile_kernels() -> int:
+    """Compile the compiled engines' kernels ahead of time (``--kernels``)."""
+    from .. import jit
+
+    try:
+        how, seconds = jit.ensure_compiled()
+    except jit.JitUnavailableError as exc:
+        print(f"polyconv calibrate: compiled kernels unavailable: {exc}", file=sys.stderr)
+        return 1
+    print(f"polyconv calibrate: kernels {how} in {seconds:.2f} s ({jit.cache_description()})")
     return 0

@@ -20,7 +20,7 @@ from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import fft as sfft
+from .. import transforms as tf
 from scipy.special import logsumexp
 
 from . import accuracy
@@ -240,7 +240,7 @@ def transform_compound(law: TransformLaw, f: np.ndarray, size: int, *, n_fft: in
 def _transform_once(law, f, size, n_fft, theta, log_alias_mass) -> TransformResult:
     u = accuracy.UNIT_ROUNDOFF
     if n_fft is None:
-        n_fft = sfft.next_fast_len(max(2 * size, f.size), real=True)
+        n_fft = tf.fast_length(max(2 * size, f.size), real=True)
     if n_fft < f.size:
         f = _fold(f, n_fft)
     if log_alias_mass is None:
@@ -251,9 +251,9 @@ def _transform_once(law, f, size, n_fft, theta, log_alias_mass) -> TransformResu
         theta = accuracy.choose_tilt(n_fft, size, log_alias_mass, pre_round)
     j = np.arange(f.size)
     ft = f * np.exp(-theta * j) if theta > 0 else f
-    phi = sfft.rfft(ft, n_fft)
+    phi = tf.rfft(tf.zero_padded(ft, n_fft), -1, 1)
     big_g = law.pgf(phi)
-    g_full = sfft.irfft(big_g, n_fft)
+    g_full = tf.irfft(big_g, n_fft, -1, 1)
     gt = g_full[:size]
     # floor: Lipschitz factor ||P'(phi)||_2 / sqrt(M) over the full (Hermitian) spectrum
     if law.ratio is not None:

@@ -1,0 +1,65 @@
+"""Measure the compiled NTT engine and fit its constants (``exact.ntt_compiled``, ``exact.jit``).
+
+Formula of :mod:`polyconv.planning_compiled`; constants fitted to timings of the engine itself:
+
+* ``overhead``, ``per_nlogn``, ``per_point``: one-prime products, ``c0 + c N lg N + c_pt N``;
+* ``per_digit``: Garner to int64 over ``k`` primes, per ``k^2`` and output coefficient;
+* ``per_object_out``: Garner to Python ints beyond the int64 route, per coefficient;
+* ``per_object_in``: residues of Python-int operands, per coefficient;
+* ``jit``: the time this process took to make the kernels ready (compiling them ahead of time if
+  the cache was cold); a cold compile is recorded as ``compile_seconds``, a warm load as
+  ``load_seconds``.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+
+import numpy as np
+
+from . import jit
+from .engines import ntt_compiled as nc
+
+
+def measure_compiled(quick: bool, best_time: Callable, fit: Callable,
+                     say: Callable[[str], None]) -> dict:
+    """``{"ntt_compiled": {...}, "jit": {...}}``, or ``{}`` when the kernels cannot run here."""
+    if jit.state() == "unavailable":
+        say(f"compiled kernels skipped: {jit.reason()}")
+        return {}
+    say("compiled NTT kernels (compiling them ahead of time if needed)")
+    try:
+        how, seconds = jit.ensure_compiled()
+    except jit.JitUnavailableError as exc:
+        say(f"compiled kernels skipped: {exc}")
+        return {}
+    timing = {"compile_seconds" if how == "compiled" else "load_seconds": seconds}
+    rng = np.random.default_rng(12)
+    budget = 0.02 if quick else 0.05
+    p = nc.PRIMES[0][0]
+    rows, times = [], []
+    for k in range(4, 15 if quick else 19, 2):
+        a = rng.integers(0, p, 2**(k - 1))
+        times.append(best_time(lambda a=a: nc.convolve_mod_prime(a, a[::-1].copy(), p), budget))
+        rows.append([1.0, 2**k * k, 2**k])
+    c0, c_nlogn, c_pt = fit(rows, times)
+    out = {"overhead": c0, "per_nlogn": c_nlogn, "per_point": c_pt}
+
+    count = 2**14
+    digit_rows, digit_times, extra = [], [], []
+    for k in (2, 3, 5, 8):
+        primes = tuple(q for q, _, _ in nc.PRIMES[:k])
+        res = np.stack([rng.integers(0, q, count) for q in primes])
+        t64 = best_time(lambda r=res, q=primes: nc.recombine(r, q, True), budget)
+        digit_times.append(t64)
+        digit_rows.append([1.0, k * k * count])
+        t_obj = best_time(lambda r=res, q=primes: nc.recombine(r, q, False), budget)
+        extra.append(max(t_obj - t64, 0.0) / count)
+    _, out["per_digit"] = fit(digit_rows, digit_times)
+    out["per_object_out"] = float(np.median(extra))
+
+    wide = np.array([int(v) << 80 for v in rng.integers(-2**40, 2**40, count)], dtype=object)
+    primes = nc.primes_for(2**300, 2 * count)
+    t = best_time(lambda: nc._residue_rows(wide, primes), budget)
+    out["per_object_in"] = t / count
+    return {"ntt_compiled": out, "jit": timing}

@@ -1,0 +1,180 @@
+"""The compiled NTT engines (polyconv.engines.ntt_compiled) against python-flint and Python ints.
+
+The kernels are compiled (or loaded from numba's cache) once per test session by the
+``kernels`` fixture; every check names its reference beside it.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+flint = pytest.importorskip("flint")
+pytest.importorskip("numba")
+
+from polyconv import jit  # noqa: E402
+from polyconv.engines import ntt_compiled as nc  # noqa: E402
+
+P = 998244353
+
+
+@pytest.fixture(scope="session")
+def kernels():
+    """Compile or load the kernels once for the whole session."""
+    return jit.kernels()
+
+
+def _nmod(a, b, m):
+    """python-flint's nmod_poly product, as Python ints (the reference)."""
+    return [int(c) for c in (flint.nmod_poly([int(v) for v in a], m)
+                             * flint.nmod_poly([int(v) for v in b], m)).coeffs()]
+
+
+def _fmpz(a, b):
+    """python-flint's fmpz_poly product, as Python ints (the reference)."""
+    return [int(c) for c in (flint.fmpz_poly([int(v) for v in a])
+                             * flint.fmpz_poly([int(v) for v in b])).coeffs()]
+
+
+def _padded(ref, count):
+    """flint drops trailing zero coefficients; our products keep the full length."""
+    return ref + [0] * (count - len(ref))
+
+
+def test_prime_table_is_correct():
+    # sympy's isprime and is_primitive_root are the reference
+    sympy = pytest.importorskip("sympy")
+    for p, g, k in nc.PRIMES:
+        assert sympy.isprime(p)
+        assert (p - 1) % (1 << k) == 0 and ((p - 1) >> k) % 2 == 1
+        assert sympy.is_primitive_root(g, p)
+        assert 4 * p < 2**32  # lazy butterflies stay in uint32
+    assert len({p for p, _, _ in nc.PRIMES}) == len(nc.PRIMES)
+
+
+def _cases(rng, m):
+    """Random and adversarial operand pairs with entries in [0, m)."""
+    yield rng.integers(0, m, 1), rng.integers(0, m, 1)
+    yield rng.integers(0, m, 2), rng.integers(0, m, 1)
+    yield np.full(37, m - 1), np.full(1000, m - 1)          # all-max residues
+    yield np.zeros(50, dtype=np.int64), rng.integers(0, m, 70)  # zeros
+    yield rng.integers(0, m, 3000), rng.integers(0, m, 1234)  # non-powers of two
+    yield np.full(2**15, m - 1), np.full(2**15, m - 1)         # full length 2^16 - 1
+
+
+@pytest.mark.parametrize("m", [P, 754974721, 167772161])
+def test_mod_prime_matches_flint_nmod_poly(kernels, m):
+    rng = np.random.default_rng(m)
+    for a, b in _cases(rng, m):
+        got = nc.convolve_mod_prime(a, b, m)
+        assert got.dtype == np.int64
+        # python-flint nmod_poly
+        assert got.tolist() == _padded(_nmod(a, b, m), len(a) + len(b) - 1)
+
+
+def test_mod_prime_square_and_keep(kernels):
+    rng = np.random.default_rng(3)
+    a = rng.integers(0, P, 777)
+    full = _nmod(a, a, P)  # python-flint nmod_poly
+    assert nc.convolve_mod_prime(a, a, P).tolist() == full
+    assert nc.convolve_mod_prime(a, a, P, keep=100).tolist() == full[:100]
+
+
+def _signed_cases(rng, top):
+    big = 2**top - 1
+    yield rng.integers(-big, big, 1, endpoint=True), rng.integers(-big, big, 1, endpoint=True)
+    yield rng.integers(-big, big, 2, endpoint=True), rng.integers(-big, big, 5, endpoint=True)
+    yield np.full(300, big), np.full(301, big)                                 # all +max
+    alt = np.where(np.arange(513) % 2 == 0, big, -big)
+    yield alt, alt[:400].copy()                                                # alternating
+    yield np.full(64, -big), np.full(65, big)
+    yield np.zeros(10, dtype=np.int64), rng.integers(-big, big, 9, endpoint=True)
+    yield rng.integers(-big, big, 5000, endpoint=True), rng.integers(-big, big, 3333,
+                                                                    endpoint=True)
+
+
+@pytest.mark.parametrize("top", [1, 15, 31, 62])
+def test_exact_signed_matches_flint_fmpz_poly(kernels, top):
+    rng = np.random.default_rng(top)
+    for a, b in _signed_cases(rng, top):
+        bound = min(len(a), len(b)) * (2**top - 1) ** 2
+        got = nc.convolve_exact(a, b, bound)
+        assert got.dtype == (np.int64 if bound < 2**63 else object)
+        # python-flint fmpz_poly
+        assert [int(v) for v in got] == _padded(_fmpz(a, b), len(a) + len(b) - 1)
+
+
+def test_exact_wide_objects_match_flint_fmpz_poly(kernels):
+    rng = np.random.default_rng(11)
+    for bits, n1, n2 in [(100, 1, 1), (200, 300, 257), (300, 2, 1000)]:
+        a = np.array([int(v) << (bits - 40) for v in rng.integers(-2**40, 2**40, n1)],
+                     dtype=object)
+        b = np.array([-(1 << bits) + 1 if i % 3 == 0 else int(v) << (bits - 40)
+                      for i, v in enumerate(rng.integers(-2**40, 2**40, n2))], dtype=object)
+        bound = min(n1, n2) * (1 << bits) ** 2
+        got = nc.convolve_exact(a, b, bound, keep=n1 + n2 - 2)
+        # python-flint fmpz_poly
+        assert [int(v) for v in got] == _padded(_fmpz(a, b), n1 + n2 - 1)[:n1 + n2 - 2]
+
+
+def test_exact_int64_forced_output(kernels):
+    # products of 31-bit values over 2^12 terms need P > 2^75 (three primes) but fit int64
+    rng = np.random.default_rng(5)
+    a = rng.integers(-2**31, 2**31, 4096)
+    got = nc.convolve_exact(a, a, 4096 * 2**62, as_int64=False)
+    assert got.dtype == object
+    assert [int(v) for v in got] == _fmpz(a, a)  # python-flint fmpz_poly
+
+
+def test_garner_matches_python_int_crt(kernels):
+    # reference: the CRT computed with Python ints, sum r_i (P/p_i) ((P/p_i)^-1 mod p_i) mod P,
+    # shifted into (-P/2, P/2]  (Knuth TAOCP 2, 4.3.2)
+    rng = np.random.default_rng(8)
+    for k in (1, 2, 3, 5, 9):
+        primes = tuple(p for p, _, _ in nc.PRIMES[:k])
+        total = math.prod(primes)
+        values = [int(v) for v in rng.integers(-2**62, 2**62, 200)]
+        values += [total // 2, -(total // 2), 0, 1, -1]
+        values = [v for v in values if abs(v) <= total // 2]
+        res = np.array([[v % p for v in values] for p in primes], dtype=np.int64)
+        expected = []
+        for c in range(len(values)):
+            x = sum(int(res[i, c]) * (total // p) * pow(total // p, -1, p)
+                    for i, p in enumerate(primes)) % total
+            expected.append(x - total if x > total // 2 else x)
+        assert expected == values
+        got = nc.recombine(res, primes, as_int64=False)
+        assert [int(v) for v in got] == expected
+        small = [i for i, v in enumerate(values) if abs(v) < 2**63]
+        got64 = nc.recombine(np.ascontiguousarray(res[:, small]), primes, as_int64=True)
+        assert got64.tolist() == [expected[i] for i in small]
+
+
+@pytest.mark.parametrize("m", [10**9 + 7, 2**61 - 1, 2**62 - 57, 2**64 - 59, 3])
+def test_mod_any_modulus_matches_flint(kernels, m):
+    rng = np.random.default_rng(m % 1000)
+    hi = min(m, 2**63)
+    cases = [(rng.integers(0, hi, 1000), rng.integers(0, hi, 999)),
+             (np.full(2, hi - 1), np.full(1, hi - 1)),
+             (np.full(4000, hi - 1), np.full(300, hi - 1))]
+    if m > 2**63:  # residues above int64: object operands
+        cases.append((np.array([m - 1] * 50, dtype=object), np.array([m - 2] * 7, dtype=object)))
+    for a, b in cases:
+        got = nc.convolve_mod(a, b, m)
+        if m < 2**64:
+            ref = _nmod(a, b, m)  # python-flint nmod_poly
+        else:
+            ref = [c % m for c in _fmpz(a, b)]
+        assert [int(v) for v in got] == _padded(ref, len(a) + len(b) - 1)
+
+
+def test_primes_for_bound():
+    # the product of the chosen primes exceeds twice the bound, one prime fewer does not
+    for bits in (1, 30, 63, 127, 500):
+        primes = nc.primes_for(2**bits, 2**16)
+        assert math.prod(primes) > 2 ** (bits + 1)
+        assert math.prod(primes[:-1]) <= 2 ** (bits + 1)
+    with pytest.raises(ValueError, match="more NTT primes"):
+        nc.primes_for(2**200, 2**25)
