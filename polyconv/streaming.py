@@ -33,7 +33,7 @@ import numpy as np
 
 from ._atomic import AtomicFile
 from .api import convolve
-from .budget import check_allocation
+from .budget import check_allocation, memory_budget
 from .inputs import as_number_array
 
 #: Smallest default block (samples): large enough that a block product amortises the fixed cost
@@ -689,6 +689,10 @@ def _convolve_open_file(src: NpySource, kernel, destination, modulus, block, pro
     dest = _check_destination(destination, src.path)
     given = check_block(block)
     size = min(given or default_block(k.shape[0]), src.length)
+    if not given:
+        # the default block shrinks to fit the memory budget (never below two kernel lengths)
+        fits = memory_budget() // (FILE_PEAK_BLOCKS * 8) - k.shape[0]
+        size = min(size, max(fits, 2 * k.shape[0], 1))
     check_allocation(FILE_PEAK_BLOCKS * 8 * (size + k.shape[0]),
                      f"block={size}" if given else
                      f"the default block of {size} samples (8 kernel lengths; pass block=)")
