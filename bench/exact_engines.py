@@ -18,8 +18,9 @@ import time
 import flint
 import numpy as np
 
-from polyconv import bounds
 from polyconv.engines import exact_fft, kronecker, ntt
+from polyconv.numerics import bounds
+from polyconv.numerics.limits import max_abs
 
 PRIME62 = 4611686018427387847  # 2^62 - 57, prime
 
@@ -72,7 +73,7 @@ def int_engines(a, b, bits):
         primes = ntt.primes_needed(bounds.product_bound(a, b), n_fft)
         engines[f"ntt-crt({len(primes)}p)"] = lambda: ntt.convolve_ntt_crt(a, b, primes,
                                                                          as_int64=fits or None)
-    choice = bounds.choose_limbs(bounds.max_abs(a), bounds.max_abs(b), n1, n2, n_fft)
+    choice = bounds.choose_limbs(max_abs(a), max_abs(b), n1, n2, n_fft)
     if choice is not None and bits <= 64:
         engines[f"limbs({choice[0]}b x{choice[1]})"] = (
             lambda: exact_fft.convolve_limbs(a, b, *choice, n_fft, as_int64=fits))

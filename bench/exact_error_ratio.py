@@ -1,13 +1,14 @@
 """Bound / observed error of float FFT products on adversarial 16-bit x 16-bit inputs.
 
 Run: python bench/exact_error_ratio.py [max_log2n] [--limbs | --twiddles]  (markdown tables; ~1
-minute to 2^20).  Float products run through polyconv.transforms (the library polyconv uses).
+minute to 2^20).  Float products run through polyconv.numerics.transforms (the library polyconv
+uses).
 Also measures the twiddle error of every transform library present (transforms of a unit
 impulse vs roots of unity from exact reference angles, checked against mpmath); ``--twiddles``
 prints only that table.
-With ``--limbs``: the limb engine's summed parts (sum_j A_j * B_(m-j) formed in the frequency
-domain, one inverse transform) against :func:`polyconv.bounds.limb_error_bound`, with every limb
-digit at its extreme.
+With ``--limbs``: the limb engine's summed parts (sum_j A_j * B_(m-j) formed in the
+frequency domain, one inverse transform) against
+:func:`polyconv.numerics.bounds.limb_error_bound`, with every limb digit at its extreme.
 With ``--check-limit``: the smallest bound/observed ratio over every length 2^1..2^14 and
 magnitude 2^10..2^26 whose bound lies in the "check" range (0.3..200), through the engine's own
 float product at the chooser's transform length (what ``planning_exact.CHECK_BOUND_LIMIT``
@@ -20,9 +21,9 @@ import sys
 
 import numpy as np
 
-from polyconv import bounds
-from polyconv import transforms as tf
 from polyconv.engines.kronecker import convolve_kronecker
+from polyconv.numerics import bounds
+from polyconv.numerics import transforms as tf
 
 M = 2**16 - 1
 
@@ -89,7 +90,7 @@ def twiddle_errors(n_fft: int, kernels=None) -> dict[str, float]:
     Forward complex and real transforms of a unit impulse at index 1 return ``w^k``
     (``w = e^{-2 pi i / N}``); the inverse complex transform of it returns ``w^-k / N`` and the
     inverse real transform ``2 cos(2 pi k / N) / N`` (scaled back exactly: ``N`` is a power of
-    two).  ``kernels``: ``(rfft, irfft, fft, ifft)`` with polyconv.transforms' signatures
+    two).  ``kernels``: ``(rfft, irfft, fft, ifft)`` with polyconv.numerics.transforms' signatures
     (default: the library polyconv runs).
     """
     rfft, irfft, fft, ifft = kernels or (tf.rfft, tf.irfft, tf.fft, tf.ifft)
@@ -158,7 +159,7 @@ def limb_rows(top: int) -> None:
 def check_limit_rows() -> None:
     """Worst bound/observed ratios where a "check" certificate may be planned (bound >= 1/2)."""
     from polyconv.engines.fft import convolve_fft
-    from polyconv.planning_exact import power_of_two_at_least
+    from polyconv.pipeline.choose_exact import power_of_two_at_least
 
     rows = []
     for lg in range(1, 15):

@@ -731,7 +731,7 @@ def case_cli_spec(rng: random.Random, work: Path):
 
 def case_cli_misc(rng: random.Random, work: Path):
 
-    from polyconv import costs
+    from polyconv.tuning import costs
 
     pick = rng.randrange(5)
     if pick <= 1:  # calibrate --show / multiply with a hostile cost file
@@ -796,7 +796,7 @@ def case_cli_misc(rng: random.Random, work: Path):
                            ["calibrate", "--quick", "--output", "keep.json"]])
         (work / "keep.json").write_text("{}")
         (work / "keep.json").chmod(0o640)
-        from polyconv import calibrate
+        from polyconv.tuning import calibrate
 
         real = calibrate.measure
         calibrate.measure = lambda quick=False, progress=None: costs.default_costs()

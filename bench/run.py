@@ -28,7 +28,7 @@ HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent))
 
 import polyconv  # noqa: E402
-from polyconv import planning  # noqa: E402
+from polyconv.tuning.threads import configured_threads  # noqa: E402
 
 RESULTS = HERE / "RESULTS.md"
 
@@ -131,7 +131,7 @@ def write_results(command: str, equal_rows: list[str], long_rows: list[str],
                   name: str = "float") -> None:
     text = RESULTS.read_text() if RESULTS.exists() else "# polyconv benchmark results\n"
     start, end = f"<!-- {name}:start -->", f"<!-- {name}:end -->"
-    threads = planning.configured_threads()
+    threads = configured_threads()
     section = "\n".join([
         start,
         f"## Float convolution, polyconv on {threads} thread{'s' if threads > 1 else ''}",
@@ -240,7 +240,7 @@ def main() -> int:
     print(HEADER)
     equal_rows, long_rows = bench_float(args.quick)
     if not args.quick:
-        single = planning.configured_threads() == 1
+        single = configured_threads() == 1
         name = args.section or ("float-1thread" if single else "float")
         command = ("POLYCONV_THREADS=1 " if single else "") + "python bench/run.py float"
         write_results(command, equal_rows, long_rows, name)

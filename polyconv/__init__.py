@@ -11,7 +11,7 @@ import importlib
 from typing import TYPE_CHECKING
 
 _WHERE = {
-    "convolve": "api", "plan": "api", "error_bound": "api", "Plan": "planning",
+    "convolve": "api", "plan": "api", "error_bound": "api", "Plan": "pipeline.plan",
     "convolve_file": "streaming", "convolve_chunks": "streaming",
     "convolve_dask": "dask_backend", "exact_product_dask": "dask_backend",
     "power": "algebra", "product": "algebra", "inverse_series": "algebra",
@@ -28,7 +28,7 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors
     from .algebra import ZeroDivisorError, inverse_series, poly_divmod, power, product
     from .api import convolve, error_bound, plan
     from .dask_backend import convolve_dask, exact_product_dask
-    from .planning import Plan
+    from .pipeline.plan import Plan
     from .streaming import convolve_chunks, convolve_file
 
 

@@ -43,13 +43,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .api import convolve, convolve_integer_rows
-from .bounds import max_abs
-from .budget import check_allocation, coefficient_bytes
 from .engines import _intpack
 from .engines.kronecker import multiply_rows
-from .inputs import as_number_array
-from .planning import THREADS
+from .numerics.budget import check_allocation, coefficient_bytes
+from .numerics.limits import max_abs
+from .pipeline.execute import convolve, convolve_integer_rows
+from .pipeline.inputs import as_number_array
+from .tuning.threads import THREADS
 
 __all__ = ["power", "product", "inverse_series", "poly_divmod", "counting_products",
            "ZeroDivisorError"]
@@ -543,7 +543,7 @@ CHAIN_PEAK_FACTOR = 4
 
 def _check_chain(ring: _Ring, count: int, bits: float, what: str) -> None:
     """Refuse a result of ``count`` coefficients of up to ``bits`` bits over the memory budget
-    (:func:`polyconv.budget.check_allocation`), before any product is formed."""
+    (:func:`polyconv.numerics.budget.check_allocation`), before any product is formed."""
     if isinstance(ring, _Floats):
         kind, bits = ("complex" if ring.dtype.kind == "c" else "real"), 0
     elif isinstance(ring, _Modular):

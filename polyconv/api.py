@@ -1,81 +1,19 @@
-"""Public entry points: validate -> plan -> engine -> shape.
+"""Public entry points: validate -> plan -> engine -> shape (:mod:`polyconv.pipeline`).
 
-``convolve`` and ``plan`` share the first two stages; ``convolve`` then runs exactly one engine and
-shapes its full (or truncated) product into the requested mode, dtype and axis.
+``convolve`` and ``plan`` share the first two stages (:mod:`polyconv.pipeline.prepare`);
+``convolve`` then runs exactly one engine and shapes its full (or truncated) product into the
+requested mode, dtype and axis (:mod:`polyconv.pipeline.execute`).  Dask operands go to the
+optional back end.  Nothing inside polyconv imports this module.
 """
 
 from __future__ import annotations
 
-import dataclasses
-import math
 import sys
 
 import numpy as np
 
-from . import inputs, planning, planning_exact, run_exact, shaping
-from .bounds import convolution_error_bound, norm2_upper
-from .budget import check_allocation, coefficient_bytes
-from .engines.direct import convolve_direct
-from .engines.fft import convolve_fft
-from .engines.overlap_add import convolve_overlap_add
-from .planning import Plan
-
-
-def _prepare(a, b, mode, method, modulus, length, axis):
-    pair = inputs.prepare_pair(a, b, axis)
-    inputs.check_mode(mode)
-    trunc = inputs.check_length(length, mode)
-    mod = inputs.check_modulus(modulus, pair.kind)
-    x, y = pair.a, pair.b
-    if trunc is not None:
-        x, y = x[..., :trunc], y[..., :trunc]
-    n1, n2 = x.shape[-1], y.shape[-1]
-    keep = None if trunc is None else min(trunc, n1 + n2 - 1)
-    planning.check_method(method)
-    if pair.kind in ("integer", "bigint"):
-        (x, max_x), (y, max_y) = (run_exact.normalise_integers(x, mod),
-                                  run_exact.normalise_integers(y, mod))
-        facts = run_exact.integer_facts(x, y, mod, max_x, max_y)
-        the_plan = planning_exact.choose_exact(facts, pair.kind, pair.batch_shape, mode, method,
-                                               keep)
-        bits = (mod - 1).bit_length() if mod is not None else facts.bound.bit_length() + 1
-    else:
-        the_plan = planning.choose(pair.kind, n1, n2, x.shape[:-1], y.shape[:-1],
-                                   pair.batch_shape, mode, method, keep)
-        bits = 0
-    check_budget(the_plan, pair.kind, bits, trunc)
-    return pair, x, y, trunc, the_plan
-
-
-#: Transform-sized arrays an FFT product holds at once (two spectra and the inverse transform,
-#: complex128): the engines' working set beside the result (counted from engines/fft.py).
-TRANSFORM_ARRAYS = 3
-
-
-def check_budget(the_plan: Plan, kind: str, bits: int, length: int | None) -> None:
-    """Refuse, before any allocation, a product whose result and work space exceed the memory
-    budget (:mod:`polyconv.budget`): ``rows * length * bytes per coefficient`` for the result
-    (``bits``: coefficient size of exact outputs) plus the transform arrays of the plan's
-    engine (all rows at once for float engines, one row at a time for exact ones; limbs hold
-    one spectrum per limb)."""
-    rows = math.prod(the_plan.batch_shape) if the_plan.batch_shape else 1
-    count = length if length is not None else the_plan.output_length
-    result = rows * count * coefficient_bytes(kind if not the_plan.exact else "integer", bits)
-    work = 0.0
-    if the_plan.transform_length:
-        arrays = TRANSFORM_ARRAYS
-        if the_plan.engine == "limbs":
-            ka, kb = the_plan.setting("limbs_a"), the_plan.setting("limbs_b")
-            arrays = 2 * (ka + kb)
-        work = arrays * 16.0 * the_plan.transform_length * (1 if the_plan.exact else rows)
-    n1, n2 = the_plan.lengths
-    if length is not None and length > n1 + n2 - 1:
-        what = f"length={length}"
-    else:
-        what = (f"the product of a ({n1} coefficients) and b ({n2})"
-                + (f" in a batch of {rows}" if rows > 1 else "")
-                + (f" with length={length}" if length is not None else ""))
-    check_allocation(result + work, what)
+from .pipeline import execute, prepare
+from .pipeline.plan import Plan
 
 
 def plan(a, b, *, mode: str = "full", method: str = "auto", modulus: int | None = None,
@@ -96,10 +34,7 @@ def plan(a, b, *, mode: str = "full", method: str = "auto", modulus: int | None 
     >>> polyconv.plan(np.ones(10), np.ones(3)).engine
     'direct'
     """
-    pair, *_, the_plan = _prepare(a, b, mode, method, modulus, length, axis)
-    if not the_plan.exact:
-        the_plan = dataclasses.replace(the_plan, error_bound=_float_bound(the_plan, pair))
-    return the_plan
+    return prepare.plan(a, b, mode=mode, method=method, modulus=modulus, length=length, axis=axis)
 
 
 def convolve(a, b, *, mode: str = "full", method: str = "auto", modulus: int | None = None,
@@ -160,41 +95,8 @@ def convolve(a, b, *, mode: str = "full", method: str = "auto", modulus: int | N
     """
     if _is_dask_array(a) or _is_dask_array(b):
         return _convolve_dask(a, b, mode, method, modulus, length, axis)
-    pair, x, y, trunc, the_plan = _prepare(a, b, mode, method, modulus, length, axis)
-    if 0 in pair.batch_shape:
-        full = shaping.empty_result(the_plan, pair.kind, x, y)
-    else:
-        full = run(the_plan, x, y)
-    return shaping.finish(full, the_plan, pair.axis, trunc)
-
-
-def convolve_integer_rows(x: np.ndarray, y: np.ndarray, *, mode: str = "full",
-                          modulus: int | None = None, length: int | None = None,
-                          magnitudes: tuple[int, int] | None = None) -> np.ndarray:
-    """:func:`convolve` for callers inside polyconv that hold already-checked operands.
-
-    ``x`` and ``y`` are 1-D, non-empty int64 or object arrays of integers, and ``mode``,
-    ``modulus`` and ``length`` have been validated (as :mod:`polyconv.algebra` does once per
-    call of its public functions).  The product is planned, certified and shaped exactly as in
-    :func:`convolve`; only the classification of array-likes is skipped, which is most of the
-    cost of a short product.  ``magnitudes``, when given, are upper bounds of ``max|x|`` and
-    ``max|y|`` for int64 operands that are already reduced when ``modulus`` is (the pass that
-    would find them is skipped).
-    """
-    keep = None if length is None else min(length, x.shape[0] + y.shape[0] - 1)
-    if length is not None:
-        x, y = x[:length], y[:length]
-    if magnitudes is not None and x.dtype == np.int64 and y.dtype == np.int64:
-        max_x, max_y = magnitudes
-    else:
-        (x, max_x), (y, max_y) = (run_exact.normalise_integers(x, modulus),
-                                  run_exact.normalise_integers(y, modulus))
-    facts = run_exact.integer_facts(x, y, modulus, max_x, max_y)
-    kind = "integer" if x.dtype != object and y.dtype != object else "bigint"
-    the_plan = planning_exact.choose_exact(facts, kind, (), mode, "auto", keep)
-    check_budget(the_plan, kind, (modulus - 1).bit_length() if modulus is not None
-                 else facts.bound.bit_length() + 1, length)
-    return shaping.finish(run_exact.run_exact(the_plan, x, y), the_plan, -1, length)
+    return execute.convolve(a, b, mode=mode, method=method, modulus=modulus, length=length,
+                            axis=axis)
 
 
 def _is_dask_array(x) -> bool:
@@ -214,40 +116,6 @@ def _convolve_dask(a, b, mode, method, modulus, length, axis):
     return convolve_dask(long, kernel, mode=mode, modulus=modulus)
 
 
-def run(the_plan: Plan, x: np.ndarray, y: np.ndarray) -> np.ndarray:
-    """Run the plan's engine on prepared operands (axis last); full or truncated product."""
-    engine = the_plan.engine
-    if the_plan.exact:
-        return run_exact.run_exact(the_plan, x, y)
-    work = shaping.float_work_dtype(x.dtype, y.dtype, the_plan.kind)
-    x = x.astype(work, copy=False)
-    y = y.astype(work, copy=False)
-    if engine == "direct":
-        return convolve_direct(x, y)
-    with np.errstate(invalid="ignore", over="ignore"):  # a NaN input is handled just below
-        out = _run_transform(the_plan, x, y)
-    if not shaping.looks_finite(out, first_entries_only=engine == "fft"):
-        bad = shaping.nonfinite_masks(x, y)
-        if bad is not None:
-            x, y = shaping.zero_nonfinite(x), shaping.zero_nonfinite(y)
-        # finite inputs whose product overflows: inf - inf inside a transform would give NaN
-        # where numpy.convolve gives +-inf, so the product is formed on scaled operands
-        out = shaping.run_scaled(lambda u, v: _run_transform(the_plan, u, v), x, y)
-        if bad is not None:
-            out = shaping.mark_nonfinite(out, bad, x.shape[-1], y.shape[-1])
-    return out
-
-
-def _run_transform(the_plan: Plan, x: np.ndarray, y: np.ndarray) -> np.ndarray:
-    if the_plan.engine == "fft":
-        keep = shaping.needed_entries(the_plan.mode, x.shape[-1], y.shape[-1],
-                                      the_plan.output_length)
-        return convolve_fft(x, y, the_plan.transform_length, keep, the_plan.threads)
-    if x.shape[-1] < y.shape[-1]:
-        x, y = y, x
-    return convolve_overlap_add(x, y, the_plan.transform_length, the_plan.threads)
-
-
 def error_bound(a, b, the_plan: Plan | None = None) -> float:
     """Rigorous bound on the absolute error of any output coefficient of a float product.
 
@@ -257,7 +125,8 @@ def error_bound(a, b, the_plan: Plan | None = None) -> float:
         max_k |c'_k - c_k| <= ||a||_2 ||b||_2 [(1+eps)^(3n) (1+sqrt5 eps)^(3n+1) (1+beta)^(3n) - 1]
 
     for a transform of length ``2^n`` with twiddle error ``beta``, evaluated in exact rational
-    arithmetic (:func:`polyconv.bounds.fft_error_bound`).  The FFT library is pocketfft, which is
+    arithmetic (:func:`polyconv.numerics.bounds.fft_error_bound`).  The FFT library is pocketfft,
+    which is
     mixed radix: we count ``n = ceil(log2 N)`` levels for a transform of length ``N`` plus one more
     when ``N`` is not a power of two (a radix-3 or -5 pass does at most a few more roundings per
     output than the radix-2 levels it replaces), and take ``beta = 4 eps`` as measured for
@@ -278,18 +147,6 @@ def error_bound(a, b, the_plan: Plan | None = None) -> float:
     float
         The bound (absolute, for float64 arithmetic; ``0.0`` for an exact integer plan).
     """
-    if the_plan is None:
-        return plan(a, b).error_bound  # plan() computes it
-    if the_plan.exact:
-        return 0.0
-    return _float_bound(the_plan, inputs.prepare_pair(a, b))
+    return prepare.error_bound(a, b, the_plan)
 
 
-def _float_bound(the_plan: Plan, pair: inputs.OperandPair) -> float:
-    """:func:`error_bound` of a float plan for prepared operands (axis last, largest rows)."""
-    x = np.asarray(pair.a, dtype=np.complex128 if pair.kind == "complex" else np.float64)
-    y = np.asarray(pair.b, dtype=x.dtype)
-    norm_a = max(norm2_upper(np.abs(r)) for r in x.reshape(-1, x.shape[-1]))
-    norm_b = max(norm2_upper(np.abs(r)) for r in y.reshape(-1, y.shape[-1]))
-    return convolution_error_bound(the_plan.engine, norm_a, norm_b, the_plan.transform_length,
-                                   min(the_plan.lengths))

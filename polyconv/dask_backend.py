@@ -22,9 +22,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .api import convolve
-from .budget import check_allocation, coefficient_bytes
-from .inputs import MODES, as_number_array
+from .numerics.budget import check_allocation, coefficient_bytes
+from .pipeline.execute import convolve
+from .pipeline.inputs import MODES, as_number_array
 from .streaming import (
     INT64_LIMIT,
     Summation,

@@ -32,9 +32,10 @@ from dataclasses import dataclass
 import numpy as np
 
 from ._atomic import AtomicFile
-from .api import convolve
-from .budget import check_allocation, memory_budget
-from .inputs import as_number_array
+from .numerics.budget import check_allocation, memory_budget
+from .numerics.limits import INT64_LIMIT
+from .pipeline.execute import convolve
+from .pipeline.inputs import as_number_array
 
 #: Smallest default block (samples): large enough that a block product amortises the fixed cost
 #: of one :func:`polyconv.api.convolve` call and of one read and one write, small enough (a few
@@ -50,7 +51,6 @@ BLOCK_PER_KERNEL = 8
 FILE_PEAK_BLOCKS = 10
 
 #: Partial sums of exact products stay in int64 while their bound is below this.
-INT64_LIMIT = 2**63
 
 ProgressCallback = Callable[[int, int], object]
 

@@ -1,4 +1,4 @@
-"""The memory budget (polyconv.budget): parsing, precedence, refusal before allocation."""
+"""The memory budget (polyconv.numerics.budget): parsing, precedence, refusal before allocation."""
 
 import os
 
@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 
 import polyconv
-from polyconv import budget
+from polyconv.numerics import budget
 
 
 def test_parse_budget_binary_prefixes():

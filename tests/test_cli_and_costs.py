@@ -11,8 +11,8 @@ import numpy as np
 import pytest
 
 import polyconv
-from polyconv import costs
 from polyconv.cli.main import main
+from polyconv.tuning import costs
 
 
 def test_user_cost_file_is_preferred_and_written_atomically(tmp_path, monkeypatch):

@@ -179,7 +179,8 @@ def test_replacing_keeps_the_existing_modes(tmp_path, capsys, umask):
 
 
 def test_cost_file_and_streamed_npy_keep_their_modes(tmp_path, umask):
-    from polyconv import costs, streaming
+    from polyconv import streaming
+    from polyconv.tuning import costs
 
     umask(0o077)
     path = tmp_path / "costs.json"
@@ -431,7 +432,7 @@ def test_a_delay_chain_nested_1000_deep_exits_2(tmp_path, capsys):
 
 @pytest.mark.parametrize("edit", ["missing", "wrong type", "not json"])
 def test_a_broken_cost_file_is_named(tmp_path, edit):
-    from polyconv import costs
+    from polyconv.tuning import costs
 
     table = costs.default_costs()
     if edit == "missing":

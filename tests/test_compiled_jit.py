@@ -1,4 +1,5 @@
-"""JIT state of the compiled kernels (polyconv.jit) and the compiled engine in the exact planner.
+"""JIT state of the compiled kernels (polyconv.engines.jit_state) and the compiled engine in the
+exact planner.
 
 Fallbacks run in subprocesses (numba blocked through ``sys.modules``, a read-only cache, numba
 never imported by ``import polyconv``); none of them compiles, so they stay fast.
@@ -17,7 +18,7 @@ import numpy as np
 import pytest
 
 import polyconv
-from polyconv import jit
+from polyconv.engines import jit_state as jit
 
 ROOT = Path(polyconv.__file__).resolve().parent.parent
 
@@ -47,7 +48,7 @@ def test_import_and_small_product_do_not_import_numba():
 
 def test_numba_blocked_means_numpy_engines_and_plan_says_so():
     code = ("import sys, json\nsys.modules['numba'] = None\n"
-            "import numpy as np, polyconv\nfrom polyconv import jit\n"
+            "import numpy as np, polyconv\nfrom polyconv.engines import jit_state as jit\n"
             "a = np.arange(5000) * 7919 % 998244353\n"
             "pl = polyconv.plan(a, a, modulus=998244353)\n"
             "c = polyconv.convolve(a, a, modulus=998244353)\n"
@@ -67,7 +68,7 @@ def test_numba_blocked_means_numpy_engines_and_plan_says_so():
 
 
 def test_disabled_by_environment():
-    got = _run("import json\nfrom polyconv import jit\n"
+    got = _run("import json\nfrom polyconv.engines import jit_state as jit\n"
                "print(json.dumps({'state': jit.state(), 'reason': jit.reason()}))",
                {"POLYCONV_JIT": "0"})
     assert got == {"state": "unavailable",
@@ -94,7 +95,7 @@ def test_read_only_install_falls_back_to_user_cache_dir(tmp_path):
     site = _read_only_copy(tmp_path)
     try:
         user = tmp_path / "user-cache"
-        got = _run("import json, os\nfrom polyconv import jit\n"
+        got = _run("import json, os\nfrom polyconv.engines import jit_state as jit\n"
                    "print(json.dumps({'enabled': jit.cache_enabled(), 'why': "
                    "jit.cache_description(), 'env': os.environ.get('NUMBA_CACHE_DIR'),"
                    " 'state': jit.state(), 'file': jit.__file__}))",
@@ -113,7 +114,8 @@ def test_read_only_everywhere_means_no_cache_not_an_error(tmp_path):
     blocker = tmp_path / "blocker"
     blocker.write_text("a file where a directory would have to be")
     try:
-        got = _run("import json, numpy as np, polyconv\nfrom polyconv import jit\n"
+        got = _run("import json, numpy as np, polyconv\n"
+                   "from polyconv.engines import jit_state as jit\n"
                    "c = polyconv.convolve(np.arange(10), np.arange(3))\n"
                    "print(json.dumps({'enabled': jit.cache_enabled(), 'why': "
                    "jit.cache_description(), 'state': jit.state(), 'c': c.tolist()}))",

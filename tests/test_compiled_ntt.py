@@ -14,7 +14,7 @@ import pytest
 flint = pytest.importorskip("flint")
 pytest.importorskip("numba")
 
-from polyconv import jit  # noqa: E402
+from polyconv.engines import jit_state as jit  # noqa: E402
 from polyconv.engines import ntt_compiled as nc  # noqa: E402
 
 P = 998244353

@@ -16,9 +16,10 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from polyconv import bounds
 from polyconv import convolve as polyconv_convolve
 from polyconv.engines import _intpack, exact_fft, kronecker, ntt
+from polyconv.numerics import bounds, checks
+from polyconv.numerics.limits import max_abs
 
 RNG = np.random.default_rng(12345)
 
@@ -221,7 +222,7 @@ def test_limbs_exact(bits):
             a = adversarial(n, bits, kind)
             b = adversarial(n + 3, bits, "alternating")
             n_fft = 1 << (2 * n + 2).bit_length()
-            limb_bits, ka, kb = bounds.choose_limbs(bounds.max_abs(a), bounds.max_abs(b),
+            limb_bits, ka, kb = bounds.choose_limbs(max_abs(a), max_abs(b),
                                                     n, n + 3, n_fft, max_limbs=64)
             out = exact_fft.convolve_limbs(a, b, limb_bits, ka, kb, n_fft)
             assert as_list(out) == flint_product(a, b)  # python-flint reference
@@ -302,7 +303,13 @@ def test_modular_rescue():
     p = 998244353
     exact = RNG.integers(-2**60, 2**60, 1000)
     noisy = exact.astype(np.float64) + RNG.uniform(-1000, 1000, 1000)
-    assert bounds.modular_rescue(noisy, exact % p, p).tolist() == exact.tolist()
+    assert checks.modular_rescue(noisy, exact % p, p).tolist() == exact.tolist()
+
+
+def test_check_prime_is_the_largest_prime_below_2_28():
+    # reference: gmpy2.prev_prime (GMP's probabilistic primality test, deterministic in this range)
+    assert checks.CHECK_PRIME == int(gmpy2.prev_prime(2**28))
+    assert checks.CHECK_PRIME < 2**28
 
 
 def test_random_evaluation_check():
@@ -311,10 +318,10 @@ def test_random_evaluation_check():
     b = RNG.integers(-2**40, 2**40, 1500)
     c = kronecker.convolve_kronecker(a, b)
     rng = random.Random(7)
-    assert bounds.random_evaluation_check(a, b, c, rng=rng)
+    assert checks.random_evaluation_check(a, b, c, rng=rng)
     wrong = c.copy()
     wrong[1234] += 1
-    assert not bounds.random_evaluation_check(a, b, wrong, rng=rng)
+    assert not checks.random_evaluation_check(a, b, wrong, rng=rng)
 
 
 # ----------------------------------------------------------------------------- properties
@@ -332,7 +339,7 @@ def test_property_engines_agree(xs, ys):
     assert ab == as_list(kronecker.convolve_kronecker(b, a))  # commutativity (no source)
     assert ab == as_list(kronecker.convolve_kronecker(a, b, two_point=True))
     n_fft = 1 << (len(xs) + len(ys)).bit_length()
-    choice = bounds.choose_limbs(bounds.max_abs(a), bounds.max_abs(b), len(xs), len(ys), n_fft)
+    choice = bounds.choose_limbs(max_abs(a), max_abs(b), len(xs), len(ys), n_fft)
     assert ab == as_list(exact_fft.convolve_limbs(a, b, *choice, n_fft))
     primes = ntt.primes_needed(bounds.product_bound(a, b), n_fft)
     assert ab == as_list(ntt.convolve_ntt_crt_objects(a, b, primes))

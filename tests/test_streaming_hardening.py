@@ -117,7 +117,7 @@ def test_a_damaged_cost_file_is_named_with_its_key(tmp_path, monkeypatch, damage
     # common practice, no source: the error names the file and the key at fault
     import json
 
-    from polyconv import costs
+    from polyconv.tuning import costs
     table = costs.default_costs()
     damage(table)
     path = tmp_path / "costs.json"

@@ -1,4 +1,5 @@
-"""polyconv.transforms (ducc0, else scipy's pocketfft) and the certificates that rest on it."""
+"""polyconv.numerics.transforms (ducc0, else scipy's pocketfft) and the certificates that rest on
+it."""
 
 from __future__ import annotations
 
@@ -13,9 +14,10 @@ import numpy as np
 import pytest
 
 import polyconv
-from polyconv import bounds, planning_exact
-from polyconv import transforms as tf
-from polyconv.fastlen import fast_length
+from polyconv.numerics import bounds
+from polyconv.numerics import transforms as tf
+from polyconv.numerics.transforms import fast_length
+from polyconv.pipeline import choose_exact
 
 ROOT = Path(polyconv.__file__).resolve().parent.parent
 
@@ -100,7 +102,7 @@ def test_unmeasured_library_gets_no_bound_certificate(monkeypatch):
     assert polyconv.plan(a, a, method="fft-exact").certificate == "bound"
     monkeypatch.setattr(bounds, "TWIDDLE_CERTIFIED", False)
     monkeypatch.setattr(bounds, "TWIDDLE_NOTE", "some-fft 9.9: twiddle error not measured")
-    planning_exact._choose_exact_cached.cache_clear()
+    choose_exact._choose_exact_cached.cache_clear()
     try:
         pl = polyconv.plan(a, a, method="fft-exact")
         assert pl.certificate == "check" and "twiddle error not measured" in pl.reason
@@ -110,12 +112,12 @@ def test_unmeasured_library_gets_no_bound_certificate(monkeypatch):
         ref = flint.fmpz_poly(a.tolist()) ** 2
         assert got.tolist() == [int(v) for v in ref.coeffs()]  # python-flint fmpz_poly
     finally:
-        planning_exact._choose_exact_cached.cache_clear()
+        choose_exact._choose_exact_cached.cache_clear()
 
 
 def test_scipy_fallback_when_ducc0_is_blocked():
     code = ("import sys, json\nsys.modules['ducc0'] = None\n"
-            "import numpy as np\nfrom polyconv import transforms as tf, bounds\n"
+            "import numpy as np\nfrom polyconv.numerics import transforms as tf, bounds\n"
             "x = np.arange(10.0)\n"
             "print(json.dumps({'lib': tf.LIBRARY, 'r': np.abs(tf.rfft(x, -1, 1)).tolist(),"
             " 'note': bounds.TWIDDLE_NOTE}))")

@@ -7,7 +7,7 @@ import json
 import sys
 from pathlib import Path
 
-from .. import calibrate, costs
+from ..tuning import calibrate, costs
 
 EXAMPLE = """example:
   polyconv calibrate --quick
@@ -61,7 +61,7 @@ def run(args) -> int:
 
 def compile_kernels() -> int:
     """Compile the compiled engines' kernels ahead of time (``--kernels``)."""
-    from .. import jit
+    from ..engines import jit_state as jit
 
     try:
         how, seconds = jit.ensure_compiled()

@@ -19,7 +19,8 @@ from pathlib import Path
 
 import numpy as np
 
-from .. import api
+from ..pipeline.execute import convolve
+from ..pipeline.prepare import plan
 from . import aggregate_cmd, delays_cmd, plots
 from . import distribution_report as skeleton
 from .fileio import ReportFolder, unlimited_int_digits
@@ -75,10 +76,10 @@ def dice_counts(dice: int, faces: int = 6) -> dict[int, int]:
     k = dice
     while k:
         if k & 1:
-            result = api.convolve(result, power)
+            result = convolve(result, power)
         k >>= 1
         if k:
-            power = api.convolve(power, power)
+            power = convolve(power, power)
     return {t: int(w) for t, w in enumerate(result) if w}
 
 
@@ -90,7 +91,7 @@ def coin_change(amount: int, coins: tuple[int, ...] = COINS) -> list[int]:
     for c in coins:
         series = np.zeros(amount + 1, dtype=np.int64)
         series[::c] = 1
-        ways = api.convolve(ways, series, length=amount + 1)
+        ways = convolve(ways, series, length=amount + 1)
     return [int(w) for w in ways]
 
 
@@ -107,7 +108,7 @@ def counting() -> dict:
                        "probability": fifty[mode_total] / 6**50},
         "coin_change": {"coins_cents": list(COINS), "ways_100": change[100],
                         "ways_10000": change[10_000],
-                        "plan": str(api.plan(np.ones(10_001, dtype=np.int64),
+                        "plan": str(plan(np.ones(10_001, dtype=np.int64),
                                              np.ones(10_001, dtype=np.int64),
                                              length=10_001).engine)},
         "_change_table": change,

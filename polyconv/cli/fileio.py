@@ -25,7 +25,8 @@ from pathlib import Path
 
 import numpy as np
 
-from .. import _atomic, budget
+from .. import _atomic
+from ..numerics import budget
 from .errors import CliError
 
 SEQUENCE_SUFFIXES = (".npy", ".txt", ".csv", ".json")

@@ -17,7 +17,10 @@ from pathlib import Path
 
 import numpy as np
 
-from .. import api, budget, streaming
+from .. import streaming
+from ..numerics import budget
+from ..pipeline.execute import convolve
+from ..pipeline.prepare import plan
 from .errors import CliError
 from .fileio import (
     SEQUENCE_SUFFIXES,
@@ -168,8 +171,8 @@ def _run(args) -> int:
     budget.check_allocation(total * _bytes_per_coefficient(a, b, out_path),
                             f"the product ({total} coefficients"
                             + (f", --length {length})" if length is not None else ")"))
-    the_plan = api.plan(a, b, modulus=modulus, length=length)
-    result = api.convolve(a, b, modulus=modulus, length=length)
+    the_plan = plan(a, b, modulus=modulus, length=length)
+    result = convolve(a, b, modulus=modulus, length=length)
     if out_path is not None:
         atomic_write(out_path, sequence_bytes(result, out_path.suffix, f"output {args.output!r}"))
     if args.json:

@@ -30,7 +30,7 @@ import math
 
 import numpy as np
 
-from .. import bounds
+from ..numerics import bounds
 
 UNIT_ROUNDOFF = 2.0 ** -53
 """Unit roundoff ``u`` of IEEE binary64."""
@@ -58,8 +58,8 @@ def fft_relative_error(n_fft: int) -> float:
 def fft_product_bound(norm_a: float, norm_b: float, n_fft: int) -> float:
     """Max abs error of any coefficient of a float FFT product (Percival 2003).
 
-    Delegates to :func:`polyconv.bounds.fft_error_bound` (exact rational evaluation, pocketfft's
-    measured twiddle error) at the level count :func:`polyconv.bounds.mixed_radix_levels_length`
+    Delegates to :func:`polyconv.numerics.bounds.fft_error_bound` (exact rational evaluation, pocketfft's
+    measured twiddle error) at the level count :func:`polyconv.numerics.bounds.mixed_radix_levels_length`
     charges for a length-``n_fft`` transform.
     """
     return bounds.fft_error_bound(float(norm_a), float(norm_b),
@@ -70,7 +70,7 @@ def convolution_bound(engine: str, a: np.ndarray, b: np.ndarray,
                       transform_length: int | None) -> float:
     """Error bound for one ``polyconv.convolve`` of two real vectors by the named engine.
 
-    See :func:`polyconv.bounds.convolution_error_bound`.
+    See :func:`polyconv.numerics.bounds.convolution_error_bound`.
     """
     na = float(np.sqrt(np.sum(a * a)))
     nb = float(np.sqrt(np.sum(b * b)))

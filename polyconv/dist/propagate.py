@@ -14,7 +14,8 @@ import numbers
 
 import numpy as np
 
-from ..api import convolve, plan
+from ..pipeline.execute import convolve
+from ..pipeline.prepare import plan
 from . import accuracy
 from .ledger import (
     ErrorLedger,

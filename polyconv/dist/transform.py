@@ -20,7 +20,7 @@ from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
-from .. import transforms as tf
+from ..numerics import transforms as tf
 from scipy.special import logsumexp
 
 from . import accuracy

@@ -2,5 +2,5 @@
 
 Every engine computes the *full* linear convolution along the last axis of two arrays whose
 leading axes broadcast.  Engines never validate user input and never call or choose another engine:
-``polyconv.planning`` chooses, ``polyconv.api`` validates and shapes.
+``polyconv.pipeline.choose`` chooses, ``polyconv.api`` validates and shapes.
 """

@@ -15,15 +15,6 @@ import numpy as np
 _FIXED = "iub"
 
 
-def max_abs(x: np.ndarray) -> int:
-    """Largest ``|x[i]|`` as a Python int (0 for an empty array; no int64 overflow)."""
-    if x.size == 0:
-        return 0
-    if x.dtype.kind in _FIXED:
-        return max(abs(int(x.max())), abs(int(x.min())))
-    return int(max(abs(int(x.max())), abs(int(x.min()))))
-
-
 def to_objects(x: np.ndarray) -> np.ndarray:
     """A 1-D object array of Python ints holding ``x``'s values."""
     if x.dtype.kind in _FIXED:

@@ -1,7 +1,8 @@
 """Compiled (numba) kernels of the NTT engines: transforms, products, Garner CRT, residues.
 
-Import this module only through :func:`polyconv.jit.kernels`, which decides the cache directory
-before numba is imported and records whether the kernels were compiled or loaded from cache.
+Import this module only through :func:`polyconv.engines.jit_state.kernels`, which decides the
+cache directory before numba is imported and records whether the kernels were compiled or loaded
+from cache.
 Every kernel has one explicit signature, so importing the module compiles (or loads) all of them
 at once and no call ever waits for the compiler.
 
@@ -35,7 +36,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from .. import jit as _jit
+from . import jit_state as _jit
 
 CACHE = _jit.cache_enabled()
 

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..numerics.limits import max_abs
 from . import _intpack
 from .direct import convolve_direct
 
@@ -41,7 +42,7 @@ def convolve_exact_direct(a: np.ndarray, b: np.ndarray, keep: int | None = None)
     """
     if keep is not None:
         a, b = a[:keep], b[:keep]
-    max_a, max_b = _intpack.max_abs(a), _intpack.max_abs(b)
+    max_a, max_b = max_abs(a), max_abs(b)
     bound = min(a.shape[0], b.shape[0]) * max_a * max_b
     if bound < FLOAT_EXACT_LIMIT and max(max_a, max_b) < FLOAT_EXACT_LIMIT:
         # every operand and partial sum is an integer below 2^53: float64 is exact (the operand

@@ -2,7 +2,8 @@
 
 If a float computation ``c'`` of an integer product ``c`` satisfies ``|c' - c| < 1/2`` everywhere,
 rounding ``c'`` recovers ``c`` exactly.  Whether that holds is the caller's business: it comes from
-a certificate (:func:`polyconv.bounds.fft_error_bound`, Percival 2003) or an a-posteriori check.
+a certificate (:func:`polyconv.numerics.bounds.fft_error_bound`, Percival 2003) or an a-posteriori
+check.
 
 Limb split (the "splitting" of D. E. Knuth, TAOCP vol. 2, 4.3.3, applied coefficientwise; see also
 Brent & Zimmermann, *Modern Computer Arithmetic*, section 3.3.2): write every coefficient in
@@ -18,7 +19,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .. import transforms as tf
+from ..numerics import transforms as tf
 from . import _intpack
 from .fft import convolve_fft
 
@@ -138,7 +139,7 @@ def convolve_limbs(a: np.ndarray, b: np.ndarray, limb_bits: int, limbs_a: int, l
     limb_bits : int
         ``b``, at most 30.  The caller guarantees, from an error bound on the sums of
         ``min(limbs_a, limbs_b)`` limb products at length ``n_fft``, that every rounded limb
-        product is exact (:func:`polyconv.bounds.limb_error_bound`).
+        product is exact (:func:`polyconv.numerics.bounds.limb_error_bound`).
     limbs_a, limbs_b : int
         Limb counts, at least :func:`limb_count` of each operand's largest magnitude.
     n_fft : int

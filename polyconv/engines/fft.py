@@ -4,14 +4,14 @@ The circular convolution theorem ``DFT(a (*) b) = DFT(a) . DFT(b)`` gives the fu
 convolution when both operands are zero padded to a length ``N >= n1 + n2 - 1`` (common practice, no
 source; see any signal-processing text, e.g. Oppenheim & Schafer, *Discrete-Time Signal
 Processing*, section 8.7).  Real data go through real-input transforms, which do about half the
-work of complex ones.  Transforms come from :mod:`polyconv.transforms` (pocketfft).
+work of complex ones.  Transforms come from :mod:`polyconv.numerics.transforms` (pocketfft).
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-from .. import transforms as tf
+from ..numerics import transforms as tf
 from ._threads import helper_thread
 
 #: Up to this length both 1-D operands go through one batched transform call (saves a call's

@@ -28,6 +28,7 @@ from collections.abc import Callable
 import gmpy2
 import numpy as np
 
+from ..numerics.limits import max_abs
 from . import _intpack
 from ._threads import gmp_products
 
@@ -51,12 +52,12 @@ def slot_width(bound: int) -> int:
 
 def product_bound(a: np.ndarray, b: np.ndarray) -> int:
     """``min(n1, n2) max|a| max|b|``: bounds every ``|c_k|`` of the full product."""
-    return min(a.shape[0], b.shape[0]) * _intpack.max_abs(a) * _intpack.max_abs(b)
+    return min(a.shape[0], b.shape[0]) * max_abs(a) * max_abs(b)
 
 
 def slot_bound(a: np.ndarray, b: np.ndarray) -> int:
     """What a slot must hold: the product bound, and the operands themselves plus a borrow."""
-    max_a, max_b = _intpack.max_abs(a), _intpack.max_abs(b)
+    max_a, max_b = max_abs(a), max_abs(b)
     return max(min(a.shape[0], b.shape[0]) * max_a * max_b, max_a, max_b) + 1
 
 

@@ -1,7 +1,7 @@
 """Compiled number-theoretic transform engines: modulo an NTT prime, exact integers, modulo any m.
 
 The arithmetic runs in the numba kernels of :mod:`polyconv.engines._kernels_ntt` (loaded through
-:mod:`polyconv.jit`; this module imports no numba itself):
+:mod:`polyconv.engines.jit_state`; this module imports no numba itself):
 
 * :func:`convolve_mod_prime`: one NTT product modulo a prime ``p = c 2^k + 1 < 2^30``
   (J. M. Pollard, Math. Comp. 25 (1971) 365-374);
@@ -25,8 +25,7 @@ import math
 
 import numpy as np
 
-from .. import jit
-from . import _intpack
+from . import _intpack, jit_state
 from .ntt import _powers  # step^j mod p by doubling (one helper for both NTT engines)
 
 #: NTT primes ``p = c 2^k + 1`` between ``2^29`` and ``2^30`` (so ``4p < 2^32``: lazy butterflies
@@ -289,7 +288,7 @@ def convolve_mod(a: np.ndarray, b: np.ndarray, m: int, keep: int | None = None) 
 
 
 def _kernels():
-    return jit.kernels("_kernels_ntt")
+    return jit_state.kernels("_kernels_ntt")
 
 
 def run_planned(a: np.ndarray, b: np.ndarray, modulus: int | None, bound: int,
@@ -301,5 +300,5 @@ def run_planned(a: np.ndarray, b: np.ndarray, modulus: int | None, bound: int,
         if modulus is not None:
             return convolve_mod(a, b, modulus, keep)
         return convolve_exact(a, b, bound, keep, as_int64=as_int64 or None)
-    except jit.JitUnavailableError:
+    except jit_state.JitUnavailableError:
         return None

@@ -14,7 +14,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .. import transforms as tf
+from ..numerics import transforms as tf
 from .fft import _multiply
 
 #: points per group of blocks transformed together: small enough that a group's input, spectrum

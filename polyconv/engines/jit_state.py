@@ -37,7 +37,7 @@ from pathlib import Path
 #: Kernel modules, in load order (``polyconv.engines.<name>``).
 KERNEL_MODULES = ("_kernels_ntt",)
 
-_ENGINES_DIR = Path(__file__).resolve().parent / "engines"
+_ENGINES_DIR = Path(__file__).resolve().parent
 _MARKER = "polyconv-kernels.json"
 
 _loaded: dict = {}          # name -> module once loaded in this process

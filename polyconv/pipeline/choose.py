@@ -1,6 +1,7 @@
-"""Planning: predict each engine's cost from measured constants and choose one.
+"""Planning for float operands: predict each engine's cost from measured constants and choose one.
 
-The chooser never computes a product.  It reads the cost table of :mod:`polyconv.costs`, predicts
+The float chooser never computes a product.  It reads the cost table of
+:mod:`polyconv.tuning.costs`, predicts
 seconds for every engine that can do the job, and returns a :class:`Plan` naming the fastest (or the
 one the caller forced with ``method=``), with the parameters the engine needs (transform length,
 block length, threads) and one sentence saying why.
@@ -20,202 +21,16 @@ Cost formulas (constants from the table; ``lg = log2``)
 
 from __future__ import annotations
 
-import bisect
 import math
-import os
-from dataclasses import dataclass, field
 from functools import lru_cache
 
-from . import costs as _costs
-from .costs import load_costs
-from .fastlen import fast_length
-
-FLOAT_ENGINES = ("direct", "fft", "overlap-add")
-EXACT_ENGINES = ("direct-exact", "fft-exact", "limbs", "kronecker", "ntt", "ntt-compiled")
-METHODS = ("auto",) + FLOAT_ENGINES + EXACT_ENGINES
-
-_CERTIFICATES = ("bound", "check", "construction", "none")
-
-
-@dataclass(frozen=True, slots=True)
-class Plan:
-    """How one convolution will be computed, and why.
-
-    Attributes
-    ----------
-    engine : str
-        The engine that will run: ``"direct"``, ``"fft"``, ``"overlap-add"`` (floats);
-        ``"direct-exact"``, ``"fft-exact"``, ``"limbs"``, ``"kronecker"``, ``"ntt"`` (integers).
-    exact : bool
-        True when every output coefficient is exactly the mathematical result.
-    certificate : str
-        Why the result can be trusted: ``"bound"`` (a rigorous a-priori error bound proves it),
-        ``"check"`` (an a-posteriori check proves it), ``"construction"`` (exact arithmetic), or
-        ``"none"`` (ordinary floating point; no claim beyond the usual rounding).
-    error_bound : float
-        Maximum absolute error of any output coefficient: ``0.0`` when exact, ``inf`` when no
-        rigorous bound has been computed for this plan.
-    predicted_seconds : float
-        The cost model's prediction for the chosen engine.
-    reason : str
-        One sentence explaining the choice.
-    kind : str
-        Arithmetic kind of the operands (``"real"``, ``"complex"``, ``"integer"``, ``"bigint"``).
-    mode : str
-        ``"full"``, ``"same"`` or ``"valid"``.
-    lengths : tuple of int
-        ``(n1, n2)``, the operand lengths along the convolution axis.
-    batch_shape : tuple of int
-        Broadcast shape of the other axes.
-    output_length : int
-        Length of the result along the convolution axis.
-    transform_length : int or None
-        FFT length (per block for overlap-add).
-    block_length : int or None
-        Overlap-add block length.
-    threads : int
-        Threads the engine may use.
-    alternatives : tuple of (str, float)
-        Every engine considered with its predicted seconds, fastest first.
-    settings : tuple of (str, value)
-        Further engine parameters (limb sizes and counts for "limbs").
-    fallback : str or None
-        For certificate "check": the engine that recomputes the product if the check fails.
-    modulus : int or None
-        The modulus outputs are reduced by.
-    output_int64 : bool
-        For exact plans: whether the result is returned as int64 (else Python ints).
-    """
-
-    engine: str
-    exact: bool
-    certificate: str
-    error_bound: float
-    predicted_seconds: float
-    reason: str
-    kind: str = "real"
-    mode: str = "full"
-    lengths: tuple = (0, 0)
-    batch_shape: tuple = ()
-    output_length: int = 0
-    transform_length: int | None = None
-    block_length: int | None = None
-    threads: int = 1
-    alternatives: tuple = field(default=())
-    settings: tuple = ()
-    fallback: str | None = None
-    modulus: int | None = None
-    output_int64: bool = False
-
-    def setting(self, name: str, default=None):
-        """The engine parameter ``name`` from :attr:`settings` (``default`` if absent)."""
-        for key, value in self.settings:
-            if key == name:
-                return value
-        return default
-
-    def __str__(self) -> str:
-        n1, n2 = self.lengths
-        batch = f" x batch {self.batch_shape}" if self.batch_shape else ""
-        lines = [
-            f"polyconv plan: {self.engine} for {self.kind} operands of lengths {n1} and {n2}"
-            f"{batch}, mode {self.mode!r} -> {self.output_length} outputs",
-            f"  why:         {self.reason}",
-            f"  predicted:   {format_seconds(self.predicted_seconds)}",
-            f"  exact:       {'yes' if self.exact else 'no'} (certificate: {self.certificate})",
-            f"  error bound: {_fmt_bound(self.error_bound)}",
-        ]
-        if self.transform_length:
-            detail = f"  transform:   length {self.transform_length}"
-            if self.block_length:
-                detail += f", blocks of {self.block_length}"
-            detail += f", {self.threads} thread{'s' if self.threads != 1 else ''}"
-            lines.append(detail)
-        elif self.threads > 1:
-            lines.append(f"  threads:     {self.threads}")
-        if self.settings:
-            lines.append("  settings:    " + ", ".join(f"{k}={v}" for k, v in self.settings))
-        if self.modulus is not None:
-            lines.append(f"  modulus:     {self.modulus} (outputs in [0, modulus))")
-        if self.exact:
-            lines.append(f"  output:      {'int64' if self.output_int64 else 'Python ints'}")
-        if self.fallback:
-            lines.append(f"  fallback:    {self.fallback} (if the check fails)")
-        if len(self.alternatives) > 1:
-            others = ", ".join(f"{name} {format_seconds(t)}" for name, t in self.alternatives)
-            lines.append(f"  considered:  {others}")
-        return "\n".join(lines)
-
-
-def format_seconds(t: float) -> str:
-    if t < 1e-3:
-        return f"{t * 1e6:.1f} us"
-    if t < 1.0:
-        return f"{t * 1e3:.2f} ms"
-    return f"{t:.2f} s"
-
-
-def _fmt_bound(bound: float) -> str:
-    if bound == 0.0:
-        return "0 (exact)"
-    if math.isinf(bound):
-        return "not computed (floating point, no rigorous bound claimed)"
-    return f"{bound:.3g} (absolute, any coefficient)"
-
-
-def configured_threads() -> int:
-    """Threads polyconv may use: ``POLYCONV_THREADS`` if set, else the usable CPU count."""
-    env = os.environ.get("POLYCONV_THREADS")
-    if env:
-        try:
-            return max(1, int(env))
-        except ValueError:
-            pass
-    try:
-        return max(1, len(os.sched_getaffinity(0)))
-    except AttributeError:  # pragma: no cover - not on Linux
-        return max(1, os.cpu_count() or 1)
-
-
-#: Threads the planners allow (read once, at import).
-THREADS = configured_threads()
-
+from ..numerics.transforms import fast_length
+from ..tuning import costs as _costs
+from ..tuning.costs import fft_rate, load_costs
+from ..tuning.threads import THREADS
+from .plan import EXACT_ENGINES, Plan, check_method, format_seconds, output_length
 
 # ----------------------------------------------------------------------------- cost predictions
-
-
-class _RateTable:
-    """The ``rate_by_log2n`` table as sorted arrays, built once per cost table."""
-
-    __slots__ = ("source", "xs", "ys")
-
-    def __init__(self, table: dict):
-        self.source = table
-        pairs = sorted((int(k), float(v)) for k, v in table.items())
-        self.xs = [p[0] for p in pairs]
-        self.ys = [p[1] for p in pairs]
-
-    def at(self, x: float) -> float:
-        xs, ys = self.xs, self.ys
-        if x <= xs[0]:
-            return ys[0]
-        if x >= xs[-1]:
-            return ys[-1]
-        i = bisect.bisect_right(xs, x)
-        w = (x - xs[i - 1]) / (xs[i] - xs[i - 1])
-        return ys[i - 1] * (1.0 - w) + ys[i] * w
-
-
-_rates: _RateTable | None = None
-
-
-def fft_rate(costs: dict, n_fft: int) -> float:
-    """Seconds per ``N log2 N`` of one real 1-D FFT product at length ``N``, interpolated."""
-    global _rates
-    table = costs["fft"]["rate_by_log2n"]
-    if _rates is None or _rates.source is not table:
-        _rates = _RateTable(table)
-    return _rates.at(math.log2(max(n_fft, 2)))
 
 
 def thread_speedup(costs: dict, points: int, threads: int, batched: bool) -> float:
@@ -292,22 +107,6 @@ def _prod(shape) -> int:
     return p
 
 
-def output_length(mode: str, n1: int, n2: int) -> int:
-    """Length along the axis of a ``mode`` convolution (numpy.convolve's definitions)."""
-    if mode == "full":
-        return n1 + n2 - 1
-    if mode == "same":
-        return max(n1, n2)
-    return max(n1, n2) - min(n1, n2) + 1
-
-
-def check_method(method) -> str:
-    """Return ``method`` if it names "auto" or an engine, else raise ValueError."""
-    if not isinstance(method, str) or method not in METHODS:
-        raise ValueError(f"method must be one of {', '.join(map(repr, METHODS))}; got {method!r}")
-    return method
-
-
 def choose(kind: str, n1: int, n2: int, batch_a: tuple, batch_b: tuple, batch: tuple,
            mode: str = "full", method: str = "auto", keep: int | None = None) -> Plan:
     """Predict every capable engine's cost and return the Plan for the chosen one.
@@ -318,7 +117,7 @@ def choose(kind: str, n1: int, n2: int, batch_a: tuple, batch_b: tuple, batch: t
     Parameters
     ----------
     kind : str
-        Operand kind from :func:`polyconv.inputs.prepare_pair`.
+        Operand kind from :func:`polyconv.pipeline.inputs.prepare_pair`.
     n1, n2 : int
         Operand lengths along the convolution axis.
     batch_a, batch_b, batch : tuple of int

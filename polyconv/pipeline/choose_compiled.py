@@ -1,9 +1,10 @@
 """The compiled NTT engine in the exact planner: when it applies, what it costs, what plan() says.
 
-:func:`compiled_option` is called by :func:`polyconv.planning_exact.choose_exact` with the
+:func:`compiled_option` is called by :func:`polyconv.pipeline.choose_exact.choose_exact` with the
 integer facts; it returns the engine's predicted seconds (or None when it cannot run), a note for
 the plan's reason and the settings the runner needs.  The prediction charges the state of the
-kernels (:mod:`polyconv.jit`): nothing once they are compiled in this process, a warm-cache load
+kernels (:mod:`polyconv.engines.jit_state`): nothing once they are compiled in this process, a
+warm-cache load
 or a whole compile otherwise, so a one-off small product never waits for the compiler while a
 product that outweighs it may pay it.
 
@@ -22,8 +23,7 @@ from __future__ import annotations
 
 import math
 
-from . import jit
-from .engines import ntt_compiled
+from ..engines import jit_state, ntt_compiled
 
 ENGINE = "ntt-compiled"
 
@@ -48,7 +48,7 @@ def compiled_option(facts, exact_costs: dict, rows: int, n_full: int, out_len: i
 
     ``settings`` holds ``ntt_bound`` (the bound the primes are chosen from; 0 for a modulus).
     """
-    state = jit.state()
+    state = jit_state.state()
     if state == "unavailable":
         return None
     m = facts.modulus
@@ -75,7 +75,7 @@ def compiled_option(facts, exact_costs: dict, rows: int, n_full: int, out_len: i
         per_row += c["per_object_in"] * (facts.n1 + facts.n2)
     seconds = charge + c["overhead"] + rows * per_row
     what = "one prime" if k == 1 else f"{k} primes and Garner CRT"
-    note = f"compiled NTT modulo {what}; {jit.reason()}"
+    note = f"compiled NTT modulo {what}; {jit_state.reason()}"
     if charge:
         note += f" ({charge:.2g} s charged)"
     return seconds, note, settings
@@ -85,11 +85,11 @@ def remark(chosen: str, offered: bool) -> str:
     """What plan() adds when the compiled engine was not chosen (its state, and why)."""
     if chosen == ENGINE:
         return ""
-    state = jit.state()
+    state = jit_state.state()
     if state == "unavailable":
-        return f"; compiled engines unavailable: {jit.reason()}"
+        return f"; compiled engines unavailable: {jit_state.reason()}"
     if not offered:
         return ""
     if state == "compiled":
         return "; compiled NTT predicted slower"
-    return f"; compiled NTT not chosen: {jit.reason()}"
+    return f"; compiled NTT not chosen: {jit_state.reason()}"

@@ -1,6 +1,7 @@
 """Measure the compiled NTT engine and fit its constants (``exact.ntt_compiled``, ``exact.jit``).
 
-Formula of :mod:`polyconv.planning_compiled`; constants fitted to timings of the engine itself:
+Formula of :mod:`polyconv.pipeline.choose_compiled`; constants fitted to timings of the engine
+itself:
 
 * ``overhead``, ``per_nlogn``, ``per_point``: one-prime products, ``c0 + c N lg N + c_pt N``;
 * ``per_digit``: Garner to int64 over ``k`` primes, per ``k^2`` and output coefficient;
@@ -17,20 +18,20 @@ from collections.abc import Callable
 
 import numpy as np
 
-from . import jit
-from .engines import ntt_compiled as nc
+from ..engines import jit_state
+from ..engines import ntt_compiled as nc
 
 
 def measure_compiled(quick: bool, best_time: Callable, fit: Callable,
                      say: Callable[[str], None]) -> dict:
     """``{"ntt_compiled": {...}, "jit": {...}}``, or ``{}`` when the kernels cannot run here."""
-    if jit.state() == "unavailable":
-        say(f"compiled kernels skipped: {jit.reason()}")
+    if jit_state.state() == "unavailable":
+        say(f"compiled kernels skipped: {jit_state.reason()}")
         return {}
     say("compiled NTT kernels (compiling them ahead of time if needed)")
     try:
-        how, seconds = jit.ensure_compiled()
-    except jit.JitUnavailableError as exc:
+        how, seconds = jit_state.ensure_compiled()
+    except jit_state.JitUnavailableError as exc:
         say(f"compiled kernels skipped: {exc}")
         return {}
     timing = {"compile_seconds" if how == "compiled" else "load_seconds": seconds}

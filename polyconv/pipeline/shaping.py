@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .planning import Plan
+from .plan import Plan
 
 _F32 = np.dtype(np.float32)
 _F64 = np.dtype(np.float64)

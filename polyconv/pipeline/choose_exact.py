@@ -2,11 +2,12 @@
 
 Inputs are the operands' lengths and magnitudes (:class:`IntegerFacts`); the chooser predicts each
 capable engine's seconds from the cost table's ``exact`` section and returns a
-:class:`polyconv.planning.Plan` whose ``certificate`` says why the result is exact:
+:class:`polyconv.pipeline.plan.Plan` whose ``certificate`` says why the result is exact:
 
 * ``"construction"``: exact integer arithmetic (direct summation, Kronecker substitution on GMP
   integers, number-theoretic transforms with CRT);
-* ``"bound"``: a float FFT whose rigorous error bound (Percival 2003, see :mod:`polyconv.bounds`)
+* ``"bound"``: a float FFT whose rigorous error bound (Percival 2003, see
+:mod:`polyconv.numerics.bounds`)
   is below 1/2, so rounding recovers every coefficient (whole, or split into limbs);
 * ``"check"``: a float FFT whose bound is above 1/2 but small enough that the true error is very
   likely below it (the bound is >= 36x pessimistic on adversarial inputs, bench/RESULTS.md); the
@@ -20,17 +21,21 @@ With a modulus, operands are reduced to ``[0, m)`` first, so every engine sees m
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
 from functools import lru_cache
 
-from . import bounds, jit, planning_compiled
-from . import costs as _costs
-from .costs import load_costs
-from .engines.exact_direct import one_split_fits
-from .engines.exact_fft import is_power_of_two
-from .engines.kronecker import uses_two_point
-from .engines.ntt import PRIMES
-from .planning import EXACT_ENGINES, THREADS, Plan, fft_rate, output_length
+from ..engines import jit_state
+from ..engines.exact_direct import one_split_fits
+from ..engines.exact_fft import is_power_of_two
+from ..engines.kronecker import uses_two_point
+from ..engines.ntt import PRIMES
+from ..numerics import bounds
+from ..numerics.limits import FLOAT_EXACT_LIMIT, INT64_LIMIT
+from ..tuning import costs as _costs
+from ..tuning.costs import fft_rate, gmp_rate, load_costs
+from ..tuning.threads import THREADS
+from . import choose_compiled
+from .facts import IntegerFacts
+from .plan import EXACT_ENGINES, Plan, output_length
 
 #: Above this float-FFT error bound a "check" certificate is not even attempted (the limit decides
 #: speed only: a failed check recomputes with the fallback, so correctness never rests on it).
@@ -41,44 +46,6 @@ from .planning import EXACT_ENGINES, THREADS, Plan, fft_rate, output_length
 #: bench/RESULTS.md), so the check is expected to pass below 36.6 / 2 = 18.3; 12 keeps a further
 #: factor 1.5 for inputs worse than those measured.  Random inputs sit 10^3-10^4 below the bound.
 CHECK_BOUND_LIMIT = 12.0
-#: Float products are exact only for integers below 2**53.
-FLOAT_EXACT_LIMIT = 2**53
-INT64_LIMIT = 2**63
-
-
-@dataclass(frozen=True, slots=True)
-class IntegerFacts:
-    """What the exact chooser needs to know about two integer operands.
-
-    Attributes
-    ----------
-    n1, n2 : int
-        Lengths along the convolution axis (after truncation).
-    max_a, max_b : int
-        Largest magnitudes (after reduction when a modulus is given).
-    norm_a, norm_b : float
-        Upper bounds of the largest row's Euclidean norm (``inf`` when not computed).
-    modulus : int or None
-        The modulus, if any.
-    centred_norm_a, centred_norm_b : float
-        With a modulus: upper bounds of the largest row's Euclidean norm once the residues are
-        centred to ``(-m/2, m/2]`` (what the limb engine splits); ``inf`` when not computed.
-    """
-
-    n1: int
-    n2: int
-    max_a: int
-    max_b: int
-    norm_a: float
-    norm_b: float
-    modulus: int | None
-    centred_norm_a: float = math.inf
-    centred_norm_b: float = math.inf
-
-    @property
-    def bound(self) -> int:
-        """``min(n1, n2) max|a| max|b|``: no output coefficient is larger in magnitude."""
-        return min(self.n1, self.n2) * self.max_a * self.max_b
 
 
 def power_of_two_at_least(n: int) -> int:
@@ -98,7 +65,7 @@ def choose_exact(facts: IntegerFacts, kind: str, batch: tuple, mode: str, method
     if _costs.generation == 0:
         load_costs()
     return _choose_exact_cached(_costs.generation, facts, kind, batch, mode, method, keep,
-                                jit.state())
+                                jit_state.state())
 
 
 @lru_cache(maxsize=1024)
@@ -216,9 +183,9 @@ def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch:
         notes["ntt"] = f"NTT modulo the prime {m}"
         details["ntt"] = {"transform_length": n_full}
 
-    compiled = planning_compiled.compiled_option(facts, c, rows, n_full, out_len)
+    compiled = choose_compiled.compiled_option(facts, c, rows, n_full, out_len)
     if compiled is not None:  # compiled NTT kernels (numba), JIT state charged
-        name = planning_compiled.ENGINE
+        name = choose_compiled.ENGINE
         options[name], notes[name], details[name] = compiled
         certificates[name] = "construction"
 
@@ -234,7 +201,7 @@ def _choose_exact_cached(generation: int, facts: IntegerFacts, kind: str, batch:
     fallback = None
     if certificates[engine] == "check":
         fallback = min(("direct-exact", "kronecker"), key=options.get)
-    reason = f"{why} ({notes[engine]})" + planning_compiled.remark(engine, compiled is not None)
+    reason = f"{why} ({notes[engine]})" + choose_compiled.remark(engine, compiled is not None)
     if fallback:
         reason += f"; if the check fails: {fallback}"
     if not bounds.TWIDDLE_CERTIFIED:
@@ -284,23 +251,6 @@ def kronecker_seconds(c: dict, n1: int, n2: int, slot_bits: int, int64_out: bool
     moved = (n1 + n2 + n1 + n2 - 1) * slot_bits / 8
     out = 0.0 if int64_out else c["per_object_out"] * (n1 + n2 - 1)
     return mul + c["per_byte"] * moved + out
-
-
-def gmp_rate(c: dict, bits: int) -> float:
-    """Seconds per ``b lg b`` of a balanced GMP product of ``b``-bit integers (interpolated)."""
-    table = c["mul_rate_by_log2bits"]
-    keys = sorted(int(k) for k in table)
-    x = math.log2(bits)
-    if x <= keys[0]:
-        return table[str(keys[0])]
-    if x >= keys[-1]:
-        return table[str(keys[-1])]
-    hi = next(k for k in keys if k >= x)
-    lo = max(k for k in keys if k <= x)
-    if hi == lo:
-        return table[str(lo)]
-    w = (x - lo) / (hi - lo)
-    return table[str(lo)] * (1 - w) + table[str(hi)] * w
 
 
 def _cannot(method: str, facts: IntegerFacts) -> str:

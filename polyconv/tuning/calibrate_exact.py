@@ -1,10 +1,13 @@
 """Measure the exact engines and fit the ``exact`` section of the cost table.
 
-Formulas are those of :mod:`polyconv.planning_exact`; each engine's constants are fitted (least
+Formulas are those of :mod:`polyconv.pipeline.choose_exact`; each engine's constants are fitted
+(least
 squares on relative error, non-negative) to timings of the engine itself:
 
-* ``direct_int64`` / ``direct_object``: ``c0 + c_mac n1 n2`` (objects: times ``1 + words / 4``);
-* ``rounded``: ``c0 + s F(N) + c_pt N`` with ``F`` the float FFT model of :mod:`polyconv.planning`;
+* ``direct_int64`` / ``direct_object``: ``c0 + c_mac n1 n2`` (objects: times
+  ``1 + words / 4``);
+* ``rounded``: ``c0 + s F(N) + c_pt N`` with ``F`` the float FFT model of
+  :mod:`polyconv.pipeline.choose`;
 * ``limbs``: ``c0 + s F(N) T / 3 + c_pt N (ka + kb)`` for ``T`` transforms;
 * ``kronecker``: a table of GMP multiplication rates per ``log2`` bit size, then
   ``c0 + c_byte bytes + c_obj n_out`` for packing, unpacking and Python-int creation;
@@ -18,13 +21,16 @@ from collections.abc import Callable
 import gmpy2
 import numpy as np
 
-from . import bounds, planning
+from ..engines.exact_direct import convolve_exact_direct
+from ..engines.exact_fft import convolve_limbs, convolve_limbs_mod, convolve_rounded
+from ..engines.kronecker import convolve_kronecker
+from ..engines.ntt import convolve_ntt_mod_prime
+from ..numerics import bounds
+from ..numerics.checks import random_evaluation_check
+from ..numerics.limits import max_abs
+from ..pipeline.choose_exact import kronecker_seconds
 from .calibrate_compiled import measure_compiled
-from .engines.exact_direct import convolve_exact_direct
-from .engines.exact_fft import convolve_limbs, convolve_limbs_mod, convolve_rounded
-from .engines.kronecker import convolve_kronecker
-from .engines.ntt import convolve_ntt_mod_prime
-from .planning_exact import kronecker_seconds
+from .costs import fft_rate
 
 
 def measure_exact(table: dict, quick: bool, best_time: Callable, fit: Callable,
@@ -55,7 +61,7 @@ def measure_exact(table: dict, quick: bool, best_time: Callable, fit: Callable,
         n_fft = 2**k
         a = rng.integers(-2**10, 2**10, n_fft // 2)
         times.append(best_time(lambda a=a, n=n_fft: convolve_rounded(a, a, n), budget))
-        flops = planning.fft_rate(table, n_fft) * n_fft * k
+        flops = fft_rate(table, n_fft) * n_fft * k
         rows.append([1.0, flops, n_fft])
         big = rng.integers(-2**40, 2**40, n_fft // 2)
         params = bounds.choose_limbs(2**40, 2**40, n_fft // 2, n_fft // 2, n_fft)
@@ -80,7 +86,7 @@ def measure_exact(table: dict, quick: bool, best_time: Callable, fit: Callable,
             bits, ka, kb = params
             times.append(best_time(lambda x=x, n=n_fft, p=params, m=modulus: convolve_limbs_mod(
                 x, x, m, p[0], p[1], p[2], n), budget))
-            flops = planning.fft_rate(table, n_fft) * n_fft * k
+            flops = fft_rate(table, n_fft) * n_fft * k
             rows.append([1.0, flops * (2 * (ka + kb) - 1) / 3, n_fft * (ka + kb)])
         c0, scale, cpt = fit(rows, times)
         exact[key] = {"overhead": c0, "scale": scale, "per_point": cpt}
@@ -99,7 +105,7 @@ def measure_exact(table: dict, quick: bool, best_time: Callable, fit: Callable,
                               (1024, 62, False), (4096, 62, False), (512, 500, False)]:
         a = _random_ints(rng, n, bits)
         t = best_time(lambda a=a, f=as_int64: convolve_kronecker(a, a, as_int64=f), budget)
-        bound = n * bounds.max_abs(a) ** 2
+        bound = n * max_abs(a) ** 2
         slot = 8 * -(-((bound + 1).bit_length() + 1) // 8)
         mul = kronecker_seconds(kron, n, n, slot, True)
         times.append(max(t - mul, 0.1 * t))
@@ -122,7 +128,7 @@ def measure_exact(table: dict, quick: bool, best_time: Callable, fit: Callable,
     n = 2**16
     a = rng.integers(-2**15, 2**15, n)
     c = convolve_rounded(a, a, 2 * n)
-    exact["check_per_point"] = best_time(lambda: bounds.random_evaluation_check(a, a, c),
+    exact["check_per_point"] = best_time(lambda: random_evaluation_check(a, a, c),
                                          budget) / (4 * n)
     exact.update(measure_compiled(quick, best_time, fit, say))
     return exact

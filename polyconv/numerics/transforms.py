@@ -9,7 +9,8 @@ ducc0 cannot be imported, scipy's compiled pocketfft binding is called directly 
 against the public functions; failing that, the public functions.
 
 :data:`LIBRARY` and :data:`LIBRARY_VERSION` name what runs; error certificates
-(:mod:`polyconv.bounds`) are issued only for a library and version range whose twiddle error
+(:mod:`polyconv.numerics.bounds`) are issued only for a library and version range whose twiddle
+error
 was measured.  No other module asks which library is present.
 
 All functions transform along one axis of an array that is *already* at the transform length

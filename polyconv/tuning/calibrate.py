@@ -1,7 +1,7 @@
 """Measure this machine and fit the cost model's constants.
 
 ``polyconv calibrate`` calls :func:`measure` and saves the table with
-:func:`polyconv.costs.save_user_costs`.  Every constant is fitted from timings of the engines
+:func:`polyconv.tuning.costs.save_user_costs`.  Every constant is fitted from timings of the engines
 themselves (best of several runs), so the chooser compares like with like:
 
 * ``direct``: ``t = c0 + c_mac n1 n2 + c_out (n1 + n2)`` by least squares on relative error over a
@@ -22,12 +22,13 @@ from collections.abc import Callable
 
 import numpy as np
 
-from . import planning
+from ..engines.direct import convolve_direct
+from ..engines.fft import convolve_fft
+from ..engines.overlap_add import convolve_overlap_add
+from ..pipeline import choose
 from .calibrate_exact import measure_exact
-from .costs import default_costs
-from .engines.direct import convolve_direct
-from .engines.fft import convolve_fft
-from .engines.overlap_add import convolve_overlap_add
+from .costs import default_costs, fft_rate
+from .threads import configured_threads
 
 
 def best_time(fn: Callable[[], object], budget: float = 0.05, repeats: int = 5) -> float:
@@ -89,7 +90,7 @@ def measure(quick: bool = False, progress: Callable[[str], None] | None = None) 
     for n1, n2 in sizes[: 9 if quick else None]:
         x, y = rng.standard_normal(n1), rng.standard_normal(n2)
         t = best_time(lambda x=x, y=y: convolve_direct(x, y), budget)
-        if n1 + n2 >= planning.LARGE_ARRAY:
+        if n1 + n2 >= choose.LARGE_ARRAY:
             large.append((n1, n2, t))
             continue
         times.append(t)
@@ -125,7 +126,7 @@ def measure(quick: bool = False, progress: Callable[[str], None] | None = None) 
     table["fft"] = {"overhead": fixed, "rate_by_log2n": rates}
 
     say("threads")
-    threads = planning.configured_threads()
+    threads = configured_threads()
     thread_table = {"min_points": 2**62, "speedup_1d": 1.0, "speedup_batch": 1.0}
     if threads >= 2:
         for k in range(12, top + 1):
@@ -157,10 +158,10 @@ def measure(quick: bool = False, progress: Callable[[str], None] | None = None) 
         x, y = rng.standard_normal(n_long), rng.standard_normal(m)
         t = best_time(lambda x=x, y=y, n=n_fft: convolve_overlap_add(x, y, n, 1), budget)
         blocks = -(-n_long // (n_fft - m + 1))
-        transforms = planning.fft_rate(table, n_fft) * n_fft * math.log2(n_fft) * (2 * blocks
+        transforms = fft_rate(table, n_fft) * n_fft * math.log2(n_fft) * (2 * blocks
                                                                                    + 1) / 3
         rest = max(t - transforms, 0.05 * t)
-        if n_long >= planning.LARGE_ARRAY:
+        if n_long >= choose.LARGE_ARRAY:
             large.append((n_long, blocks * n_fft, rest))
             continue
         times.append(rest)

@@ -1,0 +1,158 @@
+"""The :class:`Plan` record, the engine names and the mode arithmetic.
+
+A Plan says how one convolution will be computed and why; every stage after the chooser reads it.
+Mode arithmetic: numpy.convolve's definitions of "full", "same" and "valid" (``output_length``).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+FLOAT_ENGINES = ("direct", "fft", "overlap-add")
+EXACT_ENGINES = ("direct-exact", "fft-exact", "limbs", "kronecker", "ntt", "ntt-compiled")
+METHODS = ("auto",) + FLOAT_ENGINES + EXACT_ENGINES
+
+_CERTIFICATES = ("bound", "check", "construction", "none")
+
+
+@dataclass(frozen=True, slots=True)
+class Plan:
+    """How one convolution will be computed, and why.
+
+    Attributes
+    ----------
+    engine : str
+        The engine that will run: ``"direct"``, ``"fft"``, ``"overlap-add"`` (floats);
+        ``"direct-exact"``, ``"fft-exact"``, ``"limbs"``, ``"kronecker"``, ``"ntt"`` (integers).
+    exact : bool
+        True when every output coefficient is exactly the mathematical result.
+    certificate : str
+        Why the result can be trusted: ``"bound"`` (a rigorous a-priori error bound proves it),
+        ``"check"`` (an a-posteriori check proves it), ``"construction"`` (exact arithmetic), or
+        ``"none"`` (ordinary floating point; no claim beyond the usual rounding).
+    error_bound : float
+        Maximum absolute error of any output coefficient: ``0.0`` when exact, ``inf`` when no
+        rigorous bound has been computed for this plan.
+    predicted_seconds : float
+        The cost model's prediction for the chosen engine.
+    reason : str
+        One sentence explaining the choice.
+    kind : str
+        Arithmetic kind of the operands (``"real"``, ``"complex"``, ``"integer"``, ``"bigint"``).
+    mode : str
+        ``"full"``, ``"same"`` or ``"valid"``.
+    lengths : tuple of int
+        ``(n1, n2)``, the operand lengths along the convolution axis.
+    batch_shape : tuple of int
+        Broadcast shape of the other axes.
+    output_length : int
+        Length of the result along the convolution axis.
+    transform_length : int or None
+        FFT length (per block for overlap-add).
+    block_length : int or None
+        Overlap-add block length.
+    threads : int
+        Threads the engine may use.
+    alternatives : tuple of (str, float)
+        Every engine considered with its predicted seconds, fastest first.
+    settings : tuple of (str, value)
+        Further engine parameters (limb sizes and counts for "limbs").
+    fallback : str or None
+        For certificate "check": the engine that recomputes the product if the check fails.
+    modulus : int or None
+        The modulus outputs are reduced by.
+    output_int64 : bool
+        For exact plans: whether the result is returned as int64 (else Python ints).
+    """
+
+    engine: str
+    exact: bool
+    certificate: str
+    error_bound: float
+    predicted_seconds: float
+    reason: str
+    kind: str = "real"
+    mode: str = "full"
+    lengths: tuple = (0, 0)
+    batch_shape: tuple = ()
+    output_length: int = 0
+    transform_length: int | None = None
+    block_length: int | None = None
+    threads: int = 1
+    alternatives: tuple = field(default=())
+    settings: tuple = ()
+    fallback: str | None = None
+    modulus: int | None = None
+    output_int64: bool = False
+
+    def setting(self, name: str, default=None):
+        """The engine parameter ``name`` from :attr:`settings` (``default`` if absent)."""
+        for key, value in self.settings:
+            if key == name:
+                return value
+        return default
+
+    def __str__(self) -> str:
+        n1, n2 = self.lengths
+        batch = f" x batch {self.batch_shape}" if self.batch_shape else ""
+        lines = [
+            f"polyconv plan: {self.engine} for {self.kind} operands of lengths {n1} and {n2}"
+            f"{batch}, mode {self.mode!r} -> {self.output_length} outputs",
+            f"  why:         {self.reason}",
+            f"  predicted:   {format_seconds(self.predicted_seconds)}",
+            f"  exact:       {'yes' if self.exact else 'no'} (certificate: {self.certificate})",
+            f"  error bound: {_fmt_bound(self.error_bound)}",
+        ]
+        if self.transform_length:
+            detail = f"  transform:   length {self.transform_length}"
+            if self.block_length:
+                detail += f", blocks of {self.block_length}"
+            detail += f", {self.threads} thread{'s' if self.threads != 1 else ''}"
+            lines.append(detail)
+        elif self.threads > 1:
+            lines.append(f"  threads:     {self.threads}")
+        if self.settings:
+            lines.append("  settings:    " + ", ".join(f"{k}={v}" for k, v in self.settings))
+        if self.modulus is not None:
+            lines.append(f"  modulus:     {self.modulus} (outputs in [0, modulus))")
+        if self.exact:
+            lines.append(f"  output:      {'int64' if self.output_int64 else 'Python ints'}")
+        if self.fallback:
+            lines.append(f"  fallback:    {self.fallback} (if the check fails)")
+        if len(self.alternatives) > 1:
+            others = ", ".join(f"{name} {format_seconds(t)}" for name, t in self.alternatives)
+            lines.append(f"  considered:  {others}")
+        return "\n".join(lines)
+
+
+def format_seconds(t: float) -> str:
+    if t < 1e-3:
+        return f"{t * 1e6:.1f} us"
+    if t < 1.0:
+        return f"{t * 1e3:.2f} ms"
+    return f"{t:.2f} s"
+
+
+def _fmt_bound(bound: float) -> str:
+    if bound == 0.0:
+        return "0 (exact)"
+    if math.isinf(bound):
+        return "not computed (floating point, no rigorous bound claimed)"
+    return f"{bound:.3g} (absolute, any coefficient)"
+
+
+def output_length(mode: str, n1: int, n2: int) -> int:
+    """Length along the axis of a ``mode`` convolution (numpy.convolve's definitions)."""
+    if mode == "full":
+        return n1 + n2 - 1
+    if mode == "same":
+        return max(n1, n2)
+    return max(n1, n2) - min(n1, n2) + 1
+
+
+def check_method(method) -> str:
+    """Return ``method`` if it names "auto" or an engine, else raise ValueError."""
+    if not isinstance(method, str) or method not in METHODS:
+        raise ValueError(f"method must be one of {', '.join(map(repr, METHODS))}; got {method!r}")
+    return method
