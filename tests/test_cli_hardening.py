@@ -179,7 +179,7 @@ def test_replacing_keeps_the_existing_modes(tmp_path, capsys, umask):
 
 
 def test_cost_file_and_streamed_npy_keep_their_modes(tmp_path, umask):
-    from polyconv import streaming
+    from polyconv.scale import streaming
     from polyconv.tuning import costs
 
     umask(0o077)

@@ -17,10 +17,10 @@ from pathlib import Path
 
 import numpy as np
 
-from .. import streaming
 from ..numerics import budget
 from ..pipeline.execute import convolve
 from ..pipeline.prepare import plan
+from ..scale import streaming
 from .errors import CliError
 from .fileio import (
     SEQUENCE_SUFFIXES,
@@ -214,8 +214,9 @@ def _npy_header(path: str) -> tuple[tuple, np.dtype] | None:
 
 
 def _stream_if_large(args, out_path: Path | None, modulus, length) -> int | None:
-    """Stream the product with :func:`polyconv.streaming.convolve_file` when the longer input is
-    a 1-D .npy above the memory budget and the output is .npy; None when in memory is fine."""
+    """Stream the product with :func:`polyconv.scale.streaming.convolve_file` when the longer
+    input is a 1-D .npy above the memory budget and the output is .npy; None when in memory is
+    fine."""
     heads = _npy_header(args.a), _npy_header(args.b)
     if None in heads or out_path is None or out_path.suffix.lower() != ".npy":
         return None
