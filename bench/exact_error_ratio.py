@@ -11,7 +11,7 @@ frequency domain, one inverse transform) against
 :func:`polyconv.numerics.bounds.limb_error_bound`, with every limb digit at its extreme.
 With ``--check-limit``: the smallest bound/observed ratio over every length 2^1..2^14 and
 magnitude 2^10..2^26 whose bound lies in the "check" range (0.3..200), through the engine's own
-float product at the chooser's transform length (what ``planning_exact.CHECK_BOUND_LIMIT``
+float product at the chooser's transform length (what ``engines.exact_fft.CHECK_BOUND_LIMIT``
 rests on).
 """
 
@@ -158,8 +158,8 @@ def limb_rows(top: int) -> None:
 
 def check_limit_rows() -> None:
     """Worst bound/observed ratios where a "check" certificate may be planned (bound >= 1/2)."""
+    from polyconv.engines._common import power_of_two_at_least
     from polyconv.engines.fft import convolve_fft
-    from polyconv.pipeline.choose_exact import power_of_two_at_least
 
     rows = []
     for lg in range(1, 15):

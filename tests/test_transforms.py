@@ -17,7 +17,7 @@ import polyconv
 from polyconv.numerics import bounds
 from polyconv.numerics import transforms as tf
 from polyconv.numerics.transforms import fast_length
-from polyconv.pipeline import choose_exact
+from polyconv.pipeline import choose
 
 ROOT = Path(polyconv.__file__).resolve().parent.parent
 
@@ -102,7 +102,7 @@ def test_unmeasured_library_gets_no_bound_certificate(monkeypatch):
     assert polyconv.plan(a, a, method="fft-exact").certificate == "bound"
     monkeypatch.setattr(bounds, "TWIDDLE_CERTIFIED", False)
     monkeypatch.setattr(bounds, "TWIDDLE_NOTE", "some-fft 9.9: twiddle error not measured")
-    choose_exact._choose_exact_cached.cache_clear()
+    choose._choose_cached.cache_clear()
     try:
         pl = polyconv.plan(a, a, method="fft-exact")
         assert pl.certificate == "check" and "twiddle error not measured" in pl.reason
@@ -112,7 +112,7 @@ def test_unmeasured_library_gets_no_bound_certificate(monkeypatch):
         ref = flint.fmpz_poly(a.tolist()) ** 2
         assert got.tolist() == [int(v) for v in ref.coeffs()]  # python-flint fmpz_poly
     finally:
-        choose_exact._choose_exact_cached.cache_clear()
+        choose._choose_cached.cache_clear()
 
 
 def test_scipy_fallback_when_ducc0_is_blocked():

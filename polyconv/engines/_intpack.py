@@ -133,11 +133,6 @@ def _unpack_signed_wide(z: gmpy2.mpz, bits: int, count: int) -> np.ndarray:
     return out
 
 
-def unpack_unsigned(z: gmpy2.mpz, width: int, count: int) -> np.ndarray:
-    """Slot values of a ``z`` whose slots all hold values in ``[0, 2^(8 width))``."""
-    return rows_to_ints(slot_rows(z, width, count), signed=False)
-
-
 def rows_to_ints(rows: np.ndarray, signed: bool) -> np.ndarray:
     """Little-endian byte rows as integers: int64 (uint64 if unsigned) up to 8 bytes, else objects.
 

@@ -8,6 +8,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from ._common import FLOAT_KINDS, LARGE_ARRAY, Engine, Job, Option
+
 
 def convolve_direct(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     """Full convolution along the last axis by direct summation.
@@ -40,3 +42,40 @@ def convolve_direct(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     for j in range(n2):
         out[..., j:j + n1] += a * b[..., j:j + 1]
     return out
+
+
+# ----------------------------------------------------------------------------- registry record
+#
+# Cost (constants from the cost table): 1-D ``t = c0 + c_mac n1 n2 + c_out (n1 + n2)``;
+# batched ``t = c0 + m (c_step + c_elem B n)`` (``m`` shift-and-add passes over ``B n``); arrays of
+# ``LARGE_ARRAY`` entries and more use a per-output constant fitted on large arrays.
+
+
+def predict_direct(costs: dict, n1: int, n2: int, batch: int, mac_factor: float = 1.0) -> float:
+    """Seconds for the direct engine (``mac_factor``: cost of one multiply-add relative to real
+    float64, about 3.3 for complex, measured here)."""
+    if batch == 1:
+        c = costs["direct"]
+        per_output = c["per_output_large"] if n1 + n2 >= LARGE_ARRAY else c["per_output"]
+        return c["overhead"] + mac_factor * (c["per_mac"] * n1 * n2 + per_output * (n1 + n2))
+    c = costs["direct_batch"]
+    return c["overhead"] + min(n1, n2) * (
+        c["per_step"] + mac_factor * c["per_element"] * batch * max(n1, n2))
+
+
+#: Cost of one complex multiply-add relative to a real float64 one (measured here).
+COMPLEX_MAC_FACTOR = 3.3
+
+
+def option(job: Job) -> Option:
+    """The direct engine's offer: always possible."""
+    factor = COMPLEX_MAC_FACTOR if job.kind == "complex" else 1.0
+    return Option(predict_direct(job.costs, job.n1, job.n2, job.rows, factor))
+
+
+def run_planned(plan, a: np.ndarray, b: np.ndarray, keep: int | None) -> np.ndarray:
+    """The full product (``keep`` is read by the shaping stage)."""
+    return convolve_direct(a, b)
+
+
+ENGINE = Engine("direct", FLOAT_KINDS, option, run_planned, nonfinite_safe=True)

@@ -10,13 +10,9 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..numerics.limits import max_abs
+from ..numerics.limits import FLOAT_EXACT_LIMIT, INT64_LIMIT, max_abs
 from . import _intpack
-from .direct import convolve_direct
-
-INT64_LIMIT = 2**63
-#: Integers below this are exact in float64, and so is every sum of them that stays below it.
-FLOAT_EXACT_LIMIT = 2**53
+from ._common import INTEGER_KINDS, Engine, Job, Option
 
 
 def _convolve_float(a: np.ndarray, b: np.ndarray) -> np.ndarray:
@@ -49,9 +45,9 @@ def convolve_exact_direct(a: np.ndarray, b: np.ndarray, keep: int | None = None)
         # check matters when one side is all zero and the other huge)
         out = _convolve_float(a, b)
     elif bound < INT64_LIMIT and max(max_a, max_b) < INT64_LIMIT:
-        out = convolve_direct(a.astype(np.int64), b.astype(np.int64))
+        out = np.convolve(a.astype(np.int64), b.astype(np.int64))
     else:
-        out = convolve_direct(_intpack.to_objects(a), _intpack.to_objects(b))
+        out = np.convolve(_intpack.to_objects(a), _intpack.to_objects(b))
     return out if keep is None else out[:keep]
 
 
@@ -109,3 +105,41 @@ def convolve_exact_direct_mod(a: np.ndarray, b: np.ndarray, modulus: int,
     out += np.mod(high, m) * np.int64(pow(2, 32, modulus))
     out = np.mod(out, m)
     return out if keep is None else out[:keep]
+
+
+# ----------------------------------------------------------------------------- registry record
+#
+# Cost per row ``t = c0 + c_mac n1 n2`` with the constants of the arithmetic the sums need
+# (float64 below 2^53, int64 below 2^63, two or three half-word passes for a modulus below 2^31,
+# Python ints otherwise: times ``1 + words / 4`` for ``words`` 64-bit words per coefficient).
+
+
+def option(job: Job) -> Option:
+    """The exact schoolbook offer: always possible, exact by construction."""
+    c = job.costs["exact"]
+    n1, n2, rows, m = job.n1, job.n2, job.rows, job.modulus
+    direct_float = c.get("direct_float", c["direct_int64"])
+    if m is not None and m < SMALL_MODULUS_LIMIT and not job.fits_int64:
+        halves = 2 if one_split_fits(min(n1, n2), m) else 3
+        k = direct_float if min(n1, n2) << 34 < FLOAT_EXACT_LIMIT else c["direct_int64"]
+        seconds = halves * (k["overhead"] + k["per_mac"] * n1 * n2 * rows)
+    elif job.fits_int64:
+        k = direct_float if job.bound < FLOAT_EXACT_LIMIT else c["direct_int64"]
+        seconds = k["overhead"] + k["per_mac"] * n1 * n2 * rows
+    else:
+        words = -(-job.slot_bits // 64)
+        k = c["direct_object"]
+        seconds = k["overhead"] + k["per_mac"] * n1 * n2 * rows * (1 + words / 4)
+    return Option(seconds, "construction", "exact schoolbook sums")
+
+
+def run_planned(plan, a: np.ndarray, b: np.ndarray, keep: int | None) -> np.ndarray:
+    """The plan's product of two rows (reduced for a modulus below 2^31)."""
+    m = plan.modulus
+    if m is not None and m < SMALL_MODULUS_LIMIT:
+        return convolve_exact_direct_mod(a.astype(np.int64), b.astype(np.int64), m, keep)
+    return convolve_exact_direct(a, b, keep)
+
+
+ENGINE = Engine("direct-exact", INTEGER_KINDS, option, run_planned, exact=True,
+                check_fallback=True)

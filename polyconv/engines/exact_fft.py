@@ -17,10 +17,15 @@ carry propagation in int64 followed by one byte conversion per coefficient.
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
+from ..numerics import bounds
 from ..numerics import transforms as tf
+from ..numerics.limits import FLOAT_EXACT_LIMIT
 from . import _intpack
+from ._common import INTEGER_KINDS, Engine, Job, Option
 from .fft import convolve_fft
 
 
@@ -294,3 +299,104 @@ def _digits_to_bits(digits: list[np.ndarray], limb_bits: int, negative: np.ndarr
         bits[:, m * limb_bits:(m + 1) * limb_bits] = field
     bits[:, total:] = negative[:, None]
     return bits
+
+
+# ----------------------------------------------------------------------------- registry records
+#
+# Costs per row, ``F`` the float model at the power-of-two length ``N``: rounded
+# ``t = c0 + s F + c_pt N (+ check)``; limbs ``t = c0 + s F T / 3 + c_pt N (ka + kb)`` for
+# ``T = 2 (ka + kb) - 1`` transforms.
+
+#: Above this float-FFT error bound a "check" certificate is not even attempted (the limit decides
+#: speed only: a failed check recomputes with the fallback, so correctness never rests on it).
+#: Argument: the check passes iff the true error is below 1/2; the true error is at most
+#: bound / r, with r the bound/observed ratio.  The smallest r measured over every length
+#: 2^1..2^14 and magnitude 2^10..2^26 whose bound lies in 0.3..200, on all +max, alternating and
+#: mixed inputs, is 36.6 (n = 2^9, 18 bits; ``bench/exact_error_ratio.py --check-limit``,
+#: bench/RESULTS.md), so the check is expected to pass below 36.6 / 2 = 18.3; 12 keeps a further
+#: factor 1.5 for inputs worse than those measured.  Random inputs sit 10^3-10^4 below the bound.
+CHECK_BOUND_LIMIT = 12.0
+
+
+def rounded_option(job: Job) -> Option | str:
+    """The rounded float FFT: certified by the error bound (< 1/2) or, for the full product, by
+    a random-evaluation check (bound below :data:`CHECK_BOUND_LIMIT`)."""
+    f = job.facts
+    if not (job.bound < FLOAT_EXACT_LIMIT and max(f.max_a, f.max_b) < FLOAT_EXACT_LIMIT):
+        # (a zero operand makes the bound 0 whatever the other holds: both must be exact)
+        return (f"the product's coefficients reach {job.bound.bit_length()} bits or an operand "
+                f"{max(f.max_a, f.max_b).bit_length()} bits, and float64 holds 53; use "
+                "method='auto', 'limbs' or 'kronecker'")
+    n = job.n_pow2
+    err = bounds.fft_error_bound(f.norm_a, f.norm_b, n) if math.isfinite(f.norm_a) else math.inf
+    if err < 0.5 and bounds.TWIDDLE_CERTIFIED:
+        certificate, note = "bound", f"float FFT error bound {err:.3g} < 1/2 (Percival 2003)"
+    elif err < CHECK_BOUND_LIMIT and not job.circular:  # the check needs the full product
+        certificate = "check"
+        note = (f"float FFT error bound {err:.3g} >= 1/2: rounded result accepted only if a "
+                "random-evaluation check passes")
+    else:
+        return (f"the float error bound {err:.3g} is too large to certify the rounded product; "
+                "use method='auto', 'limbs' or 'kronecker'")
+    c = job.costs["exact"]
+    check = c["check_per_point"] * (job.n1 + job.n2 + job.full) if certificate == "check" else 0.0
+    k = c["rounded"]
+    seconds = k["overhead"] + job.rows * (job.float_cost * k["scale"] + k["per_point"] * n + check)
+    return Option(seconds, certificate, note,
+                  {"transform_length": n, "error_bound": err, "circular": job.circular})
+
+
+def run_rounded(plan, a: np.ndarray, b: np.ndarray, keep: int | None) -> np.ndarray:
+    return convolve_rounded(a, b, plan.transform_length, keep)
+
+
+def limbs_supported(m: int | None) -> bool:
+    """Moduli the modular limb recombination handles: below 2^31, odd below 2^62, or powers of
+    two up to 2^62 (None: exact products)."""
+    return m is None or m < 2**31 or (m % 2 == 1 and m < 2**62) or (
+        is_power_of_two(m) and m <= 2**62)
+
+
+def limbs_option(job: Job) -> Option | str:
+    """Limb split of float FFTs, each limb product certified by the bound; with a modulus the
+    residues are centred and the limb products recombined modulo m in int64."""
+    f, m, n = job.facts, job.modulus, job.n_pow2
+    if not limbs_supported(m):
+        return "limbs takes moduli below 2^31, odd moduli below 2^62 or powers of two to 2^62"
+    if not bounds.TWIDDLE_CERTIFIED:
+        return f"limbs rests on the error bound, not issued here ({bounds.TWIDDLE_NOTE})"
+    if m is not None:
+        half = m // 2 + 1
+        limbs = bounds.choose_limbs(min(f.max_a, half), min(f.max_b, half), job.n1, job.n2, n,
+                                    norm_a=f.centred_norm_a, norm_b=f.centred_norm_b)
+    else:
+        limbs = bounds.choose_limbs(f.max_a, f.max_b, job.n1, job.n2, n)
+        if limbs is not None and limbs[1] == 1 and limbs[2] == 1:
+            return "one limb per operand suffices: that is method='fft-exact'"
+    if limbs is None:  # choose_limbs caps the count at 12
+        return "no certified limb size for these magnitudes; use 'kronecker'"
+    bits, ka, kb = limbs
+    c = job.costs["exact"]
+    if m is not None:
+        wide = m >= 2**31 and not is_power_of_two(m)  # Montgomery recombination
+        k = c.get("limbs_mod_wide", c["limbs_mod"]) if wide else c["limbs_mod"]
+    else:
+        k = c["limbs"]
+    transforms = (ka + kb) + (ka + kb - 1)
+    seconds = k["overhead"] + job.rows * (job.float_cost * transforms / 3 * k["scale"]
+                                          + k["per_point"] * n * (ka + kb))
+    return Option(seconds, "bound", f"{ka}+{kb} limbs of {bits} bits, each limb product "
+                  "certified < 1/2", {"transform_length": n, "limb_bits": bits, "limbs_a": ka,
+                                      "limbs_b": kb, "circular": job.circular})
+
+
+def run_limbs(plan, a: np.ndarray, b: np.ndarray, keep: int | None) -> np.ndarray:
+    bits, ka, kb = plan.setting("limb_bits"), plan.setting("limbs_a"), plan.setting("limbs_b")
+    if plan.modulus is not None:
+        return convolve_limbs_mod(a, b, plan.modulus, bits, ka, kb, plan.transform_length, keep)
+    return convolve_limbs(a, b, bits, ka, kb, plan.transform_length, keep,
+                          as_int64=plan.setting("product_int64", False))
+
+
+ROUNDED = Engine("fft-exact", INTEGER_KINDS, rounded_option, run_rounded, exact=True)
+LIMBS = Engine("limbs", INTEGER_KINDS, limbs_option, run_limbs, exact=True, reduces_modulus=True)

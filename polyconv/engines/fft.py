@@ -9,9 +9,12 @@ work of complex ones.  Transforms come from :mod:`polyconv.numerics.transforms` 
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from ..numerics import transforms as tf
+from ._common import FLOAT_KINDS, Engine, Job, Option, fft_rate, spectral_product
 from ._threads import helper_thread
 
 #: Up to this length both 1-D operands go through one batched transform call (saves a call's
@@ -68,19 +71,60 @@ def convolve_fft(a: np.ndarray, b: np.ndarray, n_fft: int, keep: int, threads: i
         return tf.irfft(product, n_fft, -1, 1)[:keep]
     fa = tf.rfft(tf.zero_padded(a, n_fft, dtype), -1, threads)
     fb = tf.rfft(tf.zero_padded(b, n_fft, dtype), -1, threads)
-    product = _multiply(fa, fb)
+    product = spectral_product(fa, fb)
     return tf.irfft(product, n_fft, -1, threads)[..., :keep]
-
-
-def _multiply(fa: np.ndarray, fb: np.ndarray) -> np.ndarray:
-    """``fa * fb`` with broadcasting, in place in ``fa`` when its shape allows."""
-    if fa.shape == np.broadcast_shapes(fa.shape, fb.shape):
-        fa *= fb
-        return fa
-    return fa * fb
 
 
 def _convolve_complex(a, b, n_fft, keep, threads, dtype):
     fa = tf.fft(tf.zero_padded(a, n_fft, dtype), -1, threads)
     fb = tf.fft(tf.zero_padded(b, n_fft, dtype), -1, threads)
-    return tf.ifft(_multiply(fa, fb), -1, threads)[..., :keep]
+    return tf.ifft(spectral_product(fa, fb), -1, threads)[..., :keep]
+
+
+# ----------------------------------------------------------------------------- registry record
+#
+# Cost: ``t = c0 + r(N) N lg N w / s``: ``w`` transforms relative to one 1-D real product (batch
+# sizes, 2x for complex), ``r`` read from the table measured per lg N, ``s`` the thread speed-up.
+
+
+def thread_speedup(costs: dict, points: int, threads: int, batched: bool) -> float:
+    """Predicted speed-up from threads for a transform job of ``points`` total points."""
+    t = costs["threads"]
+    if threads < 2 or points < t["min_points"]:
+        return 1.0
+    return t["speedup_batch"] if batched else t["speedup_1d"]
+
+
+def predict_fft(costs: dict, n_fft: int, work: float, threads: int, batched: bool) -> float:
+    """Seconds for the fft engine: ``work`` counts 1-D real products of length ``n_fft``."""
+    c = costs["fft"]
+    flops = n_fft * math.log2(n_fft) * work
+    speed = thread_speedup(costs, int(n_fft * work), threads, batched)
+    return c["overhead"] + fft_rate(costs, n_fft) * flops / speed
+
+
+def transform_work(job: Job) -> float:
+    """1-D real transform products a float job costs (operand and output batches; complex 2x)."""
+    rows_a = math.prod(job.batch_a) if job.batch_a else 1
+    rows_b = math.prod(job.batch_b) if job.batch_b else 1
+    return (rows_a + rows_b + job.rows) / 3.0 * (2.0 if job.kind == "complex" else 1.0)
+
+
+def option(job: Job) -> Option:
+    """The fft engine's offer: always possible.  Mode "valid" needs only ``max(n1, n2)`` points
+    (the wrap-around lands in dropped entries)."""
+    need = max(job.n1, job.n2) if job.mode == "valid" else job.full
+    n_fft = tf.fast_length(need, real=job.kind != "complex")
+    work = transform_work(job)
+    batched = job.rows > 1
+    speed = thread_speedup(job.costs, int(n_fft * work), job.threads, batched)
+    return Option(predict_fft(job.costs, n_fft, work, job.threads, batched),
+                  settings={"transform_length": n_fft, "threads": job.threads if speed > 1 else 1})
+
+
+def run_planned(plan, a: np.ndarray, b: np.ndarray, keep: int) -> np.ndarray:
+    """The first ``keep`` entries of the product at the plan's transform length."""
+    return convolve_fft(a, b, plan.transform_length, keep, plan.threads)
+
+
+ENGINE = Engine("fft", FLOAT_KINDS, option, run_planned, smears_nonfinite=True)

@@ -20,11 +20,13 @@ Several primes are combined by Garner's algorithm (Knuth, TAOCP vol. 2, 3rd ed.,
 
 from __future__ import annotations
 
+import math
 from functools import lru_cache
 
 import numpy as np
 
 from . import _intpack
+from ._common import INTEGER_KINDS, Engine, Job, Option, powers_mod
 
 #: NTT-friendly primes ``c 2^k + 1`` with a generator ``g`` (DESIGN.md section 5, verified in
 #: tests with sympy): prime -> (g, k).
@@ -92,24 +94,12 @@ def _stage_tables(p: int, n: int, inverse: bool) -> tuple:
         step = pow(g, (p - 1) // (2 * h), p)
         if inverse:
             step = pow(step, p - 2, p)
-        w = _powers(step, h, p)
+        w = powers_mod(step, h, p)
         if h < _TILE_BELOW:
             w = np.tile(w, chunk // (2 * h)).reshape(chunk // (2 * h), h)
         tables.append((h, w, (w << _U32) // np.uint64(p)))
         h >>= 1
     return tuple(tables)
-
-
-def _powers(step: int, count: int, p: int) -> np.ndarray:
-    """``step^j mod p`` for ``j < count``, by doubling (vectorised)."""
-    out = np.ones(count, dtype=np.uint64)
-    filled, factor = 1, step
-    while filled < count:
-        take = min(filled, count - filled)
-        out[filled:filled + take] = out[:take] * np.uint64(factor) % np.uint64(p)
-        filled += take
-        factor = factor * factor % p
-    return out
 
 
 def _mul_shoup(t: np.ndarray, w: np.ndarray, shoup: np.ndarray, p: np.uint64) -> np.ndarray:
@@ -346,3 +336,55 @@ def convolve_ntt_crt_objects(a: np.ndarray, b: np.ndarray, primes: tuple[int, ..
         rb = np.mod(_intpack.to_objects(b), p).astype(np.uint64)
         residues.append(convolve_ntt_mod_prime(ra, rb, p, keep))
     return garner(residues, primes)
+
+
+# ----------------------------------------------------------------------------- registry record
+#
+# Cost per row (constants ``exact.ntt``), ``N`` the power-of-two length of the full product and
+# ``k`` primes: ``t = c0 + c_nlogn N (k lg N + k^2)``: ``k`` transforms' worth of butterflies plus
+# Garner's ``k (k - 1) / 2`` modular digit steps per coefficient, charged at the butterfly rate
+# (not measured separately; ``k = 1`` for a prime modulus of :data:`PRIMES`).
+
+
+def _primes_for(job: Job) -> tuple[int, ...] | str:
+    m, n = job.modulus, job.n_full
+    if m is not None and m in PRIMES:
+        if n > 1 << PRIMES[m][1]:
+            return (f"the product needs {n} points, more than transforms modulo {m} have "
+                    f"(2^{PRIMES[m][1]})")
+        return (m,)
+    bound = job.bound if m is None else min(job.n1, job.n2) * (m - 1) ** 2
+    try:
+        return primes_needed(bound, n)
+    except ValueError:
+        return (f"a {bound.bit_length()}-bit coefficient bound at {n} points needs more NTT "
+                f"primes than the seven of {sorted(PRIMES)}")
+
+
+def option(job: Job) -> Option | str:
+    """NTT modulo a prime modulus of :data:`PRIMES`, else NTTs modulo enough primes for the
+    coefficient bound and Garner's CRT (reduced by any other modulus afterwards)."""
+    primes = _primes_for(job)
+    if isinstance(primes, str):
+        return primes
+    c = job.costs["exact"]["ntt"]
+    n, k = job.n_full, len(primes)
+    seconds = c["overhead"] + job.rows * c["per_nlogn"] * n * (k * max(1, math.log2(n)) + k * k)
+    what = f"the prime {primes[0]}" if k == 1 else f"{k} primes and Garner CRT"
+    return Option(seconds, "construction", f"NTT modulo {what}",
+                  {"transform_length": n, "ntt_primes": primes})
+
+
+def run_planned(plan, a: np.ndarray, b: np.ndarray, keep: int | None) -> np.ndarray:
+    """The plan's product of two rows: residues modulo one NTT prime, or the exact (signed)
+    product from several (any other modulus is applied by the caller)."""
+    primes = plan.setting("ntt_primes")
+    if plan.modulus is not None and primes == (plan.modulus,):
+        out = convolve_ntt_mod_prime(a.astype(np.uint64), b.astype(np.uint64), plan.modulus, keep)
+        return out.astype(np.int64)
+    if a.dtype == object or b.dtype == object:
+        return convolve_ntt_crt_objects(a, b, primes, keep)
+    return convolve_ntt_crt(a, b, primes, keep)
+
+
+ENGINE = Engine("ntt", INTEGER_KINDS, option, run_planned, exact=True)

@@ -12,10 +12,12 @@ All blocks go through one batched transform call.
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from ..numerics import transforms as tf
-from .fft import _multiply
+from ._common import FLOAT_KINDS, LARGE_ARRAY, Engine, Job, Option, fft_rate, spectral_product
 
 #: points per group of blocks transformed together: small enough that a group's input, spectrum
 #: and output stay in the CPU cache (measured: groups of 2**14-2**16 points beat one call over
@@ -68,10 +70,10 @@ def convolve_overlap_add(x: np.ndarray, k: np.ndarray, n_fft: int, threads: int 
         count = min(per_group, n_blocks - first)
         _load_blocks(buf, x, first, count, block)
         if complex_data:
-            spectra = _multiply(tf.fft(buf[..., :count, :], -1, threads), kernel_spectrum)
+            spectra = spectral_product(tf.fft(buf[..., :count, :], -1, threads), kernel_spectrum)
             pieces = tf.ifft(spectra, -1, threads)
         else:
-            spectra = _multiply(tf.rfft(buf[..., :count, :], -1, threads), kernel_spectrum)
+            spectra = spectral_product(tf.rfft(buf[..., :count, :], -1, threads), kernel_spectrum)
             pieces = tf.irfft(spectra, n_fft, -1, threads)
         start = first * block
         heads = out[..., start: start + count * block]
@@ -96,3 +98,72 @@ def _load_blocks(buf: np.ndarray, x: np.ndarray, first: int, count: int, block: 
         rest = n - (start + whole * block)
         buf[..., whole, :rest] = x[..., start + whole * block:]
         buf[..., whole, rest:block] = 0
+
+
+# ----------------------------------------------------------------------------- registry record
+#
+# Cost: ``t = c0 + r(N) N lg N (2 q B + 1) / 3 + c_pt q N B (+ c_big n B)`` for ``q`` blocks of
+# transform length ``N``; the block length minimising ``t`` is chosen; one thread (each group of
+# blocks is too small to split).
+
+
+def predict_overlap_add(costs: dict, n: int, m: int, n_fft: int, batch: int, complex_factor: float,
+                        threads: int) -> float:
+    """Seconds for overlap-add with block transforms of length ``n_fft``."""
+    c = costs["overlap_add"]
+    block = n_fft - m + 1
+    blocks = -(-n // block)
+    transforms = (2 * blocks * batch + 1) / 3 * complex_factor
+    big = c["per_sample_large"] * n * batch if n * batch >= LARGE_ARRAY else 0.0
+    return (c["overhead"] + fft_rate(costs, n_fft) * n_fft * math.log2(n_fft) * transforms
+            + c["per_point"] * blocks * n_fft * batch + big)
+
+
+def best_overlap_add(costs: dict, n: int, m: int, batch: int, complex_factor: float,
+                     threads: int) -> tuple[float, int] | None:
+    """Cheapest overlap-add transform length for a long ``n`` and a kernel ``m``, or None.
+
+    Candidates are fast lengths from about ``2m`` up to below the one-shot transform length; a
+    block must be at least ``m - 1`` long so that its tail overlaps only the next block.
+    """
+    full = tf.fast_length(n + m - 1)
+    best = None
+    size = tf.fast_length(max(2 * m, 16))
+    while size < full:
+        if size - m + 1 >= max(m - 1, 1):
+            t = predict_overlap_add(costs, n, m, size, batch, complex_factor, threads)
+            if best is None or t < best[0]:
+                best = (t, size)
+        size = tf.fast_length(size * 2)
+    return best
+
+
+
+
+REFUSAL = "overlap-add needs mode 'full' or 'same' and a kernel shorter than half the long operand"
+
+
+def option(job: Job) -> Option | str:
+    """The overlap-add offer at its best block length, or why it cannot run."""
+    if job.mode == "valid" or min(job.n1, job.n2) <= 1:
+        return REFUSAL
+    n_long, n_short = max(job.n1, job.n2), min(job.n1, job.n2)
+    long_batch = job.batch_a if job.n1 >= job.n2 else job.batch_b
+    rows_long = math.prod(long_batch) if long_batch else 1
+    best = best_overlap_add(job.costs, n_long, n_short, max(rows_long, 1),
+                            2.0 if job.kind == "complex" else 1.0, job.threads)
+    if best is None:
+        return REFUSAL
+    seconds, n_fft = best
+    return Option(seconds,
+                  settings={"transform_length": n_fft, "block_length": n_fft - n_short + 1})
+
+
+def run_planned(plan, x: np.ndarray, y: np.ndarray, keep: int | None) -> np.ndarray:
+    """The full product, the longer operand cut into blocks."""
+    if x.shape[-1] < y.shape[-1]:
+        x, y = y, x
+    return convolve_overlap_add(x, y, plan.transform_length, plan.threads)
+
+
+ENGINE = Engine("overlap-add", FLOAT_KINDS, option, run_planned)

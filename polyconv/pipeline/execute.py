@@ -11,22 +11,11 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..engines.direct import convolve_direct
-from ..engines.exact_direct import (
-    SMALL_MODULUS_LIMIT,
-    convolve_exact_direct,
-    convolve_exact_direct_mod,
-)
-from ..engines.exact_fft import convolve_limbs, convolve_limbs_mod, convolve_rounded
-from ..engines.fft import convolve_fft
-from ..engines.kronecker import convolve_kronecker, convolve_kronecker_mod
-from ..engines.ntt import convolve_ntt_mod_prime
-from ..engines.ntt_compiled import run_planned as run_ntt_compiled
-from ..engines.overlap_add import convolve_overlap_add
+from ..engines.registry import REGISTRY
 from ..numerics.checks import random_evaluation_check
 from ..numerics.limits import INT64_LIMIT
 from . import shaping
-from .choose_exact import choose_exact
+from .choose import choose
 from .facts import integer_facts, normalise_integers
 from .plan import Plan
 from .prepare import check_budget, prepare
@@ -78,7 +67,7 @@ def convolve_integer_rows(x: np.ndarray, y: np.ndarray, *, mode: str = "full",
                                   normalise_integers(y, modulus))
     facts = integer_facts(x, y, modulus, max_x, max_y)
     kind = "integer" if x.dtype != object and y.dtype != object else "bigint"
-    the_plan = choose_exact(facts, kind, (), mode, "auto", keep)
+    the_plan = choose(kind, facts.n1, facts.n2, (), (), (), mode, "auto", keep, facts)
     check_budget(the_plan, kind, (modulus - 1).bit_length() if modulus is not None
                  else facts.bound.bit_length() + 1, length)
     return shaping.finish(run_exact(the_plan, x, y), the_plan, -1, length)
@@ -86,36 +75,31 @@ def convolve_integer_rows(x: np.ndarray, y: np.ndarray, *, mode: str = "full",
 
 def run(the_plan: Plan, x: np.ndarray, y: np.ndarray) -> np.ndarray:
     """Run the plan's engine on prepared operands (axis last); full or truncated product."""
-    engine = the_plan.engine
     if the_plan.exact:
         return run_exact(the_plan, x, y)
+    engine = REGISTRY[the_plan.engine]
     work = shaping.float_work_dtype(x.dtype, y.dtype, the_plan.kind)
     x = x.astype(work, copy=False)
     y = y.astype(work, copy=False)
-    if engine == "direct":
-        return convolve_direct(x, y)
+    keep = shaping.needed_entries(the_plan.mode, x.shape[-1], y.shape[-1], the_plan.output_length)
+    if engine.nonfinite_safe:
+        return engine.run(the_plan, x, y, keep)
+
+    def product(u: np.ndarray, v: np.ndarray) -> np.ndarray:
+        return engine.run(the_plan, u, v, keep)
+
     with np.errstate(invalid="ignore", over="ignore"):  # a NaN input is handled just below
-        out = _run_transform(the_plan, x, y)
-    if not shaping.looks_finite(out, first_entries_only=engine == "fft"):
+        out = product(x, y)
+    if not shaping.looks_finite(out, first_entries_only=engine.smears_nonfinite):
         bad = shaping.nonfinite_masks(x, y)
         if bad is not None:
             x, y = shaping.zero_nonfinite(x), shaping.zero_nonfinite(y)
         # finite inputs whose product overflows: inf - inf inside a transform would give NaN
         # where numpy.convolve gives +-inf, so the product is formed on scaled operands
-        out = shaping.run_scaled(lambda u, v: _run_transform(the_plan, u, v), x, y)
+        out = shaping.run_scaled(product, x, y)
         if bad is not None:
             out = shaping.mark_nonfinite(out, bad, x.shape[-1], y.shape[-1])
     return out
-
-
-def _run_transform(the_plan: Plan, x: np.ndarray, y: np.ndarray) -> np.ndarray:
-    if the_plan.engine == "fft":
-        keep = shaping.needed_entries(the_plan.mode, x.shape[-1], y.shape[-1],
-                                      the_plan.output_length)
-        return convolve_fft(x, y, the_plan.transform_length, keep, the_plan.threads)
-    if x.shape[-1] < y.shape[-1]:
-        x, y = y, x
-    return convolve_overlap_add(x, y, the_plan.transform_length, the_plan.threads)
 
 
 def run_exact(the_plan: Plan, x: np.ndarray, y: np.ndarray) -> np.ndarray:
@@ -142,56 +126,22 @@ def run_exact(the_plan: Plan, x: np.ndarray, y: np.ndarray) -> np.ndarray:
 
 def _finish_row(row: np.ndarray, the_plan: Plan, dtype) -> np.ndarray:
     m = the_plan.modulus
-    if m is not None and not _reduced_by_engine(the_plan.engine):
-        fits = row.dtype == np.int64 and m < INT64_LIMIT
+    if m is not None and not REGISTRY[the_plan.engine].reduces_modulus:
+        fits = row.dtype == np.int64 and m < INT64_LIMIT  # np.mod needs m itself as an int64
         row = np.mod(row if fits else row.astype(object), m)
     if row.dtype != dtype:
         row = row.astype(dtype)
     return row
 
 
-def _reduced_by_engine(engine: str) -> bool:
-    return engine in ("kronecker", "ntt", "limbs", "ntt-compiled")
-
-
 def _product_row(the_plan: Plan, a: np.ndarray, b: np.ndarray, keep: int | None) -> np.ndarray:
-    engine = the_plan.engine
-    if engine == "fft-exact" and the_plan.certificate == "check":
-        full = convolve_rounded(a, b, the_plan.transform_length)
+    engine = REGISTRY[the_plan.engine]
+    if the_plan.certificate == "check":
+        full = engine.run(the_plan, a, b, None)
         if random_evaluation_check(a, b, full):
             return full if keep is None else full[:keep]
-        engine = the_plan.fallback
-    return run_engine(engine, the_plan, a, b, keep)
-
-
-def run_engine(engine: str, the_plan: Plan, a: np.ndarray, b: np.ndarray,
-               keep: int | None) -> np.ndarray:
-    """One exact engine on one pair of 1-D rows, as the plan parametrises it."""
-    product_int64 = the_plan.setting("product_int64", False)
-    m = the_plan.modulus
-    if engine == "direct-exact" and m is not None and m < SMALL_MODULUS_LIMIT:
-        return convolve_exact_direct_mod(a.astype(np.int64), b.astype(np.int64), m, keep)
-    if engine == "direct-exact":
-        return convolve_exact_direct(a, b, keep)
-    if engine == "fft-exact":
-        return convolve_rounded(a, b, the_plan.transform_length, keep)
-    if engine == "limbs" and m is not None:
-        return convolve_limbs_mod(a, b, m, the_plan.setting("limb_bits"),
-                                  the_plan.setting("limbs_a"), the_plan.setting("limbs_b"),
-                                  the_plan.transform_length, keep)
-    if engine == "limbs":
-        return convolve_limbs(a, b, the_plan.setting("limb_bits"), the_plan.setting("limbs_a"),
-                              the_plan.setting("limbs_b"), the_plan.transform_length, keep,
-                              as_int64=product_int64)
-    if engine == "kronecker":
-        threads = the_plan.threads if the_plan.engine == "kronecker" else 1  # 1 as a fallback
-        if m is not None:
-            return convolve_kronecker_mod(a, b, m, keep, threads=threads)
-        return convolve_kronecker(a, b, keep, as_int64=product_int64, threads=threads)
-    if engine == "ntt":
-        out = convolve_ntt_mod_prime(a.astype(np.uint64), b.astype(np.uint64), m, keep)
-        return out.astype(np.int64)
-    if engine == "ntt-compiled":
-        out = run_ntt_compiled(a, b, m, the_plan.setting("ntt_bound"), keep, product_int64)
-        return out if out is not None else run_engine("kronecker", the_plan, a, b, keep)
-    raise AssertionError(f"unknown exact engine {engine!r}")  # the chooser never plans one
+        engine = REGISTRY[the_plan.fallback]
+    out = engine.run(the_plan, a, b, keep)
+    if out is None:  # the engine turned out unavailable here
+        out = REGISTRY[engine.when_unavailable].run(the_plan, a, b, keep)
+    return out

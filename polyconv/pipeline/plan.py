@@ -9,9 +9,10 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 
-FLOAT_ENGINES = ("direct", "fft", "overlap-add")
-EXACT_ENGINES = ("direct-exact", "fft-exact", "limbs", "kronecker", "ntt", "ntt-compiled")
-METHODS = ("auto",) + FLOAT_ENGINES + EXACT_ENGINES
+from ..engines.registry import REGISTRY
+
+#: ``method=`` values: "auto" and every engine of the registry.
+METHODS = ("auto",) + tuple(REGISTRY)
 
 _CERTIFICATES = ("bound", "check", "construction", "none")
 

@@ -16,7 +16,6 @@ from ..numerics.bounds import convolution_error_bound, norm2_upper
 from ..numerics.budget import check_allocation, coefficient_bytes
 from . import inputs
 from .choose import choose
-from .choose_exact import choose_exact
 from .facts import integer_facts, normalise_integers
 from .plan import Plan, check_method
 
@@ -42,8 +41,8 @@ def prepare(a, b, mode, method, modulus, length, axis):
         (x, max_x), (y, max_y) = (normalise_integers(x, mod),
                                   normalise_integers(y, mod))
         facts = integer_facts(x, y, mod, max_x, max_y)
-        the_plan = choose_exact(facts, pair.kind, pair.batch_shape, mode, method,
-                                               keep)
+        the_plan = choose(pair.kind, n1, n2, x.shape[:-1], y.shape[:-1], pair.batch_shape,
+                          mode, method, keep, facts)
         bits = (mod - 1).bit_length() if mod is not None else facts.bound.bit_length() + 1
     else:
         the_plan = choose(pair.kind, n1, n2, x.shape[:-1], y.shape[:-1],

@@ -22,12 +22,12 @@ from collections.abc import Callable
 
 import numpy as np
 
+from ..engines._common import LARGE_ARRAY, fft_rate
 from ..engines.direct import convolve_direct
 from ..engines.fft import convolve_fft
 from ..engines.overlap_add import convolve_overlap_add
-from ..pipeline import choose
 from .calibrate_exact import measure_exact
-from .costs import default_costs, fft_rate
+from .costs import default_costs
 from .threads import configured_threads
 
 
@@ -90,7 +90,7 @@ def measure(quick: bool = False, progress: Callable[[str], None] | None = None) 
     for n1, n2 in sizes[: 9 if quick else None]:
         x, y = rng.standard_normal(n1), rng.standard_normal(n2)
         t = best_time(lambda x=x, y=y: convolve_direct(x, y), budget)
-        if n1 + n2 >= choose.LARGE_ARRAY:
+        if n1 + n2 >= LARGE_ARRAY:
             large.append((n1, n2, t))
             continue
         times.append(t)
@@ -161,7 +161,7 @@ def measure(quick: bool = False, progress: Callable[[str], None] | None = None) 
         transforms = fft_rate(table, n_fft) * n_fft * math.log2(n_fft) * (2 * blocks
                                                                                    + 1) / 3
         rest = max(t - transforms, 0.05 * t)
-        if n_long >= choose.LARGE_ARRAY:
+        if n_long >= LARGE_ARRAY:
             large.append((n_long, blocks * n_fft, rest))
             continue
         times.append(rest)

@@ -1,6 +1,6 @@
 """Measure the compiled NTT engine and fit its constants (``exact.ntt_compiled``, ``exact.jit``).
 
-Formula of :mod:`polyconv.pipeline.choose_compiled`; constants fitted to timings of the engine
+Formula of :func:`polyconv.engines.ntt_compiled.option`; constants fitted to timings of the engine
 itself:
 
 * ``overhead``, ``per_nlogn``, ``per_point``: one-prime products, ``c0 + c N lg N + c_pt N``;

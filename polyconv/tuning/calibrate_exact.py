@@ -1,13 +1,13 @@
 """Measure the exact engines and fit the ``exact`` section of the cost table.
 
-Formulas are those of :mod:`polyconv.pipeline.choose_exact`; each engine's constants are fitted
+Formulas are the option functions of the exact engines; each engine's constants are fitted
 (least
 squares on relative error, non-negative) to timings of the engine itself:
 
 * ``direct_int64`` / ``direct_object``: ``c0 + c_mac n1 n2`` (objects: times
   ``1 + words / 4``);
 * ``rounded``: ``c0 + s F(N) + c_pt N`` with ``F`` the float FFT model of
-  :mod:`polyconv.pipeline.choose`;
+  :func:`polyconv.engines._common.fft_rate`;
 * ``limbs``: ``c0 + s F(N) T / 3 + c_pt N (ka + kb)`` for ``T`` transforms;
 * ``kronecker``: a table of GMP multiplication rates per ``log2`` bit size, then
   ``c0 + c_byte bytes + c_obj n_out`` for packing, unpacking and Python-int creation;
@@ -21,16 +21,15 @@ from collections.abc import Callable
 import gmpy2
 import numpy as np
 
+from ..engines._common import fft_rate
 from ..engines.exact_direct import convolve_exact_direct
 from ..engines.exact_fft import convolve_limbs, convolve_limbs_mod, convolve_rounded
-from ..engines.kronecker import convolve_kronecker
+from ..engines.kronecker import convolve_kronecker, kronecker_seconds
 from ..engines.ntt import convolve_ntt_mod_prime
 from ..numerics import bounds
 from ..numerics.checks import random_evaluation_check
 from ..numerics.limits import max_abs
-from ..pipeline.choose_exact import kronecker_seconds
 from .calibrate_compiled import measure_compiled
-from .costs import fft_rate
 
 
 def measure_exact(table: dict, quick: bool, best_time: Callable, fit: Callable,

@@ -14,9 +14,7 @@ measured.
 
 from __future__ import annotations
 
-import bisect
 import json
-import math
 import os
 import warnings
 from importlib import resources
@@ -163,57 +161,3 @@ def save_user_costs(table: dict, path: Path | None = None) -> Path:
     _atomic.write_bytes(path, json.dumps(table, indent=2, sort_keys=True) + "\n")
     load_costs(refresh=True)
     return path
-
-
-# ----------------------------------------------------------------------------- size tables
-
-
-class _RateTable:
-    """The ``rate_by_log2n`` table as sorted arrays, built once per cost table."""
-
-    __slots__ = ("source", "xs", "ys")
-
-    def __init__(self, table: dict):
-        self.source = table
-        pairs = sorted((int(k), float(v)) for k, v in table.items())
-        self.xs = [p[0] for p in pairs]
-        self.ys = [p[1] for p in pairs]
-
-    def at(self, x: float) -> float:
-        xs, ys = self.xs, self.ys
-        if x <= xs[0]:
-            return ys[0]
-        if x >= xs[-1]:
-            return ys[-1]
-        i = bisect.bisect_right(xs, x)
-        w = (x - xs[i - 1]) / (xs[i] - xs[i - 1])
-        return ys[i - 1] * (1.0 - w) + ys[i] * w
-
-
-_rates: _RateTable | None = None
-
-
-def fft_rate(costs: dict, n_fft: int) -> float:
-    """Seconds per ``N log2 N`` of one real 1-D FFT product at length ``N``, interpolated."""
-    global _rates
-    table = costs["fft"]["rate_by_log2n"]
-    if _rates is None or _rates.source is not table:
-        _rates = _RateTable(table)
-    return _rates.at(math.log2(max(n_fft, 2)))
-
-
-def gmp_rate(c: dict, bits: int) -> float:
-    """Seconds per ``b lg b`` of a balanced GMP product of ``b``-bit integers (interpolated)."""
-    table = c["mul_rate_by_log2bits"]
-    keys = sorted(int(k) for k in table)
-    x = math.log2(bits)
-    if x <= keys[0]:
-        return table[str(keys[0])]
-    if x >= keys[-1]:
-        return table[str(keys[-1])]
-    hi = next(k for k in keys if k >= x)
-    lo = max(k for k in keys if k <= x)
-    if hi == lo:
-        return table[str(lo)]
-    w = (x - lo) / (hi - lo)
-    return table[str(lo)] * (1 - w) + table[str(hi)] * w
