@@ -335,6 +335,9 @@ def rounded_option(job: Job) -> Option | str:
         certificate = "check"
         note = (f"float FFT error bound {err:.3g} >= 1/2: rounded result accepted only if a "
                 "random-evaluation check passes")
+    elif math.isinf(err):
+        return ("the operands' norms were not computed for a product this small (direct "
+                "summation is faster), so no float error bound certifies it; use method='auto'")
     else:
         return (f"the float error bound {err:.3g} is too large to certify the rounded product; "
                 "use method='auto', 'limbs' or 'kronecker'")
