@@ -298,14 +298,6 @@ def test_bit_helpers():
     assert bounds.norm2_upper(x) >= math.sqrt(9 + 2**80 + 25)  # common practice, no source
 
 
-def test_modular_rescue():
-    # c = r + p round((c' - r) / p) when |c' - c| < p/2 (DESIGN.md section 4, standard identity)
-    p = 998244353
-    exact = RNG.integers(-2**60, 2**60, 1000)
-    noisy = exact.astype(np.float64) + RNG.uniform(-1000, 1000, 1000)
-    assert checks.modular_rescue(noisy, exact % p, p).tolist() == exact.tolist()
-
-
 def test_check_prime_is_the_largest_prime_below_2_28():
     # reference: gmpy2.prev_prime (GMP's probabilistic primality test, deterministic in this range)
     assert checks.CHECK_PRIME == int(gmpy2.prev_prime(2**28))

@@ -1,10 +1,8 @@
-"""A-posteriori checks of exact integer products: random evaluation and modular rescue.
+"""A-posteriori check of exact integer products: random evaluation.
 
-* :func:`random_evaluation_check`: Schwartz-Zippel test of ``c == a * b`` at random points modulo
-  a prime below ``2^28`` (Schwartz 1980, Zippel 1979); a float-FFT product certified by "check"
-  is accepted only when it passes.
-* :func:`modular_rescue`: the exact ``c`` from a float approximation and its residues modulo a
-  prime (DESIGN.md section 4).
+:func:`random_evaluation_check` is the Schwartz-Zippel test of ``c == a * b`` at random points
+modulo a prime below ``2^28`` (Schwartz 1980, Zippel 1979); a float-FFT product certified by
+"check" is accepted only when it passes.
 """
 
 from __future__ import annotations
@@ -13,19 +11,6 @@ import math
 import random
 
 import numpy as np
-
-
-def modular_rescue(approx: np.ndarray, residues: np.ndarray, p: int) -> np.ndarray:
-    """Exact ``c`` from a float approximation ``c'`` and ``r = c mod p`` (DESIGN.md section 4).
-
-    ``c = r + p round((c' - r) / p)`` whenever ``|c' - c| < p/2`` (minus the float error of the
-    division, ``|c'| 2^-52``, negligible for ``|c'| << 2^52 p``).  Returns int64: the caller
-    guarantees ``|c| < 2^63``.
-    """
-    r = residues.astype(np.int64)
-    k = np.rint((approx - r) / p).astype(np.int64)
-    return r + k * np.int64(p)
-
 
 #: The check prime: the largest prime below ``2^28``.  Residues below it have products below
 #: ``2^56``, so 128 of them add up in uint64 before any reduction.

@@ -17,7 +17,7 @@ from ..numerics.limits import INT64_LIMIT
 from . import shaping
 from .choose import choose
 from .facts import integer_facts, normalise_integers
-from .plan import Plan
+from .plan import Plan, needed_entries
 from .prepare import check_budget, prepare
 
 
@@ -29,12 +29,12 @@ def convolve_prepared(a, b, *, mode: str = "full", method: str = "auto",
     For callers inside polyconv that also need the plan (it is prepared once).  A float plan's
     ``error_bound`` is not computed here (``inf``; :func:`polyconv.pipeline.prepare.float_bound`).
     """
-    pair, x, y, trunc, the_plan = prepare(a, b, mode, method, modulus, length, axis)
+    pair, x, y, length, the_plan = prepare(a, b, mode, method, modulus, length, axis)
     if 0 in pair.batch_shape:
         full = shaping.empty_result(the_plan, pair.kind, x, y)
     else:
         full = run(the_plan, x, y)
-    return shaping.finish(full, the_plan, pair.axis, trunc), the_plan
+    return shaping.shape_result(full, the_plan, pair.axis, length), the_plan
 
 
 def convolve(a, b, *, mode: str = "full", method: str = "auto", modulus: int | None = None,
@@ -70,7 +70,7 @@ def convolve_integer_rows(x: np.ndarray, y: np.ndarray, *, mode: str = "full",
     the_plan = choose(kind, facts.n1, facts.n2, (), (), (), mode, "auto", keep, facts)
     check_budget(the_plan, kind, (modulus - 1).bit_length() if modulus is not None
                  else facts.bound.bit_length() + 1, length)
-    return shaping.finish(run_exact(the_plan, x, y), the_plan, -1, length)
+    return shaping.shape_result(run_exact(the_plan, x, y), the_plan, -1, length)
 
 
 def run(the_plan: Plan, x: np.ndarray, y: np.ndarray) -> np.ndarray:
@@ -81,7 +81,7 @@ def run(the_plan: Plan, x: np.ndarray, y: np.ndarray) -> np.ndarray:
     work = shaping.float_work_dtype(x.dtype, y.dtype, the_plan.kind)
     x = x.astype(work, copy=False)
     y = y.astype(work, copy=False)
-    keep = shaping.needed_entries(the_plan.mode, x.shape[-1], y.shape[-1], the_plan.output_length)
+    keep = needed_entries(the_plan.mode, x.shape[-1], y.shape[-1], the_plan.output_length)
     if engine.nonfinite_safe:
         return engine.run(the_plan, x, y, keep)
 
@@ -113,18 +113,18 @@ def run_exact(the_plan: Plan, x: np.ndarray, y: np.ndarray) -> np.ndarray:
         keep = None
     dtype = np.int64 if the_plan.output_int64 else object
     if x.ndim == 1 and y.ndim == 1:
-        return _finish_row(_product_row(the_plan, x, y, keep), the_plan, dtype)
+        return _reduce_row(_product_row(the_plan, x, y, keep), the_plan, dtype)
     batch = the_plan.batch_shape
     rows_x = np.broadcast_to(x, batch + (n1,)).reshape(-1, n1)
     rows_y = np.broadcast_to(y, batch + (n2,)).reshape(-1, n2)
     length = keep if keep is not None else n1 + n2 - 1
     out = np.empty((rows_x.shape[0], length), dtype=dtype)
     for i in range(rows_x.shape[0]):
-        out[i] = _finish_row(_product_row(the_plan, rows_x[i], rows_y[i], keep), the_plan, dtype)
+        out[i] = _reduce_row(_product_row(the_plan, rows_x[i], rows_y[i], keep), the_plan, dtype)
     return out.reshape(batch + (length,))
 
 
-def _finish_row(row: np.ndarray, the_plan: Plan, dtype) -> np.ndarray:
+def _reduce_row(row: np.ndarray, the_plan: Plan, dtype) -> np.ndarray:
     m = the_plan.modulus
     if m is not None and not REGISTRY[the_plan.engine].reduces_modulus:
         fits = row.dtype == np.int64 and m < INT64_LIMIT  # np.mod needs m itself as an int64

@@ -1,4 +1,4 @@
-"""The :class:`Plan` record, the engine names and the mode arithmetic.
+"""The :class:`Plan` record, the ``method=`` names and the mode arithmetic (the one place).
 
 A Plan says how one convolution will be computed and why; every stage after the chooser reads it.
 Mode arithmetic: numpy.convolve's definitions of "full", "same" and "valid" (``output_length``).
@@ -145,11 +145,26 @@ def _fmt_bound(bound: float) -> str:
 
 def output_length(mode: str, n1: int, n2: int) -> int:
     """Length along the axis of a ``mode`` convolution (numpy.convolve's definitions)."""
+    start, stop = mode_window(mode, n1, n2)
+    return stop - start
+
+
+def mode_window(mode: str, n1: int, n2: int) -> tuple[int, int]:
+    """``(start, stop)`` of the full product's entries a mode returns (numpy.convolve's
+    definitions: "same" is centred on the longer operand, "valid" needs no zero padding)."""
     if mode == "full":
-        return n1 + n2 - 1
+        return 0, n1 + n2 - 1
     if mode == "same":
-        return max(n1, n2)
-    return max(n1, n2) - min(n1, n2) + 1
+        start = (min(n1, n2) - 1) // 2
+        return start, start + max(n1, n2)
+    return min(n1, n2) - 1, max(n1, n2)
+
+
+def needed_entries(mode: str, n1: int, n2: int, output_length: int) -> int:
+    """How many leading entries of the full product a mode reads."""
+    if mode == "full":
+        return output_length
+    return mode_window(mode, n1, n2)[1]
 
 
 def check_method(method) -> str:

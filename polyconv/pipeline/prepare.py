@@ -23,19 +23,19 @@ from .plan import Plan, check_method
 def prepare(a, b, mode, method, modulus, length, axis):
     """Validate the arguments, measure integer operands and choose the plan.
 
-    Returns ``(pair, x, y, trunc, plan)``: the classified operands, the (truncated, normalised)
+    Returns ``(pair, x, y, length, plan)``: the classified operands, the (truncated, normalised)
     operands with the axis last, the checked ``length`` and the :class:`Plan` (whose memory need
     has been checked against the budget).
     """
     pair = inputs.prepare_pair(a, b, axis)
     inputs.check_mode(mode)
-    trunc = inputs.check_length(length, mode)
+    length = inputs.check_length(length, mode)
     mod = inputs.check_modulus(modulus, pair.kind)
     x, y = pair.a, pair.b
-    if trunc is not None:
-        x, y = x[..., :trunc], y[..., :trunc]
+    if length is not None:
+        x, y = x[..., :length], y[..., :length]
     n1, n2 = x.shape[-1], y.shape[-1]
-    keep = None if trunc is None else min(trunc, n1 + n2 - 1)
+    keep = None if length is None else min(length, n1 + n2 - 1)
     check_method(method)
     if pair.kind in ("integer", "bigint"):
         (x, max_x), (y, max_y) = (normalise_integers(x, mod),
@@ -48,8 +48,8 @@ def prepare(a, b, mode, method, modulus, length, axis):
         the_plan = choose(pair.kind, n1, n2, x.shape[:-1], y.shape[:-1],
                                    pair.batch_shape, mode, method, keep)
         bits = 0
-    check_budget(the_plan, pair.kind, bits, trunc)
-    return pair, x, y, trunc, the_plan
+    check_budget(the_plan, pair.kind, bits, length)
+    return pair, x, y, length, the_plan
 
 
 #: Transform-sized arrays an FFT product holds at once (two spectra and the inverse transform,

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .plan import Plan
+from .plan import Plan, mode_window
 
 _F32 = np.dtype(np.float32)
 _F64 = np.dtype(np.float64)
@@ -38,33 +38,22 @@ def float_work_dtype(dx: np.dtype, dy: np.dtype, kind: str) -> np.dtype:
     return dt
 
 
-def needed_entries(mode: str, n1: int, n2: int, output_length: int) -> int:
-    """How many leading entries of the full product a mode reads."""
-    if mode == "full":
-        return output_length
-    if mode == "same":
-        return (min(n1, n2) - 1) // 2 + max(n1, n2)
-    return max(n1, n2)
-
-
-def finish(full: np.ndarray, the_plan: Plan, out_axis: int, truncate: int | None) -> np.ndarray:
+def shape_result(full: np.ndarray, the_plan: Plan, out_axis: int,
+                 length: int | None) -> np.ndarray:
     """Slice an engine's product to the plan's mode, pad a truncation, put the axis back."""
     mode = the_plan.mode
-    if mode == "full" and truncate is None and full.ndim == 1:
+    if mode == "full" and length is None and full.ndim == 1:
         return full if full.shape[0] == the_plan.output_length else full[: the_plan.output_length]
-    n1, n2 = the_plan.lengths
     if mode == "full":
         out = full[..., : the_plan.output_length]
-        if truncate is not None and truncate > out.shape[-1]:
-            pad = np.zeros(out.shape[:-1] + (truncate - out.shape[-1],), dtype=out.dtype)
+        if length is not None and length > out.shape[-1]:
+            pad = np.zeros(out.shape[:-1] + (length - out.shape[-1],), dtype=out.dtype)
             if out.dtype == object:
                 pad[...] = 0
             out = np.concatenate([out, pad], axis=-1)
-    elif mode == "same":
-        start = (min(n1, n2) - 1) // 2
-        out = full[..., start: start + max(n1, n2)]
     else:
-        out = full[..., min(n1, n2) - 1: max(n1, n2)]
+        start, stop = mode_window(mode, *the_plan.lengths)
+        out = full[..., start:stop]
     if out.ndim > 1 and out_axis != out.ndim - 1:
         out = np.moveaxis(out, -1, out_axis)
     return out
