@@ -44,12 +44,13 @@ from .ntt_compiled import (
     transform_length,
 )
 
-#: Rows with ``n1 n2`` at most this many multiply-adds use schoolbook summation: measured on the
-#: development machine (bench/compiled_bench.py, "batched rows" table): schoolbook and NTT rows
-#: cost the same near ``n1 = n2 = 48`` modulo a prime and near 40 for exact int64 rows.
-SCHOOLBOOK_WORK = 48 * 48
-#: The same for exact int64 rows in wrapping arithmetic (no reduction modulo p needed).
-SCHOOLBOOK_WORK_WRAP = 40 * 40
+#: Rows with ``n1 n2`` at most this many multiply-adds use schoolbook summation modulo a prime:
+#: measured on the development machine (256 rows of n x n, microseconds per row, schoolbook /
+#: NTT): n = 64 2.0 / 2.8, 96 4.1 / 5.5, 128 6.9 / 5.9.
+SCHOOLBOOK_WORK = 112 * 112
+#: The same for exact int64 rows in wrapping arithmetic, against two-prime NTT + Garner (64 rows,
+#: us per row): n = 128 3.5 / 16.2, 256 13.5 / 34.1, 384 29.3 / 62.6.
+SCHOOLBOOK_WORK_WRAP = 512 * 512
 
 
 def _kernels():
@@ -279,14 +280,19 @@ def product_mod(factors: list[np.ndarray], m: int, keep: int | None = None) -> n
     """
     if not factors:
         raise ValueError("factors: expected at least one polynomial")
-    total = sum(f.shape[0] for f in factors) - len(factors) + 1
+    lengths = [f.shape[0] for f in factors]
+    total = sum(lengths) - len(factors) + 1
     final = total if keep is None else min(keep, total)
-    groups: dict[int, list[np.ndarray]] = {}
-    for f in factors:
-        groups.setdefault(f.shape[0].bit_length(), []).append(f)
     dtype = np.int64 if m <= 2**63 else object
-    parts = [_tree_mod(_padded(group, dtype), m, keep, sum(g.shape[0] for g in group)
-                       - len(group) + 1) for group in groups.values()]
+    if min(lengths) == max(lengths) and dtype is not object:  # one class, no padding
+        budget.check_allocation(8.0 * total, "the factors of a product")
+        parts = [_tree_mod(np.array(factors, dtype=np.int64), m, keep, total)]
+    else:
+        groups: dict[int, list[np.ndarray]] = {}
+        for f, n in zip(factors, lengths, strict=True):
+            groups.setdefault(n.bit_length(), []).append(f)
+        parts = [_tree_mod(_padded(g, dtype), m, keep, sum(f.shape[0] for f in g) - len(g) + 1)
+                 for g in groups.values()]
     while len(parts) > 1:
         parts.sort(key=len)
         x, y = parts.pop(0), parts.pop(0)
@@ -316,8 +322,6 @@ def _padded(factors: list[np.ndarray], dtype) -> np.ndarray:
     """One zero-padded stack of the factors."""
     width = max(f.shape[0] for f in factors)
     budget.check_allocation(8.0 * len(factors) * width, "the factors of a product")
-    if all(f.shape[0] == width for f in factors) and dtype is not object:
-        return np.array(factors, dtype=dtype)
     stack = np.zeros((len(factors), width), dtype=dtype)
     for i, f in enumerate(factors):
         stack[i, :f.shape[0]] = f
