@@ -134,3 +134,29 @@ def test_product_tree_equal_flint(m):
     assert nb.product_mod(same, m).tolist() == [int(v) for v in ref.coeffs()]
     with pytest.raises(ValueError, match="factors"):
         nb.product_mod([], m)
+
+
+@pytest.mark.parametrize("m", [P, 10**9 + 7])
+def test_algebra_product_mod_takes_the_batched_tree(m):
+    # polyconv.product with the kernels loaded runs one batched call per tree level; the
+    # reference is python-flint's nmod_poly product, factor by factor
+    from polyconv import algebra
+
+    rng = np.random.default_rng(5)
+    factors = [rng.integers(1, m, 2) for _ in range(300)]
+    ref = flint.nmod_poly([1], m)
+    for f in factors:
+        ref *= flint.nmod_poly(f.tolist(), m)
+    want = [int(v) for v in ref.coeffs()]
+    with algebra.counting_products() as log:
+        got = algebra.product(factors, modulus=m)
+    assert got.tolist() == want
+    assert len(log) == 299 and log[0][2] == "batched"
+    assert algebra.product(np.array(factors), modulus=m).tolist() == want  # a 2-D stack
+    assert algebra.product(factors, modulus=m, length=7).tolist() == want[:7]
+    assert algebra.product(factors, modulus=m, length=400).tolist() == want + [0] * 99
+    factors[3] = np.array([0, 5])  # a factor to trim: the general path, same answer
+    ref = flint.nmod_poly([1], m)
+    for f in factors:
+        ref *= flint.nmod_poly(f.tolist(), m)
+    assert algebra.product(factors, modulus=m).tolist() == [int(v) for v in ref.coeffs()]

@@ -267,7 +267,8 @@ def product_mod(factors: list[np.ndarray], m: int, keep: int | None = None) -> n
     """``prod_i factors[i] mod m`` (or its first ``keep`` coefficients) by balanced product
     trees, one batched call per tree level.
 
-    Factors (1-D, non-empty, entries in ``[0, m)``) are grouped by length class (lengths in
+    Factors (1-D, non-empty, entries in ``[0, m)``; or one 2-D stack of equal-length factors)
+    are grouped by length class (lengths in
     ``[2^j, 2^(j+1))``); each group is one zero-padded rectangular stack multiplied level by level
     (trailing zeros of a padded row give trailing zeros of its products), and the few group
     products are then multiplied shortest first (Huffman's order, which keeps the long products
@@ -278,15 +279,19 @@ def product_mod(factors: list[np.ndarray], m: int, keep: int | None = None) -> n
     numpy.ndarray
         The ``sum(len) - len(factors) + 1`` (or ``keep``) coefficients, int64 for ``m <= 2^63``.
     """
-    if not factors:
+    if len(factors) == 0:
         raise ValueError("factors: expected at least one polynomial")
-    lengths = [f.shape[0] for f in factors]
-    total = sum(lengths) - len(factors) + 1
-    final = total if keep is None else min(keep, total)
     dtype = np.int64 if m <= 2**63 else object
+    if isinstance(factors, np.ndarray) and factors.ndim == 2 and dtype is not object:
+        lengths = [factors.shape[1]]  # a stack of equal-length factors
+        total = factors.shape[0] * (factors.shape[1] - 1) + 1
+    else:
+        lengths = [f.shape[0] for f in factors]
+        total = sum(lengths) - len(factors) + 1
+    final = total if keep is None else min(keep, total)
     if min(lengths) == max(lengths) and dtype is not object:  # one class, no padding
         budget.check_allocation(8.0 * total, "the factors of a product")
-        parts = [_tree_mod(np.array(factors, dtype=np.int64), m, keep, total)]
+        parts = [_tree_mod(np.asarray(factors, dtype=np.int64), m, keep, total)]
     else:
         groups: dict[int, list[np.ndarray]] = {}
         for f, n in zip(factors, lengths, strict=True):
