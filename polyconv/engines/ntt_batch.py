@@ -66,11 +66,6 @@ def _transform_constants(p: int, n: int) -> tuple:
     return tw, twq, itw, itwq, neg_inv, f, (f << 32) // p
 
 
-@lru_cache(maxsize=64)
-def _garner(primes: tuple[int, ...]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    return _garner_constants(primes)
-
-
 def _stack(a: np.ndarray, b: np.ndarray, name: str = "rows") -> tuple[np.ndarray, np.ndarray]:
     """Two C-contiguous writable int64 stacks with the same number of rows (a single row is
     repeated)."""
@@ -252,7 +247,7 @@ def multiply_rows_mod(a_rows: np.ndarray, b_rows: np.ndarray, m: int,
     budget.check_allocation(8.0 * (len(primes) + 1) * rows * count, "batched products mod m")
     res = _residues_by_prime(a, b, primes, count).reshape(len(primes), rows * count)
     if m < KERNEL_MODULUS_LIMIT:
-        arr, inv, invq = _garner(primes)
+        arr, inv, invq = _garner_constants(primes)
         out = np.empty(rows * count, dtype=np.int64)
         jit.kernels("_kernels_ntt").garner_mod(res, arr, inv, invq, m, out)
         return out.reshape(rows, count)
