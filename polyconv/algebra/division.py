@@ -219,18 +219,45 @@ def quotient_bits(a: np.ndarray, b: np.ndarray) -> int:
 
     With ``rev(b) = +-(1 + c_1 x + ... + c_d x^d)`` the reversed quotient is
     ``rev(a) h mod x^qlen`` with ``h = 1 / (1 + c_1 x + ...)``, whose coefficients satisfy
-    ``|h_k| <= sum_i |c_i| |h_(k-i)|``.  For any ``rho`` with ``sum_i |c_i| rho^-i <= 1`` this
-    gives ``|h_k| <= rho^k`` by induction, and ``rho = 2 max_i |c_i|^(1/i)`` is such a ``rho``
-    (each term is at most ``2^-i``; Fujiwara's root bound, Monatsh. Math. 1916).  Hence
-    ``|q_k| <= ||a||_1 rho^(qlen - 1)``.  Computed from bit lengths, so it is rigorous.
+    ``|h_k| <= sum_i |c_i| |h_(k-i)|``.  For any ``rho >= 1`` with ``sum_i |c_i| rho^-i <= 1``
+    this gives ``|h_k| <= rho^k`` by induction, hence ``|q_k| <= ||a||_1 rho^(qlen - 1)``.
+    ``rho = 2 max_i |c_i|^(1/i)`` qualifies (each term is at most ``2^-i``; Fujiwara's root
+    bound, Monatsh. Math. 1916); the smallest qualifying ``rho`` is found by bisection on
+    ``log2 rho`` between ``max_i log2|c_i| / i`` and that, each test keeping a relative margin
+    of ``2^-20`` over float rounding.
     """
     d = b.shape[0] - 1
     qlen = a.shape[0] - d
     coeffs = [abs(int(v)) for v in b[:d][::-1].tolist()]  # |c_1| .. |c_d|
-    rho_bits = 1 + max((c.bit_length() / i for i, c in enumerate(coeffs, start=1) if c),
-                       default=0.0)
+    index = np.array([i for i, c in enumerate(coeffs, start=1) if c], dtype=np.float64)
+    logs = np.array([_log2_up(c) for c in coeffs if c], dtype=np.float64)
+    r = 0.0
+    if index.size:
+        low = float(np.max(logs / index))
+        high = low + 1.0  # Fujiwara: sum <= 1 - 2^-d there
+        for _ in range(40):
+            mid = 0.5 * (low + high)
+            if _sum_terms(logs, index, mid) <= 1.0 - 2.0**-20:
+                high = mid
+            else:
+                low = mid
+        r = max(high, 0.0)
     norm = sum(abs(int(v)) for v in a.tolist())
-    return norm.bit_length() + int(np.ceil(max(rho_bits, 0.0) * (qlen - 1))) + 1
+    return norm.bit_length() + int(np.ceil(r * (qlen - 1) * (1 + 2.0**-30))) + 1
+
+
+def _log2_up(c: int) -> float:
+    """``log2 c`` rounded up by a relative ``2^-40`` (exact powers of two stay close)."""
+    bits = c.bit_length()
+    if bits > 1000:  # float(c) would overflow: scale first
+        return bits - 1000 + _log2_up(c >> (bits - 1000)) + 2.0**-40
+    value = np.log2(float(c))
+    return float(value + abs(value) * 2.0**-40 + 2.0**-40)
+
+
+def _sum_terms(logs: np.ndarray, index: np.ndarray, r: float) -> float:
+    """``sum_i 2^(log2|c_i| - i r)`` (the terms over ``rho = 2^r``), rounded up slightly."""
+    return float(np.sum(np.exp2(np.minimum(logs - index * r, 60.0)))) * (1 + 2.0**-30)
 
 
 def _quotient_halving(a: np.ndarray, b: np.ndarray) -> np.ndarray:
