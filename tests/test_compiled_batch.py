@@ -160,3 +160,31 @@ def test_algebra_product_mod_takes_the_batched_tree(m):
     for f in factors:
         ref *= flint.nmod_poly(f.tolist(), m)
     assert algebra.product(factors, modulus=m).tolist() == [int(v) for v in ref.coeffs()]
+
+
+def test_algebra_small_products_skip_planning_and_match_flint():
+    # with the kernels loaded, short int64 products of the algebra go straight to ntt_batch
+    # (rings._small_product); python-flint's nmod_series / fmpz_poly / divmod are the references
+    from polyconv import algebra
+    from polyconv.algebra import rings
+
+    rng = np.random.default_rng(9)
+    a = rng.integers(0, P, 100)
+    a[0] = 3
+    x, y = rng.integers(0, P, 9), rng.integers(0, P, 70)
+    assert rings._small_product(x, y, P, None, "valid", (P - 1, P - 1)).tolist() == \
+        [int(v) for v in (flint.nmod_poly(x.tolist(), P) * flint.nmod_poly(y.tolist(), P))
+         .coeffs()][8:70]
+    inv = algebra.inverse_series(a, 100, modulus=P)
+    want = flint.nmod_poly(a.tolist(), P) * flint.nmod_poly(inv.tolist(), P)
+    assert [int(v) for v in want.coeffs()][:100] == [1] + [0] * 99  # a * (1/a) = 1 mod x^100
+    small = rng.integers(-50, 50, 12)
+    assert algebra.power(small, 5).tolist() == [
+        int(v) for v in (flint.fmpz_poly(small.tolist()) ** 5).coeffs()] + [0] * (
+        55 - len((flint.fmpz_poly(small.tolist()) ** 5).coeffs()))
+    num, den = rng.integers(0, P, 120), rng.integers(0, P, 50)
+    q, r = algebra.poly_divmod(num, den, modulus=P)
+    fq, fr = divmod(flint.nmod_poly(num.tolist(), P), flint.nmod_poly(den.tolist(), P))
+    assert q.tolist() == [int(v) for v in fq.coeffs()]
+    assert r.tolist()[:len(fr.coeffs())] == [int(v) for v in fr.coeffs()]
+    assert rings._small_product(x, y, P, None, "full", None) is None  # residues not certified
