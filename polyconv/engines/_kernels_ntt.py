@@ -52,26 +52,26 @@ def _shoup(t, w, wq, p):
     return t * w - q * p
 
 
-@njit("uint32(uint32, uint32)", cache=CACHE, inline="always")
+@njit(inline="always")  # no signature: inlined into callers only
 def _reduce_2p(a, p2):
     """``a mod 2p`` for ``a < 4p`` in uint32: ``min(a, a - 2p)`` (the difference wraps above ``a``
     when ``a < 2p``): the add/conditional-subtract step shared by every butterfly."""
     return min(a, a - p2)
 
 
-@njit("uint32(uint32, uint32, uint32)", cache=CACHE, inline="always")
+@njit(inline="always")  # no signature: inlined into callers only
 def _add_2p(u, v, p2):
     """``u + v`` reduced into ``[0, 2p)`` for ``u, v < 2p``."""
     return _reduce_2p(u + v, p2)
 
 
-@njit("uint32(uint32, uint32, uint32)", cache=CACHE, inline="always")
+@njit(inline="always")  # no signature: inlined into callers only
 def _sub_2p(u, v, p2):
     """``u - v`` reduced into ``[0, 2p)`` for ``u, v < 2p`` (computed as ``u + 2p - v``)."""
     return _reduce_2p(u + p2 - v, p2)
 
 
-@njit("uint32(uint32, uint32, uint32, uint32)", cache=CACHE, inline="always")
+@njit(inline="always")  # no signature: inlined into callers only
 def _twist(d, w, wq, pp):
     """``d w mod p`` in ``[0, 2p)`` for ``d < 2^32`` by Shoup's quotient ``wq`` in uint32 words
     (the remainder ``d w - q p`` is exact modulo ``2^32``)."""
