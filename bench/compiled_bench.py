@@ -1,6 +1,6 @@
 """Compiled NTT engine vs python-flint and vs the numpy engines; JIT costs reported apart.
 
-Run: python bench/compiled_bench.py [--quick]     (markdown tables; ~2 minutes)
+Run: python bench/compiled_bench.py [--quick | --division]  (markdown tables; ~3 minutes)
 
 Ratios are polyconv / python-flint in the same process, best of several rounds (below 1:
 polyconv faster).  "multiply alone" times flint's product of ready nmod_poly objects against
@@ -64,6 +64,9 @@ def cold_costs() -> tuple[float, float]:
 
 def main() -> None:
     quick = "--quick" in sys.argv
+    if "--division" in sys.argv:  # the division table alone
+        division_table(np.random.default_rng(5))
+        return
     first, warm = cold_costs()
     print(f"JIT: first compile {first:.2f} s, warm-cache load {warm:.2f} s (new processes)")
     jit.kernels()
@@ -97,6 +100,28 @@ def main() -> None:
             engine = polyconv.plan(a, b).engine
             print(f"| 2^{lg} | {bits} | {t_pc / t_flint:.3f} | {engine} |", flush=True)
     batched_tables(rng)
+    division_table(rng)
+
+
+def division_table(rng) -> None:
+    """poly_divmod over Z with growing quotients (issue 12 item 5) vs flint's divmod, from Python
+    ints: a random 100-bit dividend of length 2.5 d by a monic divisor with 100-bit coefficients
+    (quotient coefficients reach ~100 (qlen - 1) bits)."""
+    print("\n| dividend / divisor length | quotient bits | polyconv ms | flint ms | ratio |")
+    print("|---|---|---|---|---|")
+    for na, nd in ((300, 121), (600, 241), (1200, 481)):
+        a = [int(v) << 38 | int(w) for v, w in
+             zip(rng.integers(-2**62, 2**62, na), rng.integers(0, 2**38, na), strict=True)]
+        b = [int(v) << 38 for v in rng.integers(-2**62, 2**62, nd - 1)] + [1]
+        oa, ob = np.array(a, dtype=object), np.array(b, dtype=object)
+        fa, fb = fmpz_poly(a), fmpz_poly(b)
+        t_pc = best(lambda oa=oa, ob=ob: polyconv.poly_divmod(oa, ob), budget=1.0)
+        t_fl = best(lambda fa=fa, fb=fb: [[int(v) for v in x.coeffs()] for x in divmod(fa, fb)],
+                    budget=1.0)
+        q, _ = polyconv.poly_divmod(oa, ob)
+        bits = max(abs(int(v)) for v in q).bit_length()
+        print(f"| {na} / {nd} | {bits} | {t_pc * 1e3:.1f} | {t_fl * 1e3:.1f} | "
+              f"{t_pc / t_fl:.2f} |", flush=True)
 
 
 def batched_tables(rng) -> None:
