@@ -188,3 +188,20 @@ def test_algebra_small_products_skip_planning_and_match_flint():
     assert q.tolist() == [int(v) for v in fq.coeffs()]
     assert r.tolist()[:len(fr.coeffs())] == [int(v) for v in fr.coeffs()]
     assert rings._small_product(x, y, P, None, "full", None) is None  # residues not certified
+
+
+def test_algebra_product_over_z_batches_its_int64_levels():
+    # 101 linear 8-bit factors over Z: the low tree levels run as batched int64 products, the
+    # rest on the heap; python-flint's fmpz_poly product (factor by factor) is the reference
+    from polyconv import algebra
+
+    rng = np.random.default_rng(21)
+    factors = [np.array([int(v) or 1, int(w) or -1]) for v, w in rng.integers(-128, 128, (101, 2))]
+    ref = flint.fmpz_poly([1])
+    for f in factors:
+        ref *= flint.fmpz_poly(f.tolist())
+    with algebra.counting_products() as log:
+        got = algebra.product(factors)
+    assert [int(v) for v in got] == [int(v) for v in ref.coeffs()]
+    assert sum(1 for entry in log if entry[2] == "batched") >= 50 + 25  # two int64 levels
+    assert len(log) == 100

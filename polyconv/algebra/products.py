@@ -232,6 +232,10 @@ def product(seqs: Iterable, *, modulus: int | None = None, length: int | None = 
         quick = _batched_stack(_Modular(m), stack, n)
         if quick is not None:
             return quick
+    elif stack is not None and _check_length(length, required=False) is None:
+        quick = _integer_stack(stack)
+        if quick is not None:
+            return quick
     factors, kind = _factors(seqs)
     m = _check_modulus(modulus, kind, "seqs hold")
     n = _check_length(length, required=False)
@@ -332,3 +336,47 @@ def _batched_stack(ring: _Modular, stack: np.ndarray, n: int | None) -> np.ndarr
     total = stack.shape[0] * (stack.shape[1] - 1) + 1 if n is None else n
     out = _batched_tree(ring, rows, n)
     return None if out is None else ring.finish(_place(out, 0, total))
+
+
+def _integer_stack(stack: np.ndarray) -> np.ndarray | None:
+    """:func:`product` over the integers of the rows of ``stack`` (no row with low- or
+    high-degree zeros, else None): the low levels of the tree, while ``||a||_1 ||b||_1 < 2^62``
+    bounds every product, as batched int64 calls (:func:`_int64_levels`), the rest by the heap."""
+    if stack.dtype.kind == "u" and stack.dtype.itemsize == 8:
+        return None
+    rows = stack.astype(np.int64)
+    if not (rows[:, 0].all() and rows[:, -1].all()):
+        return None
+    ring = _Integers()
+    total = rows.shape[0] * (rows.shape[1] - 1) + 1
+    norms = np.abs(rows.astype(np.float64)).sum(axis=1) * (1 + 2.0**-40)
+    bits = float(np.log2(np.maximum(norms, 1.0)).sum()) + 1
+    _check_chain(ring, total, bits, f"product(seqs) of {rows.shape[0]} factors")
+    level = _int64_levels(rows) if jit.state() == "compiled" else list(rows)
+    tree = _product_tree(ring, [ring.to_work(r) for r in level], None)
+    return ring.finish(_place(ring.from_work(tree), 0, total))
+
+
+def _int64_levels(rows: np.ndarray) -> list[np.ndarray]:
+    """Tree levels of exact int64 products, one :func:`ntt_batch.multiply_rows_exact` call each,
+    while the 1-norm bound of every product stays below ``2^62``; the partial products left."""
+    lengths = np.full(rows.shape[0], rows.shape[1], dtype=np.int64)
+    level = rows
+    while level.shape[0] > 1:
+        pairs = level.shape[0] // 2
+        norms = np.abs(level.astype(np.float64)).sum(axis=1) * (1 + 2.0**-40)
+        bound = float(np.max(norms[0:2 * pairs:2] * norms[1:2 * pairs:2]))
+        if bound >= 2.0**62:
+            break
+        products = ntt_batch.multiply_rows_exact(level[0:2 * pairs:2], level[1:2 * pairs:2],
+                                                 int(bound) + 1, as_int64=True)
+        new_lengths = lengths[0:2 * pairs:2] + lengths[1:2 * pairs:2] - 1
+        if rings._product_log is not None:
+            rings._product_log.extend([(1, 1, "batched", None)] * pairs)
+        if level.shape[0] % 2:
+            carry = np.zeros((1, products.shape[1]), dtype=np.int64)
+            carry[0, :level.shape[1]] = level[-1]
+            products = np.concatenate([products, carry])
+            new_lengths = np.append(new_lengths, lengths[-1])
+        level, lengths = products, new_lengths
+    return [row[:length] for row, length in zip(level, lengths.tolist(), strict=True)]
