@@ -1,6 +1,6 @@
 """Compiled NTT engine vs python-flint and vs the numpy engines; JIT costs reported apart.
 
-Run: python bench/compiled_bench.py [--quick | --division]  (markdown tables; ~3 minutes)
+Run: python bench/compiled_bench.py [--quick | --division | --cold]  (markdown; ~3 minutes)
 
 Ratios are polyconv / python-flint in the same process, best of several rounds (below 1:
 polyconv faster).  "multiply alone" times flint's product of ready nmod_poly objects against
@@ -62,13 +62,37 @@ def cold_costs() -> tuple[float, float]:
     return first, warm
 
 
+def fresh_process_product() -> tuple[float, float]:
+    """(a product of two 64-term int64 sequences in a new process, ``python -c "import numpy,
+    scipy.fft"``): wall seconds, best of three each (the compiled kernels' cache is warm; the
+    planner decides whether to load them)."""
+    code = ("import numpy as np, polyconv; a = np.arange(64); "
+            "polyconv.convolve(a, a[::-1].copy())")
+    base = "import numpy, scipy.fft"
+
+    def wall(text: str) -> float:
+        start = time.perf_counter()
+        subprocess.run([sys.executable, "-c", text], check=True, capture_output=True)
+        return time.perf_counter() - start
+
+    return min(wall(code) for _ in range(3)), min(wall(base) for _ in range(3))
+
+
 def main() -> None:
     quick = "--quick" in sys.argv
+    if "--cold" in sys.argv:  # the fresh-process lines alone
+        product, base = fresh_process_product()
+        print(f"fresh process, one 64 x 64 product: {product:.2f} s; "
+              f"'import numpy, scipy.fft': {base:.2f} s (ratio {product / base:.2f})")
+        return
     if "--division" in sys.argv:  # the division table alone
         division_table(np.random.default_rng(5))
         return
     first, warm = cold_costs()
     print(f"JIT: first compile {first:.2f} s, warm-cache load {warm:.2f} s (new processes)")
+    product, base = fresh_process_product()
+    print(f"fresh process, one 64 x 64 product: {product:.2f} s; "
+          f"'import numpy, scipy.fft': {base:.2f} s (ratio {product / base:.2f})")
     jit.kernels()
     rng = np.random.default_rng(1)
     sizes = range(6, 17 if quick else 21, 2)
