@@ -4,7 +4,9 @@
   every intermediate product to ``length`` when given.
 * :func:`product`: a balanced product tree built with a heap, always multiplying the two shortest
   sequences (the Huffman-tree order; von zur Gathen & Gerhard, *Modern Computer Algebra*, 3rd ed.,
-  section 10.1 for product trees).
+  section 10.1 for product trees).  Modulo ``m``, when the compiled kernels are ready (or worth
+  loading, :mod:`polyconv.engines.jit_state`), every level of the tree is one batched call of
+  :func:`polyconv.engines.ntt_batch.product_mod` instead of one call per product.
 
 Both refuse, before any product is formed, a result whose coefficient bits (bounded by the 1-norm,
 or by counting compositions when truncated) would not fit the memory budget.
@@ -19,7 +21,10 @@ from collections.abc import Iterable
 
 import numpy as np
 
+from ..engines import jit_state as jit
+from ..engines import ntt_batch
 from ..numerics.limits import max_abs
+from . import rings
 from .checks import (
     _check_chain,
     _check_exponent,
@@ -28,7 +33,13 @@ from .checks import (
     _combine,
     _sequence,
 )
-from .rings import _Integers, _nonzero_positions, _Ring, _ring_for
+from .rings import _Integers, _Modular, _nonzero_positions, _Ring, _ring_for
+
+#: Seconds one product costs through :func:`polyconv.convolve` at small sizes (planning,
+#: normalisation and shaping; measured 25-40 us on the development machine): what a batched tree
+#: saves per product, weighed against loading the kernels
+#: (:func:`polyconv.engines.jit_state.load_seconds`).
+_PER_CALL_SECONDS = 25e-6
 
 # ----------------------------------------------------------------------------- power
 
@@ -215,6 +226,17 @@ def product(seqs: Iterable, *, modulus: int | None = None, length: int | None = 
     >>> product([]).tolist()
     [1]
     """
+    stack = _uniform_stack(seqs)
+    if stack is not None and modulus is not None:
+        m = _check_modulus(modulus, "integer", "seqs hold")
+        n = _check_length(length, required=False)
+        quick = _batched_stack(_Modular(m), stack, n)
+        if quick is not None:
+            return quick
+    elif stack is not None and _check_length(length, required=False) is None:
+        quick = _integer_stack(stack)
+        if quick is not None:
+            return quick
     factors, kind = _factors(seqs)
     m = _check_modulus(modulus, kind, "seqs hold")
     n = _check_length(length, required=False)
@@ -249,6 +271,9 @@ def _factors(seqs) -> tuple[list[np.ndarray], str]:
 
 
 def _product_tree(ring: _Ring, factors: list[np.ndarray], n: int | None) -> np.ndarray:
+    batched = _batched_tree(ring, factors, n)
+    if batched is not None:
+        return batched
     counter = itertools.count()
     heap = [(f.shape[0], next(counter), f) for f in factors]
     heapq.heapify(heap)
@@ -258,3 +283,101 @@ def _product_tree(ring: _Ring, factors: list[np.ndarray], n: int | None) -> np.n
         z = ring.mul_work(x, y, length=_cut(n, x.shape[0] + y.shape[0] - 1))
         heapq.heappush(heap, (z.shape[0], next(counter), z))
     return heap[0][2]
+
+
+def _batched_tree(ring: _Ring, factors, n: int | None) -> np.ndarray | None:
+    """The product modulo ``m`` by :func:`polyconv.engines.ntt_batch.product_mod` (one compiled
+    call per tree level), or None: not modular, too few factors to pay loading the kernels, the
+    kernels unavailable here, or a modulus too wide for the NTT primes."""
+    if not isinstance(ring, _Modular) or len(factors) < 3:
+        return None
+    state = jit.state()
+    saved = _PER_CALL_SECONDS * (len(factors) - 1)
+    if state == "unavailable" or (state != "compiled" and saved < jit.load_seconds()):
+        return None
+    try:
+        out = ntt_batch.product_mod(factors, ring.modulus, n)
+    except (jit.JitUnavailableError, ValueError):  # no kernels here / primes not enough
+        return None
+    if rings._product_log is not None:  # one record per product, as the heap would log
+        rings._product_log.extend([(1, 1, "batched", n)] * (len(factors) - 1))
+    return out
+
+
+def _uniform_stack(seqs) -> np.ndarray | None:
+    """The factors as one ``(k, L)`` integer array when they are already numpy integer arrays of
+    one length (a list/tuple of 1-D arrays or a 2-D array), so that checking, reducing and
+    trimming run once over the stack; None otherwise (the general path checks each factor)."""
+    if isinstance(seqs, np.ndarray):
+        ok = seqs.ndim == 2 and seqs.dtype.kind in "iu" and seqs.shape[0] >= 3 and seqs.shape[1]
+        return seqs if ok else None
+    if not isinstance(seqs, (list, tuple)) or len(seqs) < 3:
+        return None
+    first = seqs[0]
+    if not isinstance(first, np.ndarray) or first.ndim != 1 or not first.shape[0]:
+        return None
+    shape, dtype = first.shape, first.dtype
+    if dtype.kind not in "iu" or not all(
+            isinstance(f, np.ndarray) and f.shape == shape and f.dtype == dtype for f in seqs):
+        return None
+    return np.stack(seqs)
+
+
+def _batched_stack(ring: _Modular, stack: np.ndarray, n: int | None) -> np.ndarray | None:
+    """:func:`product` of the rows of ``stack`` modulo ``ring.modulus`` by the batched tree,
+    when no row has low- or high-degree zeros to trim (else None: the general path trims)."""
+    m = ring.modulus
+    if m >= 2**62 or (stack.dtype.kind == "u" and stack.dtype.itemsize == 8):
+        return None
+    rows = np.mod(stack.astype(np.int64), np.int64(m))
+    if n is not None:
+        rows = rows[:, :n]
+    if not (rows[:, 0].all() and rows[:, -1].all()):
+        return None
+    total = stack.shape[0] * (stack.shape[1] - 1) + 1 if n is None else n
+    out = _batched_tree(ring, rows, n)
+    return None if out is None else ring.finish(_place(out, 0, total))
+
+
+def _integer_stack(stack: np.ndarray) -> np.ndarray | None:
+    """:func:`product` over the integers of the rows of ``stack`` (no row with low- or
+    high-degree zeros, else None): the low levels of the tree, while ``||a||_1 ||b||_1 < 2^62``
+    bounds every product, as batched int64 calls (:func:`_int64_levels`), the rest by the heap."""
+    if stack.dtype.kind == "u" and stack.dtype.itemsize == 8:
+        return None
+    rows = stack.astype(np.int64)
+    if not (rows[:, 0].all() and rows[:, -1].all()):
+        return None
+    ring = _Integers()
+    total = rows.shape[0] * (rows.shape[1] - 1) + 1
+    norms = np.abs(rows.astype(np.float64)).sum(axis=1) * (1 + 2.0**-40)
+    bits = float(np.log2(np.maximum(norms, 1.0)).sum()) + 1
+    _check_chain(ring, total, bits, f"product(seqs) of {rows.shape[0]} factors")
+    level = _int64_levels(rows) if jit.state() == "compiled" else list(rows)
+    tree = _product_tree(ring, [ring.to_work(r) for r in level], None)
+    return ring.finish(_place(ring.from_work(tree), 0, total))
+
+
+def _int64_levels(rows: np.ndarray) -> list[np.ndarray]:
+    """Tree levels of exact int64 products, one :func:`ntt_batch.multiply_rows_exact` call each,
+    while the 1-norm bound of every product stays below ``2^62``; the partial products left."""
+    lengths = np.full(rows.shape[0], rows.shape[1], dtype=np.int64)
+    level = rows
+    while level.shape[0] > 1:
+        pairs = level.shape[0] // 2
+        norms = np.abs(level.astype(np.float64)).sum(axis=1) * (1 + 2.0**-40)
+        bound = float(np.max(norms[0:2 * pairs:2] * norms[1:2 * pairs:2]))
+        if bound >= 2.0**62:
+            break
+        products = ntt_batch.multiply_rows_exact(level[0:2 * pairs:2], level[1:2 * pairs:2],
+                                                 int(bound) + 1, as_int64=True)
+        new_lengths = lengths[0:2 * pairs:2] + lengths[1:2 * pairs:2] - 1
+        if rings._product_log is not None:
+            rings._product_log.extend([(1, 1, "batched", None)] * pairs)
+        if level.shape[0] % 2:
+            carry = np.zeros((1, products.shape[1]), dtype=np.int64)
+            carry[0, :level.shape[1]] = level[-1]
+            products = np.concatenate([products, carry])
+            new_lengths = np.append(new_lengths, lengths[-1])
+        level, lengths = products, new_lengths
+    return [row[:length] for row, length in zip(level, lengths.tolist(), strict=True)]
