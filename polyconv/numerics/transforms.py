@@ -5,13 +5,13 @@ be imported: the lean float recipe (two real transforms, a product, one inverse)
 0.53-0.63x scipy.fft's time at ``N = 2^12 .. 2^16``, 0.6-0.75x at ``2^18 .. 2^22``, about even at
 ``2^10`` and 1.3-1.6x at ``2^6 .. 2^8`` (a microsecond more per call; bench/RESULTS.md).  When
 ducc0 cannot be imported, scipy's compiled pocketfft binding is called directly (public
-``scipy.fft`` functions spend about 3 us per call on dispatch), after a self-test at import
-against the public functions; failing that, the public functions.
+``scipy.fft`` functions spend about 3 us per call on dispatch); failing that, the public
+functions.  Either library passes a self-test at import against numpy.fft; scipy is imported
+only when ducc0 is not used (it costs about 0.3 s).
 
 :data:`LIBRARY` and :data:`LIBRARY_VERSION` name what runs; error certificates
 (:mod:`polyconv.numerics.bounds`) are issued only for a library and version range whose twiddle
-error
-was measured.  No other module asks which library is present.
+error was measured.  No other module asks which library is present.
 
 All functions transform along one axis of an array that is *already* at the transform length
 (the caller zero pads), and return new arrays.
@@ -22,20 +22,16 @@ from __future__ import annotations
 import os
 
 import numpy as np
-from scipy import fft as _sfft
-
-try:  # the compiled binding behind scipy.fft (private: guarded and self-tested below)
-    from scipy.fft._pocketfft import pypocketfft as _pp
-except ImportError:  # pragma: no cover - depends on scipy's layout
-    _pp = None
 
 try:
     if os.environ.get("POLYCONV_FFT", "").strip().lower() == "scipy":
         raise ImportError("POLYCONV_FFT=scipy")
     import ducc0 as _ducc0
     from ducc0 import fft as _dfft
-except ImportError:  # fallback: scipy's pocketfft
+except ImportError:  # fallback: scipy's pocketfft (scipy is imported only then: ~0.3 s)
     _ducc0 = _dfft = None
+
+_sfft = _pp = None  # scipy.fft and its binding, loaded by _load_scipy() on the fallback path
 
 
 def _rfft_public(x, axis, threads):
@@ -94,16 +90,17 @@ def _ifft_ducc(spec, axis, threads):
 
 
 def _agrees(kernels) -> bool:
-    """The kernels against scipy's public functions on a small batch (any failure: no)."""
+    """The kernels against numpy.fft (an independent reference) on a small batch (any failure:
+    no)."""
     try:
         rfft_k, irfft_k, fft_k, ifft_k = kernels
         x = np.arange(1.0, 13.0).reshape(2, 6) ** 0.5
-        ok = np.allclose(rfft_k(x, -1, 1), _rfft_public(x, -1, 1))
-        spec = _rfft_public(x, -1, 1)
-        ok &= np.allclose(irfft_k(spec.copy(), 6, -1, 1), _irfft_public(spec.copy(), 6, -1, 1))
+        ok = np.allclose(rfft_k(x, -1, 1), np.fft.rfft(x, axis=-1))
+        spec = np.fft.rfft(x, axis=-1)
+        ok &= np.allclose(irfft_k(spec.copy(), 6, -1, 1), np.fft.irfft(spec, 6, axis=-1))
         z = x + 1j * x[::-1]
-        ok &= np.allclose(fft_k(z, -1, 1), _fft_public(z, -1, 1))
-        ok &= np.allclose(ifft_k(z.copy(), -1, 1), _ifft_public(z.copy(), -1, 1))
+        ok &= np.allclose(fft_k(z, -1, 1), np.fft.fft(z, axis=-1))
+        ok &= np.allclose(ifft_k(z.copy(), -1, 1), np.fft.ifft(z, axis=-1))
         return bool(ok)
     except Exception:  # noqa: BLE001 - any failure means: use another library
         return False
@@ -112,18 +109,31 @@ def _agrees(kernels) -> bool:
 _DUCC = (_rfft_ducc, _irfft_ducc, _fft_ducc, _ifft_ducc)
 _DIRECT = (_rfft_direct, _irfft_direct, _fft_direct, _ifft_direct)
 
+def _load_scipy() -> None:
+    """Import scipy's FFT (and its compiled binding) for the fallback path."""
+    global _sfft, _pp
+    from scipy import fft as _sfft
+
+    try:  # the compiled binding behind scipy.fft (private: guarded and self-tested below)
+        from scipy.fft._pocketfft import pypocketfft as _pp
+    except ImportError:  # pragma: no cover - depends on scipy's layout
+        _pp = None
+
+
 if _dfft is not None and _agrees(_DUCC):
     LIBRARY, LIBRARY_VERSION = "ducc0", _ducc0.__version__
     BACKEND = f"ducc0 {LIBRARY_VERSION}"
     _kernels = _DUCC
-elif _pp is not None and _agrees(_DIRECT):
-    LIBRARY, LIBRARY_VERSION = "pocketfft-scipy", __import__("scipy").__version__
-    BACKEND = f"pocketfft (scipy {LIBRARY_VERSION}'s compiled binding, called directly)"
-    _kernels = _DIRECT
-else:  # pragma: no cover - depends on scipy's layout
-    LIBRARY, LIBRARY_VERSION = "scipy.fft", __import__("scipy").__version__
-    BACKEND = f"scipy.fft {LIBRARY_VERSION}"
-    _kernels = (_rfft_public, _irfft_public, _fft_public, _ifft_public)
+else:  # ducc0 missing or wrong here: scipy's pocketfft
+    _load_scipy()
+    if _pp is not None and _agrees(_DIRECT):
+        LIBRARY, LIBRARY_VERSION = "pocketfft-scipy", __import__("scipy").__version__
+        BACKEND = f"pocketfft (scipy {LIBRARY_VERSION}'s compiled binding, called directly)"
+        _kernels = _DIRECT
+    else:  # pragma: no cover - depends on scipy's layout
+        LIBRARY, LIBRARY_VERSION = "scipy.fft", __import__("scipy").__version__
+        BACKEND = f"scipy.fft {LIBRARY_VERSION}"
+        _kernels = (_rfft_public, _irfft_public, _fft_public, _ifft_public)
 
 #: On one thread, scipy's pocketfft transforms a batch of rows several at a time (SIMD across
 #: rows) with a scratch buffer of a few rows; once that buffer leaves the cache, row-by-row
