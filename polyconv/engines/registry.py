@@ -11,7 +11,16 @@ constants in the cost table and its calibration.
 
 from __future__ import annotations
 
-from . import direct, exact_direct, exact_fft, fft, kronecker, ntt, ntt_compiled, overlap_add
+from . import (
+    direct,
+    exact_direct,
+    exact_fft,
+    fft,
+    kronecker,
+    ntt,
+    ntt_compiled_plan,
+    overlap_add,
+)
 from ._common import Engine
 
 #: Engines in the order plans list them on a tie (float first, then exact).
@@ -24,7 +33,7 @@ REGISTRY: dict[str, Engine] = {e.name: e for e in (
     exact_fft.LIMBS,
     kronecker.ENGINE,
     ntt.ENGINE,
-    ntt_compiled.ENGINE,
+    ntt_compiled_plan.ENGINE,
 )}
 
 FLOAT_ENGINES = tuple(name for name, e in REGISTRY.items() if not e.exact)

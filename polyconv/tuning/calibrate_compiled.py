@@ -1,7 +1,7 @@
 """Measure the compiled NTT engine and fit its constants (``exact.ntt_compiled``, ``exact.jit``).
 
-Formula of :func:`polyconv.engines.ntt_compiled.option`; constants fitted to timings of the engine
-itself:
+Formula of :func:`polyconv.engines.ntt_compiled_plan.option`; constants fitted to timings of
+the engine itself:
 
 * ``overhead``, ``per_nlogn``, ``per_point``: one-prime products, ``c0 + c N lg N + c_pt N``;
 * ``per_digit``: Garner to int64 over ``k`` primes, per ``k^2`` and output coefficient;

@@ -1,0 +1,121 @@
+"""The compiled NTT engine's registry record: when it applies, what it costs, what plans say.
+
+Its kernel is :mod:`polyconv.engines.ntt_compiled` (kept apart so that module stays the
+algorithm).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from . import jit_state
+from ._common import INTEGER_KINDS, Engine, Job, Option
+from .ntt_compiled import KERNEL_MODULUS_LIMIT, is_ntt_prime, max_length, prime_count, run_planned
+
+# The prediction charges the state of the kernels (:mod:`polyconv.engines.jit_state`): nothing
+# once they are compiled in this process, a warm-cache load or a whole compile otherwise, so a
+# one-off small product never waits for the compiler while a product that outweighs it may pay
+# it.
+#
+# Cost (constants in the cost table's ``exact.ntt_compiled`` section, ``N`` the power-of-two
+# transform length, ``k`` primes, ``C`` output coefficients, per batch row)::
+#
+#     t = jit + c0 + rows (k (c_nlogn N lg N + c_pt N) + c_digit k^2 C + c_obj C [objects out]
+#                           + c_in (n1 + n2) [operands above int64])
+#
+# Primes: ``P > 2 B`` with ``B = min(min(n1, n2) max|a| max|b|, ||a||_2 ||b||_2)`` (Cauchy-Schwarz;
+# DESIGN.md section 5) for exact products; ``P > min(n1, n2) (m - 1)^2`` modulo ``m`` (one prime
+# when ``m`` itself is an NTT prime of the table).
+
+NAME = "ntt-compiled"
+
+#: Defaults when the cost table has no ``ntt_compiled`` section (measured on the development
+#: machine with bench/compiled_bench.py, busy: see bench/RESULTS.md).
+DEFAULTS = {"overhead": 6e-6, "per_nlogn": 1.0e-9, "per_point": 2.0e-9, "per_digit": 1.5e-9,
+            "per_object_out": 1.5e-7, "per_object_in": 2.5e-7}
+JIT_DEFAULTS = {"load_seconds": 0.9, "compile_seconds": 14.0}
+
+
+def product_bound(facts) -> int:
+    """``B``: the smaller of ``min(n1, n2) max|a| max|b|`` and ``||a||_2 ||b||_2`` (rounded up)."""
+    bound = facts.bound
+    if math.isfinite(facts.norm_a) and math.isfinite(facts.norm_b):
+        cs = math.ceil(math.nextafter(facts.norm_a * facts.norm_b * (1 + 2**-40), math.inf))
+        bound = min(bound, cs)
+    return bound
+
+
+def _compiled_option(facts, exact_costs: dict, rows: int, n_full: int, out_len: int):
+    """``(seconds, note, settings)`` for the compiled NTT engine, or None if it cannot run here.
+
+    ``settings`` holds ``ntt_bound`` (the bound the primes are chosen from; 0 for a modulus).
+    """
+    state = jit_state.state()
+    if state == "unavailable":
+        return None
+    m = facts.modulus
+    if m is None:
+        bound = product_bound(facts)
+        k = prime_count(bound, n_full)
+        settings = {"ntt_bound": bound}
+        objects_out = bound >= 2**63
+    elif is_ntt_prime(m) and n_full <= max_length(m):
+        k, settings, objects_out = 1, {"ntt_bound": 0}, False
+    else:
+        k = prime_count(min(facts.n1, facts.n2) * (m - 1) ** 2, n_full, signed=False)
+        settings, objects_out = {"ntt_bound": 0}, m >= KERNEL_MODULUS_LIMIT
+    if k == 0:
+        return None
+    c = {**DEFAULTS, **exact_costs.get("ntt_compiled", {})}
+    j = {**JIT_DEFAULTS, **exact_costs.get("jit", {})}
+    charge = {"compiled": 0.0, "cached": j["load_seconds"]}.get(state, j["compile_seconds"])
+    per_row = k * (c["per_nlogn"] * n_full * max(1, math.log2(n_full)) + c["per_point"] * n_full)
+    per_row += c["per_digit"] * k * k * out_len if k > 1 else 0.0
+    if objects_out:
+        per_row += c["per_object_out"] * out_len
+    if max(facts.max_a, facts.max_b) >= 2**63:
+        per_row += c["per_object_in"] * (facts.n1 + facts.n2)
+    seconds = charge + c["overhead"] + rows * per_row
+    what = "one prime" if k == 1 else f"{k} primes and Garner CRT"
+    note = f"compiled NTT modulo {what}; {jit_state.reason()}"
+    if charge:
+        note += f" ({charge:.2g} s charged)"
+    return seconds, note, settings
+
+
+def remark(chosen: str, offered: bool) -> str:
+    """What plan() adds when the compiled engine was not chosen (its state, and why)."""
+    if chosen == NAME:
+        return ""
+    state = jit_state.state()
+    if state == "unavailable":
+        return f"; compiled engines unavailable: {jit_state.reason()}"
+    if not offered:
+        return ""
+    if state == "compiled":
+        return "; compiled NTT predicted slower"
+    return f"; compiled NTT not chosen: {jit_state.reason()}"
+
+
+def option(job: Job) -> Option | str:
+    """The compiled NTT's offer, or why it cannot run here."""
+    if jit_state.state() == "unavailable":
+        return f"compiled engines unavailable: {jit_state.reason()}"
+    offer = _compiled_option(job.facts, job.costs["exact"], job.rows, job.n_full, job.out_len)
+    if offer is None:
+        return ("the coefficient bound needs more NTT primes than the compiled kernels have "
+                "for this length")
+    seconds, note, settings = offer
+    return Option(seconds, "construction", note, settings)
+
+
+def run_engine(plan, a: np.ndarray, b: np.ndarray, keep: int | None) -> np.ndarray | None:
+    """The plan's product of two rows; None when the kernels turned out not to load."""
+    return run_planned(a, b, plan.modulus, plan.setting("ntt_bound"), keep,
+                       plan.setting("product_int64", False))
+
+
+ENGINE = Engine(NAME, INTEGER_KINDS, option, run_engine, exact=True, reduces_modulus=True,
+                when_unavailable="kronecker", remark=remark)
