@@ -58,6 +58,14 @@ def slot_bound(a: np.ndarray, b: np.ndarray) -> int:
     return max(min(a.shape[0], b.shape[0]) * max_a * max_b, max_a, max_b) + 1
 
 
+def _leading(a: np.ndarray, b: np.ndarray, keep: int | None):
+    """Operands cut to what the first ``keep`` coefficients read, and how many are computed."""
+    if keep is not None:
+        a, b = a[:keep], b[:keep]
+    count = a.shape[0] + b.shape[0] - 1
+    return a, b, count if keep is None else min(count, keep)
+
+
 def convolve_kronecker(a: np.ndarray, b: np.ndarray, keep: int | None = None, *,
                        as_int64: bool = False, two_point: bool | None = None,
                        threads: int = 1) -> np.ndarray:
@@ -86,11 +94,7 @@ def convolve_kronecker(a: np.ndarray, b: np.ndarray, keep: int | None = None, *,
         Length ``min(keep, n1 + n2 - 1)``: object array of Python ints, or int64 if ``as_int64``.
     """
     square = b is a
-    if keep is not None:
-        a, b = a[:keep], b[:keep]
-    count = a.shape[0] + b.shape[0] - 1
-    if keep is not None:
-        count = min(count, keep)
+    a, b, count = _leading(a, b, keep)
     width = slot_width(slot_bound(a, b))
     if two_point is None:
         two_point = uses_two_point(width, a.shape[0], b.shape[0], threads)
@@ -166,11 +170,7 @@ def multiply_rows(a: np.ndarray, b: np.ndarray, keep: int | None = None, *,
         ``(min(keep, n1 + n2 - 1), w)`` uint8 byte rows, trimmed to the narrowest width.
     """
     square = b is a
-    if keep is not None:
-        a, b = a[:keep], b[:keep]
-    count = a.shape[0] + b.shape[0] - 1
-    if keep is not None:
-        count = min(count, keep)
+    a, b, count = _leading(a, b, keep)
     bits_a, bits_b = bits if bits is not None else (_intpack.row_bits(a), _intpack.row_bits(b))
     bound = min(a.shape[0], b.shape[0]) << (bits_a + bits_b)
     width = max(slot_width(bound), a.shape[1], b.shape[1])
