@@ -29,38 +29,7 @@ from ..engines.overlap_add import convolve_overlap_add
 from .calibrate_exact import measure_exact
 from .costs import default_costs
 from .threads import configured_threads
-
-
-def best_time(fn: Callable[[], object], budget: float = 0.05, repeats: int = 5) -> float:
-    """Best-of-``repeats`` seconds per call of ``fn()``; each repeat loops ~``budget / repeats``."""
-    fn()
-    start = time.perf_counter()
-    fn()
-    one = max(time.perf_counter() - start, 1e-7)
-    loops = max(1, int(budget / repeats / one))
-    best = math.inf
-    for _ in range(repeats):
-        start = time.perf_counter()
-        for _ in range(loops):
-            fn()
-        best = min(best, (time.perf_counter() - start) / loops)
-    return best
-
-
-def _fit_relative(rows: list[list[float]], times: list[float]) -> list[float]:
-    """Non-negative least squares on relative error (columns dropped while a weight is negative)."""
-    x = np.asarray(rows, dtype=float)
-    t = np.asarray(times, dtype=float)
-    active = list(range(x.shape[1]))
-    coef = np.zeros(x.shape[1])
-    while active:
-        w = x[:, active] / t[:, None]
-        sol, *_ = np.linalg.lstsq(w, np.ones_like(t), rcond=None)
-        if (sol >= 0).all():
-            coef[active] = sol
-            break
-        active.pop(int(np.argmin(sol)))
-    return [float(c) for c in coef]
+from .timing import best_time, fit_relative
 
 
 def measure(quick: bool = False, progress: Callable[[str], None] | None = None) -> dict:
@@ -95,7 +64,7 @@ def measure(quick: bool = False, progress: Callable[[str], None] | None = None) 
             continue
         times.append(t)
         rows.append([1.0, n1 * n2, n1 + n2])
-    c0, cmac, cout = _fit_relative(rows, times)
+    c0, cmac, cout = fit_relative(rows, times)
     # large arrays: same multiply-add cost, a per-output cost fitted on them alone
     per_large = [max(t - c0 - cmac * n1 * n2, 0.0) / (n1 + n2) for n1, n2, t in large]
     table["direct"] = {"overhead": c0, "per_mac": cmac, "per_output": cout,
@@ -108,7 +77,7 @@ def measure(quick: bool = False, progress: Callable[[str], None] | None = None) 
         x, y = rng.standard_normal((batch, n)), rng.standard_normal((batch, m))
         times.append(best_time(lambda x=x, y=y: convolve_direct(x, y), budget))
         rows.append([1.0, m, m * batch * n])
-    c0, cstep, celem = _fit_relative(rows, times)
+    c0, cstep, celem = fit_relative(rows, times)
     table["direct_batch"] = {"overhead": c0, "per_step": cstep, "per_element": celem}
 
     say("fft engine")
@@ -166,11 +135,11 @@ def measure(quick: bool = False, progress: Callable[[str], None] | None = None) 
             continue
         times.append(rest)
         rows.append([1.0, blocks * n_fft])
-    c0, cpt = _fit_relative(rows, times)
+    c0, cpt = fit_relative(rows, times)
     # large arrays: what the in-cache model leaves unexplained, per sample (memory traffic)
     per_large = [max(r - c0 - cpt * points, 0.0) / n for n, points, r in large]
     table["overlap_add"] = {"overhead": c0, "per_point": cpt,
                             "per_sample_large": float(np.median(per_large)) if per_large else 0.0}
-    table["exact"] = measure_exact(table, quick, best_time, _fit_relative, say)
+    table["exact"] = measure_exact(table, quick, best_time, fit_relative, say)
     say("done")
     return table
