@@ -12,6 +12,8 @@ from __future__ import annotations
 import gmpy2
 import numpy as np
 
+from ..numerics.limits import INT64_LIMIT
+
 _FIXED = "iub"
 
 
@@ -265,7 +267,7 @@ def reduce_words_wide(words: np.ndarray, modulus: int) -> np.ndarray:
 def values_to_rows(x: np.ndarray) -> np.ndarray:
     """Byte rows of a 1-D int64, uint64, bool or object array (the narrowest width holding all)."""
     n = x.shape[0]
-    if x.dtype.kind in _FIXED and (x.dtype.kind != "u" or n == 0 or int(x.max()) < 2**63):
+    if x.dtype.kind in _FIXED and (x.dtype.kind != "u" or n == 0 or int(x.max()) < INT64_LIMIT):
         rows = np.ascontiguousarray(x, dtype="<i8").view(np.uint8).reshape(n, 8)
         return trim_rows(rows)
     values = [int(v) for v in x.tolist()]

@@ -235,7 +235,7 @@ def convolve_limbs_mod(a: np.ndarray, b: np.ndarray, modulus: int, limb_bits: in
     acc = np.zeros(parts.shape[1], dtype=np.uint64)
     m64 = np.int64(modulus)
     for j in range(parts.shape[0]):
-        if modulus > 2**53:
+        if modulus > FLOAT_EXACT_LIMIT:
             residue = np.where(parts[j] < 0, parts[j] + m64, parts[j])
         else:
             residue = np.remainder(parts[j], m64)

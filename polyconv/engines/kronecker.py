@@ -29,7 +29,7 @@ from collections.abc import Callable
 import gmpy2
 import numpy as np
 
-from ..numerics.limits import max_abs
+from ..numerics.limits import magnitude_fits_int64, max_abs, residues_fit_int64
 from . import _intpack
 from ._common import INTEGER_KINDS, Engine, Job, Option, gmp_rate
 from ._threads import gmp_products
@@ -188,7 +188,7 @@ def multiply_rows(a: np.ndarray, b: np.ndarray, keep: int | None = None, *,
 
 def reduce_operand(x: np.ndarray, modulus: int) -> np.ndarray:
     """``x mod modulus`` in ``[0, modulus)``: int64/uint64 when they hold it, else objects."""
-    if x.dtype.kind == "i" and modulus < 2**63:
+    if x.dtype.kind == "i" and magnitude_fits_int64(modulus):
         return np.mod(x, np.int64(modulus))
     if x.dtype.kind == "u" and modulus <= 2**64:
         return x if modulus == 2**64 else np.mod(x, np.uint64(modulus))
@@ -245,14 +245,14 @@ def convolve_kronecker_mod(a: np.ndarray, b: np.ndarray, modulus: int,
     if modulus & (modulus - 1) == 0 and modulus <= 2**64:  # 2^e: the low e bits of each slot
         words = _intpack.words_from_rows(rows[:, :8])[:, 0]
         low = words & np.uint64(modulus - 1)
-        return low.astype(np.int64 if modulus <= 2**63 else object)
+        return low.astype(np.int64 if residues_fit_int64(modulus) else object)
     if modulus < 2**32:
         return _intpack.reduce_words(_intpack.words_from_rows(rows), modulus).astype(np.int64)
     if modulus < _intpack.WIDE_MODULUS_LIMIT and modulus % 2 == 1:
         words = _intpack.words_from_rows(rows)
         return _intpack.reduce_words_wide(words, modulus).astype(np.int64)
     out = np.mod(_intpack.rows_to_ints(rows, signed=False).astype(object), modulus)
-    return out.astype(np.int64) if modulus <= 2**63 else out
+    return out.astype(np.int64) if residues_fit_int64(modulus) else out
 
 
 # ----------------------------------------------------------------------------- registry record

@@ -25,6 +25,7 @@ from functools import lru_cache
 
 import numpy as np
 
+from ..numerics.limits import magnitude_fits_int64
 from . import _intpack
 from ._common import INTEGER_KINDS, Engine, Job, Option, powers_mod
 
@@ -284,7 +285,7 @@ def garner(residues: list[np.ndarray], primes: tuple[int, ...],
         total *= p
     upper = _above_half(digits, primes, total)
     if as_int64 is None:
-        as_int64 = total // 2 < 2**63
+        as_int64 = magnitude_fits_int64(total // 2)
     if as_int64:
         value = np.zeros_like(digits[0])
         for t, p in zip(reversed(digits), reversed(primes), strict=True):

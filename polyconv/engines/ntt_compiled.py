@@ -26,6 +26,7 @@ from functools import lru_cache
 
 import numpy as np
 
+from ..numerics.limits import INT64_LIMIT, magnitude_fits_int64, residues_fit_int64
 from . import _intpack, jit_state
 from ._common import powers_mod
 
@@ -193,7 +194,7 @@ def _count(a: np.ndarray, b: np.ndarray, keep: int | None) -> int:
 
 def _residue_rows(x: np.ndarray, primes: tuple[int, ...]) -> np.ndarray:
     """``x`` as int64 (when it fits) or as a ``(len(primes), n)`` matrix of residues."""
-    if x.dtype.kind in "iub" and (x.dtype.kind != "u" or x.size == 0 or int(x.max()) < 2**63):
+    if x.dtype.kind in "iub" and (x.dtype.kind != "u" or x.size == 0 or int(x.max()) < INT64_LIMIT):
         return _as_int64(x)
     rows = _intpack.values_to_rows(x)
     if not (rows.flags.c_contiguous and rows.flags.writeable):  # the kernel takes writable C rows
@@ -258,7 +259,7 @@ def convolve_exact(a: np.ndarray, b: np.ndarray, bound: int, keep: int | None = 
     rb = ra if b is a else _residue_rows(b, primes)
     res = multiply_mod_primes(ra, rb, primes, count)
     if as_int64 is None:
-        as_int64 = bound < 2**63
+        as_int64 = magnitude_fits_int64(bound)
     return recombine(res, primes, as_int64)
 
 
@@ -286,7 +287,7 @@ def convolve_mod(a: np.ndarray, b: np.ndarray, m: int, keep: int | None = None) 
     values = recombine(res, primes, as_int64=False)
     total = math.prod(primes)
     values = np.where(values < 0, values + total, values) % m
-    return values.astype(np.int64) if m <= 2**63 else values
+    return values.astype(np.int64) if residues_fit_int64(m) else values
 
 
 def _kernels():

@@ -10,6 +10,7 @@ import math
 
 import numpy as np
 
+from ..numerics.limits import magnitude_fits_int64
 from . import jit_state
 from ._common import INTEGER_KINDS, Engine, Job, Option
 from .ntt_compiled import KERNEL_MODULUS_LIMIT, is_ntt_prime, max_length, prime_count, run_planned
@@ -60,7 +61,7 @@ def _compiled_option(facts, exact_costs: dict, rows: int, n_full: int, out_len: 
         bound = product_bound(facts)
         k = prime_count(bound, n_full)
         settings = {"ntt_bound": bound}
-        objects_out = bound >= 2**63
+        objects_out = not magnitude_fits_int64(bound)
     elif is_ntt_prime(m) and n_full <= max_length(m):
         k, settings, objects_out = 1, {"ntt_bound": 0}, False
     else:
@@ -75,7 +76,7 @@ def _compiled_option(facts, exact_costs: dict, rows: int, n_full: int, out_len: 
     per_row += c["per_digit"] * k * k * out_len if k > 1 else 0.0
     if objects_out:
         per_row += c["per_object_out"] * out_len
-    if max(facts.max_a, facts.max_b) >= 2**63:
+    if not magnitude_fits_int64(max(facts.max_a, facts.max_b)):
         per_row += c["per_object_in"] * (facts.n1 + facts.n2)
     seconds = charge + c["overhead"] + rows * per_row
     what = "one prime" if k == 1 else f"{k} primes and Garner CRT"
