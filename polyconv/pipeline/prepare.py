@@ -45,11 +45,26 @@ def prepare(a, b, mode, method, modulus, length, axis):
                           mode, method, keep, facts)
         bits = (mod - 1).bit_length() if mod is not None else facts.bound.bit_length() + 1
     else:
+        for arr, name in ((x, "a"), (y, "b")):
+            if arr.dtype == object:  # Python ints among floats: each must fit a float64
+                _float_operand(arr, np.dtype(np.float64), name)
         the_plan = choose(pair.kind, n1, n2, x.shape[:-1], y.shape[:-1],
                                    pair.batch_shape, mode, method, keep)
         bits = 0
     check_budget(the_plan, pair.kind, bits, length)
     return pair, x, y, length, the_plan
+
+
+def _float_operand(x: np.ndarray, work: np.dtype, name: str) -> np.ndarray:
+    """``x`` in the float work dtype; a Python int beyond float64's range (|v| >= 2^1024) among
+    floats is refused by name (numpy would raise a bare OverflowError).  (Branch hardening's fix,
+    applied here where the pipeline now lives.)"""
+    try:
+        return x.astype(work, copy=False)
+    except OverflowError:
+        raise ValueError(f"{name} holds an integer too large for floating point (|value| >= "
+                         "2^1024) while the product is in floating point (an operand holds "
+                         "floats); pass integers only for an exact product") from None
 
 
 #: Transform-sized arrays an FFT product holds at once (two spectra and the inverse transform,
