@@ -187,10 +187,10 @@ class NpyWriter(AtomicFile):
 
     def __init__(self, path, dtype: np.dtype, length: int, *, sync: bool = True):
         super().__init__(path, sync=sync)
-        self.dtype = np.dtype(dtype)
-        self.length = length
-        self.written = 0
-        try:
+        try:  # from here on the temporary exists: any exception (a signal too) removes it
+            self.dtype = np.dtype(dtype)
+            self.length = length
+            self.written = 0
             header = io.BytesIO()
             np.lib.format.write_array_header_1_0(header, {
                 "descr": np.lib.format.dtype_to_descr(self.dtype),
