@@ -10,6 +10,7 @@ quotient (divide and conquer), so every product has the true sizes of its operan
 
 from __future__ import annotations
 
+import gmpy2
 import numpy as np
 
 from ..bounds import max_abs
@@ -283,12 +284,16 @@ def _quotient_halving(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     operands at their true sizes, so growing quotients cost what their coefficients hold."""
     d = b.shape[0] - 1
     qlen = a.shape[0] - d
-    rev_q = _halve(a[::-1][:qlen].copy(), b[::-1].copy(), qlen, _Integers())
-    return rev_q[::-1].copy()
+    rev_b = np.array([gmpy2.mpz(int(v)) for v in b[::-1].tolist()], dtype=object)
+    rev_q = _halve(a[::-1][:qlen].copy(), rev_b, qlen, _Integers())
+    out = np.empty(qlen, dtype=object)
+    out[:] = [int(v) for v in rev_q[::-1].tolist()]  # Python ints out, as everywhere
+    return out
 
 
 def _halve(top: np.ndarray, rev_b: np.ndarray, m: int, integers: _Integers) -> np.ndarray:
-    """``top / rev_b mod x^m`` exactly (``rev_b[0] = 1``), as Python ints."""
+    """``top / rev_b mod x^m`` exactly (``rev_b[0] = 1``; gmpy2.mpz entries, whose products
+    of a wide by a narrow integer the base-case recurrence does in GMP)."""
     if m <= _HALVING_BASE:
         q = np.empty(m, dtype=object)
         tail = rev_b[1:]
