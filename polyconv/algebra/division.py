@@ -10,6 +10,7 @@ quotient (divide and conquer), so every product has the true sizes of its operan
 
 from __future__ import annotations
 
+import gmpy2
 import numpy as np
 
 from ..numerics.limits import max_abs
@@ -193,7 +194,7 @@ def _divmod_integers(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarr
     # the quotient's coefficients are typically about |a| / |b| (a = q b + r with random q, b:
     # |a| ~ sqrt(n) |q| |b|); 4 bits of margin
     guess = max(8, max_abs(a).bit_length() - max_abs(b).bit_length() + 4)
-    proved = quotient_bits(a, b) + 1
+    proved = quotient_bits(a, b, limit=2 * guess) + 1
     if proved <= 2 * guess:
         q = _quotient_mod_power(a, b, proved)
         return q, integers.sub(a[:d], integers.mul(q[:d], b[:d], length=d))
@@ -213,7 +214,7 @@ def _quotient_mod_power(a: np.ndarray, b: np.ndarray, bits: int) -> np.ndarray:
     return _symmetric(_quotient_newton(ring, ring.convert(a), ring.convert(b)), 1 << bits)
 
 
-def quotient_bits(a: np.ndarray, b: np.ndarray) -> int:
+def quotient_bits(a: np.ndarray, b: np.ndarray, limit: int | None = None) -> int:
     """A bound ``beta`` with ``|q_k| < 2^beta`` for the quotient of ``a`` by ``b`` (leading
     coefficient ``+-1``).
 
@@ -224,26 +225,40 @@ def quotient_bits(a: np.ndarray, b: np.ndarray) -> int:
     ``rho = 2 max_i |c_i|^(1/i)`` qualifies (each term is at most ``2^-i``; Fujiwara's root
     bound, Monatsh. Math. 1916); the smallest qualifying ``rho`` is found by bisection on
     ``log2 rho`` between ``max_i log2|c_i| / i`` and that, each test keeping a relative margin
-    of ``2^-20`` over float rounding.
+    of ``2^-20`` over float rounding.  With ``limit``, the bisection is skipped when even its
+    lower end would give more than ``limit`` bits: the (valid, looser) Fujiwara bound is
+    returned then.
     """
     d = b.shape[0] - 1
     qlen = a.shape[0] - d
-    coeffs = [abs(int(v)) for v in b[:d][::-1].tolist()]  # |c_1| .. |c_d|
-    index = np.array([i for i, c in enumerate(coeffs, start=1) if c], dtype=np.float64)
-    logs = np.array([_log2_up(c) for c in coeffs if c], dtype=np.float64)
+    index, logs = _log2_coefficients(b[:d][::-1])  # i and log2|c_i| of the nonzero c_i
     r = 0.0
+    norm_bits = max_abs(a).bit_length() + a.shape[0].bit_length()  # ||a||_1 <= n max|a|
     if index.size:
         low = float(np.max(logs / index))
         high = low + 1.0  # Fujiwara: sum <= 1 - 2^-d there
-        for _ in range(40):
+        steps = 0 if limit is not None and norm_bits + low * (qlen - 1) > limit else 40
+        for _ in range(steps):
             mid = 0.5 * (low + high)
             if _sum_terms(logs, index, mid) <= 1.0 - 2.0**-20:
                 high = mid
             else:
                 low = mid
         r = max(high, 0.0)
-    norm = sum(abs(int(v)) for v in a.tolist())
-    return norm.bit_length() + int(np.ceil(r * (qlen - 1) * (1 + 2.0**-30))) + 1
+    return norm_bits + int(np.ceil(r * (qlen - 1) * (1 + 2.0**-30))) + 1
+
+
+def _log2_coefficients(c: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Positions ``i >= 1`` and ``log2|c_(i-1)|`` (rounded up) of the nonzero entries of ``c``;
+    vectorised for int64 (float64 log2 of values below 2^63, relative margin ``2^-40``)."""
+    if c.dtype == np.int64:
+        nonzero = np.flatnonzero(c)
+        values = np.abs(c[nonzero].astype(np.float64))
+        logs = np.log2(values)
+        return (nonzero + 1).astype(np.float64), logs + np.abs(logs) * 2.0**-40 + 2.0**-40
+    coeffs = [abs(int(v)) for v in c.tolist()]
+    index = np.array([i for i, v in enumerate(coeffs, start=1) if v], dtype=np.float64)
+    return index, np.array([_log2_up(v) for v in coeffs if v], dtype=np.float64)
 
 
 def _log2_up(c: int) -> float:
@@ -269,12 +284,16 @@ def _quotient_halving(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     operands at their true sizes, so growing quotients cost what their coefficients hold."""
     d = b.shape[0] - 1
     qlen = a.shape[0] - d
-    rev_q = _halve(a[::-1][:qlen].copy(), b[::-1].copy(), qlen, _Integers())
-    return rev_q[::-1].copy()
+    rev_b = np.array([gmpy2.mpz(int(v)) for v in b[::-1].tolist()], dtype=object)
+    rev_q = _halve(a[::-1][:qlen].copy(), rev_b, qlen, _Integers())
+    out = np.empty(qlen, dtype=object)
+    out[:] = [int(v) for v in rev_q[::-1].tolist()]  # Python ints out, as everywhere
+    return out
 
 
 def _halve(top: np.ndarray, rev_b: np.ndarray, m: int, integers: _Integers) -> np.ndarray:
-    """``top / rev_b mod x^m`` exactly (``rev_b[0] = 1``), as Python ints."""
+    """``top / rev_b mod x^m`` exactly (``rev_b[0] = 1``; gmpy2.mpz entries, whose products
+    of a wide by a narrow integer the base-case recurrence does in GMP)."""
     if m <= _HALVING_BASE:
         q = np.empty(m, dtype=object)
         tail = rev_b[1:]

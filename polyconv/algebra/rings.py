@@ -70,35 +70,22 @@ def _mul(x: np.ndarray, y: np.ndarray, modulus: int | None, *, length: int | Non
     return convolve(x, y, mode=mode, modulus=modulus, length=length)
 
 
-#: Short products (``n1 n2`` at most this) of int64 operands skip planning once the compiled
-#: kernels are loaded: one batched-row call of :mod:`polyconv.engines.ntt_batch` (about 5 us
-#: against 25-40 us through :func:`polyconv.api.convolve_integer_rows`, measured).
-SMALL_PRODUCT_WORK = 128 * 128
-
-
 def _small_product(x: np.ndarray, y: np.ndarray, modulus: int | None, length: int | None,
                    mode: str, magnitudes: tuple[int, int] | None) -> np.ndarray | None:
-    """The product straight from :mod:`polyconv.engines.ntt_batch` when it is short, int64, and
-    either modular with operands the caller certified as residues (``magnitudes`` both
-    ``m - 1``) or exact with ``min(n1, n2) max|x| max|y| < 2^63``; None otherwise (and whenever
-    the kernels are not loaded in this process: nothing here waits for a compiler)."""
-    n1, n2 = x.shape[0], y.shape[0]
-    if (x.dtype != np.int64 or y.dtype != np.int64 or n1 * n2 > SMALL_PRODUCT_WORK
-            or mode not in ("full", "valid") or (mode == "valid" and length is not None)
-            or (length is not None and length > n1 + n2 - 1) or jit.state() != "compiled"):
+    """Short int64 products straight from :func:`polyconv.engines.ntt_batch.small_product`
+    (no planning; about 5 us against 25-40 us through the planner, measured) once the kernels
+    are loaded, modular ones only when the caller certified residues (``magnitudes`` both
+    ``m - 1``); None when that path does not apply."""
+    if mode not in ("full", "valid") or (mode == "valid" and length is not None):
         return None
+    if modulus is not None and magnitudes != (modulus - 1, modulus - 1):
+        return None
+    n1, n2 = x.shape[0], y.shape[0]
     keep = max(n1, n2) if mode == "valid" else length
-    if modulus is not None:
-        if magnitudes != (modulus - 1, modulus - 1) or modulus >= 2**62:
-            return None
-        out = ntt_batch.multiply_rows_mod(x, y, modulus, keep)[0]
-    else:
-        top_x, top_y = magnitudes if magnitudes is not None else (max_abs(x), max_abs(y))
-        bound = min(n1, n2) * top_x * top_y
-        if bound >= _INT64_LIMIT:
-            return None
-        out = ntt_batch.multiply_rows_exact(x, y, bound, keep, as_int64=True)[0]
-    return out[min(n1, n2) - 1:] if mode == "valid" else out
+    out = ntt_batch.small_product(x, y, modulus, keep, magnitudes=magnitudes)
+    if out is None or mode == "full":
+        return out
+    return out[min(n1, n2) - 1:]
 
 
 # ----------------------------------------------------------------------------- small array helpers
