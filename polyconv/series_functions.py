@@ -14,7 +14,7 @@ in ``U(n)``, the transform work of one full ``n x n`` product, as measured by
 
 Exact integers are computed modulo a prime ``P > 2^B`` and lifted to ``(-P/2, P/2)``; the lift
 is then *proved* by an exact identity over the integers (``b' = a' b`` for ``exp``, ``a b' = a'``
-for ``log``, ``b^2 = a`` for ``sqrt``, ``q a b' = p a' b`` for ``a^(p/q)``, each with the constant
+for ``log``, ``q a b' = p a' b`` for ``a^(p/q)`` (``sqrt``: ``r = 1/2``), each with the constant
 term), which together with the constant term determines the series uniquely.  ``B`` starts at 64
 and doubles up to an a-priori bound on the size of an integral result (majorant series: with
 ``A = max_(k>=1) |a_k| / |a_0|`` every coefficient is at most ``|b_0| (1 + A)^k``, times
@@ -28,16 +28,28 @@ from __future__ import annotations
 
 import math
 import numbers
-from collections.abc import Callable
 from fractions import Fraction
 
 import gmpy2
 import numpy as np
 
 from . import series_newton as sn
-from .algebra import (_check_chain, _check_length, _check_modulus, _fit, _Floats, _Integers,
-                      _Modular, _ring_for, _Ring, _sequence, _symmetric, inverse_series, power)
-from .bounds import max_abs
+from .algebra import (
+    _check_chain,
+    _check_length,
+    _check_modulus,
+    _fit,
+    _Floats,
+    _Integers,
+    _Modular,
+    _Ring,
+    _ring_for,
+    _sequence,
+    inverse_series,
+    power,
+)
+from .series_exact import lift, proves_exp, proves_log, proves_power
+from .series_roots import check_units, root_mod
 
 __all__ = ["exp_series", "log_series", "sqrt_series", "power_series"]
 
@@ -88,7 +100,7 @@ def exp_series(a, length: int, *, modulus: int | None = None) -> np.ndarray:
     """
     arr, ring, n = _prepare(a, length, modulus)
     if isinstance(ring, _Modular):
-        _check_units(ring.modulus, n - 1, f"exp_series(a, length={n})")
+        check_units(ring.modulus, n - 1, f"exp_series(a, length={n})")
     x = ring.convert(arr[:n])
     if isinstance(ring, _Floats):
         c = x[0]
@@ -101,8 +113,8 @@ def exp_series(a, length: int, *, modulus: int | None = None) -> np.ndarray:
                          f"a[0] = {x[0]}; pass float coefficients for exp(a[0]) != 1")
     if isinstance(ring, _Modular):
         return sn.exp_newton(ring, x, n, sn.unit_inverses(ring, n))
-    return _lift(lambda r, k: sn.exp_newton(r, r.convert(x[:k]), k, sn.unit_inverses(r, k)),
-                 lambda b, k: _proves_exp(x[:k], b), x, n, 0, 0, f"exp(a) (length={n})")
+    return lift(lambda r, k: sn.exp_newton(r, r.convert(x[:k]), k, sn.unit_inverses(r, k)),
+                 lambda b, k: proves_exp(x[:k], b), x, n, 0, 0, f"exp(a) (length={n})")
 
 
 def log_series(a, length: int, *, modulus: int | None = None) -> np.ndarray:
@@ -143,7 +155,7 @@ def log_series(a, length: int, *, modulus: int | None = None) -> np.ndarray:
     """
     arr, ring, n = _prepare(a, length, modulus)
     if isinstance(ring, _Modular):
-        _check_units(ring.modulus, n - 1, f"log_series(a, length={n})")
+        check_units(ring.modulus, n - 1, f"log_series(a, length={n})")
     x = ring.convert(arr[:n])
     if isinstance(ring, _Floats):
         c = x[0]
@@ -161,7 +173,7 @@ def log_series(a, length: int, *, modulus: int | None = None) -> np.ndarray:
                          f"a[0] = {x[0]}")
     if isinstance(ring, _Modular):
         return _log(ring, x, n)
-    return _lift(lambda r, k: _log(r, r.convert(x[:k]), k), lambda b, k: _proves_log(x[:k], b),
+    return lift(lambda r, k: _log(r, r.convert(x[:k]), k), lambda b, k: proves_log(x[:k], b),
                  x, n, 0, 0, f"log(a) (length={n})")
 
 
@@ -204,7 +216,7 @@ def sqrt_series(a, length: int, *, modulus: int | None = None) -> np.ndarray:
     [1, -2, -2, -4, -10, -28]
     """
     arr, ring, n = _prepare(a, length, modulus)
-    x = ring.convert(arr[:n])
+    x = ring.convert(arr[: 2 * n])  # a's coefficients up to degree n + v matter
     v = _valuation(ring, x)
     if v is None:
         return ring.finish(ring.zeros(n))
@@ -215,8 +227,8 @@ def sqrt_series(a, length: int, *, modulus: int | None = None) -> np.ndarray:
     u = x[v: v + room]
     root = _root(ring, u[0], 2, f"a[{v}]")
     if isinstance(ring, _Integers):
-        body = _lift(lambda r, k: sn.sqrt_newton(r, r.convert(u[:k]), k, root),
-                     lambda b, k: _proves_power(u[:k], b, Fraction(1, 2), root),
+        body = lift(lambda r, k: sn.sqrt_newton(r, r.convert(u[:k]), k, root),
+                     lambda b, k: proves_power(u[:k], b, Fraction(1, 2), root),
                      u, room, abs(root), Fraction(1, 2), f"sqrt(a) (length={n})")
     else:
         if ring.unit_inverse(2 * root if ring.modulus is None else 2 * root % ring.modulus) is None:
@@ -269,7 +281,7 @@ def power_series(a, exponent, length: int, *, modulus: int | None = None) -> np.
         if k >= 0:
             return power(arr, k, modulus=modulus, length=n)
         return power(inverse_series(arr, n, modulus=modulus), -k, modulus=modulus, length=n)
-    x = ring.convert(arr[:n])
+    x = ring.convert(arr[: 2 * n])  # a's coefficients up to degree n + v matter
     v = _valuation(ring, x)
     if v is None:
         if r > 0:
@@ -296,7 +308,7 @@ def power_series(a, exponent, length: int, *, modulus: int | None = None) -> np.
         if math.gcd(r.denominator, m) != 1:
             raise ValueError(f"exponent {exponent}: its denominator {r.denominator} is not "
                              f"invertible modulo {m}")
-        _check_units(m, room - 1, f"power_series(a, {exponent}, length={n})")
+        check_units(m, room - 1, f"power_series(a, {exponent}, length={n})")
         lead = pow(q_root, r.numerator, m)
         scaled = ring.scale(u, ring.unit_inverse(u[0]))
         r_mod = r.numerator * pow(r.denominator, -1, m) % m
@@ -314,7 +326,7 @@ def power_series(a, exponent, length: int, *, modulus: int | None = None) -> np.
         r_mod = r.numerator * pow(r.denominator, -1, m) % m
         return ring_p.scale(_power_core(ring_p, w, r_mod, k), lead)
 
-    body = _lift(compute, lambda b, k: _proves_power(u[:k], b, r, lead), u, room, abs(lead), r,
+    body = lift(compute, lambda b, k: proves_power(u[:k], b, r, lead), u, room, abs(lead), r,
                  f"a^({exponent}) (length={n})")
     return ring.finish(_shifted(ring, body, shift, n))
 
@@ -365,44 +377,11 @@ def _check_exponent(exponent, ring: _Ring):
     return float(exponent)
 
 
-def _check_units(m: int, count: int, what: str) -> None:
-    """Refuse a modulus with a prime factor ``<= count`` (``1 .. count`` must be units)."""
-    if count < 2:
-        return
-    if gmpy2.is_prime(m):
-        if m > count:
-            return
-        factor = m
-    else:
-        factor = _small_factor(m, count)
-        if factor is None:
-            return
-    raise ValueError(f"modulus={m} has the prime factor {factor} <= {count}: {what} divides "
-                     f"coefficient k by k for every k < length, so length must be at most the "
-                     f"smallest prime factor of the modulus ({factor})")
-
-
-def _small_factor(m: int, count: int) -> int | None:
-    """The smallest prime factor of ``m`` that is ``<= count``, or None."""
-    limit = min(count, math.isqrt(m))
-    sieve = np.ones(limit + 1, dtype=bool)
-    sieve[:2] = False
-    for p in range(2, math.isqrt(limit) + 1):
-        if sieve[p]:
-            sieve[p * p:: p] = False
-    primes = np.flatnonzero(sieve)
-    if m < 2**63:
-        hits = primes[np.int64(m) % primes == 0]
-        if hits.size:
-            return int(hits[0])
-    else:
-        for p in primes.tolist():
-            if m % p == 0:
-                return p
-    return m if m <= count else None  # no factor up to sqrt(m): m is prime
-
-
 def _valuation(ring: _Ring, x: np.ndarray) -> int | None:
+    """The degree of the first non-zero coefficient (None for zero)."""
+    if x.dtype != object:
+        nonzero = np.flatnonzero(x)
+        return int(nonzero[0]) if nonzero.size else None
     for i, value in enumerate(x.tolist()):
         if not ring.is_zero(value):
             return i
@@ -430,7 +409,6 @@ def _root(ring: _Ring, c, q: int, what: str):
             raise ValueError(f"{what} = {c} is not a perfect {_ordinal(q)} power, so the result "
                              "does not have integer coefficients; pass floats or a modulus")
         return int(root) if int(c) >= 0 else -int(root)
-    from .series_roots import root_mod
     root = root_mod(int(c), q, ring.modulus)
     if root is None:
         raise ValueError(f"{what} = {c} has no {_ordinal(q)} root modulo {ring.modulus} (or none "
@@ -440,74 +418,3 @@ def _root(ring: _Ring, c, q: int, what: str):
 
 def _ordinal(q: int) -> str:
     return {2: "square", 3: "cube"}.get(q, f"{q}-th")
-
-
-# ----------------------------------------------------------------------------- exact integers
-
-
-def _lift(compute: Callable, proves: Callable, x: np.ndarray, n: int, lead: int, r,
-          what: str) -> np.ndarray:
-    """Exact integer result of ``compute`` (run mod primes) proved by ``proves`` (see the module
-    docstring); ``lead`` bounds ``|b_0|`` and ``r`` is the exponent (0 for exp/log)."""
-    for k in sorted({min(n, 32), n}):
-        top = max_abs(x[1:k]) if k > 1 else 0
-        scale = max(abs(int(x[0])), 1)
-        growth = math.log2(1 + top / scale if lead else 1 + top)
-        extra = 0.0
-        if r:
-            s = 2 * abs(float(r))
-            extra = (math.lgamma(s + k) - math.lgamma(k + 1) - math.lgamma(s)) / math.log(2)
-        limit = int(math.log2(max(lead, 1)) + (k - 1) * growth + extra) + 4
-        bits = 64
-        while True:
-            bits = min(bits, max(limit, 64))
-            ring_p = _Modular(int(gmpy2.next_prime(2**bits)))
-            _check_chain(ring_p, k, bits, f"{what}, computed modulo a {bits}-bit prime")
-            candidate = _symmetric(compute(ring_p, k), ring_p.modulus)
-            if proves(candidate, k):
-                break
-            if bits >= limit:
-                raise ValueError(f"{what} does not have integer coefficients (its first {k} do "
-                                 "not all exist over the integers); pass float coefficients or "
-                                 "a modulus")
-            bits *= 2
-    return _Integers().finish(candidate)
-
-
-def _int_derivative(x: np.ndarray) -> np.ndarray:
-    k = np.arange(1, max(x.shape[0], 2), dtype=np.int64)
-    if x.shape[0] <= 1:
-        return np.zeros(1, dtype=np.int64)
-    if x.dtype == np.int64 and max_abs(x) * x.shape[0] < 2**62:
-        return x[1:] * k
-    return x[1:].astype(object) * k.astype(object)
-
-
-def _equal(x: np.ndarray, y: np.ndarray, n: int) -> bool:
-    return all(int(p) == int(q) for p, q in zip(_fit(x, n).tolist(), _fit(y, n).tolist()))
-
-
-def _proves_exp(a: np.ndarray, b: np.ndarray) -> bool:
-    n = b.shape[0]
-    rhs = _Integers().mul(_int_derivative(a), b, length=n - 1) if n > 1 else b[:0]
-    return int(b[0]) == 1 and _equal(_int_derivative(b), rhs, n - 1)
-
-
-def _proves_log(a: np.ndarray, b: np.ndarray) -> bool:
-    n = b.shape[0]
-    lhs = _Integers().mul(_fit(a, n), _int_derivative(b), length=n - 1) if n > 1 else b[:0]
-    return int(b[0]) == 0 and _equal(lhs, _int_derivative(a), n - 1)
-
-
-def _proves_power(a: np.ndarray, b: np.ndarray, r: Fraction, lead: int) -> bool:
-    """``b_0 = lead`` and ``q a b' = p a' b`` (``r = p/q``), i.e. ``b = lead (a/a_0)^r``."""
-    n = b.shape[0]
-    if int(b[0]) != lead:
-        return False
-    if n == 1:
-        return True
-    ints = _Integers()
-    lhs = ints.scale(ints.mul(_fit(a, n), _int_derivative(b), length=n - 1), r.denominator)
-    rhs = ints.scale(ints.mul(_int_derivative(a), b, length=n - 1), r.numerator)
-    return _equal(lhs, rhs, n - 1)
-

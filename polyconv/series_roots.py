@@ -12,8 +12,9 @@ from __future__ import annotations
 import math
 
 import gmpy2
+import numpy as np
 
-__all__ = ["root_mod"]
+__all__ = ["check_units", "root_mod"]
 
 #: moduli below this are searched when no formula applies
 _SEARCH_LIMIT = 2**20
@@ -59,3 +60,40 @@ def _tonelli_shanks(c: int, p: int) -> int | None:
         b = pow(cz, 1 << (m - i - 1), p)
         m, cz, t, r = i, b * b % p, t * b * b % p, r * b % p
     return r
+
+
+def check_units(m: int, count: int, what: str) -> None:
+    """Refuse a modulus with a prime factor ``<= count`` (``1 .. count`` must be units)."""
+    if count < 2:
+        return
+    if gmpy2.is_prime(m):
+        if m > count:
+            return
+        factor = m
+    else:
+        factor = _small_factor(m, count)
+        if factor is None:
+            return
+    raise ValueError(f"modulus={m} has the prime factor {factor} <= {count}: {what} divides "
+                     f"coefficient k by k for every k < length, so length must be at most the "
+                     f"smallest prime factor of the modulus ({factor})")
+
+
+def _small_factor(m: int, count: int) -> int | None:
+    """The smallest prime factor of ``m`` that is ``<= count``, or None."""
+    limit = min(count, math.isqrt(m))
+    sieve = np.ones(limit + 1, dtype=bool)
+    sieve[:2] = False
+    for p in range(2, math.isqrt(limit) + 1):
+        if sieve[p]:
+            sieve[p * p:: p] = False
+    primes = np.flatnonzero(sieve)
+    if m < 2**63:
+        hits = primes[np.int64(m) % primes == 0]
+        if hits.size:
+            return int(hits[0])
+    else:
+        for p in primes.tolist():
+            if m % p == 0:
+                return p
+    return m if m <= count else None  # no factor up to sqrt(m): m is prime
