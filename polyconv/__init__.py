@@ -19,12 +19,13 @@ _WHERE = {
     "exp_series": "series_functions", "log_series": "series_functions",
     "sqrt_series": "series_functions", "power_series": "series_functions",
     "compose_series": "series_compose",
+    "evaluate_points": "multipoint", "interpolate": "multipoint",
 }
 
 __all__ = ["convolve", "plan", "error_bound", "Plan", "dist", "convolve_file", "convolve_chunks",
            "convolve_dask", "exact_product_dask", "power", "product", "inverse_series",
            "poly_divmod", "ZeroDivisorError", "exp_series", "log_series", "sqrt_series",
-           "power_series", "compose_series"]
+           "power_series", "compose_series", "evaluate_points", "interpolate"]
 __version__ = "0.1.0"
 
 if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors
@@ -32,6 +33,7 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors
     from .algebra import ZeroDivisorError, inverse_series, poly_divmod, power, product
     from .api import convolve, error_bound, plan
     from .dask_backend import convolve_dask, exact_product_dask
+    from .multipoint import evaluate_points, interpolate
     from .planning import Plan
     from .series_compose import compose_series
     from .series_functions import exp_series, log_series, power_series, sqrt_series
