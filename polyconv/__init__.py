@@ -12,14 +12,14 @@ from typing import TYPE_CHECKING
 
 _WHERE = {
     "convolve": "api", "plan": "api", "error_bound": "api", "Plan": "planning",
-    "convolve_file": "streaming", "convolve_chunks": "streaming",
-    "convolve_dask": "dask_backend", "exact_product_dask": "dask_backend",
+    "convolve_file": "scale.streaming", "convolve_chunks": "scale.streaming",
+    "convolve_dask": "scale.dask", "exact_product_dask": "scale.dask",
     "power": "algebra", "product": "algebra", "inverse_series": "algebra",
     "poly_divmod": "algebra", "ZeroDivisorError": "algebra",
-    "exp_series": "series_functions", "log_series": "series_functions",
-    "sqrt_series": "series_functions", "power_series": "series_functions",
-    "compose_series": "series_compose",
-    "evaluate_points": "multipoint", "interpolate": "multipoint",
+    "exp_series": "algebra.series_functions", "log_series": "algebra.series_functions",
+    "sqrt_series": "algebra.series_functions", "power_series": "algebra.series_functions",
+    "compose_series": "algebra.series_compose",
+    "evaluate_points": "algebra.multipoint", "interpolate": "algebra.multipoint",
 }
 
 __all__ = ["convolve", "plan", "error_bound", "Plan", "dist", "convolve_file", "convolve_chunks",
@@ -31,13 +31,13 @@ __version__ = "0.1.0"
 if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors
     from . import dist
     from .algebra import ZeroDivisorError, inverse_series, poly_divmod, power, product
+    from .algebra.multipoint import evaluate_points, interpolate
+    from .algebra.series_compose import compose_series
+    from .algebra.series_functions import exp_series, log_series, power_series, sqrt_series
     from .api import convolve, error_bound, plan
-    from .dask_backend import convolve_dask, exact_product_dask
-    from .multipoint import evaluate_points, interpolate
     from .planning import Plan
-    from .series_compose import compose_series
-    from .series_functions import exp_series, log_series, power_series, sqrt_series
-    from .streaming import convolve_chunks, convolve_file
+    from .scale.dask import convolve_dask, exact_product_dask
+    from .scale.streaming import convolve_chunks, convolve_file
 
 
 def __getattr__(name: str):

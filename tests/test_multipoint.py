@@ -1,4 +1,4 @@
-"""Multipoint evaluation and interpolation (polyconv.multipoint).
+"""Multipoint evaluation and interpolation (polyconv.algebra.multipoint).
 
 References: Horner's rule in exact arithmetic (Python ints mod p, Python ints, fractions),
 python-flint's nmod_poly evaluation and fmpz_mod_poly.multipoint_evaluate, mpmath at 60 digits
@@ -12,7 +12,7 @@ from fractions import Fraction
 import numpy as np
 import pytest
 
-from polyconv.multipoint import evaluate_points, interpolate
+from polyconv.algebra.multipoint import evaluate_points, interpolate
 
 P = 998244353
 RNG = np.random.default_rng(23)

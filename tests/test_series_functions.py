@@ -1,4 +1,4 @@
-"""exp/log/sqrt/rational powers of power series (polyconv.series_functions).
+"""exp/log/sqrt/rational powers of power series (polyconv.algebra.series_functions).
 
 References: python-flint's fmpq_series (exact rational exp/log/sqrt, reduced mod p here),
 fmpz_mod_poly.sqrt_trunc and nmod_poly products, sympy series (small cases, skipped without
@@ -16,7 +16,7 @@ import pytest
 
 import polyconv
 from polyconv.algebra import counting_products
-from polyconv.series_functions import exp_series, log_series, power_series, sqrt_series
+from polyconv.algebra.series_functions import exp_series, log_series, power_series, sqrt_series
 
 flint = pytest.importorskip("flint")
 
@@ -324,7 +324,7 @@ def test_cost_in_products_matches_the_docstring(fn, first, claim):
 @pytest.mark.parametrize("n", [1, 2, 9, 50, 130])
 def test_compose_matches_flint_composition(n):
     # python-flint nmod_poly / fmpz_poly composition f(g), truncated to n terms
-    from polyconv.series_compose import compose_series
+    from polyconv.algebra.series_compose import compose_series
     assert polyconv.compose_series is compose_series
     for lf in (1, n // 2 + 1, n, 2 * n):
         f = RNG.integers(0, P, lf)
@@ -343,7 +343,7 @@ def test_compose_matches_flint_composition(n):
 def test_compose_identities_floats_and_errors():
     # exp(log(1 + x) composed) : f = exp series, g = log(1 + x) gives 1 + x (handbook identity);
     # composition with g = x is the identity
-    from polyconv.series_compose import compose_series
+    from polyconv.algebra.series_compose import compose_series
     n = 60
     exp_coeffs = [1 / math.factorial(k) for k in range(n)]
     g = log_series([1.0, 1.0], n)

@@ -52,6 +52,33 @@ def _shoup(t, w, wq, p):
     return t * w - q * p
 
 
+@njit(inline="always")  # no signature: inlined into callers only
+def _reduce_2p(a, p2):
+    """``a mod 2p`` for ``a < 4p`` in uint32: ``min(a, a - 2p)`` (the difference wraps above ``a``
+    when ``a < 2p``): the add/conditional-subtract step shared by every butterfly."""
+    return min(a, a - p2)
+
+
+@njit(inline="always")  # no signature: inlined into callers only
+def _add_2p(u, v, p2):
+    """``u + v`` reduced into ``[0, 2p)`` for ``u, v < 2p``."""
+    return _reduce_2p(u + v, p2)
+
+
+@njit(inline="always")  # no signature: inlined into callers only
+def _sub_2p(u, v, p2):
+    """``u - v`` reduced into ``[0, 2p)`` for ``u, v < 2p`` (computed as ``u + 2p - v``)."""
+    return _reduce_2p(u + p2 - v, p2)
+
+
+@njit(inline="always")  # no signature: inlined into callers only
+def _twist(d, w, wq, pp):
+    """``d w mod p`` in ``[0, 2p)`` for ``d < 2^32`` by Shoup's quotient ``wq`` in uint32 words
+    (the remainder ``d w - q p`` is exact modulo ``2^32``)."""
+    q = np.uint32((np.uint64(d) * np.uint64(wq)) >> np.uint64(32))
+    return d * w - q * pp
+
+
 @njit("void(uint32[::1], uint64, uint32[::1], uint32[::1], int64, int64)", cache=CACHE)
 def _dif_stages(x, p, tw, twq, h_first, h_last):
     """Gentleman-Sande stages ``(u, v) -> (u + v, (u - v) w^j)`` over the whole of ``x``, for
@@ -74,11 +101,8 @@ def _dif_stages(x, p, tw, twq, h_first, h_last):
             for j in range(h):
                 u = xu[j]
                 v = xv[j]
-                a = u + v
-                xu[j] = min(a, a - p2)
-                d = u + p2 - v
-                q = np.uint32((np.uint64(d) * np.uint64(wq[j])) >> np.uint64(32))
-                xv[j] = d * w[j] - q * pp
+                xu[j] = _add_2p(u, v, p2)
+                xv[j] = _twist(u + p2 - v, w[j], wq[j], pp)
         h >>= 1
 
 
@@ -89,29 +113,20 @@ def _dif_last_two(x, p, tw, twq):
     pp = np.uint32(p)
     p2 = np.uint32(p + p)
     w = tw[3]
-    wq = np.uint64(twq[3])
+    wq = twq[3]
     for s in range(0, x.shape[0], 4):
         a0 = x[s]
         a1 = x[s + 1]
         a2 = x[s + 2]
         a3 = x[s + 3]
-        b0 = a0 + a2
-        b0 = min(b0, b0 - p2)
-        b2 = a0 + p2 - a2
-        b2 = min(b2, b2 - p2)
-        b1 = a1 + a3
-        b1 = min(b1, b1 - p2)
-        d = a1 + p2 - a3
-        q = np.uint32((np.uint64(d) * wq) >> np.uint64(32))
-        b3 = d * w - q * pp
-        c = b0 + b1
-        x[s] = min(c, c - p2)
-        c = b0 + p2 - b1
-        x[s + 1] = min(c, c - p2)
-        c = b2 + b3
-        x[s + 2] = min(c, c - p2)
-        c = b2 + p2 - b3
-        x[s + 3] = min(c, c - p2)
+        b0 = _add_2p(a0, a2, p2)
+        b2 = _sub_2p(a0, a2, p2)
+        b1 = _add_2p(a1, a3, p2)
+        b3 = _twist(a1 + p2 - a3, w, wq, pp)
+        x[s] = _add_2p(b0, b1, p2)
+        x[s + 1] = _sub_2p(b0, b1, p2)
+        x[s + 2] = _add_2p(b2, b3, p2)
+        x[s + 3] = _sub_2p(b2, b3, p2)
 
 
 @njit("void(uint32[::1], uint64, uint32[::1], uint32[::1], int64)", cache=CACHE)
@@ -140,11 +155,8 @@ def _dit_stages(x, p, tw, twq, h_first, h_last):
             xu = x[s:s + h]
             xv = x[s + h:s + 2 * h]
             for j in range(h):
-                u = xu[j]
-                u = min(u, u - p2)
-                v = xv[j]
-                q = np.uint32((np.uint64(v) * np.uint64(wq[j])) >> np.uint64(32))
-                t = v * w[j] - q * pp
+                u = _reduce_2p(xu[j], p2)
+                t = _twist(xv[j], w[j], wq[j], pp)
                 xu[j] = u + t
                 xv[j] = u + p2 - t
         h <<= 1
@@ -156,25 +168,16 @@ def _dit_first_two(x, p, tw, twq):
     pp = np.uint32(p)
     p2 = np.uint32(p + p)
     w = tw[3]
-    wq = np.uint64(twq[3])
+    wq = twq[3]
     for s in range(0, x.shape[0], 4):
-        a0 = x[s]
-        a0 = min(a0, a0 - p2)
-        a1 = x[s + 1]
-        a1 = min(a1, a1 - p2)
-        a2 = x[s + 2]
-        a2 = min(a2, a2 - p2)
-        a3 = x[s + 3]
-        a3 = min(a3, a3 - p2)
-        b0 = a0 + a1
-        b0 = min(b0, b0 - p2)
-        b1 = a0 + p2 - a1
-        b1 = min(b1, b1 - p2)
-        b2 = a2 + a3
-        b2 = min(b2, b2 - p2)
-        b3 = a2 + p2 - a3
-        q = np.uint32((np.uint64(b3) * wq) >> np.uint64(32))
-        t = b3 * w - q * pp
+        a0 = _reduce_2p(x[s], p2)
+        a1 = _reduce_2p(x[s + 1], p2)
+        a2 = _reduce_2p(x[s + 2], p2)
+        a3 = _reduce_2p(x[s + 3], p2)
+        b0 = _add_2p(a0, a1, p2)
+        b1 = _sub_2p(a0, a1, p2)
+        b2 = _add_2p(a2, a3, p2)
+        t = _twist(a2 + p2 - a3, w, wq, pp)
         x[s] = b0 + b2
         x[s + 2] = b0 + p2 - b2
         x[s + 1] = b1 + t

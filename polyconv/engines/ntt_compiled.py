@@ -22,6 +22,7 @@ prefix) and kept for the process.
 from __future__ import annotations
 
 import math
+from functools import lru_cache
 
 import numpy as np
 
@@ -206,6 +207,7 @@ def _residue_rows(x: np.ndarray, primes: tuple[int, ...]) -> np.ndarray:
     return out
 
 
+@lru_cache(maxsize=64)  # k^2 modular inverses: 19 ms for 27 primes, once per prime set
 def _garner_constants(primes: tuple[int, ...]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     k = len(primes)
     inv = np.zeros((k, k), dtype=np.int64)

@@ -18,19 +18,9 @@ from __future__ import annotations
 
 import numpy as np
 
-from .algebra import (
-    _check_chain,
-    _check_length,
-    _check_modulus,
-    _combine,
-    _fit,
-    _Floats,
-    _Modular,
-    _Ring,
-    _ring_for,
-    _sequence,
-)
-from .budget import check_allocation
+from ..budget import check_allocation
+from .checks import _check_chain, _check_length, _check_modulus, _combine, _sequence
+from .rings import _fit, _Floats, _Modular, _Ring, _ring_for
 
 __all__ = ["compose_series"]
 
@@ -78,7 +68,7 @@ def compose_series(f, g, length: int, *, modulus: int | None = None) -> np.ndarr
 
     Examples
     --------
-    >>> from polyconv.series_compose import compose_series
+    >>> from polyconv.algebra.series_compose import compose_series
     >>> compose_series([1, 1, 1, 1], [0, 1, 1], 5).tolist()    # 1 + y + y^2 + y^3, y = x + x^2
     [1, 1, 2, 3, 4]
     """

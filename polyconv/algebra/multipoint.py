@@ -14,9 +14,9 @@
 Arithmetic follows the inputs: residues mod ``m`` (``modulus=``), exact integers (evaluation
 only: the divisors are monic, so the remainders stay integral), or floats.  For floats,
 :func:`evaluate_points` can return a rigorous a-posteriori bound per point
-(:mod:`polyconv.multipoint_bounds` derives it); the remainder tree is numerically unstable in
-general (Köhler & Ziegler, "On the stability of fast polynomial arithmetic", 2008), which the
-bound shows rather than hides.
+(:mod:`polyconv.algebra.multipoint_bounds` derives it); the remainder tree is numerically
+unstable in general (Köhler & Ziegler, "On the stability of fast polynomial arithmetic",
+2008), which the bound shows rather than hides.
 """
 
 from __future__ import annotations
@@ -25,18 +25,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..budget import check_allocation
 from . import multipoint_bounds as mb
-from .algebra import (
-    _check_modulus,
-    _combine,
-    _divmod,
-    _Floats,
-    _Integers,
-    _Ring,
-    _ring_for,
-    _sequence,
-)
-from .budget import check_allocation
+from .checks import _check_modulus, _combine, _sequence
+from .division import _divmod
+from .rings import _Floats, _Integers, _Ring, _ring_for
 from .series_newton import derivative, vadd, vmul
 
 __all__ = ["evaluate_points", "interpolate"]
@@ -85,7 +78,7 @@ def evaluate_points(f, points, *, modulus: int | None = None, error_bound: bool 
     bounds : numpy.ndarray of float64
         Only with ``error_bound=True``: rigorous a-posteriori bounds (under the stated float
         product bounds of :func:`polyconv.error_bound`; derivation in
-        :mod:`polyconv.multipoint_bounds`); ``inf`` where they overflow.
+        :mod:`polyconv.algebra.multipoint_bounds`); ``inf`` where they overflow.
 
     Raises
     ------
@@ -94,7 +87,7 @@ def evaluate_points(f, points, *, modulus: int | None = None, error_bound: bool 
 
     Examples
     --------
-    >>> from polyconv.multipoint import evaluate_points
+    >>> from polyconv.algebra.multipoint import evaluate_points
     >>> evaluate_points([1, 2, 3], [0, 1, 2, 10]).tolist()
     [1, 6, 17, 321]
     >>> evaluate_points([1, 2, 3], [5, 6], modulus=7).tolist()
@@ -173,7 +166,7 @@ def interpolate(points, values, *, modulus: int | None = None) -> np.ndarray:
 
     Examples
     --------
-    >>> from polyconv.multipoint import interpolate
+    >>> from polyconv.algebra.multipoint import interpolate
     >>> interpolate([0, 1, 2], [1, 6, 17], modulus=101).tolist()
     [1, 2, 3]
     """

@@ -1,4 +1,4 @@
-"""A-posteriori error bounds of float multipoint evaluation (:mod:`polyconv.multipoint`).
+"""A-posteriori error bounds of float multipoint evaluation (:mod:`polyconv.algebra.multipoint`).
 
 Notation: ``u = 2^-53``, ``gamma_k = k u / (1 - k u)`` (Higham, *Accuracy and Stability of
 Numerical Algorithms*, 2nd ed., Lemma 3.1); ``M_N`` the exact node polynomial
@@ -28,7 +28,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .api import error_bound
+from ..api import error_bound
 
 __all__ = ["division_error", "horner_errors", "horner_scale", "leaf_errors", "product_error"]
 
@@ -83,7 +83,7 @@ def division_error(r: np.ndarray, q: np.ndarray, rem: np.ndarray, node, x: np.nd
     qm = np.convolve(q, node.poly) if q.shape[0] * node.poly.shape[0] <= 4096 else None
     beta = 0.0
     if qm is None:
-        from .api import convolve
+        from ..api import convolve
         qm = convolve(q, node.poly)
         beta = error_bound(q, node.poly)
     else:  # numpy's direct sum: gamma_m ||q||_2 ||M||_2 (Higham 3.1 with Cauchy-Schwarz)

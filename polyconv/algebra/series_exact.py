@@ -1,6 +1,7 @@
 """Exact integer results of the series functions: computed modulo a prime, lifted, proved.
 
-See :mod:`polyconv.series_functions` (module docstring) for the method and the bound on ``B``.
+See :mod:`polyconv.algebra.series_functions` (module docstring) for the method and the bound
+on ``B``.
 """
 
 from __future__ import annotations
@@ -12,8 +13,10 @@ from fractions import Fraction
 import gmpy2
 import numpy as np
 
-from .algebra import _check_chain, _fit, _Integers, _Modular, _symmetric
-from .bounds import max_abs
+from ..bounds import max_abs
+from .checks import _check_chain
+from .division import _symmetric
+from .rings import _fit, _Integers, _Modular
 
 __all__ = ["lift", "proves_exp", "proves_log", "proves_power"]
 

@@ -1,6 +1,6 @@
 """Newton iterations for power series on the coefficient rings of :mod:`polyconv.algebra`.
 
-The kernels behind :mod:`polyconv.series_functions`: they take already validated arrays in a
+The kernels behind :mod:`polyconv.algebra.series_functions`: they take already validated arrays in a
 ring's form (floats, or residues mod ``m``) and return ``n`` coefficients.  Every product is one
 call of the ring's ``mul`` (so :func:`polyconv.algebra.counting_products` logs it).  Costs are
 counted in ``U(n)``: the transform work of one full ``n x n`` product (a middle product of an
@@ -26,7 +26,8 @@ import operator
 
 import numpy as np
 
-from .algebra import _as_objects, _fit, _Floats, _inverse, _Modular, _precisions, _Ring
+from .rings import _as_objects, _fit, _Floats, _Modular, _Ring
+from .series import _inverse, _precisions
 
 __all__ = ["BASE_TERMS", "derivative", "divide", "exp_newton", "integral", "inverse_step",
            "sqrt_newton", "unit_inverses", "vmul"]

@@ -8,8 +8,8 @@ arithmetic of its input as :mod:`polyconv.algebra` does:
 * integers without a modulus: exact, *when the result has integer coefficients* (``sqrt(1-4x)``,
   ``(1-4x)^(-1/2)``, ``log`` or ``exp`` of suitable series); otherwise a ValueError says so.
 
-The Newton kernels are in :mod:`polyconv.series_newton` (formulas and sources there); costs are
-in ``U(n)``, the transform work of one full ``n x n`` product, as measured by
+The Newton kernels are in :mod:`polyconv.algebra.series_newton` (formulas and sources there);
+costs are in ``U(n)``, the transform work of one full ``n x n`` product, as measured by
 :func:`polyconv.algebra.counting_products` in ``bench/series_bench.py`` (bench/RESULTS.md).
 
 Exact integers are computed modulo a prime ``P > 2^B`` and lifted to ``(-P/2, P/2)``; the lift
@@ -34,20 +34,10 @@ import gmpy2
 import numpy as np
 
 from . import series_newton as sn
-from .algebra import (
-    _check_chain,
-    _check_length,
-    _check_modulus,
-    _fit,
-    _Floats,
-    _Integers,
-    _Modular,
-    _Ring,
-    _ring_for,
-    _sequence,
-    inverse_series,
-    power,
-)
+from .checks import _check_chain, _check_length, _check_modulus, _sequence
+from .products import power
+from .rings import _fit, _Floats, _Integers, _Modular, _Ring, _ring_for
+from .series import inverse_series
 from .series_exact import lift, proves_exp, proves_log, proves_power
 from .series_roots import check_units, root_mod
 
@@ -94,7 +84,7 @@ def exp_series(a, length: int, *, modulus: int | None = None) -> np.ndarray:
 
     Examples
     --------
-    >>> from polyconv.series_functions import exp_series
+    >>> from polyconv.algebra.series_functions import exp_series
     >>> exp_series([0, 1], 5, modulus=101).tolist()   # 1, 1, 1/2, 1/6, 1/24 mod 101
     [1, 1, 51, 17, 80]
     """
@@ -144,12 +134,12 @@ def log_series(a, length: int, *, modulus: int | None = None) -> np.ndarray:
 
     Notes
     -----
-    ``log a = integral(a' / a)``: one division (:func:`polyconv.series_newton.divide`, Newton
-    inverse to half precision with the Karp-Markstein last step), about ``2.5 U(n)``.
+    ``log a = integral(a' / a)``: one division (:func:`polyconv.algebra.series_newton.divide`,
+    Newton inverse to half precision with the Karp-Markstein last step), about ``2.5 U(n)``.
 
     Examples
     --------
-    >>> from polyconv.series_functions import log_series
+    >>> from polyconv.algebra.series_functions import log_series
     >>> log_series([1.0, 1.0], 5).round(12).tolist()   # log(1 + x)
     [0.0, 1.0, -0.5, 0.333333333333, -0.25]
     """
@@ -207,11 +197,11 @@ def sqrt_series(a, length: int, *, modulus: int | None = None) -> np.ndarray:
     Notes
     -----
     Newton ``s <- s + (a - s^2) / (2 s)`` with ``1/s`` carried along at half precision, about
-    ``3 U(n)`` (:func:`polyconv.series_newton.sqrt_newton`).
+    ``3 U(n)`` (:func:`polyconv.algebra.series_newton.sqrt_newton`).
 
     Examples
     --------
-    >>> from polyconv.series_functions import sqrt_series
+    >>> from polyconv.algebra.series_functions import sqrt_series
     >>> sqrt_series([1, -4], 6).tolist()          # 1 - 2 x (1 + x + 2x^2 + 5x^3 + ...)
     [1, -2, -2, -4, -10, -28]
     """
@@ -269,7 +259,7 @@ def power_series(a, exponent, length: int, *, modulus: int | None = None) -> np.
 
     Examples
     --------
-    >>> from polyconv.series_functions import power_series
+    >>> from polyconv.algebra.series_functions import power_series
     >>> from fractions import Fraction
     >>> power_series([1, -4], Fraction(-1, 2), 5).tolist()   # central binomial coefficients
     [1, 2, 6, 20, 70]

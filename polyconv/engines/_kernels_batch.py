@@ -1,0 +1,98 @@
+"""Compiled (numba) kernels for many short products in one call: one product per row.
+
+Import this module only through :func:`polyconv.jit.kernels` (it is one of
+:data:`polyconv.jit.KERNEL_MODULES`), like :mod:`polyconv.engines._kernels_ntt`, whose transform
+kernels the NTT rows reuse.  Every kernel has one explicit signature.
+
+* :func:`rows_ntt_mod`: row ``r`` of ``out`` is ``a[r] * b[r] mod p`` by one NTT product per row
+  (the transforms, Montgomery pointwise product and scaling of ``_kernels_ntt``) with the
+  buffers and twiddle tables shared by all rows: the per-product cost of a Python call is paid
+  once per batch.
+* :func:`rows_schoolbook_mod`: the same by schoolbook summation, for short rows where
+  ``n1 n2`` multiply-adds are cheaper than three transforms.  Residues are below ``p < 2^30``,
+  so a product is below ``2^60`` and 15 of them can be summed in a uint64 before one reduction
+  modulo ``p`` (common practice, no source).
+* :func:`rows_schoolbook_wrap`: exact integer products by schoolbook summation in wrapping
+  64-bit arithmetic.  Arithmetic modulo ``2^64`` is a ring homomorphism of the integers, so every
+  coefficient with ``|c| < 2^63`` comes out exact whatever the partial sums did (common practice,
+  no source); uint64 is used because unsigned wrap-around is defined behaviour in LLVM.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit
+
+from .. import jit as _jit
+from ._kernels_ntt import load_residues, product_mod_prime
+
+CACHE = _jit.cache_enabled()
+
+#: Products summed in a uint64 accumulator before it is reduced modulo ``p``: ``15 (p - 1)^2 +
+#: p < 2^64`` for ``p < 2^30``.
+_SUMS = 15
+
+
+@njit("void(int64[:, ::1], int64[:, ::1], uint64, uint32[::1], uint32[::1], uint32[::1], "
+      "uint32[::1], uint64, uint64, uint64, int64, int64[:, ::1])", cache=CACHE)
+def rows_ntt_mod(a, b, p, tw, twq, itw, itwq, p_neg_inv, f, fq, n, out):
+    """``out[r] = (a[r] * b[r] mod p)[:out.shape[1]]`` by ``n``-point NTT products (``n`` a power
+    of two ``>= a.shape[1] + b.shape[1] - 1`` or ``>= out.shape[1]`` for a cyclic prefix that the
+    caller has proved free of wrap-around); entries of ``a``, ``b`` any int64."""
+    fa = np.empty(n, dtype=np.uint32)
+    fb = np.empty(n, dtype=np.uint32)
+    for r in range(a.shape[0]):
+        product_mod_prime(a[r], b[r], p, tw, twq, itw, itwq, p_neg_inv, f, fq, fa, fb, out[r])
+
+
+@njit("void(int64[:, ::1], int64[:, ::1], uint64, int64[:, ::1])", cache=CACHE)
+def rows_schoolbook_mod(a, b, p, out):
+    """``out[r] = (a[r] * b[r] mod p)[:out.shape[1]]`` by schoolbook summation (``p < 2^30``;
+    entries of ``a``, ``b`` any int64, reduced first)."""
+    n1 = a.shape[1]
+    n2 = b.shape[1]
+    count = out.shape[1]
+    ra = np.empty(n1, dtype=np.uint32)
+    rb = np.empty(n2, dtype=np.uint32)
+    acc = np.empty(count, dtype=np.uint64)
+    for r in range(a.shape[0]):
+        load_residues(ra, a[r], p)
+        load_residues(rb, b[r], p)
+        acc[:] = 0
+        pending = 0
+        for i in range(min(n1, count)):
+            x = np.uint64(ra[i])
+            if x == 0:
+                continue
+            top = min(n2, count - i)
+            for j in range(top):
+                acc[i + j] += x * np.uint64(rb[j])
+            pending += 1
+            if pending == _SUMS:
+                for j in range(count):
+                    acc[j] %= p
+                pending = 0
+        row = out[r]
+        for j in range(count):
+            row[j] = np.int64(acc[j] % p)
+
+
+@njit("void(uint64[:, ::1], uint64[:, ::1], uint64[:, ::1])", cache=CACHE)
+def rows_schoolbook_wrap(a, b, out):
+    """``out[r] = (a[r] * b[r])[:out.shape[1]]`` modulo ``2^64`` (int64 rows viewed as uint64:
+    exact for every coefficient below ``2^63`` in absolute value)."""
+    n1 = a.shape[1]
+    n2 = b.shape[1]
+    count = out.shape[1]
+    for r in range(a.shape[0]):
+        row = out[r]
+        row[:] = 0
+        ar = a[r]
+        br = b[r]
+        for i in range(min(n1, count)):
+            x = ar[i]
+            if x == 0:
+                continue
+            top = min(n2, count - i)
+            for j in range(top):
+                row[i + j] += x * br[j]
