@@ -25,7 +25,7 @@ def horner_mod(f, x, p):
     return acc
 
 
-@pytest.mark.parametrize("n", [1, 5, 64, 65, 130, 700])
+@pytest.mark.parametrize("n", [1, 5, 64, 65, 130, 400])
 def test_modular_evaluation_matches_exact_horner(n):
     # Horner's rule on Python ints mod p (exact); several f lengths around the tree's sizes
     for lf in (1, n, 3 * n + 1):
@@ -55,7 +55,7 @@ def test_small_and_composite_moduli_and_integers():
         assert got == [horner_mod(f.tolist(), int(v) % m, m) for v in x.tolist()]
 
 
-@pytest.mark.parametrize("n", [1, 2, 63, 64, 200, 1500])
+@pytest.mark.parametrize("n", [1, 2, 63, 64, 200, 700])
 def test_interpolation_mod_p_reproduces_values(n):
     # evaluation by exact Horner mod p of the interpolant gives the values back; the degree < n
     # interpolant is unique, so a random polynomial of degree < n comes back itself

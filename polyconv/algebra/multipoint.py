@@ -347,23 +347,30 @@ def _combine_up(ring: _Ring, node: _Node, c: np.ndarray, pts: np.ndarray) -> np.
         size = node.hi - node.lo
         return vadd(ring, a[:size], b[:size]) if not isinstance(ring, _Floats) else (
             a[:size] + b[:size])
-    out = ring.zeros(node.hi - node.lo)
-    for i in range(node.lo, node.hi):
-        quotient = _synthetic_division(ring, node.poly, pts[i])
-        out = vadd(ring, out, vmul(ring, quotient, ring.convert(
-            np.array([c[i]] * quotient.shape[0], dtype=object))))
+    return _leaf_combination(ring, node.poly, pts[node.lo: node.hi], c[node.lo: node.hi])
+
+
+def _leaf_combination(ring: _Ring, poly: np.ndarray, x: np.ndarray, c: np.ndarray) -> np.ndarray:
+    """``sum_i c_i poly / (x - x_i)`` for the roots ``x_i`` of ``poly``: synthetic division
+    (Horner's scheme) by every ``x - x_i`` at once, the quotients' coefficients summed with the
+    weights as they appear."""
+    d = poly.shape[0] - 1
+    out = ring.zeros(d)
+    if isinstance(ring, _Integers):
+        raise TypeError("interpolation needs floats or a modulus")
+    acc = ring.zeros(x.shape[0]).astype(np.result_type(x.dtype, poly.dtype))
+    for k in range(d, 0, -1):
+        top = np.broadcast_to(poly[k: k + 1], x.shape)
+        if isinstance(ring, _Floats):
+            acc = acc * x + top
+            out[k - 1] = np.dot(c, acc)
+        else:
+            acc = vadd(ring, vmul(ring, acc, x), np.ascontiguousarray(top))
+            out[k - 1] = _sum_mod(vmul(ring, c, acc), ring.modulus)
     return out
 
 
-def _synthetic_division(ring: _Ring, poly: np.ndarray, root) -> np.ndarray:
-    """``poly / (x - root)`` for a root of ``poly`` (Horner's scheme; the remainder is dropped)."""
-    d = poly.shape[0] - 1
-    coeffs = poly.tolist()
-    m = ring.modulus
-    out = [0] * d
-    acc = 0
-    for k in range(d, 0, -1):
-        acc = acc * root + coeffs[k]
-        acc = acc % m if m is not None else acc
-        out[k - 1] = acc
-    return ring.convert(np.array(out, dtype=object))
+def _sum_mod(x: np.ndarray, m: int) -> int:
+    if x.dtype == np.int64 and m < 2**31:
+        return int(np.sum(x) % m)  # at most 64 terms below 2^31
+    return sum(int(v) for v in x) % m
