@@ -16,16 +16,24 @@ _WHERE = {
     "convolve_dask": "scale.dask", "exact_product_dask": "scale.dask",
     "power": "algebra", "product": "algebra", "inverse_series": "algebra",
     "poly_divmod": "algebra", "ZeroDivisorError": "algebra",
+    "exp_series": "algebra.series_functions", "log_series": "algebra.series_functions",
+    "sqrt_series": "algebra.series_functions", "power_series": "algebra.series_functions",
+    "compose_series": "algebra.series_compose",
+    "evaluate_points": "algebra.multipoint", "interpolate": "algebra.multipoint",
 }
 
 __all__ = ["convolve", "plan", "error_bound", "Plan", "dist", "convolve_file", "convolve_chunks",
            "convolve_dask", "exact_product_dask", "power", "product", "inverse_series",
-           "poly_divmod", "ZeroDivisorError"]
+           "poly_divmod", "ZeroDivisorError", "exp_series", "log_series", "sqrt_series",
+           "power_series", "compose_series", "evaluate_points", "interpolate"]
 __version__ = "0.1.0"
 
 if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors
     from . import dist
     from .algebra import ZeroDivisorError, inverse_series, poly_divmod, power, product
+    from .algebra.multipoint import evaluate_points, interpolate
+    from .algebra.series_compose import compose_series
+    from .algebra.series_functions import exp_series, log_series, power_series, sqrt_series
     from .api import convolve, error_bound, plan
     from .pipeline.plan import Plan
     from .scale.dask import convolve_dask, exact_product_dask
