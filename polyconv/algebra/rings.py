@@ -17,7 +17,6 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..engines import _intpack, ntt_batch
-from ..engines import jit_state as jit
 from ..engines.kronecker import multiply_rows
 from ..numerics.limits import INT64_LIMIT as _INT64_LIMIT
 from ..numerics.limits import max_abs
