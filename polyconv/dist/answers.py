@@ -1,4 +1,4 @@
-"""Answers with their certified ranges: :meth:`Lattice.bounded <polyconv.dist.lattice.Lattice.bounded>`.
+"""Answers with their certified ranges: ``Lattice.bounded``.
 
 A mixin of :class:`~polyconv.dist.lattice.Lattice`: each measure's value with the range the error
 ledger certifies (:class:`~polyconv.dist.ledger.Bounded`), refused (``nan`` and a warning) when

@@ -274,7 +274,8 @@ def truncated_moment(law: LawAccess, origin: float, h: float, size: int, rule: s
     return tm * (1 + 4 * UNIT_ROUNDOFF) + lift * truncated
 
 
-def lattice_from_law(law, *, step: float, size: int | None = None, rule: str = "nearest"):
+def lattice_from_law(law, *, step: float, size: int | None = None, rule: str = "nearest",
+                     check: bool = True):
     """Put a continuous law on the lattice ``origin + step * j``, ``j = 0..size-1``.
 
     Parameters
@@ -290,6 +291,8 @@ def lattice_from_law(law, *, step: float, size: int | None = None, rule: str = "
     rule : {"nearest", "down", "up", "moments"}
         How a cell's mass is placed (module docstring).  ``"down"``/``"up"`` give stochastic
         lower/upper bounds of the law (:func:`polyconv.dist.law_bracket` uses both).
+    check : bool
+        Run the step check (internal callers that checked the step once pass False).
 
     Returns
     -------
@@ -321,7 +324,7 @@ def lattice_from_law(law, *, step: float, size: int | None = None, rule: str = "
     pmf, point, l1, truncated = rule_pmf(access, origin, h, size, rule)
     moment = truncated_moment(access, origin, h, size, rule, truncated)
     lattice = make_lattice(pmf, h, origin, point=point, l1=l1, moment=moment)
-    if access.frozen is not None:
+    if check and access.frozen is not None:
         warn_if_coarse(access.frozen, lattice, rule)
     return lattice
 

@@ -45,8 +45,9 @@ from . import law_moments
 from .accuracy import UNIT_ROUNDOFF
 from .errors import AccuracyWarning
 from .from_law import _OFFSET, LawAccess, check_rule, make_lattice, rule_pmf
-from .goals import Goal, choose_step
+from .goals import Goal
 from .ledger import Bounded, ErrorLedger
+from .pilot import PILOT_POINTS, Pilot, pilot_compound
 
 SPLIT_SHARE = 0.5
 """Share of the goal's width given to the coarse bracket of the far tail."""
@@ -191,39 +192,35 @@ def _judge(b: Bounded, goal: Goal) -> Bounded:
     return Bounded(value, b.low, b.high, False, "")
 
 
-def _plan(counts, law, h: float, goal: Goal):
+def _plan(counts, law, h: float, goal: Goal, pilot=None):
     """``(n_fine, [(k_i, n_i)])``: the fine grid and the levels of the far tail (module
-    docstring), from a pilot compound on a coarse step (estimates only: the answers are
-    certified afterwards)."""
-    from .compound import compound
-    from .lattice import Lattice
-
+    docstring), from a pilot compound on a coarse step (:mod:`polyconv.dist.pilot`; estimates
+    only: the answers are certified afterwards)."""
     levels = goal.levels() or [0.5]
     top_p = max(levels)
     n_mean = float(counts.mean())
     # claims on a path with a large claim: the size-biased count E[N^2] / E[N] (lambda + 1 for
     # a Poisson count)
     claims = (float(counts.var()) + n_mean ** 2) / n_mean if n_mean > 0 else 1.0
-    pilot_h = max(float(law.isf(1e-12)) / PILOT_POINTS, h)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        sev = Lattice.from_law(law, step=pilot_h, size=PILOT_POINTS, rule="up")
-        pilot = compound(counts, sev, size=PILOT_POINTS)
-        var = float(pilot.value_at_risk(top_p))
-        tvar = float(pilot.tail_value_at_risk(top_p))
-        if not math.isfinite(tvar):
-            tvar = 4 * var
-        width = goal.tolerance(tvar) * (1 - top_p)
-        for m, a in goal.measures:
-            if m == "stop_loss":
-                width = min(width, goal.tolerance(float(pilot.stop_loss(a))))
+    if pilot is None:
+        pilot = pilot_for(counts, law)
+    var = pilot.var(top_p)
+    tvar = pilot.tvar(top_p, n_mean * law_moments.tail_moment(law, pilot.step * len(pilot.pmf)))
+    if not math.isfinite(tvar):
+        tvar = 4 * var
+    width = goal.tolerance(tvar) * (1 - top_p)
+    for m, a in goal.measures:
+        if m == "stop_loss":
+            width = min(width, goal.tolerance(_pilot_stop_loss(pilot, a)))
     width = max(width, 1e-300)
     reach = _coarse_reach(law, n_mean, SPLIT_SHARE * width / 3)
 
+    # the pilot's points stand up to half a pilot step from their amounts: read its survival
+    # function that many claims further down, and double it (estimates, kept on the safe side)
+    slack = (claims + 4 * math.sqrt(claims)) * pilot.step
+
     def sf(x):
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            return max(float(pilot.sf(x)), 1e-300)
+        return max(2.0 * pilot.sf(max(x - slack, 0.0)), 1e-300)
 
     best = None
     end = max(2.0 * var, max([0.0] + goal.points()) + h, 64 * h)
@@ -262,11 +259,40 @@ def _levels(sf, end: float, reach: float, claims: float, share: float, h: float)
     return out
 
 
-LEVEL_RATIO = 2.0
+LEVEL_RATIO = 8.0
 """Each level of the far tail reaches this many times further than the previous one."""
 
-PILOT_POINTS = 1 << 16
-"""Points of the pilot compound that sizes the levels."""
+PILOT_REACH = 1e-12
+"""A pilot reaches the severity's ``1 - PILOT_REACH`` quantile."""
+
+
+def pilot_for(counts, law) -> Pilot:
+    """The pilot compound (:mod:`polyconv.dist.pilot`) that sizes a spliced plan: the severity's
+    ``1 - PILOT_REACH`` quantile on :data:`~polyconv.dist.pilot.PILOT_POINTS` points."""
+    from .counts import classify
+
+    reach = float(law.isf(PILOT_REACH))
+    return pilot_compound(classify(counts).transform, law, reach / PILOT_POINTS)
+
+
+def _pilot_stop_loss(pilot: Pilot, d: float) -> float:
+    x = np.arange(len(pilot.pmf)) * pilot.step
+    return float(np.dot(pilot.pmf, np.maximum(x - d, 0.0)))
+
+
+def pilot_step(pilot: Pilot, goal: Goal) -> float:
+    """``rtol`` times the pilot's highest VaR asked (else its median), rounded down to a round
+    number (``atol`` when that is larger): the fine grid's own resolution meets the goal."""
+    from .step_check import _nice_floor
+
+    levels = goal.levels()
+    scale = pilot.var(max(levels) if levels else 0.5)
+    if not (math.isfinite(scale) and scale > 0):
+        scale = 16 * pilot.step
+    step = goal.rtol * scale if goal.rtol > 0 else goal.atol
+    if goal.atol > 0:
+        step = max(step, goal.atol) if goal.rtol > 0 else goal.atol
+    return _nice_floor(step)
 
 
 def _coarse_reach(law, n_mean: float, share: float) -> float:
@@ -302,7 +328,7 @@ def spliced_aggregate(counts, law, *, goal: Goal, step: float | None = None,
     goal : Goal
         Measures and precision.
     step : float, optional
-        Fine step ``h``; None: from a pilot VaR (:func:`polyconv.dist.goals.choose_step`).
+        Fine step ``h``; None: from a pilot VaR (:func:`pilot_step`).
     rule : {"nearest", "down", "up"}
         Rule of the lattice model.
     method : {"auto", "fft", "recursion"}
@@ -316,8 +342,7 @@ def spliced_aggregate(counts, law, *, goal: Goal, step: float | None = None,
         fine compound.  Model output, not advice (see :mod:`polyconv.dist`).
     """
     from .compound import compound
-    from .lattice import Lattice
-    from .step_check import CoarseStepWarning
+    from .from_law import lattice_from_law
 
     if not isinstance(goal, Goal):
         raise TypeError(f"goal must be a polyconv.dist.Goal; got {type(goal).__name__}")
@@ -325,19 +350,18 @@ def spliced_aggregate(counts, law, *, goal: Goal, step: float | None = None,
     if rule == "moments":
         raise ValueError("rule must be 'nearest', 'down' or 'up' for a spliced grid; got "
                          "'moments'")
+    pilot = pilot_for(counts, law)
     if step is None:
-        step = choose_step(counts, law, goal, rule=rule)
+        step = pilot_step(pilot, goal)
     h = float(step)
-    n_f, plan = _plan(counts, law, h, goal)
+    n_f, plan = _plan(counts, law, h, goal, pilot)
     if not plan:  # a light enough tail: one grid, sized by the goal (polyconv.dist.goals)
         from .goals import aggregate_for_goal
         fine = aggregate_for_goal(counts, law, goal=goal, step=h, rule=rule, method=method)
         answers = {(m, a): _judge(_quiet(fine, m, a), goal) for m, a in goal.measures}
         return SplicedAnswers(answers, h, len(fine), (), fine)
     for attempt in range(RETRIES + 1):
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", CoarseStepWarning)
-            sev = Lattice.from_law(law, step=h, size=n_f, rule=rule)
+        sev = lattice_from_law(law, step=h, size=n_f, rule=rule, check=attempt == 0)
         fine = compound(counts, sev, method=method, size=n_f)
         levels, ends = [], [h * n_f]
         for i, (k, n) in enumerate(plan):
