@@ -17,6 +17,7 @@ import warnings
 import numpy as np
 
 from . import risk
+from .accuracy import float_range
 from .errors import AccuracyWarning, TruncationWarning
 
 _real = risk.real_value
@@ -41,7 +42,7 @@ class LatticeQueries:
 
     def _mean(self) -> float:
         mass = float(np.sum(self._pmf))
-        k = np.arange(self._pmf.size)
+        k = float_range(self._pmf.size)
         return self._origin * mass + self._step * float(np.dot(self._pmf, k))
 
     def mean(self) -> float:

@@ -49,7 +49,7 @@ from .goals import Goal
 from .ledger import Bounded, ErrorLedger
 from .pilot import PILOT_POINTS, Pilot, pilot_compound
 
-SPLIT_SHARE = 0.5
+SPLIT_SHARE = 0.8
 """Share of the goal's width given to the coarse bracket of the far tail."""
 
 RETRIES = 3
@@ -205,32 +205,28 @@ def _plan(counts, law, h: float, goal: Goal, pilot=None):
     if pilot is None:
         pilot = pilot_for(counts, law)
     var = pilot.var(top_p)
-    tvar = pilot.tvar(top_p, n_mean * law_moments.tail_moment(law, pilot.step * len(pilot.pmf)))
+    tvar = pilot.tvar(top_p, n_mean * law_moments.tail_moment(law, pilot.far_end))
     if not math.isfinite(tvar):
         tvar = 4 * var
     width = goal.tolerance(tvar) * (1 - top_p)
     for m, a in goal.measures:
         if m == "stop_loss":
-            width = min(width, goal.tolerance(_pilot_stop_loss(pilot, a)))
+            width = min(width, goal.tolerance(pilot.stop_loss(a)))
     width = max(width, 1e-300)
     reach = _coarse_reach(law, n_mean, SPLIT_SHARE * width / 3)
 
-    # the pilot's points stand up to half a pilot step from their amounts: read its survival
-    # function that many claims further down, and double it (estimates, kept on the safe side)
-    slack = (claims + 4 * math.sqrt(claims)) * pilot.step
-
     def sf(x):
-        return max(2.0 * pilot.sf(max(x - slack, 0.0)), 1e-300)
+        return max(SF_MARGIN * pilot.sf_high(x, claims), 1e-300)
 
     best = None
     end = max(2.0 * var, max([0.0] + goal.points()) + h, 64 * h)
     while end < reach and end / h <= goal.max_points:
         plan = _levels(sf, end, reach, claims, SPLIT_SHARE * width * 2 / 3, h)
         if plan is not None:
-            cost = end / h + 2 * sum(n for _, n in plan)
+            cost = _cost(end / h) + 2 * sum(_cost(n) for _, n in plan)
             if best is None or cost < best[0]:
                 best = (cost, int(math.ceil(end / h)), plan)
-        end *= LEVEL_RATIO
+        end *= END_RATIO
     if best is None:
         return min(int(math.ceil(reach / h)) + 1, goal.max_points), []
     return best[1], best[2]
@@ -262,17 +258,94 @@ def _levels(sf, end: float, reach: float, claims: float, share: float, h: float)
 LEVEL_RATIO = 8.0
 """Each level of the far tail reaches this many times further than the previous one."""
 
+END_RATIO = 1.25
+"""Candidate ends of the fine grid are this far apart (geometrically)."""
+
+COMPOUND_OVERHEAD = 20_000
+"""Cost of one compound beyond its points, in points (its fixed work: bounds, ledger)."""
+
+
+def _cost(points: float) -> float:
+    """Planning cost of a compound on ``points`` (transform ``n log n`` plus the fixed work)."""
+    return points * math.log2(max(points, 2.0)) / 16 + COMPOUND_OVERHEAD
+
+
 PILOT_REACH = 1e-12
 """A pilot reaches the severity's ``1 - PILOT_REACH`` quantile."""
 
 
-def pilot_for(counts, law) -> Pilot:
-    """The pilot compound (:mod:`polyconv.dist.pilot`) that sizes a spliced plan: the severity's
-    ``1 - PILOT_REACH`` quantile on :data:`~polyconv.dist.pilot.PILOT_POINTS` points."""
+def pilot_for(counts, law) -> PilotPair:
+    """The pilot compounds (:mod:`polyconv.dist.pilot`) that size a spliced plan: one reaching
+    the severity's ``1 - PILOT_REACH`` quantile on :data:`~polyconv.dist.pilot.PILOT_POINTS`
+    points, and, when its VaR lies within a few of its steps (tails so heavy that reach and
+    resolution conflict), a second one reaching a few times that VaR."""
     from .counts import classify
 
+    transform_law = classify(counts).transform
     reach = float(law.isf(PILOT_REACH))
-    return pilot_compound(classify(counts).transform, law, reach / PILOT_POINTS)
+    far = pilot_compound(transform_law, law, reach / PILOT_POINTS)
+    var_hi = far.var(1 - 1e-3)
+    near = far
+    if math.isfinite(var_hi) and var_hi < NEAR_STEPS * far.step:
+        near = pilot_compound(transform_law, law, max(4 * var_hi, far.step) / NEAR_POINTS,
+                              NEAR_POINTS)
+    return PilotPair(far, near, law)
+
+
+NEAR_STEPS = 1024
+"""A second, finer pilot is run when the far pilot's 99.9% VaR is within this many steps."""
+
+NEAR_POINTS = 1 << 14
+"""Points of the finer pilot."""
+
+SF_MARGIN = 2.0
+"""The plan reads the pilot's survival function times this (on the safe side)."""
+
+
+class PilotPair(NamedTuple):
+    """A far-reaching pilot and a finer one near the body (the same one when one suffices)."""
+
+    far: Pilot
+    near: Pilot
+    law: object
+    """The severity law (beyond the far pilot's end)."""
+
+    @property
+    def far_end(self) -> float:
+        return self.far.step * len(self.far.pmf)
+
+    @property
+    def near_end(self) -> float:
+        return self.near.step * len(self.near.pmf)
+
+    def var(self, p: float) -> float:
+        v = self.near.var(p)
+        return v if math.isfinite(v) else self.far.var(p)
+
+    def stop_loss(self, d: float) -> float:
+        """Estimate of ``E[(S - d)+]`` on the pilots: the near one below its end, the far one
+        beyond."""
+        if self.near is self.far or d >= self.near_end:
+            return _pilot_stop_loss(self.far, d)
+        end = self.near_end
+        return (_pilot_stop_loss(self.near, d) + _pilot_stop_loss(self.far, end)
+                + (end - d) * self.far.sf(end))
+
+    def tvar(self, p: float, tail_moment: float) -> float:
+        v = self.var(p)
+        if not math.isfinite(v):
+            return math.inf
+        return v + (self.stop_loss(v) + max(tail_moment, 0.0)) / (1 - p)
+
+    def sf_high(self, x: float, claims: float) -> float:
+        """``P(S > x)`` read further down by the pilot points' offset (half a pilot step per
+        claim, ``claims`` plus four standard deviations of them): an estimate on the safe
+        side."""
+        if x >= self.far_end:  # a single large claim (subexponential tails), on the safe side
+            return min(1.0, claims * float(self.law.sf(x / 2)))
+        pilot = self.near if x < self.near_end else self.far
+        slack = (claims + 4 * math.sqrt(claims)) * pilot.step
+        return pilot.sf(max(x - slack, 0.0))
 
 
 def _pilot_stop_loss(pilot: Pilot, d: float) -> float:
@@ -280,7 +353,7 @@ def _pilot_stop_loss(pilot: Pilot, d: float) -> float:
     return float(np.dot(pilot.pmf, np.maximum(x - d, 0.0)))
 
 
-def pilot_step(pilot: Pilot, goal: Goal) -> float:
+def pilot_step(pilot: PilotPair, goal: Goal) -> float:
     """``rtol`` times the pilot's highest VaR asked (else its median), rounded down to a round
     number (``atol`` when that is larger): the fine grid's own resolution meets the goal."""
     from .step_check import _nice_floor
@@ -288,7 +361,7 @@ def pilot_step(pilot: Pilot, goal: Goal) -> float:
     levels = goal.levels()
     scale = pilot.var(max(levels) if levels else 0.5)
     if not (math.isfinite(scale) and scale > 0):
-        scale = 16 * pilot.step
+        scale = 16 * pilot.near.step
     step = goal.rtol * scale if goal.rtol > 0 else goal.atol
     if goal.atol > 0:
         step = max(step, goal.atol) if goal.rtol > 0 else goal.atol
@@ -306,7 +379,7 @@ def _coarse_reach(law, n_mean: float, share: float) -> float:
     hi = lo
     while excess(hi) > share and hi < 1e300:
         hi *= 4.0
-    for _ in range(60):
+    for _ in range(24):  # hi / lo ends below 4^(2^-24): far finer than any plan needs
         mid = math.sqrt(lo * hi)
         if excess(mid) > share:
             lo = mid

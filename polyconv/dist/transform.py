@@ -97,12 +97,13 @@ def reduced_severity(f: np.ndarray, max_len: int = 1024) -> tuple[np.ndarray, np
     return ends[keep], blocks[keep]
 
 
-def log_chernoff_tail(law: TransformLaw, sev: tuple[np.ndarray, np.ndarray], x: float) -> float:
+def log_chernoff_tail(law: TransformLaw, sev: tuple[np.ndarray, np.ndarray], x: float,
+                      refine: bool = True) -> float:
     """log of an upper bound of ``P(S >= x)`` (Chernoff: ``min_t e^{-t x} P(M_X(t))``).
 
     ``t`` runs over a log-spaced grid, refined once around its best point; any ``t`` gives a
-    valid bound, the grid only affects tightness.  Returns 0.0 (the trivial bound) when no
-    ``t`` helps.
+    valid bound, the grid only affects tightness (``refine=False``: the first grid only).
+    Returns 0.0 (the trivial bound) when no ``t`` helps.
     """
     idx, mass = sev
     if x <= 0 or idx.size == 0:
@@ -110,7 +111,7 @@ def log_chernoff_tail(law: TransformLaw, sev: tuple[np.ndarray, np.ndarray], x: 
     logm = np.log(mass)
     best = 0.0
     taus = TAUS
-    for _ in range(2):  # a coarse log-grid of t, then a finer one around its best point
+    for _ in range(2 if refine else 1):  # a coarse log-grid of t, then a finer one
         vals = _chernoff_values(law, logm, idx, taus / x, x)
         i = int(np.argmin(vals))
         best = min(best, float(vals[i]))
@@ -153,19 +154,27 @@ def log_split_tail(law: TransformLaw, sev: tuple[np.ndarray, np.ndarray], x: flo
     order = np.argsort(idx)
     idx, mass = idx[order], mass[order]
     above = np.cumsum(mass[::-1])[::-1]  # mass of blocks at index >= position
-    best = 0.0
-    for frac in SPLIT_FRACTIONS:
+    def combined(jump, log_rest):
+        if jump == 0.0:
+            return log_rest
+        if jump + math.exp(log_rest) < 1.0:
+            return math.log(jump) + math.log1p(math.exp(log_rest) / jump)
+        return 0.0
+
+    best, best_cap = 0.0, None
+    for frac in SPLIT_FRACTIONS:  # each cap on the first t-grid, the best one refined
         c = frac * x
         k = int(np.searchsorted(idx, c, side="right"))
         jump = law.mean * (float(above[k]) if k < idx.size else 0.0)
         if jump >= 1.0:
             continue
         capped = (np.minimum(idx, c), mass)
-        log_rest = log_chernoff_tail(law, capped, x)
-        if jump == 0.0:
-            best = min(best, log_rest)
-        elif jump + math.exp(log_rest) < 1.0:
-            best = min(best, math.log(jump) + math.log1p(math.exp(log_rest) / jump))
+        val = combined(jump, log_chernoff_tail(law, capped, x, refine=False))
+        if val < best:
+            best, best_cap = val, (jump, capped)
+    if best_cap is not None:
+        jump, capped = best_cap
+        best = min(best, combined(jump, log_chernoff_tail(law, capped, x)))
     return best
 
 
@@ -208,6 +217,8 @@ class TransformResult:
     l1_bound: float = float("inf")
     """Bound of the L1 norm of the error over the ``size`` entries (see
     :func:`polyconv.dist.accuracy.untilted_l1`)."""
+    log_alias_mass: float = 0.0
+    """log of the bound of ``P(S >= n_fft)`` used."""
 
 
 def transform_compound(law: TransformLaw, f: np.ndarray, size: int, *, n_fft: int | None = None,
@@ -246,7 +257,7 @@ def transform_compound(law: TransformLaw, f: np.ndarray, size: int, *, n_fft: in
         theta2 = accuracy.choose_tilt(res.n_fft, size, math.log(max(res.aliasing_floor, 1e-300))
                                       + res.theta * res.n_fft, tilted_round)
         if theta2 > 1.05 * res.theta:
-            res2 = _transform_once(law, f, size, res.n_fft, theta2, log_alias_mass)
+            res2 = _transform_once(law, f, size, res.n_fft, theta2, res.log_alias_mass)
             if res2.trust_floor < res.trust_floor:
                 res = res2
     return res
@@ -288,7 +299,8 @@ def _transform_once(law, f, size, n_fft, theta, log_alias_mass) -> TransformResu
     alias = accuracy.aliasing_bound(log_alias_mass, theta, n_fft)
     np.maximum(g, 0.0, out=g)
     l1 = accuracy.untilted_l1(rounding, theta, size) + alias
-    return TransformResult(g, rounding_u + alias, n_fft, theta, rounding_u, alias, l1)
+    return TransformResult(g, rounding_u + alias, n_fft, theta, rounding_u, alias, l1,
+                           log_alias_mass)
 
 
 def _hermitian_sq_sum(half: np.ndarray, n_fft: int) -> float:
