@@ -32,7 +32,7 @@ from .counts import CountsLaw, classify
 from .errors import TruncationWarning
 from .lattice import Lattice
 from .ledger import ErrorLedger, cum_bound, untruncated
-from .transform import size_for_tail, transform_compound
+from .transform import check_transform_budget, size_for_tail, transform_compound
 
 DEFAULT_TAIL = 1e-12
 """Default grid: the smallest with Chernoff-bounded mass beyond it below this tolerance."""
@@ -106,6 +106,7 @@ def compound(counts, severity: Lattice, *, method: str = "auto", size: int | Non
         return compound_for_goal(counts, severity, goal, method=method)
     f = _severity_vector(severity)
     size = _grid_size(law, f, size)
+    check_transform_budget(max(size, f.size), f"size={size} (compound points)")
     stable = law.ab is not None and law.ab[0] >= 0
     if method == "auto":
         method = "recursion" if stable and size <= RECURSION_AUTO_MAX else "fft"

@@ -48,6 +48,10 @@ MAX_POINTS = 1 << 24
 """Largest lattice (memory budget: a few arrays of this many float64); a longer default is cut
 here with a :class:`TruncationWarning`, a longer explicit ``size`` is refused."""
 
+FROM_LAW_BYTES_PER_POINT = 64
+"""Peak bytes per point of ``lattice_from_law`` (edges, cdf/sf values, differences, the pmf and
+scipy's temporaries), checked against the memory budget before allocating."""
+
 _OFFSET = {"nearest": 0.5, "down": 1.0, "up": 0.0}
 """Upper edge of cell ``j`` is ``o + (j + offset) h``."""
 
@@ -321,6 +325,9 @@ def lattice_from_law(law, *, step: float, size: int | None = None, rule: str = "
     elif size > MAX_POINTS:
         raise ValueError(f"size must be at most {MAX_POINTS} points (memory budget); got {size}")
     size = int(size)
+    from .. import budget
+    budget.check_allocation(FROM_LAW_BYTES_PER_POINT * float(size),
+                            f"size={size} (from_law points)")
     pmf, point, l1, truncated = rule_pmf(access, origin, h, size, rule)
     moment = truncated_moment(access, origin, h, size, rule, truncated)
     lattice = make_lattice(pmf, h, origin, point=point, l1=l1, moment=moment)

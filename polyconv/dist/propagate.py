@@ -27,7 +27,7 @@ from .ledger import (
     untruncated,
 )
 from .risk import real_value
-from .transform import power_law, transform_compound
+from .transform import check_transform_budget, power_law, transform_compound
 
 STEP_RTOL = 1e-9
 """Relative tolerance within which two lattice steps count as equal."""
@@ -102,6 +102,7 @@ def nfold(x, n: int) -> tuple[np.ndarray, float, float, ErrorLedger]:
     if n == 1:
         return f, x.step, x.origin, e
     full = n * (f.size - 1) + 1
+    check_transform_budget(full, f"nfold(n={n}) (a result of {full} points)")
     from scipy import fft as sfft
     res = transform_compound(power_law(n), f, full, n_fft=sfft.next_fast_len(full, real=True),
                              theta=0.0, log_alias_mass=-math.inf)

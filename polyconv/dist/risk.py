@@ -321,7 +321,7 @@ class Bracketer:
         err = err + (8 * _U + 2 * (n - m + 2) * _UL) * value \
             + 4 * _U * (np.abs(xm) + np.abs(d)) * self.s[m]  # float x_m - d
         x_from = self.o + h * self.tf
-        trunc_low = self.t_low * np.maximum(x_from - d, 0.0)
+        trunc_low = self.t_low * np.maximum(x_from - d, 0.0) if self.t_low > 0 else 0.0
         trunc_high = self._moment_high() + np.maximum(-d, 0.0) * self.t_high
         low = np.maximum(value - err, 0.0) + trunc_low
         high = value + err + trunc_high
@@ -375,7 +375,7 @@ class Bracketer:
         err += (self.n + 2) * _U * absum + 4 * _U * (abs(self.o) * mass + abs(value))
         x_from = self.o + self.h * self.tf
         m = self._moment_high()
-        t_lo = self.t_low * x_from if x_from >= 0 else -m
+        t_lo = (self.t_low * x_from if self.t_low > 0 else 0.0) if x_from >= 0 else -m
         return value - err + t_lo, value + err + m
 
     def _sb1(self) -> float:

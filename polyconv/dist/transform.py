@@ -24,6 +24,20 @@ import numpy as np
 from .. import transforms as tf
 from . import accuracy
 
+TRANSFORM_BYTES_PER_POINT = 80
+"""Peak bytes per result point of a padded transform route (``M = 2 size``: the tilted input and
+the inverse output, 8 bytes per transform point each, and two complex half spectra, 16 bytes per
+transform point together), plus the result and its error arrays; checked against the memory
+budget (:mod:`polyconv.budget`) before allocating."""
+
+
+def check_transform_budget(points: int, what: str) -> None:
+    """Refuse (:class:`polyconv.budget.MemoryBudgetError`, naming ``what``) a transform route on
+    ``points`` result points that does not fit the memory budget."""
+    from .. import budget
+
+    budget.check_allocation(TRANSFORM_BYTES_PER_POINT * float(points), what)
+
 
 @dataclass(frozen=True)
 class TransformLaw:

@@ -1,0 +1,80 @@
+"""Lattices at the edges: infinite points, extreme steps, huge sizes, wrong kinds of laws.
+
+Each check names its source beside it.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+
+import numpy as np
+import pytest
+from scipy import stats
+
+from polyconv.budget import MemoryBudgetError, using_budget
+from polyconv.dist import AccuracyWarning, Lattice, compound
+
+
+def test_cdf_at_infinity_with_an_origin():
+    lat = Lattice([0.25, 0.5, 0.25], origin=2)
+    # F(inf) = 1, F(-inf) = 0, S(inf) = 0 for any law (definition of a cdf; common practice)
+    assert lat.cdf(math.inf) == 1.0
+    assert lat.cdf(-math.inf) == 0.0
+    assert lat.sf(math.inf) == 0.0
+    # points 2, 3, 4 with masses 1/4, 1/2, 1/4: F(1) = 0, F(2) = 1/4, F(3) = 3/4 (exact fractions)
+    assert list(lat.cdf([1.0, 2.0, 3.0, math.inf])) == [0.0, 0.25, 0.75, 1.0]
+
+
+def test_moments_at_the_largest_step():
+    h = 1e308
+    lat = Lattice([0.5, 0.5], step=h)
+    # two points 0 and h with mass 1/2: mean h/2, std h/2 (exact), variance h^2/4 beyond float
+    assert lat.mean() == h / 2
+    assert lat.std() == h / 2
+    b = lat.bounded("std")
+    assert not b.refused and b.low <= h / 2 <= b.high
+    assert (b.high - b.low) / (h / 2) < 1e-12
+    with pytest.warns(AccuracyWarning, match="overflows"):
+        assert lat.variance() == math.inf
+    m = lat.bounded("mean")
+    assert not m.refused and m.low <= h / 2 <= m.high
+
+
+def test_std_bound_in_step_units_matches_small_steps():
+    # masses 1/4, 1/2, 1/4 on 0, h, 2h: variance h^2/2 (exact fractions)
+    for h in (0.1, 1.0, 1e200):
+        b = Lattice([0.25, 0.5, 0.25], step=h).bounded("std")
+        assert b.low <= math.sqrt(0.5) * h <= b.high
+        assert b.value == pytest.approx(math.sqrt(0.5) * h, rel=1e-15)
+
+
+def test_huge_sizes_are_refused_by_the_memory_budget():
+    lat = Lattice([0.5, 0.5])
+    with using_budget("512M"):
+        # 2^40 copies: a result of 2^40 + 1 points, about 80 TB of transforms (common practice)
+        with pytest.raises(MemoryBudgetError, match=r"nfold\(n=1099511627776\)"):
+            lat.nfold(2 ** 40)
+        with pytest.raises(MemoryBudgetError, match="size=1099511627776"):
+            compound(stats.poisson(3.0), lat, size=2 ** 40)
+        with pytest.raises(ValueError, match="size"):
+            Lattice.from_law(stats.expon(), step=1.0, size=2 ** 40)
+        with pytest.raises(MemoryBudgetError, match="size=16000000"):
+            Lattice.from_law(stats.expon(), step=1.0, size=16_000_000)
+
+
+def test_continuous_counts_are_refused_naming_counts():
+    with pytest.raises(TypeError, match="counts must be a discrete law.*continuous law "
+                                        r"scipy\.stats\.norm"):
+        compound(stats.norm(3.0), Lattice([0.5, 0.5]))
+
+
+def test_moment_overflow_warns():
+    lat = Lattice([0.5, 0.5], step=1e200)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", RuntimeWarning)
+        with pytest.warns(AccuracyWarning, match=r"moment\(2\) overflows"):
+            assert lat.moment(2) == math.inf
+    # (1e200)^1 / 2 = 5e199 (exact in binary up to rounding of the product)
+    assert lat.moment(1) == pytest.approx(5e199, rel=1e-15)
+    assert np.isfinite(lat.std())
