@@ -13,7 +13,7 @@ import pytest
 from scipy import stats
 
 from polyconv.budget import MemoryBudgetError, using_budget
-from polyconv.dist import AccuracyWarning, Lattice, compound
+from polyconv.dist import AccuracyWarning, ErrorLedger, Lattice, compound
 
 
 def test_cdf_at_infinity_with_an_origin():
@@ -78,3 +78,21 @@ def test_moment_overflow_warns():
     # (1e200)^1 / 2 = 5e199 (exact in binary up to rounding of the product)
     assert lat.moment(1) == pytest.approx(5e199, rel=1e-15)
     assert np.isfinite(lat.std())
+
+
+def test_stop_loss_at_the_point_where_truncated_mass_starts():
+    # campaign seed 1005109 (bench/risk_campaign.py): truncated mass that may lie from the last
+    # point on, asked at d = that point.  Exact model here: the mass t sits at the last point
+    # x_12 = 0.1 + 12 * 0.1, so E[(X - d)+] = 0 exactly and E[X 1{truncated}] = t x_12
+    # (exact fractions, dyadic masses).
+    t = 2.0 ** -10
+    pmf = np.full(13, (1 - t) / 13)
+    pmf[-1] += 1 - t - float(np.sum(pmf))
+    x_last = 0.1 + 12 * 0.1
+    errors = ErrorLedger(0.0, 0.0, t, 12, t * x_last * (1 + 1e-15))
+    lat = Lattice(pmf, step=0.1, origin=0.1, errors=errors)
+    d = 13 * 0.1  # the campaign's retention: index 13 times the step, 1.3000000000000003
+    b = lat.bounded("stop_loss", d)
+    assert b.low == 0.0
+    # high end: E[(X - d)+ 1{T}] <= M - min(d, x_from) t_low, a few roundoffs here (was M ~ 1.3e-3)
+    assert 0.0 <= b.high < 1e-14

@@ -320,12 +320,30 @@ class Bracketer:
         err = (xm - d) * self.Bt[m] + h * self.SB[np.minimum(m + 1, n + 1)]
         err = err + (8 * _U + 2 * (n - m + 2) * _UL) * value \
             + 4 * _U * (np.abs(xm) + np.abs(d)) * self.s[m]  # float x_m - d
-        x_from = self.o + h * self.tf
+        x_from = self._x_from_low()
         trunc_low = self.t_low * np.maximum(x_from - d, 0.0) if self.t_low > 0 else 0.0
-        trunc_high = self._moment_high() + np.maximum(-d, 0.0) * self.t_high
+        trunc_high = self._truncated_excess_high(d, x_from)
         low = np.maximum(value - err, 0.0) + trunc_low
         high = value + err + trunc_high
         return low, high
+
+    def _x_from_low(self) -> float:
+        """A float-safe lower bound of the lowest point where truncated mass may lie,
+        ``origin + step * truncated_from`` less its rounding."""
+        x = self.o + self.h * self.tf
+        return x - 4 * _U * (abs(self.o) + self.h * self.tf)
+
+    def _truncated_excess_high(self, d: np.ndarray, x_from: float) -> np.ndarray:
+        """Upper bound of ``E[(X - d)+ 1{X truncated}]``.  The truncated part lies at or above
+        ``x_from``, so with ``c = min(d, x_from)``: ``(X - d)+ <= X - c`` there, and
+        ``E[(X - c) 1{T}] <= M - c t`` (``M`` the ledger's first-moment bound, ``t`` the
+        truncated mass: its low bound when ``c >= 0``, its high bound otherwise)."""
+        m = self._moment_high()
+        if self.t_high == 0 or not math.isfinite(m):
+            return np.full(np.shape(d), m) if np.ndim(d) else m
+        c = np.minimum(d, x_from)
+        sub = np.where(c >= 0, c * self.t_low * (1 - 4 * _U), c * self.t_high * (1 + 4 * _U))
+        return np.maximum(m - sub, 0.0)
 
     def _moment_high(self) -> float:
         if self.t_high == 0:
@@ -373,7 +391,7 @@ class Bracketer:
             absum = float(np.dot(np.abs(self.o + self.h * k), self.pmf))
         mass = float(np.sum(self.pmf)) * (1 + (self.n + 2) * _U)
         err += (self.n + 2) * _U * absum + 4 * _U * (abs(self.o) * mass + abs(value))
-        x_from = self.o + self.h * self.tf
+        x_from = self._x_from_low()
         m = self._moment_high()
         t_lo = (self.t_low * x_from if self.t_low > 0 else 0.0) if x_from >= 0 else -m
         return value - err + t_lo, value + err + m
