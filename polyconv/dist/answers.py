@@ -167,7 +167,8 @@ class LatticeAnswers:
         h = self._step
         led = self._ledger
         scaled = risk.Bracketer(self._pmf, 1.0, self._origin / h, led._replace(
-            truncated_moment=led.truncated_moment / h))
+            truncated_moment=led.truncated_moment / h,
+            truncated_moment2=led.truncated_moment2 / h / h))
         lo1, hi1 = scaled.mean_range(m1 / h)
         u = self._origin / h + float_range(self._pmf.size)
         m2 = float(np.dot(self._pmf, u * u))

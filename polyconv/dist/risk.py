@@ -410,11 +410,12 @@ class Bracketer:
         return (d * q * (q + 1) / 2 + (top - q) * c) * (1 + 4 * _U)
 
     def second_moment_range(self, pmf: np.ndarray, value: float) -> tuple[float, float]:
-        """Certified range of the exact ``E[X^2]`` (``inf`` high when truncated mass may have
-        any location)."""
+        """Certified range of the exact ``E[X^2]``: the on-grid sum, its error by summation by
+        parts, and the ledger's bound of the truncated part's second moment (``inf`` unknown)."""
         w = (abs(self.o) + self.h * np.arange(self.n)) ** 2
         inc = np.diff(np.concatenate(([0.0], w)))  # increments of a non-decreasing weight
         err = float(np.dot(inc, self.B[: self.n]))
         err += (self.n + 2) * _U * float(np.dot(w, pmf))
-        high = value + err + (np.inf if self.t_high > 0 else 0.0)
+        trunc = self.ledger.truncated_moment2 if self.t_high > 0 else 0.0
+        high = (value + err + trunc) * (1 + 2 * _U)
         return max(value - err, 0.0), high
