@@ -26,6 +26,7 @@ careful estimates rather than certificates.
 
 from __future__ import annotations
 
+import functools
 import math
 
 import numpy as np
@@ -172,3 +173,12 @@ def choose_tilt(n_fft: int, size: int, log_alias_mass: float, rounding: float) -
         return 0.0
     val = (math.log(n_fft) + min(log_alias_mass, 0.0) - math.log(s) - math.log(rounding))
     return max(0.0, val / (n_fft + s))
+
+
+@functools.lru_cache(maxsize=8)
+def float_range(n: int) -> np.ndarray:
+    """``0.0, 1.0, ..., n - 1`` as a read-only float array, cached (dot products with a pmf
+    run as BLAS calls without converting an integer range each time)."""
+    out = np.arange(n, dtype=float)
+    out.flags.writeable = False
+    return out

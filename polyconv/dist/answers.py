@@ -1,4 +1,4 @@
-"""Answers with their certified ranges: :meth:`Lattice.bounded <polyconv.dist.lattice.Lattice.bounded>`.
+"""Answers with their certified ranges: ``Lattice.bounded``.
 
 A mixin of :class:`~polyconv.dist.lattice.Lattice`: each measure's value with the range the error
 ledger certifies (:class:`~polyconv.dist.ledger.Bounded`), refused (``nan`` and a warning) when
@@ -15,6 +15,7 @@ import warnings
 import numpy as np
 
 from . import risk
+from .accuracy import float_range
 from .errors import AccuracyWarning, TruncationWarning
 from .ledger import Bounded
 from .queries import _real_or_inf
@@ -162,12 +163,19 @@ class LatticeAnswers:
         lo1, hi1 = br.mean_range(m1)
         if measure == "mean":
             return self._refuse_or_keep(m1, lo1, hi1, rtol, risk.DEFAULT_RTOL, "mean", 3)
-        m2 = float(np.dot(self._pmf, self.values ** 2))
-        lo2, hi2 = br.second_moment_range(self._pmf, m2)
+        # std in units of the step (no overflow for any finite step): u = x / step
+        h = self._step
+        led = self._ledger
+        scaled = risk.Bracketer(self._pmf, 1.0, self._origin / h, led._replace(
+            truncated_moment=led.truncated_moment / h,
+            truncated_moment2=led.truncated_moment2 / h / h))
+        lo1, hi1 = scaled.mean_range(m1 / h)
+        u = self._origin / h + float_range(self._pmf.size)
+        m2 = float(np.dot(self._pmf, u * u))
+        lo2, hi2 = scaled.second_moment_range(self._pmf, m2)
         sq_hi = max(lo1 * lo1, hi1 * hi1)
         sq_lo = 0.0 if lo1 <= 0 <= hi1 else min(lo1 * lo1, hi1 * hi1)
         var_lo, var_hi = max(lo2 - sq_hi, 0.0), max(hi2 - sq_lo, 0.0)
-        value = math.sqrt(self._variance()) if br.t_high == 0 or self.truncated_mass == 0 \
-            else math.sqrt(self._variance())
-        return self._refuse_or_keep(value, math.sqrt(var_lo), math.sqrt(var_hi), rtol,
+        value = self._std()
+        return self._refuse_or_keep(value, h * math.sqrt(var_lo), h * math.sqrt(var_hi), rtol,
                                     risk.DEFAULT_RTOL, "std", 3)

@@ -32,7 +32,7 @@ from .counts import CountsLaw, classify
 from .errors import TruncationWarning
 from .lattice import Lattice
 from .ledger import ErrorLedger, cum_bound, untruncated
-from .transform import size_for_tail, transform_compound
+from .transform import check_transform_budget, size_for_tail, transform_compound
 
 DEFAULT_TAIL = 1e-12
 """Default grid: the smallest with Chernoff-bounded mass beyond it below this tolerance."""
@@ -106,6 +106,7 @@ def compound(counts, severity: Lattice, *, method: str = "auto", size: int | Non
         return compound_for_goal(counts, severity, goal, method=method)
     f = _severity_vector(severity)
     size = _grid_size(law, f, size)
+    check_transform_budget(max(size, f.size), f"size={size} (compound points)")
     stable = law.ab is not None and law.ab[0] >= 0
     if method == "auto":
         method = "recursion" if stable and size <= RECURSION_AUTO_MAX else "fft"
@@ -192,19 +193,56 @@ def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g:
     if not math.isfinite(sev_mean_high):
         moment = math.inf
     else:
-        k = np.arange(size)
-        on_grid = h * float(np.dot(k.astype(np.longdouble), g))  # sum within size u_long
+        k = accuracy.float_range(size)
+        on_grid = h * float(np.dot(k, g))  # a float dot: within (size + 2) u (Higham 3.1)
         j = k[1:]
         # sum_k x_k |e_k|: the route's per-point bounds; the severity's errors carried through
         # by summation by parts on their cumulative bound
         err = h * float(np.dot(k, errs)) + h * float(np.sum(np.minimum(
             min(l1_in, 2 * cum_in), (size - j) * point_in)))
-        err = err * (1 + 4 * _U) + ((size + 2) * _UL + 4 * _U) * on_grid
+        err = err * (1 + 4 * _U) + ((size + 2) * _U + 4 * _U) * on_grid
         total = mean_n * sev_mean_high * (1 + 4 * _U)
         if law.tail_mass > 0:
             total += _count_tail_moment(counts, law) * sev_mean_high
         moment = max(total - (on_grid - err), 1e-300)
-    return ErrorLedger(point, l1, 0.0, tf, moment, cum)
+    moment2 = _truncated_second_moment(counts, law, severity, br, g, errs, h,
+                                       (l1_in, cum_in, point_in), sev_mean_high)
+    return ErrorLedger(point, l1, 0.0, tf, moment, cum, moment2)
+
+
+def _truncated_second_moment(counts, law: CountsLaw, severity: Lattice, br, g: np.ndarray,
+                             errs: np.ndarray, h: float, carried, sev_mean_high: float) -> float:
+    """Upper bound of ``E[S^2 1{S in the truncated part}]``: ``E[S^2]`` minus the on-grid
+    second moment, ``E[S^2] = E[N] E[X^2] + E[N(N - 1)] E[X]^2`` (moments of a random sum;
+    common practice, no source), with ``E[X]`` and ``E[X^2]`` at the severity's certified high
+    ends (its ledger's truncated second moment included).  The on-grid sum's error is the
+    route's per-point bounds times ``x_k^2`` plus the severity's carried errors by summation by
+    parts (``x_k^2`` grows by ``h^2 (2k - 1)`` per point).  ``inf`` when a moment is unknown or
+    the count tail is dropped (generic counting laws)."""
+    if law.tail_mass > 0 or not math.isfinite(sev_mean_high):
+        return math.inf
+    sev_pmf = np.asarray(severity.pmf)
+    vals = severity.values
+    with np.errstate(over="ignore", invalid="ignore"):
+        m2_sev = float(np.dot(sev_pmf, vals * vals))
+        ex2 = br.second_moment_range(sev_pmf, m2_sev)[1]
+    if not math.isfinite(ex2):
+        return math.inf
+    m, v = (float(t) for t in counts.stats(moments="mv"))
+    factorial2 = max(v + m * m - m, 0.0)  # E[N(N - 1)]
+    total = (m * ex2 + factorial2 * sev_mean_high * sev_mean_high) * (1 + 8 * _U)
+    size = g.size
+    k = accuracy.float_range(size)
+    k2 = k * k
+    on_grid2 = h * h * float(np.dot(k2, g))
+    l1_in, cum_in, point_in = carried
+    j = k[1:]
+    err2 = h * h * (float(np.dot(k2, errs)) + float(np.dot(2 * j - 1, np.minimum(
+        min(l1_in, 2 * cum_in), (size - j) * point_in))))
+    err2 = err2 * (1 + 4 * _U) + ((size + 2) * _U + 4 * _U) * on_grid2
+    if not math.isfinite(total - on_grid2 + err2):
+        return math.inf
+    return max(total - (on_grid2 - err2), 1e-300)
 
 
 def _count_tail_moment(counts, law: CountsLaw) -> float:

@@ -84,6 +84,10 @@ def classify(counts) -> CountsLaw:
         If its support is not within the non-negative integers or too long.
     """
     dist = getattr(counts, "dist", None)
+    if isinstance(dist, stats.rv_continuous):
+        raise TypeError(f"counts must be a discrete law of claim counts (values 0, 1, 2, ...), "
+                        f"e.g. scipy.stats.poisson(3.0); got the continuous law "
+                        f"scipy.stats.{dist.name}(...)")
     if not isinstance(dist, stats.rv_discrete) or not hasattr(counts, "pmf"):
         raise TypeError("counts must be a frozen scipy.stats discrete distribution, e.g. "
                         f"scipy.stats.poisson(3.0); got {type(counts).__name__}")

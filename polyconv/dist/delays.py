@@ -26,7 +26,7 @@ import numpy as np
 from .accuracy import UNIT_ROUNDOFF
 from .lattice import Lattice, same_step
 from .ledger import ErrorLedger, cum_bound, untruncated
-from .propagate import abs_moment, truncated_from
+from .propagate import abs_moment, second_moment_high, truncated_from
 
 WEIGHT_TOL = 1e-12
 """Tolerance of ``sum(weights) == 1`` in :func:`mixture`."""
@@ -172,7 +172,29 @@ def all_of(*delays: Lattice) -> Lattice:
     ledger = ErrorLedger(min(l1 + r_point, 2.0), l1 + r_l1, 0.0,
                          truncated_from([(d.errors, o) for d, o in zip(ds, offs, strict=True)],
                                         length), _max_moment(ds), cum + r_cum)
+    ledger = ledger._replace(truncated_moment2=_order_moment2(ds, pmf, h, base, ledger, sum))
     return Lattice._make(pmf, h, base, ledger)
+
+
+def _order_moment2(ds, pmf, h, base, ledger, combine) -> float:
+    """Truncated second moment of a max or a min of independent delays: the truncated part lies
+    on paths where some ``D_i`` is in its own truncated part ``T_i``.  A max (``combine=sum``):
+    ``max^2 <= sum_j D_j^2``, so ``E[max^2 1{T_i}] <= m2_i + t_i sum_{j != i} E[D_j^2]``; a min
+    (``combine=min``): ``min^2 <= D_i^2``, so ``E[min^2 1{T_i}] <= m2_i`` (non-negative delays;
+    ``m2``, ``t`` the ledgers' bounds)."""
+    if untruncated(ledger):
+        return 0.0
+    if base < 0 or any(d.origin < 0 for d in ds):
+        return math.inf
+    parts = [(d.errors.truncated_moment2, min(1.0, d.errors.truncated + d.errors.l1))
+             for d in ds if not untruncated(d.errors)]
+    if not all(math.isfinite(m2) for m2, _ in parts):
+        return math.inf
+    total = sum(m2 for m2, _ in parts)
+    if combine is sum:
+        seconds = [second_moment_high(d) for d in ds]
+        total += sum(t for _, t in parts) * sum(seconds)
+    return total * (1 + 8 * UNIT_ROUNDOFF)
 
 
 def _max_moment(ds: list[Lattice]) -> float:
@@ -230,6 +252,7 @@ def first_of(*delays: Lattice) -> Lattice:
     cum = _telescoped_l1([cum_bound(d.errors) for d in ds])
     moment = _min_moment(ds, offs, limit, h, base)
     ledger = ErrorLedger(min(l1 + r_point, 2.0), l1 + r_l1, 0.0, limit, moment, cum + r_cum)
+    ledger = ledger._replace(truncated_moment2=_order_moment2(ds, pmf, h, base, ledger, min))
     return Lattice._make(pmf, h, base, ledger)
 
 
@@ -284,6 +307,8 @@ def mixture(weights, delays) -> Lattice:
                        for wi, d in zip(w, ds, strict=True)))
     tf = truncated_from([(d.errors, o) for d, o in zip(ds, offs, strict=True)], length)
     cum = float(sum(wi * cum_bound(d.errors) for wi, d in zip(w, ds, strict=True)))
+    moment2 = float(sum(0.0 if untruncated(d.errors) else wi * d.errors.truncated_moment2
+                        for wi, d in zip(w, ds, strict=True))) * (1 + rel)
     ledger = ErrorLedger(point + rel * float(np.max(pmf)), l1 + rel * float(np.sum(pmf)), 0.0,
-                         tf, moment, cum + rel * float(np.sum(pmf)))
+                         tf, moment, cum + rel * float(np.sum(pmf)), moment2)
     return Lattice._make(pmf, h, base, ledger)

@@ -48,6 +48,10 @@ MAX_POINTS = 1 << 24
 """Largest lattice (memory budget: a few arrays of this many float64); a longer default is cut
 here with a :class:`TruncationWarning`, a longer explicit ``size`` is refused."""
 
+FROM_LAW_BYTES_PER_POINT = 64
+"""Peak bytes per point of ``lattice_from_law`` (edges, cdf/sf values, differences, the pmf and
+scipy's temporaries), checked against the memory budget before allocating."""
+
 _OFFSET = {"nearest": 0.5, "down": 1.0, "up": 0.0}
 """Upper edge of cell ``j`` is ``o + (j + offset) h``."""
 
@@ -274,7 +278,32 @@ def truncated_moment(law: LawAccess, origin: float, h: float, size: int, rule: s
     return tm * (1 + 4 * UNIT_ROUNDOFF) + lift * truncated
 
 
-def lattice_from_law(law, *, step: float, size: int | None = None, rule: str = "nearest"):
+def truncated_moment2(law: LawAccess, origin: float, h: float, size: int, rule: str,
+                      truncated: float) -> float:
+    """Upper bound of the second moment of the lattice model's mass beyond the grid.
+
+    With ``b`` the upper edge of the last cell, ``T1(b) = E[X 1{X > b}]``,
+    ``T2(b) = E[X^2 1{X > b}]`` (:func:`polyconv.dist.law_moments.tail_moment2`) and a point of
+    the model at most ``c`` above the amount it stands for (as in :func:`truncated_moment`):
+    ``(X + c)^2 <= X^2 + 2 c X + c^2`` for ``X >= 0``, so the bound is ``T2 + 2 c T1 + c^2 S(b)``.
+    ``inf`` for a callable cdf, the ``"moments"`` rule, or a law without a closed form or a
+    finite second moment.
+    """
+    if law.frozen is None or rule == "moments":
+        return math.inf
+    b = origin + (size - 1 + _OFFSET[rule]) * h
+    if b < 0:
+        return math.inf
+    lift = {"nearest": 0.5, "down": 0.0, "up": 1.0}[rule] * h
+    t2 = law_moments.tail_moment2(law.frozen, b)
+    if not math.isfinite(t2):
+        return math.inf
+    t1 = law_moments.tail_moment(law.frozen, b)
+    return (t2 + 2 * lift * t1 + lift * lift * truncated) * (1 + 8 * UNIT_ROUNDOFF)
+
+
+def lattice_from_law(law, *, step: float, size: int | None = None, rule: str = "nearest",
+                     check: bool = True):
     """Put a continuous law on the lattice ``origin + step * j``, ``j = 0..size-1``.
 
     Parameters
@@ -290,6 +319,8 @@ def lattice_from_law(law, *, step: float, size: int | None = None, rule: str = "
     rule : {"nearest", "down", "up", "moments"}
         How a cell's mass is placed (module docstring).  ``"down"``/``"up"`` give stochastic
         lower/upper bounds of the law (:func:`polyconv.dist.law_bracket` uses both).
+    check : bool
+        Run the step check (internal callers that checked the step once pass False).
 
     Returns
     -------
@@ -318,18 +349,23 @@ def lattice_from_law(law, *, step: float, size: int | None = None, rule: str = "
     elif size > MAX_POINTS:
         raise ValueError(f"size must be at most {MAX_POINTS} points (memory budget); got {size}")
     size = int(size)
+    from ..numerics import budget
+    budget.check_allocation(FROM_LAW_BYTES_PER_POINT * float(size),
+                            f"size={size} (from_law points)")
     pmf, point, l1, truncated = rule_pmf(access, origin, h, size, rule)
     moment = truncated_moment(access, origin, h, size, rule, truncated)
-    lattice = make_lattice(pmf, h, origin, point=point, l1=l1, moment=moment)
-    if access.frozen is not None:
+    moment2 = truncated_moment2(access, origin, h, size, rule, truncated)
+    lattice = make_lattice(pmf, h, origin, point=point, l1=l1, moment=moment, moment2=moment2)
+    if check and access.frozen is not None:
         warn_if_coarse(access.frozen, lattice, rule)
     return lattice
 
 
 def make_lattice(pmf: np.ndarray, h: float, origin: float, *, point: float, l1: float,
-                 moment: float):
+                 moment: float, moment2: float = math.inf):
     """A Lattice whose ledger holds the evaluation error of the masses (``point``, ``l1``) and
-    the mass beyond the grid, ``1 - sum(pmf)``, with the bound ``moment`` of its first moment."""
+    the mass beyond the grid, ``1 - sum(pmf)``, with the bounds ``moment`` and ``moment2`` of
+    its first and second moments."""
     from .lattice import Lattice
 
     try:
@@ -338,5 +374,6 @@ def make_lattice(pmf: np.ndarray, h: float, origin: float, *, point: float, l1: 
         return Lattice(pmf, h, origin, trust_floor=point)
     truncated = max(0.0, 1.0 - math.fsum(pmf))
     ledger = ErrorLedger(point, min(l1, 2.0), truncated, pmf.size,
-                         moment if truncated > 0 else 0.0)
+                         moment if truncated > 0 else 0.0,
+                         truncated_moment2=moment2 if truncated > 0 else 0.0)
     return Lattice(pmf, h, origin, errors=ledger)

@@ -155,7 +155,8 @@ class Lattice(LatticeQueries, LatticeAnswers):
         ledger = ErrorLedger(min(float(ledger.point), 1.0), l1,
                              _missing(total, n), int(min(max(ledger.truncated_from, 0), n)),
                              float(ledger.truncated_moment),
-                             min(float(ledger.cumulative) + excess, l1))
+                             min(float(ledger.cumulative) + excess, l1),
+                             float(ledger.truncated_moment2))
         if ledger.truncated == 0 and ledger.truncated_moment == math.inf and ledger.l1 == 0:
             ledger = ledger._replace(truncated_moment=0.0)
         out = cls.__new__(cls)

@@ -62,6 +62,8 @@ class ErrorLedger(NamedTuple):
         Kolmogorov distance; ``inf``: not known beyond ``l1``).  Signed errors may cancel in
         sums, so this can be far below ``l1``: a pmf made as differences of an accurately
         evaluated cdf has ``cumulative`` of a few roundoffs whatever its length.
+    truncated_moment2 : float
+        Upper bound on ``E[X^2 1{X in the truncated part}]`` (``inf`` if unknown).
     """
 
     point: float
@@ -70,6 +72,9 @@ class ErrorLedger(NamedTuple):
     truncated_from: int
     truncated_moment: float
     cumulative: float = math.inf
+    truncated_moment2: float = math.inf
+    """Upper bound on ``E[X^2 1{X in the truncated part}]`` (``inf`` if unknown: the standard
+    deviation is then refused when mass is truncated)."""
 
 
 class Bounded(NamedTuple):
@@ -131,7 +136,15 @@ def validate(ledger: ErrorLedger, n: int) -> ErrorLedger:
     tf = int(tf)
     if not 0 <= tf <= n:
         raise ValueError(f"errors.truncated_from must lie in [0, {n}]; got {tf}")
-    return ErrorLedger(point, min(l1, 2.0), truncated, tf, moment, min(cumulative, l1, 2.0))
+    try:
+        moment2 = float(ledger.truncated_moment2)
+    except (TypeError, ValueError, OverflowError):
+        raise TypeError(f"errors.truncated_moment2 must be a real number; got "
+                        f"{ledger.truncated_moment2!r}") from None
+    if not moment2 >= 0:
+        raise ValueError(f"errors.truncated_moment2 must be >= 0; got {moment2!r}")
+    return ErrorLedger(point, min(l1, 2.0), truncated, tf, moment, min(cumulative, l1, 2.0),
+                       moment2)
 
 
 def cum_bound(ledger: ErrorLedger) -> float:

@@ -28,7 +28,7 @@ from .ledger import (
     untruncated,
 )
 from .risk import real_value
-from .transform import power_law, transform_compound
+from .transform import check_transform_budget, power_law, transform_compound
 
 STEP_RTOL = 1e-9
 """Relative tolerance within which two lattice steps count as equal."""
@@ -57,6 +57,19 @@ def truncated_from(parts: list[tuple[ErrorLedger, int]], n_out: int) -> int:
     return int(min([n_out] + lows))
 
 
+def second_moment_high(x) -> float:
+    """Certified upper bound of ``E[X^2]`` of a Lattice's exact model (on-grid part and its
+    error, plus the ledger's truncated second moment; ``inf`` when unknown)."""
+    e = x.errors
+    if not untruncated(e) and not math.isfinite(e.truncated_moment2):
+        return math.inf
+    pmf = np.asarray(x.pmf)
+    vals = x.values
+    with np.errstate(over="ignore", invalid="ignore"):
+        m2 = float(np.dot(pmf, vals * vals))
+        return float(x._br().second_moment_range(pmf, m2)[1])
+
+
 def independent_sum(x, y) -> tuple[np.ndarray, float, float, ErrorLedger]:
     """``X + Y`` for independent ``X``, ``Y``: ``polyconv.convolve`` of the pmfs.
 
@@ -82,16 +95,41 @@ def independent_sum(x, y) -> tuple[np.ndarray, float, float, ErrorLedger]:
     moment = sum_moment(ex, abs_moment(a, x.step, x.origin, ex), ey,
                         abs_moment(b, y.step, y.origin, ey))
     tf = truncated_from([(ex, 0), (ey, 0)], c.size)
-    return c, x.step, x.origin + y.origin, ErrorLedger(point, l1, 0.0, tf, moment, cum)
+    moment2 = 0.0 if untruncated(ex) and untruncated(ey) else _sum_moment2(x, y, c, l1, moment)
+    return c, x.step, x.origin + y.origin, ErrorLedger(point, l1, 0.0, tf, moment, cum,
+                                                       moment2)
+
+
+def _sum_moment2(x, y, c: np.ndarray, l1: float, moment: float) -> float:
+    """Truncated second moment of ``X + Y``: the truncated part lies on paths where ``X`` or
+    ``Y`` is in its own truncated part ``T``, and by independence
+    ``E[(X + Y)^2 1{T_X}] <= m2_X + 2 m1_X E|Y| + t_X E[Y^2]`` (and the same with the roles
+    exchanged), ``m1``, ``m2``, ``t`` the ledgers' bounds."""
+    parts = 0.0
+    for a, b in ((x, y), (y, x)):
+        e = a.errors
+        if untruncated(e):
+            continue
+        if not (math.isfinite(e.truncated_moment2) and math.isfinite(e.truncated_moment)):
+            return math.inf
+        ab = abs_moment(np.asarray(b.pmf), b.step, b.origin, b.errors) + \
+            b.errors.truncated_moment
+        t = min(1.0, e.truncated + e.l1)
+        parts += e.truncated_moment2 + 2 * e.truncated_moment * ab + t * second_moment_high(b)
+    return parts * (1 + 8 * _U)
 
 
 def shifted(x, c: float) -> tuple[np.ndarray, float, float, ErrorLedger]:
-    """``X + c``: same pmf; the truncated part's first moment may grow by ``|c| T``."""
+    """``X + c``: same pmf; the truncated part's first moment may grow by ``|c| T``, its second
+    by ``2 |c| M + c^2 T`` (``(X + c)^2 <= X^2 + 2 |c| |X| + c^2``)."""
     e = x.errors
-    moment = e.truncated_moment
+    moment, moment2 = e.truncated_moment, e.truncated_moment2
     if not untruncated(e):
-        moment += abs(c) * min(1.0, e.truncated + e.l1)
-    return np.asarray(x.pmf), x.step, x.origin + c, e._replace(truncated_moment=moment)
+        t = min(1.0, e.truncated + e.l1)
+        moment2 = (moment2 + 2 * abs(c) * moment + c * c * t) * (1 + 4 * accuracy.UNIT_ROUNDOFF)
+        moment += abs(c) * t
+    return np.asarray(x.pmf), x.step, x.origin + c, e._replace(truncated_moment=moment,
+                                                                 truncated_moment2=moment2)
 
 
 def nfold(x, n: int) -> tuple[np.ndarray, float, float, ErrorLedger]:
@@ -103,6 +141,7 @@ def nfold(x, n: int) -> tuple[np.ndarray, float, float, ErrorLedger]:
     if n == 1:
         return f, x.step, x.origin, e
     full = n * (f.size - 1) + 1
+    check_transform_budget(full, f"nfold(n={n}) (a result of {full} points)")
     from scipy import fft as sfft
     res = transform_compound(power_law(n), f, full, n_fft=sfft.next_fast_len(full, real=True),
                              theta=0.0, log_alias_mass=-math.inf)

@@ -17,6 +17,7 @@ import warnings
 import numpy as np
 
 from . import risk
+from .accuracy import float_range
 from .errors import AccuracyWarning, TruncationWarning
 
 _real = risk.real_value
@@ -37,11 +38,17 @@ class LatticeQueries:
         if isinstance(k, bool) or not isinstance(k, numbers.Integral) or k < 0:
             raise ValueError(f"k must be a non-negative integer; got {k!r}")
         self._warn_truncated(f"moment({k})")
-        return float(np.dot(self._pmf, self.values ** int(k)))
+        with np.errstate(over="ignore", invalid="ignore"):
+            value = float(np.dot(self._pmf, self.values ** int(k)))
+        if not math.isfinite(value):
+            warnings.warn(f"moment({k}) overflows float64 (largest point "
+                          f"{float(np.max(np.abs(self.values))):.3g}); returning {value}",
+                          AccuracyWarning, stacklevel=2)
+        return value
 
     def _mean(self) -> float:
         mass = float(np.sum(self._pmf))
-        k = np.arange(self._pmf.size)
+        k = float_range(self._pmf.size)
         return self._origin * mass + self._step * float(np.dot(self._pmf, k))
 
     def mean(self) -> float:
@@ -49,22 +56,39 @@ class LatticeQueries:
         self._warn_truncated("mean()")
         return self._mean()
 
-    def _variance(self) -> float:
+    def _variance_steps(self) -> float:
+        """The variance in units of ``step**2`` (finite whatever the step)."""
         mass = float(np.sum(self._pmf))
         if mass == 0:
             return 0.0
-        k = np.arange(self._pmf.size)
+        k = float_range(self._pmf.size)
         mk = float(np.dot(self._pmf, k)) / mass
-        return self._step ** 2 * float(np.dot(self._pmf, (k - mk) ** 2))
+        return float(np.dot(self._pmf, (k - mk) ** 2))
+
+    def _variance(self) -> float:
+        return self._step * self._step * self._variance_steps()
 
     def variance(self) -> float:
-        """``sum p_k (x_k - mean)^2`` over the lattice (the variance when nothing is truncated)."""
+        """``sum p_k (x_k - mean)^2`` over the lattice (the variance when nothing is truncated).
+
+        ``inf`` with an :class:`AccuracyWarning` when it exceeds the float range (a step near
+        ``1e154`` or more); :meth:`std` stays finite there.
+        """
         self._warn_truncated("variance()")
-        return self._variance()
+        v = self._variance()
+        if math.isinf(v):
+            warnings.warn(f"variance() overflows float64 (step {self._step:.3g}); std() is "
+                          f"{self._std():.6g}", AccuracyWarning, stacklevel=2)
+        return v
+
+    def _std(self) -> float:
+        return self._step * math.sqrt(self._variance_steps())
 
     def std(self) -> float:
-        """Square root of :meth:`variance`."""
-        return math.sqrt(self.variance())
+        """Square root of :meth:`variance`, computed in units of the step (finite for any
+        finite step)."""
+        self._warn_truncated("std()")
+        return self._std()
 
     # -- probabilities ----------------------------------------------------------------------
     def _index(self, x) -> tuple[np.ndarray, np.ndarray]:

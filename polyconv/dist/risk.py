@@ -36,10 +36,11 @@ from __future__ import annotations
 
 import math
 import numbers
+from functools import cached_property
 
 import numpy as np
 
-from .accuracy import UNIT_ROUNDOFF
+from .accuracy import UNIT_ROUNDOFF, float_range
 from .ledger import ErrorLedger, cum_bound, t_bounds, untruncated
 
 SNAP = 1e-9
@@ -147,24 +148,79 @@ class Bracketer:
     def __init__(self, pmf: np.ndarray, step: float, origin: float, ledger: ErrorLedger):
         n = pmf.size
         self.n, self.h, self.o, self.ledger, self.pmf = n, step, origin, ledger, pmf
-        self.cum = np.cumsum(np.asarray(pmf, dtype=np.longdouble)).astype(float)
-        self.s, self.t = tail_sums(pmf)
-        mass = float(self.s[0])
-        self.mass = mass
-        self.t_low, self.t_high = t_bounds(ledger, mass, n)
-        if untruncated(ledger):
-            self.t_low = self.t_high = 0.0
-        k = np.arange(n)
-        kb = cum_bound(ledger)
-        self.C = np.minimum(kb, (k + 1) * ledger.point)  # |sum_{j <= k} e_j|
-        j = np.arange(n + 1)
-        self.B = np.minimum(ledger.l1, (n - j) * ledger.point)  # bound of sum_{k>=j} |e_k|
-        self.Bt = np.minimum(self.B, 2 * kb)  # bound of |sum_{k>=j} e_k| (signed)
-        sb = np.zeros(n + 2)
-        sb[: n + 1] = np.cumsum(self.Bt[::-1])[::-1]
-        self.SB = sb  # SB[j] = sum_{i >= j} Bt_i
         self.tf = ledger.truncated_from
-        # cdf at index k from both routes
+        self._sl = None
+
+    # -- arrays, each built on first use (a stop-loss needs no cdf arrays, a cdf no tail sums)
+    @cached_property
+    def cum(self) -> np.ndarray:
+        """Computed cdf at each point (longdouble cumulative sum, rounded once)."""
+        return np.cumsum(np.asarray(self.pmf, dtype=np.longdouble)).astype(float)
+
+    @cached_property
+    def _tails(self) -> tuple[np.ndarray, np.ndarray]:
+        return tail_sums(self.pmf)
+
+    @property
+    def s(self) -> np.ndarray:
+        """``S_m = sum_{k >= m} p_k`` (:func:`tail_sums`)."""
+        return self._tails[0]
+
+    @property
+    def t(self) -> np.ndarray:
+        """``T_m = sum_{k >= m} (k - m) p_k`` (:func:`tail_sums`)."""
+        return self._tails[1]
+
+    @cached_property
+    def mass(self) -> float:
+        """Computed mass on the lattice."""
+        return float(self.s[0])
+
+    @cached_property
+    def _t_bounds(self) -> tuple[float, float]:
+        if untruncated(self.ledger):
+            return 0.0, 0.0
+        return t_bounds(self.ledger, self.mass, self.n)
+
+    @property
+    def t_low(self) -> float:
+        """Lower bound of the truncated mass."""
+        return self._t_bounds[0]
+
+    @property
+    def t_high(self) -> float:
+        """Upper bound of the truncated mass."""
+        return self._t_bounds[1]
+
+    @cached_property
+    def C(self) -> np.ndarray:  # noqa: N802 (the name of the bound in the module docstring)
+        """``|sum_{j <= k} e_j|`` bound at each ``k``."""
+        k = np.arange(self.n)
+        return np.minimum(cum_bound(self.ledger), (k + 1) * self.ledger.point)
+
+    @cached_property
+    def B(self) -> np.ndarray:  # noqa: N802
+        """Bound of ``sum_{k >= j} |e_k|``, ``j = 0..n``."""
+        j = np.arange(self.n + 1)
+        return np.minimum(self.ledger.l1, (self.n - j) * self.ledger.point)
+
+    @cached_property
+    def Bt(self) -> np.ndarray:  # noqa: N802
+        """Bound of ``|sum_{k >= j} e_k|`` (signed sums), ``j = 0..n``."""
+        return np.minimum(self.B, 2 * cum_bound(self.ledger))
+
+    @cached_property
+    def SB(self) -> np.ndarray:  # noqa: N802
+        """``SB[j] = sum_{i >= j} Bt_i`` (``n + 2`` entries)."""
+        sb = np.zeros(self.n + 2)
+        sb[: self.n + 1] = np.cumsum(self.Bt[::-1])[::-1]
+        return sb
+
+    @cached_property
+    def _cdf_bounds(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """``(F_low, F_high, S_low, S_high)`` at each index, the cdf from both routes."""
+        n = self.n
+        k = np.arange(n)
         rc = (_U + (k + 2) * _UL) * self.cum + 2 * _U
         tail = self.s[1:]
         rs = (_U + (n - k + 2) * _UL) * tail
@@ -174,13 +230,34 @@ class Bracketer:
         tail_low = np.maximum(tail - self.Bt[1:] - rs, 0.0) + np.where(maybe_below, 0.0,
                                                                         self.t_low)
         tail_high = tail + self.Bt[1:] + rs + self.t_high
-        self.F_low = np.clip(np.maximum(cum_low, 1.0 - tail_high - 2 * _U), 0.0, 1.0)
-        self.F_high = np.clip(np.minimum(cum_high, 1.0 - tail_low + 2 * _U), 0.0, 1.0)
-        self.S_low = np.clip(np.maximum(tail_low, 1.0 - cum_high - 2 * _U), 0.0, 1.0)
-        self.S_high = np.clip(np.minimum(tail_high, 1.0 - cum_low + 2 * _U), 0.0, 1.0)
-        self._run_high = np.maximum.accumulate(self.F_high)
-        self._run_low = np.maximum.accumulate(self.F_low)
-        self._sl = None
+        return (np.clip(np.maximum(cum_low, 1.0 - tail_high - 2 * _U), 0.0, 1.0),
+                np.clip(np.minimum(cum_high, 1.0 - tail_low + 2 * _U), 0.0, 1.0),
+                np.clip(np.maximum(tail_low, 1.0 - cum_high - 2 * _U), 0.0, 1.0),
+                np.clip(np.minimum(tail_high, 1.0 - cum_low + 2 * _U), 0.0, 1.0))
+
+    @property
+    def F_low(self) -> np.ndarray:  # noqa: N802
+        return self._cdf_bounds[0]
+
+    @property
+    def F_high(self) -> np.ndarray:  # noqa: N802
+        return self._cdf_bounds[1]
+
+    @property
+    def S_low(self) -> np.ndarray:  # noqa: N802
+        return self._cdf_bounds[2]
+
+    @property
+    def S_high(self) -> np.ndarray:  # noqa: N802
+        return self._cdf_bounds[3]
+
+    @cached_property
+    def _run_high(self) -> np.ndarray:
+        return np.maximum.accumulate(self.F_high)
+
+    @cached_property
+    def _run_low(self) -> np.ndarray:
+        return np.maximum.accumulate(self.F_low)
 
     # -- cdf / sf ---------------------------------------------------------------------------
     def cdf_range(self, k: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -243,12 +320,30 @@ class Bracketer:
         err = (xm - d) * self.Bt[m] + h * self.SB[np.minimum(m + 1, n + 1)]
         err = err + (8 * _U + 2 * (n - m + 2) * _UL) * value \
             + 4 * _U * (np.abs(xm) + np.abs(d)) * self.s[m]  # float x_m - d
-        x_from = self.o + h * self.tf
-        trunc_low = self.t_low * np.maximum(x_from - d, 0.0)
-        trunc_high = self._moment_high() + np.maximum(-d, 0.0) * self.t_high
+        x_from = self._x_from_low()
+        trunc_low = self.t_low * np.maximum(x_from - d, 0.0) if self.t_low > 0 else 0.0
+        trunc_high = self._truncated_excess_high(d, x_from)
         low = np.maximum(value - err, 0.0) + trunc_low
         high = value + err + trunc_high
         return low, high
+
+    def _x_from_low(self) -> float:
+        """A float-safe lower bound of the lowest point where truncated mass may lie,
+        ``origin + step * truncated_from`` less its rounding."""
+        x = self.o + self.h * self.tf
+        return x - 4 * _U * (abs(self.o) + self.h * self.tf)
+
+    def _truncated_excess_high(self, d: np.ndarray, x_from: float) -> np.ndarray:
+        """Upper bound of ``E[(X - d)+ 1{X truncated}]``.  The truncated part lies at or above
+        ``x_from``, so with ``c = min(d, x_from)``: ``(X - d)+ <= X - c`` there, and
+        ``E[(X - c) 1{T}] <= M - c t`` (``M`` the ledger's first-moment bound, ``t`` the
+        truncated mass: its low bound when ``c >= 0``, its high bound otherwise)."""
+        m = self._moment_high()
+        if self.t_high == 0 or not math.isfinite(m):
+            return np.full(np.shape(d), m) if np.ndim(d) else m
+        c = np.minimum(d, x_from)
+        sub = np.where(c >= 0, c * self.t_low * (1 - 4 * _U), c * self.t_high * (1 + 4 * _U))
+        return np.maximum(m - sub, 0.0)
 
     def _moment_high(self) -> float:
         if self.t_high == 0:
@@ -287,21 +382,40 @@ class Bracketer:
     def mean_range(self, value: float) -> tuple[float, float]:
         """Certified range of the exact mean around the lattice's own ``value``."""
         err = abs(self.o) * min(cum_bound(self.ledger), self.n * self.ledger.point) \
-            + self.h * float(self.SB[1])
-        absum = float(np.dot(np.abs(self.o + self.h * np.arange(self.n)), np.diff(
-            np.concatenate(([0.0], self.cum)))))
-        err += (self.n + 2) * _U * absum + 4 * _U * (abs(self.o) * self.mass + abs(value))
-        x_from = self.o + self.h * self.tf
+            + self.h * self._sb1()
+        k = float_range(self.n)
+        if self.o >= 0:  # every point non-negative: |x_k| = o + h k
+            absum = self.o * float(np.sum(self.pmf)) + self.h * float(np.dot(k, self.pmf))
+            absum *= 1 + 4 * _U
+        else:
+            absum = float(np.dot(np.abs(self.o + self.h * k), self.pmf))
+        mass = float(np.sum(self.pmf)) * (1 + (self.n + 2) * _U)
+        err += (self.n + 2) * _U * absum + 4 * _U * (abs(self.o) * mass + abs(value))
+        x_from = self._x_from_low()
         m = self._moment_high()
-        t_lo = self.t_low * x_from if x_from >= 0 else -m
+        t_lo = (self.t_low * x_from if self.t_low > 0 else 0.0) if x_from >= 0 else -m
         return value - err + t_lo, value + err + m
 
+    def _sb1(self) -> float:
+        """``SB[1] = sum_{j=1..n} Bt_j`` in closed form: ``Bt_j = min(c, (n - j) point)`` with
+        ``c = min(l1, 2 K)`` is ``m point`` up to ``m = c / point``, then ``c``."""
+        if "SB" in self.__dict__:
+            return float(self.SB[1])
+        c = min(self.ledger.l1, 2 * cum_bound(self.ledger))
+        d = self.ledger.point
+        top = self.n - 1  # m = n - j runs over 0..n-1
+        if d <= 0 or c <= 0:
+            return 0.0
+        q = min(int(c / d), top)
+        return (d * q * (q + 1) / 2 + (top - q) * c) * (1 + 4 * _U)
+
     def second_moment_range(self, pmf: np.ndarray, value: float) -> tuple[float, float]:
-        """Certified range of the exact ``E[X^2]`` (``inf`` high when truncated mass may have
-        any location)."""
+        """Certified range of the exact ``E[X^2]``: the on-grid sum, its error by summation by
+        parts, and the ledger's bound of the truncated part's second moment (``inf`` unknown)."""
         w = (abs(self.o) + self.h * np.arange(self.n)) ** 2
         inc = np.diff(np.concatenate(([0.0], w)))  # increments of a non-decreasing weight
         err = float(np.dot(inc, self.B[: self.n]))
         err += (self.n + 2) * _U * float(np.dot(w, pmf))
-        high = value + err + (np.inf if self.t_high > 0 else 0.0)
+        trunc = self.ledger.truncated_moment2 if self.t_high > 0 else 0.0
+        high = (value + err + trunc) * (1 + 2 * _U)
         return max(value - err, 0.0), high

@@ -13,8 +13,9 @@ closed form (:mod:`polyconv.dist.law_moments`, from scipy.stats):
 
 A relative gap above ``rtol`` (default :data:`STEP_RTOL`) warns with a :class:`CoarseStepWarning`
 and suggests a step: the largest of ``h / 2, h / 4, ...`` (rounded down to a round number,
-:data:`NICE_MANTISSAS`) whose lattice passes with a margin of 2.  The gap shrinks like ``h^2`` for ``"nearest"``
-and like ``h`` for ``"down"``/``"up"`` on smooth densities (common practice, no source).
+:data:`NICE_MANTISSAS`) whose lattice passes with a margin of 2.  The gap shrinks like ``h^2``
+for ``"nearest"`` and like ``h`` for ``"down"``/``"up"`` on smooth densities (common practice,
+no source).
 """
 
 from __future__ import annotations

@@ -45,10 +45,11 @@ from . import law_moments
 from .accuracy import UNIT_ROUNDOFF
 from .errors import AccuracyWarning
 from .from_law import _OFFSET, LawAccess, check_rule, make_lattice, rule_pmf
-from .goals import Goal, choose_step
+from .goals import Goal
 from .ledger import Bounded, ErrorLedger
+from .pilot import PILOT_POINTS, Pilot, pilot_compound
 
-SPLIT_SHARE = 0.5
+SPLIT_SHARE = 0.8
 """Share of the goal's width given to the coarse bracket of the far tail."""
 
 RETRIES = 3
@@ -191,49 +192,41 @@ def _judge(b: Bounded, goal: Goal) -> Bounded:
     return Bounded(value, b.low, b.high, False, "")
 
 
-def _plan(counts, law, h: float, goal: Goal):
+def _plan(counts, law, h: float, goal: Goal, pilot=None):
     """``(n_fine, [(k_i, n_i)])``: the fine grid and the levels of the far tail (module
-    docstring), from a pilot compound on a coarse step (estimates only: the answers are
-    certified afterwards)."""
-    from .compound import compound
-    from .lattice import Lattice
-
+    docstring), from a pilot compound on a coarse step (:mod:`polyconv.dist.pilot`; estimates
+    only: the answers are certified afterwards)."""
     levels = goal.levels() or [0.5]
     top_p = max(levels)
     n_mean = float(counts.mean())
     # claims on a path with a large claim: the size-biased count E[N^2] / E[N] (lambda + 1 for
     # a Poisson count)
     claims = (float(counts.var()) + n_mean ** 2) / n_mean if n_mean > 0 else 1.0
-    pilot_h = max(float(law.isf(1e-12)) / PILOT_POINTS, h)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        sev = Lattice.from_law(law, step=pilot_h, size=PILOT_POINTS, rule="up")
-        pilot = compound(counts, sev, size=PILOT_POINTS)
-        var = float(pilot.value_at_risk(top_p))
-        tvar = float(pilot.tail_value_at_risk(top_p))
-        if not math.isfinite(tvar):
-            tvar = 4 * var
-        width = goal.tolerance(tvar) * (1 - top_p)
-        for m, a in goal.measures:
-            if m == "stop_loss":
-                width = min(width, goal.tolerance(float(pilot.stop_loss(a))))
+    if pilot is None:
+        pilot = pilot_for(counts, law)
+    var = pilot.var(top_p)
+    tvar = pilot.tvar(top_p, n_mean * law_moments.tail_moment(law, pilot.far_end))
+    if not math.isfinite(tvar):
+        tvar = 4 * var
+    width = goal.tolerance(tvar) * (1 - top_p)
+    for m, a in goal.measures:
+        if m == "stop_loss":
+            width = min(width, goal.tolerance(pilot.stop_loss(a)))
     width = max(width, 1e-300)
     reach = _coarse_reach(law, n_mean, SPLIT_SHARE * width / 3)
 
     def sf(x):
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            return max(float(pilot.sf(x)), 1e-300)
+        return max(SF_MARGIN * pilot.sf_high(x, claims), 1e-300)
 
     best = None
     end = max(2.0 * var, max([0.0] + goal.points()) + h, 64 * h)
     while end < reach and end / h <= goal.max_points:
         plan = _levels(sf, end, reach, claims, SPLIT_SHARE * width * 2 / 3, h)
         if plan is not None:
-            cost = end / h + 2 * sum(n for _, n in plan)
+            cost = _cost(end / h) + 2 * sum(_cost(n) for _, n in plan)
             if best is None or cost < best[0]:
                 best = (cost, int(math.ceil(end / h)), plan)
-        end *= LEVEL_RATIO
+        end *= END_RATIO
     if best is None:
         return min(int(math.ceil(reach / h)) + 1, goal.max_points), []
     return best[1], best[2]
@@ -262,11 +255,117 @@ def _levels(sf, end: float, reach: float, claims: float, share: float, h: float)
     return out
 
 
-LEVEL_RATIO = 2.0
+LEVEL_RATIO = 8.0
 """Each level of the far tail reaches this many times further than the previous one."""
 
-PILOT_POINTS = 1 << 16
-"""Points of the pilot compound that sizes the levels."""
+END_RATIO = 1.25
+"""Candidate ends of the fine grid are this far apart (geometrically)."""
+
+COMPOUND_OVERHEAD = 20_000
+"""Cost of one compound beyond its points, in points (its fixed work: bounds, ledger)."""
+
+
+def _cost(points: float) -> float:
+    """Planning cost of a compound on ``points`` (transform ``n log n`` plus the fixed work)."""
+    return points * math.log2(max(points, 2.0)) / 16 + COMPOUND_OVERHEAD
+
+
+PILOT_REACH = 1e-12
+"""A pilot reaches the severity's ``1 - PILOT_REACH`` quantile."""
+
+
+def pilot_for(counts, law) -> PilotPair:
+    """The pilot compounds (:mod:`polyconv.dist.pilot`) that size a spliced plan: one reaching
+    the severity's ``1 - PILOT_REACH`` quantile on :data:`~polyconv.dist.pilot.PILOT_POINTS`
+    points, and, when its VaR lies within a few of its steps (tails so heavy that reach and
+    resolution conflict), a second one reaching a few times that VaR."""
+    from .counts import classify
+
+    transform_law = classify(counts).transform
+    reach = float(law.isf(PILOT_REACH))
+    far = pilot_compound(transform_law, law, reach / PILOT_POINTS)
+    var_hi = far.var(1 - 1e-3)
+    near = far
+    if math.isfinite(var_hi) and var_hi < NEAR_STEPS * far.step:
+        near = pilot_compound(transform_law, law, max(4 * var_hi, far.step) / NEAR_POINTS,
+                              NEAR_POINTS)
+    return PilotPair(far, near, law)
+
+
+NEAR_STEPS = 1024
+"""A second, finer pilot is run when the far pilot's 99.9% VaR is within this many steps."""
+
+NEAR_POINTS = 1 << 14
+"""Points of the finer pilot."""
+
+SF_MARGIN = 2.0
+"""The plan reads the pilot's survival function times this (on the safe side)."""
+
+
+class PilotPair(NamedTuple):
+    """A far-reaching pilot and a finer one near the body (the same one when one suffices)."""
+
+    far: Pilot
+    near: Pilot
+    law: object
+    """The severity law (beyond the far pilot's end)."""
+
+    @property
+    def far_end(self) -> float:
+        return self.far.step * len(self.far.pmf)
+
+    @property
+    def near_end(self) -> float:
+        return self.near.step * len(self.near.pmf)
+
+    def var(self, p: float) -> float:
+        v = self.near.var(p)
+        return v if math.isfinite(v) else self.far.var(p)
+
+    def stop_loss(self, d: float) -> float:
+        """Estimate of ``E[(S - d)+]`` on the pilots: the near one below its end, the far one
+        beyond."""
+        if self.near is self.far or d >= self.near_end:
+            return _pilot_stop_loss(self.far, d)
+        end = self.near_end
+        return (_pilot_stop_loss(self.near, d) + _pilot_stop_loss(self.far, end)
+                + (end - d) * self.far.sf(end))
+
+    def tvar(self, p: float, tail_moment: float) -> float:
+        v = self.var(p)
+        if not math.isfinite(v):
+            return math.inf
+        return v + (self.stop_loss(v) + max(tail_moment, 0.0)) / (1 - p)
+
+    def sf_high(self, x: float, claims: float) -> float:
+        """``P(S > x)`` read further down by the pilot points' offset (half a pilot step per
+        claim, ``claims`` plus four standard deviations of them): an estimate on the safe
+        side."""
+        if x >= self.far_end:  # a single large claim (subexponential tails), on the safe side
+            return min(1.0, claims * float(self.law.sf(x / 2)))
+        pilot = self.near if x < self.near_end else self.far
+        slack = (claims + 4 * math.sqrt(claims)) * pilot.step
+        return pilot.sf(max(x - slack, 0.0))
+
+
+def _pilot_stop_loss(pilot: Pilot, d: float) -> float:
+    x = np.arange(len(pilot.pmf)) * pilot.step
+    return float(np.dot(pilot.pmf, np.maximum(x - d, 0.0)))
+
+
+def pilot_step(pilot: PilotPair, goal: Goal) -> float:
+    """``rtol`` times the pilot's highest VaR asked (else its median), rounded down to a round
+    number (``atol`` when that is larger): the fine grid's own resolution meets the goal."""
+    from .step_check import _nice_floor
+
+    levels = goal.levels()
+    scale = pilot.var(max(levels) if levels else 0.5)
+    if not (math.isfinite(scale) and scale > 0):
+        scale = 16 * pilot.near.step
+    step = goal.rtol * scale if goal.rtol > 0 else goal.atol
+    if goal.atol > 0:
+        step = max(step, goal.atol) if goal.rtol > 0 else goal.atol
+    return _nice_floor(step)
 
 
 def _coarse_reach(law, n_mean: float, share: float) -> float:
@@ -280,7 +379,7 @@ def _coarse_reach(law, n_mean: float, share: float) -> float:
     hi = lo
     while excess(hi) > share and hi < 1e300:
         hi *= 4.0
-    for _ in range(60):
+    for _ in range(24):  # hi / lo ends below 4^(2^-24): far finer than any plan needs
         mid = math.sqrt(lo * hi)
         if excess(mid) > share:
             lo = mid
@@ -302,7 +401,7 @@ def spliced_aggregate(counts, law, *, goal: Goal, step: float | None = None,
     goal : Goal
         Measures and precision.
     step : float, optional
-        Fine step ``h``; None: from a pilot VaR (:func:`polyconv.dist.goals.choose_step`).
+        Fine step ``h``; None: from a pilot VaR (:func:`pilot_step`).
     rule : {"nearest", "down", "up"}
         Rule of the lattice model.
     method : {"auto", "fft", "recursion"}
@@ -316,8 +415,7 @@ def spliced_aggregate(counts, law, *, goal: Goal, step: float | None = None,
         fine compound.  Model output, not advice (see :mod:`polyconv.dist`).
     """
     from .compound import compound
-    from .lattice import Lattice
-    from .step_check import CoarseStepWarning
+    from .from_law import lattice_from_law
 
     if not isinstance(goal, Goal):
         raise TypeError(f"goal must be a polyconv.dist.Goal; got {type(goal).__name__}")
@@ -325,19 +423,18 @@ def spliced_aggregate(counts, law, *, goal: Goal, step: float | None = None,
     if rule == "moments":
         raise ValueError("rule must be 'nearest', 'down' or 'up' for a spliced grid; got "
                          "'moments'")
+    pilot = pilot_for(counts, law)
     if step is None:
-        step = choose_step(counts, law, goal, rule=rule)
+        step = pilot_step(pilot, goal)
     h = float(step)
-    n_f, plan = _plan(counts, law, h, goal)
+    n_f, plan = _plan(counts, law, h, goal, pilot)
     if not plan:  # a light enough tail: one grid, sized by the goal (polyconv.dist.goals)
         from .goals import aggregate_for_goal
         fine = aggregate_for_goal(counts, law, goal=goal, step=h, rule=rule, method=method)
         answers = {(m, a): _judge(_quiet(fine, m, a), goal) for m, a in goal.measures}
         return SplicedAnswers(answers, h, len(fine), (), fine)
     for attempt in range(RETRIES + 1):
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", CoarseStepWarning)
-            sev = Lattice.from_law(law, step=h, size=n_f, rule=rule)
+        sev = lattice_from_law(law, step=h, size=n_f, rule=rule, check=attempt == 0)
         fine = compound(counts, sev, method=method, size=n_f)
         levels, ends = [], [h * n_f]
         for i, (k, n) in enumerate(plan):

@@ -20,10 +20,23 @@ from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
-from ..numerics import transforms as tf
-from scipy.special import logsumexp
 
+from ..numerics import transforms as tf
 from . import accuracy
+
+TRANSFORM_BYTES_PER_POINT = 80
+"""Peak bytes per result point of a padded transform route (``M = 2 size``: the tilted input and
+the inverse output, 8 bytes per transform point each, and two complex half spectra, 16 bytes per
+transform point together), plus the result and its error arrays; checked against the memory
+budget (:mod:`polyconv.budget`) before allocating."""
+
+
+def check_transform_budget(points: int, what: str) -> None:
+    """Refuse (:class:`polyconv.budget.MemoryBudgetError`, naming ``what``) a transform route on
+    ``points`` result points that does not fit the memory budget."""
+    from ..numerics import budget
+
+    budget.check_allocation(TRANSFORM_BYTES_PER_POINT * float(points), what)
 
 
 @dataclass(frozen=True)
@@ -81,7 +94,7 @@ def integer_power(z: np.ndarray, n: int) -> np.ndarray:
     return result
 
 
-def reduced_severity(f: np.ndarray, max_len: int = 4096) -> tuple[np.ndarray, np.ndarray]:
+def reduced_severity(f: np.ndarray, max_len: int = 1024) -> tuple[np.ndarray, np.ndarray]:
     """Severity mass moved to block upper ends: ``(indices, masses)`` with at most ``max_len``
     blocks.  Stochastically larger than ``f``, so its moment generating function bounds that of
     ``f`` from above for ``t >= 0`` (keeps Chernoff bounds rigorous while cheap)."""
@@ -98,24 +111,41 @@ def reduced_severity(f: np.ndarray, max_len: int = 4096) -> tuple[np.ndarray, np
     return ends[keep], blocks[keep]
 
 
-def log_chernoff_tail(law: TransformLaw, sev: tuple[np.ndarray, np.ndarray], x: float) -> float:
+def log_chernoff_tail(law: TransformLaw, sev: tuple[np.ndarray, np.ndarray], x: float,
+                      refine: bool = True) -> float:
     """log of an upper bound of ``P(S >= x)`` (Chernoff: ``min_t e^{-t x} P(M_X(t))``).
 
-    ``t`` runs over a log-spaced grid (per lattice step); any ``t`` gives a valid bound, the grid
-    only affects tightness.  Returns 0.0 (the trivial bound) when no ``t`` helps.
+    ``t`` runs over a log-spaced grid, refined once around its best point; any ``t`` gives a
+    valid bound, the grid only affects tightness (``refine=False``: the first grid only).
+    Returns 0.0 (the trivial bound) when no ``t`` helps.
     """
     idx, mass = sev
     if x <= 0 or idx.size == 0:
         return 0.0
     logm = np.log(mass)
     best = 0.0
-    for tau in np.geomspace(1e-3, 1e3, 61):
-        t = tau / x
-        s = float(logsumexp(logm + t * idx))
-        val = law.log_pgf_real(s) - t * x
-        if val < best:
-            best = val
+    taus = TAUS
+    for _ in range(2 if refine else 1):  # a coarse log-grid of t, then a finer one
+        vals = _chernoff_values(law, logm, idx, taus / x, x)
+        i = int(np.argmin(vals))
+        best = min(best, float(vals[i]))
+        lo, hi = taus[max(i - 1, 0)], taus[min(i + 1, taus.size - 1)]
+        taus = np.geomspace(lo, hi, TAUS.size)
     return best
+
+
+def _chernoff_values(law: TransformLaw, logm, idx, t: np.ndarray, x: float) -> np.ndarray:
+    """``log P(M_X(t)) - t x`` for each ``t`` (one matrix, row-wise log-sum-exp)."""
+    a = logm[None, :] + t[:, None] * idx[None, :]
+    top = np.max(a, axis=1)
+    s = top + np.log(np.sum(np.exp(a - top[:, None]), axis=1))
+    return np.array([law.log_pgf_real(float(sk)) for sk in s]) - t * x
+
+
+TAUS = np.geomspace(1e-3, 1e3, 13)
+"""First log-grid of the Chernoff parameter ``t x`` tried by :func:`log_chernoff_tail` (then
+refined around its best point; any ``t`` gives a valid bound, the grid only affects
+tightness)."""
 
 
 SPLIT_FRACTIONS = (0.9, 0.7, 0.5, 0.35, 0.2, 0.1)
@@ -138,19 +168,27 @@ def log_split_tail(law: TransformLaw, sev: tuple[np.ndarray, np.ndarray], x: flo
     order = np.argsort(idx)
     idx, mass = idx[order], mass[order]
     above = np.cumsum(mass[::-1])[::-1]  # mass of blocks at index >= position
-    best = 0.0
-    for frac in SPLIT_FRACTIONS:
+    def combined(jump, log_rest):
+        if jump == 0.0:
+            return log_rest
+        if jump + math.exp(log_rest) < 1.0:
+            return math.log(jump) + math.log1p(math.exp(log_rest) / jump)
+        return 0.0
+
+    best, best_cap = 0.0, None
+    for frac in SPLIT_FRACTIONS:  # each cap on the first t-grid, the best one refined
         c = frac * x
         k = int(np.searchsorted(idx, c, side="right"))
         jump = law.mean * (float(above[k]) if k < idx.size else 0.0)
         if jump >= 1.0:
             continue
         capped = (np.minimum(idx, c), mass)
-        log_rest = log_chernoff_tail(law, capped, x)
-        if jump == 0.0:
-            best = min(best, log_rest)
-        elif jump + math.exp(log_rest) < 1.0:
-            best = min(best, math.log(jump) + math.log1p(math.exp(log_rest) / jump))
+        val = combined(jump, log_chernoff_tail(law, capped, x, refine=False))
+        if val < best:
+            best, best_cap = val, (jump, capped)
+    if best_cap is not None:
+        jump, capped = best_cap
+        best = min(best, combined(jump, log_chernoff_tail(law, capped, x)))
     return best
 
 
@@ -193,6 +231,8 @@ class TransformResult:
     l1_bound: float = float("inf")
     """Bound of the L1 norm of the error over the ``size`` entries (see
     :func:`polyconv.dist.accuracy.untilted_l1`)."""
+    log_alias_mass: float = 0.0
+    """log of the bound of ``P(S >= n_fft)`` used."""
 
 
 def transform_compound(law: TransformLaw, f: np.ndarray, size: int, *, n_fft: int | None = None,
@@ -231,7 +271,7 @@ def transform_compound(law: TransformLaw, f: np.ndarray, size: int, *, n_fft: in
         theta2 = accuracy.choose_tilt(res.n_fft, size, math.log(max(res.aliasing_floor, 1e-300))
                                       + res.theta * res.n_fft, tilted_round)
         if theta2 > 1.05 * res.theta:
-            res2 = _transform_once(law, f, size, res.n_fft, theta2, log_alias_mass)
+            res2 = _transform_once(law, f, size, res.n_fft, theta2, res.log_alias_mass)
             if res2.trust_floor < res.trust_floor:
                 res = res2
     return res
@@ -273,7 +313,8 @@ def _transform_once(law, f, size, n_fft, theta, log_alias_mass) -> TransformResu
     alias = accuracy.aliasing_bound(log_alias_mass, theta, n_fft)
     np.maximum(g, 0.0, out=g)
     l1 = accuracy.untilted_l1(rounding, theta, size) + alias
-    return TransformResult(g, rounding_u + alias, n_fft, theta, rounding_u, alias, l1)
+    return TransformResult(g, rounding_u + alias, n_fft, theta, rounding_u, alias, l1,
+                           log_alias_mass)
 
 
 def _hermitian_sq_sum(half: np.ndarray, n_fft: int) -> float:
