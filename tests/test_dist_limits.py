@@ -10,9 +10,9 @@ import warnings
 
 import numpy as np
 import pytest
+from polyconv.budget import MemoryBudgetError, using_budget
 from scipy import stats
 
-from polyconv.budget import MemoryBudgetError, using_budget
 from polyconv.dist import AccuracyWarning, ErrorLedger, Lattice, compound
 
 
