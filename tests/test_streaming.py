@@ -320,6 +320,26 @@ def test_chunks_bad_inputs():
         list(convolve_chunks([[1.5]], [1.0], modulus=5))
 
 
+@pytest.mark.parametrize("chunks, said", [
+    (None, "got None"), (5, "got a int"), ("123", "got a str"), ({1, 2}, "got a set"),
+    (np.arange(4), r"1-D numpy array \(pass \[x\]"),
+])
+def test_chunks_that_are_not_a_sequence_of_chunks_are_refused_at_the_call(chunks, said):
+    # issue 16 leftover: None gave "'NoneType' object is not iterable", a 1-D array or a string
+    # "chunks[0] must be 1-D"; now a TypeError naming chunks, raised before anything is consumed
+    # (the argument contract of the docstring; common practice, no source)
+    with pytest.raises(TypeError, match=rf"^chunks must be an iterable of 1-D arrays.*{said}"):
+        convolve_chunks(chunks, [1, 1])
+
+
+def test_chunks_rows_of_a_2d_array_are_chunks():
+    # a 2-D array iterates as its rows: the concatenation is the product of the flattened signal
+    # (numpy.convolve reference)
+    x = np.arange(12).reshape(3, 4)
+    got = np.concatenate(list(convolve_chunks(x, [1, -2, 1])))
+    assert got.tolist() == np.convolve(x.ravel(), [1, -2, 1]).tolist()
+
+
 def test_dask_is_not_imported_by_polyconv():
     code = ("import sys, polyconv, polyconv.scale.streaming, polyconv.scale.dask; "
             "print('dask' in sys.modules or 'distributed' in sys.modules)")

@@ -124,19 +124,22 @@ def convolve_chunks(chunks: Iterable, kernel, *,
     modulus : int, optional
         Integer data only: every output reduced to ``[0, modulus)``.
 
-    Yields
-    ------
-    numpy.ndarray
-        Output chunks.  Floats: the dtype :func:`polyconv.api.convolve` gives a chunk.  Exact
-        integers: int64 while ``min(s, m) max|x| max|k| < 2^63`` is proven for the ``s`` samples
-        seen so far, object arrays of Python ints from the first chunk where it is not (values
-        exact either way).  With ``modulus``: int64 when ``modulus < 2^63``.
+    Returns
+    -------
+    iterator of numpy.ndarray
+        Output chunks, computed as they are asked for.  Floats: the dtype
+        :func:`polyconv.convolve` gives a chunk.  Exact integers: int64 while
+        ``min(s, m) max|x| max|k| < 2^63`` is proven for the ``s`` samples seen so far, object
+        arrays of Python ints from the first chunk where it is not (values exact either way).
+        With ``modulus``: int64 when ``modulus < 2^63``.
 
     Raises
     ------
     ValueError, TypeError
-        Bad kernel or modulus; a chunk that is not 1-D or whose kind (integer vs floating point)
-        differs from the first chunk's; no samples at all.
+        At the call: ``chunks`` that is not an iterable of chunks (None, a number, a string, a
+        set or dict, a 1-D array: pass ``[x]`` for one chunk), a bad kernel or modulus.  While
+        iterating: a chunk that is not 1-D or whose kind (integer vs floating point) differs from
+        the first chunk's; no samples at all.
 
     Notes
     -----
@@ -151,7 +154,28 @@ def convolve_chunks(chunks: Iterable, kernel, *,
     >>> np.concatenate(list(parts))
     array([1, 3, 5, 3])
     """
+    pieces = _check_chunks(chunks)
     k = check_kernel(kernel)
+    check_modulus(modulus)
+    return _chunk_products(pieces, k, modulus)
+
+
+def _check_chunks(chunks) -> Iterator:
+    """An iterator over ``chunks``; TypeError naming ``chunks`` for what is not a sequence of
+    chunks (numpy would iterate a 1-D array as scalars, a string as characters)."""
+    if (isinstance(chunks, (str, bytes, set, frozenset, dict)) or not isinstance(chunks, Iterable)
+            or (isinstance(chunks, np.ndarray) and chunks.ndim < 2)):
+        what = (f"a {chunks.ndim}-D numpy array (pass [x] for a single chunk)"
+                if isinstance(chunks, np.ndarray) else
+                "None" if chunks is None else f"a {type(chunks).__name__}")
+        raise TypeError("chunks must be an iterable of 1-D arrays, consecutive pieces of the "
+                        f"signal (a list, a generator, ...); got {what}")
+    return iter(chunks)
+
+
+def _chunk_products(chunks: Iterator, k: np.ndarray,
+                    modulus: int | None) -> Iterator[np.ndarray]:
+    """The output chunks of :func:`convolve_chunks` (arguments checked)."""
     m = k.shape[0]
     max_k = max_abs(k) if is_integer_dtype(k.dtype) else 0
     state: OverlapAdd | None = None
