@@ -20,9 +20,9 @@ from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
-from .. import transforms as tf
 from scipy.special import logsumexp
 
+from .. import transforms as tf
 from . import accuracy
 
 
