@@ -1,23 +1,46 @@
 """Reading measured samples from files: a CSV column, a ``.npy`` array, plain text.
 
-Measured latencies come as millions of decimal numbers, read by ``numpy.loadtxt`` (its error
-names the line of a bad value).  A whole-array numpy parser of plain decimals was tried and was
-no faster than numpy 2's compiled ``loadtxt`` (0.8-1.0 s vs 0.6-0.8 s per 10^6 values on the
-busy development machine).
+Measured latencies come as millions of decimal numbers.  Large files are parsed by a compiled
+kernel (:mod:`polyconv.cli._parse_kernel`, exact fast-path conversion); small ones, and
+anything the kernel does not take, by ``numpy.loadtxt`` (whose error names the bad line) or
+``numpy.fromstring`` for plain text.  A whole-array numpy parser was tried and was no faster
+than numpy 2's ``loadtxt`` (0.8-1.0 s vs 0.6-0.8 s per 10^6 values, busy machine).
 """
 
 from __future__ import annotations
 
+import os
+import sys
 from pathlib import Path
 
 import numpy as np
 
 from ..budget import check_allocation
 
+KERNEL_BYTES = 8 << 20
+"""Files at least this large are parsed by the compiled kernel (importing numba costs about a
+second once per process; numpy.loadtxt costs about as much per 10^6 values)."""
+
 
 def kernel_parse(buf: np.ndarray, delimiter: int | None, index: int, ncols: int):
-    """The compiled parser's values, or None (no compiled parser here: fall back)."""
-    return None
+    """The compiled parser's values (:mod:`polyconv.cli._parse_kernel`), or None: file small,
+    numba absent or disabled (``POLYCONV_JIT=0``), or a number it does not take (fall back)."""
+    if buf.size < KERNEL_BYTES and "polyconv.cli._parse_kernel" not in sys.modules:
+        return None
+    if os.environ.get("POLYCONV_JIT", "").strip().lower() in ("0", "off", "no", "false"):
+        return None
+    try:
+        from .. import jit
+        jit.cache_enabled()  # points numba at a writable cache before it is imported
+        from ._parse_kernel import OK, parse_numbers
+    except Exception:  # noqa: BLE001 - numba missing or failing here: numpy.loadtxt instead
+        return None
+    lines = int(np.count_nonzero(buf == 10)) + 1
+    out = np.empty(lines if delimiter is not None else buf.size // 2 + 1)
+    count, status = parse_numbers(buf, -1 if delimiter is None else delimiter, index, out)
+    if status != OK or count == 0:
+        return None
+    return out[:count].copy()
 
 
 
@@ -58,7 +81,17 @@ def read_samples(path: str | Path, *, column: str | int | None = None) -> np.nda
         return _csv(p, raw, column)
     if column is not None:
         raise SampleFileError(f"{p.name}: 'column' applies to CSV files and 2-D .npy arrays")
-    return _fast_or_loadtxt(p, raw, np.frombuffer(raw, dtype=np.uint8), None, 0, 1)
+    fast = kernel_parse(np.frombuffer(raw, dtype=np.uint8), None, 0, 1)
+    if fast is not None:
+        return fast
+    import warnings
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        try:  # white-space separated numbers, any number per line
+            return np.fromstring(raw.decode("utf-8", "replace"), sep=" ")
+        except (DeprecationWarning, ValueError):
+            raise SampleFileError(f"{p.name}: not a list of numbers separated by white space "
+                                  "(a value that is not a number)") from None
 
 
 def _npy(p: Path, column) -> np.ndarray:
