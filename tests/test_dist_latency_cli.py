@@ -16,7 +16,7 @@ from polyconv.cli.delays_spec import parse
 from polyconv.cli.main import main
 from polyconv.cli.sample_files import SampleFileError, read_samples
 from polyconv.cli.spec import load_spec
-from polyconv.dist import series
+from polyconv.dist import Lattice, series
 from polyconv.dist.samples import dkw_epsilon
 
 
@@ -239,3 +239,27 @@ def test_compiled_parser_equals_python_float(tmp_path, monkeypatch):
     (tmp_path / "gap.csv").write_text("host,ms\na,1.5\nb\n")
     with pytest.raises(SampleFileError, match="gap.csv"):  # loadtxt names what is wrong
         read_samples(tmp_path / "gap.csv", column="ms")
+
+
+def test_figure_log_axis_when_heavy_and_markers_outside_not_in_legend():
+    import matplotlib
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+    from scipy import stats
+
+    from polyconv.cli.delays_figure import delays_panels
+    heavy = Lattice.from_law(stats.lognorm(2.0, scale=10.0), step=1.0, size=200_000)
+    light = Lattice.from_law(stats.gamma(20.0, scale=1.0), step=1.0, size=200)
+    fig = delays_panels(heavy, title="t", unit="ms", deadlines=[(1e9, 0.0, 0.0, 0.0)],
+                        markers=[("p50", 10.0)], stages={"x": light})
+    ax1, ax2 = fig.axes[:2]
+    # p99.9 / p50 of a lognormal(sigma 2) = exp(2 * 3.09) ~ 480 > 8: log time axis
+    assert ax1.get_xscale() == "log" and ax2.get_xscale() == "log"
+    labels = [t.get_text() for t in ax2.get_legend().get_texts()]
+    assert not any("deadline" in t for t in labels)  # 1e9 ms is outside the plotted range
+    assert any(t.startswith("p50") for t in labels)
+    assert "stage x" in [t.get_text() for t in ax1.get_legend().get_texts()]
+    plt.close(fig)
+    fig = delays_panels(light, title="t", unit="ms")
+    assert fig.axes[0].get_xscale() == "linear"
+    plt.close(fig)

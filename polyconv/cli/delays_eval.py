@@ -196,6 +196,13 @@ def compute(spec: DelaySpec, steps: Steps | None = None) -> DelayResult:
         retries = _retry_facts(spec, net, laws_of)
         effects, target = _sensitivity(spec, net)
         rel_rows, hazards = _reliability(spec, total)
+    open_tail = [n for n, s in sampled.items() if s.tail is None and
+                 not leaves[n].has("upper")]
+    if open_tail:
+        notes.append(f"measured stage(s) {', '.join(open_tail)}: the samples bound no moment "
+                     "beyond their largest value, so means and standard deviations that depend "
+                     "on it are refused; give 'upper' (the largest possible delay, e.g. a "
+                     "client timeout) or a fitted 'tail'")
     shared = {s: net.plan.route[s] for s in net.shared()}
     for s, route in shared.items():
         on = "its finishing events" if route == "events" else "its value"

@@ -43,11 +43,17 @@ def use_log_axis(lat: Lattice, axis: str) -> bool:
     return median > 0 and _q(lat, 0.999) > HEAVY_RATIO * median
 
 
-def delays_figure(total: Lattice, *, title: str, unit: str, axis: str = "auto",
+def delays_figure(total: Lattice, **options) -> bytes:
+    """The PNG of :func:`delays_panels` (same arguments)."""
+    return _png(delays_panels(total, **options), _pyplot())
+
+
+def delays_panels(total: Lattice, *, title: str, unit: str, axis: str = "auto",
                   stages: dict[str, Lattice] | None = None,
                   markers: list[tuple[str, float]] = (),
-                  deadlines: list[tuple[float, float, float, float]] = ()) -> bytes:
-    """The PNG (module docstring); ``deadlines`` are ``(deadline, value, low, high)``."""
+                  deadlines: list[tuple[float, float, float, float]] = ()):
+    """The matplotlib figure (module docstring); ``deadlines`` are ``(deadline, value, low,
+    high)``.  Close it with ``matplotlib.pyplot.close`` when done."""
     plt = _pyplot()
     log_x = use_log_axis(total, axis)
     x = total.values
@@ -101,4 +107,4 @@ def delays_figure(total: Lattice, *, title: str, unit: str, axis: str = "auto",
         ax.set_xlabel(f"delay x ({unit}{', log scale' if log_x else ''})")
         ax.grid(alpha=0.3, which="both")
         ax.legend(fontsize=8, loc="upper left", bbox_to_anchor=(0.0, -0.12), frameon=False)
-    return _png(fig, plt)
+    return fig
