@@ -326,7 +326,9 @@ class Network:
         for i in support:
             point = Lattice._make(np.array([1.0]), law.step, law.origin + law.step * float(i),
                                   ErrorLedger(0.0, 0.0, 0.0, 1, 0.0, 0.0))
-            parts.append(self._eval(name, {**fixed, s: point}, replace, memo))
+            # results conditioned on this point are not reused: a copy of the memo keeps
+            # them from piling up (4096 points x every block of the scope)
+            parts.append(self._eval(name, {**fixed, s: point}, replace, dict(memo)))
             weights.append(float(law.pmf[i]))
         return _mix(weights, parts, law)
 
