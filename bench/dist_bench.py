@@ -2,7 +2,8 @@
 heavy-tail VaR and TVaR to a stated precision against Monte Carlo.
 
 Run: ``python bench/dist_bench.py [--max-log2 20] [--recursion-limit 60]`` (all sections) or
-``python bench/dist_bench.py --heavy`` (the heavy-tail section only).  Prints tables.
+``python bench/dist_bench.py --heavy`` (the heavy-tail section only) or ``--latency`` (the latency
+toolkit of issue 13, in bench/latency_bench.py).  Prints tables.
 Goals (issue 5): FFT compound >= 100x faster than the recursion at 2^16 points with max abs
 difference <= 1e-12; a 2^20-point compound in well under a second.  The severity is an invented
 example (lognormal densities at cell midpoints, normalised here).
@@ -157,6 +158,8 @@ def main() -> None:
     ap.add_argument("--recursion-limit", type=float, default=60.0,
                     help="skip the recursion where it is predicted to take longer (seconds)")
     ap.add_argument("--heavy", action="store_true", help="only the heavy-tail section")
+    ap.add_argument("--latency", action="store_true",
+                    help="only the latency toolkit section (bench/latency_bench.py)")
     ap.add_argument("--with-old", action="store_true",
                     help="heavy-tail section: also time the default grids of a plain compound")
     ap.add_argument("--worker", help=argparse.SUPPRESS)
@@ -166,6 +169,10 @@ def main() -> None:
         return
     if args.heavy:
         heavy(args.with_old)
+        return
+    if args.latency:
+        import latency_bench  # bench/latency_bench.py, beside this script
+        latency_bench.main()
         return
     counts = stats.poisson(30.0)
     print("compound Poisson(30), lognormal severity discretised on the whole grid (size points)")

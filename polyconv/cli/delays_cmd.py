@@ -3,8 +3,8 @@
 Spec format (polyconv's own keys; unknown keys are refused)::
 
     title = "Larkspur Parcel: order to dispatch"     # optional
-    unit = "ms"                                      # optional label of times (default "units")
-
+    unit = "ms"                                      # unit of the grid (s, ms, us, ns, min, h
+                                                     # convert; any other word is a label)
     [grid]
     step = 1.0                        # common time step (required)
     max_points = 1048576              # optional cap of one stage's grid
@@ -13,6 +13,12 @@ Spec format (polyconv's own keys; unknown keys are refused)::
     [report]                          # optional
     percentiles = [50, 90, 99, 99.9]
     deadlines = [250.0, 400.0]        # miss probability P(delay > deadline) for each
+    confidence = 0.95                 # joint confidence of the sample-size bands
+    mission_times = [100.0, 500.0]    # reliability R(t) = P(T > t), hazard rate, MTTF
+    stage_curves = false              # draw each stage's curve in the figure
+    time_axis = "auto"                # "auto" (log when the tail is heavy) | "linear" | "log"
+    sensitivity = { speedup_percent = 10, percentiles = [99] }
+    target = { stage = "db", percentile = 99, below = 500.0 }   # how much faster must db be
 
     [network]                         # what is evaluated: a block like those below
     in_sequence = ["accept", "checks", "dispatch"]
@@ -20,9 +26,20 @@ Spec format (polyconv's own keys; unknown keys are refused)::
     [stage.accept]                    # a single stage: a law ...
     law = "gamma"
     params = { a = 3.0, scale = 4.0 }
+    unit = "s"                        # optional: this stage's unit (converted onto the grid)
 
-    [stage.pick]                      # ... or observed samples, or values + probabilities/counts
+    [stage.pick]                      # ... or a table: samples, values + probabilities/counts
     samples = [31, 35, 29, 44, 38]
+
+    [stage.db]                        # ... or measured samples from a file
+    samples_file = "db_latency.csv"   # .csv (with 'column', a header name or index), .npy, text
+    column = "latency_us"
+    unit = "us"
+    tail = { threshold = 900.0, law = "genpareto" }   # optional fitted tail beyond a threshold
+    upper = 5000.0                    # optional largest possible value (e.g. a client timeout)
+
+    [stage.cache]                     # ... or a histogram of measurements
+    histogram = { edges = [0, 1, 2, 5, 10], counts = [700, 200, 80, 20] }
 
     [stage.checks]                    # parallel branches, wait for all of them (maximum)
     all_of = ["pick", "charge"]
@@ -33,42 +50,55 @@ Spec format (polyconv's own keys; unknown keys are refused)::
     [stage.charge]                    # one branch at random with these weights (sum to 1)
     one_of = { fast = 0.93, manual_review = 0.07 }
 
-A block is exactly one of: a law (``law`` + ``params``), ``samples``, ``values`` with
-``probabilities`` or ``counts``, ``in_sequence``, ``all_of``, ``first_of`` or ``one_of``.  Names
-refer to ``[stage.NAME]`` tables; a name used twice stands for two independent draws of that stage.
+    [stage.quorum]                    # the k-th of n to finish (quorum, k-out-of-n)
+    k_of = ["replica_a", "replica_b", "replica_c"]
+    k = 2
+    copies = 1                        # optional: each name stands for this many copies
+
+    [stage.call]                      # timeouts with retries: success, or give up at the end
+    retry = "attempt"
+    timeout = 200.0
+    retries = 2
+    backoff = [10.0, 20.0]            # one wait per retry, or one number for all
+
+    [stage.hedged]                    # a second copy after 'after' unless answered
+    hedge = "backend"
+    after = 50.0
+
+A stage named in several places is **one draw** (the same host, cache or queue), conditioned on
+exactly (see :mod:`polyconv.dist.network`); give each use its own stage when they are truly
+independent.  Measured stages (``samples_file``, ``histogram``) carry the Dvoretzky-Kiefer-
+Wolfowitz band (Massart's constant) of their sample size at the report's joint confidence
+(split over the measured stages by Bonferroni's inequality); tail probabilities past the data
+are bounds, and the report says how many samples back each percentile.  Inline ``samples`` and
+``values`` tables are taken as exact laws.
 
 Outputs in the report folder (see :mod:`polyconv.cli.distribution_report`): ``summary.md``,
 ``summary.json``, ``delays.csv`` (delay, probability, cdf, exceedance), ``measures.csv`` (every
-measure with its certified range and status) and ``delays.png``.
+measure with its certified range and status) and ``delays.png``.  The evaluation is
+:mod:`polyconv.cli.delays_eval`, the spec :mod:`polyconv.cli.delays_spec`.
 """
 
 from __future__ import annotations
 
 import math
-import re
-from dataclasses import dataclass, field
 
-from ..dist import Lattice, all_of, first_of, mixture, series
+from ..dist.samples import samples_beyond
 from . import distribution_report as skeleton
-from . import grid_mass, laws
-from .bounded_rows import MeasureRow, ask
+from .bounded_rows import range_text
+from .delays_eval import DelayResult, compute, count_blocks
+from .delays_figure import delays_figure
+from .delays_spec import ROOT, DelaySpec, parse
 from .fileio import ReportFolder
-from .progress import Steps
-from .report import (
-    caution,
-    collect_warnings,
-    fmt_prob,
-    number_name,
-    percent_level,
-    percentile_name,
-)
-from .spec import Section, SpecDoc
+from .report import caution, fmt, fmt_prob, percent_level, percentile_name
 
-DEFAULT_PERCENTILES = (50.0, 90.0, 99.0, 99.9)
-COMBINATORS = ("in_sequence", "all_of", "first_of", "one_of")
-RULES = ("nearest", "down", "up", "moments")
-ROOT = "(network)"
-"""Internal name of the evaluated block (stage names are letters, digits, '_' and '-')."""
+__all__ = ["DelaySpec", "DelayResult", "parse", "compute", "report_of", "write_report",
+           "json_summary", "run", "register"]
+
+ENGINEERING_NOTE = ("Engineering use: check deadlines, timeouts, capacity and safety margins "
+                    "against the applicable engineering codes and standards and a qualified "
+                    "engineer's review; measured samples describe the system only as it was "
+                    "measured (load, versions and hardware change it).")
 
 EXAMPLE = """example:
   polyconv delays pipeline.toml -o pipeline-report
@@ -109,266 +139,27 @@ def register(sub) -> None:
         epilog=EXAMPLE, run=run)
 
 
-# ------------------------------------------------------------------------------------ spec
-
-
-@dataclass
-class DelaySpec:
-    """A validated delays spec."""
-
-    doc: SpecDoc
-    title: str
-    unit: str
-    step: float
-    max_points: int
-    rule: str
-    percentiles: list[float]
-    deadlines: list[float]
-    network: Section
-    stages: dict[str, Section]
-
-
-def parse(doc: SpecDoc) -> DelaySpec:
-    """Validate a parsed spec; the network's references are checked here too."""
-    root = doc.root()
-    root.check_keys(("title", "unit", "grid", "report", "network", "stage"))
-    title = root.string("title", "Delay network")
-    unit = root.string("unit", "units")
-    grid = root.table("grid")
-    grid.check_keys(("step", "max_points", "rule"))
-    step = grid.number("step", positive=True)
-    max_points = grid.integer("max_points", 1 << 20, minimum=2, maximum=1 << 24)
-    rule = grid.string("rule", "nearest", RULES)
-    rep = root.table("report", {})
-    rep.check_keys(("percentiles", "deadlines"))
-    percentiles = rep.numbers("percentiles", list(DEFAULT_PERCENTILES), minimum=0.0,
-                              maximum=100.0)
-    if any(not 0 < q < 100 for q in percentiles):
-        raise rep.error("percentiles", "must lie strictly between 0 and 100 (e.g. 99.9)")
-    deadlines = rep.numbers("deadlines", [], minimum=0.0, nonempty=False)
-    network = root.table("network")
-    stage_table = root.table("stage", {})
-    stages = {}
-    for name in stage_table.keys():
-        if not re.fullmatch(r"[A-Za-z0-9_-]+", name):
-            raise stage_table.error(name, "stage names may hold only letters, digits, '_' "
-                                    "and '-'")
-        stages[name] = stage_table.table(name)
-    spec = DelaySpec(doc, title, unit, step, max_points, rule, percentiles,
-                     deadlines, network, stages)
-    _check_graph(spec)
-    return spec
-
-
-def block_kind(sec: Section) -> str:
-    """``"in_sequence"``, ``"all_of"``, ``"first_of"``, ``"one_of"`` or ``"leaf"``."""
-    present = [k for k in COMBINATORS if sec.has(k)]
-    if len(present) > 1:
-        raise sec.error(present[1], f"a block is one thing: '{present[0]}' and '{present[1]}' "
-                        "cannot be combined (make a named stage for one of them)")
-    if present:
-        sec.check_keys((present[0],))
-        return present[0]
-    laws.describe_kind(sec)
-    return "leaf"
-
-
-def children(sec: Section, kind: str) -> list[tuple[str, tuple]]:
-    """``(name, key path)`` of each block a combinator refers to."""
-    if kind == "one_of":
-        weights = sec.table("one_of")
-        if not weights.keys():
-            raise sec.error("one_of", "must name at least one branch with its weight")
-        return [(name, sec.path + ("one_of", name)) for name in weights.keys()]
-    names = sec.strings(kind)
-    return [(name, sec.path + (kind, i)) for i, name in enumerate(names)]
-
-
-def branch_weights(sec: Section) -> list[float]:
-    """The weights of a ``one_of`` block, checked to sum to 1 (within 1e-9; not renormalised)."""
-    table = sec.table("one_of")
-    weights = [table.number(n, minimum=0.0) for n in table.keys()]
-    total = math.fsum(weights)
-    if abs(total - 1.0) > 1e-9:
-        raise sec.error("one_of", f"weights must sum to 1 (they sum to {total!r}); "
-                        "polyconv does not renormalise them")
-    return weights
-
-
-def _check_graph(spec: DelaySpec) -> None:
-    """Unknown names and cycles are spec errors naming the key."""
-    state: dict[str, str] = {}
-
-    def visit(sec: Section, name: str | None) -> None:
-        kind = block_kind(sec)
-        if kind == "leaf":
-            return
-        if kind == "one_of":
-            branch_weights(sec)
-        for child, path in children(sec, kind):
-            if child not in spec.stages:
-                known = ", ".join(sorted(spec.stages)) or "none"
-                raise spec.doc.error(path, f"names the stage {child!r}, which is not defined "
-                                     f"(define [stage.{child}]; defined: {known})")
-            if state.get(child) == "open":
-                raise spec.doc.error(path, f"stage {child!r} contains itself (a cycle)")
-            if state.get(child) != "done":
-                state[child] = "open"
-                visit(spec.stages[child], child)
-                state[child] = "done"
-
-    visit(spec.network, None)
-
-
-# ------------------------------------------------------------------------------- compute
-
-
-@dataclass
-class DelayResult:
-    """Everything the report shows."""
-
-    spec: DelaySpec
-    total: Lattice
-    stages: dict[str, Lattice]
-    descriptions: dict[str, str]
-    rows: list[MeasureRow]
-    stage_rows: dict[str, list[MeasureRow]]
-    notes: list[str] = field(default_factory=list)
-
-
-def count_blocks(spec: DelaySpec) -> int:
-    """Blocks evaluated (for the progress bar)."""
-    return len(spec.stages) + 1
-
-
-def _used_sections(spec: DelaySpec) -> list[Section]:
-    """The network and every stage reachable from it (an unused stage decides nothing)."""
-    seen: set[str] = set()
-    out = [spec.network]
-    todo = [spec.network]
-    while todo:
-        sec = todo.pop()
-        kind = block_kind(sec)
-        if kind == "leaf":
-            continue
-        for child, _ in children(sec, kind):
-            if child not in seen and child in spec.stages:
-                seen.add(child)
-                out.append(spec.stages[child])
-                todo.append(spec.stages[child])
-    return out
-
-
-def horizon(spec: DelaySpec, notes: list[str]) -> int:
-    """One grid length for every continuous stage: the longest any stage needs.
-
-    A join (``all_of``) or race (``first_of``) can only be evaluated where all its branches are
-    known; a continuous stage cut at its own ``1 - 1e-12`` quantile would cut short a branch
-    with a longer empirical tail.  Discretising every continuous stage as far as the longest
-    stage reaches avoids that (capped at ``grid.max_points``).
-    """
-    leaves = [sec for sec in _used_sections(spec) if block_kind(sec) == "leaf"]
-    need = max((laws.natural_points(sec, spec.step) for sec in leaves), default=2)
-    if need > spec.max_points:
-        notes.append(f"stage grids cut at grid.max_points = {spec.max_points} points "
-                     f"({spec.max_points * spec.step:g} {spec.unit})")
-        return spec.max_points
-    return int(need)
-
-
-def compute(spec: DelaySpec, steps: Steps | None = None) -> DelayResult:
-    """Evaluate the network bottom-up (each named stage once) and measure the total."""
-    notes: list[str] = []
-    done: dict[str, Lattice] = {}
-    descriptions: dict[str, str] = {}
-
-    def evaluate(sec: Section, name: str) -> Lattice:
-        kind = block_kind(sec)
-        if kind == "leaf":
-            if steps:
-                steps.step(f"stage {name}")
-            built = laws.build(sec, spec.step, rule=spec.rule,
-                               max_points=spec.max_points, points=points)
-            notes.extend(f"stage {name}: {n}" for n in built.notes)
-            descriptions[name] = built.description
-            grid_mass.require_mass(built.lattice, 0.0, *grid_mass.leaf_fail(sec),
-                                  f"stage {name} ({built.description})", spec.unit)
-            return built.lattice
-        parts = []
-        for child, _ in children(sec, kind):
-            if child not in done:
-                done[child] = evaluate(spec.stages[child], child)
-            parts.append(done[child])
-        if steps:
-            steps.step(f"combine {name}")
-        names = [c for c, _ in children(sec, kind)]
-        if kind == "in_sequence":
-            descriptions[name] = "in sequence: " + " -> ".join(names)
-            return series(*parts)
-        if kind == "all_of":
-            descriptions[name] = "wait for all of: " + ", ".join(names)
-            return all_of(*parts)
-        if kind == "first_of":
-            descriptions[name] = "first to finish of: " + ", ".join(names)
-            return first_of(*parts)
-        weights = branch_weights(sec)
-        total = math.fsum(weights)
-        descriptions[name] = "one of: " + ", ".join(f"{n} ({w:g})" for n, w in
-                                                     zip(names, weights, strict=True))
-        return mixture([w / total for w in weights], parts)
-
-    with collect_warnings(notes):
-        points = horizon(spec, notes)
-        total = evaluate(spec.network, ROOT)
-        grid_mass.require_mass(total, percent_level(min(spec.percentiles)),
-                              lambda message: spec.doc.error(("grid", "max_points"), message),
-                              "raise grid.max_points (or choose a larger grid.step)",
-                              "the end-to-end delay", spec.unit)
-        if steps:
-            steps.step("percentiles")
-        rows = measure_rows(spec, total)
-        stage_rows = {name: stage_measures(lat, spec.unit) for name, lat in done.items()}
-    return DelayResult(spec, total, done, descriptions, rows, stage_rows, notes)
-
-
-def measure_rows(spec: DelaySpec, total: Lattice) -> list[MeasureRow]:
-    """Mean, sd, percentiles and deadline-miss probabilities of the end-to-end delay, each the
-    lattice's own answer with its certified range."""
-    u = spec.unit
-    rows = [ask(total, "mean", key="mean", label="mean", unit=u),
-            ask(total, "std", key="sd", label="standard deviation", unit=u)]
-    rows += [ask(total, "quantile", percent_level(q), key="percentiles", label=percentile_name(q),
-                 unit=u, argument_name="percentile", argument=q) for q in spec.percentiles]
-    rows += [ask(total, "sf", d, key="miss_probability",
-                 label=f"P(delay > {number_name(d)} {u})", unit="", argument_name="deadline")
-             for d in spec.deadlines]
-    return rows
-
-
-def stage_measures(lat: Lattice, unit: str) -> list[MeasureRow]:
-    """Mean, median and p99 of one stage."""
-    return [ask(lat, "mean", key="mean", label="mean", unit=unit),
-            ask(lat, "quantile", 0.5, key="p50", label="p50", unit=unit),
-            ask(lat, "quantile", 0.99, key="p99", label="p99", unit=unit)]
-
-
 # -------------------------------------------------------------------------------- report
 
 
 def caution_lines(res: DelayResult) -> list[str]:
-    """The caution with this run's assumptions."""
+    """The caution with this run's assumptions (engineering wording)."""
+    shared = (f"; stages used in several places are one draw ({', '.join(res.shared)})"
+              if res.shared else "")
+    sampled = (f"; {len(res.sampled)} measured stage(s) with sample-size bands at joint "
+               f"confidence {res.spec.confidence:g}" if res.sampled else "")
     return caution(
-        independence="every stage and parallel branch is independent of the others; shared "
-        "hosts, queues or networks break this",
+        independence="distinct stages and parallel branches are independent of one another; "
+        "shared hosts, queues or networks not named as one stage break this" + shared,
         discretisation=f"delays on a grid of step {res.spec.step:g} {res.spec.unit} "
-        f"({res.spec.rule} rule)",
+        f"({res.spec.rule} rule){sampled}",
         truncation=f"{len(res.total)} grid points; mass beyond the grid "
         f"{fmt_prob(res.total.truncated_mass)}",
         practice="engineering",
-    )
+    ) + [ENGINEERING_NOTE]
 
 
-def _stage_cell(row: MeasureRow) -> str:
+def _stage_cell(row) -> str:
     """A stage's measure in the stages table: the value, or ``refused`` (range in the JSON)."""
     return row.cells()[1] + ("" if row.status() == "ok" else " (!)")
 
@@ -382,6 +173,86 @@ def stage_table(res: DelayResult) -> skeleton.Table:
                                      f"p99 ({u})"], rows)
 
 
+def sample_support(res: DelayResult) -> list[dict]:
+    """For each reported percentile: how many samples of the least-sampled measured stage lie
+    beyond that level, and whether the end-to-end sample-size band leaves it supported."""
+    if not res.sampled:
+        return []
+    fewest = min(res.sampled, key=lambda n: res.sampled[n].n)
+    n = res.sampled[fewest].n
+    band = float(min(res.total.errors.cumulative, 1.0))
+    return [{"percentile": q, "samples_beyond": samples_beyond(n, percent_level(q)),
+             "stage": fewest, "stage_samples": n, "band": band,
+             "supported": 1 - percent_level(q) > band} for q in res.spec.percentiles]
+
+
+def extra_tables(res: DelayResult) -> list[skeleton.Table]:
+    """Sample support, retries and hedges, sensitivity, target, reliability."""
+    u = res.spec.unit
+    out = []
+    support = sample_support(res)
+    if support:
+        out.append(skeleton.Table(
+            "Sample support of the percentiles",
+            ["percentile", "samples beyond it", "end-to-end band", "supported by the samples"],
+            [[percentile_name(r["percentile"]),
+              f"{r['samples_beyond']:,} of {r['stage_samples']:,.0f} ({r['stage']})",
+              f"+/- {r['band']:.2e}",
+              "yes" if r["supported"] else "no: the level is inside the band (read the range)"]
+             for r in support]))
+        out.append(skeleton.Table(
+            "Measured stages", ["stage", "samples", "band (DKW, Massart)", "largest sample"],
+            [[name, f"{s.n:,.0f}", f"+/- {s.eps:.2e} at alpha {s.alpha:.2g}",
+              f"{fmt(s.largest)} {u}"] for name, s in res.sampled.items()]))
+    if res.retries:
+        rows = []
+        for name, f in res.retries.items():
+            if f["kind"] == "retry":
+                b = f["p_all_time_out"]
+                rows.append([name, "P(every attempt times out)", fmt_prob(b["value"]),
+                             range_text(b["low"], b["high"], True)])
+                rows.append([name, "expected attempts", fmt(f["expected_attempts"]), ""])
+            else:
+                for key, label, prob in (("extra_requests", "extra copies per request", True),
+                                         ("extra_busy_time", f"extra busy time ({u})", False)):
+                    b = f[key]
+                    value = fmt(b["value"]) if math.isfinite(b["value"]) else "refused"
+                    rows.append([name, label, value, range_text(b["low"], b["high"], prob)])
+        out.append(skeleton.Table("Retries and hedges", ["stage", "quantity", "value",
+                                                         "certified range"], rows))
+    if res.effects:
+        pct = f"{100 * res.spec.speedup:g} % faster"
+        out.append(skeleton.Table(
+            "Sensitivity: end-to-end percentile with one stage changed",
+            ["stage", "percentile", f"as is ({u})", f"{pct} ({u})", f"removed ({u})"],
+            [[e.stage, f"p{100 * e.level:g}", fmt(e.base), fmt(e.faster), fmt(e.removed)]
+             for e in res.effects]))
+    if res.target is not None:
+        t, spec_t = res.target, res.spec.target
+        what = (f"{100 * t.speedup:.1f} % faster (delay x {t.factor:.4f}): "
+                f"{percentile_name(spec_t.percentile)} = {fmt(t.quantile)} {u}"
+                if t.reachable and t.speedup > 0 else
+                f"already met ({percentile_name(spec_t.percentile)} = {fmt(t.quantile)} {u})"
+                if t.reachable else
+                f"not reachable by this stage alone: removed, "
+                f"{percentile_name(spec_t.percentile)} = {fmt(t.quantile)} {u}")
+        out.append(skeleton.Table(
+            "Target", ["stage", "goal", "needed"],
+            [[t.stage, f"{percentile_name(spec_t.percentile)} < {fmt(spec_t.below)} {u}",
+              what]]))
+    if res.reliability_rows:
+        rows = [r.cells()[:3] for r in res.reliability_rows]
+        out.append(skeleton.Table(
+            "Reliability (the end-to-end delay read as a lifetime)",
+            ["quantity", "value", "certified range"], rows))
+        if res.hazards:
+            out.append(skeleton.Table(
+                "Hazard rate at the mission times", ["time", f"hazard (per {u})"],
+                [[f"{fmt(t)} {u}", f"{h:.3e}" if math.isfinite(h) else "n/a"]
+                 for t, h in zip(res.spec.mission_times, res.hazards, strict=True)]))
+    return out
+
+
 def report_of(res: DelayResult) -> skeleton.DistributionReport:
     """The result as a report (see :mod:`polyconv.cli.distribution_report`)."""
     spec = res.spec
@@ -389,7 +260,27 @@ def report_of(res: DelayResult) -> skeleton.DistributionReport:
     stages = {name: {r.key: r.as_json() for r in rows}
               for name, rows in res.stage_rows.items() if name != ROOT}
     facts = {"unit": spec.unit, "network": network, "rule": spec.rule,
-             "descriptions": res.descriptions, "stages": stages}
+             "descriptions": res.descriptions, "stages": stages,
+             "shared_stages": res.shared, "sample_support": sample_support(res),
+             "measured_stages": {n: {"samples": s.n, "band": s.eps, "alpha": s.alpha,
+                                     "largest": s.largest,
+                                     "tail": s.tail.description if s.tail else None}
+                                 for n, s in res.sampled.items()},
+             "retries_and_hedges": res.retries,
+             "sensitivity": [e._asdict() for e in res.effects],
+             "target": res.target._asdict() if res.target else None,
+             "reliability": [r.as_json() for r in res.reliability_rows],
+             "hazard_at_mission_times": res.hazards}
+    markers = skeleton.finite_markers(res.rows, "percentiles")
+    deadlines = [(r.argument, r.value, r.low, r.high) for r in res.rows
+                 if r.argument_name == "deadline"]
+    curves = {n: lat for n, lat in res.stages.items()
+              if n != ROOT and n in spec.stages} if spec.stage_curves else None
+
+    def figure(rep):
+        return delays_figure(res.total, title=spec.title, unit=spec.unit, axis=spec.time_axis,
+                             stages=curves, markers=markers, deadlines=deadlines)
+
     return skeleton.DistributionReport(
         title=spec.title, stem="delays", value_name="delay", quantity="end-to-end delay",
         unit=spec.unit, lattice=res.total,
@@ -398,9 +289,9 @@ def report_of(res: DelayResult) -> skeleton.DistributionReport:
         explanation=["Percentiles are read off the combined distribution (percentiles of "
                      "stages do not add). A miss probability is P(delay > deadline). In the "
                      "stages table, (!) marks a measure refused or warned about (reasons in "
-                     "summary.json)."],
-        tables=[stage_table(res)],
-        markers=skeleton.finite_markers(res.rows, "percentiles"))
+                     "summary.json). For measured stages the certified ranges include the "
+                     "sample-size band: a tail probability past the data is a bound."],
+        tables=[stage_table(res), *extra_tables(res)], markers=markers, figure=figure)
 
 
 def write_report(res: DelayResult, out: ReportFolder, prefix: str = "") -> list[str]:

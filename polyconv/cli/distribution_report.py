@@ -120,6 +120,8 @@ class DistributionReport:
     preface: list[str] = field(default_factory=list)
     markers: list[tuple[str, float]] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
+    figure: Callable[[DistributionReport], bytes] | None = None
+    """A command's own figure (``report -> PNG bytes``) instead of :func:`figure_png`."""
 
 
 def grid_rows(lat: Lattice, unit: str) -> list[list[str]]:
@@ -253,7 +255,7 @@ def write_files(rep: DistributionReport, out: ReportFolder, prefix: str = "") ->
     fig_name = None
     if plots.available():
         fig_name = f"{prefix}{rep.stem}.png"
-        out.write_bytes(fig_name, figure_png(rep))
+        out.write_bytes(fig_name, (rep.figure or figure_png)(rep))
         names.append(fig_name)
     elif plots.MISSING_NOTE not in rep.notes:
         rep.notes.append(plots.MISSING_NOTE)

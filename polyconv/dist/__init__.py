@@ -3,7 +3,11 @@
 Sums of independent random variables (``X + Y``, :meth:`Lattice.nfold`), compound distributions
 (:func:`compound`), continuous laws put on a lattice (:meth:`Lattice.from_law`, bracketed by
 :func:`law_bracket`), delay networks
-(:func:`series`, :func:`all_of`, :func:`first_of`, :func:`mixture`) and risk measures (quantile,
+(:func:`series`, :func:`all_of`, :func:`first_of`, :func:`mixture`, :func:`kth_of`,
+:func:`retry`, :func:`hedge`, :class:`Network` with shared stages drawn once, measured samples
+via :meth:`Lattice.from_samples` / :func:`from_histogram` with their DKW band, sensitivity
+:func:`stage_effects` / :func:`required_speedup`, :func:`reliability` / :func:`hazard`) and
+risk measures (quantile,
 VaR, TVaR, stop-loss) on :class:`Lattice` objects.  Each Lattice carries an
 :class:`ErrorLedger` (computed-error bounds per point and in L1, truncated mass, where it may lie
 and its first moment); every query has a certified range (:meth:`Lattice.bounded` returns a
@@ -27,6 +31,12 @@ from .errors import AccuracyWarning, TruncationWarning
 from .goals import Goal, aggregate_for_goal
 from .lattice import Lattice
 from .ledger import Bounded, ErrorLedger
+from .network import Block, Network
+from .order_stats import kth_of
+from .reliability import hazard, reliability
+from .retry import hedge, retry
+from .samples import dkw_epsilon, from_histogram
+from .sensitivity import required_speedup, stage_effects
 from .step_check import CoarseStepWarning, StepCheck, check_step
 
 __all__ = [
@@ -47,4 +57,15 @@ __all__ = [
     "Bracket",
     "Goal",
     "aggregate_for_goal",
+    "kth_of",
+    "retry",
+    "hedge",
+    "Network",
+    "Block",
+    "from_histogram",
+    "dkw_epsilon",
+    "stage_effects",
+    "required_speedup",
+    "reliability",
+    "hazard",
 ]

@@ -175,6 +175,25 @@ class Lattice(LatticeQueries, LatticeAnswers):
         from .from_law import lattice_from_law
         return lattice_from_law(law, step=step, size=size, rule=rule)
 
+    @classmethod
+    def from_samples(cls, samples, *, step, origin=0.0, counts=None, alpha=0.05,
+                     rule="nearest") -> Lattice:
+        """Empirical law of measured ``samples`` (optionally weighted by ``counts``) on the
+        lattice ``origin + step k``, its ledger carrying the Dvoretzky-Kiefer-Wolfowitz band
+        at confidence ``1 - alpha``.  Implemented in
+        :func:`polyconv.dist.samples.empirical`."""
+        # --- from_samples hook (branch `latency` owns the implementation)
+        from .samples import empirical
+        return empirical(samples, step=step, origin=origin, counts=counts, alpha=alpha,
+                         rule=rule).lattice
+
+    def scaled(self, factor: float, *, rule: str = "nearest") -> Lattice:
+        """Law of ``factor * X`` on this lattice (time scaling, inflation); see
+        :func:`polyconv.dist.scaling.scale_parts` for the rules and the ledger."""
+        # --- scaled hook (branch `latency` owns the implementation)
+        from .scaling import scale_parts
+        return Lattice._make(*scale_parts(self, factor, rule))
+
     def __setattr__(self, name, value):
         raise AttributeError("Lattice is immutable")
 

@@ -166,7 +166,8 @@ def sum_errors(x: ErrorLedger, mass_x: float, max_x: float, y: ErrorLedger, mass
     ``max_*`` are the largest computed probabilities (``||q||_inf <= max + point``).
     See the module docstring for the inequalities; the cumulative sums of ``a * b`` are
     ``sum_j b_j A_{k-j}`` (``A`` the cumulative sums of ``a``), so
-    ``K_Z <= K_X Q_Y + K_Y Q_X + min(K_X l1_Y, l1_X K_Y) + rounding_l1``.
+    ``K_Z <= K_X ||p^_Y||_1 + K_Y Q_X + rounding_l1`` (from ``p^_X * p^_Y - q_X * q_Y =
+    e_X * p^_Y + q_X * e_Y``).
     """
     qx, qy = mass_bound(mass_x, x.l1), mass_bound(mass_y, y.l1)
     l1 = x.l1 * qy + y.l1 * qx + x.l1 * y.l1 + rounding_l1
@@ -174,7 +175,9 @@ def sum_errors(x: ErrorLedger, mass_x: float, max_x: float, y: ErrorLedger, mass
     py = min(y.point * qx, y.l1 * (max_x + x.point))
     point = px + py + min(x.point * y.l1, x.l1 * y.point) + rounding_point
     kx, ky = cum_bound(x), cum_bound(y)
-    cum = kx * qy + ky * qx + min(kx * y.l1, x.l1 * ky) + rounding_l1
+    # p^_X * p^_Y - q_X * q_Y = e_X * p^_Y + q_X * e_Y: no cross term (p^_Y >= 0 has L1 norm
+    # mass_y, q_X at most qx), so the cumulative bounds of sampled inputs (DKW bands, l1 = 2) add
+    cum = kx * mass_y * (1 + 1e-12) + ky * qx + rounding_l1
     return min(point, l1, 2.0), min(l1, 2.0), min(cum, l1, 2.0)
 
 
