@@ -15,7 +15,7 @@ from pathlib import Path
 
 import numpy as np
 
-from ..budget import check_allocation
+from ..numerics.budget import check_allocation
 
 KERNEL_BYTES = 8 << 20
 """Files at least this large are parsed by the compiled kernel (importing numba costs about a

@@ -38,7 +38,7 @@ import numbers
 import numpy as np
 from scipy import special
 
-from ..budget import check_allocation
+from ..numerics.budget import check_allocation
 from .accuracy import UNIT_ROUNDOFF
 from .delays import _check, _grid, _pmf_from, _represented, _rounding
 from .lattice import Lattice

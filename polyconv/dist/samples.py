@@ -43,7 +43,7 @@ from typing import NamedTuple
 
 import numpy as np
 
-from ..budget import check_allocation
+from ..numerics.budget import check_allocation
 from .ledger import ErrorLedger
 from .risk import real_value
 
