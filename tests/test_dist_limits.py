@@ -10,7 +10,7 @@ import warnings
 
 import numpy as np
 import pytest
-from polyconv.budget import MemoryBudgetError, using_budget
+from polyconv.numerics.budget import MemoryBudgetError, using_budget
 from scipy import stats
 
 from polyconv.dist import AccuracyWarning, ErrorLedger, Lattice, compound
