@@ -263,7 +263,8 @@ def _axis_tail(law: CountsLaw, marginal: np.ndarray, x: float) -> float:
     expo = t * idx[None, :] + np.log(mass)[None, :]
     top = expo.max(axis=1)
     s = top + np.log(np.exp(expo - top[:, None]).sum(axis=1))
-    vals = [law.transform.log_pgf_real(float(si)) - float(ti) * x for si, ti in zip(s, t[:, 0])]
+    vals = [law.transform.log_pgf_real(float(si)) - float(ti) * x
+            for si, ti in zip(s, t[:, 0], strict=True)]
     return min(0.0, min(vals))
 
 

@@ -198,7 +198,7 @@ def xol_programme(counts, severity: Lattice, layer: XoLLayer, *, size: int | Non
     h = severity.step
     aad = _index(layer.aggregate_deductible, h, "aggregate_deductible")
     cap = layer.aggregate_cap()
-    w = _index(layer.limit, h, "limit")
+    _index(layer.limit, h, "limit")
     gross = compound(counts, severity, size=size)
     n1 = len(gross)
     if math.isinf(cap):
