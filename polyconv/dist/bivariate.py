@@ -46,6 +46,12 @@ MIN_TRANSFORM = 64
 """Shortest transform per axis: a short axis (a window) is padded at least this far, so the
 mass wrapped onto it is damped by the tilt over enough points."""
 
+COLUMN_BLOCK = 32
+"""Frequency columns of the short axis transformed along the long axis at a time."""
+
+ROW_BLOCK = 4096
+"""Rows inverse-transformed at a time along the short axis."""
+
 DEFAULT_TAIL = 1e-13
 """Default grid per axis: Chernoff-bounded mass beyond it below this."""
 
@@ -339,30 +345,45 @@ def compound2(counts, severity: BivariateLattice, shape: tuple[int, int] | None 
         raise ValueError(f"pad must be >= 1; got {pad!r}")
     m1 = tf.fast_length(max(int(math.ceil(pad * n1)), f.shape[0], MIN_TRANSFORM), real=False)
     m2 = tf.fast_length(max(int(math.ceil(pad * n2)), f.shape[1], MIN_TRANSFORM), real=True)
-    check_allocation(2 * 16 * m1 * (m2 // 2 + 1) + 8 * m1 * m2,
+    half = m2 // 2 + 1
+    check_allocation(16 * n1 * half + 8 * n1 * n2 + 16 * f.shape[0] * half
+                     + 16 * m1 * COLUMN_BLOCK * 3,
                      f"a bivariate compound on {n1} x {n2} points (transform {m1} x {m2})")
     la, lb = _axis_tail(law, fx, m1), _axis_tail(law, fy, m2)
     eta = accuracy.fft_relative_error(m1 * m2)
     pre = eta * (law.transform.mean + 1) + (law.transform.pgf_rel + law.transform.pgf_abs) * _U
-    th1 = accuracy.choose_tilt(m1, n1, la, pre)
-    th2 = accuracy.choose_tilt(m2, n2, lb, pre)
+    th1 = accuracy.choose_tilt(m1, n1, la, pre)  # the second axis' tilt sees the first's
+    th2 = accuracy.choose_tilt(m2, n2, lb, pre * math.exp(th1 * max(n1 - 1, 0)))
     w1 = np.exp(-th1 * np.arange(f.shape[0]))
     w2 = np.exp(-th2 * np.arange(f.shape[1]))
     ft = f * w1[:, None] * w2[None, :]
-    phi = _fft2(ft, m1, m2)
     l1_tilted = float(np.sum(ft))
+    # rfft along the short axis of the (small) severity, then column blocks: fft along the
+    # long axis, P_N, inverse fft, keep the n1 rows wanted (memory ~ n1 x m2 / 2, not m1 x m2)
+    rows = tf.rfft(tf.zero_padded(ft, m2), -1, 1)
     del ft
-    # P_N on the spectrum in row blocks (bounded temporaries); Lipschitz factor <= E[N]
-    block = max(1, (1 << 22) // max(phi.shape[1], 1))
-    for s in range(0, m1, block):
-        phi[s:s + block] = law.transform.pgf(phi[s:s + block])
-    g = _ifft2(phi, m1, m2)
-    del phi
-    l2_out = float(np.sqrt(np.sum(g * g)))
-    gt = g[:n1, :n2]
+    spec = np.empty((n1, half), dtype=complex)
+    sq = 0.0
+    for c0 in range(0, half, COLUMN_BLOCK):
+        c1 = min(half, c0 + COLUMN_BLOCK)
+        buf = np.zeros((m1, c1 - c0), dtype=complex)
+        buf[: rows.shape[0]] = rows[:, c0:c1]
+        big = law.transform.pgf(tf.fft(buf, 0, 1))
+        del buf
+        weight = np.full(c1 - c0, 2.0)
+        weight[(np.arange(c0, c1) == 0) | ((np.arange(c0, c1) == m2 // 2) & (m2 % 2 == 0))] = 1
+        sq += float(np.sum(np.abs(big) ** 2 * weight[None, :]))
+        spec[:, c0:c1] = tf.ifft(big, 0, 1)[:n1]
+        del big
+    del rows
+    l2_out = math.sqrt(sq / (m1 * m2))  # Parseval over the full (Hermitian) spectrum
     u1, u2 = np.exp(th1 * np.arange(n1)), np.exp(th2 * np.arange(n2))
-    out = np.clip(gt * u1[:, None] * u2[None, :], 0.0, 1.0)
-    del g
+    out = np.empty((n1, n2))
+    for r0 in range(0, n1, ROW_BLOCK):
+        r1 = min(n1, r0 + ROW_BLOCK)
+        g = tf.irfft(spec[r0:r1], m2, -1, 1)[:, :n2]
+        out[r0:r1] = np.clip(g * u1[r0:r1, None] * u2[None, :], 0.0, 1.0)
+    del spec
     rounding = accuracy.transform_compound_floor(m1 * m2, l1_tilted, law.transform.mean,
                                                  law.transform.pgf_rel * _U,
                                                  law.transform.pgf_abs * _U, l2_out)
