@@ -360,28 +360,28 @@ def compound2(counts, severity: BivariateLattice, shape: tuple[int, int] | None 
     l1_tilted = float(np.sum(ft))
     # rfft along the short axis of the (small) severity, then column blocks: fft along the
     # long axis, P_N, inverse fft, keep the n1 rows wanted (memory ~ n1 x m2 / 2, not m1 x m2)
-    rows = tf.rfft(tf.zero_padded(ft, m2), -1, 1)
+    cols = np.ascontiguousarray(tf.rfft(tf.zero_padded(ft, m2), -1, 1).T)  # half x rows
     del ft
-    spec = np.empty((n1, half), dtype=complex)
+    spec = np.empty((half, n1), dtype=complex)
     sq = 0.0
     for c0 in range(0, half, COLUMN_BLOCK):
         c1 = min(half, c0 + COLUMN_BLOCK)
-        buf = np.zeros((m1, c1 - c0), dtype=complex)
-        buf[: rows.shape[0]] = rows[:, c0:c1]
-        big = law.transform.pgf(tf.fft(buf, 0, 1))
+        buf = np.zeros((c1 - c0, m1), dtype=complex)  # contiguous along the long axis
+        buf[:, : cols.shape[1]] = cols[c0:c1]
+        big = law.transform.pgf(tf.fft(buf, -1, 1))
         del buf
         weight = np.full(c1 - c0, 2.0)
         weight[(np.arange(c0, c1) == 0) | ((np.arange(c0, c1) == m2 // 2) & (m2 % 2 == 0))] = 1
-        sq += float(np.sum(np.abs(big) ** 2 * weight[None, :]))
-        spec[:, c0:c1] = tf.ifft(big, 0, 1)[:n1]
+        sq += float(np.sum(np.abs(big) ** 2 * weight[:, None]))
+        spec[c0:c1] = tf.ifft(big, -1, 1)[:, :n1]
         del big
-    del rows
+    del cols
     l2_out = math.sqrt(sq / (m1 * m2))  # Parseval over the full (Hermitian) spectrum
     u1, u2 = np.exp(th1 * np.arange(n1)), np.exp(th2 * np.arange(n2))
     out = np.empty((n1, n2))
     for r0 in range(0, n1, ROW_BLOCK):
         r1 = min(n1, r0 + ROW_BLOCK)
-        g = tf.irfft(spec[r0:r1], m2, -1, 1)[:, :n2]
+        g = tf.irfft(np.ascontiguousarray(spec[:, r0:r1].T), m2, -1, 1)[:, :n2]
         out[r0:r1] = np.clip(g * u1[r0:r1, None] * u2[None, :], 0.0, 1.0)
     del spec
     rounding = accuracy.transform_compound_floor(m1 * m2, l1_tilted, law.transform.mean,
