@@ -363,16 +363,24 @@ def compound2(counts, severity: BivariateLattice, shape: tuple[int, int] | None 
     cols = np.ascontiguousarray(tf.rfft(tf.zero_padded(ft, m2), -1, 1).T)  # half x rows
     del ft
     spec = np.empty((half, n1), dtype=complex)
-    sq = 0.0
+    sq = lip_sq = 0.0
     for c0 in range(0, half, COLUMN_BLOCK):
         c1 = min(half, c0 + COLUMN_BLOCK)
         buf = np.zeros((c1 - c0, m1), dtype=complex)  # contiguous along the long axis
         buf[:, : cols.shape[1]] = cols[c0:c1]
-        big = law.transform.pgf(tf.fft(buf, -1, 1))
+        phi = tf.fft(buf, -1, 1)
         del buf
+        big = law.transform.pgf(phi)
         weight = np.full(c1 - c0, 2.0)
         weight[(np.arange(c0, c1) == 0) | ((np.arange(c0, c1) == m2 // 2) & (m2 % 2 == 0))] = 1
-        sq += float(np.sum(np.abs(big) ** 2 * weight[:, None]))
+        mag = np.abs(big) ** 2
+        sq += float(np.sum(mag * weight[:, None]))
+        if law.transform.ratio is not None:  # |P'(phi)|^2 = |r(phi)|^2 |P(phi)|^2
+            lip_sq += float(np.sum(np.abs(law.transform.ratio(phi)) ** 2 * mag
+                                   * weight[:, None]))
+        else:
+            lip_sq = math.inf
+        del phi
         spec[c0:c1] = tf.ifft(big, -1, 1)[:, :n1]
         del big
     del cols
@@ -384,7 +392,9 @@ def compound2(counts, severity: BivariateLattice, shape: tuple[int, int] | None 
         g = tf.irfft(np.ascontiguousarray(spec[:, r0:r1].T), m2, -1, 1)[:, :n2]
         out[r0:r1] = np.clip(g * u1[r0:r1, None] * u2[None, :], 0.0, 1.0)
     del spec
-    rounding = accuracy.transform_compound_floor(m1 * m2, l1_tilted, law.transform.mean,
+    # Lipschitz factor ||P'(phi)||_2 / sqrt(M) over the whole spectrum (at most E[N])
+    lip = min(math.sqrt(lip_sq / (m1 * m2)), law.transform.mean)
+    rounding = accuracy.transform_compound_floor(m1 * m2, l1_tilted, lip,
                                                  law.transform.pgf_rel * _U,
                                                  law.transform.pgf_abs * _U, l2_out)
     r_point = rounding * math.exp(th1 * (n1 - 1) + th2 * (n2 - 1))
