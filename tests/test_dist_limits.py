@@ -10,10 +10,10 @@ import warnings
 
 import numpy as np
 import pytest
-from polyconv.numerics.budget import MemoryBudgetError, using_budget
 from scipy import stats
 
 from polyconv.dist import AccuracyWarning, ErrorLedger, Lattice, compound
+from polyconv.numerics.budget import MemoryBudgetError, using_budget
 
 
 def test_cdf_at_infinity_with_an_origin():

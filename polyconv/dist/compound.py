@@ -279,6 +279,9 @@ def panjer_recursion(law: CountsLaw, f: np.ndarray, size: int) -> tuple[np.ndarr
     (numpy.ndarray, numpy.ndarray)
         The pmf and the bound of each entry's absolute error.
     """
+    if law.ab1 is not None:  # (a, b, 1) class: polyconv.dist.panjer_ab1 (engineer actuarial)
+        from .panjer_ab1 import ab1_recursion
+        return ab1_recursion(law, f, size)
     a, b = law.ab
     u = accuracy.UNIT_ROUNDOFF
     f0 = float(f[0])

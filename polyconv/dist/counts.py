@@ -54,6 +54,10 @@ class CountsLaw:
         do not underflow).
     tail_mass : float
         Count mass dropped (generic laws only).
+    ab1 : float or None
+        For the ``(a, b, 1)`` class (zero-modified laws, :mod:`polyconv.dist.count_laws`):
+        ``p_1 - (a + b) p_0``, the extra term of its recursion (:mod:`polyconv.dist.panjer_ab1`);
+        None for the ``(a, b, 0)`` class.
     """
 
     name: str
@@ -61,6 +65,7 @@ class CountsLaw:
     transform: TransformLaw
     log_pgf_at: object
     tail_mass: float = 0.0
+    ab1: float | None = None
 
 
 def _bind(frozen) -> dict:
@@ -83,6 +88,9 @@ def classify(counts) -> CountsLaw:
     ValueError
         If its support is not within the non-negative integers or too long.
     """
+    carried = getattr(counts, "polyconv_counts", None)  # laws of polyconv.dist.count_laws
+    if isinstance(carried, CountsLaw):
+        return carried
     dist = getattr(counts, "dist", None)
     if isinstance(dist, stats.rv_continuous):
         raise TypeError(f"counts must be a discrete law of claim counts (values 0, 1, 2, ...), "
@@ -163,17 +171,31 @@ def _generic(counts, name: str) -> CountsLaw:
         raise ValueError(f"counts: support must be within the non-negative integers; {name} "
                          f"starts at {lo}")
     top = hi
+    stalled = False
     if not math.isfinite(hi):
         top = lo + 16
-        while counts.sf(top) >= GENERIC_TAIL and top - lo <= GENERIC_MAX_TERMS:
+        last = math.inf
+        while True:
+            sf = float(counts.sf(top))
+            if not sf >= GENERIC_TAIL or top - lo > GENERIC_MAX_TERMS:
+                break
+            # a law without its own sf gets scipy's 1 - cdf, which stops falling at a rounding
+            # floor (~1e-14) while the pmf has long vanished: stop there
+            if sf <= 1e-12 and sf >= 0.5 * last and \
+                    float(counts.pmf(top)) * max(top, 1) < GENERIC_TAIL:
+                stalled = True
+                break
+            last = sf
             top = lo + 2 * (top - lo)
     if top - lo > GENERIC_MAX_TERMS:
-        raise ValueError(f"counts: {name} needs more than {GENERIC_MAX_TERMS} terms to reach "
-                         f"tail mass {GENERIC_TAIL}; use poisson, nbinom or binom")
+        raise ValueError(f"counts: {name} still has P(N > {top:g}) = {float(counts.sf(top)):.3g}"
+                         f" after {GENERIC_MAX_TERMS} terms, so its PGF cannot be summed: a law "
+                         "this heavy-tailed (or one whose pmf does not sum to 1) is not "
+                         "supported; use poisson, nbinom, binom or polyconv.dist.count_laws")
     lo, top = int(lo), int(top)
     ns = np.arange(lo, top + 1)
     pn = counts.pmf(ns)
-    tail = float(counts.sf(top))
+    tail = max(0.0, 1.0 - math.fsum(pn)) if stalled else float(counts.sf(top))
     mean = float(np.dot(ns, pn))
     logp = np.log(np.where(pn > 0, pn, 1.0))
     logp[pn <= 0] = -np.inf

@@ -158,6 +158,9 @@ def tail_moment(frozen, b: float) -> float:
     """
     if b < 0:
         raise ValueError(f"b must be >= 0; got {b!r}")
+    own = getattr(getattr(frozen, "dist", None), "tail_moment", None)  # dist.law_ops laws
+    if callable(own):
+        return float(own(b))
     name, shapes, loc, scale = _standard(frozen)
     z = (b - loc) / scale
     g = _standard_tail(name, shapes, z)
