@@ -33,8 +33,8 @@ import math
 
 import numpy as np
 
-from .. import transforms as tf
-from ..budget import check_allocation
+from ..numerics import transforms as tf
+from ..numerics.budget import check_allocation
 from . import accuracy
 from .counts import CountsLaw, classify
 from .lattice import Lattice
