@@ -307,7 +307,7 @@ def scaled(lat: Lattice, factor: float) -> Lattice:
     if factor == 0:
         return Lattice([1.0])
     if hasattr(Lattice, "scaled"):
-        return lat.scaled(factor)
+        return lat.scaled(factor, rule="moments")  # mean kept exactly
     e = lat.errors
     moment = e.truncated_moment * factor if math.isfinite(e.truncated_moment) else math.inf
     return Lattice._make(lat.pmf, lat.step * factor, lat.origin * factor,
