@@ -40,6 +40,9 @@ def _prepare(a, b, mode, method, modulus, length, axis):
                                                keep)
         bits = (mod - 1).bit_length() if mod is not None else facts.bound.bit_length() + 1
     else:
+        for arr, name in ((x, "a"), (y, "b")):
+            if arr.dtype == object:  # Python ints among floats: each must fit a float64
+                _float_operand(arr, np.dtype(np.float64), name)
         the_plan = planning.choose(pair.kind, n1, n2, x.shape[:-1], y.shape[:-1],
                                    pair.batch_shape, mode, method, keep)
         bits = 0
@@ -212,6 +215,17 @@ def _convolve_dask(a, b, mode, method, modulus, length, axis):
 
     long, kernel = (a, b) if _is_dask_array(a) else (b, a)  # every mode is symmetric
     return convolve_dask(long, kernel, mode=mode, modulus=modulus)
+
+
+def _float_operand(x: np.ndarray, work: np.dtype, name: str) -> np.ndarray:
+    """``x`` in the float work dtype; a Python int beyond float64's range (|v| >= 2^1024) among
+    floats is refused by name (numpy would raise a bare OverflowError)."""
+    try:
+        return x.astype(work, copy=False)
+    except OverflowError:
+        raise ValueError(f"{name} holds an integer too large for floating point (|value| >= "
+                         "2^1024) while the product is in floating point (an operand holds "
+                         "floats); pass integers only for an exact product") from None
 
 
 def run(the_plan: Plan, x: np.ndarray, y: np.ndarray) -> np.ndarray:

@@ -34,7 +34,7 @@ import numpy as np
 from ._atomic import AtomicFile
 from .api import convolve
 from .budget import check_allocation, memory_budget
-from .inputs import as_number_array
+from .inputs import _kind_of, as_number_array
 
 #: Smallest default block (samples): large enough that a block product amortises the fixed cost
 #: of one :func:`polyconv.api.convolve` call and of one read and one write, small enough (a few
@@ -218,6 +218,8 @@ def check_kernel(kernel) -> np.ndarray:
         raise ValueError("kernel is empty: expected at least one coefficient")
     if k.dtype.kind not in "biufcO":
         raise TypeError(f"kernel must hold numbers, got dtype {k.dtype}")
+    if k.dtype == object:
+        _kind_of(k, "kernel")  # every entry a number, or a TypeError naming the kernel
     return _native(k)
 
 
@@ -318,6 +320,9 @@ def convolve_chunks(chunks: Iterable, kernel, *,
     state: OverlapAdd | None = None
     first_exact = None
     max_x = 0
+    if chunks is None or isinstance(chunks, (str, bytes)) or not hasattr(chunks, "__iter__"):
+        raise TypeError("chunks must be an iterable of 1-D array-likes (a list, a generator, "
+                        f"...); got {type(chunks).__name__}")
     for index, chunk in enumerate(chunks):
         x = _check_chunk(chunk, index)
         if x.shape[0] == 0:
@@ -343,11 +348,15 @@ def convolve_chunks(chunks: Iterable, kernel, *,
 
 
 def _check_chunk(chunk, index: int) -> np.ndarray:
+    if chunk is None:
+        raise TypeError(f"chunks[{index}] is None; expected a 1-D array-like of numbers")
     x = as_number_array(chunk, f"chunks[{index}]")
     if x.ndim != 1:
         raise ValueError(f"chunks[{index}] must be 1-D, got shape {x.shape}")
     if x.dtype.kind not in "biufcO":
         raise TypeError(f"chunks[{index}] must hold numbers, got dtype {x.dtype}")
+    if x.dtype == object:
+        _kind_of(x, f"chunks[{index}]")  # every entry a number (None is not)
     return _native(x)
 
 
