@@ -1,11 +1,11 @@
 """Scale benchmark: streaming convolution of a large .npy file, and Dask exact products.
 
 (a) A generated float32 ``.npy`` signal convolved with a 4097-tap float32 kernel:
-    ``polyconv.streaming.convolve_file`` (file to file, constant memory) against the in-memory
+    ``polyconv.scale.streaming.convolve_file`` (file to file, constant memory) against the in-memory
     path (``numpy.load`` + ``polyconv.convolve`` + ``numpy.save``), each in a fresh subprocess
     so that peak RSS (``resource.getrusage``) is the run's own.  Throughput = input samples/s.
 (b) The exact product of two sequences of 16-bit integers by
-    ``polyconv.dask_backend.exact_product_dask`` on a ``LocalCluster`` with 1 and with 2
+    ``polyconv.scale.dask.exact_product_dask`` on a ``LocalCluster`` with 1 and with 2
     worker processes (one thread each), against in-memory ``polyconv.convolve``.
 
 Usage::
@@ -43,7 +43,7 @@ def _peak_rss_mib() -> float:
 
 
 def _child_stream(src: str, kernel: str, dst: str) -> dict:
-    import polyconv.streaming as st
+    import polyconv.scale.streaming as st
 
     k = np.load(kernel)
     t0 = time.perf_counter()
@@ -67,7 +67,7 @@ def _child_memory(src: str, kernel: str, dst: str) -> dict:
 
 def _child_idle(src: str, kernel: str, dst: str) -> dict:
     import polyconv.api  # noqa: F401 - the import cost is what is measured
-    import polyconv.streaming  # noqa: F401
+    import polyconv.scale.streaming  # noqa: F401
 
     return {"seconds": 0.0, "rss_mib": _peak_rss_mib()}
 
@@ -85,10 +85,10 @@ def _run_child(kind: str, src: str, kernel: str, dst: str) -> dict:
 # ----------------------------------------------------------------------------- (a) streaming
 
 def _generate_signal(path: str, samples: int, seed: int = 1) -> None:
-    from polyconv.streaming import AtomicNpyWriter
+    from polyconv.scale.npyio import NpyWriter
 
     rng = np.random.default_rng(seed)
-    with AtomicNpyWriter(path, np.float32, samples, sync=False) as writer:
+    with NpyWriter(path, np.float32, samples, sync=False) as writer:
         for start in range(0, samples, GENERATE_BLOCK):
             count = min(GENERATE_BLOCK, samples - start)
             writer.write(rng.standard_normal(count, dtype=np.float32))
@@ -160,7 +160,7 @@ def bench_dask(terms: int, pieces: int, workers_list: list[int]) -> list[dict]:
     from distributed import Client, LocalCluster
 
     from polyconv.api import convolve, plan
-    from polyconv.dask_backend import exact_product_dask
+    from polyconv.scale.dask import exact_product_dask
 
     rng = np.random.default_rng(3)
     a = rng.integers(-2**15, 2**15, terms).astype(np.int16)

@@ -12,8 +12,8 @@ from typing import TYPE_CHECKING
 
 _WHERE = {
     "convolve": "api", "plan": "api", "error_bound": "api", "Plan": "planning",
-    "convolve_file": "streaming", "convolve_chunks": "streaming",
-    "convolve_dask": "dask_backend", "exact_product_dask": "dask_backend",
+    "convolve_file": "scale.streaming", "convolve_chunks": "scale.streaming",
+    "convolve_dask": "scale.dask", "exact_product_dask": "scale.dask",
     "power": "algebra", "product": "algebra", "inverse_series": "algebra",
     "poly_divmod": "algebra", "ZeroDivisorError": "algebra",
 }
@@ -27,9 +27,9 @@ if TYPE_CHECKING:  # pragma: no cover - for type checkers and editors
     from . import dist
     from .algebra import ZeroDivisorError, inverse_series, poly_divmod, power, product
     from .api import convolve, error_bound, plan
-    from .dask_backend import convolve_dask, exact_product_dask
     from .planning import Plan
-    from .streaming import convolve_chunks, convolve_file
+    from .scale.dask import convolve_dask, exact_product_dask
+    from .scale.streaming import convolve_chunks, convolve_file
 
 
 def __getattr__(name: str):

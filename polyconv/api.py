@@ -137,7 +137,7 @@ def convolve(a, b, *, mode: str = "full", method: str = "auto", modulus: int | N
     -------
     numpy.ndarray or dask.array.Array
         A dask array in (for the long operand) gives a lazy dask array out (see
-        :func:`polyconv.dask_backend.convolve_dask`).  Floats give float64 or complex128
+        :func:`polyconv.scale.dask.convolve_dask`).  Floats give float64 or complex128
         (float32/complex64 stay single precision).  Integers give the exact product: int64
         when a bound proves that every coefficient fits, otherwise an object array of Python
         ints; with ``modulus``, int64 when the modulus fits.
@@ -211,7 +211,7 @@ def _convolve_dask(a, b, mode, method, modulus, length, axis):
     if method != "auto" or length is not None or axis not in (-1, 0):
         raise ValueError("with a dask array, convolve supports mode= and modulus= only "
                          "(1-D operands, method='auto', no length=)")
-    from .dask_backend import convolve_dask  # the optional back end, loaded on first use
+    from .scale.dask import convolve_dask  # the optional back end, loaded on first use
 
     long, kernel = (a, b) if _is_dask_array(a) else (b, a)  # every mode is symmetric
     return convolve_dask(long, kernel, mode=mode, modulus=modulus)

@@ -76,7 +76,7 @@ def test_a_smaller_budget_refuses_what_the_default_allows(monkeypatch, tmp_path)
     monkeypatch.setenv(budget.ENV_VARIABLE, "4M")
     with pytest.raises(budget.MemoryBudgetError, match="a \\(1048576 coefficients\\)"):
         polyconv.convolve(a, [1.0, 1.0])
-    from polyconv.streaming import convolve_file
+    from polyconv.scale.streaming import convolve_file
     np.save(tmp_path / "x.npy", np.ones(2**18))
     with pytest.raises(budget.MemoryBudgetError, match="block=262144"):
         convolve_file(tmp_path / "x.npy", [1.0, 2.0], tmp_path / "y.npy", block=2**18)

@@ -47,6 +47,8 @@ def test_power_of_zeros_is_refused_before_allocating():
             polyconv.power([0] * 99, 2**40)
         with pytest.raises(budget.MemoryBudgetError, match="k=1099511627776"):
             polyconv.power([0, 0], 2**40, modulus=7)
+        with pytest.raises(budget.MemoryBudgetError, match="length=1099511627776"):
+            polyconv.product([[0], [1, 1]], length=2**40)
     # a small all-zero power is still all zeros: 0^3 of a degree-1 polynomial has 4 terms
     assert polyconv.power([0, 0], 3).tolist() == [0, 0, 0, 0]
 

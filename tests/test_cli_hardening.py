@@ -179,7 +179,8 @@ def test_replacing_keeps_the_existing_modes(tmp_path, capsys, umask):
 
 
 def test_cost_file_and_streamed_npy_keep_their_modes(tmp_path, umask):
-    from polyconv import costs, streaming
+    from polyconv import costs
+    from polyconv.scale import streaming
 
     umask(0o077)
     path = tmp_path / "costs.json"

@@ -14,7 +14,7 @@ from polyconv.api import convolve
 da = pytest.importorskip("dask.array")
 distributed = pytest.importorskip("distributed")
 
-from polyconv.dask_backend import convolve_dask, exact_product_dask  # noqa: E402
+from polyconv.scale.dask import convolve_dask, exact_product_dask  # noqa: E402
 
 RNG = np.random.default_rng(7)
 

@@ -15,7 +15,7 @@ import numpy as np
 import pytest
 
 from polyconv.api import convolve
-from polyconv.streaming import convolve_chunks, convolve_file, default_block
+from polyconv.scale.streaming import convolve_chunks, convolve_file, default_block
 
 RNG = np.random.default_rng(20240607)
 
@@ -321,7 +321,7 @@ def test_chunks_bad_inputs():
 
 
 def test_dask_is_not_imported_by_polyconv():
-    code = ("import sys, polyconv, polyconv.streaming, polyconv.dask_backend; "
+    code = ("import sys, polyconv, polyconv.scale.streaming, polyconv.scale.dask; "
             "print('dask' in sys.modules or 'distributed' in sys.modules)")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                          check=True)

@@ -11,7 +11,7 @@ import os
 import numpy as np
 import pytest
 
-from polyconv.streaming import SourceChangedError, convolve_file
+from polyconv.scale import SourceChangedError, convolve_file
 
 
 def _save(folder, name: str, x: np.ndarray) -> str:
@@ -101,7 +101,7 @@ def test_damaged_npy_files_are_named_and_described(tmp_path):
 def test_exact_product_dask_refuses_a_non_client():
     # common practice, no source: a TypeError naming client=, not an AttributeError
     pytest.importorskip("distributed")
-    from polyconv.dask_backend import exact_product_dask
+    from polyconv.scale.dask import exact_product_dask
     with pytest.raises(TypeError, match="client must be a distributed.Client"):
         exact_product_dask([1, 2], [3], client=5)
 

@@ -17,7 +17,8 @@ from pathlib import Path
 
 import numpy as np
 
-from .. import api, budget, streaming
+from .. import api, budget
+from ..scale import streaming
 from .errors import CliError
 from .fileio import (
     SEQUENCE_SUFFIXES,
@@ -211,8 +212,9 @@ def _npy_header(path: str) -> tuple[tuple, np.dtype] | None:
 
 
 def _stream_if_large(args, out_path: Path | None, modulus, length) -> int | None:
-    """Stream the product with :func:`polyconv.streaming.convolve_file` when the longer input is
-    a 1-D .npy above the memory budget and the output is .npy; None when in memory is fine."""
+    """Stream the product with :func:`polyconv.scale.streaming.convolve_file` when the longer
+    input is a 1-D .npy above the memory budget and the output is .npy; None when in memory is
+    fine."""
     heads = _npy_header(args.a), _npy_header(args.b)
     if None in heads or out_path is None or out_path.suffix.lower() != ".npy":
         return None

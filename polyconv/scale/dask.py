@@ -22,22 +22,22 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .api import convolve
-from .budget import check_allocation, coefficient_bytes
-from .inputs import MODES, as_number_array
-from .streaming import (
+from ..api import convolve
+from ..budget import check_allocation, coefficient_bytes
+from ..inputs import MODES, as_number_array
+from .overlap import (
     INT64_LIMIT,
     Summation,
+    add_into,
     add_overlap,
     as_exact,
-    check_kernel,
-    check_modulus,
     dtype_max_abs,
     exact_summation,
     finish_exact,
     is_integer_dtype,
     max_abs,
 )
+from .streaming import check_kernel, check_modulus
 
 _INSTALL_HINT = "polyconv's Dask back end needs the optional extra: pip install 'polyconv[dask]'"
 
@@ -140,7 +140,7 @@ def convolve_dask(a, b, *, mode: str = "full", modulus: int | None = None):
     Examples
     --------
     >>> import dask.array as da, numpy as np
-    >>> from polyconv.dask_backend import convolve_dask
+    >>> from polyconv.scale import convolve_dask
     >>> x = da.from_array(np.arange(6), chunks=2)
     >>> convolve_dask(x, [1, 1]).compute()
     array([0, 1, 3, 5, 7, 9, 5])
@@ -312,7 +312,7 @@ def exact_product_dask(a, b, *, modulus: int | None = None, client=None,
     b_parts = _operand_blocks(y, blocks.length, client)
     out = np.zeros(n1 + n2 - 1, dtype=object if summation.wide else np.int64)
     for (i, j), part in _run_pairs(a_parts, b_parts, modulus, summation, client):
-        _accumulate(out, (i + j) * blocks.length, part, summation)
+        add_into(out, (i + j) * blocks.length, part, summation)
     return finish_exact(out, summation)
 
 
@@ -413,14 +413,3 @@ def _run_pairs(a_parts: list, b_parts: list, modulus: int | None, summation: Sum
         part = future.result()  # raises the task's exception, if any
         yield futures.pop(future), part
         future.release()
-
-
-def _accumulate(out: np.ndarray, offset: int, part: np.ndarray, summation: Summation) -> None:
-    """``out[offset: offset + len(part)] += part`` exactly (reduced if there is a modulus)."""
-    segment = out[offset: offset + part.shape[0]]
-    segment += as_exact(part, summation)
-    if summation.modulus is not None:
-        if summation.wide:
-            segment %= summation.modulus
-        else:
-            segment -= np.where(segment >= summation.modulus, summation.modulus, 0)

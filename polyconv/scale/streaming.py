@@ -1,0 +1,361 @@
+"""Streaming convolution: signals longer than memory, block by block.
+
+A long 1-D signal ``x`` (length ``n``) is convolved with an in-memory kernel ``k`` (length ``m``)
+by overlap-add (:class:`polyconv.scale.overlap.OverlapAdd`; Oppenheim & Schafer, *Discrete-Time
+Signal Processing*, 3rd ed., section 8.7), so the memory in use is one block product plus an
+``m - 1`` carry, whatever ``n`` is.
+
+Two entry points:
+
+* :func:`convolve_chunks`: an iterable of 1-D chunks of any sizes in, an iterator of output chunks
+  out (their concatenation is the full product);
+* :func:`convolve_file`: a ``.npy`` file in (read block by block, :class:`~polyconv.scale.npyio.
+  NpySource`), a ``.npy`` file out, written to a temporary file in the destination's folder and
+  renamed into place only when complete (:class:`~polyconv.scale.npyio.NpyWriter`), so a reader
+  never sees a half-written result.
+
+Exact integers are summed exactly (:class:`polyconv.scale.overlap.Summation`): int64 while the
+bound ``min(n, m) max|x| max|k| < 2^63`` proves it, Python ints beyond.
+"""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Callable, Iterable, Iterator
+
+import numpy as np
+
+from ..api import convolve
+from ..budget import check_allocation, memory_budget
+from ..inputs import _kind_of, as_number_array
+from .npyio import NpySource, NpyWriter, native
+from .overlap import (
+    INT64_LIMIT,
+    OverlapAdd,
+    Summation,
+    dtype_max_abs,
+    exact_summation,
+    is_integer_dtype,
+    max_abs,
+)
+
+#: Smallest default block (samples): large enough that a block product amortises the fixed cost
+#: of one :func:`polyconv.api.convolve` call and of one read and one write, small enough (a few
+#: MiB) that a block, its product and the engine's work space stay far below the memory goal.
+MIN_BLOCK = 1 << 20
+
+#: Default block length is at least this many kernel lengths (rounded up to a power of two), so
+#: the ``m - 1`` overlap recomputed per block costs at most ~1/8 more work.
+BLOCK_PER_KERNEL = 8
+
+#: Peak memory of :func:`convolve_file` in float64 blocks (block product, its transform work and
+#: the carry; measured: under 200 MiB at the default 2^20-sample block).
+FILE_PEAK_BLOCKS = 10
+
+ProgressCallback = Callable[[int, int], object]
+
+
+# ----------------------------------------------------------------------------- validation
+
+def check_kernel(kernel) -> np.ndarray:
+    """The kernel as a 1-D, non-empty numeric array (native byte order)."""
+    k = as_number_array(kernel, "kernel")
+    if k.ndim != 1:
+        raise ValueError(f"kernel must be 1-D, got an array of shape {k.shape}")
+    if k.shape[0] == 0:
+        raise ValueError("kernel is empty: expected at least one coefficient")
+    if k.dtype.kind not in "biufcO":
+        raise TypeError(f"kernel must hold numbers, got dtype {k.dtype}")
+    if k.dtype == object:
+        _kind_of(k, "kernel")  # every entry a number, or a TypeError naming the kernel
+    return native(k)
+
+
+def check_block(block) -> int | None:
+    """Validate ``block=``: None or a positive integer."""
+    if block is None:
+        return None
+    if isinstance(block, bool) or not isinstance(block, (int, np.integer)):
+        raise TypeError(f"block must be a positive integer or None, got {type(block).__name__}")
+    if block < 1:
+        raise ValueError(f"block must be a positive integer, got {block}")
+    return int(block)
+
+
+def check_modulus(modulus) -> None:
+    """Validate ``modulus=``: None or an integer >= 2."""
+    if modulus is None:
+        return
+    if isinstance(modulus, bool) or not isinstance(modulus, (int, np.integer)):
+        raise TypeError(f"modulus must be an integer >= 2 or None, got {type(modulus).__name__}")
+    if modulus < 2:
+        raise ValueError(f"modulus must be an integer >= 2, got {modulus}")
+
+
+def default_block(kernel_length: int) -> int:
+    """Block length: a power of two >= ``BLOCK_PER_KERNEL * m`` and >= :data:`MIN_BLOCK`."""
+    want = max(MIN_BLOCK, BLOCK_PER_KERNEL * kernel_length)
+    return 1 << (want - 1).bit_length()
+
+
+def _probe(x: np.ndarray, kernel: np.ndarray, modulus: int | None) -> np.ndarray:
+    """A one-sample product: lets :func:`convolve` reject bad kinds/moduli with its messages."""
+    return convolve(x[:1], kernel[:1], modulus=modulus)
+
+
+# ----------------------------------------------------------------------------- chunks
+
+def convolve_chunks(chunks: Iterable, kernel, *,
+                    modulus: int | None = None) -> Iterator[np.ndarray]:
+    """Convolve a signal arriving in chunks with a kernel; yield the output in chunks.
+
+    Overlap-add (Oppenheim & Schafer, *Discrete-Time Signal Processing*, 3rd ed., section 8.7):
+    each chunk is convolved with the whole kernel by :func:`polyconv.api.convolve`, and the
+    ``m - 1`` entries that overhang the chunk are carried into the next one.  For each non-empty
+    input chunk one output chunk of the same length is yielded; after the last, one more chunk
+    of ``m - 1`` entries (none when ``m == 1``).  Concatenated, they are
+    ``convolve(concatenate(chunks), kernel, mode="full", modulus=modulus)``.
+
+    Parameters
+    ----------
+    chunks : iterable of array_like
+        Consecutive 1-D pieces of the signal, of any sizes (empty ones are skipped).  All integer
+        or all floating point.
+    kernel : array_like
+        1-D, non-empty, in memory.
+    modulus : int, optional
+        Integer data only: every output reduced to ``[0, modulus)``.
+
+    Yields
+    ------
+    numpy.ndarray
+        Output chunks.  Floats: the dtype :func:`polyconv.api.convolve` gives a chunk.  Exact
+        integers: int64 while ``min(s, m) max|x| max|k| < 2^63`` is proven for the ``s`` samples
+        seen so far, object arrays of Python ints from the first chunk where it is not (values
+        exact either way).  With ``modulus``: int64 when ``modulus < 2^63``.
+
+    Raises
+    ------
+    ValueError, TypeError
+        Bad kernel or modulus; a chunk that is not 1-D or whose kind (integer vs floating point)
+        differs from the first chunk's; no samples at all.
+
+    Notes
+    -----
+    Memory: one chunk's product plus the ``m - 1`` carry.  A chunk much shorter than the kernel
+    is correct but slow (each costs a product with the whole kernel): regroup tiny chunks first.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from polyconv.scale import convolve_chunks
+    >>> parts = convolve_chunks([np.array([1, 2]), np.array([3])], [1, 1])
+    >>> np.concatenate(list(parts))
+    array([1, 3, 5, 3])
+    """
+    k = check_kernel(kernel)
+    m = k.shape[0]
+    max_k = max_abs(k) if is_integer_dtype(k.dtype) else 0
+    state: OverlapAdd | None = None
+    first_exact = None
+    max_x = 0
+    if chunks is None or isinstance(chunks, (str, bytes)) or not hasattr(chunks, "__iter__"):
+        raise TypeError("chunks must be an iterable of 1-D array-likes (a list, a generator, "
+                        f"...); got {type(chunks).__name__}")
+    for index, chunk in enumerate(chunks):
+        x = _check_chunk(chunk, index)
+        if x.shape[0] == 0:
+            continue
+        if state is None:
+            first = _probe(x, k, modulus)
+            first_exact = is_integer_dtype(first.dtype)
+            summation = (exact_summation(0, modulus) if first_exact and modulus is not None
+                         else Summation(exact=first_exact))
+            state = OverlapAdd(k, summation, modulus)
+        _check_same_kind(x, k, first_exact, index)
+        if first_exact and modulus is None and not state.summation.wide:
+            max_x = max(max_x, max_abs(x))
+            seen = state.consumed + x.shape[0]
+            if min(seen, m) * max_x * max_k >= INT64_LIMIT:
+                state.widen(exact_summation(INT64_LIMIT, None))
+        yield state.push(x)
+    if state is None:
+        raise ValueError("chunks held no samples: the signal is empty")
+    tail = state.finish()
+    if tail.shape[0]:
+        yield tail
+
+
+def _check_chunk(chunk, index: int) -> np.ndarray:
+    if chunk is None:
+        raise TypeError(f"chunks[{index}] is None; expected a 1-D array-like of numbers")
+    x = as_number_array(chunk, f"chunks[{index}]")
+    if x.ndim != 1:
+        raise ValueError(f"chunks[{index}] must be 1-D, got shape {x.shape}")
+    if x.dtype.kind not in "biufcO":
+        raise TypeError(f"chunks[{index}] must hold numbers, got dtype {x.dtype}")
+    if x.dtype == object:
+        _kind_of(x, f"chunks[{index}]")  # every entry a number (None is not)
+    return native(x)
+
+
+def _check_same_kind(x: np.ndarray, k: np.ndarray, exact: bool, index: int) -> None:
+    now_exact = is_integer_dtype(x.dtype) and is_integer_dtype(k.dtype)
+    if x.dtype == object:  # Python ints, or floats in an object array: let convolve decide
+        now_exact = is_integer_dtype(_probe(x, k, None).dtype)
+    if now_exact != exact:
+        was = "integers" if exact else "floating point numbers"
+        raise TypeError(f"chunks[{index}] holds {x.dtype} data but earlier chunks held {was}; "
+                        "all chunks must be integer or all floating point")
+
+
+def _check_destination(destination, source: str) -> str:
+    try:
+        dest = os.fspath(destination)
+    except TypeError:
+        raise TypeError(f"destination must be a path, got {type(destination).__name__}") from None
+    if os.path.isdir(dest):
+        raise ValueError(f"destination {dest!r} is a directory, expected a file path")
+    folder = os.path.dirname(os.path.abspath(dest))
+    if not os.path.isdir(folder):
+        raise FileNotFoundError(f"destination folder {folder!r} does not exist")
+    same = os.path.realpath(dest) == os.path.realpath(source)
+    if not same and os.path.exists(dest):
+        same = os.path.samefile(dest, source)
+    if same:
+        raise ValueError(f"destination {dest!r} is the source file: write the result elsewhere")
+    return dest
+
+
+def _file_summation(src: NpySource, k: np.ndarray, modulus: int | None,
+                    block: int) -> tuple[Summation, np.dtype]:
+    """Summation and output dtype; exact products must provably fit a fixed-width .npy dtype."""
+    probe = _probe(src.read(0, 1), k, None)
+    if not is_integer_dtype(probe.dtype):
+        if modulus is not None:
+            raise TypeError(f"modulus={modulus!r} needs integer data; source ({src.dtype}) and "
+                            f"kernel ({k.dtype}) give floating point")
+        return Summation(exact=False), probe.dtype
+    check_modulus(modulus)
+    if modulus is not None:
+        if modulus >= INT64_LIMIT:
+            raise ValueError(f"modulus={modulus} is >= 2^63: residues do not fit the int64 .npy "
+                             "output; use convolve_chunks (object chunks) instead")
+        return exact_summation(0, modulus), np.dtype(np.int64)
+    bound = _file_bound(src, k, block)
+    if bound >= INT64_LIMIT:
+        raise ValueError(
+            f"the product of source and kernel is not proven to fit in int64 (bound "
+            f"min(n, m) max|x| max|k| = {bound} >= 2^63), and an object .npy cannot be written "
+            "in constant memory: pass modulus=, or use convolve_chunks, which yields exact "
+            "object chunks")
+    return exact_summation(bound, None), np.dtype(np.int64)
+
+
+def _file_bound(src: NpySource, k: np.ndarray, block: int) -> int:
+    """``min(n, m) max|x| max|k|``, from the source dtype's range if that suffices, else from
+    one pass over the data."""
+    factor = min(src.length, k.shape[0]) * max_abs(k)
+    by_dtype = dtype_max_abs(src.dtype)
+    if by_dtype is not None and factor * by_dtype < INT64_LIMIT:
+        return factor * by_dtype
+    max_x = 0
+    for x in src.blocks(block):
+        max_x = max(max_x, max_abs(x))
+    return factor * max_x
+
+
+def convolve_file(source, kernel, destination, *, modulus: int | None = None,
+                  block: int | None = None, progress: ProgressCallback | None = None) -> None:
+    """Convolve a 1-D signal stored in a ``.npy`` file with a kernel; write the result to a file.
+
+    Mode "full": ``destination`` receives ``n + m - 1`` values, equal to
+    ``polyconv.convolve(numpy.load(source), kernel, modulus=modulus)`` (bit for bit for
+    integers; to floating-point rounding for floats, since block products round differently).
+    Overlap-add over blocks (Oppenheim & Schafer, *Discrete-Time Signal Processing*, 3rd ed.,
+    section 8.7), in memory independent of ``n``.
+
+    Parameters
+    ----------
+    source : str or os.PathLike
+        A ``.npy`` file holding a non-empty 1-D numeric array (read through
+        ``numpy.load(mmap_mode="r")``; any byte order).
+    kernel : array_like
+        1-D, non-empty, in memory.
+    destination : str or os.PathLike
+        The ``.npy`` file to write (replaced if it exists; never the source).  It appears only
+        when complete: data go to a temporary file in the same folder, renamed into place at
+        the end; on any error or KeyboardInterrupt the temporary file is removed.
+    modulus : int, optional
+        Integer data only: outputs reduced to ``[0, modulus)``; ``modulus < 2^63`` required
+        (the output is int64).
+    block : int, optional
+        Samples per block.  Default: the power of two at least ``8 m`` and at least ``2^20``.
+    progress : callable, optional
+        Called as ``progress(done, total)`` with output samples written so far and
+        ``total = n + m - 1``: once with ``done = 0``, then after every block.  An exception
+        it raises aborts the run (nothing is left behind).
+
+    Raises
+    ------
+    FileNotFoundError
+        ``source`` or the destination's folder does not exist.
+    ValueError, TypeError
+        Bad source, kernel, destination, block or modulus, naming the argument.  Exact integer
+        data whose product cannot be proven to fit in int64 (bound ``min(n, m) max|x| max|k|
+        >= 2^63``, taken from the source dtype's range or, if that is too coarse, from one
+        pass over the data): an object ``.npy`` cannot be streamed, so this raises ValueError
+        rather than write one; use ``modulus=`` or :func:`convolve_chunks`.
+
+    Notes
+    -----
+    Output dtype: as :func:`polyconv.api.convolve` for the data's kinds (float32 x float32
+    stays float32); exact integers give int64.  Peak memory is about ten times one block of
+    float64 plus the kernel (measured: under 200 MiB at the default block length).
+
+    Examples
+    --------
+    >>> import numpy as np, os, tempfile
+    >>> from polyconv.scale import convolve_file
+    >>> folder = tempfile.mkdtemp()
+    >>> src, dst = os.path.join(folder, "x.npy"), os.path.join(folder, "y.npy")
+    >>> np.save(src, np.arange(5))
+    >>> convolve_file(src, [1, 1], dst)
+    >>> np.load(dst)
+    array([0, 1, 3, 5, 7, 4])
+    """
+    with NpySource(source) as src:
+        _convolve_open_file(src, kernel, destination, modulus, block, progress)
+
+
+def _convolve_open_file(src: NpySource, kernel, destination, modulus, block, progress) -> None:
+    k = check_kernel(kernel)
+    dest = _check_destination(destination, src.path)
+    given = check_block(block)
+    size = min(given or default_block(k.shape[0]), src.length)
+    if not given:
+        # the default block shrinks to fit the memory budget (never below two kernel lengths)
+        fits = memory_budget() // (FILE_PEAK_BLOCKS * 8) - k.shape[0]
+        size = min(size, max(fits, 2 * k.shape[0], 1))
+    check_allocation(FILE_PEAK_BLOCKS * 8 * (size + k.shape[0]),
+                     f"block={size}" if given else
+                     f"the default block of {size} samples (8 kernel lengths; pass block=)")
+    summation, dtype = _file_summation(src, k, modulus, size)
+    total = src.length + k.shape[0] - 1
+    state = OverlapAdd(k, summation, modulus)
+    with NpyWriter(dest, dtype, total) as writer:
+        _report(progress, 0, total)
+        for x in src.blocks(size):
+            writer.write(state.push(x))
+            _report(progress, writer.written, total)
+        tail = state.finish()
+        if tail.shape[0]:
+            writer.write(tail)
+            _report(progress, writer.written, total)
+        src.check_unchanged()  # the last block's read is checked; a change after it, too
+        writer.commit()
+
+
+def _report(progress: ProgressCallback | None, done: int, total: int) -> None:
+    if progress is not None:
+        progress(done, total)
