@@ -86,3 +86,20 @@ def test_huge_int_among_floats_is_named(a, b, named):
 def test_large_but_finite_int_among_floats_still_multiplies():
     # 10^300 * 1.5 = 1.5e300 (float64 holds up to about 1.8e308; IEEE 754 binary64)
     assert polyconv.convolve([10**300], [1.5]).tolist() == [1.5e300]
+
+
+# ----------------------------------------------------------------------------- convolve_file
+# Finding: a header whose shape tuple is cut (`(58,R, }`) made numpy's header tokenizer raise
+# tokenize.TokenError, which reached the user raw.
+
+
+def test_convolve_file_names_a_header_numpy_cannot_tokenize(tmp_path):
+    src = tmp_path / "src.npy"
+    np.save(src, np.arange(58))
+    raw = bytearray(src.read_bytes())
+    at = raw.index(b"(58,") + 4
+    raw[at] = ord("R")  # the tuple now never closes: tokenize reports EOF in a statement
+    src.write_bytes(bytes(raw))
+    with pytest.raises(ValueError, match="damaged .npy header"):
+        polyconv.convolve_file(src, [1, 2, 3], tmp_path / "out.npy")
+    assert not (tmp_path / "out.npy").exists()
