@@ -758,7 +758,8 @@ def case_cli_multiply(rng: random.Random, work: Path):
     before = snapshot(work)
     old_c = before.get(out_name) if out_name else None
     code, out, err = run_cli(argv, work)
-    names = [pa.name, pb.name, "input a", "input b", "--modulus", "--length", "--memory-budget",
+    names = [pa.name, pb.name, "input a", "input b", "a holds", "b holds", "--modulus",
+             "--length", "--memory-budget",
              "--bogus", "output", str(out_name), "-o", "arguments", "argument", "required"]
     verdict = judge_cli(code, out, err, names, work, before, protected)
     if verdict[0] != "ok":
@@ -1172,6 +1173,7 @@ def worker(conn, case_timeout: float, address_space: int) -> None:
     warm_up()
     limit = _vm_bytes() + BUDGET + address_space
     resource.setrlimit(resource.RLIMIT_AS, (limit, resource.getrlimit(resource.RLIMIT_AS)[1]))
+    conn.send(("ready", limit))
 
     def alarm(signum, frame):
         raise CaseTimeout(f"over {case_timeout:g} s")
@@ -1228,6 +1230,10 @@ class Worker:
                                                      self.address_space), daemon=True)
         self.proc.start()
         child.close()
+        # wait for the imports and warm-up, so the first case's time is its own
+        if self.conn.poll(600):
+            with contextlib.suppress(EOFError):
+                self.conn.recv()
 
     def restart(self) -> None:
         if self.proc.is_alive():
@@ -1239,9 +1245,7 @@ class Worker:
 
     def run(self, family: str, seed: int) -> tuple[str, str, list]:
         self.conn.send((family, seed))
-        # the first case of a fresh worker also waits for its imports and warm-up
-        grace = 15 + (120 if self.fresh else 0)
-        self.fresh = False
+        grace = 15
         if self.conn.poll(self.case_timeout + grace):
             try:
                 return self.conn.recv()
@@ -1258,14 +1262,6 @@ class Worker:
         self.proc.join(5)
         if self.proc.is_alive():
             self.proc.kill()
-
-    @property
-    def fresh(self) -> bool:
-        return getattr(self, "_fresh", True)
-
-    @fresh.setter
-    def fresh(self, value: bool) -> None:
-        self._fresh = value
 
 
 class Tally:
@@ -1385,30 +1381,27 @@ def main() -> int:
     names = list(shares) + ([SIGNAL_FAMILY] if signals else [])
     tally = Tally(args.examples)
     lock = threading.Lock()
+    pool: list[Worker] = []
+    if shares:  # started (imports, warm-up) before the clock runs
+        pool = [Worker(args.case_timeout, int(args.address_space * 2**30))
+                for _ in range(max(1, args.workers))]
     started = time.monotonic()
     deadline = started + args.seconds
-    threads = []
-    if signals:
-        threads.append(threading.Thread(target=signal_loop, daemon=True,
-                                        args=(tally, random.Random(rng.randrange(2**63)),
-                                              deadline, lock)))
-    pool: list[Worker] = []
 
     def drive(w: Worker) -> None:
         while time.monotonic() < deadline:
-            with lock:  # the time share counts cases still running as spent by their estimate
-                family = next_family(shares, tally.spent, rng) if shares else None
+            with lock:
+                family = next_family(shares, tally.spent, rng)
                 seed = rng.randrange(2**63)
-            if family is None:
-                return
             t0 = time.monotonic()
             verdict, detail, codes = w.run(family, seed)
             tally.add(family, seed, verdict, detail, time.monotonic() - t0, codes)
 
-    if shares:
-        pool = [Worker(args.case_timeout, int(args.address_space * 2**30))
-                for _ in range(max(1, args.workers))]
-        threads += [threading.Thread(target=drive, args=(w,), daemon=True) for w in pool]
+    threads = [threading.Thread(target=drive, args=(w,), daemon=True) for w in pool]
+    if signals:
+        threads.append(threading.Thread(target=signal_loop, daemon=True,
+                                        args=(tally, random.Random(rng.randrange(2**63)),
+                                              deadline, lock)))
     for t in threads:
         t.start()
     try:
