@@ -446,7 +446,8 @@ def case_dist_answers(rng: random.Random, work: Path):
         if measure in ("cdf", "sf") and isinstance(arg, float) and math.isfinite(arg) and \
                 not answer.refused:
             v, q = lat.values, np.asarray(lat.pmf)
-            ref = float(q[v <= arg].sum()) if measure == "cdf" else float(q[v > arg].sum())
+            at = arg + 1e-9 * lat.step  # documented: within 1e-9 steps of a point counts as it
+            ref = float(q[v <= at].sum()) if measure == "cdf" else float(q[v > at].sum())
             if not answer.low - 1e-12 <= ref <= answer.high + 1e-12:
                 return "wrong", f"bounded({measure!r}, {arg!r}) = [{answer.low}, " \
                                 f"{answer.high}] misses the direct sum {ref}"
@@ -487,9 +488,10 @@ def case_dist(rng: random.Random, work: Path):
             if isinstance(x, float) and not math.isnan(x) and np.ndim(got) == 0:
                 v = lat.values
                 if query == "cdf":
-                    ref = float(p[v <= x].sum())
+                    # documented: x within 1e-9 steps of a point counts as it
+                    ref = float(p[v <= x + 1e-9 * lat.step].sum())
                 elif query == "sf":
-                    ref = float(p[v > x].sum()) + lat.truncated_mass
+                    ref = float(p[v > x + 1e-9 * lat.step].sum()) + lat.truncated_mass
                 else:
                     ref = float(np.sum(p * np.maximum(v - x, 0))) if math.isfinite(x) else \
                         (0.0 if x > 0 else math.inf)
