@@ -8,11 +8,16 @@ value among small ones, values near 2^63, 2^64 or 2^1024, sparse), an operand fo
 uint64 / object arrays, or plain lists of Python ints) and a modulus class (none, small, NTT
 primes, odd moduli between 2^31 and 2^52, powers of two, 2^62 - 57, huge primes, even
 composites); it forces every exact engine ("direct-exact", "fft-exact", "limbs", "kronecker",
-"ntt"; an engine that refuses with a ValueError is skipped) and "auto", and compares every
+"ntt", and the compiled "ntt-compiled" in all its modes: one NTT prime, exact from one or several
+primes with Garner CRT, any modulus reduced inside or after the recombination; an engine that
+refuses with a ValueError is skipped) and "auto", and compares every
 coefficient with python-flint's fmpz_poly product (reduced by the modulus).  One draw in fifty
 also checks ``polyconv.product`` and ``polyconv.power``.  Stops at the first mismatch with a
 reproducer, or when ``--products`` products or ``--seconds`` are reached; prints the tally per
-engine and per modulus class.  Long campaigns live here, not in the test suite.
+engine, per compiled-engine mode and per modulus class.  The compiled kernels are loaded
+(compiled or from the cache) before the clock starts, and the campaign refuses to count a
+compiled product when they did not load (the engine would have fallen back to numpy code).
+Long campaigns live here, not in the test suite.
 """
 
 from __future__ import annotations
@@ -31,7 +36,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
 
 import polyconv  # noqa: E402
 
-ENGINES = ("auto", "direct-exact", "fft-exact", "limbs", "kronecker", "ntt")
+ENGINES = ("auto", "direct-exact", "fft-exact", "limbs", "kronecker", "ntt", "ntt-compiled")
 MODULUS_CLASSES = {
     "none": [None],
     "small": [2, 3, 7, 97, 65537, 2**20 + 7],
@@ -43,11 +48,17 @@ MODULUS_CLASSES = {
     "even composites": [6, 10**12, 3 * 2**31, 2**62 + 2, 2**64 - 2, 10**40 + 120],
 }
 STYLES = ("random", "max", "alternating", "zeros", "single-huge", "near-2^63", "near-2^64",
-          "near-2^1024", "sparse")
+          "near-2^1024", "sparse", "residue-max")
+COMPILED_MODES = ("mod NTT prime", "exact, one prime", "exact, multi-prime CRT",
+                  "any modulus, one prime", "any modulus < 2^62, CRT", "any modulus >= 2^62, CRT")
 
 
-def magnitude_values(rng: random.Random, n: int, bits: int, style: str) -> list[int]:
+def magnitude_values(rng: random.Random, n: int, bits: int, style: str,
+                     modulus: int | None = None) -> list[int]:
     top = (1 << bits) - 1
+    if style == "residue-max":  # the largest residues (m - 1, or -(m - 1)), else all at the top
+        big = top if modulus is None else modulus - 1
+        return [rng.choice([big, big, -big, big - 1]) for _ in range(n)]
     if style == "max":
         return [top] * n
     if style == "alternating":
@@ -90,7 +101,43 @@ def reference(a: list[int], b: list[int], modulus) -> list[int]:
 def draw_lengths(rng: random.Random) -> tuple[int, int]:
     roll = rng.random()
     top = 15 if roll < 0.02 else 12 if roll < 0.12 else 6
+    if rng.random() < 0.15:  # full lengths at a power-of-two transform boundary (2^k, 2^k + 1)
+        k = rng.randint(1, top)
+        n1 = rng.randint(1, 2**k)
+        return n1, 2**k + rng.choice([0, 1]) + 1 - n1  # n1 + n2 - 1 = 2^k or 2^k + 1
     return tuple(max(1, int(2 ** rng.uniform(0, top))) for _ in range(2))
+
+
+def compiled_mode(modulus: int | None, plan) -> str:
+    """Which of the compiled engine's routes a forced product takes (from the public plan)."""
+    if modulus is None:
+        return "exact, one prime" if "one prime" in plan.reason else "exact, multi-prime CRT"
+    if "one prime" in plan.reason:
+        return "mod NTT prime" if modulus in MODULUS_CLASSES["NTT primes"] else \
+            "any modulus, one prime"
+    return "any modulus < 2^62, CRT" if modulus < 2**62 else "any modulus >= 2^62, CRT"
+
+
+def jit_module():
+    """polyconv's JIT-state module wherever the layout keeps it (it may move between packages)."""
+    import importlib
+
+    for name in ("polyconv.jit", "polyconv.numerics.jit", "polyconv.tuning.jit",
+                 "polyconv.engines.jit", "polyconv.pipeline.jit"):
+        try:
+            return importlib.import_module(name)
+        except ImportError:
+            continue
+    raise SystemExit("cannot find polyconv's jit module")
+
+
+def load_kernels() -> None:
+    """Run one compiled product so the kernels are loaded before the clock starts."""
+    polyconv.convolve([1, 2], [3], method="ntt-compiled")
+    state = jit_module().state()
+    if state != "compiled":
+        raise SystemExit(f"compiled kernels not loaded (state {state!r}): "
+                         f"{jit_module().reason()}")
 
 
 def draw_modulus(rng: random.Random) -> tuple[str, int | None]:
@@ -108,6 +155,8 @@ def main() -> int:
     parser.add_argument("--seed", type=int, default=1)
     args = parser.parse_args()
     rng = random.Random(args.seed)
+    load_kernels()
+    modes: Counter = Counter()
     engines: Counter = Counter()
     classes: Counter = Counter()
     styles: Counter = Counter()
@@ -122,9 +171,12 @@ def main() -> int:
         style = rng.choice(STYLES)
         if (bits > 64 or style in ("near-2^1024", "single-huge")) and n1 * n2 > 2**20:
             n1, n2 = min(n1, 2**10), min(n2, 2**10)
-        va = magnitude_values(rng, n1, bits, style)
-        vb = magnitude_values(rng, n2, bits, rng.choice(["random", style]))
         cls, modulus = draw_modulus(rng)
+        if style == "residue-max" and modulus is not None and modulus.bit_length() > 64 \
+                and n1 * n2 > 2**20:
+            n1, n2 = min(n1, 2**10), min(n2, 2**10)
+        va = magnitude_values(rng, n1, bits, style, modulus)
+        vb = magnitude_values(rng, n2, bits, rng.choice(["random", style]), modulus)
         want = reference(va, vb, modulus)
         a, b = as_operand(rng, va), as_operand(rng, vb)
         for engine in ENGINES:
@@ -136,6 +188,12 @@ def main() -> int:
                 print(f"MISMATCH engine={engine} n1={n1} n2={n2} bits={bits} style={style} "
                       f"modulus={modulus} seed={args.seed} draw={draws}")
                 return 1
+            if engine == "ntt-compiled":
+                if jit_module().state() != "compiled":
+                    print("compiled kernels unloaded: the engine fell back; stopping")
+                    return 1
+                mode = compiled_mode(modulus, polyconv.plan(a, b, method=engine, modulus=modulus))
+                modes[mode] += 1
             engines[engine] += 1
             classes[cls] += 1
             styles[style] += 1
@@ -147,6 +205,9 @@ def main() -> int:
     print("per engine:")
     for engine in ENGINES + ("product", "power"):
         print(f"  {engine:16s} {engines[engine]}")
+    print("ntt-compiled per mode:")
+    for mode in COMPILED_MODES:
+        print(f"  {mode:24s} {modes[mode]}")
     print("per modulus class:")
     for cls in MODULUS_CLASSES:
         print(f"  {cls:16s} {classes[cls]}")

@@ -97,6 +97,7 @@ def power(a, k: int, *, modulus: int | None = None, length: int | None = None) -
     total = k * (arr.shape[0] - 1) + 1 if n is None else n
     core, shift = _trim(ring, x)
     if core is None or k * shift >= total:
+        _check_chain(ring, total, 0, f"power(a, k={k}), all zero")
         return ring.finish(ring.zeros(total))
     room = total - k * shift
     _check_chain(ring, total, _power_bits(ring, core, k, None if n is None else room),
@@ -247,6 +248,8 @@ def product(seqs: Iterable, *, modulus: int | None = None, length: int | None = 
     trimmed = [_trim(ring, ring.convert(f if n is None else f[:n])) for f in factors]
     shift = sum(t[1] for t in trimmed)
     if any(core is None for core, _ in trimmed) or shift >= total:
+        _check_chain(ring, total, 0, f"product(seqs){'' if n is None else f', length={n}'}, "
+                     "all zero")
         return ring.finish(ring.zeros(total))
     room = total - shift
     cores = [core[:room] for core, _ in trimmed]

@@ -102,17 +102,25 @@ def _inverse_base(ring: _Ring, a: np.ndarray, n: int, first) -> np.ndarray:
     return ring.finish(ring.convert(np.array(b, dtype=object)))
 
 
+def _check_inverse_growth(ring: _Ring, b: np.ndarray, target: int, n: int) -> None:
+    """Integer inverses grow: refuse a step to ``target`` terms whose coefficients, their bits
+    extrapolated linearly from the ``len(b)`` computed so far, are over the memory budget."""
+    if isinstance(ring, _Integers):
+        bits = max_abs(b).bit_length() * target / b.shape[0]
+        _check_chain(ring, target, bits, f"inverse_series(a, length={n}), whose "
+                     f"coefficients grow, at its step to {target} terms")
+
+
 def _inverse(ring: _Ring, a: np.ndarray, n: int, first) -> np.ndarray:
     """``1/a mod x^n`` by Newton iteration, given ``first = 1/a[0]``."""
     b = _inverse_base(ring, a, min(n, _BASE_TERMS), first)
+    if n > b.shape[0]:  # up front: the last step's size, before any Newton step runs
+        _check_inverse_growth(ring, b, n, n)
     for target in _precisions(n)[1:]:
         if target <= b.shape[0]:
             continue
         k = b.shape[0]
-        if isinstance(ring, _Integers):  # integer inverses grow: extrapolate their bits linearly
-            bits = max_abs(b).bit_length() * target / k
-            _check_chain(ring, target, bits, f"inverse_series(a, length={n}), whose "
-                         f"coefficients grow, at its step to {target} terms")
+        _check_inverse_growth(ring, b, target, n)
         # a b = 1 + x^k e + O(x^target): e = coefficients k..target-1 of a b (middle product)
         middle = ring.mul(_fit(a, target), b, mode="valid")
         e = middle[1:]

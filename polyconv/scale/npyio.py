@@ -151,7 +151,7 @@ def _parse_header(fd: int, path: str) -> tuple[np.dtype, int, int]:
             reader = (np.lib.format.read_array_header_1_0 if version == (1, 0)
                       else np.lib.format.read_array_header_2_0)
             shape, fortran, dtype = reader(f)
-        except (ValueError, SyntaxError, TypeError, EOFError, OSError) as exc:
+        except Exception as exc:  # noqa: BLE001 - numpy's parser raises many (TokenError too)
             raise ValueError(f"source {path!r} has a damaged .npy header (numpy said: "
                              f"{exc})") from None
         offset = f.tell()

@@ -1,0 +1,105 @@
+"""Regression tests for what bench/robustness_campaign.py reported (issue 16, second campaign).
+
+Each test names the campaign's finding; the expected values come from arithmetic stated beside
+each check.
+"""
+
+import numpy as np
+import pytest
+
+import polyconv
+from polyconv import budget
+
+# ----------------------------------------------------------------------------- convolve_chunks
+# Finding: None entries reached abs() ("bad operand type for abs(): 'NoneType'") or were named
+# "a" (the name inside the product of one chunk) instead of the argument the user passed.
+
+
+@pytest.mark.parametrize("chunks, kernel, named", [
+    ([None], [1, 2], r"chunks\[0\] is None"),
+    ([[1, 2], None], [1], r"chunks\[1\] is None"),
+    ([[1, None]], [1], r"chunks\[0\] must hold numbers; found an entry of type NoneType"),
+    ([[None]], [1], r"chunks\[0\] must hold numbers"),
+    (None, [1], r"chunks must be an iterable"),
+    (5, [1], r"chunks must be an iterable"),
+    ("12", [1], r"chunks must be an iterable"),
+    ([[1, 2]], [1, None], r"kernel must hold numbers; found an entry of type NoneType"),
+])
+def test_convolve_chunks_names_a_bad_chunk(chunks, kernel, named):
+    with pytest.raises(TypeError, match=named):
+        list(polyconv.convolve_chunks(chunks, kernel))
+
+
+def test_convolve_chunks_with_object_ints_still_exact():
+    # reference: (1 + 2^70 x) (1 + 2^65 x) = 1 + (2^70 + 2^65) x + 2^135 x^2 (expanded by hand)
+    out = np.concatenate(list(polyconv.convolve_chunks([[1], [2**70]], [1, 2**65])))
+    assert [int(v) for v in out] == [1, 2**70 + 2**65, 2**135]
+
+
+# ----------------------------------------------------------------------------- algebra sizes
+# Finding: power() of an all-zero operand allocated k (len - 1) + 1 zeros without the budget
+# check ("Unable to allocate 792 TiB").  2^40 * 98 + 1 int64 zeros are 784 TiB (arithmetic).
+
+
+def test_power_of_zeros_is_refused_before_allocating():
+    with budget.using_budget("1G"):
+        with pytest.raises(budget.MemoryBudgetError, match="k=1099511627776"):
+            polyconv.power([0] * 99, 2**40)
+        with pytest.raises(budget.MemoryBudgetError, match="k=1099511627776"):
+            polyconv.power([0, 0], 2**40, modulus=7)
+        with pytest.raises(budget.MemoryBudgetError, match="length=1099511627776"):
+            polyconv.product([[0], [1, 1]], length=2**40)
+    # a small all-zero power is still all zeros: 0^3 of a degree-1 polynomial has 4 terms
+    assert polyconv.power([0, 0], 3).tolist() == [0, 0, 0, 0]
+
+
+def test_inverse_series_growth_is_checked_at_the_final_length_up_front():
+    # b = 1 / (1 - c x - c x^2) with c = 2^60 satisfies b_j = c (b_(j-1) + b_(j-2)) (comparing
+    # coefficients of a b = 1), so b_j >= 2^(60 j): at j = 4095 each coefficient has ~245,700
+    # bits (about 32 KiB), 4096 of them ~128 MiB, over a 64 MiB budget.  The refusal must come
+    # before the Newton steps, so it names the final step (4096 terms), not an earlier one.
+    with budget.using_budget("64M"):
+        with pytest.raises(budget.MemoryBudgetError, match="at its step to 4096 terms"):
+            polyconv.inverse_series([1, -2**60, -2**60], 4096)
+    # the same series at a small length is exact: Fibonacci-like recurrence by hand
+    c = 2**60
+    want = [1, c, c * (c + 1)]
+    assert [int(v) for v in polyconv.inverse_series([1, -c, -c], 3)] == want
+
+
+# ----------------------------------------------------------------------------- huge int * float
+# Finding: a Python int beyond float64's range among float operands raised numpy's bare
+# "int too large to convert to float" (from plan() and convolve(), so from `polyconv multiply`).
+
+
+@pytest.mark.parametrize("a, b, named", [
+    ([10**5000], [1.5], "a holds an integer too large for floating point"),
+    ([1.5, 2.0], [10**400, 1], "b holds an integer too large for floating point"),
+])
+def test_huge_int_among_floats_is_named(a, b, named):
+    with pytest.raises(ValueError, match=named):
+        polyconv.convolve(a, b)
+    with pytest.raises(ValueError, match=named):
+        polyconv.plan(a, b)
+
+
+def test_large_but_finite_int_among_floats_still_multiplies():
+    # 10^300 * 1.5 = 1.5e300 (float64 holds up to about 1.8e308; IEEE 754 binary64)
+    assert polyconv.convolve([10**300], [1.5]).tolist() == [1.5e300]
+
+
+# ----------------------------------------------------------------------------- convolve_file
+# Finding: a header whose shape tuple is cut (`(58,R, }`) made numpy's header tokenizer raise
+# tokenize.TokenError, which reached the user raw.
+
+
+def test_convolve_file_names_a_header_numpy_cannot_tokenize(tmp_path):
+    src = tmp_path / "src.npy"
+    np.save(src, np.arange(58))
+    raw = bytearray(src.read_bytes())
+    at = raw.index(b"(58,") + 4
+    raw[at] = ord("R")  # the tuple now never closes: tokenize reports EOF in a statement
+    src.write_bytes(bytes(raw))
+    with pytest.raises(ValueError, match="damaged .npy header"):
+        polyconv.convolve_file(src, [1, 2, 3], tmp_path / "out.npy")
+    assert not (tmp_path / "out.npy").exists()
