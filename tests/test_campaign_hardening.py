@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 import polyconv
-from polyconv import budget
+from polyconv.numerics import budget
 
 # ----------------------------------------------------------------------------- convolve_chunks
 # Finding: None entries reached abs() ("bad operand type for abs(): 'NoneType'") or were named

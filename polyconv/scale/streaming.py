@@ -27,7 +27,7 @@ import numpy as np
 
 from ..numerics.budget import check_allocation, memory_budget
 from ..pipeline.execute import convolve
-from ..pipeline.inputs import as_number_array
+from ..pipeline.inputs import _kind_of, as_number_array
 from .npyio import NpySource, NpyWriter, native
 from .overlap import (
     INT64_LIMIT,
@@ -66,6 +66,8 @@ def check_kernel(kernel) -> np.ndarray:
         raise ValueError("kernel is empty: expected at least one coefficient")
     if k.dtype.kind not in "biufcO":
         raise TypeError(f"kernel must hold numbers, got dtype {k.dtype}")
+    if k.dtype == object:
+        _kind_of(k, "kernel")  # every entry a number, or a TypeError naming the kernel
     return native(k)
 
 
@@ -206,11 +208,15 @@ def _chunk_products(chunks: Iterator, k: np.ndarray,
 
 
 def _check_chunk(chunk, index: int) -> np.ndarray:
+    if chunk is None:
+        raise TypeError(f"chunks[{index}] is None; expected a 1-D array-like of numbers")
     x = as_number_array(chunk, f"chunks[{index}]")
     if x.ndim != 1:
         raise ValueError(f"chunks[{index}] must be 1-D, got shape {x.shape}")
     if x.dtype.kind not in "biufcO":
         raise TypeError(f"chunks[{index}] must hold numbers, got dtype {x.dtype}")
+    if x.dtype == object:
+        _kind_of(x, f"chunks[{index}]")  # every entry a number (None is not)
     return native(x)
 
 
