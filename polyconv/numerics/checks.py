@@ -14,7 +14,7 @@ import numpy as np
 
 #: The check prime: the largest prime below ``2^28``.  Residues below it have products below
 #: ``2^56``, so 128 of them add up in uint64 before any reduction.
-CHECK_PRIME = 268435399  # gmpy2.prev_prime(2**28); tests/test_exact_engines.py checks it
+CHECK_PRIME = 268435399  # gmpy2.prev_prime(2**28); tests/engines/test_exact_engines.py checks it
 #: False-pass odds the check is run to: at most ``2^-CHECK_SECURITY_BITS``.
 CHECK_SECURITY_BITS = 40
 _BLOCK = 128

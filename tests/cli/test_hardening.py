@@ -26,7 +26,7 @@ from polyconv import _atomic
 from polyconv.cli import demo_cmd, fileio
 from polyconv.cli.main import main
 
-ROOT = Path(__file__).resolve().parent.parent
+ROOT = Path(__file__).resolve().parents[2]
 CLAIMS = ROOT / "polyconv" / "data" / "demo" / "quillmere_claims.toml"
 
 

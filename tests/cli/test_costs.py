@@ -1,6 +1,6 @@
 """The cost table: round trips through a temporary user file (and `polyconv calibrate`).
 
-The other command-line tests live in tests/test_cli_commands.py and tests/test_cli_reports.py.
+The other command-line tests live in tests/cli/test_commands.py and tests/cli/test_reports.py.
 """
 
 from __future__ import annotations
