@@ -2,90 +2,49 @@
 
 from __future__ import annotations
 
-import numbers
+import functools
 from collections.abc import Iterable
 
 import numpy as np
 
 from ..numerics.budget import check_allocation, coefficient_bytes
-from ..pipeline.inputs import as_number_array
+from ..pipeline.inputs import (
+    LENGTH_ROLE,
+    check_count,
+    check_modulus,
+    check_sequence,
+    combine_kinds,
+)
 from .rings import _INT64_LIMIT, _Floats, _Modular, _Ring
 
 # ----------------------------------------------------------------------------- validation
+# The checks themselves live in polyconv.pipeline.inputs; these bind the algebra's wording.
+
+_COEFFICIENTS = "polynomial coefficients, lowest degree first"
 
 
 def _sequence(x, name: str, hint: str = "") -> tuple[np.ndarray, str]:
-    """Validate one 1-D, non-empty numeric sequence; return it with its kind."""
-    arr = as_number_array(x, name)
-    if arr.ndim != 1:
-        got = "a scalar" if arr.ndim == 0 else f"an array of shape {arr.shape}"
-        raise ValueError(f"{name} must be a 1-D sequence of numbers (polynomial coefficients, "
-                         f"lowest degree first); got {got}{hint}")
-    if arr.shape[0] == 0:
-        raise ValueError(f"{name} must hold at least one coefficient; got an empty sequence")
-    return arr, _kind(arr, name)
-
-
-def _kind(arr: np.ndarray, name: str) -> str:
-    k = arr.dtype.kind
-    if k in "iub":
-        return "integer"
-    if k == "f":
-        return "real"
-    if k == "c":
-        return "complex"
-    if k == "O":
-        if all(isinstance(v, numbers.Integral) for v in arr):
-            return "integer"
-        if all(isinstance(v, numbers.Real) for v in arr):
-            return "real"
-        if all(isinstance(v, numbers.Complex) for v in arr):
-            return "complex"
-    raise TypeError(f"{name} must hold numbers (bool, integer, float or complex); "
-                    f"got dtype {arr.dtype}")
+    """One 1-D, non-empty numeric sequence and its kind (``"integer"`` for Python ints too)."""
+    arr, kind = check_sequence(x, name, unit="coefficient", what=_COEFFICIENTS, hint=hint)
+    return arr, "integer" if kind == "bigint" else kind
 
 
 def _combine(kinds: Iterable[str]) -> str:
-    kinds = set(kinds)
-    for k in ("complex", "real"):
-        if k in kinds:
-            return k
-    return "integer"
+    return functools.reduce(combine_kinds, kinds, "integer")
 
 
 def _check_modulus(modulus, kind: str, names: str) -> int | None:
-    if modulus is None:
-        return None
-    if isinstance(modulus, bool) or not isinstance(modulus, numbers.Integral):
-        raise TypeError(f"modulus must be an integer >= 2 or None; got {type(modulus).__name__}")
-    m = int(modulus)
-    if m < 2:
-        raise ValueError(f"modulus must be an integer >= 2; got {m}")
-    if kind != "integer":
-        raise TypeError(f"modulus={m} needs integer coefficients; {names} {kind} "
-                        "floating point numbers")
-    return m
+    return check_modulus(modulus, kind, names)
 
 
 def _check_length(length, *, required: bool) -> int | None:
-    if length is None and not required:
-        return None
-    if isinstance(length, bool) or not isinstance(length, numbers.Integral):
-        what = "a positive int" if required else "a positive int or None"
-        raise TypeError(f"length must be {what}; got {type(length).__name__}")
-    if length < 1:
-        raise ValueError(f"length must be >= 1 (the number of coefficients wanted); got {length}")
-    return int(length)
+    return check_count(length, "length", optional=not required, role=LENGTH_ROLE)
 
 
 def _check_exponent(k) -> int:
-    if isinstance(k, bool) or not isinstance(k, numbers.Integral):
-        raise TypeError(f"k must be a non-negative integer exponent; got {type(k).__name__} "
-                        f"{k!r}")
-    if k < 0:
-        raise ValueError(f"k must be a non-negative integer exponent; got {k} (a negative power "
-                         "of a polynomial is a power series: use inverse_series and power)")
-    return int(k)
+    return check_count(k, "k", minimum=0, role="the exponent",
+                       hint=" (a negative power of a polynomial is a power series: use "
+                            "inverse_series and power)")
 
 
 # ----------------------------------------------------------------------------- memory budget

@@ -101,8 +101,19 @@ def _holds_int64_overflow(arr: np.ndarray) -> bool:
         return bool(np.nanmax(np.abs(arr), initial=0.0) >= 2.0**63)
 
 
-def _kind_of(arr: np.ndarray, name: str) -> str:
-    k = arr.dtype.kind
+def kind_of(arr: np.ndarray, name: str) -> str:
+    """The kind (module docstring) of one numeric array; TypeError naming ``name`` otherwise.
+
+    Object arrays are classified by the types of their entries.
+    """
+    kind = dtype_kind(arr.dtype, name)
+    return _object_kind(arr, name) if kind is None else kind
+
+
+def dtype_kind(dtype: np.dtype, name: str) -> str | None:
+    """The kind of a numeric dtype; None for object arrays (their entries decide, see
+    :func:`kind_of`); TypeError naming ``name`` for anything else (strings, dates, records)."""
+    k = dtype.kind
     if k in _FLOAT_KINDS:
         return "real"
     if k in _COMPLEX_KINDS:
@@ -110,9 +121,9 @@ def _kind_of(arr: np.ndarray, name: str) -> str:
     if k in _INTEGER_KINDS:
         return "integer"
     if k == "O":
-        return _object_kind(arr, name)
+        return None
     raise TypeError(
-        f"{name} must hold numbers (bool, integer, float or complex), got dtype {arr.dtype}"
+        f"{name} must hold numbers (bool, integer, float or complex); got dtype {dtype}"
     )
 
 
@@ -165,7 +176,7 @@ def prepare_pair(a, b, axis: int = -1) -> OperandPair:
         raise TypeError(f"axis must be an int, got {type(axis).__name__}")
     a = _as_array(a, "a")
     b = _as_array(b, "b")
-    kind = combine_kinds(_kind_of(a, "a"), _kind_of(b, "b"))
+    kind = combine_kinds(kind_of(a, "a"), kind_of(b, "b"))
     if a.ndim == 1 and b.ndim == 1:
         if axis not in (0, -1):
             raise ValueError(f"axis={axis} is out of range for 1-D inputs a and b")
@@ -223,28 +234,82 @@ def check_mode(mode: str) -> str:
 
 def check_length(length, mode: str) -> int | None:
     """Validate the truncation ``length`` (first coefficients of the full product)."""
-    if length is None:
-        return None
-    if isinstance(length, bool) or not isinstance(length, (int, np.integer)):
-        raise TypeError(f"length must be a positive int or None, got {type(length).__name__}")
-    if length < 1:
-        raise ValueError(f"length must be >= 1, got {length}")
-    if mode != "full":
+    length = check_count(length, "length", optional=True, role=LENGTH_ROLE)
+    if length is not None and mode != "full":
         raise ValueError(f"length is only defined for mode='full', got mode={mode!r}")
-    return int(length)
+    return length
 
 
-def check_modulus(modulus, kind: str) -> int | None:
-    """Validate ``modulus``: an integer >= 2, only for integer operands."""
-    if modulus is None:
-        return None
-    if isinstance(modulus, bool) or not isinstance(modulus, numbers.Integral):
-        raise TypeError(f"modulus must be an integer >= 2 or None, got {type(modulus).__name__}")
-    m = int(modulus)
-    if m < 2:
-        raise ValueError(f"modulus must be an integer >= 2, got {m}")
-    if kind in ("real", "complex"):
-        raise TypeError(
-            f"modulus={m} needs integer operands; a and b hold {kind} floating point numbers"
-        )
+def check_modulus(modulus, kind: str | None = None, holder: str = "a and b hold") -> int | None:
+    """Validate ``modulus``: None, or an integer >= 2 that only integer data may have.
+
+    ``kind`` is the kind of the data (module docstring; None: not known yet) and ``holder`` says
+    who holds it in the message (``"a holds"``, ``"source and kernel hold"``...).
+    """
+    m = check_count(modulus, "modulus", minimum=2, optional=True)
+    if m is not None and kind in ("real", "complex"):
+        raise TypeError(f"modulus={m} needs integer operands; {holder} {kind} floating point "
+                        "numbers")
     return m
+
+
+# ----------------------------------------------------------------------------- argument checks
+# Every argument check of polyconv words its refusal the same way: "<name> must be <expected>;
+# got <what was given>" (or "<name> is empty: expected ..."), naming the argument as the caller
+# wrote it ("a", "kernel", "chunks[3]", "seqs[0]", "block", ...).
+
+#: What ``length`` means wherever it is accepted (the one word for "leading coefficients kept").
+LENGTH_ROLE = "the number of leading coefficients kept"
+
+
+def _given(value) -> str:
+    """A short description of a refused value for a message: its type, and its repr if short."""
+    text = repr(value)
+    return type(value).__name__ + (f" {text}" if len(text) <= 40 else "")
+
+
+def check_count(value, name: str, *, minimum: int = 1, optional: bool = False,
+                role: str = "", hint: str = "") -> int | None:
+    """``value`` as a Python int ``>= minimum`` (or None when ``optional``).
+
+    TypeError for what is not an integer (bool, float, str...), ValueError below ``minimum``;
+    both name ``name`` and say what was expected; ``role`` (what the number means) is added in
+    parentheses, ``hint`` after a value that is too small.
+    """
+    if value is None and optional:
+        return None
+    noun = {0: "a non-negative integer", 1: "a positive integer"}.get(
+        minimum, f"an integer >= {minimum}")
+    about = f" ({role})" if role else ""
+    if isinstance(value, bool) or not isinstance(value, numbers.Integral):
+        raise TypeError(f"{name} must be {noun}{' or None' if optional else ''}{about}; "
+                        f"got {_given(value)}")
+    if value < minimum:
+        raise ValueError(f"{name} must be >= {minimum}{about}; got {value}{hint}")
+    return int(value)
+
+
+def check_vector_shape(arr, name: str, *, unit: str = "element", what: str = "",
+                       hint: str = "", allow_empty: bool = False) -> None:
+    """Refuse, naming ``name``, an array (numpy or dask) that is not 1-D or (unless
+    ``allow_empty``) holds no ``unit``; ``what`` describes the expected sequence."""
+    if arr.ndim != 1:
+        got = "a scalar" if arr.ndim == 0 else f"an array of shape {arr.shape}"
+        raise ValueError(f"{name} must be 1-D ({what or 'a sequence of numbers'}); "
+                         f"got {got}{hint}")
+    if arr.shape[0] == 0 and not allow_empty:
+        raise ValueError(f"{name} is empty: expected at least one {unit}")
+
+
+def check_sequence(x, name: str, *, unit: str = "element", what: str = "", hint: str = "",
+                   allow_empty: bool = False) -> tuple[np.ndarray, str]:
+    """One 1-D numeric sequence: the array (exact, see :func:`as_number_array`) and its kind.
+
+    Refusals name ``name``: None, what numpy cannot read as a sequence, a scalar or an array
+    that is not 1-D, an empty sequence (unless ``allow_empty``), non-numbers.
+    """
+    if x is None:
+        raise TypeError(f"{name} is None; expected a 1-D array-like of numbers")
+    arr = as_number_array(x, name)
+    check_vector_shape(arr, name, unit=unit, what=what, hint=hint, allow_empty=allow_empty)
+    return arr, kind_of(arr, name)

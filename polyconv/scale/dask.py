@@ -24,7 +24,14 @@ import numpy as np
 
 from ..numerics.budget import check_allocation, coefficient_bytes
 from ..pipeline.execute import convolve
-from ..pipeline.inputs import MODES, as_number_array
+from ..pipeline.inputs import (
+    check_count,
+    check_mode,
+    check_modulus,
+    check_sequence,
+    check_vector_shape,
+    dtype_kind,
+)
 from .overlap import (
     INT64_LIMIT,
     Summation,
@@ -37,7 +44,7 @@ from .overlap import (
     is_integer_dtype,
     max_abs,
 )
-from .streaming import check_kernel, check_modulus
+from .streaming import check_kernel
 
 _INSTALL_HINT = "polyconv's Dask back end needs the optional extra: pip install 'polyconv[dask]'"
 
@@ -147,9 +154,8 @@ def convolve_dask(a, b, *, mode: str = "full", modulus: int | None = None):
     """
     da = _dask_array_module()
     x = _check_long_operand(a, da)
-    k = check_kernel(b.compute() if is_dask_array(b) else b)
-    if mode not in MODES:
-        raise ValueError(f"mode must be one of {MODES}, got {mode!r}")
+    k, _ = check_kernel(b.compute() if is_dask_array(b) else b)
+    check_mode(mode)
     m = k.shape[0]
     summation, dtype = _dask_summation(x, k, modulus, da)
     x = _merge_short_chunks(x, m)
@@ -159,17 +165,18 @@ def convolve_dask(a, b, *, mode: str = "full", modulus: int | None = None):
 
 def _check_long_operand(a, da):
     if not isinstance(a, da.Array):
-        raise TypeError(f"a must be a 1-D dask array, got {type(a).__name__}; for in-memory "
-                        "arrays use polyconv.convolve")
-    if a.ndim != 1:
-        raise ValueError(f"a must be 1-D, got a dask array of shape {a.shape}")
-    if math.isnan(a.shape[0]):
-        raise ValueError("a has unknown chunk sizes; call a.compute_chunk_sizes() first")
-    if a.shape[0] == 0:
-        raise ValueError("a is empty: expected at least one element")
-    if a.dtype.kind not in "biufcO":
-        raise TypeError(f"a must hold numbers, got dtype {a.dtype}")
+        raise TypeError(f"a must be a 1-D dask array; got {type(a).__name__} (for in-memory "
+                        "arrays use polyconv.convolve)")
+    _check_dask_vector(a, "a")
+    dtype_kind(a.dtype, "a")
     return a
+
+
+def _check_dask_vector(x, name: str) -> None:
+    check_vector_shape(x, name, what="a dask array of numbers")
+    if math.isnan(x.shape[0]):
+        raise ValueError(f"{name} has unknown chunk sizes; call {name}.compute_chunk_sizes() "
+                         "first")
 
 
 def _dask_summation(x, k: np.ndarray, modulus: int | None, da) -> tuple[Summation, np.dtype]:
@@ -317,29 +324,21 @@ def exact_product_dask(a, b, *, modulus: int | None = None, client=None,
 
 
 def _check_exact_operand(x, name: str):
-    if not is_dask_array(x):
-        x = as_number_array(x, name)
-    if x.ndim != 1:
-        raise ValueError(f"{name} must be 1-D, got shape {x.shape}")
-    if math.isnan(x.shape[0]):
-        raise ValueError(f"{name} has unknown chunk sizes; call compute_chunk_sizes() first")
-    if x.shape[0] == 0:
-        raise ValueError(f"{name} is empty: expected at least one element")
-    if x.dtype.kind not in "iubO":
-        raise TypeError(f"{name} must hold integers (exact product), got dtype {x.dtype}; "
-                        "for floating point use convolve_dask")
-    if x.dtype.kind == "O" and not is_dask_array(x):
-        if not all(isinstance(v, (int, np.integer)) for v in x):
-            raise TypeError(f"{name} is an object array holding non-integers")
+    if is_dask_array(x):
+        _check_dask_vector(x, name)
+        kind = dtype_kind(x.dtype, name) or "integer"  # object entries: checked by the tasks
+    else:
+        x, kind = check_sequence(x, name)
+    if kind not in ("integer", "bigint"):
+        raise TypeError(f"{name} must hold integers (exact product); got dtype {x.dtype} "
+                        f"({kind} numbers): for floating point use convolve_dask")
     return x
 
 
 def _check_pieces(pieces, client) -> int:
     if pieces is None:
         return max(1, math.isqrt(_worker_threads(client) - 1) + 1)
-    if isinstance(pieces, bool) or not isinstance(pieces, (int, np.integer)) or pieces < 1:
-        raise ValueError(f"pieces must be a positive integer or None, got {pieces!r}")
-    return int(pieces)
+    return check_count(pieces, "pieces", role="blocks per operand")
 
 
 def _worker_threads(client) -> int:

@@ -27,7 +27,7 @@ import numpy as np
 
 from ..numerics.budget import check_allocation, memory_budget
 from ..pipeline.execute import convolve
-from ..pipeline.inputs import _kind_of, as_number_array
+from ..pipeline.inputs import check_count, check_modulus, check_sequence
 from .npyio import NpySource, NpyWriter, native
 from .overlap import (
     INT64_LIMIT,
@@ -57,39 +57,10 @@ ProgressCallback = Callable[[int, int], object]
 
 # ----------------------------------------------------------------------------- validation
 
-def check_kernel(kernel) -> np.ndarray:
-    """The kernel as a 1-D, non-empty numeric array (native byte order)."""
-    k = as_number_array(kernel, "kernel")
-    if k.ndim != 1:
-        raise ValueError(f"kernel must be 1-D, got an array of shape {k.shape}")
-    if k.shape[0] == 0:
-        raise ValueError("kernel is empty: expected at least one coefficient")
-    if k.dtype.kind not in "biufcO":
-        raise TypeError(f"kernel must hold numbers, got dtype {k.dtype}")
-    if k.dtype == object:
-        _kind_of(k, "kernel")  # every entry a number, or a TypeError naming the kernel
-    return native(k)
-
-
-def check_block(block) -> int | None:
-    """Validate ``block=``: None or a positive integer."""
-    if block is None:
-        return None
-    if isinstance(block, bool) or not isinstance(block, (int, np.integer)):
-        raise TypeError(f"block must be a positive integer or None, got {type(block).__name__}")
-    if block < 1:
-        raise ValueError(f"block must be a positive integer, got {block}")
-    return int(block)
-
-
-def check_modulus(modulus) -> None:
-    """Validate ``modulus=``: None or an integer >= 2."""
-    if modulus is None:
-        return
-    if isinstance(modulus, bool) or not isinstance(modulus, (int, np.integer)):
-        raise TypeError(f"modulus must be an integer >= 2 or None, got {type(modulus).__name__}")
-    if modulus < 2:
-        raise ValueError(f"modulus must be an integer >= 2, got {modulus}")
+def check_kernel(kernel) -> tuple[np.ndarray, str]:
+    """The kernel as a 1-D, non-empty numeric array (native byte order) and its kind."""
+    k, kind = check_sequence(kernel, "kernel", unit="coefficient")
+    return native(k), kind
 
 
 def default_block(kernel_length: int) -> int:
@@ -157,7 +128,7 @@ def convolve_chunks(chunks: Iterable, kernel, *,
     array([1, 3, 5, 3])
     """
     pieces = _check_chunks(chunks)
-    k = check_kernel(kernel)
+    k, _ = check_kernel(kernel)
     check_modulus(modulus)
     return _chunk_products(pieces, k, modulus)
 
@@ -184,7 +155,7 @@ def _chunk_products(chunks: Iterator, k: np.ndarray,
     first_exact = None
     max_x = 0
     for index, chunk in enumerate(chunks):
-        x = _check_chunk(chunk, index)
+        x, _ = _check_chunk(chunk, index)
         if x.shape[0] == 0:
             continue
         if state is None:
@@ -207,17 +178,10 @@ def _chunk_products(chunks: Iterator, k: np.ndarray,
         yield tail
 
 
-def _check_chunk(chunk, index: int) -> np.ndarray:
-    if chunk is None:
-        raise TypeError(f"chunks[{index}] is None; expected a 1-D array-like of numbers")
-    x = as_number_array(chunk, f"chunks[{index}]")
-    if x.ndim != 1:
-        raise ValueError(f"chunks[{index}] must be 1-D, got shape {x.shape}")
-    if x.dtype.kind not in "biufcO":
-        raise TypeError(f"chunks[{index}] must hold numbers, got dtype {x.dtype}")
-    if x.dtype == object:
-        _kind_of(x, f"chunks[{index}]")  # every entry a number (None is not)
-    return native(x)
+def _check_chunk(chunk, index: int) -> tuple[np.ndarray, str]:
+    x, kind = check_sequence(chunk, f"chunks[{index}]", what="a piece of the signal",
+                             allow_empty=True)
+    return native(x), kind
 
 
 def _check_same_kind(x: np.ndarray, k: np.ndarray, exact: bool, index: int) -> None:
@@ -350,9 +314,9 @@ def convolve_file(source, kernel, destination, *, modulus: int | None = None,
 
 
 def _convolve_open_file(src: NpySource, kernel, destination, modulus, block, progress) -> None:
-    k = check_kernel(kernel)
+    k, _ = check_kernel(kernel)
     dest = _check_destination(destination, src.path)
-    given = check_block(block)
+    given = check_count(block, "block", optional=True, role="samples per block")
     size = min(given or default_block(k.shape[0]), src.length)
     if not given:
         # the default block shrinks to fit the memory budget (never below two kernel lengths)

@@ -223,7 +223,7 @@ def test_error_bound_covers_observed_float_error():
     assert observed <= polyconv.error_bound(a, b, polyconv.plan(a, b, method="fft"))
 
 
-@pytest.mark.parametrize("bad, words", [(1, "modulus must be an integer >= 2"),
+@pytest.mark.parametrize("bad, words", [(1, "modulus must be >= 2"),
                                         (0, ">= 2"), (-7, ">= 2"), (2.0, "modulus must be"),
                                         ("7", "modulus must be"), (True, "modulus must be")])
 def test_bad_modulus(bad, words):
