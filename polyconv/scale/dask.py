@@ -30,8 +30,10 @@ from ..pipeline.inputs import (
     check_modulus,
     check_sequence,
     check_vector_shape,
+    combine_kinds,
     dtype_kind,
 )
+from ..pipeline.shaping import float_work_dtype
 from .overlap import (
     INT64_LIMIT,
     Summation,
@@ -41,7 +43,6 @@ from .overlap import (
     dtype_max_abs,
     exact_summation,
     finish_exact,
-    is_integer_dtype,
     max_abs,
 )
 from .streaming import check_kernel
@@ -154,10 +155,10 @@ def convolve_dask(a, b, *, mode: str = "full", modulus: int | None = None):
     """
     da = _dask_array_module()
     x = _check_long_operand(a, da)
-    k, _ = check_kernel(b.compute() if is_dask_array(b) else b)
+    k, kernel_kind = check_kernel(b.compute() if is_dask_array(b) else b)
     check_mode(mode)
     m = k.shape[0]
-    summation, dtype = _dask_summation(x, k, modulus, da)
+    summation, dtype = _dask_summation(x, k, kernel_kind, modulus, da)
     x = _merge_short_chunks(x, m)
     full = _overlap_add_graph(x, k, modulus, summation, dtype, da)
     return _select_mode(full, x.shape[0], m, mode)
@@ -179,10 +180,14 @@ def _check_dask_vector(x, name: str) -> None:
                          "first")
 
 
-def _dask_summation(x, k: np.ndarray, modulus: int | None, da) -> tuple[Summation, np.dtype]:
-    probe = convolve(np.zeros(1, dtype=x.dtype), k[:1], modulus=modulus)
-    if not is_integer_dtype(probe.dtype):
-        return Summation(exact=False), probe.dtype
+def _dask_summation(x, k: np.ndarray, kernel_kind: str, modulus: int | None,
+                    da) -> tuple[Summation, np.dtype]:
+    """Summation and output dtype, from the kinds of the dtypes (no product is computed; the
+    entries of an object dask array are taken for Python ints, as its tasks will check)."""
+    kind = combine_kinds(dtype_kind(x.dtype, "a") or "bigint", kernel_kind)
+    check_modulus(modulus, kind)
+    if kind not in ("integer", "bigint"):
+        return Summation(exact=False), float_work_dtype(x.dtype, k.dtype, kind)
     if modulus is not None:
         summation = exact_summation(0, modulus)
         return summation, summation.out_dtype

@@ -26,8 +26,14 @@ from collections.abc import Callable, Iterable, Iterator
 import numpy as np
 
 from ..numerics.budget import check_allocation, memory_budget
-from ..pipeline.execute import convolve
-from ..pipeline.inputs import check_count, check_modulus, check_sequence
+from ..pipeline.inputs import (
+    check_count,
+    check_modulus,
+    check_sequence,
+    combine_kinds,
+    dtype_kind,
+)
+from ..pipeline.shaping import float_work_dtype
 from .npyio import NpySource, NpyWriter, native
 from .overlap import (
     INT64_LIMIT,
@@ -69,9 +75,9 @@ def default_block(kernel_length: int) -> int:
     return 1 << (want - 1).bit_length()
 
 
-def _probe(x: np.ndarray, kernel: np.ndarray, modulus: int | None) -> np.ndarray:
-    """A one-sample product: lets :func:`convolve` reject bad kinds/moduli with its messages."""
-    return convolve(x[:1], kernel[:1], modulus=modulus)
+def _is_exact(kind: str) -> bool:
+    """Whether a product of this kind (:mod:`polyconv.pipeline.inputs`) is computed exactly."""
+    return kind in ("integer", "bigint")
 
 
 # ----------------------------------------------------------------------------- chunks
@@ -128,9 +134,9 @@ def convolve_chunks(chunks: Iterable, kernel, *,
     array([1, 3, 5, 3])
     """
     pieces = _check_chunks(chunks)
-    k, _ = check_kernel(kernel)
+    k, kernel_kind = check_kernel(kernel)
     check_modulus(modulus)
-    return _chunk_products(pieces, k, modulus)
+    return _chunk_products(pieces, k, kernel_kind, modulus)
 
 
 def _check_chunks(chunks) -> Iterator:
@@ -146,7 +152,7 @@ def _check_chunks(chunks) -> Iterator:
     return iter(chunks)
 
 
-def _chunk_products(chunks: Iterator, k: np.ndarray,
+def _chunk_products(chunks: Iterator, k: np.ndarray, kernel_kind: str,
                     modulus: int | None) -> Iterator[np.ndarray]:
     """The output chunks of :func:`convolve_chunks` (arguments checked)."""
     m = k.shape[0]
@@ -155,16 +161,17 @@ def _chunk_products(chunks: Iterator, k: np.ndarray,
     first_exact = None
     max_x = 0
     for index, chunk in enumerate(chunks):
-        x, _ = _check_chunk(chunk, index)
+        x, kind = _check_chunk(chunk, index)
         if x.shape[0] == 0:
             continue
+        kind = combine_kinds(kind, kernel_kind)
         if state is None:
-            first = _probe(x, k, modulus)
-            first_exact = is_integer_dtype(first.dtype)
+            check_modulus(modulus, kind, f"chunks[{index}] and kernel hold")
+            first_exact = _is_exact(kind)
             summation = (exact_summation(0, modulus) if first_exact and modulus is not None
                          else Summation(exact=first_exact))
             state = OverlapAdd(k, summation, modulus)
-        _check_same_kind(x, k, first_exact, index)
+        _check_same_kind(x, _is_exact(kind), first_exact, index)
         if first_exact and modulus is None and not state.summation.wide:
             max_x = max(max_x, max_abs(x))
             seen = state.consumed + x.shape[0]
@@ -184,10 +191,7 @@ def _check_chunk(chunk, index: int) -> tuple[np.ndarray, str]:
     return native(x), kind
 
 
-def _check_same_kind(x: np.ndarray, k: np.ndarray, exact: bool, index: int) -> None:
-    now_exact = is_integer_dtype(x.dtype) and is_integer_dtype(k.dtype)
-    if x.dtype == object:  # Python ints, or floats in an object array: let convolve decide
-        now_exact = is_integer_dtype(_probe(x, k, None).dtype)
+def _check_same_kind(x: np.ndarray, now_exact: bool, exact: bool, index: int) -> None:
     if now_exact != exact:
         was = "integers" if exact else "floating point numbers"
         raise TypeError(f"chunks[{index}] holds {x.dtype} data but earlier chunks held {was}; "
@@ -212,16 +216,16 @@ def _check_destination(destination, source: str) -> str:
     return dest
 
 
-def _file_summation(src: NpySource, k: np.ndarray, modulus: int | None,
+def _file_summation(src: NpySource, k: np.ndarray, kernel_kind: str, modulus: int | None,
                     block: int) -> tuple[Summation, np.dtype]:
-    """Summation and output dtype; exact products must provably fit a fixed-width .npy dtype."""
-    probe = _probe(src.read(0, 1), k, None)
-    if not is_integer_dtype(probe.dtype):
-        if modulus is not None:
-            raise TypeError(f"modulus={modulus!r} needs integer data; source ({src.dtype}) and "
-                            f"kernel ({k.dtype}) give floating point")
-        return Summation(exact=False), probe.dtype
-    check_modulus(modulus)
+    """Summation and output dtype; exact products must provably fit a fixed-width .npy dtype.
+
+    The kinds come from the dtypes (:mod:`polyconv.pipeline.inputs`); no product is computed."""
+    source = src.dtype.newbyteorder("=")
+    kind = combine_kinds(dtype_kind(source, "source"), kernel_kind)
+    check_modulus(modulus, kind, f"source ({src.dtype}) and kernel ({k.dtype}) hold")
+    if not _is_exact(kind):
+        return Summation(exact=False), float_work_dtype(source, k.dtype, kind)
     if modulus is not None:
         if modulus >= INT64_LIMIT:
             raise ValueError(f"modulus={modulus} is >= 2^63: residues do not fit the int64 .npy "
@@ -314,7 +318,7 @@ def convolve_file(source, kernel, destination, *, modulus: int | None = None,
 
 
 def _convolve_open_file(src: NpySource, kernel, destination, modulus, block, progress) -> None:
-    k, _ = check_kernel(kernel)
+    k, kernel_kind = check_kernel(kernel)
     dest = _check_destination(destination, src.path)
     given = check_count(block, "block", optional=True, role="samples per block")
     size = min(given or default_block(k.shape[0]), src.length)
@@ -325,7 +329,7 @@ def _convolve_open_file(src: NpySource, kernel, destination, modulus, block, pro
     check_allocation(FILE_PEAK_BLOCKS * 8 * (size + k.shape[0]),
                      f"block={size}" if given else
                      f"the default block of {size} samples (8 kernel lengths; pass block=)")
-    summation, dtype = _file_summation(src, k, modulus, size)
+    summation, dtype = _file_summation(src, k, kernel_kind, modulus, size)
     total = src.length + k.shape[0] - 1
     state = OverlapAdd(k, summation, modulus)
     with NpyWriter(dest, dtype, total) as writer:
