@@ -9,6 +9,7 @@ per line.
 from __future__ import annotations
 
 import argparse
+import dataclasses
 import math
 import os
 import re
@@ -18,8 +19,8 @@ from pathlib import Path
 import numpy as np
 
 from ..numerics import budget
-from ..pipeline.execute import convolve
-from ..pipeline.prepare import plan
+from ..pipeline.execute import convolve_prepared
+from ..pipeline.prepare import error_bound
 from ..scale import streaming
 from .errors import CliError
 from .fileio import (
@@ -171,8 +172,9 @@ def _run(args) -> int:
     budget.check_allocation(total * _bytes_per_coefficient(a, b, out_path),
                             f"the product ({total} coefficients"
                             + (f", --length {length})" if length is not None else ")"))
-    the_plan = plan(a, b, modulus=modulus, length=length)
-    result = convolve(a, b, modulus=modulus, length=length)
+    result, the_plan = convolve_prepared(a, b, modulus=modulus, length=length)  # prepared once
+    if not the_plan.exact and (args.json or args.explain):  # the plan to show has its bound
+        the_plan = dataclasses.replace(the_plan, error_bound=error_bound(a, b, the_plan))
     if out_path is not None:
         atomic_write(out_path, sequence_bytes(result, out_path.suffix, f"output {args.output!r}"))
     if args.json:

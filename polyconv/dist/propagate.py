@@ -14,8 +14,7 @@ import numbers
 
 import numpy as np
 
-from ..pipeline.execute import convolve
-from ..pipeline.prepare import plan
+from ..pipeline.execute import convolve_prepared
 from . import accuracy
 from .ledger import (
     ErrorLedger,
@@ -81,8 +80,8 @@ def independent_sum(x, y) -> tuple[np.ndarray, float, float, ErrorLedger]:
         raise ValueError(f"cannot add lattices with different steps ({x.step!r} and {y.step!r}); "
                          "re-discretise one of them on the other's step")
     a, b = np.asarray(x.pmf), np.asarray(y.pmf)
-    the_plan = plan(a, b)
-    c = np.clip(convolve(a, b), 0.0, 1.0)
+    c, the_plan = convolve_prepared(a, b)  # prepared once: the plan is the one that ran
+    c = np.clip(c, 0.0, 1.0)
     r_point = accuracy.convolution_bound(the_plan.engine, a, b, the_plan.transform_length)
     ma, mb = float(a.sum()), float(b.sum())
     if the_plan.engine == "direct":
