@@ -114,7 +114,7 @@ def poly_divmod(a, b, *, modulus: int | None = None) -> tuple[np.ndarray, np.nda
         raise ValueError(_not_invertible_message("the leading coefficient of b", y[-1], ring,
                                                  "a / b"))
     q, r = _divmod(ring, x, y, lead)
-    return ring.finish(q), ring.finish(r)
+    return ring.to_result(q), ring.to_result(r)
 
 
 def _strip(ring: _Ring, y: np.ndarray) -> np.ndarray:

@@ -309,7 +309,7 @@ def _evaluate_leaves(ring: _Ring, pieces: list, pts: np.ndarray, with_errors: bo
             for c in r[::-1].tolist():
                 acc = acc * x + c
             values[node.lo: node.hi] = acc
-        return ring.finish(values), None
+        return ring.to_result(values), None
     width = max(r.shape[0] for _, r, _ in pieces)
     size = max(node.hi - node.lo for node, _, _ in pieces)
     dtype = np.result_type(pts.dtype, *(r.dtype for _, r, _ in pieces))

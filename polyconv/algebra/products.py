@@ -92,20 +92,20 @@ def power(a, k: int, *, modulus: int | None = None, length: int | None = None) -
     n = _check_length(length, required=False)
     ring = _ring_for(kind, m)
     if k == 0:
-        return ring.finish(ring.one(n or 1))
+        return ring.to_result(ring.one(n or 1))
     x = ring.convert(arr if n is None else arr[:n])
     total = k * (arr.shape[0] - 1) + 1 if n is None else n
     core, shift = _trim(ring, x)
     if core is None or k * shift >= total:
         _check_chain(ring, total, 0, f"power(a, k={k}), all zero")
-        return ring.finish(ring.zeros(total))
+        return ring.to_result(ring.zeros(total))
     room = total - k * shift
     _check_chain(ring, total, _power_bits(ring, core, k, None if n is None else room),
                  f"power(a, k={k}{'' if n is None else f', length={n}'})")
     work = ring.to_work(core)
     powered = _power(ring, work, k, None if n is None else room)
     powered = ring.from_work(powered if powered is not work else ring.to_work(core.copy()))
-    return ring.finish(_place(powered, k * shift, total))
+    return ring.to_result(_place(powered, k * shift, total))
 
 
 def _trim(ring: _Ring, x: np.ndarray) -> tuple[np.ndarray | None, int]:
@@ -243,21 +243,21 @@ def product(seqs: Iterable, *, modulus: int | None = None, length: int | None = 
     n = _check_length(length, required=False)
     ring = _ring_for(kind, m)
     if not factors:
-        return ring.finish(ring.one(n or 1))
+        return ring.to_result(ring.one(n or 1))
     total = sum(f.shape[0] - 1 for f in factors) + 1 if n is None else n
     trimmed = [_trim(ring, ring.convert(f if n is None else f[:n])) for f in factors]
     shift = sum(t[1] for t in trimmed)
     if any(core is None for core, _ in trimmed) or shift >= total:
         _check_chain(ring, total, 0, f"product(seqs){'' if n is None else f', length={n}'}, "
                      "all zero")
-        return ring.finish(ring.zeros(total))
+        return ring.to_result(ring.zeros(total))
     room = total - shift
     cores = [core[:room] for core, _ in trimmed]
     _check_chain(ring, total, _product_bits(ring, cores, None if n is None else room),
                  f"product(seqs) of {len(cores)} factors"
                  + ("" if n is None else f" with length={n}"))
     tree = _product_tree(ring, [ring.to_work(c) for c in cores], None if n is None else room)
-    return ring.finish(_place(ring.from_work(tree), shift, total))
+    return ring.to_result(_place(ring.from_work(tree), shift, total))
 
 
 def _factors(seqs) -> tuple[list[np.ndarray], str]:
@@ -339,7 +339,7 @@ def _batched_stack(ring: _Modular, stack: np.ndarray, n: int | None) -> np.ndarr
         return None
     total = stack.shape[0] * (stack.shape[1] - 1) + 1 if n is None else n
     out = _batched_tree(ring, rows, n)
-    return None if out is None else ring.finish(_place(out, 0, total))
+    return None if out is None else ring.to_result(_place(out, 0, total))
 
 
 def _integer_stack(stack: np.ndarray) -> np.ndarray | None:
@@ -358,7 +358,7 @@ def _integer_stack(stack: np.ndarray) -> np.ndarray | None:
     _check_chain(ring, total, bits, f"product(seqs) of {rows.shape[0]} factors")
     level = _int64_levels(rows) if jit.state() == "compiled" else list(rows)
     tree = _product_tree(ring, [ring.to_work(r) for r in level], None)
-    return ring.finish(_place(ring.from_work(tree), 0, total))
+    return ring.to_result(_place(ring.from_work(tree), 0, total))
 
 
 def _int64_levels(rows: np.ndarray) -> list[np.ndarray]:

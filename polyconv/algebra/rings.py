@@ -149,7 +149,8 @@ class _Ring:
         out[0] = 1
         return out
 
-    def finish(self, x: np.ndarray) -> np.ndarray:
+    def to_result(self, x: np.ndarray) -> np.ndarray:
+        """``x`` as a public function returns it (integers: int64 when every value fits)."""
         return x
 
     # Chains of products (product trees, powers) run on a "work form" of the sequences, which
@@ -199,7 +200,7 @@ class _Integers(_Ring):
     def zeros(self, n: int) -> np.ndarray:
         return np.zeros(n, dtype=np.int64)
 
-    def finish(self, x: np.ndarray) -> np.ndarray:
+    def to_result(self, x: np.ndarray) -> np.ndarray:
         if x.dtype == object and max_abs(x) < _INT64_LIMIT:
             return x.astype(np.int64)
         return x

@@ -74,7 +74,7 @@ def inverse_series(a, length: int, *, modulus: int | None = None) -> np.ndarray:
     first = ring.unit_inverse(x[0])
     if first is None:
         raise ValueError(_not_invertible_message("a[0]", x[0], ring, "1/a"))
-    return ring.finish(_inverse(ring, x, n, first))
+    return ring.to_result(_inverse(ring, x, n, first))
 
 
 def _precisions(n: int) -> list[int]:
@@ -99,7 +99,7 @@ def _inverse_base(ring: _Ring, a: np.ndarray, n: int, first) -> np.ndarray:
     for k in range(1, n):
         value = -first * sum(map(operator.mul, coeffs[1:k + 1], reversed(b)))  # a_i b_(k-i)
         b.append(value % m if m is not None else value)
-    return ring.finish(ring.convert(np.array(b, dtype=object)))
+    return ring.to_result(ring.convert(np.array(b, dtype=object)))
 
 
 def _check_inverse_growth(ring: _Ring, b: np.ndarray, target: int, n: int) -> None:

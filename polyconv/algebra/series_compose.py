@@ -83,7 +83,7 @@ def compose_series(f, g, length: int, *, modulus: int | None = None) -> np.ndarr
         raise ValueError(f"g[0] must be 0{'' if m is None else f' modulo {m}'} (otherwise every "
                          f"coefficient of f(g) is an infinite sum); got g[0] = {y[0]}")
     _check_chain(ring, n, 0, f"compose_series(f, g, length={n})")
-    return ring.finish(_compose(ring, x, y, n))
+    return ring.to_result(_compose(ring, x, y, n))
 
 
 def _shifted_product(ring: _Ring, p: np.ndarray, shift_p: int, q: np.ndarray, shift_q: int,

@@ -47,7 +47,7 @@ def lift(compute: Callable, proves: Callable, x: np.ndarray, n: int, lead: int, 
                                  "not all exist over the integers); pass float coefficients or "
                                  "a modulus")
             bits *= 2
-    return _Integers().finish(candidate)
+    return _Integers().to_result(candidate)
 
 
 def _int_derivative(x: np.ndarray) -> np.ndarray:

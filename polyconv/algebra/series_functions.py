@@ -209,7 +209,7 @@ def sqrt_series(a, length: int, *, modulus: int | None = None) -> np.ndarray:
     x = ring.convert(arr[: 2 * n])  # a's coefficients up to degree n + v matter
     v = _valuation(ring, x)
     if v is None:
-        return ring.finish(ring.zeros(n))
+        return ring.to_result(ring.zeros(n))
     if v % 2:
         raise ValueError(f"a has its first non-zero coefficient at degree {v}, which is odd, so "
                          "a has no square root as a power series")
@@ -225,7 +225,7 @@ def sqrt_series(a, length: int, *, modulus: int | None = None) -> np.ndarray:
             raise ValueError(f"2 sqrt(a[{v}]) = {2 * root} is not invertible modulo "
                              f"{ring.modulus}: the square root cannot be lifted")
         body = sn.sqrt_newton(ring, _fit(u, room), room, root)
-    return ring.finish(_shifted(ring, body, shift, n))
+    return ring.to_result(_shifted(ring, body, shift, n))
 
 
 def power_series(a, exponent, length: int, *, modulus: int | None = None) -> np.ndarray:
@@ -275,7 +275,7 @@ def power_series(a, exponent, length: int, *, modulus: int | None = None) -> np.
     v = _valuation(ring, x)
     if v is None:
         if r > 0:
-            return ring.finish(ring.zeros(n))
+            return ring.to_result(ring.zeros(n))
         raise ValueError(f"a is zero, so a^({exponent}) is not a power series")
     if v and (r < 0 or (isinstance(r, Fraction) and (v * r).denominator != 1)):
         raise ValueError(f"a has its first non-zero coefficient at degree {v}, so a^({exponent}) "
@@ -283,7 +283,7 @@ def power_series(a, exponent, length: int, *, modulus: int | None = None) -> np.
     shift = int(v * r)
     room = n - shift
     if room <= 0:
-        return ring.finish(ring.zeros(n))
+        return ring.to_result(ring.zeros(n))
     u = x[v: v + room]
     if isinstance(ring, _Floats):
         c = u[0]
@@ -302,8 +302,8 @@ def power_series(a, exponent, length: int, *, modulus: int | None = None) -> np.
         lead = pow(q_root, r.numerator, m)
         scaled = ring.scale(u, ring.unit_inverse(u[0]))
         r_mod = r.numerator * pow(r.denominator, -1, m) % m
-        return ring.finish(_shifted(ring, ring.scale(_power_core(ring, scaled, r_mod, room), lead),
-                                    shift, n))
+        body = ring.scale(_power_core(ring, scaled, r_mod, room), lead)
+        return ring.to_result(_shifted(ring, body, shift, n))
     if r.numerator < 0 and abs(q_root) != 1:
         raise ValueError(f"a[{v}]^({exponent}) = {q_root}^{r.numerator} is not an integer, so "
                          f"a^({exponent}) does not have integer coefficients")
@@ -318,7 +318,7 @@ def power_series(a, exponent, length: int, *, modulus: int | None = None) -> np.
 
     body = lift(compute, lambda b, k: proves_power(u[:k], b, r, lead), u, room, abs(lead), r,
                  f"a^({exponent}) (length={n})")
-    return ring.finish(_shifted(ring, body, shift, n))
+    return ring.to_result(_shifted(ring, body, shift, n))
 
 
 # ----------------------------------------------------------------------------- kernels

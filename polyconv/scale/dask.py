@@ -40,9 +40,9 @@ from .overlap import (
     add_into,
     add_overlap,
     as_exact,
+    as_output_dtype,
     dtype_max_abs,
     exact_summation,
-    finish_exact,
     max_abs,
 )
 from .streaming import check_kernel
@@ -85,7 +85,7 @@ def _stitch(y: np.ndarray, carry: np.ndarray | None, size: int | None,
     head = y if size is None else y[:size]
     if carry is not None and carry.shape[0]:
         head = add_overlap(head.copy(), carry, summation)
-    return finish_exact(head, summation)
+    return as_output_dtype(head, summation)
 
 
 def _block_max_abs(x: np.ndarray) -> np.ndarray:
@@ -325,7 +325,7 @@ def exact_product_dask(a, b, *, modulus: int | None = None, client=None,
     out = np.zeros(n1 + n2 - 1, dtype=object if summation.wide else np.int64)
     for (i, j), part in _run_pairs(a_parts, b_parts, modulus, summation, client):
         add_into(out, (i + j) * blocks.length, part, summation)
-    return finish_exact(out, summation)
+    return as_output_dtype(out, summation)
 
 
 def _check_exact_operand(x, name: str):

@@ -23,7 +23,7 @@ from ..numerics.limits import INT64_LIMIT, max_abs
 from ..pipeline.execute import convolve
 
 __all__ = ["INT64_LIMIT", "Summation", "OverlapAdd", "exact_summation", "add_overlap",
-           "add_into", "as_exact", "finish_exact", "dtype_max_abs", "is_integer_dtype",
+           "add_into", "as_exact", "as_output_dtype", "dtype_max_abs", "is_integer_dtype",
            "max_abs"]
 
 
@@ -111,7 +111,7 @@ def as_exact(y: np.ndarray, summation: Summation) -> np.ndarray:
     return y.astype(np.int64, copy=not y.flags.writeable or y.dtype != np.int64)
 
 
-def finish_exact(y: np.ndarray, summation: Summation) -> np.ndarray:
+def as_output_dtype(y: np.ndarray, summation: Summation) -> np.ndarray:
     """Finished outputs in the summation's output dtype (floats are returned unchanged)."""
     dtype = summation.out_dtype
     if dtype is None or y.dtype == dtype:
@@ -136,7 +136,7 @@ class OverlapAdd:
     Notes
     -----
     After blocks totalling ``s`` samples, outputs ``0 .. s - 1`` have been returned and the carry
-    holds the partial sums of outputs ``s .. s + m - 2``; :meth:`finish` returns those.
+    holds the partial sums of outputs ``s .. s + m - 2``; :meth:`flush_carry` returns those.
     """
 
     def __init__(self, kernel: np.ndarray, summation: Summation, modulus: int | None = None):
@@ -156,7 +156,7 @@ class OverlapAdd:
         size = block.shape[0]
         self.carry = y[size:].copy()
         self.consumed += size
-        return finish_exact(y[:size], self.summation)
+        return as_output_dtype(y[:size], self.summation)
 
     def widen(self, summation: Summation) -> None:
         """Switch to another summation (exact int64 -> Python ints), converting the carry."""
@@ -164,8 +164,8 @@ class OverlapAdd:
         if self.carry is not None and summation.exact:
             self.carry = as_exact(self.carry, summation)
 
-    def finish(self) -> np.ndarray:
+    def flush_carry(self) -> np.ndarray:
         """The last ``m - 1`` outputs (empty for a one-tap kernel)."""
         if self.carry is None:
             raise ValueError("no samples were convolved: the signal is empty")
-        return finish_exact(self.carry, self.summation)
+        return as_output_dtype(self.carry, self.summation)

@@ -180,7 +180,7 @@ def _chunk_products(chunks: Iterator, k: np.ndarray, kernel_kind: str,
         yield state.push(x)
     if state is None:
         raise ValueError("chunks held no samples: the signal is empty")
-    tail = state.finish()
+    tail = state.flush_carry()
     if tail.shape[0]:
         yield tail
 
@@ -337,7 +337,7 @@ def _convolve_open_file(src: NpySource, kernel, destination, modulus, block, pro
         for x in src.blocks(size):
             writer.write(state.push(x))
             _report(progress, writer.written, total)
-        tail = state.finish()
+        tail = state.flush_carry()
         if tail.shape[0]:
             writer.write(tail)
             _report(progress, writer.written, total)
