@@ -3,9 +3,8 @@ of ``polyconv.api``, no import from a lower layer into a higher one.
 
 Layers (DESIGN.md section 1, data flow validate -> plan -> engine -> shape), lowest first; a
 module may import its own layer and the ones below.  Imports inside functions count too: a lazy
-import is still a dependency.  Cycles: none at all among module-level imports (they fail at
-import time); among lazy imports none but the ones listed in :data:`KNOWN_LAZY_CYCLES` (to be
-removed by their owners; a new one fails).  Common practice, no source.
+import is still a dependency.  Cycles: none, neither among module-level imports (they fail at
+import time) nor among lazy ones.  Common practice, no source.
 """
 
 from __future__ import annotations
@@ -18,17 +17,6 @@ PACKAGE = Path(__file__).resolve().parent.parent / "polyconv"
 #: Layer of each top-level part of the package (``_atomic`` and ``data`` are leaves).
 LAYERS = {"_atomic": 0, "numerics": 0, "engines": 1, "tuning": 2, "pipeline": 3, "algebra": 4,
           "scale": 4, "dist": 5, "cli": 6, "api": 7}
-
-
-#: Lazy (function-level) import cycles that exist today, as sorted module sets (owner: trust).
-KNOWN_LAZY_CYCLES = [
-    {"polyconv.dist.from_law", "polyconv.dist.lattice", "polyconv.dist.step_check"},
-    # Lattice.from_samples imports dist.samples on first use, which builds Lattices (same shape
-    # as from_law's constructor hook; to be removed with it)
-    {"polyconv.dist.from_law", "polyconv.dist.lattice", "polyconv.dist.samples",
-     "polyconv.dist.step_check"},
-    {"polyconv.dist.compound", "polyconv.dist.goals"},
-]
 
 
 def _module_name(path: Path) -> str:
@@ -137,8 +125,8 @@ def test_no_import_cycle_at_import_time():
     assert _cycles(_graph(lazy=False)) == []
 
 
-def test_no_new_lazy_import_cycle():
-    assert [c for c in _cycles(_graph()) if c not in KNOWN_LAZY_CYCLES] == []
+def test_no_lazy_import_cycle():
+    assert _cycles(_graph()) == []
 
 
 def test_nothing_inside_imports_api():

@@ -30,7 +30,6 @@ import math
 import numbers
 from fractions import Fraction
 
-import gmpy2
 import numpy as np
 
 from . import series_newton as sn
@@ -39,7 +38,7 @@ from .products import power
 from .rings import _fit, _Floats, _Integers, _Modular, _Ring, _ring_for
 from .series import inverse_series
 from .series_exact import lift, proves_exp, proves_log, proves_power
-from .series_roots import check_units, root_mod
+from .series_roots import check_units, constant_root
 
 __all__ = ["exp_series", "log_series", "sqrt_series", "power_series"]
 
@@ -215,7 +214,7 @@ def sqrt_series(a, length: int, *, modulus: int | None = None) -> np.ndarray:
                          "a has no square root as a power series")
     shift, room = v // 2, n - v // 2
     u = x[v: v + room]
-    root = _root(ring, u[0], 2, f"a[{v}]")
+    root = constant_root(ring, u[0], 2, f"a[{v}]")
     if isinstance(ring, _Integers):
         body = lift(lambda r, k: sn.sqrt_newton(r, r.convert(u[:k]), k, root),
                      lambda b, k: proves_power(u[:k], b, Fraction(1, 2), root),
@@ -292,7 +291,7 @@ def power_series(a, exponent, length: int, *, modulus: int | None = None) -> np.
                              "complex coefficients (principal branch)")
         body = (c ** r) * _power_core(ring, u / c, float(r), room)
         return _shifted(ring, body, shift, n)
-    q_root = _root(ring, u[0], r.denominator, f"a[{v}]")
+    q_root = constant_root(ring, u[0], r.denominator, f"a[{v}]")
     if isinstance(ring, _Modular):
         m = ring.modulus
         if math.gcd(r.denominator, m) != 1:
@@ -384,27 +383,3 @@ def _shifted(ring: _Ring, body: np.ndarray, shift: int, n: int) -> np.ndarray:
     out = ring.zeros(n).astype(body.dtype)
     out[shift:] = body[: n - shift]
     return out
-
-
-def _root(ring: _Ring, c, q: int, what: str):
-    """A ``q``-th root of the constant term ``c`` in ``ring`` (ValueError naming ``what``)."""
-    if isinstance(ring, _Floats):
-        if ring.dtype.kind == "f" and c < 0:
-            raise ValueError(f"{what} = {c} is negative: its square root is not real; pass "
-                             "complex coefficients for the principal root")
-        return c ** (1.0 / q)
-    if isinstance(ring, _Integers):
-        root, exact = gmpy2.iroot(abs(int(c)), q)
-        if int(c) < 0 and q % 2 == 0 or not exact:
-            raise ValueError(f"{what} = {c} is not a perfect {_ordinal(q)} power, so the result "
-                             "does not have integer coefficients; pass floats or a modulus")
-        return int(root) if int(c) >= 0 else -int(root)
-    root = root_mod(int(c), q, ring.modulus)
-    if root is None:
-        raise ValueError(f"{what} = {c} has no {_ordinal(q)} root modulo {ring.modulus} (or none "
-                         "that this function can find: prime moduli, and any modulus below 2^20)")
-    return root
-
-
-def _ordinal(q: int) -> str:
-    return {2: "square", 3: "cube"}.get(q, f"{q}-th")

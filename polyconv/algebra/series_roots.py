@@ -1,4 +1,6 @@
-"""Roots of constant terms modulo ``m``: the ``q``-th roots that sqrt and rational powers need.
+"""Roots of constant terms: the ``q``-th roots that sqrt and rational powers need.
+
+Floats take the real root, exact integers the integer root (or a refusal); modulo ``m``:
 
 * prime ``m``, ``q = 2``: Tonelli-Shanks (Shanks, "Five number-theoretic algorithms", 1973;
   Cohen, *A Course in Computational Algebraic Number Theory*, Algorithm 1.5.1);
@@ -14,7 +16,9 @@ import math
 import gmpy2
 import numpy as np
 
-__all__ = ["check_units", "root_mod"]
+from .rings import _Floats, _Integers, _Ring
+
+__all__ = ["check_units", "constant_root", "root_mod"]
 
 #: moduli below this are searched when no formula applies
 _SEARCH_LIMIT = 2**20
@@ -97,3 +101,28 @@ def _small_factor(m: int, count: int) -> int | None:
             if m % p == 0:
                 return p
     return m if m <= count else None  # no factor up to sqrt(m): m is prime
+
+
+def constant_root(ring: _Ring, c, q: int, what: str):
+    """A ``q``-th root of the constant term ``c`` in ``ring`` (ValueError naming ``what``):
+    the real root for floats, the exact integer root (``gmpy2.iroot``), or :func:`root_mod`."""
+    if isinstance(ring, _Floats):
+        if ring.dtype.kind == "f" and c < 0:
+            raise ValueError(f"{what} = {c} is negative: its square root is not real; pass "
+                             "complex coefficients for the principal root")
+        return c ** (1.0 / q)
+    if isinstance(ring, _Integers):
+        root, exact = gmpy2.iroot(abs(int(c)), q)
+        if int(c) < 0 and q % 2 == 0 or not exact:
+            raise ValueError(f"{what} = {c} is not a perfect {_ordinal(q)} power, so the result "
+                             "does not have integer coefficients; pass floats or a modulus")
+        return int(root) if int(c) >= 0 else -int(root)
+    root = root_mod(int(c), q, ring.modulus)
+    if root is None:
+        raise ValueError(f"{what} = {c} has no {_ordinal(q)} root modulo {ring.modulus} (or none "
+                         "that this function can find: prime moduli, and any modulus below 2^20)")
+    return root
+
+
+def _ordinal(q: int) -> str:
+    return {2: "square", 3: "cube"}.get(q, f"{q}-th")

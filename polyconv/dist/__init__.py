@@ -28,7 +28,8 @@ from .brackets import Bracket, law_bracket
 from .compound import compound
 from .delays import all_of, first_of, mixture, series
 from .errors import AccuracyWarning, TruncationWarning
-from .goals import Goal, aggregate_for_goal
+from .goal_aggregate import aggregate_for_goal
+from .goals import Goal
 from .lattice import Lattice
 from .ledger import Bounded, ErrorLedger
 from .network import Block, Network

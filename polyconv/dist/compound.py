@@ -103,7 +103,8 @@ def compound(counts, severity: Lattice, *, method: str = "auto", size: int | Non
         if size is not None:
             raise ValueError("give either size or goal, not both")
         from .goals import compound_for_goal
-        return compound_for_goal(counts, severity, goal, method=method)
+        return compound_for_goal(counts, severity, goal, lambda s: compound(
+            counts, severity, method=method, size=s))
     f = _severity_vector(severity)
     size = _grid_size(law, f, size)
     check_transform_budget(max(size, f.size), f"size={size} (compound points)")

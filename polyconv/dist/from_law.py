@@ -1,4 +1,4 @@
-"""A continuous law put on the lattice ``origin + step * j`` (``Lattice.from_law``).
+"""A continuous law put on the lattice ``origin + step * j``: the masses and their ledger.
 
 Rules (Klugman, Panjer & Willmot, *Loss Models*, ch. 9; local moment matching after Gerber, "On
 the numerical evaluation of the distribution of aggregate claims and its stop-loss premiums",
@@ -22,7 +22,8 @@ probabilities keep their relative accuracy.  Mass beyond the last point is never
 nor renormalised away: the ledger records it (``truncated``) with the first moment of the
 lattice model's part beyond the grid (``truncated_moment``, from
 :mod:`polyconv.dist.law_moments`).  A step too coarse for the law is flagged
-(:func:`polyconv.dist.step_check.check_step`).
+(:func:`polyconv.dist.step_check.check_step`).  The Lattice itself (``Lattice.from_law``) is
+built in :mod:`polyconv.dist.law_lattice`; this module does not import the Lattice class.
 """
 
 from __future__ import annotations
@@ -30,13 +31,16 @@ from __future__ import annotations
 import math
 import numbers
 import warnings
+from typing import NamedTuple
 
 import numpy as np
 from scipy import stats
 
+from ..numerics import budget
 from . import law_moments
 from .accuracy import UNIT_ROUNDOFF
 from .errors import TruncationWarning
+from .ledger import ErrorLedger
 
 RULES = ("nearest", "down", "up", "moments")
 """Names of the discretisation rules (see the module docstring)."""
@@ -302,42 +306,29 @@ def truncated_moment2(law: LawAccess, origin: float, h: float, size: int, rule: 
     return (t2 + 2 * lift * t1 + lift * lift * truncated) * (1 + 8 * UNIT_ROUNDOFF)
 
 
-def lattice_from_law(law, *, step: float, size: int | None = None, rule: str = "nearest",
-                     check: bool = True):
-    """Put a continuous law on the lattice ``origin + step * j``, ``j = 0..size-1``.
+class LawGrid(NamedTuple):
+    """A law's masses on ``origin + step j`` with their ledger: what its Lattice is built from
+    (:func:`polyconv.dist.law_lattice.lattice_from_law`) and what the step check compares
+    (:func:`polyconv.dist.step_check.check_step`)."""
 
-    Parameters
-    ----------
-    law : scipy.stats frozen continuous distribution or callable
-        The law (e.g. ``scipy.stats.lognorm(1.2, scale=8000)``), or its cdf (a non-decreasing
-        callable on ``[0, inf)``, vectorised or not).
-    step : float
-        Lattice spacing ``h > 0``.
-    size : int, optional
-        Number of points.  Default: enough that the mass beyond is below ``DEFAULT_TAIL``
-        (cut at ``MAX_POINTS`` with a :class:`TruncationWarning`).
-    rule : {"nearest", "down", "up", "moments"}
-        How a cell's mass is placed (module docstring).  ``"down"``/``"up"`` give stochastic
-        lower/upper bounds of the law (:func:`polyconv.dist.law_bracket` uses both).
-    check : bool
-        Run the step check (internal callers that checked the step once pass False).
+    pmf: np.ndarray
+    step: float
+    origin: float
+    errors: ErrorLedger
+    frozen: object  # the frozen scipy.stats law, or None for a cdf
 
-    Returns
-    -------
-    Lattice
-        Origin 0 for a law on ``[0, inf)`` (else see :func:`lattice_origin`; the mass below it
-        joins the first point).  Its ledger records the mass beyond the grid and an upper bound
-        of its first moment.  A :class:`~polyconv.dist.step_check.CoarseStepWarning` says when the
-        step is too coarse for the law (:func:`polyconv.dist.step_check.check_step`).
+    @property
+    def truncated_mass(self) -> float:
+        """``1 - sum(pmf)`` (as :attr:`polyconv.dist.Lattice.truncated_mass`)."""
+        return self.errors.truncated
 
-    Notes
-    -----
-    Discretisation changes the law; that modelling error is not part of the ledger (bracket it
-    with ``"down"``/``"up"``).  It shrinks with ``step``: ``O(h)`` for down/up, ``O(h^2)`` for
-    nearest on smooth densities (common practice, no source).
+
+def law_grid(law, *, step: float, size: int | None = None, rule: str = "nearest") -> LawGrid:
+    """The masses of ``law`` on ``origin + step * j``, ``j = 0..size-1``, and their ledger.
+
+    Parameters and rules as :func:`polyconv.dist.law_lattice.lattice_from_law`, which wraps the
+    result in a Lattice and runs the step check.
     """
-    from .step_check import warn_if_coarse
-
     access = LawAccess(law)
     h = check_step_value(step)
     rule = check_rule(rule)
@@ -349,31 +340,21 @@ def lattice_from_law(law, *, step: float, size: int | None = None, rule: str = "
     elif size > MAX_POINTS:
         raise ValueError(f"size must be at most {MAX_POINTS} points (memory budget); got {size}")
     size = int(size)
-    from ..numerics import budget
     budget.check_allocation(FROM_LAW_BYTES_PER_POINT * float(size),
                             f"size={size} (from_law points)")
     pmf, point, l1, truncated = rule_pmf(access, origin, h, size, rule)
     moment = truncated_moment(access, origin, h, size, rule, truncated)
     moment2 = truncated_moment2(access, origin, h, size, rule, truncated)
-    lattice = make_lattice(pmf, h, origin, point=point, l1=l1, moment=moment, moment2=moment2)
-    if check and access.frozen is not None:
-        warn_if_coarse(access.frozen, lattice, rule)
-    return lattice
+    ledger = law_ledger(pmf, point=point, l1=l1, moment=moment, moment2=moment2)
+    return LawGrid(pmf, h, origin, ledger, access.frozen)
 
 
-def make_lattice(pmf: np.ndarray, h: float, origin: float, *, point: float, l1: float,
-                 moment: float, moment2: float = math.inf):
-    """A Lattice whose ledger holds the evaluation error of the masses (``point``, ``l1``) and
-    the mass beyond the grid, ``1 - sum(pmf)``, with the bounds ``moment`` and ``moment2`` of
-    its first and second moments."""
-    from .lattice import Lattice
-
-    try:
-        from .ledger import ErrorLedger
-    except ImportError:  # before the error-model API: the per-point floor only
-        return Lattice(pmf, h, origin, trust_floor=point)
+def law_ledger(pmf: np.ndarray, *, point: float, l1: float, moment: float,
+               moment2: float = math.inf) -> ErrorLedger:
+    """The ledger of masses computed with per-point error ``point`` (``l1`` in all): the mass
+    beyond the grid, ``1 - sum(pmf)``, with the bounds ``moment`` and ``moment2`` of its first
+    and second moments."""
     truncated = max(0.0, 1.0 - math.fsum(pmf))
-    ledger = ErrorLedger(point, min(l1, 2.0), truncated, pmf.size,
-                         moment if truncated > 0 else 0.0,
-                         truncated_moment2=moment2 if truncated > 0 else 0.0)
-    return Lattice(pmf, h, origin, errors=ledger)
+    return ErrorLedger(point, min(l1, 2.0), truncated, pmf.size,
+                       moment if truncated > 0 else 0.0,
+                       truncated_moment2=moment2 if truncated > 0 else 0.0)

@@ -20,7 +20,7 @@ range is limited by truncation, up to ``max_points`` (memory budget), where it s
 warning naming the measures not met.  When asked to (``step=None`` in :func:`aggregate_for_goal`)
 the step is chosen too: a pilot run on a coarse grid estimates the highest VaR asked, and the step
 is ``rtol`` times that (rounded down to a round number), so the grid's own
-resolution meets the goal.
+resolution meets the goal (:mod:`polyconv.dist.goal_aggregate`).
 
 Caution: the goal is about the computation on the lattice model; the discretisation of a
 continuous law is a separate, modelling error, bracketed by :func:`polyconv.dist.law_bracket`.
@@ -147,10 +147,10 @@ def first_size(transform_law, f: np.ndarray, step: float, goal: Goal) -> int:
     return size_for_tail(transform_law, f, max(tol, 1e-300), minimum, goal.max_points)
 
 
-def compound_for_goal(counts, severity, goal: Goal, *, method: str = "auto"):
+def compound_for_goal(counts, severity, goal: Goal, build):
     """The compound of ``counts`` and the severity Lattice on the shortest grid meeting ``goal``
-    (module docstring); used by ``compound(..., goal=...)``."""
-    from .compound import compound
+    (module docstring); used by ``compound(..., goal=...)``, which passes ``build(size)``, the
+    compound on ``size`` points (so this module does not import the compound's)."""
     from .counts import classify
 
     if not isinstance(goal, Goal):
@@ -160,10 +160,10 @@ def compound_for_goal(counts, severity, goal: Goal, *, method: str = "auto"):
     if severity.origin:
         f = np.concatenate([np.zeros(int(round(severity.origin / severity.step))), f])
     size = first_size(law.transform, f, severity.step, goal)
-    return _grow(lambda s: compound(counts, severity, method=method, size=s), size, goal)
+    return grow(build, size, goal)
 
 
-def _grow(build, size: int, goal: Goal):
+def grow(build, size: int, goal: Goal):
     """Build at ``size``, doubling while the goal is unmet, up to ``goal.max_points``."""
     while True:
         lattice = build(size)
@@ -175,80 +175,3 @@ def _grow(build, size: int, goal: Goal):
                           f"{'; '.join(missing)}", AccuracyWarning, stacklevel=3)
             return lattice
         size = min(2 * size, goal.max_points)
-
-
-def aggregate_for_goal(counts, law, *, goal: Goal, step: float | None = None,
-                       rule: str = "nearest", method: str = "auto"):
-    """Compound of ``counts`` and a continuous severity law, grid (and step) chosen for ``goal``.
-
-    Parameters
-    ----------
-    counts : scipy.stats frozen discrete distribution
-        Law of the claim count.
-    law : scipy.stats frozen continuous distribution
-        Severity law, put on the lattice by :meth:`Lattice.from_law` with ``rule`` on as many
-        points as the compound grid (a claim beyond it lands beyond the grid anyway).
-    goal : Goal
-        Measures and precision.
-    step : float, optional
-        Lattice step; None: chosen from a pilot run (module docstring).
-    rule : {"nearest", "down", "up", "moments"}
-    method : {"auto", "fft", "recursion"}
-
-    Returns
-    -------
-    Lattice
-        Meeting the goal, or the ``max_points`` grid with an :class:`AccuracyWarning` naming the
-        measures not met.  A model output, not advice (see :mod:`polyconv.dist`).
-    """
-    from .compound import compound
-    from .counts import classify
-    from .lattice import Lattice
-    from .step_check import CoarseStepWarning
-
-    if not isinstance(goal, Goal):
-        raise TypeError(f"goal must be a polyconv.dist.Goal; got {type(goal).__name__}")
-    transform_law = classify(counts).transform
-    if step is None:
-        step = choose_step(counts, law, goal, rule=rule)
-    pilot = Lattice.from_law(law, step=step, size=PILOT_POINTS, rule=rule)
-    size = max(first_size(transform_law, np.asarray(pilot.pmf), step, goal), MIN_POINTS)
-
-    def build(s):
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", CoarseStepWarning)  # checked once, below
-            severity = Lattice.from_law(law, step=step, size=s, rule=rule)
-        return compound(counts, severity, method=method, size=s)
-
-    from .step_check import warn_if_coarse
-    warn_if_coarse(law, pilot, rule)
-    return _grow(build, size, goal)
-
-
-def choose_step(counts, law, goal: Goal, *, rule: str = "nearest") -> float:
-    """``rtol`` times a pilot estimate of the highest VaR asked (else of the mean), rounded down
-    to a round number; ``atol`` when that is larger."""
-    from .compound import compound
-    from .lattice import Lattice
-    from .step_check import _nice_floor
-
-    levels = goal.levels()
-    n_mean = float(counts.mean())
-    top_p = max(levels) if levels else 0.5
-    # a claim level that the aggregate's top level reaches (single big claim heuristic), and
-    # the mean of the aggregate: the pilot grid covers both
-    reach = max(float(law.isf(max((1 - top_p) / max(n_mean, 1.0), 1e-15))) * 4,
-                4 * n_mean * float(law.mean()))
-    coarse = reach / (PILOT_POINTS / 4)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        severity = Lattice.from_law(law, step=coarse, size=PILOT_POINTS, rule=rule)
-        pilot = compound(counts, severity, size=PILOT_POINTS)
-        scale = pilot.value_at_risk(top_p) if levels else pilot.mean()
-    if not (math.isfinite(scale) and scale > 0):
-        scale = coarse * 16
-    rel = goal.rtol if goal.rtol > 0 else math.inf
-    step = min(rel * scale, max(goal.atol, 0.0) or math.inf)
-    if goal.atol > 0 and goal.rtol > 0:
-        step = max(rel * scale, goal.atol)
-    return _nice_floor(step)

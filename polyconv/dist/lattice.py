@@ -169,11 +169,11 @@ class Lattice(LatticeQueries, LatticeAnswers):
 
         rule: ``"nearest"``, ``"down"`` (stochastic lower bound), ``"up"`` (upper bound) or
         ``"moments"`` (local moment matching).  Implemented in
-        :func:`polyconv.dist.from_law.lattice_from_law`.
+        :func:`polyconv.dist.law_lattice.lattice_from_law`.
         """
         # --- from_law hook (branch `grids` owns the implementation; keep this one delegation)
-        from .from_law import lattice_from_law
-        return lattice_from_law(law, step=step, size=size, rule=rule)
+        from .law_lattice import lattice_from_law
+        return lattice_from_law(law, step=step, size=size, rule=rule, cls=cls)
 
     @classmethod
     def from_samples(cls, samples, *, step, origin=0.0, counts=None, alpha=0.05,
@@ -181,11 +181,12 @@ class Lattice(LatticeQueries, LatticeAnswers):
         """Empirical law of measured ``samples`` (optionally weighted by ``counts``) on the
         lattice ``origin + step k``, its ledger carrying the Dvoretzky-Kiefer-Wolfowitz band
         at confidence ``1 - alpha``.  Implemented in
-        :func:`polyconv.dist.samples.empirical`."""
+        :func:`polyconv.dist.sample_band.band_law` (as :func:`polyconv.dist.samples.empirical`)."""
         # --- from_samples hook (branch `latency` owns the implementation)
-        from .samples import empirical
-        return empirical(samples, step=step, origin=origin, counts=counts, alpha=alpha,
-                         rule=rule).lattice
+        from .sample_band import band_law
+        pmf, h, o, ledger = band_law(samples, step=step, origin=origin, counts=counts,
+                                     alpha=alpha, rule=rule)[:4]
+        return cls(pmf, h, o, errors=ledger)
 
     def scaled(self, factor: float, *, rule: str = "nearest") -> Lattice:
         """Law of ``factor * X`` on this lattice (time scaling, inflation); see

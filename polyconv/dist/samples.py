@@ -44,11 +44,19 @@ from typing import NamedTuple
 import numpy as np
 
 from ..numerics.budget import check_allocation
-from .ledger import ErrorLedger
 from .risk import real_value
+from .sample_band import (
+    RULES,
+    as_samples,
+    band_inputs,
+    band_law,
+    band_ledger,
+    binned,
+    dkw_epsilon,
+)
 
-RULES = ("nearest", "down", "up")
-"""Binning rules of :func:`empirical`."""
+__all__ = ["RULES", "TailFit", "Sampled", "dkw_epsilon", "stage_alpha", "samples_beyond",
+           "empirical", "from_histogram", "fit_tail"]
 
 TAIL_LAWS = ("genpareto", "expon")
 """Laws of a fitted tail."""
@@ -58,10 +66,6 @@ TAIL_MASS_TOL = 1e-12
 
 MIN_EXCEEDANCES = 20
 """Fewest samples above a threshold a tail may be fitted to."""
-
-SNAP = 1e-9
-"""A sample within ``SNAP`` steps of a lattice point counts as on it (rules down / up)."""
-
 
 class TailFit(NamedTuple):
     """A fitted parametric tail: law name, parameters, threshold, how many samples it rests on."""
@@ -100,17 +104,6 @@ class Sampled(NamedTuple):
     tail: TailFit | None
 
 
-def dkw_epsilon(n: float, alpha: float) -> float:
-    """Half-width ``eps = sqrt(ln(2/alpha) / (2 n))`` of the DKW band with Massart's constant:
-    ``P(sup |F_n - F| > eps) <= alpha`` (Massart 1990, module docstring)."""
-    a = real_value(alpha, "alpha")
-    if not 0 < a < 1:
-        raise ValueError(f"alpha must lie in (0, 1); got {alpha!r}")
-    if not n > 0:
-        raise ValueError(f"the number of samples must be positive; got {n!r}")
-    return math.sqrt(math.log(2.0 / a) / (2.0 * n))
-
-
 def stage_alpha(alpha: float, stages: int) -> float:
     """Per-stage ``alpha`` so that bands of ``stages`` sampled stages hold together at confidence
     ``1 - alpha`` (Bonferroni: ``P(any fails) <= sum alpha_i``)."""
@@ -121,43 +114,6 @@ def samples_beyond(n: float, level: float) -> int:
     """How many of ``n`` samples lie above the empirical ``level``-quantile: ``floor(n (1 -
     level))`` (the samples that back a percentile; fewer than one: none does)."""
     return int(math.floor(n * (1.0 - level) + 1e-9))
-
-
-def _as_samples(samples, name: str) -> np.ndarray:
-    try:
-        x = np.asarray(samples, dtype=float).ravel()
-    except (TypeError, ValueError):
-        raise TypeError(f"{name} must be an array of real numbers") from None
-    if x.size == 0:
-        raise ValueError(f"{name} must hold at least one value")
-    if not np.all(np.isfinite(x)):
-        k = int(np.flatnonzero(~np.isfinite(x))[0])
-        raise ValueError(f"{name} must be finite; {name}[{k}] = {x[k]!r}")
-    return x
-
-
-def _indices(x: np.ndarray, step: float, origin: float, rule: str) -> np.ndarray:
-    v = (x - origin) / step
-    if rule == "nearest":
-        k = np.floor(v + 0.5)
-    elif rule == "down":
-        k = np.floor(v + SNAP)
-    else:
-        k = np.ceil(v - SNAP)
-    return k
-
-
-def _weights(counts, size: int) -> np.ndarray | None:
-    if counts is None:
-        return None
-    w = _as_samples(counts, "counts")
-    if w.size != size:
-        raise ValueError(f"counts must have one entry per sample ({size}); got {w.size}")
-    if np.any(w < 0):
-        raise ValueError("counts must be non-negative")
-    if not w.sum() > 0:
-        raise ValueError("counts must not all be zero")
-    return w
 
 
 def empirical(samples, *, step, origin=0.0, counts=None, alpha=0.05, rule="nearest",
@@ -191,47 +147,19 @@ def empirical(samples, *, step, origin=0.0, counts=None, alpha=0.05, rule="neare
     """
     from .lattice import Lattice
     cls = lattice_cls or Lattice
-    x = _as_samples(samples, "samples")
-    h = real_value(step, "step")
-    if not h > 0:
-        raise ValueError(f"step must be positive; got {step!r}")
-    o = real_value(origin, "origin")
-    if rule not in RULES:
-        raise ValueError(f"rule must be one of {', '.join(RULES)}; got {rule!r}")
-    w = _weights(counts, x.size)
-    n = float(x.size if w is None else w.sum())
-    eps = dkw_epsilon(n, alpha)
-    k = _indices(x, h, o, rule)
-    if k.min() < 0:
-        j = int(np.argmin(k))
-        raise ValueError(f"samples must lie on or above the lattice origin {o!r}; "
-                         f"samples[{j}] = {x[j]!r}")
-    fit = None
-    if tail is not None:
-        fit = fit_tail(x, w, tail)
-        keep = x <= fit.threshold
-        k_body = k[keep]
-        w_body = None if w is None else w[keep]
-    else:
-        k_body, w_body = k, w
-    top = int(k.max()) if fit is None else int(k_body.max(initial=0))
-    check_allocation(8 * (top + 2), "empirical lattice of the samples")
-    pmf = np.bincount(k_body.astype(np.int64), weights=w_body, minlength=top + 1) / n
-    u = 2.0 ** -53
-    cum = min(eps + 4 * u * (1 + math.log2(pmf.size + 1)), 1.0)
-    if fit is not None:
-        pmf, moment = _with_tail(pmf, h, o, n, w, x, fit, size)
-        ledger = ErrorLedger(min(2 * eps + 4 * u, 1.0), 2.0, 0.0, pmf.size, moment, cum)
-    else:
-        moment = math.inf
-        if upper is not None:
-            top_value = real_value(upper, "upper")
-            if top_value < float(x.max()):
-                raise ValueError(f"upper must be at least the largest sample {x.max()!r}; "
-                                 f"got {upper!r}")
-            moment = min(eps + cum, 1.0) * max(abs(top_value), abs(o))
-        ledger = ErrorLedger(min(2 * eps + 4 * u, 1.0), 2.0, 0.0, pmf.size, moment, cum)
-    lat = cls(np.minimum(pmf, 1.0), h, o, errors=ledger)
+    if tail is None:
+        pmf, h, o, ledger, n, eps, largest = band_law(samples, step=step, origin=origin,
+                                                      counts=counts, alpha=alpha, rule=rule,
+                                                      upper=upper)
+        return Sampled(cls(pmf, h, o, errors=ledger), n, eps, float(alpha), largest, None)
+    x, w, h, o, n, eps, k = band_inputs(samples, step, origin, counts, alpha, rule)
+    fit = fit_tail(x, w, tail)
+    keep = x <= fit.threshold
+    k_body = k[keep]
+    w_body = None if w is None else w[keep]
+    body = binned(k_body, w_body, n, int(k_body.max(initial=0)))
+    pmf, moment = _with_tail(body, h, o, n, w, x, fit, size)
+    lat = cls(np.minimum(pmf, 1.0), h, o, errors=band_ledger(eps, pmf.size, moment, body.size))
     return Sampled(lat, n, eps, float(alpha), float(x.max()), fit)
 
 
@@ -245,8 +173,8 @@ def from_histogram(edges, counts, *, step, origin=0.0, alpha=0.05, rule="up",
     rounded down, ``"nearest"`` the point nearest the bin's midpoint.  The band holds at the
     bin edges, where the empirical cdf is known.
     """
-    e = _as_samples(edges, "edges")
-    c = _as_samples(counts, "counts")
+    e = as_samples(edges, "edges")
+    c = as_samples(counts, "counts")
     if e.size != c.size + 1:
         raise ValueError(f"edges must have one entry more than counts ({c.size + 1}); got "
                          f"{e.size}")

@@ -33,6 +33,7 @@ from .from_law import (
     check_rule,
     check_step_value,
     lattice_origin,
+    law_grid,
     rule_pmf,
     truncated_moment,
 )
@@ -148,7 +149,7 @@ def check_step(law, *, step: float, rule: str = "nearest", rtol: float = STEP_RT
     step : float
         Lattice step.
     rule : {"nearest", "down", "up", "moments"}
-        Discretisation rule (:func:`polyconv.dist.from_law.lattice_from_law`).
+        Discretisation rule (:func:`polyconv.dist.law_lattice.lattice_from_law`).
     rtol : float
         Largest relative gap accepted (default :data:`STEP_RTOL`).
     deductible, limit : float, optional
@@ -163,8 +164,6 @@ def check_step(law, *, step: float, rule: str = "nearest", rtol: float = STEP_RT
     StepCheck
         The worst comparison and, when it fails, a suggested step.
     """
-    from .lattice import Lattice
-
     access = LawAccess(law)
     if access.frozen is None:
         raise TypeError("law must be a frozen scipy.stats continuous law (a callable cdf has "
@@ -174,10 +173,8 @@ def check_step(law, *, step: float, rule: str = "nearest", rtol: float = STEP_RT
     if not (isinstance(rtol, (int, float)) and rtol > 0):
         raise ValueError(f"rtol must be a positive number; got {rtol!r}")
     layer = _layer(deductible, limit)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", CoarseStepWarning)
-        lattice = Lattice.from_law(law, step=h, size=size, rule=rule)
-    return _check(access, lattice, rule, rtol, layer, warn, stacklevel=2)
+    grid = law_grid(law, step=h, size=size, rule=rule)  # the masses Lattice.from_law holds
+    return _check(access, grid, rule, rtol, layer, warn, stacklevel=2)
 
 
 def _layer(deductible, limit):

@@ -44,8 +44,10 @@ import numpy as np
 from . import law_moments
 from .accuracy import UNIT_ROUNDOFF
 from .errors import AccuracyWarning
-from .from_law import _OFFSET, LawAccess, check_rule, make_lattice, rule_pmf
+from .from_law import _OFFSET, LawAccess, check_rule, rule_pmf
 from .goals import Goal
+from .lattice import Lattice
+from .law_lattice import lattice_from_law, make_lattice
 from .ledger import Bounded, ErrorLedger
 from .pilot import PILOT_POINTS, Pilot, pilot_compound
 
@@ -85,7 +87,7 @@ def coarse_pair(law, rule: str, h: float, k: int, size: int):
         extra = lift + (big if side == "up" else 0.0)
         tm = law_moments.tail_moment(law, max(last_edge, 0.0))
         moment = tm * (1 + 4 * UNIT_ROUNDOFF) + extra * truncated
-        out.append(make_lattice(pmf, big, 0.0, point=point, l1=l1, moment=moment))
+        out.append(make_lattice(pmf, big, 0.0, point=point, l1=l1, moment=moment, cls=Lattice))
     return tuple(out)
 
 
@@ -415,7 +417,6 @@ def spliced_aggregate(counts, law, *, goal: Goal, step: float | None = None,
         fine compound.  Model output, not advice (see :mod:`polyconv.dist`).
     """
     from .compound import compound
-    from .from_law import lattice_from_law
 
     if not isinstance(goal, Goal):
         raise TypeError(f"goal must be a polyconv.dist.Goal; got {type(goal).__name__}")
@@ -429,12 +430,12 @@ def spliced_aggregate(counts, law, *, goal: Goal, step: float | None = None,
     h = float(step)
     n_f, plan = _plan(counts, law, h, goal, pilot)
     if not plan:  # a light enough tail: one grid, sized by the goal (polyconv.dist.goals)
-        from .goals import aggregate_for_goal
+        from .goal_aggregate import aggregate_for_goal
         fine = aggregate_for_goal(counts, law, goal=goal, step=h, rule=rule, method=method)
         answers = {(m, a): _judge(_quiet(fine, m, a), goal) for m, a in goal.measures}
         return SplicedAnswers(answers, h, len(fine), (), fine)
     for attempt in range(RETRIES + 1):
-        sev = lattice_from_law(law, step=h, size=n_f, rule=rule, check=attempt == 0)
+        sev = lattice_from_law(law, step=h, size=n_f, rule=rule, check=attempt == 0, cls=Lattice)
         fine = compound(counts, sev, method=method, size=n_f)
         levels, ends = [], [h * n_f]
         for i, (k, n) in enumerate(plan):

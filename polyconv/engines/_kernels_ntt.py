@@ -6,14 +6,10 @@ from cache.
 Every kernel has one explicit signature, so importing the module compiles (or loads) all of them
 at once and no call ever waits for the compiler.
 
-Arithmetic (all residues modulo primes ``p < 2^30``, stored in uint32 inside the transforms):
+Arithmetic (all residues modulo primes ``p < 2^30``, stored in uint32 inside the transforms;
+the lazy ``[0, 2p)`` reductions and Shoup's constant multiplication are
+:mod:`polyconv.engines._kernels_arith`'s):
 
-* Butterflies keep values in ``[0, 2p)`` ("delayed" or lazy reduction, D. Harvey, "Faster
-  arithmetic for number-theoretic transforms", J. Symbolic Comput. 60 (2014) 113-119, section
-  2); ``4p < 2^32`` so every sum fits a 32-bit word.
-* Multiplication by a known constant ``w`` uses Shoup's precomputed quotient
-  ``w' = floor(w 2^32 / p)``: for ``t < 2^32``, ``q = (t w') >> 32`` and ``r = t w - q p`` lies in
-  ``[0, 2p)`` (V. Shoup, NTL; Harvey 2014, Algorithm 1).
 * Products of two variables use Montgomery's reduction with ``R = 2^32`` (P. L. Montgomery,
   "Modular multiplication without trial division", Math. Comp. 44 (1985) 519-521): for
   ``T = x y < 4p^2``, ``t = (T + ((T mod R) p') mod R) p) / R`` is ``x y R^-1`` in ``[0, 2p)``
@@ -25,10 +21,9 @@ Arithmetic (all residues modulo primes ``p < 2^30``, stored in uint32 inside the
   over the whole array, the others block by block so that a block stays in the L1/L2 cache
   (common practice, no source).  Twiddles of the stage with half-length ``h`` sit at
   ``table[h:2h]`` (``w_{2h}^j``), so one table serves every transform length up to its own.
-* Garner's algorithm (Knuth, TAOCP vol. 2, 3rd ed., section 4.3.2) turns the residues modulo
-  ``p_0..p_{k-1}`` into mixed-radix digits ``t_i < p_i``, ``x = t_0 + p_0 (t_1 + p_1 (...))``;
-  the signed value is ``x`` or ``x - P`` (``P = prod p_i``), whichever has absolute value below
-  ``P/2``.
+* The CRT kernels (:func:`garner_int64`, :func:`garner_words`, :func:`garner_mod`,
+  :func:`residues_from_rows`) live in :mod:`polyconv.engines._kernels_crt` and are served from
+  here too, so that ``jit_state.kernels("_kernels_ntt")`` hands the engines every kernel they use.
 """
 
 from __future__ import annotations
@@ -37,47 +32,16 @@ import numpy as np
 from numba import njit
 
 from . import jit_state as _jit
+from ._kernels_arith import M32, add_2p, reduce_2p, shoup, sub_2p, twist
+from ._kernels_crt import garner_int64, garner_mod, garner_words, residues_from_rows
+
+__all__ = ["forward", "inverse", "load_residues", "pointwise", "store_residues",
+           "product_mod_prime", "garner_int64", "garner_words", "garner_mod", "residues_from_rows"]
 
 CACHE = _jit.cache_enabled()
 
 #: Butterfly spans up to this many uint32 words run block by block (16 KiB blocks: L1-sized).
 BLOCK = 1 << 12
-
-_M32 = np.uint64(0xFFFFFFFF)
-
-
-@njit("uint64(uint64, uint64, uint64, uint64)", cache=CACHE, inline="always")
-def _shoup(t, w, wq, p):
-    """``t w mod p`` in ``[0, 2p)`` for ``t < 2^32`` (Shoup)."""
-    q = (t * wq) >> np.uint64(32)
-    return t * w - q * p
-
-
-@njit(inline="always")  # no signature: inlined into callers only
-def _reduce_2p(a, p2):
-    """``a mod 2p`` for ``a < 4p`` in uint32: ``min(a, a - 2p)`` (the difference wraps above ``a``
-    when ``a < 2p``): the add/conditional-subtract step shared by every butterfly."""
-    return min(a, a - p2)
-
-
-@njit(inline="always")  # no signature: inlined into callers only
-def _add_2p(u, v, p2):
-    """``u + v`` reduced into ``[0, 2p)`` for ``u, v < 2p``."""
-    return _reduce_2p(u + v, p2)
-
-
-@njit(inline="always")  # no signature: inlined into callers only
-def _sub_2p(u, v, p2):
-    """``u - v`` reduced into ``[0, 2p)`` for ``u, v < 2p`` (computed as ``u + 2p - v``)."""
-    return _reduce_2p(u + p2 - v, p2)
-
-
-@njit(inline="always")  # no signature: inlined into callers only
-def _twist(d, w, wq, pp):
-    """``d w mod p`` in ``[0, 2p)`` for ``d < 2^32`` by Shoup's quotient ``wq`` in uint32 words
-    (the remainder ``d w - q p`` is exact modulo ``2^32``)."""
-    q = np.uint32((np.uint64(d) * np.uint64(wq)) >> np.uint64(32))
-    return d * w - q * pp
 
 
 @njit("void(uint32[::1], uint64, uint32[::1], uint32[::1], int64, int64)", cache=CACHE)
@@ -102,8 +66,8 @@ def _dif_stages(x, p, tw, twq, h_first, h_last):
             for j in range(h):
                 u = xu[j]
                 v = xv[j]
-                xu[j] = _add_2p(u, v, p2)
-                xv[j] = _twist(u + p2 - v, w[j], wq[j], pp)
+                xu[j] = add_2p(u, v, p2)
+                xv[j] = twist(u + p2 - v, w[j], wq[j], pp)
         h >>= 1
 
 
@@ -120,14 +84,14 @@ def _dif_last_two(x, p, tw, twq):
         a1 = x[s + 1]
         a2 = x[s + 2]
         a3 = x[s + 3]
-        b0 = _add_2p(a0, a2, p2)
-        b2 = _sub_2p(a0, a2, p2)
-        b1 = _add_2p(a1, a3, p2)
-        b3 = _twist(a1 + p2 - a3, w, wq, pp)
-        x[s] = _add_2p(b0, b1, p2)
-        x[s + 1] = _sub_2p(b0, b1, p2)
-        x[s + 2] = _add_2p(b2, b3, p2)
-        x[s + 3] = _sub_2p(b2, b3, p2)
+        b0 = add_2p(a0, a2, p2)
+        b2 = sub_2p(a0, a2, p2)
+        b1 = add_2p(a1, a3, p2)
+        b3 = twist(a1 + p2 - a3, w, wq, pp)
+        x[s] = add_2p(b0, b1, p2)
+        x[s + 1] = sub_2p(b0, b1, p2)
+        x[s + 2] = add_2p(b2, b3, p2)
+        x[s + 3] = sub_2p(b2, b3, p2)
 
 
 @njit("void(uint32[::1], uint64, uint32[::1], uint32[::1], int64)", cache=CACHE)
@@ -156,8 +120,8 @@ def _dit_stages(x, p, tw, twq, h_first, h_last):
             xu = x[s:s + h]
             xv = x[s + h:s + 2 * h]
             for j in range(h):
-                u = _reduce_2p(xu[j], p2)
-                t = _twist(xv[j], w[j], wq[j], pp)
+                u = reduce_2p(xu[j], p2)
+                t = twist(xv[j], w[j], wq[j], pp)
                 xu[j] = u + t
                 xv[j] = u + p2 - t
         h <<= 1
@@ -171,14 +135,14 @@ def _dit_first_two(x, p, tw, twq):
     w = tw[3]
     wq = twq[3]
     for s in range(0, x.shape[0], 4):
-        a0 = _reduce_2p(x[s], p2)
-        a1 = _reduce_2p(x[s + 1], p2)
-        a2 = _reduce_2p(x[s + 2], p2)
-        a3 = _reduce_2p(x[s + 3], p2)
-        b0 = _add_2p(a0, a1, p2)
-        b1 = _sub_2p(a0, a1, p2)
-        b2 = _add_2p(a2, a3, p2)
-        t = _twist(a2 + p2 - a3, w, wq, pp)
+        a0 = reduce_2p(x[s], p2)
+        a1 = reduce_2p(x[s + 1], p2)
+        a2 = reduce_2p(x[s + 2], p2)
+        a3 = reduce_2p(x[s + 3], p2)
+        b0 = add_2p(a0, a1, p2)
+        b1 = sub_2p(a0, a1, p2)
+        b2 = add_2p(a2, a3, p2)
+        t = twist(a2 + p2 - a3, w, wq, pp)
         x[s] = b0 + b2
         x[s + 2] = b0 + p2 - b2
         x[s + 1] = b1 + t
@@ -250,9 +214,9 @@ def pointwise(x, y, p, p_neg_inv, f, fq):
     ``[0, 2p)``; inputs in ``[0, 2p)``."""
     for i in range(x.shape[0]):
         t = np.uint64(x[i]) * np.uint64(y[i])
-        m = ((t & _M32) * p_neg_inv) & _M32
+        m = ((t & M32) * p_neg_inv) & M32
         r = (t + m * p) >> np.uint64(32)
-        x[i] = np.uint32(_shoup(r, f, fq, p))
+        x[i] = np.uint32(shoup(r, f, fq, p))
 
 
 @njit("void(uint32[::1], uint64, int64[::1])", cache=CACHE)
@@ -263,56 +227,6 @@ def store_residues(x, p, out):
         while v >= p:
             v -= p
         out[i] = np.int64(v)
-
-
-@njit("void(int64[:, ::1], int64[::1], int64[:, ::1], int64[:, ::1], int64, uint64[::1])",
-      cache=CACHE, inline="always")
-def _digits(res, primes, inv, invq, c, digits):
-    """Garner's mixed-radix digits of column ``c``: ``t_i = (..((r_i - t_0) p_0^-1 - t_1)
-    p_1^-1 ..) mod p_i``."""
-    for i in range(primes.shape[0]):
-        p = np.uint64(primes[i])
-        t = np.uint64(res[i, c])
-        for j in range(i):
-            d = digits[j]
-            if d >= p:
-                d = d % p
-            t = _shoup(t + p - d, np.uint64(inv[i, j]), np.uint64(invq[i, j]), p)
-            if t >= p:
-                t -= p
-        digits[i] = t
-
-
-@njit("void(int64[:, ::1], int64[::1], int64[:, ::1], int64[:, ::1], int64[::1])", cache=CACHE)
-def garner_int64(res, primes, inv, invq, out):
-    """Signed CRT values that fit int64: ``out[c] = x`` or ``x - P`` computed modulo ``2^64``.
-
-    ``inv[i, j] = p_j^-1 mod p_i`` (``j < i``) with Shoup quotients ``invq``; the caller
-    guarantees ``|c| < min(2^63, P/2)``.  The sign is decided by comparing the mixed-radix digits
-    with those of ``floor(P/2)`` from the most significant.
-    """
-    k = primes.shape[0]
-    half = np.empty(k, dtype=np.uint64)
-    total = np.uint64(1)  # P mod 2^64
-    for i in range(k):
-        total = total * np.uint64(primes[i])
-    # digits of floor(P/2): P is odd, floor(P/2) = (P - 1)/2 has digits (p_i - 1)/2
-    for i in range(k):
-        half[i] = np.uint64((primes[i] - 1) // 2)
-    digits = np.empty(k, dtype=np.uint64)
-    for c in range(res.shape[1]):
-        _digits(res, primes, inv, invq, c, digits)
-        value = np.uint64(0)
-        above = False
-        decided = False
-        for i in range(k - 1, -1, -1):
-            value = value * np.uint64(primes[i]) + digits[i]
-            if not decided and digits[i] != half[i]:
-                above = digits[i] > half[i]
-                decided = True
-        if above:
-            value -= total
-        out[c] = np.int64(value)
 
 
 @njit("void(int64[::1], int64[::1], uint64, uint32[::1], uint32[::1], uint32[::1], uint32[::1], "
@@ -335,104 +249,3 @@ def product_mod_prime(a, b, p, tw, twq, itw, itwq, p_neg_inv, f, fq, fa, fb, out
     inverse(fa, p, itw, itwq)
     store_residues(fa, p, out)
 
-
-@njit("void(int64[:, ::1], int64[::1], int64[:, ::1], int64[:, ::1], uint32[::1], "
-      "uint32[:, ::1])", cache=CACHE)
-def garner_words(res, primes, inv, invq, modulus_words, out):
-    """Signed CRT values as little-endian two's-complement 32-bit words (rows of ``out``).
-
-    ``modulus_words`` holds ``P``; ``out`` has at least one word more than ``P`` needs, so the
-    sign bit of ``x - P < 0`` lands in the top word.  Digits and sign as in :func:`garner_int64`.
-    """
-    k = primes.shape[0]
-    words = out.shape[1]
-    half = np.empty(k, dtype=np.uint64)
-    for i in range(k):
-        half[i] = np.uint64((primes[i] - 1) // 2)
-    digits = np.empty(k, dtype=np.uint64)
-    for c in range(res.shape[1]):
-        _digits(res, primes, inv, invq, c, digits)
-        row = out[c]
-        for w in range(words):
-            row[w] = 0
-        above = False
-        decided = False
-        used = 1
-        for i in range(k - 1, -1, -1):
-            # row <- row * p_i + t_i over the words in use
-            carry = digits[i]
-            pi = np.uint64(primes[i])
-            for w in range(used):
-                t = np.uint64(row[w]) * pi + carry
-                row[w] = np.uint32(t & _M32)
-                carry = t >> np.uint64(32)
-            if carry and used < words:
-                row[used] = np.uint32(carry)
-                used += 1
-            if not decided and digits[i] != half[i]:
-                above = digits[i] > half[i]
-                decided = True
-        if above:  # row <- row - P  (two's complement over all words)
-            borrow = np.uint64(0)
-            for w in range(words):
-                t = np.uint64(row[w]) - np.uint64(modulus_words[w]) - borrow
-                row[w] = np.uint32(t & _M32)
-                borrow = np.uint64(1) if (t >> np.uint64(63)) else np.uint64(0)
-
-
-@njit("void(int64[:, ::1], int64[::1], int64[:, ::1], int64[:, ::1], int64, int64[::1])",
-      cache=CACHE)
-def garner_mod(res, primes, inv, invq, m, out):
-    """``out[c] = x mod m`` for the CRT value ``0 <= x < P`` (non-negative products), ``m < 2^62``.
-
-    Horner's rule ``r <- r p_i + t_i (mod m)``; each ``r p_i`` is reduced with a float64
-    quotient estimate, exact to within one unit because ``r p_i / m < 2^31``, and the remainder
-    ``r p_i - q m`` (in ``[-m, 2m)``) is formed in wrapping 64-bit arithmetic and corrected.
-    """
-    k = primes.shape[0]
-    digits = np.empty(k, dtype=np.uint64)
-    inv_m = 1.0 / float(m)
-    um = np.uint64(m)
-    for c in range(res.shape[1]):
-        _digits(res, primes, inv, invq, c, digits)
-        r = np.int64(0)
-        for i in range(k - 1, -1, -1):
-            pi = primes[i]
-            q = np.int64(float(r) * float(pi) * inv_m)
-            t = np.int64(np.uint64(r) * np.uint64(pi) - np.uint64(q) * um)
-            while t < 0:
-                t += m
-            while t >= m:
-                t -= m
-            t += np.int64(digits[i]) % m if np.int64(digits[i]) >= m else np.int64(digits[i])
-            if t >= m:
-                t -= m
-            r = t
-        out[c] = r
-
-
-@njit("void(uint8[:, ::1], int64[::1], int64[::1], int64[:, ::1])", cache=CACHE)
-def residues_from_rows(rows, primes, wrap, out):
-    """``out[i, r] = value(rows[r]) mod primes[i]`` for little-endian two's-complement byte rows;
-    ``wrap[i] = 2^(8 width) mod primes[i]`` corrects negative rows."""
-    count, width = rows.shape
-    lead = width % 4
-    for i in range(primes.shape[0]):
-        p = np.uint64(primes[i])
-        for r in range(count):
-            row = rows[r]
-            acc = np.uint64(0)
-            top = width
-            if lead:
-                for b in range(width - 1, width - lead - 1, -1):
-                    acc = (acc << np.uint64(8)) | np.uint64(row[b])
-                top = width - lead
-            acc = acc % p
-            for w in range(top - 4, -1, -4):
-                word = ((np.uint64(row[w + 3]) << np.uint64(24))
-                        | (np.uint64(row[w + 2]) << np.uint64(16))
-                        | (np.uint64(row[w + 1]) << np.uint64(8)) | np.uint64(row[w]))
-                acc = ((acc << np.uint64(32)) | word) % p
-            if width and row[width - 1] >= 128:
-                acc = (acc + p - np.uint64(wrap[i])) % p
-            out[i, r] = np.int64(acc)

@@ -11,8 +11,9 @@ balanced base ``2^b``, ``x_i = sum_j x_ij 2^(b j)`` with ``|x_ij| <= 2^(b-1)``, 
 ``c_k = sum_m 2^(b m) sum_(j+l=m) (A_j * B_l)_k`` where ``A_j = (x_ij)_i``.  Each inner sum is a
 convolution of small integers, computed exactly by FFTs when the bound allows; the transforms of
 all limb sequences are taken once and the sums formed in the frequency domain, so the cost is
-``ka + kb`` forward and ``ka + kb - 1`` inverse real transforms.  The exact recombination is a
-carry propagation in int64 followed by one byte conversion per coefficient.
+``ka + kb`` forward and ``ka + kb - 1`` inverse real transforms.  The digits and the exact
+recombination (a carry propagation in int64, then one byte conversion per coefficient) are
+:mod:`polyconv.engines._limbs`'s.
 """
 
 from __future__ import annotations
@@ -26,6 +27,7 @@ from ..numerics import transforms as tf
 from ..numerics.limits import FLOAT_EXACT_LIMIT
 from . import _intpack
 from ._common import INTEGER_KINDS, Engine, Job, Option
+from ._limbs import recombine_int64, recombine_objects, split_limbs
 from .fft import convolve_fft
 
 
@@ -58,81 +60,6 @@ def convolve_rounded(a: np.ndarray, b: np.ndarray, n_fft: int,
     return np.rint(product).astype(np.int64)
 
 
-def limb_count(max_abs: int, limb_bits: int) -> int:
-    """Balanced limbs of ``limb_bits`` bits needed for values up to ``max_abs`` in magnitude."""
-    return max(1, -(-(max_abs.bit_length() + 1) // limb_bits))
-
-
-def split_limbs(x: np.ndarray, limb_bits: int, n_limbs: int) -> np.ndarray:
-    """Balanced base-``2^b`` digits of each entry: ``(n_limbs, n)`` float64, ``|digit| <= 2^(b-1)``.
-
-    Precondition: ``n_limbs >= limb_count(max|x|, limb_bits)`` and ``limb_bits <= 30``.
-    Magnitudes are cut into plain digits (vectorised on 64-bit words), balanced by a carry pass
-    over the limbs (``d >= 2^(b-1)`` becomes ``d - 2^b`` with a carry of 1; the top limb keeps
-    its carry), and given the sign.
-    """
-    if x.dtype == np.int64:
-        return _split_int64(x, limb_bits, n_limbs)
-    words, negative = _magnitude_words(x)
-    mask = (1 << limb_bits) - 1
-    half = 1 << (limb_bits - 1)
-    out = np.empty((n_limbs, x.shape[0]), dtype=np.float64)
-    carry = np.zeros(x.shape[0], dtype=np.int64)
-    for j in range(n_limbs):
-        digit = _bit_field(words, j * limb_bits, limb_bits, mask) + carry
-        if j < n_limbs - 1:  # the top limb keeps its carry: at most 2^(b-1) by the precondition
-            carry = (digit >= half).astype(np.int64)
-            digit -= carry << limb_bits
-        out[j] = digit
-    if negative is not None:
-        out[:, negative] *= -1.0
-    return out
-
-
-def _split_int64(x: np.ndarray, limb_bits: int, n_limbs: int) -> np.ndarray:
-    """:func:`split_limbs` for int64 by arithmetic shifts: ``q = floor((x + 2^(b-1)) / 2^b)``,
-    computed as ``(x >> b) + ((x >> (b-1)) & 1)`` so that nothing overflows near ``2^63``, gives
-    the balanced digit ``x - q 2^b`` in ``[-2^(b-1), 2^(b-1))``; the top limb keeps the rest."""
-    out = np.empty((n_limbs, x.shape[0]), dtype=np.float64)
-    shift, below, one = np.int64(limb_bits), np.int64(limb_bits - 1), np.int64(1)
-    rest = x
-    for j in range(n_limbs - 1):
-        quotient = (rest >> shift) + ((rest >> below) & one)
-        out[j] = rest - (quotient << shift)
-        rest = quotient
-    out[n_limbs - 1] = rest
-    return out
-
-
-def _magnitude_words(x: np.ndarray) -> tuple[np.ndarray, np.ndarray | None]:
-    """``|x|`` as ``(n, w)`` little-endian uint64 words, and the mask of negative entries."""
-    if x.dtype.kind == "u":
-        return x.astype(np.uint64).reshape(-1, 1), None
-    if x.dtype.kind in "ib":
-        signed = x.astype(np.int64)
-        negative = signed < 0
-        magnitude = signed.view(np.uint64).copy()
-        magnitude[negative] = np.uint64(0) - magnitude[negative]
-        return magnitude.reshape(-1, 1), negative
-    values = x.tolist()
-    negative = np.array([v < 0 for v in values], dtype=bool)
-    width = max(1, -(-max(abs(int(v)).bit_length() for v in values) // 64)) * 8
-    joined = b"".join([abs(int(v)).to_bytes(width, "little") for v in values])
-    rows = np.frombuffer(joined, dtype=np.uint8).reshape(len(values), width)
-    return _intpack.words_from_rows(rows), negative
-
-
-def _bit_field(words: np.ndarray, offset: int, size: int, mask: int) -> np.ndarray:
-    """Bits ``[offset, offset + size)`` of each row's little-endian words (``size <= 32``)."""
-    index, shift = divmod(offset, 64)
-    if index >= words.shape[1]:
-        return np.zeros(words.shape[0], dtype=np.int64)
-    field = words[:, index] >> np.uint64(shift)
-    if shift + size > 64 and index + 1 < words.shape[1]:
-        field |= words[:, index + 1] << np.uint64(64 - shift)
-    return (field & np.uint64(mask)).astype(np.int64)
-
-
 def convolve_limbs(a: np.ndarray, b: np.ndarray, limb_bits: int, limbs_a: int, limbs_b: int,
                    n_fft: int, keep: int | None = None, as_int64: bool = False) -> np.ndarray:
     """Exact integer product by limb-split float FFTs (first ``keep`` coefficients if given).
@@ -146,7 +73,8 @@ def convolve_limbs(a: np.ndarray, b: np.ndarray, limb_bits: int, limbs_a: int, l
         ``min(limbs_a, limbs_b)`` limb products at length ``n_fft``, that every rounded limb
         product is exact (:func:`polyconv.numerics.bounds.limb_error_bound`).
     limbs_a, limbs_b : int
-        Limb counts, at least :func:`limb_count` of each operand's largest magnitude.
+        Limb counts, at least :func:`polyconv.engines._limbs.limb_count` of each operand's
+        largest magnitude.
     n_fft : int
         Transform length ``>= n1 + n2 - 1``.
     keep : int, optional
@@ -161,8 +89,8 @@ def convolve_limbs(a: np.ndarray, b: np.ndarray, limb_bits: int, limbs_a: int, l
     """
     parts = limb_parts(a, b, limb_bits, limbs_a, limbs_b, n_fft, keep)
     if as_int64:
-        return _recombine_int64(parts, limb_bits)
-    return _recombine_objects(parts, limb_bits)
+        return recombine_int64(parts, limb_bits)
+    return recombine_objects(parts, limb_bits)
 
 
 def limb_parts(a: np.ndarray, b: np.ndarray, limb_bits: int, limbs_a: int, limbs_b: int,
@@ -216,7 +144,7 @@ def convolve_limbs_mod(a: np.ndarray, b: np.ndarray, modulus: int, limb_bits: in
                        limbs_a, limbs_b, n_fft, keep)
     if is_power_of_two(modulus):
         # 2^e divides 2^64: the sum in wrapping int64 is right modulo 2^64, so its low e bits are
-        return _recombine_int64(parts, limb_bits) & np.int64(modulus - 1)
+        return recombine_int64(parts, limb_bits) & np.int64(modulus - 1)
     if modulus < 2**31:
         # every (P_j mod m) (2^(bj) mod m) is below 2^62 - 2^59: up to 8 of them add up in int64
         # before the single final reduction
@@ -257,48 +185,6 @@ def _float_mod(x: np.ndarray, modulus: int) -> np.ndarray:
     r += np.where(r < 0, m, np.int64(0))
     r -= np.where(r >= m, m, np.int64(0))
     return r
-
-
-def _recombine_int64(parts: np.ndarray, limb_bits: int) -> np.ndarray:
-    """``sum_m parts[m] 2^(b m)`` in wrapping int64 (exact when the true sum fits)."""
-    out = np.zeros(parts.shape[1], dtype=np.int64)
-    for m in range(parts.shape[0] - 1, -1, -1):
-        out <<= limb_bits
-        out += parts[m]
-    return out
-
-
-def _recombine_objects(parts: np.ndarray, limb_bits: int) -> np.ndarray:
-    """``sum_m parts[m] 2^(b m)`` as Python ints: carries in int64, then bytes, then ints.
-
-    A carry pass turns the parts into digits in ``[0, 2^b)`` plus a final carry in ``{-1, 0}``
-    (the sign); the digits are laid out as bits of a two's-complement row per coefficient.
-    """
-    digits = []
-    carry = np.zeros(parts.shape[1], dtype=np.int64)
-    mask = (1 << limb_bits) - 1
-    m = 0
-    while m < parts.shape[0] or np.any((carry != 0) & (carry != -1)):
-        value = carry + (parts[m] if m < parts.shape[0] else 0)
-        digits.append((value & mask).astype(np.uint8 if limb_bits <= 8 else np.uint64))
-        carry = value >> limb_bits
-        m += 1
-    bits = _digits_to_bits(digits, limb_bits, carry < 0)
-    rows = np.packbits(bits, axis=1, bitorder="little")
-    return _intpack.rows_to_ints(rows, signed=True).astype(object)
-
-
-def _digits_to_bits(digits: list[np.ndarray], limb_bits: int, negative: np.ndarray) -> np.ndarray:
-    """``(n, 8 ceil((D b + 1) / 8))`` bit matrix: digit bits, then sign fill."""
-    total = len(digits) * limb_bits
-    width = 8 * (total // 8 + 1)
-    bits = np.empty((negative.shape[0], width), dtype=np.uint8)
-    shifts = np.arange(limb_bits, dtype=np.uint64)
-    for m, d in enumerate(digits):
-        field = (d.astype(np.uint64)[:, None] >> shifts) & np.uint64(1)
-        bits[:, m * limb_bits:(m + 1) * limb_bits] = field
-    bits[:, total:] = negative[:, None]
-    return bits
 
 
 # ----------------------------------------------------------------------------- registry records

@@ -1,0 +1,132 @@
+"""The empirical law of measured samples on a lattice, with its DKW band (no fitted tail).
+
+Binning rules and the band are described in :mod:`polyconv.dist.samples` (Massart 1990 for the
+constant).  This module builds the masses and the ledger only; ``Lattice.from_samples`` and
+:func:`polyconv.dist.samples.empirical` wrap them in a Lattice, so this module does not import
+the Lattice class.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from ..numerics.budget import check_allocation
+from .ledger import ErrorLedger
+from .risk import real_value
+
+__all__ = ["RULES", "SNAP", "as_samples", "band_inputs", "band_law", "band_ledger", "binned",
+           "dkw_epsilon"]
+
+RULES = ("nearest", "down", "up")
+"""Binning rules of :func:`empirical`."""
+
+SNAP = 1e-9
+"""A sample within ``SNAP`` steps of a lattice point counts as on it (rules down / up)."""
+
+
+
+def dkw_epsilon(n: float, alpha: float) -> float:
+    """Half-width ``eps = sqrt(ln(2/alpha) / (2 n))`` of the DKW band with Massart's constant:
+    ``P(sup |F_n - F| > eps) <= alpha`` (Massart 1990, module docstring)."""
+    a = real_value(alpha, "alpha")
+    if not 0 < a < 1:
+        raise ValueError(f"alpha must lie in (0, 1); got {alpha!r}")
+    if not n > 0:
+        raise ValueError(f"the number of samples must be positive; got {n!r}")
+    return math.sqrt(math.log(2.0 / a) / (2.0 * n))
+
+
+def as_samples(samples, name: str) -> np.ndarray:
+    try:
+        x = np.asarray(samples, dtype=float).ravel()
+    except (TypeError, ValueError):
+        raise TypeError(f"{name} must be an array of real numbers") from None
+    if x.size == 0:
+        raise ValueError(f"{name} must hold at least one value")
+    if not np.all(np.isfinite(x)):
+        k = int(np.flatnonzero(~np.isfinite(x))[0])
+        raise ValueError(f"{name} must be finite; {name}[{k}] = {x[k]!r}")
+    return x
+
+
+def _indices(x: np.ndarray, step: float, origin: float, rule: str) -> np.ndarray:
+    v = (x - origin) / step
+    if rule == "nearest":
+        k = np.floor(v + 0.5)
+    elif rule == "down":
+        k = np.floor(v + SNAP)
+    else:
+        k = np.ceil(v - SNAP)
+    return k
+
+
+def _weights(counts, size: int) -> np.ndarray | None:
+    if counts is None:
+        return None
+    w = as_samples(counts, "counts")
+    if w.size != size:
+        raise ValueError(f"counts must have one entry per sample ({size}); got {w.size}")
+    if np.any(w < 0):
+        raise ValueError("counts must be non-negative")
+    if not w.sum() > 0:
+        raise ValueError("counts must not all be zero")
+    return w
+
+
+def band_inputs(samples, step, origin, counts, alpha, rule):
+    """Checked samples ``x``, weights ``w`` (None: one each), step ``h``, origin ``o``, sample
+    size ``n``, DKW half-width ``eps`` and the lattice index ``k`` of every sample."""
+    x = as_samples(samples, "samples")
+    h = real_value(step, "step")
+    if not h > 0:
+        raise ValueError(f"step must be positive; got {step!r}")
+    o = real_value(origin, "origin")
+    if rule not in RULES:
+        raise ValueError(f"rule must be one of {', '.join(RULES)}; got {rule!r}")
+    w = _weights(counts, x.size)
+    n = float(x.size if w is None else w.sum())
+    eps = dkw_epsilon(n, alpha)
+    k = _indices(x, h, o, rule)
+    if k.min() < 0:
+        j = int(np.argmin(k))
+        raise ValueError(f"samples must lie on or above the lattice origin {o!r}; "
+                         f"samples[{j}] = {x[j]!r}")
+    return x, w, h, o, n, eps, k
+
+
+def binned(k: np.ndarray, w: np.ndarray | None, n: float, top: int) -> np.ndarray:
+    """Masses ``counts / n`` of the lattice points ``0..top`` (budget-checked)."""
+    check_allocation(8 * (top + 2), "empirical lattice of the samples")
+    return np.bincount(k.astype(np.int64), weights=w, minlength=top + 1) / n
+
+
+def band_ledger(eps: float, size: int, moment: float, summed: int | None = None) -> ErrorLedger:
+    """The ledger of a binned sample (module docstring of :mod:`polyconv.dist.samples`): point
+    ``2 eps``, l1 2, cumulative ``eps`` plus the rounding of cumulative sums over ``summed``
+    binned points (default ``size``), the first moment ``moment`` of what lies beyond the
+    data."""
+    u = 2.0 ** -53
+    cum = min(eps + 4 * u * (1 + math.log2((size if summed is None else summed) + 1)), 1.0)
+    return ErrorLedger(min(2 * eps + 4 * u, 1.0), 2.0, 0.0, size, moment, cum)
+
+
+def band_law(samples, *, step, origin=0.0, counts=None, alpha=0.05, rule="nearest", upper=None):
+    """The binned empirical law without a fitted tail: ``(pmf, h, o, ledger, n, eps, largest)``.
+
+    ``upper`` (a known largest possible value) bounds the first moment of the mass the band
+    allows beyond the data, ``(eps + cumulative) max(|upper|, |origin|)``; without it that moment
+    is unknown (infinite) and means are refused.
+    """
+    x, w, h, o, n, eps, k = band_inputs(samples, step, origin, counts, alpha, rule)
+    pmf = binned(k, w, n, int(k.max()))
+    moment = math.inf
+    if upper is not None:
+        top_value = real_value(upper, "upper")
+        if top_value < float(x.max()):
+            raise ValueError(f"upper must be at least the largest sample {x.max()!r}; "
+                             f"got {upper!r}")
+        cum = band_ledger(eps, pmf.size, 0.0).cumulative
+        moment = min(eps + cum, 1.0) * max(abs(top_value), abs(o))
+    return np.minimum(pmf, 1.0), h, o, band_ledger(eps, pmf.size, moment), n, eps, float(x.max())
