@@ -59,9 +59,10 @@ def fft_relative_error(n_fft: int) -> float:
 def fft_product_bound(norm_a: float, norm_b: float, n_fft: int) -> float:
     """Max abs error of any coefficient of a float FFT product (Percival 2003).
 
-    Delegates to :func:`polyconv.numerics.bounds.fft_error_bound` (exact rational evaluation, pocketfft's
-    measured twiddle error) at the level count :func:`polyconv.numerics.bounds.mixed_radix_levels_length`
-    charges for a length-``n_fft`` transform.
+    Delegates to :func:`polyconv.numerics.bounds.fft_error_bound` (exact rational evaluation,
+    pocketfft's measured twiddle error) at the level count
+    :func:`polyconv.numerics.bounds.mixed_radix_levels_length` charges for a length-``n_fft``
+    transform.
     """
     return bounds.fft_error_bound(float(norm_a), float(norm_b),
                                   bounds.mixed_radix_levels_length(int(n_fft)))
