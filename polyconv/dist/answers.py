@@ -145,8 +145,7 @@ class LatticeAnswers:
         if k >= n:
             value = math.nan
         else:
-            value = float(self._origin + self._step * k + br.stop_loss_value(
-                np.asarray(self._origin + self._step * k)) / (1 - p))
+            value = br.tvar_value(p, k)
         low, high = br.tvar_range(p)
         return self._refuse_or_keep(value, low, high, rtol, risk.DEFAULT_RTOL,
                                     f"TVaR at p={p!r}", stacklevel)

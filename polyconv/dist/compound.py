@@ -125,7 +125,20 @@ def compound(counts, severity: Lattice, *, method: str = "auto", size: int | Non
             + res.aliasing_floor
     g = np.minimum(g, 1.0)
     ledger = compound_ledger(counts, law, severity, f, g, r_point, r_l1, errs)
-    return Lattice._make(g, severity.step, 0.0, ledger)
+    return Lattice._make(g, severity.step, 0.0, ledger, _profile(errs, severity, counts, law))
+
+
+def _profile(errs: np.ndarray, severity: Lattice, counts, law: CountsLaw) -> np.ndarray:
+    """Per-point error bounds of a compound: the route's own (``errs``) plus the severity's
+    carried per-point error ``d P_N'(1 + l)`` (:func:`compound_ledger`), rounded up."""
+    e = severity.errors
+    carried = 0.0
+    if e.l1 > 0:
+        delta = max(e.l1, 1e-8)
+        slope = (math.expm1(_log_pgf_above_one(law, 2 * delta))
+                 - math.expm1(_log_pgf_above_one(law, delta))) / delta * (1 + 1e-6)
+        carried = e.point * max(slope, float(counts.mean()))
+    return np.asarray(errs, dtype=float) * (1 + 4 * _U) + carried
 
 
 def _grid_size(law: CountsLaw, f: np.ndarray, size: int | None) -> int:

@@ -36,6 +36,19 @@ _U = UNIT_ROUNDOFF
 UNIT_ROUNDOFF_LONG = float(np.finfo(np.longdouble).eps) / 2
 """Unit roundoff of longdouble, in which the cumulative sums run."""
 _UL = UNIT_ROUNDOFF_LONG
+_L = np.longdouble
+
+
+def _down(x) -> float:
+    """The largest float at or below the longdouble ``x``."""
+    f = float(x)
+    return float(np.nextafter(f, -math.inf)) if _L(f) > x else f
+
+
+def _up(x) -> float:
+    """The smallest float at or above the longdouble ``x``."""
+    f = float(x)
+    return float(np.nextafter(f, math.inf)) if _L(f) < x else f
 
 
 class ExpectationBounds:
@@ -90,31 +103,60 @@ class ExpectationBounds:
         return self.ledger.truncated_moment
 
     def _sl_arrays(self):
-        """Stop-loss at every lattice point ``d = x_k``: own value and certified range."""
+        """Stop-loss at every lattice point ``d = x_k``, in longdouble: own value ``h T_k``
+        (``E[(X - x_k)+] = h sum_{j > k} (j - k) p_j = h T_k``) and certified range (the
+        on-grid error ``h SB_{k+1}`` by summation by parts, the truncated part's terms)."""
         if self._sl is None:
-            d = self.o + self.h * np.arange(self.n)
-            lo, hi = self.stop_loss_range(d)
-            self._sl = (self.h * self.t[: self.n], lo, hi)
+            n, h = self.n, self.h
+            k = np.arange(n)
+            t_long = self.t_long[:n]
+            value = _L(h) * t_long
+            rel = (2 * (n - k) + 6) * _UL  # two longdouble cumulative sums and one product
+            err = _L(h) * self.SB[1: n + 1].astype(_L) * _L(1 + (n + 6) * _U)
+            d = self.o + h * k  # float points: within u |d| of the exact x_k
+            moved = 2 * _U * np.abs(d)
+            x_from = self._x_from_low()
+            trunc_low = np.zeros(n) if self.t_low <= 0 else np.maximum(
+                self.t_low * (1 - 4 * _U) * (np.maximum(x_from - d, 0.0) - moved), 0.0)
+            trunc_high = self._truncated_excess_high(d, x_from)
+            if self.t_high > 0:
+                trunc_high = trunc_high * (1 + 4 * _U) + self.t_high * moved
+            lo = np.maximum(value * (1 - rel) - err, 0.0) + trunc_low.astype(_L)
+            hi = value * (1 + rel) + err + np.asarray(trunc_high, dtype=_L)
+            self._sl = (value, lo, hi)
         return self._sl
 
     # -- TVaR -------------------------------------------------------------------------------
+    def _points_long(self) -> tuple[np.ndarray, np.ndarray]:
+        """``x_k = origin + step k`` in longdouble and a bound of their rounding."""
+        k = np.arange(self.n)
+        x = _L(self.o) + _L(self.h) * k.astype(_L)
+        return x, 2 * _UL * (abs(self.o) + self.h * k.astype(float)) + 1e-4930
+
+    def tvar_value(self, p: float, k: int) -> float:
+        """The lattice's own ``TVaR_p = x_k + E[(X - x_k)+] / (1 - p)`` at its VaR index
+        ``k``, evaluated in longdouble and rounded once."""
+        q = _L(1) - _L(p)
+        return float(_L(self.o) + _L(self.h) * _L(k) + _L(self.h) * self.t_long[k] / q)
+
     def tvar_range(self, p: float) -> tuple[float, float]:
-        """Certified ``(low, high)`` of the exact ``TVaR_p`` (module docstring)."""
+        """Certified ``(low, high)`` of the exact ``TVaR_p`` (module docstring), computed in
+        longdouble with every rounding charged (``1 - p`` and the division: ``u_long`` each) and
+        rounded outward to float once."""
         lo_k, hi_k = self.quantile_range(np.asarray(p))
         lo_k, hi_k = int(lo_k), int(hi_k)
         _, sl_lo, sl_hi = self._sl_arrays()
-        x = self.o + self.h * np.arange(self.n)
-        top = min(hi_k, self.n - 1)
+        x, x_err = self._points_long()
+        q = _L(1) - _L(p)
+        low_all = x - x_err + sl_lo / q * _L(1 - 6 * _UL)
+        high_all = x + x_err + sl_hi / q * _L(1 + 6 * _UL)
         beyond = (self.o + self.h * self.n) - 4 * _U * (abs(self.o) + self.h * self.n)
+        high = _up(np.min(high_all))
         if lo_k >= self.n:  # the quantile lies beyond the grid for every model in range
-            return beyond, float(np.min(x + sl_hi / (1 - p)))
-        seg = slice(lo_k, top + 1)
-        # float rounding of x_k = origin + step k and of x + SL / (1 - p): a few ulps
-        slack = 6 * _U * (np.abs(x) + np.abs(self.o) + (sl_hi / (1 - p)))
-        low = float(np.min(x[seg] + sl_lo[seg] / (1 - p) - slack[seg]))
+            return beyond, high
+        low = _down(np.min(low_all[lo_k: min(hi_k, self.n - 1) + 1]))
         if hi_k >= self.n:
             low = min(low, beyond)
-        high = float(np.min(x + sl_hi / (1 - p) + slack))
         return low, max(high, low)
 
     # -- moments ----------------------------------------------------------------------------

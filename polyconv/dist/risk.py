@@ -62,20 +62,21 @@ _U = UNIT_ROUNDOFF
 _UL = UNIT_ROUNDOFF_LONG
 
 
-def tail_sums(pmf: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def tail_sums(pmf: np.ndarray, long: bool = False) -> tuple[np.ndarray, np.ndarray]:
     """``S_m = sum_{k>=m} p_k`` and ``T_m = sum_{k>=m} (k - m) p_k`` for ``m = 0..n``.
 
     Built from the right by ``T_m = T_{m+1} + S_{m+1}``: sums of non-negative terms, no
     cancellation (so far tails keep their relative accuracy).
     Sums run in longdouble and are rounded once to float64 (so each ``S_m`` is within
     ``u + (n - m) u_long`` of the exact sum, relative; ``T_m`` within ``u + 2 n u_long``).
+    ``long=True`` returns the longdouble sums (without the final ``u``).
     """
     n = pmf.size
     s = np.zeros(n + 1, dtype=np.longdouble)
     s[:n] = np.cumsum(np.asarray(pmf, dtype=np.longdouble)[::-1])[::-1]
     t = np.zeros(n + 1, dtype=np.longdouble)
     t[:n] = np.cumsum(s[1:][::-1])[::-1]
-    return s.astype(float), t.astype(float)
+    return (s, t) if long else (s.astype(float), t.astype(float))
 
 
 class Bracketer(ExpectationBounds):
@@ -89,11 +90,17 @@ class Bracketer(ExpectationBounds):
         The lattice.
     ledger : ErrorLedger
         Its error ledger.
+    profile : numpy.ndarray, optional
+        Per-point bounds ``|e_k| <= profile_k`` when the computation knows them; the running
+        sums of the profile bound the cumulative errors where they beat ``(k + 1) point`` and
+        ``l1`` (in the tail of a compound, where the pmf and its errors decay).
     """
 
-    def __init__(self, pmf: np.ndarray, step: float, origin: float, ledger: ErrorLedger):
+    def __init__(self, pmf: np.ndarray, step: float, origin: float, ledger: ErrorLedger,
+                 profile: np.ndarray | None = None):
         n = pmf.size
         self.n, self.h, self.o, self.ledger, self.pmf = n, step, origin, ledger, pmf
+        self.profile = profile
         self.tf = ledger.truncated_from
         self._sl = None
 
@@ -104,8 +111,18 @@ class Bracketer(ExpectationBounds):
         return np.cumsum(np.asarray(self.pmf, dtype=np.longdouble)).astype(float)
 
     @cached_property
+    def _tails_long(self) -> tuple[np.ndarray, np.ndarray]:
+        return tail_sums(self.pmf, long=True)
+
+    @cached_property
     def _tails(self) -> tuple[np.ndarray, np.ndarray]:
-        return tail_sums(self.pmf)
+        s, t = self._tails_long
+        return s.astype(float), t.astype(float)
+
+    @property
+    def t_long(self) -> np.ndarray:
+        """``T_m`` in longdouble (before rounding to float)."""
+        return self._tails_long[1]
 
     @property
     def s(self) -> np.ndarray:
@@ -142,13 +159,22 @@ class Bracketer(ExpectationBounds):
     def C(self) -> np.ndarray:  # noqa: N802 (the name of the bound in the module docstring)
         """``|sum_{j <= k} e_j|`` bound at each ``k``."""
         k = np.arange(self.n)
-        return np.minimum(cum_bound(self.ledger), (k + 1) * self.ledger.point)
+        out = np.minimum(cum_bound(self.ledger), (k + 1) * self.ledger.point)
+        if self.profile is not None:  # float running sum of non-negative terms: (k + 2) u
+            run = np.cumsum(self.profile) * (1 + (k + 2) * _U)
+            out = np.minimum(out, run)
+        return out
 
     @cached_property
     def B(self) -> np.ndarray:  # noqa: N802
         """Bound of ``sum_{k >= j} |e_k|``, ``j = 0..n``."""
         j = np.arange(self.n + 1)
-        return np.minimum(self.ledger.l1, (self.n - j) * self.ledger.point)
+        out = np.minimum(self.ledger.l1, (self.n - j) * self.ledger.point)
+        if self.profile is not None:
+            run = np.zeros(self.n + 1)
+            run[: self.n] = np.cumsum(self.profile[::-1])[::-1]
+            out = np.minimum(out, run * (1 + (self.n - j + 2) * _U))
+        return out
 
     @cached_property
     def Bt(self) -> np.ndarray:  # noqa: N802
