@@ -207,13 +207,14 @@ def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g:
         moment = math.inf
     else:
         k = accuracy.float_range(size)
-        on_grid = h * float(np.dot(k, g))  # a float dot: within (size + 2) u (Higham 3.1)
+        # longdouble sum of non-negative terms (within (size + 2) u_long), rounded once (u)
+        on_grid = h * float(np.sum(k.astype(np.longdouble) * g.astype(np.longdouble)))
         j = k[1:]
         # sum_k x_k |e_k|: the route's per-point bounds; the severity's errors carried through
         # by summation by parts on their cumulative bound
         err = h * float(np.dot(k, errs)) + h * float(np.sum(np.minimum(
             min(l1_in, 2 * cum_in), (size - j) * point_in)))
-        err = err * (1 + 4 * _U) + ((size + 2) * _U + 4 * _U) * on_grid
+        err = err * (1 + 4 * _U) + ((size + 2) * _UL + 4 * _U) * on_grid
         total = mean_n * sev_mean_high * (1 + 4 * _U)
         if law.tail_mass > 0:
             total += _count_tail_moment(counts, law) * sev_mean_high
