@@ -104,6 +104,14 @@ def compound(counts, severity: Lattice, *, method: str = "auto", size: int | Non
             raise ValueError("give either size or goal, not both")
         from .goals import compound_for_goal
         return compound_for_goal(counts, severity, goal, method=method)
+    return compound_lattice(counts, law, severity, method, size)
+
+
+def compound_lattice(counts, law: CountsLaw, severity: Lattice, method: str, size: int | None,
+                     second_moment: bool = True) -> Lattice:
+    """:func:`compound` after its argument checks (``law = classify(counts)``);
+    ``second_moment=False`` skips the truncated second-moment bound (:func:`compound_ledger`),
+    for callers that ask no standard deviation."""
     f = _severity_vector(severity)
     size = _grid_size(law, f, size)
     check_transform_budget(max(size, f.size), f"size={size} (compound points)")
@@ -124,7 +132,7 @@ def compound(counts, severity: Lattice, *, method: str = "auto", size: int | Non
         errs = res.rounding_floor * np.exp(res.theta * (np.arange(size) - (size - 1))) \
             + res.aliasing_floor
     g = np.minimum(g, 1.0)
-    ledger = compound_ledger(counts, law, severity, f, g, r_point, r_l1, errs)
+    ledger = compound_ledger(counts, law, severity, f, g, r_point, r_l1, errs, second_moment)
     return Lattice._make(g, severity.step, 0.0, ledger, _profile(errs, severity, counts, law))
 
 
@@ -160,7 +168,8 @@ def _log_pgf_above_one(law: CountsLaw, delta: float) -> float:
 
 
 def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g: np.ndarray,
-                    r_point: float, r_l1: float, errs: np.ndarray) -> ErrorLedger:
+                    r_point: float, r_l1: float, errs: np.ndarray, second_moment: bool = True
+                    ) -> ErrorLedger:
     """Error ledger of a compound computed from the severity vector ``f`` (route rounding
     ``r_point``, ``r_l1``).
 
@@ -175,6 +184,8 @@ def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g:
       ``E[S] - sum_{k < size} x_k q_k`` with ``E[S] = E[N] E[X]`` (Wald's identity), ``E[X]``
       at most the severity's certified mean bound: this is what keeps TVaR and stop-loss finite
       on heavy tails.
+    * ``second_moment=False`` leaves the truncated part's second moment unknown (``inf``: the
+      standard deviation is then refused), for callers that need no std.
     """
     e = severity.errors
     h = severity.step
@@ -219,8 +230,8 @@ def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g:
         if law.tail_mass > 0:
             total += _count_tail_moment(counts, law) * sev_mean_high
         moment = max(total - (on_grid - err), 1e-300)
-    moment2 = _truncated_second_moment(counts, law, severity, br, g, errs, h,
-                                       (l1_in, cum_in, point_in), sev_mean_high)
+    moment2 = math.inf if not second_moment else _truncated_second_moment(
+        counts, law, severity, br, g, errs, h, (l1_in, cum_in, point_in), sev_mean_high)
     return ErrorLedger(point, l1, 0.0, tf, moment, cum, moment2)
 
 

@@ -372,7 +372,10 @@ def make_lattice(pmf: np.ndarray, h: float, origin: float, *, point: float, l1: 
         from .ledger import ErrorLedger
     except ImportError:  # before the error-model API: the per-point floor only
         return Lattice(pmf, h, origin, trust_floor=point)
-    truncated = max(0.0, 1.0 - math.fsum(pmf))
+    # one longdouble sum (within (n + 2) u_long of the exact sum, counted in l1)
+    total = float(np.sum(np.asarray(pmf, dtype=np.longdouble)))
+    l1 = l1 + (pmf.size + 2) * float(np.finfo(np.longdouble).eps) * max(total, 1.0)
+    truncated = max(0.0, 1.0 - total)
     ledger = ErrorLedger(point, min(l1, 2.0), truncated, pmf.size,
                          moment if truncated > 0 else 0.0,
                          truncated_moment2=moment2 if truncated > 0 else 0.0)

@@ -136,8 +136,11 @@ class Bracketer(ExpectationBounds):
 
     @cached_property
     def mass(self) -> float:
-        """Computed mass on the lattice."""
-        return float(self.s[0])
+        """Computed mass on the lattice (one longdouble sum, rounded once; the tail sums give
+        the same value when they are built anyway)."""
+        if "_tails_long" in self.__dict__:
+            return float(self.s[0])
+        return float(np.sum(np.asarray(self.pmf, dtype=np.longdouble)))
 
     @cached_property
     def _t_bounds(self) -> tuple[float, float]:

@@ -116,7 +116,9 @@ def _tail_excess(levels, ends, d: float) -> tuple[float, float, float]:
         if i + 1 < len(levels) and start >= ends[i + 1]:
             continue
         lo_b, hi_b = _quiet(down, "stop_loss", start), _quiet(up, "stop_loss", start)
-        value += 0.5 * (lo_b.value + hi_b.value)
+        # the middle of the certified range (the coarse lattices' own values leave out their
+        # truncated parts, so they may lie below it)
+        value += 0.5 * (lo_b.low + hi_b.high)
         low += lo_b.low
         high += hi_b.high
     return value, low, high
@@ -215,7 +217,8 @@ def spliced_aggregate(counts, law, *, goal: Goal, step: float | None = None,
         its range misses the goal after :data:`RETRIES` refinements), the grids used and the
         fine compound.  Model output, not advice (see :mod:`polyconv.dist`).
     """
-    from .compound import compound
+    from .compound import compound_lattice
+    from .counts import classify
     from .from_law import lattice_from_law
 
     if not isinstance(goal, Goal):
@@ -224,6 +227,13 @@ def spliced_aggregate(counts, law, *, goal: Goal, step: float | None = None,
     if rule == "moments":
         raise ValueError("rule must be 'nearest', 'down' or 'up' for a spliced grid; got "
                          "'moments'")
+    if method not in ("auto", "fft", "recursion"):
+        raise ValueError(f"method must be 'auto', 'fft' or 'recursion'; got {method!r}")
+    count_law = classify(counts)
+
+    def compound(sev, size):  # no std is asked: skip the second-moment bound
+        return compound_lattice(counts, count_law, sev, method, size, second_moment=False)
+
     pilot = pilot_for(counts, law)
     if step is None:
         step = pilot_step(pilot, goal)
@@ -236,11 +246,11 @@ def spliced_aggregate(counts, law, *, goal: Goal, step: float | None = None,
         return SplicedAnswers(answers, h, len(fine), (), fine)
     for attempt in range(RETRIES + 1):
         sev = lattice_from_law(law, step=h, size=n_f, rule=rule, check=attempt == 0)
-        fine = compound(counts, sev, method=method, size=n_f)
+        fine = compound(sev, n_f)
         levels, ends = [], [h * n_f]
         for i, (k, n) in enumerate(plan):
             down_sev, up_sev = coarse_pair(law, rule, h, k, n)
-            pair = [compound(counts, x, method=method, size=n) for x in (down_sev, up_sev)]
+            pair = [compound(x, n) for x in (down_sev, up_sev)]
             if i + 1 < len(plan):
                 pair = [capped(x) for x in pair]
             levels.append(tuple(pair))
