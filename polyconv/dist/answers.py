@@ -10,6 +10,7 @@ Caution: a model output, not advice; see the package docstring of :mod:`polyconv
 from __future__ import annotations
 
 import math
+import numbers
 import warnings
 
 import numpy as np
@@ -22,6 +23,11 @@ from .queries import _real_or_inf
 
 MEASURES = ("cdf", "sf", "quantile", "var", "tvar", "stop_loss", "mean", "std")
 """Measures :meth:`Lattice.bounded` answers."""
+
+ARGUMENT = {"cdf": "the point x", "sf": "the point x", "quantile": "the level p in (0, 1]",
+            "var": "the level p in (0, 1)", "tvar": "the level p in (0, 1)",
+            "stop_loss": "the retention d"}
+"""What ``arg`` of :meth:`Lattice.bounded` is, per measure (for error messages)."""
 
 _real = risk.real_value
 
@@ -65,14 +71,15 @@ class LatticeAnswers:
             if arg is not None:
                 raise TypeError(f"bounded({measure!r}) takes no argument; got {arg!r}")
             return self._bounded_moment(measure, rtol)
-        if arg is None:
-            raise TypeError(f"bounded({measure!r}, arg) needs an argument")
+        _check_arg(measure, arg)
+        if isinstance(arg, np.ndarray):
+            arg = arg.item()
         if measure in ("cdf", "sf"):
             return self._bounded_probability(measure, arg, rtol)
         if measure in ("quantile", "var"):
             return self._bounded_quantile(measure, arg, rtol)
         if measure == "tvar":
-            risk.check_level(arg)
+            risk.check_level(arg, "arg (the level p of bounded('tvar', arg))")
             return self._bounded_tvar(float(arg), rtol, 3)
         return self._bounded_stop_loss(arg, rtol, 3)
 
@@ -111,7 +118,8 @@ class LatticeAnswers:
         return Bounded(value, low, high, False, "")
 
     def _bounded_quantile(self, measure, p, rtol) -> Bounded:
-        arr = risk.check_level(p, allow_one=measure == "quantile")
+        arr = risk.check_level(p, f"arg (the level p of bounded({measure!r}, arg))",
+                               allow_one=measure == "quantile")
         if arr.ndim != 0:
             raise TypeError(f"p must be a scalar level; got {p!r}")
         with warnings.catch_warnings():
@@ -137,8 +145,7 @@ class LatticeAnswers:
         if k >= n:
             value = math.nan
         else:
-            value = float(self._origin + self._step * k + br.stop_loss_value(
-                np.asarray(self._origin + self._step * k)) / (1 - p))
+            value = br.tvar_value(p, k)
         low, high = br.tvar_range(p)
         return self._refuse_or_keep(value, low, high, rtol, risk.DEFAULT_RTOL,
                                     f"TVaR at p={p!r}", stacklevel)
@@ -179,3 +186,19 @@ class LatticeAnswers:
         value = self._std()
         return self._refuse_or_keep(value, h * math.sqrt(var_lo), h * math.sqrt(var_hi), rtol,
                                     risk.DEFAULT_RTOL, "std", 3)
+
+
+def _check_arg(measure: str, arg) -> None:
+    """TypeError naming ``arg``, the measure and what was expected unless ``arg`` is one real
+    number (a Python or numpy scalar; booleans and strings refused)."""
+    what = ARGUMENT[measure]
+    if arg is None:
+        raise TypeError(f"bounded({measure!r}, arg): arg is missing; expected {what}, a real "
+                        "number")
+    scalar = isinstance(arg, numbers.Real) or (isinstance(arg, np.ndarray) and arg.ndim == 0
+                                               and arg.dtype.kind in "iuf")
+    if isinstance(arg, (bool, np.bool_)) or not scalar:
+        kind = "an array" if isinstance(arg, (list, tuple, np.ndarray)) else \
+            type(arg).__name__
+        raise TypeError(f"bounded({measure!r}, arg): arg must be {what}, one real number; got "
+                        f"{kind} {arg!r}")

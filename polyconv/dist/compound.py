@@ -105,6 +105,14 @@ def compound(counts, severity: Lattice, *, method: str = "auto", size: int | Non
         from .goals import compound_for_goal
         return compound_for_goal(counts, severity, goal, lambda s: compound(
             counts, severity, method=method, size=s))
+    return compound_lattice(counts, law, severity, method, size)
+
+
+def compound_lattice(counts, law: CountsLaw, severity: Lattice, method: str, size: int | None,
+                     second_moment: bool = True) -> Lattice:
+    """:func:`compound` after its argument checks (``law = classify(counts)``);
+    ``second_moment=False`` skips the truncated second-moment bound (:func:`compound_ledger`),
+    for callers that ask no standard deviation."""
     f = _severity_vector(severity)
     size = _grid_size(law, f, size)
     check_transform_budget(max(size, f.size), f"size={size} (compound points)")
@@ -125,8 +133,21 @@ def compound(counts, severity: Lattice, *, method: str = "auto", size: int | Non
         errs = res.rounding_floor * np.exp(res.theta * (np.arange(size) - (size - 1))) \
             + res.aliasing_floor
     g = np.minimum(g, 1.0)
-    ledger = compound_ledger(counts, law, severity, f, g, r_point, r_l1, errs)
-    return Lattice._make(g, severity.step, 0.0, ledger)
+    ledger = compound_ledger(counts, law, severity, f, g, r_point, r_l1, errs, second_moment)
+    return Lattice._make(g, severity.step, 0.0, ledger, _profile(errs, severity, counts, law))
+
+
+def _profile(errs: np.ndarray, severity: Lattice, counts, law: CountsLaw) -> np.ndarray:
+    """Per-point error bounds of a compound: the route's own (``errs``) plus the severity's
+    carried per-point error ``d P_N'(1 + l)`` (:func:`compound_ledger`), rounded up."""
+    e = severity.errors
+    carried = 0.0
+    if e.l1 > 0:
+        delta = max(e.l1, 1e-8)
+        slope = (math.expm1(_log_pgf_above_one(law, 2 * delta))
+                 - math.expm1(_log_pgf_above_one(law, delta))) / delta * (1 + 1e-6)
+        carried = e.point * max(slope, float(counts.mean()))
+    return np.asarray(errs, dtype=float) * (1 + 4 * _U) + carried
 
 
 def _grid_size(law: CountsLaw, f: np.ndarray, size: int | None) -> int:
@@ -148,7 +169,8 @@ def _log_pgf_above_one(law: CountsLaw, delta: float) -> float:
 
 
 def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g: np.ndarray,
-                    r_point: float, r_l1: float, errs: np.ndarray) -> ErrorLedger:
+                    r_point: float, r_l1: float, errs: np.ndarray, second_moment: bool = True
+                    ) -> ErrorLedger:
     """Error ledger of a compound computed from the severity vector ``f`` (route rounding
     ``r_point``, ``r_l1``).
 
@@ -163,6 +185,8 @@ def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g:
       ``E[S] - sum_{k < size} x_k q_k`` with ``E[S] = E[N] E[X]`` (Wald's identity), ``E[X]``
       at most the severity's certified mean bound: this is what keeps TVaR and stop-loss finite
       on heavy tails.
+    * ``second_moment=False`` leaves the truncated part's second moment unknown (``inf``: the
+      standard deviation is then refused), for callers that need no std.
     """
     e = severity.errors
     h = severity.step
@@ -195,19 +219,20 @@ def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g:
         moment = math.inf
     else:
         k = accuracy.float_range(size)
-        on_grid = h * float(np.dot(k, g))  # a float dot: within (size + 2) u (Higham 3.1)
+        # longdouble sum of non-negative terms (within (size + 2) u_long), rounded once (u)
+        on_grid = h * float(np.sum(k.astype(np.longdouble) * g.astype(np.longdouble)))
         j = k[1:]
         # sum_k x_k |e_k|: the route's per-point bounds; the severity's errors carried through
         # by summation by parts on their cumulative bound
         err = h * float(np.dot(k, errs)) + h * float(np.sum(np.minimum(
             min(l1_in, 2 * cum_in), (size - j) * point_in)))
-        err = err * (1 + 4 * _U) + ((size + 2) * _U + 4 * _U) * on_grid
+        err = err * (1 + 4 * _U) + ((size + 2) * _UL + 4 * _U) * on_grid
         total = mean_n * sev_mean_high * (1 + 4 * _U)
         if law.tail_mass > 0:
             total += _count_tail_moment(counts, law) * sev_mean_high
         moment = max(total - (on_grid - err), 1e-300)
-    moment2 = _truncated_second_moment(counts, law, severity, br, g, errs, h,
-                                       (l1_in, cum_in, point_in), sev_mean_high)
+    moment2 = math.inf if not second_moment else _truncated_second_moment(
+        counts, law, severity, br, g, errs, h, (l1_in, cum_in, point_in), sev_mean_high)
     return ErrorLedger(point, l1, 0.0, tf, moment, cum, moment2)
 
 

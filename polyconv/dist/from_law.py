@@ -354,7 +354,10 @@ def law_ledger(pmf: np.ndarray, *, point: float, l1: float, moment: float,
     """The ledger of masses computed with per-point error ``point`` (``l1`` in all): the mass
     beyond the grid, ``1 - sum(pmf)``, with the bounds ``moment`` and ``moment2`` of its first
     and second moments."""
-    truncated = max(0.0, 1.0 - math.fsum(pmf))
+    # one longdouble sum (within (n + 2) u_long of the exact sum, counted in l1)
+    total = float(np.sum(np.asarray(pmf, dtype=np.longdouble)))
+    l1 = l1 + (pmf.size + 2) * float(np.finfo(np.longdouble).eps) * max(total, 1.0)
+    truncated = max(0.0, 1.0 - total)
     return ErrorLedger(point, min(l1, 2.0), truncated, pmf.size,
                        moment if truncated > 0 else 0.0,
                        truncated_moment2=moment2 if truncated > 0 else 0.0)

@@ -143,9 +143,13 @@ class Lattice(LatticeQueries, LatticeAnswers):
         object.__setattr__(self, "_cache", {})
 
     @classmethod
-    def _make(cls, pmf: np.ndarray, step: float, origin: float, ledger: ErrorLedger) -> Lattice:
+    def _make(cls, pmf: np.ndarray, step: float, origin: float, ledger: ErrorLedger,
+              profile: np.ndarray | None = None) -> Lattice:
         """Internal constructor for computed results: ``pmf`` already non-negative and finite;
-        ``truncated`` is set to ``1 - sum(pmf)`` (clipped at 0, the excess is in ``l1``)."""
+        ``truncated`` is set to ``1 - sum(pmf)`` (clipped at 0, the excess is in ``l1``).
+        ``profile``: optional per-point bounds ``|e_k| <= profile_k`` (a route that knows
+        them, e.g. a compound); the certified ranges use them where they beat the ledger's
+        scalar bounds (:class:`polyconv.dist.risk.Bracketer`).  Not carried by operations."""
         arr = np.clip(np.asarray(pmf, dtype=float), 0.0, 1.0)
         arr.flags.writeable = False
         total = float(np.sum(arr))
@@ -161,6 +165,10 @@ class Lattice(LatticeQueries, LatticeAnswers):
             ledger = ledger._replace(truncated_moment=0.0)
         out = cls.__new__(cls)
         out._init(arr, float(step), float(origin), ledger)
+        if profile is not None:
+            prof = np.asarray(profile, dtype=float)
+            if prof.shape == arr.shape and np.all(prof >= 0):
+                out._cache["profile"] = prof
         return out
 
     @classmethod
@@ -247,7 +255,7 @@ class Lattice(LatticeQueries, LatticeAnswers):
     def _br(self) -> risk.Bracketer:
         if "br" not in self._cache:
             self._cache["br"] = risk.Bracketer(self._pmf, self._step, self._origin,
-                                               self._ledger)
+                                               self._ledger, self._cache.get("profile"))
         return self._cache["br"]
 
     def _warn_truncated(self, what: str, relative_to: float = 1.0) -> None:

@@ -354,6 +354,18 @@ def test_bad_input_named():
     assert float(np.sum(m.pmf)) == pytest.approx(1.0, abs=1e-12)
     with pytest.raises(ValueError, match="measure"):
         x.bounded("median", 0.5)
+    # issue 11 item 5: a string arg names arg, the measure and what was expected
+    with pytest.raises(TypeError, match=r"bounded\('tvar', arg\): arg must be the level p"):
+        x.bounded("tvar", "1")
+    with pytest.raises(TypeError, match=r"bounded\('cdf', arg\): arg must be the point x"):
+        x.bounded("cdf", "1")
+    with pytest.raises(TypeError, match="arg is missing"):
+        x.bounded("stop_loss")
+    with pytest.raises(ValueError, match=r"arg \(the level p of bounded\('tvar', arg\)\)"):
+        x.bounded("tvar", 1)
+    # a numpy scalar is a real number: the same answer as the float (values 0 and 1 at 1.0:
+    # by hand, common practice)
+    assert x.bounded("stop_loss", np.array(1.0)).value == x.bounded("stop_loss", 1.0).value == 0
     with pytest.raises(TypeError, match="errors"):
         Lattice([1.0], errors=(0, 0, 0, 1, 0))
 
