@@ -22,6 +22,7 @@ from .choose import choose
 from .facts import integer_facts, normalise_integers
 from .plan import Plan, needed_entries
 from .prepare import check_budget, prepare
+from .small import tiny_product
 
 
 def convolve_prepared(a, b, *, mode: str = "full", method: str = "auto",
@@ -42,7 +43,13 @@ def convolve_prepared(a, b, *, mode: str = "full", method: str = "auto",
 
 def convolve(a, b, *, mode: str = "full", method: str = "auto", modulus: int | None = None,
              length: int | None = None, axis: int = -1) -> np.ndarray:
-    """:func:`polyconv.api.convolve` on in-memory arrays (no dask), for callers inside polyconv."""
+    """:func:`polyconv.api.convolve` on in-memory arrays (no dask), for callers inside polyconv.
+
+    Tiny plain integer products take the short path of :mod:`polyconv.pipeline.small` (same
+    values and dtype, no planning)."""
+    out = tiny_product(a, b, mode, method, modulus, length, axis)
+    if out is not None:
+        return out
     return convolve_prepared(a, b, mode=mode, method=method, modulus=modulus, length=length,
                              axis=axis)[0]
 
