@@ -135,6 +135,7 @@ def tables(p: int, n: int) -> tuple:
     return entry
 
 
+@lru_cache(maxsize=512)  # a modular power per prime and length: 3-5 us a call, once
 def _scale_factor(p: int, n: int) -> tuple[int, int]:
     """``f = 2^32 / n mod p`` (undoes Montgomery's ``R^-1`` and the inverse's ``n``) and its Shoup
     quotient."""

@@ -33,16 +33,27 @@ PYTHON_WORK = 24
 _INT64 = np.dtype(np.int64)
 
 
-def _values(x) -> list | None:
-    """``x`` as a list of Python ints, or None when it is not a plain 1-D integer operand."""
+def _operand(x) -> tuple | None:
+    """``(x, min, max)`` for a list of Python ints or a non-empty 1-D int64 array, else None."""
     if type(x) is list:
         for v in x:
             if type(v) is not int:
                 return None
-        return x
-    if type(x) is np.ndarray and x.ndim == 1 and x.dtype == _INT64:
-        return x.tolist()
+        return (x, min(x), max(x)) if x else None
+    if type(x) is np.ndarray and x.ndim == 1 and x.dtype == _INT64 and x.shape[0]:
+        return x, int(x.min()), int(x.max())
     return None
+
+
+def _reduced(x, m: int):
+    """Residues in ``[0, m)`` of a list or an int64 array (``m < 2^63`` for arrays)."""
+    if type(x) is list:
+        return [v % m for v in x]
+    return x % m if m < INT64_LIMIT else [v % m for v in x.tolist()]
+
+
+def _top(x) -> int:
+    return max(x) if type(x) is list else int(x.max())
 
 
 def _rounded(v: int) -> int:
@@ -55,30 +66,30 @@ def tiny_product(a, b, mode: str, method: str, modulus, length, axis) -> np.ndar
     if (method != "auto" or mode != "full" or length is not None or axis not in (-1, 0)
             or (modulus is not None and (type(modulus) is not int or modulus < 2))):
         return None
-    x = _values(a)
-    if x is None:
+    xa = _operand(a)
+    if xa is None:
         return None
-    y = _values(b)
-    if y is None:
+    yb = _operand(b)
+    if yb is None:
         return None
+    (x, lo_x, hi_x), (y, lo_y, hi_y) = xa, yb
     n1, n2 = len(x), len(y)
-    if not n1 or not n2 or n1 * n2 > TINY_WORK:
+    if n1 * n2 > TINY_WORK:
         return None
     m = modulus
-    lo_x, hi_x, lo_y, hi_y = min(x), max(x), min(y), max(y)
     if m is not None:
         if lo_x < 0 or hi_x >= m:
-            x = a = [v % m for v in x]
-            hi_x = max(x)
+            x = _reduced(x, m)
+            hi_x = _top(x)
         if lo_y < 0 or hi_y >= m:
-            y = b = [v % m for v in y]
-            hi_y = max(y)
+            y = _reduced(y, m)
+            hi_y = _top(y)
         max_x, max_y = hi_x, hi_y
     else:
         max_x, max_y = max(hi_x, -lo_x), max(hi_y, -lo_y)
     terms = min(n1, n2)
     if terms * max_x * max_y < INT64_LIMIT and n1 * n2 > PYTHON_WORK:
-        out = np.convolve(np.asarray(a, dtype=np.int64), np.asarray(b, dtype=np.int64))
+        out = np.convolve(np.asarray(x, dtype=np.int64), np.asarray(y, dtype=np.int64))
         if m is not None:
             if m < INT64_LIMIT:
                 out %= m
@@ -89,6 +100,10 @@ def tiny_product(a, b, mode: str, method: str, modulus, length, axis) -> np.ndar
         return out
     if n1 * n2 > 4 * PYTHON_WORK:
         return None  # wide and not tiny: the planned engines are faster
+    if type(x) is not list:
+        x = x.tolist()
+    if type(y) is not list:
+        y = y.tolist()
     out = [0] * (n1 + n2 - 1)
     for i, u in enumerate(x):
         if u:
