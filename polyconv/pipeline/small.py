@@ -14,13 +14,16 @@ ints; with a modulus, int64 residues when ``m <= 2^63``).
 The arithmetic is schoolbook summation (``c_k = sum_i a_i b_{k-i}``), in Python ints for the
 tiniest products and in ``numpy.convolve`` on int64 when no partial sum can leave int64
 (``min(n1, n2) max|a| max|b| < 2^63``; common practice, no source), which is what the
-direct-exact engine does at these sizes.
+direct-exact engine does at these sizes; wider products of int64 operands go to
+:mod:`polyconv.engines.ntt_compiled` (NTT primes in one kernel call, Garner's CRT) when its
+kernels are already loaded, else to the pipeline.
 """
 
 from __future__ import annotations
 
 import numpy as np
 
+from ..engines import jit_state, ntt_compiled
 from ..numerics.limits import INT64_LIMIT
 
 #: Products of at most this many multiply-adds take the short path (schoolbook costs ~1 ns per
@@ -54,6 +57,20 @@ def _reduced(x, m: int):
 
 def _top(x) -> int:
     return max(x) if type(x) is list else int(x.max())
+
+
+def _compiled(x, y, m: int | None, bound: int, top: int) -> np.ndarray | None:
+    """The product by one batched compiled call (Python ints out; int64 residues modulo
+    ``m < 2^62``) when the kernels are ready in this process and the operands are int64; None
+    otherwise (nothing here waits for a compiler)."""
+    if top >= INT64_LIMIT or jit_state.state() != "compiled" or (
+            m is not None and m >= ntt_compiled.KERNEL_MODULUS_LIMIT):
+        return None
+    x = np.asarray(x, dtype=np.int64)
+    y = np.asarray(y, dtype=np.int64)
+    if m is not None:
+        return ntt_compiled.convolve_mod(x, y, m)
+    return ntt_compiled.convolve_exact(x, y, bound, as_int64=False)
 
 
 def _rounded(v: int) -> int:
@@ -98,8 +115,8 @@ def tiny_product(a, b, mode: str, method: str, modulus, length, axis) -> np.ndar
         elif terms * _rounded(max_x) * _rounded(max_y) >= INT64_LIMIT:
             out = out.astype(object)
         return out
-    if n1 * n2 > 4 * PYTHON_WORK:
-        return None  # wide and not tiny: the planned engines are faster
+    if n1 * n2 > 4 * PYTHON_WORK:  # wide and not tiny: the compiled rows, if ready
+        return _compiled(x, y, m, terms * max_x * max_y, max(-lo_x, hi_x, -lo_y, hi_y))
     if type(x) is not list:
         x = x.tolist()
     if type(y) is not list:
