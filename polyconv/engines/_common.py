@@ -196,6 +196,9 @@ class Engine:
         Exact by construction: may recompute a product whose "check" failed.
     when_unavailable : str or None
         The engine that runs instead when :attr:`run` returns None.
+    batched : bool
+        Exact engines: :attr:`run` takes the whole batch at once, ``(rows, n1)`` and ``(rows,
+        n2)`` stacks, and returns ``(rows, count)`` (the runner otherwise calls it per row).
     remark : callable or None
         ``remark(chosen, offered) -> str``: what the plan's reason adds about this engine.
     """
@@ -211,3 +214,4 @@ class Engine:
     check_fallback: bool = False
     when_unavailable: str | None = None
     remark: Callable | None = None
+    batched: bool = False

@@ -12,6 +12,8 @@ whose transform kernels the NTT rows reuse.  Every kernel has one explicit signa
   ``n1 n2`` multiply-adds are cheaper than three transforms.  Residues are below ``p < 2^30``,
   so a product is below ``2^60`` and 15 of them can be summed in a uint64 before one reduction
   modulo ``p`` (common practice, no source).
+* :func:`primes_ntt`: one product modulo several primes in one call (the multi-prime engines'
+  short products, where a Python call per prime costs as much as its transforms).
 * :func:`rows_schoolbook_wrap`: exact integer products by schoolbook summation in wrapping
   64-bit arithmetic.  Arithmetic modulo ``2^64`` is a ring homomorphism of the integers, so every
   coefficient with ``|c| < 2^63`` comes out exact whatever the partial sums did (common practice,
@@ -96,3 +98,17 @@ def rows_schoolbook_wrap(a, b, out):
             top = min(n2, count - i)
             for j in range(top):
                 row[i + j] += x * br[j]
+
+
+@njit("void(int64[::1], int64[::1], uint64[::1], uint32[:, ::1], uint32[:, ::1], uint32[:, ::1], "
+      "uint32[:, ::1], uint64[::1], uint64[::1], uint64[::1], int64[:, ::1])", cache=CACHE)
+def primes_ntt(a, b, primes, tw, twq, itw, itwq, p_neg_inv, f, fq, out):
+    """``out[i] = (a * b mod primes[i])[:out.shape[1]]`` for every prime in one call: row ``i``
+    of the stacked tables (``tw.shape[1]``-point transforms, a power of two ``>= len(a) + len(b)
+    - 1``) and constants belong to ``primes[i]``; entries of ``a``, ``b`` any int64."""
+    n = tw.shape[1]
+    fa = np.empty(n, dtype=np.uint32)
+    fb = np.empty(n, dtype=np.uint32)
+    for i in range(primes.shape[0]):
+        product_mod_prime(a, b, primes[i], tw[i], twq[i], itw[i], itwq[i], p_neg_inv[i], f[i],
+                          fq[i], fa, fb, out[i])

@@ -135,6 +135,7 @@ def tables(p: int, n: int) -> tuple:
     return entry
 
 
+@lru_cache(maxsize=512)  # a modular power per prime and length: 3-5 us a call, once
 def _scale_factor(p: int, n: int) -> tuple[int, int]:
     """``f = 2^32 / n mod p`` (undoes Montgomery's ``R^-1`` and the inverse's ``n``) and its Shoup
     quotient."""
@@ -148,6 +149,24 @@ def _as_int64(x: np.ndarray) -> np.ndarray:
     return x if x.flags.writeable else x.copy()
 
 
+#: Products up to this transform length run all their primes in one kernel call, with the
+#: tables stacked (``k`` rows of ``n`` words each); longer ones call the kernel per prime.
+STACKED_TABLES_LENGTH = 2**12
+
+
+@lru_cache(maxsize=128)
+def _stacked_tables(primes: tuple[int, ...], n: int) -> tuple:
+    """The primes, their ``n``-point twiddle tables stacked row by row and their constants,
+    as :func:`polyconv.engines._kernels_batch.primes_ntt` takes them."""
+    rows = [tables(p, n) for p in primes]
+    scale = [_scale_factor(p, n) for p in primes]
+    stacked = [np.ascontiguousarray(np.stack([r[i][:n] for r in rows])) for i in range(4)]
+    return (np.array(primes, dtype=np.uint64), *stacked,
+            np.array([r[4] for r in rows], dtype=np.uint64),
+            np.array([f for f, _ in scale], dtype=np.uint64),
+            np.array([q for _, q in scale], dtype=np.uint64))
+
+
 def multiply_mod_primes(a: np.ndarray, b: np.ndarray, primes: tuple[int, ...],
                         count: int, out: np.ndarray | None = None) -> np.ndarray:
     """Rows ``(a * b mod p_i)[:count]`` for each prime, as a ``(len(primes), count)`` int64 array.
@@ -158,6 +177,11 @@ def multiply_mod_primes(a: np.ndarray, b: np.ndarray, primes: tuple[int, ...],
     k = _kernels()
     n1, n2 = a.shape[-1], b.shape[-1]
     n = transform_length(n1, n2)
+    if len(primes) > 1 and n <= STACKED_TABLES_LENGTH and a.ndim == 1 and b.ndim == 1 and (
+            out is None or out.flags.c_contiguous):
+        res = np.empty((len(primes), count), dtype=np.int64) if out is None else out
+        jit_state.kernels("_kernels_batch").primes_ntt(a, b, *_stacked_tables(primes, n), res)
+        return res
     fa = np.empty(n, dtype=np.uint32)
     fb = np.empty(n, dtype=np.uint32)
     res = np.empty((len(primes), count), dtype=np.int64) if out is None else out

@@ -18,6 +18,7 @@ from . import (
     fft,
     kronecker,
     ntt,
+    ntt_batch_plan,
     ntt_compiled_plan,
     overlap_add,
 )
@@ -34,6 +35,7 @@ REGISTRY: dict[str, Engine] = {e.name: e for e in (
     kronecker.ENGINE,
     ntt.ENGINE,
     ntt_compiled_plan.ENGINE,
+    ntt_batch_plan.ENGINE,
 )}
 
 FLOAT_ENGINES = tuple(name for name, e in REGISTRY.items() if not e.exact)

@@ -9,6 +9,9 @@ plan says.  :func:`convolve_prepared` is the whole pipeline for callers inside p
 
 from __future__ import annotations
 
+import dataclasses
+import math
+
 import numpy as np
 
 from ..engines.registry import REGISTRY
@@ -19,6 +22,7 @@ from .choose import choose
 from .facts import integer_facts, normalise_integers
 from .plan import Plan, needed_entries
 from .prepare import check_budget, prepare
+from .small import tiny_product
 
 
 def convolve_prepared(a, b, *, mode: str = "full", method: str = "auto",
@@ -39,7 +43,13 @@ def convolve_prepared(a, b, *, mode: str = "full", method: str = "auto",
 
 def convolve(a, b, *, mode: str = "full", method: str = "auto", modulus: int | None = None,
              length: int | None = None, axis: int = -1) -> np.ndarray:
-    """:func:`polyconv.api.convolve` on in-memory arrays (no dask), for callers inside polyconv."""
+    """:func:`polyconv.api.convolve` on in-memory arrays (no dask), for callers inside polyconv.
+
+    Tiny plain integer products take the short path of :mod:`polyconv.pipeline.small` (same
+    values and dtype, no planning)."""
+    out = tiny_product(a, b, mode, method, modulus, length, axis)
+    if out is not None:
+        return out
     return convolve_prepared(a, b, mode=mode, method=method, modulus=modulus, length=length,
                              axis=axis)[0]
 
@@ -112,6 +122,11 @@ def run_exact(the_plan: Plan, x: np.ndarray, y: np.ndarray) -> np.ndarray:
     else:
         keep = None
     dtype = np.int64 if the_plan.output_int64 else object
+    if REGISTRY[the_plan.engine].batched:
+        out = _batched_rows(the_plan, x, y, keep)
+        if out is not None:
+            return out.astype(dtype, copy=False)
+        the_plan = dataclasses.replace(the_plan, engine=REGISTRY[the_plan.engine].when_unavailable)
     if x.ndim == 1 and y.ndim == 1:
         return _reduce_row(_product_row(the_plan, x, y, keep), the_plan, dtype)
     batch = the_plan.batch_shape
@@ -122,6 +137,27 @@ def run_exact(the_plan: Plan, x: np.ndarray, y: np.ndarray) -> np.ndarray:
     for i in range(rows_x.shape[0]):
         out[i] = _reduce_row(_product_row(the_plan, rows_x[i], rows_y[i], keep), the_plan, dtype)
     return out.reshape(batch + (length,))
+
+
+def _batched_rows(the_plan: Plan, x: np.ndarray, y: np.ndarray,
+                  keep: int | None) -> np.ndarray | None:
+    """Every row's product in one call of a batched engine (None: its kernels did not load)."""
+    n1, n2 = the_plan.lengths
+    batch = the_plan.batch_shape
+    rows_x, rows_y = _stack_rows(x, n1, batch), _stack_rows(y, n2, batch)
+    out = REGISTRY[the_plan.engine].run(the_plan, rows_x, rows_y, keep)
+    if out is None:
+        return None
+    return out.reshape(batch + out.shape[-1:]) if batch else out[0]
+
+
+def _stack_rows(z: np.ndarray, n: int, batch: tuple) -> np.ndarray:
+    """``(rows, n)`` rows of an operand: its own rows, a single row (which the batched engines
+    broadcast), or its rows broadcast to the batch."""
+    lead = z.shape[:-1]
+    if lead == batch or math.prod(lead) == 1:
+        return z.reshape(-1, n)
+    return np.broadcast_to(z, batch + (n,)).reshape(-1, n)
 
 
 def _reduce_row(row: np.ndarray, the_plan: Plan, dtype) -> np.ndarray:
