@@ -56,7 +56,7 @@ from .delays import (
 )
 from .lattice import Lattice
 from .ledger import ErrorLedger, cum_bound, untruncated
-from .order_stats import _count_tails, kth_of
+from .order_stats import _count_tails, known_limit, kth_of
 from .retry import hedge, retry
 
 KINDS = ("in_sequence", "all_of", "first_of", "one_of", "k_of", "retry", "hedge")
@@ -358,11 +358,7 @@ class Network:
         lats = [leaves[n] for n in names]
         _check(lats, name)
         h, base, offs, length = _grid(lats)
-        limit = length
-        for o, d in zip(offs, lats, strict=True):
-            if not untruncated(d.errors):
-                limit = min(limit, o + d.errors.truncated_from)
-        limit = max(limit, 1)
+        limit = known_limit(lats, offs, length)
         cdfs: dict[str, tuple[np.ndarray, np.ndarray]] = {}
         for n, o, d in zip(names, offs, lats, strict=True):
             c, tail, r = _represented(d, o, length)

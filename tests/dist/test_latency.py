@@ -132,6 +132,19 @@ def test_kth_of_groups_both_count_directions():
         assert np.allclose(out.pmf, on(out, law), rtol=0, atol=1e-14)
 
 
+def test_kth_of_of_sampled_stages_keeps_all_mass():
+    # sampled stages of different reach: beyond the shortest one's largest sample its cdf is 1
+    # (the DKW band covers the rest), so the quorum is not cut there; reference: enumeration
+    rng = np.random.default_rng(11)
+    ss = [Lattice.from_samples(rng.integers(0, top, 400), step=1.0) for top in (5, 9, 14)]
+    out = kth_of(2, *ss)
+    law = enumerate_law(ss, lambda v: sorted(v)[1])
+    assert math.fsum(out.pmf) == pytest.approx(1.0, abs=1e-14)
+    assert np.allclose(out.pmf, on(out, law), rtol=0, atol=1e-15)
+    assert out.errors.cumulative >= 3 * dkw_epsilon(400, 0.05)  # the bands add
+    assert math.isinf(out.errors.truncated_moment)  # mass past the data: moment unknown
+
+
 def test_kth_of_extremes_are_max_and_min():
     assert np.allclose(kth_of(3, A, B, C).pmf, all_of(A, B, C).pmf, atol=1e-15)
     mn = first_of(A, B, C)
