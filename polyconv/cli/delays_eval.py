@@ -206,7 +206,7 @@ def compute(spec: DelaySpec, steps: Steps | None = None) -> DelayResult:
     shared = {s: net.plan.route[s] for s in net.shared()}
     for s, route in shared.items():
         on = "its finishing events" if route == "events" else "its value"
-        scope = "the network" if net.plan.scope[s] == ROOT else net.plan.scope[s]
+        scope = net.label(net.plan.scope[s])
         notes.append(f"stage {s} is used in several places and is one draw there "
                      f"(conditioned on {on} within {scope})")
     return DelayResult(spec, total, {n: v for n, v in laws_of.items()}, descriptions, rows,

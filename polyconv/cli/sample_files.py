@@ -30,8 +30,8 @@ def kernel_parse(buf: np.ndarray, delimiter: int | None, index: int, ncols: int)
     if os.environ.get("POLYCONV_JIT", "").strip().lower() in ("0", "off", "no", "false"):
         return None
     try:
-        from .. import jit
-        jit.cache_enabled()  # points numba at a writable cache before it is imported
+        from ..engines import jit_state
+        jit_state.cache_enabled()  # points numba at a writable cache before it is imported
         from ._parse_kernel import OK, parse_numbers
     except Exception:  # noqa: BLE001 - numba missing or failing here: numpy.loadtxt instead
         return None

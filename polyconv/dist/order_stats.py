@@ -159,11 +159,7 @@ def kth_of(k: int, *delays: Lattice, copies: int = 1) -> Lattice:
         raise ValueError(f"k must be an integer in [1, {n}] (the number of stages); got {k!r}")
     k = int(k)
     h, base, offs, length = _grid(uniq)
-    limit = length
-    for o, d in zip(offs, uniq, strict=True):
-        if not untruncated(d.errors):
-            limit = min(limit, o + d.errors.truncated_from)
-    limit = max(limit, 1)
+    limit = known_limit(uniq, offs, length)
     check_allocation(8 * 6 * limit * len(uniq), "kth_of cdf tables")
     fs, ss = [], []
     for o, d in zip(offs, uniq, strict=True):
@@ -183,6 +179,21 @@ def kth_of(k: int, *delays: Lattice, copies: int = 1) -> Lattice:
     ledger = ErrorLedger(min(l1 + r_point, 2.0), min(l1 + r_l1, 2.0), 0.0, limit, moment,
                          min(cum + r_cum, 2.0))
     return Lattice._make(pmf, h, base, ledger)
+
+
+def known_limit(ds: list[Lattice], offs: list[int], length: int) -> int:
+    """Grid points on which every input's cdf is known within its cumulative bound.
+
+    Below an input's ``truncated_from`` its cdf is known; beyond it, the input's truncated mass
+    may lie.  An input whose truncated part is empty in the point estimate (``truncated == 0``,
+    e.g. sampled stages: the DKW band allows mass ``<= eps`` anywhere, at unknown places) has
+    cdf 1 there with true cdf in ``[1 - K, 1]`` (``K`` its cumulative bound, which then also
+    bounds the exact truncated mass), so it does not stop the grid."""
+    limit = length
+    for o, d in zip(offs, ds, strict=True):
+        if not untruncated(d.errors) and d.errors.truncated > 0:
+            limit = min(limit, o + d.errors.truncated_from)
+    return max(limit, 1)
 
 
 def _grouped_l1(uniq: list[Lattice], mult: list[int]) -> float:

@@ -234,6 +234,10 @@ def test_compiled_parser_equals_python_float(tmp_path, monkeypatch):
                                                          for i, t in enumerate(texts)))
     (tmp_path / "v.txt").write_text(" ".join(texts) + "\n")
     ref = np.array([float(t) for t in texts])  # reference: Python's correctly rounded float()
+    pytest.importorskip("numba")
+    raw = np.frombuffer(" ".join(texts[:-1]).encode(), dtype=np.uint8)  # 18 digits: fallback
+    got = sample_files.kernel_parse(raw, None, 0, 1)  # the kernel itself ran (no fallback)
+    assert got is not None and np.array_equal(got, ref[:-1])
     assert np.array_equal(read_samples(tmp_path / "v.csv", column="ms"), ref)
     assert np.array_equal(read_samples(tmp_path / "v.txt"), ref)
     (tmp_path / "gap.csv").write_text("host,ms\na,1.5\nb\n")
