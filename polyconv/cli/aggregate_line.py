@@ -145,7 +145,7 @@ class LineResult:
     programme: ProgrammeResult | None = None
     qs_ceded: Lattice | None = None
     severity_mean: float | None = None
-    checks: list[list[str]] = field(default_factory=list)
+    checks: list[list] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
 
 
@@ -196,7 +196,7 @@ def compute_line(line: LineSpec, currency: str, steps=None) -> LineResult:
     return res
 
 
-def mean_checks(res: LineResult, ground_up: Lattice) -> list[list[str]]:
+def mean_checks(res: LineResult, ground_up: Lattice) -> list[list]:
     """Rows ``[quantity, from the law, on the lattice]``: the severity's mean, each layer's
     limited expected value and E[N] E[X] against the lattice (exact means of the laws)."""
     line = res.spec
@@ -210,16 +210,16 @@ def mean_checks(res: LineResult, ground_up: Lattice) -> list[list[str]]:
             on = float(np.dot(np.minimum(ground_up.values, top), ground_up.pmf)) + \
                 top * ground_up.truncated_mass
             rows.append([f"severity limited mean E[min(X, {fmt(top)})]",
-                         fmt(limited_mean(law, top)), fmt(on)])
+                         limited_mean(law, top), on])
         else:
-            rows.append(["severity mean E[X]", fmt(res.severity_mean), fmt(ground_up.mean())])
+            rows.append(["severity mean E[X]", res.severity_mean, ground_up.mean()])
     cover_mean = None
     if law is not None and (line.deductible > 0 or math.isfinite(line.limit)):
         top = line.deductible + line.limit
         cover_mean = (limited_mean(law, top) if math.isfinite(top) else res.severity_mean) \
             - limited_mean(law, line.deductible)
         rows.append([f"per-claim cover mean E[min((X - {fmt(line.deductible)})+, "
-                     f"{fmt(line.limit)})]", fmt(cover_mean), fmt(res.per_claim.mean())])
+                     f"{fmt(line.limit)})]", cover_mean, res.per_claim.mean()])
     if law is not None and line.layer is not None:
         d, w = line.deductible + line.layer.deductible, line.layer.limit
         lev = limited_mean(law, d + w) - limited_mean(law, d)
@@ -228,13 +228,13 @@ def mean_checks(res: LineResult, ground_up: Lattice) -> list[list[str]]:
                 limited_mean(law, min(d, line.deductible + line.limit))
         on = res.per_claim.layer(line.layer.deductible, line.layer.limit).mean()
         rows.append([f"XoL layer per claim (limited expected values, {fmt(w)} xs "
-                     f"{fmt(line.layer.deductible)})", fmt(lev), fmt(on)])
+                     f"{fmt(line.layer.deductible)})", lev, on])
     per_claim_law = cover_mean if cover_mean is not None else (
         res.severity_mean if law is not None and line.deductible == 0 and
         not math.isfinite(line.limit) else None)
     rows.append(["aggregate mean E[N] x E[per claim]",
-                 fmt(mean_n * per_claim_law) if per_claim_law is not None else "-",
-                 fmt(res.gross.mean())])
+                 mean_n * per_claim_law if per_claim_law is not None else None,
+                 res.gross.mean()])
     return rows
 
 
