@@ -430,3 +430,32 @@ def test_bad_actuarial_keys_are_named(tmp_path, capsys):
                                       ).replace("rates = [0.5]\n", ""), encoding="utf-8")
     assert main(["aggregate", str(spec), "--quiet"]) == 2
     assert "reinsurance.xol.rates" in capsys.readouterr().err
+
+
+# --------------------------------------------------------------------- bundled programme
+
+
+def test_bundled_programme_spec_runs_and_keeps_its_identities(tmp_path, capsys):
+    from polyconv.cli import demo_cmd
+    assert "quillmere_programme.toml" in demo_cmd.EXAMPLES
+    text = demo_cmd.scenario_text("quillmere_programme.toml")
+    assert "fictional" in text and "not advice" in text
+    s, out = run_json(tmp_path, text, capsys, name="quillmere_programme.toml")
+    assert "model output, not advice" in " ".join(s["caution"])
+    # independent lines: means add (linearity), re-gridding keeps them (definition)
+    rows = {r["measure"]: r for r in s["lines"]["rows"]}
+    assert s["mean"]["value"] == pytest.approx(sum(rows["mean"]["lines"]), rel=1e-9)
+    # Euler identity: the contributions add up to the total's TVaR
+    alloc = s["allocation"]
+    assert sum(alloc["contributions"]) == pytest.approx(alloc["tvar"], rel=1e-9)
+    assert alloc["tvar"] == pytest.approx(rows["TVaR 99%"]["total"], rel=1e-9)
+    prop = s["reinsurance"]["property"]
+    # gross = recovery + net of XoL (expectations, linearity)
+    assert prop["gross_mean"] == pytest.approx(prop["expected_recovery"] + prop["net_mean"],
+                                               rel=1e-9)
+    # the law's exact means and the lattice's agree to the discretisation (relative 1e-3)
+    for c in s["mean_checks"]:
+        if c["law"] is not None:
+            assert c["lattice"] == pytest.approx(c["law"], rel=2e-3), c["quantity"]
+    md = (out / "summary.md").read_text()
+    assert "Return periods" in md and "Layer prices" in md
