@@ -33,6 +33,15 @@ Spec format (keys are polyconv's own; every key is checked, unknown keys are ref
     levels = [0.90, 0.95, 0.99, 0.995, 0.999]
     retentions = [1.0e6, 1.5e6]       # stop-loss E[(S - d)+] at these d
 
+Several lines (each with its own step, re-gridded to a common step keeping mass and mean,
+summed as independent lines), reinsurance per line (quota share, surplus, per-occurrence excess
+of loss with reinstatements and annual aggregate terms), richer counts and severities, claims
+files, allocation, return periods and layer prices: see :mod:`polyconv.cli.aggregate_line`,
+:mod:`polyconv.cli.aggregate_laws` and :mod:`polyconv.cli.aggregate_tables`.  A spec with
+``[[lines]]`` tables (each with ``name``, ``claims``, ``severity``, optional ``cover``, ``grid``,
+``reinsurance``) has no top-level ``claims``/``severity``/``cover``/``reinsurance``; its top-level
+``[grid]`` holds only the optional common ``step``.
+
 Outputs in the report folder (see :mod:`polyconv.cli.distribution_report`): ``summary.md``,
 ``summary.json``, ``aggregate.csv`` (amount, probability, cdf, exceedance), ``measures.csv``
 (every measure with its certified range and status) and ``aggregate.png``.
@@ -43,28 +52,22 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 
-from scipy import stats
-
-from ..dist import Lattice, compound
+from ..dist import Lattice
+from ..dist.portfolio import portfolio
+from . import aggregate_line as line_mod
+from . import aggregate_tables as tabs
 from . import distribution_report as skeleton
-from . import grid_mass, laws
+from . import grid_mass
 from .bounded_rows import MeasureRow, ask
 from .fileio import ReportFolder
 from .progress import Steps
-from .report import (
-    caution,
-    collect_warnings,
-    fmt,
-    fmt_prob,
-    level_name,
-    number_name,
-)
-from .spec import Section, SpecDoc
+from .report import caution, collect_warnings, fmt, fmt_prob, level_name, number_name
+from .spec import SpecDoc
 
 DEFAULT_LEVELS = (0.90, 0.95, 0.99, 0.995, 0.999)
-COUNT_LAWS = ("poisson", "negative-binomial", "binomial")
-RULES = ("nearest", "down", "up", "moments")
-METHODS = ("auto", "fft", "recursion")
+COUNT_LAWS = line_mod.al.COUNT_LAWS
+RULES = line_mod.RULES
+METHODS = line_mod.METHODS
 
 EXAMPLE = """example:
   polyconv aggregate claims.toml -o claims-report
@@ -84,7 +87,8 @@ a minimal spec (claims.toml):
   [grid]
   step = 250.0
 
-Write 'polyconv demo' to see a full spec (polyconv-demo/quillmere_claims.toml).
+Write 'polyconv demo' to see full specs (polyconv-demo/quillmere_claims.toml, and the
+reinsurance programme of several lines in polyconv-demo/quillmere_programme.toml).
 """
 
 
@@ -96,8 +100,10 @@ def register(sub) -> None:
         description=(
             "Compute the distribution of total claims S = X_1 + ... + X_N for a claim "
             "count law N and a severity law X (optionally after a per-claim deductible and limit), "
-            "and write a summary (mean, sd, VaR and TVaR, stop-loss premiums, each with its "
-            "certified range or refused on its row), the distribution as CSV and a figure."),
+            "for one line or several independent lines, with an optional reinsurance programme "
+            "(gross, ceded and net from one joint law), and write a summary (mean, sd, VaR and "
+            "TVaR, stop-loss premiums, each with its certified range or refused on its row; "
+            "allocation, return periods, layer prices), the distribution as CSV and a figure."),
         epilog=EXAMPLE, run=run)
 
 
@@ -106,84 +112,72 @@ def register(sub) -> None:
 
 @dataclass
 class AggregateSpec:
-    """A validated aggregate spec."""
+    """A validated aggregate spec (one or several lines)."""
 
     title: str
     currency: str
-    counts: object
-    counts_text: str
-    severity: Section
-    deductible: float
-    limit: float
-    step: float
-    points: int | None
-    max_points: int
-    rule: str
-    method: str
+    lines: list[line_mod.LineSpec]
+    several: bool
+    step: float | None
     levels: list[float]
     retentions: list[float]
+    extras: dict
+
+    # one-line views (the first line), kept for callers of the one-line spec
+    @property
+    def counts(self):
+        return self.lines[0].counts.law
+
+    @property
+    def step_of_first(self) -> float:
+        return self.lines[0].step
 
 
 def parse(doc: SpecDoc) -> AggregateSpec:
     """Validate a parsed spec (raises :class:`~polyconv.cli.errors.SpecError`)."""
     root = doc.root()
-    root.check_keys(("title", "currency", "claims", "severity", "cover", "grid", "report"))
+    root.check_keys(("title", "currency", "claims", "severity", "cover", "grid", "report",
+                     "reinsurance", "lines"))
     title = root.string("title", "Aggregate loss distribution")
     currency = root.string("currency", "units")
-    counts, counts_text = parse_counts(root.table("claims"))
-    severity = root.table("severity")
-    laws.describe_kind(severity)
-    grid = root.table("grid")
-    grid.check_keys(("step", "points", "max_points", "rule", "method"))
-    step = grid.number("step", positive=True)
-    points = grid.integer("points", None, minimum=2, maximum=1 << 24)
-    max_points = grid.integer("max_points", 1 << 20, minimum=2, maximum=1 << 24)
-    rule = grid.string("rule", "nearest", RULES)
-    method = grid.string("method", "auto", METHODS)
-    cover = root.table("cover", {})
-    cover.check_keys(("deductible", "limit"))
-    deductible = cover.number("deductible", 0.0, minimum=0.0)
-    limit = cover.number("limit", math.inf, positive=True)
-    for key, value in (("deductible", deductible), ("limit", limit)):
-        if math.isfinite(value) and not _on_step(value, step):
-            raise cover.error(key, f"must be a whole multiple of grid.step = {step:g}; got "
-                              f"{value:g}")
+    common = None
+    if root.has("lines"):
+        for key in ("claims", "severity", "cover", "reinsurance"):
+            if root.has(key):
+                raise root.error(key, "with [[lines]], give it inside each line")
+        raw = root.raw("lines")
+        if not isinstance(raw, list) or not raw or not all(isinstance(x, dict) for x in raw):
+            raise root.error("lines", "must be a list of tables ([[lines]])")
+        grid = root.table("grid", {})
+        grid.check_keys(("step",))
+        common = grid.number("step", None, positive=True)
+        lines = []
+        for i in range(len(raw)):
+            sec = line_mod.Section(raw[i], ("lines", i), doc)
+            sec.check_keys(line_mod.LINE_KEYS)
+            name = sec.string("name", f"line {i + 1}")
+            lines.append(line_mod.parse_line(sec, name))
+        names = [x.name for x in lines]
+        if len(set(names)) != len(names):
+            raise root.error("lines", f"line names must differ; got {names}")
+        several = True
+    else:
+        root_line = line_mod.Section({k: v for k, v in root.data.items()
+                                      if k in line_mod.LINE_KEYS}, (), doc)
+        lines = [line_mod.parse_line(root_line, "the line")]
+        several = False
     rep = root.table("report", {})
-    rep.check_keys(("levels", "retentions"))
+    rep.check_keys(("levels", "retentions", "return_periods", "allocation", "layers",
+                    "distortions", "basic_limit"))
     levels = rep.numbers("levels", list(DEFAULT_LEVELS), minimum=0.0, below=1.0)
     if any(p_ <= 0 for p_ in levels):
         raise rep.error("levels", "must lie strictly between 0 and 1 (e.g. 0.995)")
     retentions = rep.numbers("retentions", [], minimum=0.0, nonempty=False)
-    return AggregateSpec(title, currency, counts, counts_text, severity, deductible, limit, step,
-                         points, max_points, rule, method, levels, retentions)
-
-
-def _on_step(value: float, step: float) -> bool:
-    k = value / step
-    return math.isfinite(k) and abs(k - round(k)) <= 1e-9 * max(1.0, abs(k))
-
-
-def parse_counts(sec: Section) -> tuple[object, str]:
-    """The claim-count law as a frozen scipy.stats distribution and a description."""
-    law = sec.string("law", choices=COUNT_LAWS)
-    if law == "poisson":
-        sec.check_keys(("law", "mean"))
-        mean = sec.number("mean", minimum=0.0)
-        return stats.poisson(mean), f"Poisson, mean {mean:g}"
-    if law == "negative-binomial":
-        sec.check_keys(("law", "mean", "variance"))
-        mean = sec.number("mean", positive=True)
-        var = sec.number("variance", positive=True)
-        if not var > mean:
-            raise sec.error("variance", f"must exceed the mean ({mean:g}) for a negative "
-                            f"binomial; got {var:g} (equal: use law = \"poisson\")")
-        r = mean * mean / (var - mean)
-        p = mean / var
-        return stats.nbinom(r, p), f"negative binomial, mean {mean:g}, variance {var:g}"
-    sec.check_keys(("law", "trials", "probability"))
-    trials = sec.integer("trials", minimum=0)
-    prob = sec.number("probability", minimum=0.0, maximum=1.0)
-    return stats.binom(trials, prob), f"binomial, {trials} trials, probability {prob:g}"
+    extras = tabs.parse_report_extras(rep)
+    if extras["basic_limit"] is not None and several:
+        raise rep.error("basic_limit", "increased-limit factors are per claim of one line; "
+                        "give it in a one-line spec")
+    return AggregateSpec(title, currency, lines, several, common, levels, retentions, extras)
 
 
 # ------------------------------------------------------------------------------- compute
@@ -195,61 +189,106 @@ class AggregateResult:
 
     spec: AggregateSpec
     total: Lattice
-    per_claim: Lattice
+    per_claim: Lattice | None
     severity_text: str
     rows: list[MeasureRow]
+    lines: list = field(default_factory=list)
+    net: Lattice | None = None
+    tables: list = field(default_factory=list)
+    facts: dict = field(default_factory=dict)
     notes: list[str] = field(default_factory=list)
 
 
-def compute(spec: AggregateSpec, steps: Steps | None = None) -> AggregateResult:
-    """Discretise, apply the cover, compound and measure.
+def step_count(spec: AggregateSpec) -> int:
+    """Progress steps of :func:`compute` plus one for writing."""
+    return 2 * len(spec.lines) + 3
 
-    Raises SpecError (nothing is written) when the severity puts no probability on its grid,
+
+def compute(spec: AggregateSpec, steps: Steps | None = None) -> AggregateResult:
+    """Each line (discretise, cover, compound, reinsurance), the total, measures and tables.
+
+    Raises SpecError (nothing is written) when a severity puts no probability on its grid,
     or when the aggregate grid holds less probability than the lowest level asked.
     """
     notes: list[str] = []
+    results = [line_mod.compute_line(x, spec.currency, steps) for x in spec.lines]
+    for r in results:
+        notes.extend(r.notes if not spec.several else [f"{r.spec.name}: {n}" for n in r.notes])
+    reinsured = any(r.programme is not None or r.qs_ceded is not None for r in results)
     with collect_warnings(notes):
         if steps:
-            steps.step("discretise severity")
-        points = None
-        if math.isfinite(spec.limit):
-            points = laws.span_points(spec.deductible + spec.limit, spec.step)
-        built = laws.build(spec.severity, spec.step, rule=spec.rule,
-                           max_points=spec.max_points, points=points)
-        notes.extend(built.notes)
-        grid_mass.require_mass(built.lattice, 0.0, *grid_mass.leaf_fail(spec.severity),
-                              f"the severity ({built.description})", spec.currency)
-        per_claim = built.lattice
-        if spec.deductible > 0 or math.isfinite(spec.limit):
-            try:
-                per_claim = per_claim.layer(spec.deductible, spec.limit)
-            except ValueError as exc:
-                raise spec.severity.doc.error(("cover",), str(exc)) from None
-        if steps:
-            steps.step("compound")
-        total = compound(spec.counts, per_claim, method=spec.method, size=spec.points)
-        grid_key = ("grid", "points") if spec.points else ("grid", "step")
-        held = grid_mass.held_mass(per_claim)
+            steps.step("total")
+        facts: dict = {}
+        tables = []
+        if spec.several:
+            names = [r.spec.name for r in results]
+            pf = portfolio([r.gross for r in results], spec.step, names)
+            total = pf.total
+            net = portfolio([r.net for r in results], pf.total.step, names).total \
+                if reinsured else None
+            t, facts["lines"] = tabs.lines_table(names, pf.lines, total, spec.levels)
+            tables.append(t)
+            facts["regrid"] = [{"line": n, "from_step": r.gross.step, "to_step": total.step,
+                                "cdf_shift": e.cdf_shift, "variance_added": e.variance_added}
+                               for n, r, e in zip(names, results, pf.effects, strict=True)]
+            for n, r, e in zip(names, results, pf.effects, strict=True):
+                if r.gross.step != total.step:
+                    notes.append(f"{n}: re-gridded from step {r.gross.step:g} to "
+                                 f"{total.step:g} (mass and mean kept; largest cdf change "
+                                 f"{e.cdf_shift:.3g}, variance added {e.variance_added:.4g})")
+            t, facts["allocation"] = tabs.allocation_table(names, pf.lines,
+                                                           spec.extras["allocation"])
+            tables.append(t)
+        else:
+            total = results[0].gross
+            net = results[0].net if reinsured else None
+        first = results[0]
+        grid_key = ("grid", "points") if first.spec.points else ("grid", "step")
         grid_mass.require_mass(
             total, min(spec.levels),
-            lambda message: spec.severity.doc.error(grid_key, message),
+            lambda message: first.spec.severity.doc.error(
+                (("lines", 0) if spec.several else ()) + grid_key, message),
             "choose a larger grid.step (or more grid.points)",
-            f"the aggregate loss (E[N] = {fmt(float(spec.counts.mean()))} claims; the severity "
-            f"grid holds {held:.3g} of the probability of one claim)", spec.currency)
+            f"the aggregate loss (E[N] = {fmt(float(first.spec.counts.law.mean()))} claims in "
+            f"{first.spec.name})", spec.currency)
         if steps:
-            steps.step("risk measures")
-        rows = measure_rows(spec, total, per_claim)
-    return AggregateResult(spec, total, per_claim, built.description, rows, notes)
+            steps.step("risk measures and tables")
+        per_claim = None if spec.several else first.per_claim
+        rows = measure_rows(spec, total, per_claim, net)
+        tables += tabs.reinsurance_tables(spec.levels, spec.extras["allocation"], results, facts)
+        largest = tabs.occurrence_law(results)
+        t, facts["return_periods"] = tabs.return_table(largest, total, net,
+                                                       spec.extras["return_periods"])
+        if spec.extras["return_periods"]:
+            tables.append(t)
+        if spec.retentions:
+            t, facts["exceedance"] = tabs.exceedance_table(largest, total, spec.retentions)
+            tables.append(t)
+        lt = tabs.layers_table(total, spec.extras, per_claim)
+        if lt is not None:
+            tables.append(lt[0])
+            facts["layers"] = lt[1]
+        tables.append(tabs.checks_table(results))
+        facts["mean_checks"] = [{"line": r.spec.name, "quantity": q, "law": a, "lattice": b}
+                                for r in results for q, a, b in r.checks]
+    sev = "; ".join(f"{r.spec.name}: {r.severity_text}" if spec.several else r.severity_text
+                    for r in results)
+    return AggregateResult(spec, total, per_claim, sev, rows, results, net, tables, facts,
+                           notes)
 
 
-def measure_rows(spec: AggregateSpec, total: Lattice, per_claim: Lattice) -> list[MeasureRow]:
+def measure_rows(spec: AggregateSpec, total: Lattice, per_claim: Lattice | None,
+                 net: Lattice | None = None) -> list[MeasureRow]:
     """Mean per claim, mean and sd of the total, VaR/TVaR at the levels, stop-loss at the
-    retentions: each the lattice's own answer with its certified range."""
+    retentions (and net mean, VaR, TVaR under reinsurance): each the lattice's own answer with
+    its certified range."""
     cur = spec.currency
-    rows = [ask(per_claim, "mean", key="mean_per_claim", label="mean per claim after cover",
-                unit=cur),
-            ask(total, "mean", key="mean", label="mean E[S]", unit=cur),
-            ask(total, "std", key="sd", label="standard deviation", unit=cur)]
+    rows = []
+    if per_claim is not None:
+        rows.append(ask(per_claim, "mean", key="mean_per_claim",
+                        label="mean per claim after cover", unit=cur))
+    rows += [ask(total, "mean", key="mean", label="mean E[S]", unit=cur),
+             ask(total, "std", key="sd", label="standard deviation", unit=cur)]
     for p in spec.levels:
         name = level_name(p)
         rows.append(ask(total, "var", p, key="var", label=f"VaR {name}", unit=cur,
@@ -260,6 +299,14 @@ def measure_rows(spec: AggregateSpec, total: Lattice, per_claim: Lattice) -> lis
         rows.append(ask(total, "stop_loss", d, key="stop_loss",
                         label=f"stop-loss E[(S - {number_name(d)})+]", unit=cur,
                         argument_name="retention"))
+    if net is not None:
+        rows.append(ask(net, "mean", key="net_mean", label="net mean", unit=cur))
+        for p in spec.levels:
+            name = level_name(p)
+            rows.append(ask(net, "var", p, key="net_var", label=f"net VaR {name}", unit=cur,
+                            argument_name="level"))
+            rows.append(ask(net, "tvar", p, key="net_tvar", label=f"net TVaR {name}",
+                            unit=cur, argument_name="level"))
     return rows
 
 
@@ -268,47 +315,54 @@ def measure_rows(spec: AggregateSpec, total: Lattice, per_claim: Lattice) -> lis
 
 def caution_lines(res: AggregateResult) -> list[str]:
     """The caution with this run's assumptions."""
+    steps = sorted({x.step for x in res.spec.lines})
+    sev_cut = max(r.per_claim.truncated_mass for r in res.lines)
+    indep = "the claim count and the claim amounts are independent, the amounts " \
+        "independent and identically distributed"
+    if res.spec.several:
+        indep += "; the lines are independent of each other"
+    if res.net is not None:
+        indep += "; one claim is one occurrence (per-occurrence terms)"
     return caution(
-        independence="the claim count and the claim amounts are independent, the amounts "
-        "independent and identically distributed",
-        discretisation=f"claim amounts on a grid of step {res.spec.step:g} "
-        f"{res.spec.currency} ({res.spec.rule} rule)",
+        independence=indep,
+        discretisation=f"claim amounts on a grid of step {', '.join(f'{h:g}' for h in steps)} "
+        f"{res.spec.currency} ({', '.join(sorted({x.rule for x in res.spec.lines}))} rule)"
+        + (f", lines re-gridded to step {res.total.step:g}" if len(steps) > 1 else ""),
         truncation=f"aggregate grid of {len(res.total)} points; mass beyond it "
         f"{fmt_prob(res.total.truncated_mass)}, beyond the severity grid "
-        f"{fmt_prob(res.per_claim.truncated_mass)}",
+        f"{fmt_prob(sev_cut)}",
         practice="actuarial",
     )
-
-
-def cover_text(spec: AggregateSpec) -> str:
-    """The per-claim cover in words."""
-    if spec.deductible == 0 and not math.isfinite(spec.limit):
-        return "none (ground-up)"
-    lim = f"{spec.limit:,.0f}" if math.isfinite(spec.limit) else "unlimited"
-    return f"deductible {spec.deductible:,.0f}, limit {lim} {spec.currency}"
 
 
 def report_of(res: AggregateResult) -> skeleton.DistributionReport:
     """The result as a report (see :mod:`polyconv.cli.distribution_report`)."""
     spec = res.spec
-    mean_n = float(spec.counts.mean())
-    mean_check = mean_n * res.per_claim.mean()
-    described = [["claims", spec.counts_text], ["severity", res.severity_text],
-                 ["cover per claim", cover_text(spec)],
-                 ["expected claims E[N]", fmt(mean_n)],
-                 [f"check E[N] x mean per claim ({spec.currency})", fmt(mean_check)],
-                 *skeleton.grid_rows(res.total, spec.currency)]
-    facts = {"currency": spec.currency, "claims": spec.counts_text,
-             "severity": res.severity_text, "expected_claims": mean_n,
-             "mean_check": mean_check,
-             "severity_truncated_mass": res.per_claim.truncated_mass,
-             "deductible": spec.deductible,
-             "limit": spec.limit if math.isfinite(spec.limit) else None,
-             "rule": spec.rule, "method": spec.method}
+    described = []
+    for r in res.lines:
+        pre = f"{r.spec.name}: " if spec.several else ""
+        mean_n = float(r.spec.counts.law.mean())
+        described += [[f"{pre}claims", r.spec.counts.text], [f"{pre}severity", r.severity_text],
+                      [f"{pre}cover per claim", line_mod.cover_text(r.spec) + f" {spec.currency}"],
+                      [f"{pre}reinsurance", line_mod.reinsurance_text(r.spec)],
+                      [f"{pre}expected claims E[N]", fmt(mean_n)],
+                      [f"{pre}check E[N] x mean per claim ({spec.currency})",
+                       fmt(mean_n * r.per_claim.mean())]]
+    described += skeleton.grid_rows(res.total, spec.currency)
+    first = res.lines[0]
+    facts = {"currency": spec.currency, "claims": first.spec.counts.text,
+             "severity": res.severity_text,
+             "expected_claims": sum(float(r.spec.counts.law.mean()) for r in res.lines),
+             "mean_check": sum(float(r.spec.counts.law.mean()) * r.per_claim.mean()
+                               for r in res.lines),
+             "severity_truncated_mass": max(r.per_claim.truncated_mass for r in res.lines),
+             "deductible": first.spec.deductible,
+             "limit": first.spec.limit if math.isfinite(first.spec.limit) else None,
+             "rule": first.spec.rule, "method": first.spec.method, **res.facts}
     return skeleton.DistributionReport(
         title=spec.title, stem="aggregate", value_name="amount", quantity="aggregate loss",
         unit=spec.currency, lattice=res.total, described=described, rows=res.rows,
-        caution=caution_lines(res), facts=facts, notes=res.notes,
+        caution=caution_lines(res), facts=facts, notes=res.notes, tables=res.tables,
         explanation=["VaR is the smallest grid amount whose cumulative probability reaches "
                      "the level; TVaR = VaR + E[(S - VaR)+] / (1 - level) (expected "
                      "shortfall)."],
@@ -329,4 +383,4 @@ def json_summary(res: AggregateResult) -> dict:
 def run(args) -> int:
     """Entry point of ``polyconv aggregate``."""
     return skeleton.run_spec_command(args, name="aggregate", parse=parse, compute=compute,
-                                     report_of=report_of, step_count=lambda spec: 4)
+                                     report_of=report_of, step_count=step_count)

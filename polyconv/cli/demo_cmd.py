@@ -29,6 +29,8 @@ from .report import dumps, md_table, paragraph
 from .spec import parse_spec
 
 SCENARIOS = ("quillmere_claims.toml", "larkspur_pipeline.toml")
+EXAMPLES = ("quillmere_programme.toml",)
+"""Bundled specs copied beside the report but not run by the demo (each names its command)."""
 COINS = (1, 5, 10, 25, 50)
 """Coin values in cents for the coin-change count."""
 
@@ -157,6 +159,10 @@ def report_markdown(claims, pipeline, counts: dict, figures: dict[str, str | Non
         if figures.get(part):
             parts += [f"![]({figures[part]})", ""]
     parts.append(counting_markdown(counts, figures.get("dice")))
+    parts += ["", "Also copied: `quillmere_programme.toml`, three invented lines of Quillmere "
+              "Mutual with a reinsurance programme (excess of loss with reinstatements and an "
+              "aggregate limit, a quota share), allocation and return periods; run "
+              "`polyconv aggregate quillmere_programme.toml`. Model output, not advice."]
     return "\n".join(parts)
 
 
@@ -212,7 +218,7 @@ def write_spec_copies(out: ReportFolder) -> list[str]:
     """Copy the bundled specs into the report, except where the folder being replaced holds an
     edited copy (one that differs from ours): that copy is kept.  Returns the kept names."""
     kept = []
-    for name in SCENARIOS:
+    for name in SCENARIOS + EXAMPLES:
         ours = scenario_text(name).encode("utf-8")
         old = out.existing(name)
         if old is not None:

@@ -24,16 +24,30 @@ capital, prices or deadlines, check them against local regulation and codes and 
 actuarial or engineering practice.
 """
 
+from .allocation import Contributions, split_contributions, tvar_contributions
 from .brackets import Bracket, law_bracket
+from .claims_data import claims_counts, claims_severity
 from .compound import compound
+from .count_laws import empirical_counts, mixed_poisson, zero_modified, zero_truncated
 from .delays import all_of, first_of, mixture, series
+from .distortion import layer_table, proportional_hazard, wang
 from .errors import AccuracyWarning, TruncationWarning
+from .exceedance import (
+    aggregate_exceedance,
+    largest_claim,
+    occurrence_exceedance,
+    return_period_table,
+)
 from .goal_aggregate import aggregate_for_goal
 from .goals import Goal
 from .lattice import Lattice
+from .law_ops import censored, inflated, left_truncated, splice
+from .law_ops import mixture as law_mixture
 from .ledger import Bounded, ErrorLedger
 from .network import Block, Network
 from .order_stats import kth_of
+from .portfolio import portfolio, regrid
+from .reinsurance import XoLLayer, quota_share, surplus_share, xol_programme
 from .reliability import hazard, reliability
 from .retry import hedge, retry
 from .samples import dkw_epsilon, from_histogram
@@ -69,4 +83,11 @@ __all__ = [
     "required_speedup",
     "reliability",
     "hazard",
+    # actuarial toolkit (issue 14)
+    "XoLLayer", "xol_programme", "quota_share", "surplus_share",
+    "portfolio", "regrid", "tvar_contributions", "split_contributions", "Contributions",
+    "zero_truncated", "zero_modified", "mixed_poisson", "empirical_counts",
+    "splice", "law_mixture", "left_truncated", "censored", "inflated",
+    "largest_claim", "occurrence_exceedance", "aggregate_exceedance", "return_period_table",
+    "claims_severity", "claims_counts", "wang", "proportional_hazard", "layer_table",
 ]

@@ -203,6 +203,17 @@ class Lattice(LatticeQueries, LatticeAnswers):
         from .scaling import scale_parts
         return Lattice._make(*scale_parts(self, factor, rule))
 
+    def regrid(self, step: float) -> Lattice:
+        """This law on the grid ``step * j``, mass and mean kept (linear split of each point
+        between its two new neighbours); the ledger carries the computed error.  Implemented
+        in :func:`polyconv.dist.regridding.regrid_parts` (its effect on the law:
+        :func:`~polyconv.dist.portfolio.regrid_effect`)."""
+        # --- regrid hook (branch `actuarial` owns the implementation)
+        from .regridding import regrid_parts, same_grid
+        if same_grid(self, float(step)):
+            return self
+        return Lattice._make(*regrid_parts(self, step))
+
     def __setattr__(self, name, value):
         raise AttributeError("Lattice is immutable")
 

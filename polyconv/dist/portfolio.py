@@ -19,15 +19,11 @@ Caution: independence between lines is an assumption (a model output, not advice
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 import numpy as np
 
 from .lattice import Lattice
-from .ledger import ErrorLedger, cum_bound
-
-_U = 2.0 ** -53
 
 
 @dataclass(frozen=True)
@@ -51,7 +47,7 @@ class RegridEffect:
 
 def regrid(lat: Lattice, step: float) -> Lattice:
     """The law of ``lat`` on the grid ``step * j`` with its mass and mean kept (module
-    docstring).
+    docstring); the same as :meth:`Lattice.regrid`.
 
     Parameters
     ----------
@@ -66,36 +62,9 @@ def regrid(lat: Lattice, step: float) -> Lattice:
         Origin ``H floor(origin / H)``; the truncated part stays beyond (from the image of its
         first index), with its first moment bound raised by ``H`` times its mass.
     """
-    h_new = float(step)
-    if not (h_new > 0 and math.isfinite(h_new)):
-        raise ValueError(f"step must be positive and finite; got {step!r}")
-    if abs(h_new - lat.step) <= 1e-12 * lat.step and \
-            abs(lat.origin / h_new - round(lat.origin / h_new)) < 1e-9:
-        return lat
-    x = lat.values
-    pos = x / h_new
-    base = math.floor(float(pos[0]) + 1e-12)
-    lo = np.floor(pos + 1e-12).astype(np.int64)
-    w = np.clip(pos - lo, 0.0, 1.0)
-    lo -= base
-    n = int(lo[-1]) + 2
-    out = np.zeros(n)
-    np.add.at(out, lo, lat.pmf * (1.0 - w))
-    np.add.at(out, lo + 1, lat.pmf * w)
-    if out[-1] == 0 and n > 1:
-        out = out[:-1]
-    e = lat.errors
-    fan_in = math.ceil(h_new / lat.step) + 1
-    rounding = 2 * _U * float(np.max(out))
-    point = min(e.l1, fan_in * e.point) + rounding
-    l1 = e.l1 + 2 * _U * float(np.sum(lat.pmf))
-    tf = out.size if e.truncated_from >= len(lat) else int(lo[min(e.truncated_from, len(lo) - 1)])
-    moment = e.truncated_moment
-    if moment not in (0.0, math.inf):
-        moment += h_new * min(1.0, e.truncated + e.l1)
-    led = ErrorLedger(min(point, 2.0), min(l1, 2.0), 0.0, min(tf, out.size), moment,
-                      min(cum_bound(e) + 2 * _U, 2.0))
-    return Lattice._make(out, h_new, base * h_new, led)
+    if not isinstance(lat, Lattice):
+        raise TypeError(f"lat must be a Lattice; got {type(lat).__name__}")
+    return lat.regrid(step)
 
 
 def regrid_effect(old: Lattice, new: Lattice) -> RegridEffect:

@@ -33,6 +33,24 @@ def test_regrid_by_hand():
     assert new.origin == 0.0
 
 
+def test_lattice_regrid_method_is_the_kernel_and_keeps_the_ledger():
+    # source: by hand from the definition (as test_regrid_by_hand), through the method; the
+    # ledger: a Markov kernel does not grow the L1 error, the truncated mass stays beyond the grid
+    lat = Lattice([0.5, 0, 0, 0.5], origin=1.0)
+    new = lat.regrid(3.0)
+    np.testing.assert_allclose(new.pmf, [1 / 3, 1 / 6 + 1 / 3, 1 / 6], atol=1e-15)
+    assert new.mean() == pytest.approx(lat.mean(), abs=1e-14)
+    assert lat.regrid(1.0) is lat  # already on that grid
+    heavy = compound(stats.poisson(2.0), Lattice.from_law(stats.pareto(2.5, scale=3.0),
+                                                          step=0.5, size=200), size=300)
+    moved = heavy.regrid(1.25)
+    assert moved.truncated_mass == heavy.truncated_mass > 0
+    assert heavy.errors.l1 <= moved.errors.l1 <= heavy.errors.l1 + 1e-15
+    assert moved.pmf.sum() == pytest.approx(heavy.pmf.sum(), abs=1e-14)
+    with pytest.raises(ValueError, match="step"):
+        lat.regrid(0.0)
+
+
 def test_portfolio_total_is_the_convolution_and_diversifies():
     a = Lattice([0.5, 0.3, 0.2], step=2.0)
     b = Lattice([0.1, 0.2, 0.3, 0.4], step=1.0)
