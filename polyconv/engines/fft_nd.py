@@ -1,0 +1,152 @@
+"""Float products over several axes at once: a pruned row-column FFT, overlap-add along one
+axis, and direct shift-and-add.
+
+Arrays have their batch axes first and the ``d`` convolution axes last.  The transform is the
+row-column algorithm (the multidimensional DFT is the 1-D DFT along each axis in turn; e.g.
+Oppenheim & Schafer, *Discrete-Time Signal Processing*, section 8.7, and Dudgeon & Mersereau,
+*Multidimensional Digital Signal Processing*, section 2.2), through the project's one FFT module
+(:mod:`polyconv.numerics.transforms`): a real transform along the last axis, complex transforms
+along the others, in place.  Pruning (common practice, no source): the forward passes skip the
+rows that are still all zeros (an operand occupies only ``n_k`` of the ``N_k`` entries along each
+axis not yet transformed), and the inverse passes, outermost first, keep only the rows the mode
+returns before the next pass.  For ``N_k >= n1_k + n2_k - 1`` along every axis the circular
+product is the linear one (the circular convolution theorem in each axis); for mode "valid"
+along an axis ``N_k >= max(n1_k, n2_k)`` suffices (the wrap-around lands in entries that mode
+drops).
+
+Engines never validate: the caller (:mod:`polyconv.pipeline.nd`) has checked shapes, dtypes and
+the memory budget.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from ..numerics import transforms as tf
+from ._common import spectral_product
+
+
+def _leading(arr: np.ndarray, d: int, limits) -> np.ndarray:
+    """``arr[..., :l_1, ..., :l_d]`` over the last ``d`` axes (``None``: the whole axis)."""
+    idx = tuple(slice(None) if lim is None else slice(0, lim) for lim in limits)
+    return arr[(Ellipsis,) + idx] if len(idx) == d else arr
+
+
+def _along(ndim: int, axis: int, sl: slice) -> tuple:
+    """An index applying ``sl`` along ``axis`` of an ``ndim``-D array."""
+    return (slice(None),) * axis + (sl,)
+
+
+def spectrum_nd(x: np.ndarray, shape: tuple, threads: int = 1) -> np.ndarray:
+    """The zero-padded DFT of ``x`` over its last ``len(shape)`` axes at transform ``shape``.
+
+    Real ``x`` gives the half spectrum along the last axis (``N_d // 2 + 1`` bins), complex
+    ``x`` the full one.  Pruned forward passes (module notes).
+    """
+    d = len(shape)
+    ext = x.shape[-d:]
+    real = x.dtype.kind != "c"
+    cdtype = np.result_type(x.dtype, np.complex64)
+    last = shape[-1] // 2 + 1 if real else shape[-1]
+    out = np.zeros(x.shape[:-d] + tuple(shape[:-1]) + (last,), dtype=cdtype)
+    rows = _leading(out, d, tuple(ext[:-1]) + (None,))
+    if real:
+        tf.rfft_into(tf.zero_padded(x, shape[-1]), rows, threads)
+    else:
+        rows[..., : ext[-1]] = x
+        tf.fft_inplace(rows, out.ndim - 1, True, threads)
+    for k in range(d - 2, -1, -1):  # axis k: the axes before it are still zero beyond n
+        view = _leading(out, d, tuple(ext[:k]) + (None,) * (d - k))
+        tf.fft_inplace(view, out.ndim - d + k, True, threads)
+    return out
+
+
+def inverse_nd(spec: np.ndarray, shape: tuple, windows: tuple, threads: int = 1,
+               real: bool = True) -> np.ndarray:
+    """The inverse of :func:`spectrum_nd` (``spec`` is overwritten), cut to ``windows``
+    (``(start, stop)`` per axis) pass by pass."""
+    d = len(shape)
+    view = spec
+    for k in range(d - 1):
+        axis = spec.ndim - d + k
+        tf.fft_inplace(view, axis, False, threads)
+        view = view[_along(spec.ndim, axis, slice(*windows[k]))]
+    start, stop = windows[-1]
+    if real:
+        return tf.irfft(view, shape[-1], -1, threads)[..., start:stop]
+    return tf.ifft(view, -1, threads)[..., start:stop]
+
+
+def convolve_fftn(a: np.ndarray, b: np.ndarray, shape: tuple, windows: tuple,
+                  threads: int = 1) -> np.ndarray:
+    """The product of ``a`` and ``b`` over their last ``len(shape)`` axes, cut to ``windows``.
+
+    Parameters
+    ----------
+    a, b : numpy.ndarray
+        Float or complex arrays of one precision; batch axes broadcast.
+    shape : tuple of int
+        Transform lengths, one per convolution axis (module notes say how long is enough).
+    windows : tuple of (int, int)
+        The entries of the full product each axis keeps.
+    threads : int
+        Threads each transform may use.
+    """
+    real = a.dtype.kind != "c" and b.dtype.kind != "c"
+    fa = spectrum_nd(a, shape, threads)
+    fb = spectrum_nd(b, shape, threads)
+    product = spectral_product(fa, fb)
+    del fa, fb
+    return inverse_nd(product, shape, windows, threads, real)
+
+
+def convolve_overlap_add_nd(x: np.ndarray, k: np.ndarray, shape: tuple, block: int, axis: int,
+                            windows: tuple, threads: int = 1) -> np.ndarray:
+    """Overlap-add along convolution axis ``axis`` (counted among the last ``d``): ``x`` is cut
+    into blocks of ``block`` entries along it, each block's product with ``k`` is a transform of
+    ``shape`` (``shape[axis] >= block + m - 1``), and the block products are added at their
+    offsets (Oppenheim & Schafer, section 8.7.3; ``block >= m - 1``, so each output gathers at
+    most two blocks).  The kernel's spectrum is computed once.  Result cut to ``windows``.
+    """
+    d = len(shape)
+    real = x.dtype.kind != "c" and k.dtype.kind != "c"
+    m = k.shape[k.ndim - d + axis]
+    n = x.shape[x.ndim - d + axis]
+    fk = spectrum_nd(k, shape, threads)
+    batch = np.broadcast_shapes(x.shape[:-d], k.shape[:-d])
+    sizes = [stop - start for start, stop in windows]
+    sizes[axis] = n + m - 1
+    out = np.zeros(batch + tuple(sizes), dtype=np.result_type(x.dtype, k.dtype))
+    ax = len(batch) + axis
+    for first in range(0, n, block):
+        piece = x[_along(x.ndim, x.ndim - d + axis, slice(first, first + block))]
+        count = piece.shape[x.ndim - d + axis]
+        spec = spectral_product(spectrum_nd(piece, shape, threads), fk)
+        cut = list(windows)
+        cut[axis] = (0, count + m - 1)
+        part = inverse_nd(spec, shape, tuple(cut), threads, real)
+        out[_along(out.ndim, ax, slice(first, first + count + m - 1))] += part
+    return out[_along(out.ndim, ax, slice(*windows[axis]))]
+
+
+def convolve_direct_nd(a: np.ndarray, b: np.ndarray, windows: tuple) -> np.ndarray:
+    """Direct summation over the last ``len(windows)`` axes, cut to ``windows``.
+
+    ``c[k] = sum_j a[k - j] b[j]`` by shift-and-add: each entry of the operand with fewer
+    entries scales and adds the other once (one pass per entry), so NaN and inf propagate as
+    they do in a direct sum (numpy.convolve's behaviour, per axis).
+    """
+    d = len(windows)
+    if math.prod(b.shape[-d:]) > math.prod(a.shape[-d:]):
+        a, b = b, a
+    ext_a, ext_b = a.shape[-d:], b.shape[-d:]
+    batch = np.broadcast_shapes(a.shape[:-d], b.shape[:-d])
+    full = tuple(n1 + n2 - 1 for n1, n2 in zip(ext_a, ext_b, strict=True))
+    out = np.zeros(batch + full, dtype=np.result_type(a.dtype, b.dtype))
+    spread = (np.newaxis,) * d
+    for idx in np.ndindex(*ext_b):
+        target = (Ellipsis,) + tuple(slice(j, j + n) for j, n in zip(idx, ext_a, strict=True))
+        out[target] += a * b[(Ellipsis,) + idx + spread]
+    return out[(Ellipsis,) + tuple(slice(start, stop) for start, stop in windows)]
