@@ -102,32 +102,57 @@ def convolve_fftn(a: np.ndarray, b: np.ndarray, shape: tuple, windows: tuple,
     return inverse_nd(product, shape, windows, threads, real)
 
 
+#: Bytes of block spectra an overlap-add group holds at once (blocks are transformed together
+#: as a batch, in groups of about this size: few calls, bounded memory).
+GROUP_BYTES = 2**23
+
+
 def convolve_overlap_add_nd(x: np.ndarray, k: np.ndarray, shape: tuple, block: int, axis: int,
                             windows: tuple, threads: int = 1) -> np.ndarray:
     """Overlap-add along convolution axis ``axis`` (counted among the last ``d``): ``x`` is cut
     into blocks of ``block`` entries along it, each block's product with ``k`` is a transform of
     ``shape`` (``shape[axis] >= block + m - 1``), and the block products are added at their
     offsets (Oppenheim & Schafer, section 8.7.3; ``block >= m - 1``, so each output gathers at
-    most two blocks).  The kernel's spectrum is computed once.  Result cut to ``windows``.
+    most two blocks).  The kernel's spectrum is computed once; blocks are transformed as a
+    batch, a group at a time (:data:`GROUP_BYTES`).  Result cut to ``windows``.
     """
     d = len(shape)
     real = x.dtype.kind != "c" and k.dtype.kind != "c"
     m = k.shape[k.ndim - d + axis]
     n = x.shape[x.ndim - d + axis]
-    fk = spectrum_nd(k, shape, threads)
+    count = -(-n // block)
+    lead = x.ndim - d
+    # blocks as a new batch axis just before the convolution axes: x[..., q, ..., j, ...]
+    padded_shape = list(x.shape)
+    padded_shape[lead + axis] = count * block
+    xp = np.zeros(padded_shape, dtype=x.dtype)
+    xp[_along(x.ndim, lead + axis, slice(0, n))] = x
+    split = x.shape[:lead + axis] + (count, block) + x.shape[lead + axis + 1:]
+    blocks = np.moveaxis(xp.reshape(split), lead + axis, lead)
+    del xp
+    fk = spectrum_nd(k, shape, threads)[(Ellipsis, np.newaxis) + (slice(None),) * d]
     batch = np.broadcast_shapes(x.shape[:-d], k.shape[:-d])
     sizes = [stop - start for start, stop in windows]
-    sizes[axis] = n + m - 1
+    sizes[axis] = (count + 1) * block
     out = np.zeros(batch + tuple(sizes), dtype=np.result_type(x.dtype, k.dtype))
     ax = len(batch) + axis
-    for first in range(0, n, block):
-        piece = x[_along(x.ndim, x.ndim - d + axis, slice(first, first + block))]
-        count = piece.shape[x.ndim - d + axis]
-        spec = spectral_product(spectrum_nd(piece, shape, threads), fk)
-        cut = list(windows)
-        cut[axis] = (0, count + m - 1)
-        part = inverse_nd(spec, shape, tuple(cut), threads, real)
-        out[_along(out.ndim, ax, slice(first, first + count + m - 1))] += part
+    cut = list(windows)
+    cut[axis] = (0, block + m - 1)
+    per_block = 16 * math.prod(shape) * max(1, math.prod(batch))
+    group = max(1, GROUP_BYTES // per_block)
+    for g0 in range(0, count, group):
+        g1 = min(count, g0 + group)
+        group_blocks = blocks[(Ellipsis, slice(g0, g1)) + (slice(None),) * d]
+        spec = spectral_product(spectrum_nd(group_blocks, shape, threads), fk)
+        part = inverse_nd(spec, shape, tuple(cut), threads, real)  # batch + (q,) + sizes
+        part = np.moveaxis(part, len(batch), ax)  # q just before the block axis
+        head = out[_along(out.ndim, ax, slice(g0 * block, g1 * block))]
+        shape_q = head.shape[:ax] + (g1 - g0, block) + head.shape[ax + 1:]
+        head.reshape(shape_q)[...] += part[_along(part.ndim, ax + 1, slice(0, block))]
+        if m > 1:
+            tail = out[_along(out.ndim, ax, slice((g0 + 1) * block, (g1 + 1) * block))]
+            tail.reshape(shape_q)[_along(part.ndim, ax + 1, slice(0, m - 1))] += \
+                part[_along(part.ndim, ax + 1, slice(block, block + m - 1))]
     return out[_along(out.ndim, ax, slice(*windows[axis]))]
 
 

@@ -9,7 +9,8 @@ Float engines over ``d`` axes (kernels in :mod:`polyconv.engines.fft_nd`):
     transform does ``P log2 P`` butterfly work, as a 1-D transform of ``P`` points).
 ``"overlap-add"``
     Blocks along the axis where one operand is longest relative to the other, each block a
-    transform of ``N_b x (the other N_k)``; offered when that saves work.  Cost: the block
+    transform of ``N_b x (the other N_k)``; offered when the operand is at least twice as long
+    as the other there (blocks of at least ``m - 1``).  Cost: the block
     transforms (two thirds of a product each), one kernel spectrum, per-point accumulation
     (``costs["overlap_add"]["per_point"]``).
 ``"direct"``
@@ -36,8 +37,15 @@ from .plan import format_seconds
 FLOAT_ND_METHODS = ("auto", "direct", "fft", "overlap-add")
 
 #: Shift-and-add over N-D strided views costs about this many times the per-element constant of
-#: the batched 1-D direct engine (estimate, common practice, no source).
-STRIDED_FACTOR = 2.0
+#: the batched 1-D direct engine (measured here: 1.7x at 300 x 300 * 2 x 2, 6x at 1000 x 1000 *
+#: 3 x 3 on a busy 2-core machine).
+STRIDED_FACTOR = 4.0
+#: A pruned row-column transform of ``P`` points costs about this many times the 1-D model at
+#: ``P`` points (strided passes, the zero-padding copies; measured here at 1024^2 * 64^2).
+ND_TRANSFORM_FACTOR = 2.5
+#: Overlap-add's blocks cost this much more again (the block copies and moves, the additions;
+#: measured here: 1.4-5x the one-shot transform at 200^2 * 20^2 .. 1000^2 * 3^2).
+OVERLAP_ADD_FACTOR = 2.0
 
 
 @dataclass(frozen=True, slots=True)
@@ -150,7 +158,7 @@ def _fft_seconds(costs: dict, points: int, work: float) -> tuple[float, int]:
     """Predicted seconds and threads of transform work on ``points``-point transforms."""
     speed = thread_speedup(costs, int(points * work), THREADS, True)
     threads = THREADS if speed > 1 else 1
-    return predict_fft(costs, max(points, 2), work, threads, True), threads
+    return ND_TRANSFORM_FACTOR * predict_fft(costs, max(points, 2), work, threads, True), threads
 
 
 def _offers(kind: str, modes: tuple, sa: tuple, sb: tuple, rows: tuple) -> dict:
@@ -181,12 +189,12 @@ def _overlap_add_offer(costs, modes, sa, sb, rows, shape, factor, real):
     ratios = [n / m for n, m in zip(sa, sb, strict=True)]
     axis = max(range(len(sa)), key=ratios.__getitem__)
     n, m = sa[axis], sb[axis]
-    if n < 4 * m or m < 1:
+    if n < 2 * m:
         return None
     c = costs["overlap_add"]
     others = math.prod(shape) // shape[axis]
     best = None
-    size = tf.fast_length(max(2 * m, 16), real=real and axis == len(sa) - 1)
+    size = tf.fast_length(max(2 * m - 1, 2), real=real and axis == len(sa) - 1)
     while size < shape[axis]:
         block = size - m + 1
         if block >= max(m - 1, 1):
@@ -194,7 +202,7 @@ def _overlap_add_offer(costs, modes, sa, sb, rows, shape, factor, real):
             points = size * others
             work = (2 * blocks * max(rows[0], rows[2]) + rows[1]) / 3.0 * factor
             seconds, threads = _fft_seconds(costs, points, work)
-            seconds += c["per_point"] * blocks * points * rows[2]
+            seconds = OVERLAP_ADD_FACTOR * (seconds + c["per_point"] * blocks * points * rows[2])
             if best is None or seconds < best[0]:
                 tshape = shape[:axis] + (size,) + shape[axis + 1:]
                 best = (seconds, {"transform_shape": tshape, "threads": threads,
@@ -214,7 +222,7 @@ def choose_float(kind: str, modes: tuple, sa: tuple, sb: tuple, batch_a: tuple,
     offers = _offers(kind, modes, sa, sb, rows)
     if method == "overlap-add" and method not in offers:
         raise ValueError(f"method='overlap-add' cannot run here: over axes={axes} neither "
-                         "operand is at least 4 times longer than the other along one axis")
+                         "operand is at least twice as long as the other along one axis")
     ranked = tuple(sorted(((k, v[0]) for k, v in offers.items()), key=lambda kv: kv[1]))
     name = ranked[0][0] if method == "auto" else method
     seconds, settings = offers[name]
