@@ -175,3 +175,39 @@ def convolve_direct_nd(a: np.ndarray, b: np.ndarray, windows: tuple) -> np.ndarr
         target = (Ellipsis,) + tuple(slice(j, j + n) for j, n in zip(idx, ext_a, strict=True))
         out[target] += a * b[(Ellipsis,) + idx + spread]
     return out[(Ellipsis,) + tuple(slice(start, stop) for start, stop in windows)]
+
+
+def mapped_spectrum_2d(f: np.ndarray, shape: tuple, keep: tuple, pointwise,
+                       column_block: int = 32, row_block: int = 4096,
+                       threads: int = 1) -> np.ndarray:
+    """``IFFT2(pointwise(FFT2(f)))`` on transform ``shape = (M1, M2)``, cut to ``keep = (n1,
+    n2)``, with memory about ``n1 x M2 / 2`` complex instead of ``M1 x M2``.
+
+    The same pruned row-column transform as :func:`spectrum_nd` / :func:`inverse_nd`, done a
+    block of ``column_block`` frequency columns at a time: the real transform along the short
+    axis of ``f`` (its rows only), then per column block the complex transform along the long
+    axis, ``pointwise(block, first, stop)`` (which returns the mapped block, e.g. a generating
+    function of the spectrum, and may record sums over it), the inverse along the long axis
+    keeping ``n1`` rows; finally the inverse real transform, ``row_block`` rows at a time.
+    """
+    m1, m2 = shape
+    n1, n2 = keep
+    half = m2 // 2 + 1
+    cols = np.ascontiguousarray(tf.rfft(tf.zero_padded(f, m2), -1, threads).T)  # half x rows
+    spec = np.empty((half, n1), dtype=complex)
+    for c0 in range(0, half, column_block):
+        c1 = min(half, c0 + column_block)
+        buf = np.zeros((c1 - c0, m1), dtype=complex)  # contiguous along the long axis
+        buf[:, : cols.shape[1]] = cols[c0:c1]
+        tf.fft_inplace(buf, 1, True, threads)
+        mapped = np.ascontiguousarray(pointwise(buf, c0, c1), dtype=complex)
+        del buf
+        tf.fft_inplace(mapped, 1, False, threads)
+        spec[c0:c1] = mapped[:, :n1]
+        del mapped
+    del cols
+    out = np.empty((n1, n2))
+    for r0 in range(0, n1, row_block):
+        r1 = min(n1, r0 + row_block)
+        out[r0:r1] = tf.irfft(np.ascontiguousarray(spec[:, r0:r1].T), m2, -1, threads)[:, :n2]
+    return out
