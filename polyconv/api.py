@@ -12,21 +12,24 @@ import sys
 
 import numpy as np
 
-from .pipeline import execute, prepare
+from .pipeline import execute, nd, prepare
+from .pipeline.nd_plan import NdPlan
 from .pipeline.plan import Plan
 
 
 def plan(a, b, *, mode: str = "full", method: str = "auto", modulus: int | None = None,
-         length: int | None = None, axis: int = -1) -> Plan:
+         length: int | None = None, axis: int = -1, axes=None) -> Plan | NdPlan:
     """Say how :func:`convolve` would compute this product, without computing it.
 
     Parameters are those of :func:`convolve`.
 
     Returns
     -------
-    Plan
+    Plan or NdPlan
         ``engine``, ``exact``, ``certificate``, ``error_bound``, ``predicted_seconds``, ``reason``
-        and the engine's parameters; ``str(plan)`` explains it in a few lines.
+        and the engine's parameters; ``str(plan)`` explains it in a few lines.  With ``axes=``
+        naming several axes, an :class:`~polyconv.pipeline.nd_plan.NdPlan` (axes, modes,
+        transform shape, and for integers the 1-D plan of the flattened product).
 
     Examples
     --------
@@ -34,11 +37,25 @@ def plan(a, b, *, mode: str = "full", method: str = "auto", modulus: int | None 
     >>> polyconv.plan(np.ones(10), np.ones(3)).engine
     'direct'
     """
+    several, axis = _axes(axes, axis)
+    if several:
+        return nd.plan_nd(a, b, axes=axes, mode=mode, method=method, modulus=modulus,
+                          length=length)
     return prepare.plan(a, b, mode=mode, method=method, modulus=modulus, length=length, axis=axis)
 
 
+def _axes(axes, axis) -> tuple[bool, int]:
+    """``(True, axis)`` when ``axes`` names several axes, else ``(False, the one axis)``."""
+    if axes is None:
+        return False, axis
+    if not (isinstance(axis, int) and axis == -1):
+        raise ValueError(f"give axis= or axes=, not both (got axis={axis!r}, axes={axes!r})")
+    single = nd.single_axis(axes)
+    return (True, axis) if single is None else (False, single)
+
+
 def convolve(a, b, *, mode: str = "full", method: str = "auto", modulus: int | None = None,
-             length: int | None = None, axis: int = -1) -> np.ndarray:
+             length: int | None = None, axis: int = -1, axes=None) -> np.ndarray:
     """Linear convolution of ``a`` and ``b`` (the coefficients of the product polynomial).
 
     ``c[k] = sum_i a[i] b[k - i]``, coefficient ``i`` being that of ``x**i`` (numpy.convolve's
@@ -64,6 +81,13 @@ def convolve(a, b, *, mode: str = "full", method: str = "auto", modulus: int | N
         zero padded if the product is shorter.
     axis : int
         The convolution axis of each operand.
+    axes : int or sequence of int, optional
+        Convolve over several axes at once (scipy.signal.fftconvolve's ``axes=``): a and b must
+        have the same number of dimensions, the other axes broadcast.  ``mode`` then applies
+        along each axis (numpy.convolve's definitions per axis), or give one mode per axis.
+        Floats: one N-D real transform, overlap-add along the long axis, or direct summation,
+        as the cost model picks; integers: exact, by Kronecker substitution of the axes into
+        one (:mod:`polyconv.pipeline.nd_exact`).  ``None`` (default): ``axis`` alone.
 
     Returns
     -------
@@ -94,7 +118,13 @@ def convolve(a, b, *, mode: str = "full", method: str = "auto", modulus: int | N
     array([0. , 1. , 2.5, 4. , 1.5])
     """
     if _is_dask_array(a) or _is_dask_array(b):
+        if axes is not None:
+            raise ValueError("axes= is not supported for dask arrays; compute them first")
         return _convolve_dask(a, b, mode, method, modulus, length, axis)
+    several, axis = _axes(axes, axis)
+    if several:
+        return nd.convolve_nd(a, b, axes=axes, mode=mode, method=method, modulus=modulus,
+                              length=length)[0]
     return execute.convolve(a, b, mode=mode, method=method, modulus=modulus, length=length,
                             axis=axis)
 
@@ -116,7 +146,7 @@ def _convolve_dask(a, b, mode, method, modulus, length, axis):
     return convolve_dask(long, kernel, mode=mode, modulus=modulus)
 
 
-def error_bound(a, b, the_plan: Plan | None = None) -> float:
+def error_bound(a, b, the_plan: Plan | NdPlan | None = None, *, axes=None) -> float:
     """Rigorous bound on the absolute error of any output coefficient of a float product.
 
     For the FFT engines this is Percival's bound (C. Percival, Math. Comp. 72 (2003) 387-395,
@@ -139,14 +169,26 @@ def error_bound(a, b, the_plan: Plan | None = None) -> float:
     ----------
     a, b : array_like
         Float operands (1-D; for N-D the largest row norms are used).
-    the_plan : Plan, optional
+    the_plan : Plan or NdPlan, optional
         The plan whose engine to bound; default the plan ``convolve`` would use.
+    axes : int or sequence of int, optional
+        As for :func:`convolve`: over several axes the bound is Percival's at the N-D
+        transform's total length ``prod N_k`` (the row-column transform has ``sum log2 N_k``
+        butterfly levels), twice that for overlap-add, ``gamma_m ||a||_2 ||b||_2`` with ``m =
+        prod min(n1_k, n2_k)`` for direct summation (:mod:`polyconv.pipeline.nd`).
 
     Returns
     -------
     float
         The bound (absolute, for float64 arithmetic; ``0.0`` for an exact integer plan).
     """
+    several, axis = _axes(axes, -1)
+    if several or isinstance(the_plan, NdPlan):
+        return nd.error_bound_nd(a, b, the_plan, axes=axes if axes is not None
+                                 else the_plan.axes)
+    if axes is not None and axis != -1:
+        return prepare.error_bound(np.moveaxis(np.asarray(a), axis, -1),
+                                   np.moveaxis(np.asarray(b), axis, -1), the_plan)
     return prepare.error_bound(a, b, the_plan)
 
 

@@ -1,30 +1,19 @@
-"""``BivariateLattice``: a joint distribution of two amounts on ``(step * i, step * j)``.
+"""Bivariate lattices: :class:`BivariateLattice` and the compound sum :func:`compound2`.
 
-The joint law of two dependent amounts ``(X, Y)`` on one common step ``h`` (so ``X + Y`` is on the
-same lattice), ``i = 0..n1-1``, ``j = 0..n2-1``.  Mass outside the rectangle is not represented
-(the error ledger's ``truncated``); it lies where ``X >= n1 h`` or ``Y >= n2 h``, with bounds
-``tails = (P(X >= n1 h), P(Y >= n2 h))``.  A rectangle that deliberately stops early on ``Y``
-(a *window*, e.g. an aggregate layer cut just past its aggregate limit) is legitimate: then the
-``Y`` marginal is exact on its grid and the ``X`` marginal is refused as inaccurate by its ledger.
+The class (joint pmf, marginals, conditional expectations, independent sums by the N-D
+convolution of :mod:`polyconv.pipeline.nd`) lives in :mod:`polyconv.dist.bivariate_lattice`
+and is re-exported here.
 
-Operations (each carries the :class:`~polyconv.dist.ledger.ErrorLedger` on the flattened pmf):
+:func:`compound2` -- ``(S_X, S_Y) = sum_{i <= N} (X_i, Y_i)``: the generating function
+``P_N(F(u, v))`` evaluated on a 2-D grid of roots of unity, ``g = IFFT2(P_N(FFT2(f)))``, with
+exponential tilting per axis and padding ``M_a >= 2 n_a`` against wrap-around (Grubel &
+Hermesmeier, ASTIN Bulletin 29 (1999), the 1-D route of :mod:`polyconv.dist.transform` done on
+each axis).  The 2-D transform is the shared pruned row-column transform of
+:func:`polyconv.engines.fft_nd.mapped_spectrum_2d` (``rfft`` along ``j``, ``fft`` along ``i``, a
+block of frequency columns at a time), ``log2 M1 + log2 M2`` butterfly levels: the rounding
+bound of a length ``M1 M2`` transform applies (:mod:`polyconv.pipeline.nd`).
 
-* :func:`compound2` -- ``(S_X, S_Y) = sum_{i <= N} (X_i, Y_i)``, the generating function
-  ``P_N(F(u, v))`` evaluated on a 2-D grid of roots of unity: ``g = IFFT2(P_N(FFT2(f)))``, with
-  exponential tilting per axis and padding ``M_a >= 2 n_a`` against wrap-around (Grubel &
-  Hermesmeier, ASTIN Bulletin 29 (1999), the 1-D route of :mod:`polyconv.dist.transform` done on
-  each axis).  The 2-D transform is the row-column algorithm over the project's one FFT module
-  (:mod:`polyconv.transforms`: ``rfft`` along ``j``, ``fft`` along ``i``), ``log2 M1 + log2 M2``
-  butterfly levels: the rounding bound of a length ``M1 M2`` transform applies (derived here).
-* :meth:`BivariateLattice.marginal`, :meth:`~BivariateLattice.total` (``X + Y``),
-  :meth:`~BivariateLattice.columns_pushed` (``X + phi(Y)`` for an index map ``phi``),
-  :meth:`~BivariateLattice.conditional_mean` (``E[Y | X = x]`` or ``E[X | Y = y]``),
-  ``+`` (independent sum, 2-D convolution).
-
-Push-forwards (marginals, sums) do not increase the L1 error (total variation); a marginal's
-point error is at most ``min(l1, count * point)`` of the cells merged into it.
-
-Caution: a model output, not advice; see :mod:`polyconv.dist`.
+Caution: a model output, not advice; defer to local regulation and licensed practice.
 """
 
 from __future__ import annotations
@@ -33,13 +22,16 @@ import math
 
 import numpy as np
 
+from ..engines.fft_nd import mapped_spectrum_2d
 from ..numerics import transforms as tf
 from ..numerics.budget import check_allocation
 from . import accuracy
+from .bivariate_lattice import BivariateLattice
 from .counts import CountsLaw, classify
-from .lattice import Lattice
-from .ledger import ErrorLedger, cum_bound, sum_errors
+from .ledger import ErrorLedger
 from .transform import reduced_severity
+
+__all__ = ["BivariateLattice", "compound2"]
 
 _U = accuracy.UNIT_ROUNDOFF
 MIN_TRANSFORM = 64
@@ -54,207 +46,6 @@ ROW_BLOCK = 4096
 
 DEFAULT_TAIL = 1e-13
 """Default grid per axis: Chernoff-bounded mass beyond it below this."""
-
-
-class BivariateLattice:
-    """Joint pmf ``P(X = i h, Y = j h)`` on an ``n1 x n2`` rectangle from the origin.
-
-    Parameters
-    ----------
-    pmf : array_like
-        Non-negative 2-D probabilities summing to at most 1 (the rest is truncated: outside).
-    step : float
-        Common step ``h > 0`` of both axes.
-    errors : ErrorLedger, optional
-        Ledger of the flattened pmf (default: exact, ``point = l1 = 0``).
-    tails : (float, float), optional
-        Bounds of ``P(X >= n1 h)`` and ``P(Y >= n2 h)`` (default: ``1 - sum(pmf)`` each).
-    means : (float, float), optional
-        Upper bounds of ``E[X]`` and ``E[Y]`` of the exact model (give the marginals a finite
-        truncated first moment, so their TVaR is answerable); default unknown.
-    """
-
-    __slots__ = ("pmf", "step", "errors", "tails", "means")
-
-    def __init__(self, pmf, step: float = 1.0, *, errors: ErrorLedger | None = None,
-                 tails: tuple[float, float] | None = None,
-                 means: tuple[float, float] | None = None):
-        arr = np.array(pmf, dtype=float)
-        if arr.ndim != 2 or arr.size == 0:
-            raise ValueError(f"pmf must be a non-empty 2-D array; got shape {arr.shape}")
-        if not np.all(np.isfinite(arr)) or np.min(arr) < 0:
-            raise ValueError("pmf must be finite and non-negative")
-        total = float(np.sum(arr))
-        if total > 1 + 1e-9:
-            raise ValueError(f"pmf sums to {total!r} > 1; probabilities are not renormalised")
-        if not (isinstance(step, (int, float)) and step > 0 and math.isfinite(step)):
-            raise ValueError(f"step must be a positive finite number; got {step!r}")
-        missing = max(0.0, 1.0 - total)
-        if missing < (math.log2(arr.size) + 4) * _U:
-            missing = 0.0
-        if errors is None:
-            errors = ErrorLedger(0.0, 0.0, missing, arr.size, 0.0 if missing == 0 else math.inf,
-                                 0.0)
-        arr.flags.writeable = False
-        self.pmf = arr
-        self.step = float(step)
-        self.errors = errors._replace(truncated=missing)
-        self.tails = (missing, missing) if tails is None else (float(tails[0]), float(tails[1]))
-        self.means = (math.inf, math.inf) if means is None else (float(means[0]),
-                                                                  float(means[1]))
-
-    @property
-    def shape(self) -> tuple[int, int]:
-        """``(n1, n2)``."""
-        return self.pmf.shape
-
-    def __repr__(self) -> str:
-        e = self.errors
-        return (f"BivariateLattice(shape={self.shape}, step={self.step!r}, "
-                f"truncated_mass={e.truncated:.3g}, l1_error={e.l1:.3g})")
-
-    # -- construction ----------------------------------------------------------------------
-    @classmethod
-    def from_split(cls, ground_up: Lattice, ceded_index) -> BivariateLattice:
-        """Joint law of ``(X - c(X), c(X))`` for one claim ``X`` and a cession ``c``.
-
-        ``ceded_index(k)`` maps ground-up indices ``k`` (amount ``origin + k h``, on the lattice
-        from 0) to ceded indices, ``0 <= c(k) <= k``.  The pmf of ``X`` is carried cell by cell
-        (a push-forward: errors unchanged, truncated mass stays beyond, where ``X`` is).
-        """
-        h = ground_up.step
-        k0 = round(ground_up.origin / h)
-        if k0 < 0 or abs(ground_up.origin / h - k0) > 1e-9 * max(1.0, abs(k0)):
-            raise ValueError("ground_up origin must be a non-negative whole multiple of its step")
-        k = k0 + np.arange(len(ground_up))
-        c = np.asarray(ceded_index(k), dtype=np.int64)
-        if c.shape != k.shape or np.any(c < 0) or np.any(c > k):
-            raise ValueError("ceded_index must map each index k to an integer in [0, k]")
-        r = k - c
-        pmf = np.zeros((int(r.max()) + 1, int(c.max()) + 1))
-        np.add.at(pmf, (r, c), ground_up.pmf)
-        e = ground_up.errors
-        out = cls(pmf, h, tails=(ground_up.truncated_mass, ground_up.truncated_mass))
-        out.errors = ErrorLedger(e.point, e.l1, out.errors.truncated, pmf.size,
-                                 e.truncated_moment, cum_bound(e))
-        mean_hi = ground_up._br().mean_range(ground_up._mean())[1]
-        out.means = (mean_hi, mean_hi)
-        return out
-
-    # -- push-forwards ---------------------------------------------------------------------
-    def _lattice(self, vec: np.ndarray, extra: float, truncated_from: int, mean: float
-                 ) -> Lattice:
-        """A Lattice from a pushed-forward vector: ``extra`` is mass that belongs on the grid
-        but is outside the rectangle (a computed error)."""
-        e = self.errors
-        merged = self.pmf.size // max(vec.size, 1) + 1
-        point = min(e.l1, merged * e.point) + extra
-        l1 = e.l1 + extra
-        cum = cum_bound(e) + extra
-        on_grid = self.step * float(np.dot(np.arange(vec.size), vec))
-        moment = math.inf if not math.isfinite(mean) else max(
-            mean * (1 + 4 * _U) - on_grid + l1 * self.step * vec.size, 1e-300)
-        if e.truncated_moment == 0 and extra == 0:
-            moment = 0.0
-        led = ErrorLedger(min(point, 2.0), min(l1, 2.0), 0.0, int(min(truncated_from, vec.size)),
-                          moment, min(cum, 2.0))
-        return Lattice._make(vec, self.step, 0.0, led)
-
-    def marginal(self, axis: int) -> Lattice:
-        """Law of ``X`` (``axis = 0``) or ``Y`` (``axis = 1``).
-
-        Mass with the other coordinate beyond the rectangle is missing from this marginal's
-        grid: its bound (``tails``) is added to the ledger's errors.
-        """
-        if axis not in (0, 1):
-            raise ValueError(f"axis must be 0 or 1; got {axis!r}")
-        vec = self.pmf.sum(axis=1 - axis)
-        return self._lattice(vec, self.tails[1 - axis], vec.size, self.means[axis])
-
-    def total(self) -> Lattice:
-        """Law of ``X + Y`` on ``n1 + n2 - 1`` points (sums of the anti-diagonals).
-
-        Mass outside the rectangle has ``X + Y >= min(n1, n2) h``: it is the truncated part,
-        lying from there (ledger ``truncated_from``).
-        """
-        n1, n2 = self.shape
-        return self._lattice(self.columns_pushed(np.arange(n2)), 0.0, min(n1, n2),
-                             self.means[0] + self.means[1])
-
-    def columns_pushed(self, offsets: np.ndarray, size: int | None = None) -> np.ndarray:
-        """``v[i + offsets[j]] += pmf[i, j]``: the pmf of ``X + phi(Y)`` on the grid (a raw
-        vector; ``size`` points, default ``n1 + max(offsets)``)."""
-        n1, n2 = self.shape
-        off = np.asarray(offsets, dtype=np.int64)
-        if off.shape != (n2,) or np.any(off < 0):
-            raise ValueError(f"offsets must be {n2} non-negative integers")
-        size = int(n1 + off.max()) if size is None else int(size)
-        out = np.zeros(size)
-        for j in range(n2):
-            o = int(off[j])
-            if o >= size:
-                continue
-            stop = min(n1, size - o)
-            out[o:o + stop] += self.pmf[:stop, j]
-        return out
-
-    def conditional_mean(self, axis: int) -> np.ndarray:
-        """``E[Y | X = i h]`` per row (``axis = 0``) or ``E[X | Y = j h]`` per column
-        (``axis = 1``), over the rectangle; ``nan`` where the conditioning cell has no mass."""
-        if axis not in (0, 1):
-            raise ValueError(f"axis must be 0 or 1; got {axis!r}")
-        p = self.pmf if axis == 0 else self.pmf.T
-        mass = p.sum(axis=1)
-        num = p @ (self.step * np.arange(p.shape[1]))
-        with np.errstate(invalid="ignore", divide="ignore"):
-            return np.where(mass > 0, num / np.where(mass > 0, mass, 1.0), np.nan)
-
-    def __add__(self, other: BivariateLattice) -> BivariateLattice:
-        """Independent sum ``(X1 + X2, Y1 + Y2)``: full 2-D convolution (zero-padded FFT).
-
-        Ledger: :func:`polyconv.dist.ledger.sum_errors` (Young's inequality holds on ``Z^2``);
-        rounding per point: Percival's bound at the level count of a length ``M1 M2``
-        transform (row-column algorithm).
-        """
-        if not isinstance(other, BivariateLattice):
-            return NotImplemented
-        if abs(self.step - other.step) > 1e-9 * self.step:
-            raise ValueError(f"steps differ ({self.step!r}, {other.step!r})")
-        a, b = self.pmf, other.pmf
-        s1, s2 = a.shape[0] + b.shape[0] - 1, a.shape[1] + b.shape[1] - 1
-        m1, m2 = tf.fast_length(s1, real=False), tf.fast_length(s2, real=True)
-        check_allocation(3 * 16 * m1 * (m2 // 2 + 1), f"a 2-D convolution of {s1} x {s2} points")
-        fa = _fft2(a, m1, m2)
-        fa *= _fft2(b, m1, m2)
-        c = np.clip(_ifft2(fa, m1, m2)[:s1, :s2], 0.0, 1.0)
-        r_point = accuracy.fft_product_bound(float(np.linalg.norm(a)), float(np.linalg.norm(b)),
-                                             m1 * m2)
-        ea, eb = self.errors, other.errors
-        ma, mb = float(a.sum()), float(b.sum())
-        point, l1, cum = sum_errors(ea, ma, float(a.max()), eb, mb, float(b.max()), r_point,
-                                    c.size * r_point)
-        out = BivariateLattice(np.minimum(c, 1.0), self.step,
-                               tails=(self.tails[0] + other.tails[0],
-                                      self.tails[1] + other.tails[1]),
-                               means=(self.means[0] + other.means[0],
-                                      self.means[1] + other.means[1]))
-        moment = 0.0 if out.errors.truncated == 0 and ea.truncated_moment == 0 and \
-            eb.truncated_moment == 0 else math.inf
-        out.errors = ErrorLedger(point, l1, out.errors.truncated, c.size, moment, cum)
-        return out
-
-
-def _fft2(a: np.ndarray, m1: int, m2: int) -> np.ndarray:
-    """Zero-padded real 2-D transform: ``rfft`` along axis 1, ``fft`` along axis 0."""
-    padded = np.zeros((m1, m2))
-    padded[: a.shape[0], : a.shape[1]] = a
-    half = tf.rfft(padded, -1, 1)
-    del padded
-    return tf.fft(half, 0, 1)
-
-
-def _ifft2(spec: np.ndarray, m1: int, m2: int) -> np.ndarray:
-    return tf.irfft(tf.ifft(spec, 0, 1), m2, -1, 1)
 
 
 def _axis_tail(law: CountsLaw, marginal: np.ndarray, x: float) -> float:
@@ -358,40 +149,32 @@ def compound2(counts, severity: BivariateLattice, shape: tuple[int, int] | None 
     w2 = np.exp(-th2 * np.arange(f.shape[1]))
     ft = f * w1[:, None] * w2[None, :]
     l1_tilted = float(np.sum(ft))
-    # rfft along the short axis of the (small) severity, then column blocks: fft along the
-    # long axis, P_N, inverse fft, keep the n1 rows wanted (memory ~ n1 x m2 / 2, not m1 x m2)
-    cols = np.ascontiguousarray(tf.rfft(tf.zero_padded(ft, m2), -1, 1).T)  # half x rows
-    del ft
-    spec = np.empty((half, n1), dtype=complex)
-    sq = lip_sq = 0.0
-    for c0 in range(0, half, COLUMN_BLOCK):
-        c1 = min(half, c0 + COLUMN_BLOCK)
-        buf = np.zeros((c1 - c0, m1), dtype=complex)  # contiguous along the long axis
-        buf[:, : cols.shape[1]] = cols[c0:c1]
-        phi = tf.fft(buf, -1, 1)
-        del buf
+    # the shared pruned 2-D transform (engines.fft_nd) with P_N applied per column block:
+    # memory ~ n1 x m2 / 2, not m1 x m2; the block sums give ||P_N(phi)||_2 and ||P_N'(phi)||_2
+    sums = {"sq": 0.0, "lip_sq": 0.0}
+
+    def pgf_of_block(phi: np.ndarray, c0: int, c1: int) -> np.ndarray:
         big = law.transform.pgf(phi)
-        weight = np.full(c1 - c0, 2.0)
-        weight[(np.arange(c0, c1) == 0) | ((np.arange(c0, c1) == m2 // 2) & (m2 % 2 == 0))] = 1
+        cols = np.arange(c0, c1)
+        weight = np.where((cols == 0) | ((cols == m2 // 2) & (m2 % 2 == 0)), 1.0, 2.0)
         mag = np.abs(big) ** 2
-        sq += float(np.sum(mag * weight[:, None]))
+        sums["sq"] += float(np.sum(mag * weight[:, None]))
         if law.transform.ratio is not None:  # |P'(phi)|^2 = |r(phi)|^2 |P(phi)|^2
-            lip_sq += float(np.sum(np.abs(law.transform.ratio(phi)) ** 2 * mag
-                                   * weight[:, None]))
+            sums["lip_sq"] += float(np.sum(np.abs(law.transform.ratio(phi)) ** 2 * mag
+                                           * weight[:, None]))
         else:
-            lip_sq = math.inf
-        del phi
-        spec[c0:c1] = tf.ifft(big, -1, 1)[:, :n1]
-        del big
-    del cols
-    l2_out = math.sqrt(sq / (m1 * m2))  # Parseval over the full (Hermitian) spectrum
+            sums["lip_sq"] = math.inf
+        return big
+
+    g = mapped_spectrum_2d(ft, (m1, m2), (n1, n2), pgf_of_block, COLUMN_BLOCK, ROW_BLOCK)
+    del ft
     u1, u2 = np.exp(th1 * np.arange(n1)), np.exp(th2 * np.arange(n2))
-    out = np.empty((n1, n2))
+    out = g  # untilted in place, a block of rows at a time
     for r0 in range(0, n1, ROW_BLOCK):
         r1 = min(n1, r0 + ROW_BLOCK)
-        g = tf.irfft(np.ascontiguousarray(spec[:, r0:r1].T), m2, -1, 1)[:, :n2]
-        out[r0:r1] = np.clip(g * u1[r0:r1, None] * u2[None, :], 0.0, 1.0)
-    del spec
+        np.clip(out[r0:r1] * u1[r0:r1, None] * u2[None, :], 0.0, 1.0, out=out[r0:r1])
+    sq, lip_sq = sums["sq"], sums["lip_sq"]
+    l2_out = math.sqrt(sq / (m1 * m2))  # Parseval over the full (Hermitian) spectrum
     # Lipschitz factor ||P'(phi)||_2 / sqrt(M) over the whole spectrum (at most E[N])
     lip = min(math.sqrt(lip_sq / (m1 * m2)), law.transform.mean)
     rounding = accuracy.transform_compound_floor(m1 * m2, l1_tilted, lip,

@@ -193,6 +193,29 @@ fft.__doc__ = "Complex forward FFT along ``axis``."
 ifft.__doc__ = "Complex inverse FFT along ``axis``, scaled by ``1/n``."
 
 
+def rfft_into(x: np.ndarray, out: np.ndarray, threads: int) -> None:
+    """Real forward FFT of ``x`` along its last axis written into ``out`` (a view is fine: the
+    leading rows of a larger zero array are how N-D products pad without a copy)."""
+    if _kernels is _DUCC:
+        _dfft.r2c(_as_float(x), (x.ndim - 1,), True, 0, out, threads)
+    elif _kernels is _DIRECT:
+        _pp.r2c(x, (x.ndim - 1,), True, 0, out, threads)
+    else:  # pragma: no cover - public scipy.fft only
+        out[...] = _sfft.rfft(x, axis=-1, workers=threads)
+
+
+def fft_inplace(x: np.ndarray, axis: int, forward: bool, threads: int) -> None:
+    """Complex FFT of ``x`` along ``axis``, in place (the inverse scaled by ``1/n``): the
+    passes of a row-column N-D transform after the first."""
+    inorm = 0 if forward else 2
+    if _kernels is _DUCC:
+        _dfft.c2c(x, (axis % x.ndim,), forward, inorm, x, threads)
+    elif _kernels is _DIRECT:
+        _pp.c2c(x, (axis % x.ndim,), forward, inorm, x, threads)
+    else:  # pragma: no cover - public scipy.fft only
+        x[...] = (_sfft.fft if forward else _sfft.ifft)(x, axis=axis, workers=threads)
+
+
 def zero_padded(x: np.ndarray, length: int, dtype=None) -> np.ndarray:
     """A new array with ``x`` along the last axis followed by zeros up to ``length``."""
     out = np.zeros(x.shape[:-1] + (length,), dtype=dtype or x.dtype)
