@@ -109,7 +109,7 @@ def prepare_nd(a, b, axes) -> NdPair:
     """
     x = inputs.as_number_array(a, "a")
     y = inputs.as_number_array(b, "b")
-    kind = inputs.combine_kinds(inputs._kind_of(x, "a"), inputs._kind_of(y, "b"))
+    kind = inputs.combine_kinds(inputs.kind_of(x, "a"), inputs.kind_of(y, "b"))
     if x.ndim != y.ndim:
         raise ValueError(f"with axes=, a and b must have the same number of dimensions; got "
                          f"a.ndim={x.ndim} and b.ndim={y.ndim}")
