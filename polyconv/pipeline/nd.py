@@ -146,10 +146,12 @@ def run_float(the_plan: NdPlan, x: np.ndarray, y: np.ndarray) -> np.ndarray:
         out = np.array(out, copy=True)
         out[np.broadcast_to(hit, out.shape)] = np.nan
         return out
+    # scaled by powers of two (exact, real or complex; Python floats keep the precision)
     ex = math.frexp(float(np.max(np.abs(x))))[1]
     ey = math.frexp(float(np.max(np.abs(y))))[1]
     with np.errstate(invalid="ignore", over="ignore"):
-        return np.ldexp(product(np.ldexp(x, -ex), np.ldexp(y, -ey)), ex + ey)
+        out = product(x * math.ldexp(1.0, -ex), y * math.ldexp(1.0, -ey))
+        return out * math.ldexp(1.0, ex) * math.ldexp(1.0, ey)
 
 
 def _reach(mask: np.ndarray, other: tuple, windows: tuple) -> np.ndarray:
