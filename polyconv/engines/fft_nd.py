@@ -171,9 +171,12 @@ def convolve_direct_nd(a: np.ndarray, b: np.ndarray, windows: tuple) -> np.ndarr
     full = tuple(n1 + n2 - 1 for n1, n2 in zip(ext_a, ext_b, strict=True))
     out = np.zeros(batch + full, dtype=np.result_type(a.dtype, b.dtype))
     spread = (np.newaxis,) * d
+    scaled = np.empty(batch + tuple(ext_a), dtype=out.dtype)  # one buffer for every pass
     for idx in np.ndindex(*ext_b):
         target = (Ellipsis,) + tuple(slice(j, j + n) for j, n in zip(idx, ext_a, strict=True))
-        out[target] += a * b[(Ellipsis,) + idx + spread]
+        np.multiply(a, b[(Ellipsis,) + idx + spread], out=scaled)
+        window = out[target]
+        np.add(window, scaled, out=window)
     return out[(Ellipsis,) + tuple(slice(start, stop) for start, stop in windows)]
 
 

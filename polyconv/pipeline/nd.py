@@ -35,6 +35,7 @@ import math
 import numpy as np
 
 from ..engines import fft_nd
+from ..engines.fft_nd import GROUP_BYTES
 from ..numerics.bounds import (
     convolution_error_bound,
     fft_error_bound,
@@ -72,7 +73,10 @@ def _float_plan(pair: ax.NdPair, modes, windows, method) -> NdPlan:
     rows = math.prod(pair.batch_shape) if pair.batch_shape else 1
     result = rows * math.prod(the_plan.output_shape) * coefficient_bytes(pair.kind)
     work = 0.0
-    if the_plan.transform_shape:
+    if the_plan.engine == "overlap-add":  # the padded copy of the long operand, one group
+        work = 8.0 * max(pair.a.size, pair.b.size) * (2 if pair.kind == "complex" else 1) \
+            + TRANSFORM_ARRAYS * GROUP_BYTES
+    elif the_plan.transform_shape:
         work = TRANSFORM_ARRAYS * 16.0 * math.prod(the_plan.transform_shape) * rows
     sa, sb = pair.shapes
     check_allocation(result + work, f"the product of a {sa} and b {sb} over axes={pair.axes}"
@@ -142,10 +146,12 @@ def run_float(the_plan: NdPlan, x: np.ndarray, y: np.ndarray) -> np.ndarray:
         out = np.array(out, copy=True)
         out[np.broadcast_to(hit, out.shape)] = np.nan
         return out
+    # scaled by powers of two (exact, real or complex; Python floats keep the precision)
     ex = math.frexp(float(np.max(np.abs(x))))[1]
     ey = math.frexp(float(np.max(np.abs(y))))[1]
     with np.errstate(invalid="ignore", over="ignore"):
-        return np.ldexp(product(np.ldexp(x, -ex), np.ldexp(y, -ey)), ex + ey)
+        out = product(x * math.ldexp(1.0, -ex), y * math.ldexp(1.0, -ey))
+        return out * math.ldexp(1.0, ex) * math.ldexp(1.0, ey)
 
 
 def _reach(mask: np.ndarray, other: tuple, windows: tuple) -> np.ndarray:
