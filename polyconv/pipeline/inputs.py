@@ -19,6 +19,7 @@ Kinds
 from __future__ import annotations
 
 import numbers
+from collections.abc import Iterable
 from dataclasses import dataclass
 
 import numpy as np
@@ -313,3 +314,19 @@ def check_sequence(x, name: str, *, unit: str = "element", what: str = "", hint:
     arr = as_number_array(x, name)
     check_vector_shape(arr, name, unit=unit, what=what, hint=hint, allow_empty=allow_empty)
     return arr, kind_of(arr, name)
+
+
+def _article(noun: str) -> str:
+    return ("an " if noun[:1].lower() in "aeiou" else "a ") + noun
+
+
+def check_sequences(x, name: str, *, what: str, one: str):
+    """An iterator over ``x``, an iterable of 1-D sequences (``what`` says which); TypeError
+    naming ``name`` for what is not one: None, a number, a string, a set or dict, a 0-d or 1-D
+    numpy array (numpy would iterate it as scalars; ``one`` says how to pass a single one)."""
+    if (isinstance(x, (str, bytes, set, frozenset, dict)) or not isinstance(x, Iterable)
+            or (isinstance(x, np.ndarray) and x.ndim < 2)):
+        got = (f"a {x.ndim}-D numpy array ({one})" if isinstance(x, np.ndarray) else
+               "None" if x is None else _article(type(x).__name__))
+        raise TypeError(f"{name} must be an iterable of 1-D arrays, {what}; got {got}")
+    return iter(x)
