@@ -4,6 +4,12 @@ This is the first stage of the data flow ``inputs -> planning -> engine -> shape
 computes a product: it checks what the caller gave, names the argument at fault when something is
 wrong, moves the convolution axis last and decides which *kind* of arithmetic the operands need.
 
+It is also polyconv's one place for argument checks (the algebra, streaming and Dask entry points
+call the same functions): :func:`check_sequence` (one 1-D numeric sequence), :func:`check_sequences`
+(an iterable of them), :func:`check_count` (a whole number with a lower bound), :func:`check_mode`,
+:func:`check_length` and :func:`check_modulus`.  Every refusal names the argument as the caller
+wrote it and says what was expected: ``"<name> must be <expected>; got <what was given>"``.
+
 Kinds
 -----
 ``"real"``
