@@ -117,6 +117,10 @@ def kind_of(arr: np.ndarray, name: str) -> str:
     return _object_kind(arr, name) if kind is None else kind
 
 
+#: The former private name, still used by branch nd (pipeline/axes); remove once it says kind_of.
+_kind_of = kind_of
+
+
 def dtype_kind(dtype: np.dtype, name: str) -> str | None:
     """The kind of a numeric dtype; None for object arrays (their entries decide, see
     :func:`kind_of`); TypeError naming ``name`` for anything else (strings, dates, records)."""
