@@ -1,4 +1,5 @@
-"""Argument checks of the polynomial algebra and its memory-budget check for chains of products."""
+"""The algebra's wording of the shared argument checks (:mod:`polyconv.pipeline.inputs`) and its
+memory-budget check for chains of products."""
 
 from __future__ import annotations
 

@@ -24,6 +24,7 @@ import numpy as np
 from ..engines import jit_state as jit
 from ..engines import ntt_batch
 from ..numerics.limits import max_abs
+from ..pipeline.inputs import check_sequences
 from . import rings
 from .checks import (
     _check_chain,
@@ -261,11 +262,10 @@ def product(seqs: Iterable, *, modulus: int | None = None, length: int | None = 
 
 
 def _factors(seqs) -> tuple[list[np.ndarray], str]:
-    if isinstance(seqs, (str, bytes)) or not isinstance(seqs, Iterable):
-        raise TypeError(f"seqs must be an iterable of 1-D sequences (a list of coefficient "
-                        f"arrays); got {type(seqs).__name__}")
     factors, kinds = [], []
-    for i, s in enumerate(seqs):
+    given = check_sequences(seqs, "seqs", what="the factors (a list of coefficient arrays)",
+                            one="product([a]), not product(a)")
+    for i, s in enumerate(given):
         arr, kind = _sequence(s, f"seqs[{i}]",
                               hint=" (seqs is a list of polynomials: product([a]), not product(a))")
         factors.append(arr)

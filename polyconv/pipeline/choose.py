@@ -29,7 +29,7 @@ from ..numerics.limits import residues_fit_int64
 from ..tuning import costs as _costs
 from ..tuning.costs import load_costs
 from ..tuning.threads import THREADS
-from .plan import Plan, check_method, format_seconds, output_length
+from .plan import Plan, check_method, engine_settings, format_seconds, output_length
 
 #: Seconds of the runner's Python per row when an exact engine runs row by row (measured:
 #: 100 rows of 8 x 8 through direct-exact, 12-20 us per row); ``exact.per_row_call`` in a cost
@@ -112,7 +112,7 @@ def _choose_cached(generation: int, kind: str, n1: int, n2: int, batch_a: tuple,
     common = dict(kind=kind, mode=mode, lengths=(n1, n2), batch_shape=batch,
                   output_length=out_len, transform_length=fields.get("transform_length"),
                   threads=fields.get("threads", 1), alternatives=ranked,
-                  settings=tuple(sorted(settings.items())))
+                  settings=engine_settings(name, settings))
     if not engine.exact:
         return Plan(name, False, "none", math.inf, chosen.seconds,
                     _float_reason(name, method, ranked),

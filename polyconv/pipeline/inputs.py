@@ -4,6 +4,12 @@ This is the first stage of the data flow ``inputs -> planning -> engine -> shape
 computes a product: it checks what the caller gave, names the argument at fault when something is
 wrong, moves the convolution axis last and decides which *kind* of arithmetic the operands need.
 
+It is also polyconv's one place for argument checks (the algebra, streaming and Dask entry points
+call the same functions): :func:`check_sequence` (one 1-D numeric sequence), :func:`check_sequences`
+(an iterable of them), :func:`check_count` (a whole number with a lower bound), :func:`check_mode`,
+:func:`check_length` and :func:`check_modulus`.  Every refusal names the argument as the caller
+wrote it and says what was expected: ``"<name> must be <expected>; got <what was given>"``.
+
 Kinds
 -----
 ``"real"``
@@ -19,6 +25,7 @@ Kinds
 from __future__ import annotations
 
 import numbers
+from collections.abc import Iterable
 from dataclasses import dataclass
 
 import numpy as np
@@ -108,6 +115,10 @@ def kind_of(arr: np.ndarray, name: str) -> str:
     """
     kind = dtype_kind(arr.dtype, name)
     return _object_kind(arr, name) if kind is None else kind
+
+
+#: The former private name, still used by branch nd (pipeline/axes); remove once it says kind_of.
+_kind_of = kind_of
 
 
 def dtype_kind(dtype: np.dtype, name: str) -> str | None:
@@ -313,3 +324,19 @@ def check_sequence(x, name: str, *, unit: str = "element", what: str = "", hint:
     arr = as_number_array(x, name)
     check_vector_shape(arr, name, unit=unit, what=what, hint=hint, allow_empty=allow_empty)
     return arr, kind_of(arr, name)
+
+
+def _article(noun: str) -> str:
+    return ("an " if noun[:1].lower() in "aeiou" else "a ") + noun
+
+
+def check_sequences(x, name: str, *, what: str, one: str):
+    """An iterator over ``x``, an iterable of 1-D sequences (``what`` says which); TypeError
+    naming ``name`` for what is not one: None, a number, a string, a set or dict, a 0-d or 1-D
+    numpy array (numpy would iterate it as scalars; ``one`` says how to pass a single one)."""
+    if (isinstance(x, (str, bytes, set, frozenset, dict)) or not isinstance(x, Iterable)
+            or (isinstance(x, np.ndarray) and x.ndim < 2)):
+        got = (f"a {x.ndim}-D numpy array ({one})" if isinstance(x, np.ndarray) else
+               "None" if x is None else _article(type(x).__name__))
+        raise TypeError(f"{name} must be an iterable of 1-D arrays, {what}; got {got}")
+    return iter(x)

@@ -7,7 +7,7 @@ Mode arithmetic: numpy.convolve's definitions of "full", "same" and "valid" (``o
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, fields
 
 from ..engines.registry import REGISTRY
 
@@ -15,6 +15,99 @@ from ..engines.registry import REGISTRY
 METHODS = ("auto",) + tuple(REGISTRY)
 
 _CERTIFICATES = ("bound", "check", "construction", "none")
+
+
+# ----------------------------------------------------------------------------- engine settings
+# One typed, immutable record per engine family: the engine parameters a Plan carries beyond its
+# own fields (transform_length, block_length, threads).  A record iterates as (name, value) pairs,
+# so ``dict(plan.settings)`` and the "settings:" line of ``str(plan)`` read every family alike.
+
+
+class _Settings:
+    """Iteration, length and lookup shared by the settings records."""
+
+    __slots__ = ()
+
+    def __iter__(self):
+        return iter([(f.name, getattr(self, f.name)) for f in fields(self)])
+
+    def __len__(self) -> int:
+        return len(fields(self))
+
+
+@dataclass(frozen=True, slots=True)
+class FloatSettings(_Settings):
+    """Float engines ("direct", "fft", "overlap-add"): every parameter is a Plan field."""
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class ExactSettings(_Settings):
+    """Every exact engine ("direct-exact", "kronecker" as they are).
+
+    Attributes
+    ----------
+    product_int64 : bool
+        The bound ``min(n1, n2) max|a| max|b| < 2^63`` holds: the engine may return int64.
+    """
+
+    product_int64: bool
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class RoundedFftSettings(ExactSettings):
+    """"fft-exact": one rounded float FFT product.
+
+    Attributes
+    ----------
+    circular : bool
+        Mode "valid": a circular product of length ``max(n1, n2)`` is computed (its tail is read).
+    """
+
+    circular: bool
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class LimbSettings(RoundedFftSettings):
+    """"limbs": operands split into ``limbs_a`` and ``limbs_b`` limbs of ``limb_bits`` bits."""
+
+    limb_bits: int
+    limbs_a: int
+    limbs_b: int
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class NttSettings(ExactSettings):
+    """"ntt": the NTT primes (one prime modulus, or primes recombined by Garner's CRT)."""
+
+    ntt_primes: tuple
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class CompiledNttSettings(ExactSettings):
+    """"ntt-compiled": the coefficient bound its primes are chosen from (0 for a modulus)."""
+
+    ntt_bound: int
+
+
+#: Every settings record; :func:`engine_settings` picks the one whose fields an offer names.
+SETTINGS_RECORDS = (FloatSettings, ExactSettings, RoundedFftSettings, LimbSettings, NttSettings,
+                    CompiledNttSettings)
+
+
+def engine_settings(engine: str, values: dict) -> _Settings:
+    """The typed record holding an engine's offered parameters ``values`` (all of them).
+
+    Raises
+    ------
+    TypeError
+        No record has exactly these fields: a new engine parameter needs its record here.
+    """
+    names = set(values)
+    for record in SETTINGS_RECORDS:
+        if names == {f.name for f in fields(record)}:
+            return record(**values)
+    raise TypeError(f"engine {engine!r} offered settings {sorted(names)} that no settings record "
+                    "of polyconv.pipeline.plan holds; add one (SETTINGS_RECORDS)")
 
 
 @dataclass(frozen=True, slots=True)
@@ -57,8 +150,10 @@ class Plan:
         Threads the engine may use.
     alternatives : tuple of (str, float)
         Every engine considered with its predicted seconds, fastest first.
-    settings : tuple of (str, value)
-        Further engine parameters (limb sizes and counts for "limbs").
+    settings : FloatSettings, ExactSettings, RoundedFftSettings, LimbSettings, NttSettings or
+        CompiledNttSettings
+        Further engine parameters, one typed record per engine family (limb sizes and counts
+        for "limbs"...); it iterates as ``(name, value)`` pairs.
     fallback : str or None
         For certificate "check": the engine that recomputes the product if the check fails.
     modulus : int or None
@@ -82,17 +177,14 @@ class Plan:
     block_length: int | None = None
     threads: int = 1
     alternatives: tuple = field(default=())
-    settings: tuple = ()
+    settings: _Settings = FloatSettings()
     fallback: str | None = None
     modulus: int | None = None
     output_int64: bool = False
 
     def setting(self, name: str, default=None):
         """The engine parameter ``name`` from :attr:`settings` (``default`` if absent)."""
-        for key, value in self.settings:
-            if key == name:
-                return value
-        return default
+        return getattr(self.settings, name, default)
 
     def __str__(self) -> str:
         n1, n2 = self.lengths

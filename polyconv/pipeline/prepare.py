@@ -86,8 +86,7 @@ def check_budget(the_plan: Plan, kind: str, bits: int, length: int | None) -> No
     if the_plan.transform_length:
         arrays = TRANSFORM_ARRAYS
         if the_plan.engine == "limbs":
-            ka, kb = the_plan.setting("limbs_a"), the_plan.setting("limbs_b")
-            arrays = 2 * (ka + kb)
+            arrays = 2 * (the_plan.settings.limbs_a + the_plan.settings.limbs_b)
         work = arrays * 16.0 * the_plan.transform_length * (1 if the_plan.exact else rows)
     n1, n2 = the_plan.lengths
     if length is not None and length > n1 + n2 - 1:

@@ -2,8 +2,9 @@
 
 Modules: :mod:`.overlap` (overlap-add state and the exact-sum policy of block products),
 :mod:`.streaming` (:func:`convolve_chunks`, :func:`convolve_file`), :mod:`.npyio` (the ``.npy``
-block reader and the atomic ``.npy`` writer), :mod:`.dask` (:func:`convolve_dask`,
-:func:`exact_product_dask`; dask is imported only when one of them is called).
+block reader and the atomic ``.npy`` writer), :mod:`.dask` (:func:`convolve_dask`, lazy
+overlap-add), :mod:`.dask_exact` (:func:`exact_product_dask`, block products as tasks) and
+:mod:`.dask_common` (what both share); dask is imported only when one of them is called.
 """
 
 from __future__ import annotations

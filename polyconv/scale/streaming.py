@@ -30,6 +30,7 @@ from ..pipeline.inputs import (
     check_count,
     check_modulus,
     check_sequence,
+    check_sequences,
     combine_kinds,
     dtype_kind,
 )
@@ -133,23 +134,11 @@ def convolve_chunks(chunks: Iterable, kernel, *,
     >>> np.concatenate(list(parts))
     array([1, 3, 5, 3])
     """
-    pieces = _check_chunks(chunks)
+    pieces = check_sequences(chunks, "chunks", what="consecutive pieces of the signal (a list, "
+                             "a generator, ...)", one="pass [x] for a single chunk")
     k, kernel_kind = check_kernel(kernel)
     check_modulus(modulus)
     return _chunk_products(pieces, k, kernel_kind, modulus)
-
-
-def _check_chunks(chunks) -> Iterator:
-    """An iterator over ``chunks``; TypeError naming ``chunks`` for what is not a sequence of
-    chunks (numpy would iterate a 1-D array as scalars, a string as characters)."""
-    if (isinstance(chunks, (str, bytes, set, frozenset, dict)) or not isinstance(chunks, Iterable)
-            or (isinstance(chunks, np.ndarray) and chunks.ndim < 2)):
-        what = (f"a {chunks.ndim}-D numpy array (pass [x] for a single chunk)"
-                if isinstance(chunks, np.ndarray) else
-                "None" if chunks is None else f"a {type(chunks).__name__}")
-        raise TypeError("chunks must be an iterable of 1-D arrays, consecutive pieces of the "
-                        f"signal (a list, a generator, ...); got {what}")
-    return iter(chunks)
 
 
 def _chunk_products(chunks: Iterator, k: np.ndarray, kernel_kind: str,

@@ -321,7 +321,7 @@ def test_chunks_bad_inputs():
 
 
 @pytest.mark.parametrize("chunks, said", [
-    (None, "got None"), (5, "got a int"), ("123", "got a str"), ({1, 2}, "got a set"),
+    (None, "got None"), (5, "got an int"), ("123", "got a str"), ({1, 2}, "got a set"),
     (np.arange(4), r"1-D numpy array \(pass \[x\]"),
 ])
 def test_chunks_that_are_not_a_sequence_of_chunks_are_refused_at_the_call(chunks, said):
