@@ -34,7 +34,6 @@ import warnings
 from typing import NamedTuple
 
 import numpy as np
-from scipy import stats
 
 from ..numerics import budget
 from . import law_moments
@@ -76,6 +75,8 @@ class LawAccess:
     """
 
     def __init__(self, law, name: str = "law"):
+        from scipy import stats  # on first use: about a second cold (tests/test_import_light.py)
+
         self.name = name
         if isinstance(law, (stats.rv_continuous, stats.rv_discrete)):
             family = type(law).__name__.removesuffix("_gen")
