@@ -52,7 +52,7 @@ MAX_POINTS = 1 << 24
 here with a :class:`TruncationWarning`, a longer explicit ``size`` is refused."""
 
 FROM_LAW_BYTES_PER_POINT = 64
-"""Peak bytes per point of ``lattice_from_law`` (edges, cdf/sf values, differences, the pmf and
+"""Peak bytes per point of :func:`law_grid` (edges, cdf/sf values, differences, the pmf and
 scipy's temporaries), checked against the memory budget before allocating."""
 
 _OFFSET = {"nearest": 0.5, "down": 1.0, "up": 0.0}
