@@ -38,6 +38,12 @@ def test_import_dist_loads_no_scipy_stats():
     assert loaded == ["polyconv.dist"]
 
 
+def test_command_line_parser_loads_no_scipy_stats():
+    # every command (even `polyconv multiply`) builds the parser of all sub-commands first
+    loaded = _loaded_after("from polyconv.cli.main import build_parser\nbuild_parser()")
+    assert "scipy.stats" not in loaded and "matplotlib" not in loaded
+
+
 def test_from_import_dist_still_works():
     # `from polyconv import dist` must give the same module as attribute access
     code = ("import polyconv\nfrom polyconv import dist\n"

@@ -43,8 +43,6 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 
-from scipy import stats
-
 from ..dist import Lattice, compound
 from . import distribution_report as skeleton
 from . import grid_mass, laws
@@ -165,6 +163,8 @@ def _on_step(value: float, step: float) -> bool:
 
 def parse_counts(sec: Section) -> tuple[object, str]:
     """The claim-count law as a frozen scipy.stats distribution and a description."""
+    from scipy import stats  # on first use: every command builds the parser (test_import_light)
+
     law = sec.string("law", choices=COUNT_LAWS)
     if law == "poisson":
         sec.check_keys(("law", "mean"))
