@@ -87,9 +87,7 @@ def exp_series(a, length: int, *, modulus: int | None = None) -> np.ndarray:
     >>> exp_series([0, 1], 5, modulus=101).tolist()   # 1, 1, 1/2, 1/6, 1/24 mod 101
     [1, 1, 51, 17, 80]
     """
-    arr, ring, n = _prepare(a, length, modulus)
-    if isinstance(ring, _Modular):
-        check_units(ring.modulus, n - 1, f"exp_series(a, length={n})")
+    arr, ring, n = _prepare(a, length, modulus, units="exp_series")
     x = ring.convert(arr[:n])
     if isinstance(ring, _Floats):
         c = x[0]
@@ -142,9 +140,7 @@ def log_series(a, length: int, *, modulus: int | None = None) -> np.ndarray:
     >>> log_series([1.0, 1.0], 5).round(12).tolist()   # log(1 + x)
     [0.0, 1.0, -0.5, 0.333333333333, -0.25]
     """
-    arr, ring, n = _prepare(a, length, modulus)
-    if isinstance(ring, _Modular):
-        check_units(ring.modulus, n - 1, f"log_series(a, length={n})")
+    arr, ring, n = _prepare(a, length, modulus, units="log_series")
     x = ring.convert(arr[:n])
     if isinstance(ring, _Floats):
         c = x[0]
@@ -341,12 +337,16 @@ def _power_core(ring: _Ring, u: np.ndarray, r, n: int) -> np.ndarray:
 # ----------------------------------------------------------------------------- validation
 
 
-def _prepare(a, length, modulus) -> tuple[np.ndarray, _Ring, int]:
+def _prepare(a, length, modulus, units: str | None = None) -> tuple[np.ndarray, _Ring, int]:
+    """Checked ``a``, its ring and the length; with ``units`` (the caller's name) also that
+    ``1..length-1`` are units modulo the modulus (exp and log divide by them)."""
     arr, kind = _sequence(a, "a")
     n = _check_length(length, required=True)
     m = _check_modulus(modulus, kind, "a holds")
     ring = _ring_for(kind, m)
     _check_chain(ring, n, 0, f"series of length={n}")
+    if units is not None and isinstance(ring, _Modular):
+        check_units(ring.modulus, n - 1, f"{units}(a, length={n})")
     return arr, ring, n
 
 

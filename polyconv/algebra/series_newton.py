@@ -183,6 +183,16 @@ def _exp_base(ring: _Ring, a: np.ndarray, n: int, inverses: np.ndarray) -> np.nd
     return ring.convert(np.array(b, dtype=object))
 
 
+def _newton_steps(n: int, start: int):
+    """The Newton steps from ``start`` known terms to ``n``: pairs ``(m, target)``, the length
+    before a step and after it (each step ends where the next begins; :func:`_precisions`)."""
+    m = start
+    for target in _precisions(n):
+        if target > m:
+            yield m, target
+            m = target
+
+
 def exp_newton(ring: _Ring, a: np.ndarray, n: int, inverses: np.ndarray) -> np.ndarray:
     """``exp(a) mod x^n`` for ``a_0 = 0``; ``inverses`` holds ``1/1 .. 1/n``.  Cost about
     ``4 U(n)``.
@@ -200,10 +210,7 @@ def exp_newton(ring: _Ring, a: np.ndarray, n: int, inverses: np.ndarray) -> np.n
         return f
     da = derivative(ring, _fit(a, n))  # n - 1 terms
     g = _inverse(ring, f, base, ring.unit_inverse(f[0]))
-    for target in _precisions(n):
-        m = f.shape[0]
-        if target <= m:
-            continue
+    for m, target in _newton_steps(n, base):
         h = target - m
         g = _grow_inverse(ring, f, g, h)
         s = ring.mul(da[: target - 1], f, mode="valid")  # coefficients m-1 .. target-2 of f a'
@@ -241,10 +248,7 @@ def sqrt_newton(ring: _Ring, a: np.ndarray, n: int, root) -> np.ndarray:
     a = _fit(a, n)
     half = ring.unit_inverse(2)
     g = _inverse(ring, s, base, ring.unit_inverse(root))
-    for target in _precisions(n):
-        m = s.shape[0]
-        if target <= m:
-            continue
+    for m, target in _newton_steps(n, base):
         h = target - m
         g = _grow_inverse(ring, s, g, h)
         square = _fit(ring.mul(s, s, length=target), target)

@@ -24,7 +24,6 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy import stats
 
 from ..dist import Lattice
 from .spec import Section
@@ -66,6 +65,8 @@ def describe_kind(sec: Section) -> str:
 
 def frozen_law(sec: Section):
     """The frozen scipy.stats continuous law named by ``law`` with keyword ``params``."""
+    from scipy import stats  # on first use: every command builds the parser (test_import_light)
+
     name = sec.string("law")
     dist = getattr(stats, name, None)
     if not isinstance(dist, stats.rv_continuous):

@@ -24,8 +24,6 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import stats
-from scipy.special import logsumexp
 
 from .transform import TransformLaw, integer_power
 
@@ -91,6 +89,8 @@ def classify(counts) -> CountsLaw:
     carried = getattr(counts, "polyconv_counts", None)  # laws of polyconv.dist.count_laws
     if isinstance(carried, CountsLaw):
         return carried
+    from scipy import stats  # on first use: about a second cold (tests/test_import_light.py)
+
     dist = getattr(counts, "dist", None)
     if isinstance(dist, stats.rv_continuous):
         raise TypeError(f"counts must be a discrete law of claim counts (values 0, 1, 2, ...), "
@@ -205,6 +205,8 @@ def _generic(counts, name: str) -> CountsLaw:
         for c in pn[::-1]:
             acc = acc * z + c
         return acc * integer_power(z, lo) if lo else acc
+
+    from scipy.special import logsumexp  # on first use (tests/test_import_light.py)
 
     def log_pgf_real(s: float) -> float:
         return float(logsumexp(logp + ns * s))

@@ -34,7 +34,6 @@ import warnings
 from typing import NamedTuple
 
 import numpy as np
-from scipy import stats
 
 from ..numerics import budget
 from . import law_moments
@@ -53,7 +52,7 @@ MAX_POINTS = 1 << 24
 here with a :class:`TruncationWarning`, a longer explicit ``size`` is refused."""
 
 FROM_LAW_BYTES_PER_POINT = 64
-"""Peak bytes per point of ``lattice_from_law`` (edges, cdf/sf values, differences, the pmf and
+"""Peak bytes per point of :func:`law_grid` (edges, cdf/sf values, differences, the pmf and
 scipy's temporaries), checked against the memory budget before allocating."""
 
 _OFFSET = {"nearest": 0.5, "down": 1.0, "up": 0.0}
@@ -76,6 +75,8 @@ class LawAccess:
     """
 
     def __init__(self, law, name: str = "law"):
+        from scipy import stats  # on first use: about a second cold (tests/test_import_light.py)
+
         self.name = name
         if isinstance(law, (stats.rv_continuous, stats.rv_discrete)):
             family = type(law).__name__.removesuffix("_gen")

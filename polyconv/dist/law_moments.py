@@ -25,7 +25,6 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import special, stats
 
 GENERIC_POINTS = 2048
 """Riemann-sum points of the generic tail-moment bound."""
@@ -39,6 +38,8 @@ def _standard(frozen):
 
 def _standard_tail(name: str, shapes: tuple, z: float) -> float | None:
     """``G(z) = E[Y 1{Y > z}]`` for the standard member, or None without a closed form."""
+    from scipy import special  # on first use (import cost: tests/test_import_light.py)
+
     if name == "expon":
         return 1.0 if z <= 0 else (z + 1.0) * math.exp(-z)
     if name == "gamma":
@@ -82,6 +83,8 @@ def _standard_tail2(name: str, shapes: tuple, z: float) -> float | None:
     (integrals of ``y^2`` against the densities: incomplete gamma functions for expon, gamma,
     weibull_min and invgamma, ``E[e^{2sZ} 1{Z > c}] = e^{2 s^2} Phi(2s - c)`` for lognorm, powers
     for pareto and lomax; common practice, no source)."""
+    from scipy import special  # on first use (import cost: tests/test_import_light.py)
+
     if name == "expon":
         return 2.0 if z <= 0 else (z * z + 2.0 * z + 2.0) * math.exp(-z)
     if name == "gamma":
@@ -221,4 +224,6 @@ def limited_mean(frozen, u: float) -> float:
 
 def is_scipy_continuous(obj) -> bool:
     """A frozen scipy.stats continuous law."""
+    from scipy import stats  # on first use: about a second cold (tests/test_import_light.py)
+
     return isinstance(getattr(obj, "dist", None), stats.rv_continuous)

@@ -36,7 +36,6 @@ import math
 import numbers
 
 import numpy as np
-from scipy import special
 
 from ..numerics.budget import check_allocation
 from .accuracy import UNIT_ROUNDOFF
@@ -70,6 +69,8 @@ def _groups(delays: list[Lattice], copies: int) -> tuple[list[Lattice], list[int
 def _binomial_terms(m: int, f: np.ndarray, s: np.ndarray, top: int) -> np.ndarray:
     """``P(Bin(m, F) = j)`` for ``j = 0..top`` (rows) at every point (columns), from logs of
     ``F`` and of ``S = 1 - F`` given separately (no ``1 - F`` rounding)."""
+    from scipy import special  # on first use (import cost: tests/test_import_light.py)
+
     j = np.arange(top + 1, dtype=float)[:, None]
     logc = special.gammaln(m + 1.0) - special.gammaln(j + 1.0) - special.gammaln(m - j + 1.0)
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -81,6 +82,8 @@ def _binomial_terms(m: int, f: np.ndarray, s: np.ndarray, top: int) -> np.ndarra
 
 def _at_least(m: int, r: np.ndarray, f: np.ndarray) -> np.ndarray:
     """``P(Bin(m, F) >= r)`` (rows ``r``): ``I_F(r, m - r + 1)``; 1 for ``r <= 0``, 0 above m."""
+    from scipy import special  # on first use (import cost: tests/test_import_light.py)
+
     rr = r[:, None].astype(float)
     with np.errstate(invalid="ignore"):
         val = special.betainc(np.maximum(rr, 1.0), np.maximum(m - rr + 1.0, 1.0), f[None, :])
@@ -91,6 +94,8 @@ def _count_tails(k: int, mult: list[int], fs: list[np.ndarray], ss: list[np.ndar
                  ) -> tuple[np.ndarray, np.ndarray]:
     """``(P(C >= k), P(C < k))`` at each point for groups of multiplicity ``mult`` with
     finished / unfinished probabilities ``fs`` / ``ss``."""
+    from scipy import special  # on first use (import cost: tests/test_import_light.py)
+
     n = sum(mult)
     if len(mult) == 1:
         m, f, s = mult[0], fs[0], ss[0]

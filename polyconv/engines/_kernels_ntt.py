@@ -1,4 +1,4 @@
-"""Compiled (numba) kernels of the NTT engines: transforms, products, Garner CRT, residues.
+"""Compiled (numba) kernels of the NTT engines: transforms and products modulo a prime.
 
 Import this module only through :func:`polyconv.engines.jit_state.kernels`, which decides the
 cache directory before numba is imported and records whether the kernels were compiled or loaded

@@ -96,14 +96,8 @@ def convolve_kronecker(a: np.ndarray, b: np.ndarray, keep: int | None = None, *,
     square = b is a
     a, b, count = _leading(a, b, keep)
     width = slot_width(slot_bound(a, b))
-    if two_point is None:
-        two_point = uses_two_point(width, a.shape[0], b.shape[0], threads)
-    if two_point and count >= 2:
-        out = _two_point(a, b, width, count, threads, _intpack.pack, _intpack.unpack_signed,
-                         square)
-    else:
-        z = _intpack.pack(a, width) * _intpack.pack(b, width)
-        out = _intpack.unpack_signed(z, width, count)
+    out = _substituted(a, b, width, count, threads, two_point, square, _intpack.pack,
+                       _intpack.unpack_signed)
     return _as_requested(out, as_int64)
 
 
@@ -111,6 +105,21 @@ def _as_requested(out: np.ndarray, as_int64: bool) -> np.ndarray:
     if as_int64:
         return out if out.dtype == np.int64 else out.astype(np.int64)
     return out if out.dtype == object else out.astype(object)
+
+
+def _substituted(a: np.ndarray, b: np.ndarray, width: int, count: int, threads: int,
+                 two_point: bool | None, square: bool, pack: Callable,
+                 unpack: Callable) -> np.ndarray:
+    """The product by substitution at ``2^(8 width)`` (one big product) or at ``+-2^h``
+    (:func:`_two_point`; ``two_point=None``: :func:`uses_two_point` decides), with the slot
+    writer ``pack`` and reader ``unpack`` of the operands' representation."""
+    if two_point is None:
+        two_point = uses_two_point(width, a.shape[0], b.shape[0], threads)
+    if two_point and count >= 2:
+        return _two_point(a, b, width, count, threads, pack, unpack, square)
+    packed = pack(a, width)
+    z = gmpy2.square(packed) if square else packed * pack(b, width)
+    return unpack(z, width, count)
 
 
 def _two_point(a: np.ndarray, b: np.ndarray, width: int, count: int, threads: int,
@@ -174,15 +183,8 @@ def multiply_rows(a: np.ndarray, b: np.ndarray, keep: int | None = None, *,
     bits_a, bits_b = bits if bits is not None else (_intpack.row_bits(a), _intpack.row_bits(b))
     bound = min(a.shape[0], b.shape[0]) << (bits_a + bits_b)
     width = max(slot_width(bound), a.shape[1], b.shape[1])
-    if two_point is None:
-        two_point = uses_two_point(width, a.shape[0], b.shape[0], threads)
-    if two_point and count >= 2:
-        out = _two_point(a, b, width, count, threads, _intpack.pack_rows, _intpack.unpack_rows,
-                         square)
-    else:
-        packed = _intpack.pack_rows(a, width)
-        z = gmpy2.square(packed) if square else packed * _intpack.pack_rows(b, width)
-        out = _intpack.unpack_rows(z, width, count)
+    out = _substituted(a, b, width, count, threads, two_point, square, _intpack.pack_rows,
+                       _intpack.unpack_rows)
     return _intpack.trim_rows(out)
 
 
