@@ -67,11 +67,11 @@ Spec format (polyconv's own keys; unknown keys are refused)::
 
 A stage named in several places is **one draw** (the same host, cache or queue), conditioned on
 exactly (see :mod:`polyconv.dist.network`); give each use its own stage when they are truly
-independent.  Measured stages (``samples_file``, ``histogram``) carry the Dvoretzky-Kiefer-
-Wolfowitz band (Massart's constant) of their sample size at the report's joint confidence
-(split over the measured stages by Bonferroni's inequality); tail probabilities past the data
-are bounds, and the report says how many samples back each percentile.  Inline ``samples`` and
-``values`` tables are taken as exact laws.
+independent.  Measured stages (``samples_file``, ``histogram``, inline ``samples``, ``values``
+with ``counts``) carry the Dvoretzky-Kiefer-Wolfowitz band (Massart's constant) of their
+sample size at the report's joint confidence (split over the measured stages by Bonferroni's
+inequality); tail probabilities past the data are bounds, and the report says how many samples
+back each percentile.  Only ``values`` with ``probabilities`` is taken as an exact law.
 
 Outputs in the report folder (see :mod:`polyconv.cli.distribution_report`): ``summary.md``,
 ``summary.json``, ``delays.csv`` (delay, probability, cdf, exceedance), ``measures.csv`` (every

@@ -155,8 +155,11 @@ def _weights(counts, size: int) -> np.ndarray | None:
         raise ValueError(f"counts must have one entry per sample ({size}); got {w.size}")
     if np.any(w < 0):
         raise ValueError("counts must be non-negative")
-    if not w.sum() > 0:
+    total = float(w.sum())
+    if not total > 0:
         raise ValueError("counts must not all be zero")
+    if not math.isfinite(total):
+        raise ValueError("counts must have a finite sum (they overflow a float)")
     return w
 
 

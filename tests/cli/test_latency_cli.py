@@ -65,6 +65,36 @@ column = "latency_ms"
     assert med == 0.5 * np.sort(k)[math.ceil(0.5 * x.size) - 1]
 
 
+def test_inline_samples_and_counted_values_carry_the_dkw_band(tmp_path, capsys):
+    x = [31, 35, 29, 44, 38, 41, 33, 30, 52, 36]
+    spec = write(tmp_path, "s.toml", f"""unit = "ms"
+[grid]
+step = 1.0
+[report]
+deadlines = [60.0]
+confidence = 0.9
+[network]
+in_sequence = ["pick", "pack", "label"]
+[stage.pick]
+samples = {x}
+[stage.pack]
+values = [2, 3, 5]
+counts = [70, 20, 10]
+[stage.label]
+values = [1, 2]
+probabilities = [0.5, 0.5]
+""")
+    code, s, err = run_json(["delays", str(spec), "-o", str(tmp_path / "r")], capsys)
+    assert code == 0, err
+    # Massart (1990) at alpha = 0.1 split over the two measured stages (Bonferroni)
+    bands = {n: m["band"] for n, m in s["measured_stages"].items()}
+    assert bands == {"pick": pytest.approx(dkw_epsilon(10, 0.05), rel=1e-12),
+                     "pack": pytest.approx(dkw_epsilon(100, 0.05), rel=1e-12)}
+    # past the largest possible total (52 + 5 + 2) the data say only P <= the bands' sum
+    miss = s["miss_probability"][0]
+    assert miss["low"] == 0 and miss["high"] >= dkw_epsilon(10, 0.05) + dkw_epsilon(100, 0.05)
+
+
 def test_histogram_and_units_convert_onto_the_grid(tmp_path, capsys):
     spec = write(tmp_path, "s.toml", """unit = "ms"
 [grid]
