@@ -8,7 +8,9 @@ laws, retries' failure probabilities, sensitivity and targets, reliability outpu
 
 from __future__ import annotations
 
+import contextlib
 import math
+import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -125,6 +127,20 @@ def _measured(spec: DelaySpec, name: str, sec: Section, alpha: float) -> Sampled
         raise sec.error(key, f"{source}: {exc}") from None
 
 
+@contextlib.contextmanager
+def stage_warnings(spec: DelaySpec, name: str, sec: Section, own_unit: float = 1.0):
+    """Library warnings raised while one stage is built, re-issued naming the stage; a law
+    built in the stage's own unit (``own_unit`` grid units per stage unit, not 1) says so, since
+    its step and suggestion are in that unit."""
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        yield
+    unit = f" (in {sec.string('unit')}: the grid step {spec.step:g} {spec.unit} is " \
+        f"{spec.step / own_unit:g} {sec.string('unit')})" if own_unit != 1.0 else ""
+    for w in caught:
+        warnings.warn(f"stage {name}: {w.message}{unit}", w.category, stacklevel=3)
+
+
 def is_measured(sec: Section) -> bool:
     """Measured data, which carries the sample-size band: a samples file, a histogram, inline
     ``samples`` or ``values`` with ``counts`` (``values`` with ``probabilities`` is a law)."""
@@ -181,7 +197,8 @@ def compute(spec: DelaySpec, steps: Steps | None = None) -> DelayResult:
         for name in measured:
             if steps:
                 steps.step(f"stage {name}")
-            s = _measured(spec, name, leaves[name], alpha)
+            with stage_warnings(spec, name, leaves[name]):
+                s = _measured(spec, name, leaves[name], alpha)
             sampled[name] = s
             nodes[name] = s.lattice
             what = {"histogram": f"histogram of {s.n:,.0f} samples",
@@ -196,8 +213,9 @@ def compute(spec: DelaySpec, steps: Steps | None = None) -> DelayResult:
             if steps:
                 steps.step(f"stage {name}")
             c = leaf_factor(spec, sec)
-            built = laws.build(_plain(sec), spec.step / c, rule=spec.rule,
-                               max_points=spec.max_points, points=points)
+            with stage_warnings(spec, name, sec, c):
+                built = laws.build(_plain(sec), spec.step / c, rule=spec.rule,
+                                   max_points=spec.max_points, points=points)
             lat = built.lattice if c == 1.0 else _relabel(built.lattice, c, spec.step)
             notes.extend(f"stage {name}: {n}" for n in built.notes)
             descriptions[name] = built.description + (f" (in {sec.string('unit')})"

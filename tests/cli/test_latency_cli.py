@@ -95,6 +95,31 @@ probabilities = [0.5, 0.5]
     assert miss["low"] == 0 and miss["high"] >= dkw_epsilon(10, 0.05) + dkw_epsilon(100, 0.05)
 
 
+def test_microsecond_stages_on_a_millisecond_step_warn_naming_the_stage(tmp_path, capsys):
+    spec = write(tmp_path, "s.toml", """unit = "ms"
+[grid]
+step = 1.0
+[network]
+in_sequence = ["parse", "cache", "probe"]
+[stage.parse]
+law = "gamma"
+params = { a = 4.0, scale = 2.5 }
+[stage.cache]
+law = "gamma"
+params = { a = 3.0, scale = 20.0 }
+unit = "us"
+[stage.probe]
+samples = [41, 52, 47, 60, 39, 44, 58, 50, 45, 49]
+unit = "us"
+""")
+    code, s, err = run_json(["delays", str(spec), "-o", str(tmp_path / "r")], capsys)
+    assert code == 0, err
+    notes = "\n".join(s["notes"])
+    assert "stage cache: step 1000 is too coarse" in notes and "(in us:" in notes
+    assert "stage probe: step 1 is much coarser than the samples' spread" in notes
+    assert "stage parse" not in notes  # a 10 ms gamma on a 1 ms step is fine
+
+
 def test_histogram_and_units_convert_onto_the_grid(tmp_path, capsys):
     spec = write(tmp_path, "s.toml", """unit = "ms"
 [grid]
