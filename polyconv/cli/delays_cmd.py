@@ -201,9 +201,12 @@ def extra_tables(res: DelayResult) -> list[skeleton.Table]:
               "yes" if r["supported"] else "no: the level is inside the band (read the range)"]
              for r in support]))
         out.append(skeleton.Table(
-            "Measured stages", ["stage", "samples", "band (DKW, Massart)", "largest sample"],
+            "Measured stages", ["stage", "samples", "band (DKW, Massart)", "largest sample",
+                                "samples beyond its p50 / p99"],
             [[name, f"{s.n:,.0f}", f"+/- {s.eps:.2e} at alpha {s.alpha:.2g}",
-              f"{fmt(s.largest)} {u}"] for name, s in res.sampled.items()]))
+              f"{fmt(s.largest)} {u}",
+              f"{samples_beyond(s.n, 0.5):,} / {samples_beyond(s.n, 0.99):,}"]
+             for name, s in res.sampled.items()]))
     if res.retries:
         rows = []
         for name, f in res.retries.items():
@@ -264,6 +267,8 @@ def report_of(res: DelayResult) -> skeleton.DistributionReport:
              "shared_stages": res.shared, "sample_support": sample_support(res),
              "measured_stages": {n: {"samples": s.n, "band": s.eps, "alpha": s.alpha,
                                      "largest": s.largest,
+                                     "samples_beyond_p50": samples_beyond(s.n, 0.5),
+                                     "samples_beyond_p99": samples_beyond(s.n, 0.99),
                                      "tail": s.tail.description if s.tail else None}
                                  for n, s in res.sampled.items()},
              "retries_and_hedges": res.retries,

@@ -59,6 +59,9 @@ column = "latency_ms"
     sup = {r["percentile"]: r for r in s["sample_support"]}
     assert sup[99]["samples_beyond"] == 500 and sup[99]["supported"]
     assert sup[99.999]["samples_beyond"] == 0 and not sup[99.999]["supported"]
+    # the stage's own percentiles say how many samples back them: floor(n (1 - q)), by hand
+    db = s["measured_stages"]["db"]
+    assert db["samples_beyond_p50"] == 25_000 and db["samples_beyond_p99"] == 500
     # the median is the binned empirical median (numpy reference, nearest rule)
     med = s["percentiles"][0]["value"]
     k = np.floor(x / 0.5 + 0.5)
