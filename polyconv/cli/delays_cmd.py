@@ -27,6 +27,7 @@ Spec format (polyconv's own keys; unknown keys are refused)::
     law = "gamma"
     params = { a = 3.0, scale = 4.0 }
     unit = "s"                        # optional: this stage's unit (converted onto the grid)
+    scale = 0.8                       # optional: the stage's delay times this (any stage form)
 
     [stage.pick]                      # ... or a table: samples, values + probabilities/counts
     samples = [31, 35, 29, 44, 38]

@@ -81,7 +81,7 @@ def _measured(spec: DelaySpec, name: str, sec: Section, alpha: float) -> Sampled
     upper = sec.number("upper", None, positive=True) if sec.has("upper") else None
     upper = None if upper is None else upper * c
     if form == "histogram":
-        sec.check_keys(("histogram", "unit", "upper"))
+        sec.check_keys(("histogram", "unit", "scale", "upper"))
         hist = sec.table("histogram")
         hist.check_keys(("edges", "counts"))
         edges = [e * c for e in hist.numbers("edges", minimum=0.0)]
@@ -91,7 +91,7 @@ def _measured(spec: DelaySpec, name: str, sec: Section, alpha: float) -> Sampled
         except ValueError as exc:
             raise hist.error("counts", str(exc)) from None
     if form == "table":  # values with counts: measured values, each seen counts[i] times
-        sec.check_keys(("values", "counts", "unit", "upper"))
+        sec.check_keys(("values", "counts", "unit", "scale", "upper"))
         values = sec.numbers("values", minimum=0.0)
         counts = sec.numbers("counts", minimum=0.0)
         if len(counts) != len(values):
@@ -104,7 +104,7 @@ def _measured(spec: DelaySpec, name: str, sec: Section, alpha: float) -> Sampled
             raise sec.error("counts", str(exc)) from None
     key, source = ("samples", "inline") if form == "samples" else ("samples_file", None)
     if form == "samples":
-        sec.check_keys(("samples", "unit", "tail", "upper"))
+        sec.check_keys(("samples", "unit", "scale", "tail", "upper"))
         x = np.asarray(sec.numbers("samples", minimum=0.0), dtype=float)
     else:
         x, source = _file_samples(spec, sec)
@@ -136,7 +136,9 @@ def stage_warnings(spec: DelaySpec, name: str, sec: Section, own_unit: float = 1
         warnings.simplefilter("always")
         yield
     unit = f" (in {sec.string('unit')}: the grid step {spec.step:g} {spec.unit} is " \
-        f"{spec.step / own_unit:g} {sec.string('unit')})" if own_unit != 1.0 else ""
+        f"{spec.step / own_unit:g} {sec.string('unit')}" + \
+        (", scale included)" if sec.has("scale") else ")") if own_unit != 1.0 and \
+        sec.has("unit") else ""
     for w in caught:
         warnings.warn(f"stage {name}: {w.message}{unit}", w.category, stacklevel=3)
 
@@ -150,7 +152,7 @@ def is_measured(sec: Section) -> bool:
 
 
 def _file_samples(spec: DelaySpec, sec: Section) -> tuple[np.ndarray, str]:
-    sec.check_keys(("samples_file", "column", "unit", "tail", "upper"))
+    sec.check_keys(("samples_file", "column", "unit", "scale", "tail", "upper"))
     path = Path(sec.string("samples_file"))
     if not path.is_absolute():
         path = spec.doc.base_dir / path
@@ -205,7 +207,9 @@ def compute(spec: DelaySpec, steps: Steps | None = None) -> DelayResult:
                     "samples": f"{s.n:,.0f} samples (inline)",
                     "table": f"{s.n:,.0f} measured values (with counts)"}.get(
                 leaf_form(leaves[name]), f"{s.n:,.0f} measured samples")
-            descriptions[name] = what + (f"; {s.tail.description}" if s.tail else "")
+            descriptions[name] = what + (f"; {s.tail.description}" if s.tail else "") + \
+                (f"; delays x {leaves[name].number('scale'):g}" if leaves[name].has("scale")
+                 else "")
         points = _horizon(spec, leaves, sampled, notes)
         for name, sec in leaves.items():
             if name in sampled:
@@ -219,7 +223,8 @@ def compute(spec: DelaySpec, steps: Steps | None = None) -> DelayResult:
             lat = built.lattice if c == 1.0 else _relabel(built.lattice, c, spec.step)
             notes.extend(f"stage {name}: {n}" for n in built.notes)
             descriptions[name] = built.description + (f" (in {sec.string('unit')})"
-                                                      if sec.has("unit") else "")
+                                                      if sec.has("unit") else "") + \
+                (f" x {sec.number('scale'):g}" if sec.has("scale") else "")
             grid_mass.require_mass(lat, 0.0, *grid_mass.leaf_fail(sec),
                                    f"stage {name} ({built.description})", spec.unit)
             nodes[name] = lat

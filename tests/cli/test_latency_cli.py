@@ -123,6 +123,35 @@ unit = "us"
     assert "stage parse" not in notes  # a 10 ms gamma on a 1 ms step is fine
 
 
+def test_stage_scale_is_the_delay_multiplied(tmp_path, capsys):
+    base = """unit = "ms"
+[grid]
+step = 1.0
+[report]
+percentiles = [50, 99]
+[network]
+in_sequence = ["a", "b"]
+[stage.a]
+values = [10, 20, 40]
+probabilities = [0.5, 0.3, 0.2]
+{scale_a}
+[stage.b]
+law = "gamma"
+params = {{ a = 3.0, scale = 10.0 }}
+{scale_b}
+"""
+    spec = write(tmp_path, "s.toml", base.format(scale_a="scale = 0.5", scale_b="scale = 2.0"))
+    code, s, err = run_json(["delays", str(spec), "-o", str(tmp_path / "r")], capsys)
+    assert code == 0, err
+    # reference: a x 0.5 = values 5, 10, 20; b x 2 = gamma(3, scale 20) (scaling a gamma law)
+    ref = write(tmp_path, "r.toml", base.format(scale_a="", scale_b="").replace(
+        "values = [10, 20, 40]", "values = [5, 10, 20]").replace("scale = 10.0", "scale = 20.0"))
+    code, r, err = run_json(["delays", str(ref), "-o", str(tmp_path / "r2")], capsys)
+    assert code == 0, err
+    assert [x["value"] for x in s["percentiles"]] == [x["value"] for x in r["percentiles"]]
+    assert s["mean"]["value"] == pytest.approx(r["mean"]["value"], rel=1e-12)
+
+
 def test_histogram_and_units_convert_onto_the_grid(tmp_path, capsys):
     spec = write(tmp_path, "s.toml", """unit = "ms"
 [grid]
