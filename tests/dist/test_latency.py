@@ -230,6 +230,7 @@ def test_shared_stage_under_a_sum_by_values():
     (("a", "m", "c", "a"), lambda v: 2 * v[0] + max(v[0], v[1]) + v[2]),  # grouped, vectorised
     (("q", "c", "a"), lambda v: v[0] + min(max(v[0], v[1]), v[2]) + v[2]),  # two shared: by point
     (("r", "a"), lambda v: v[0] + v[0] + v[2]),  # a sum below the sum: by point
+    (("a", "b", "a"), lambda v: 2 * v[0] + v[1]),  # grouped: a + a is 2 a
 ])
 def test_shared_stage_under_a_sum_routes_against_enumeration(parts, fn):
     stages = {"a": A, "b": B, "c": C, "m": Block("all_of", ("a", "b")),
