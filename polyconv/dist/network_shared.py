@@ -96,16 +96,18 @@ def _sum_pattern(net, name: str, here: list[str], fixed, replace):
         return None
     sub = net._subtrees()
     todo = [others[0]]
+    reached = False  # S itself is reached (not hidden in a replaced or fixed block)
     while todo:
         n = todo.pop()
         block = net.nodes[n]
+        reached = reached or n == s
         if n == s or n in fixed or n in replace or not isinstance(block, Block) or \
                 s not in sub[n]:
             continue
         if block.kind not in BOOLEAN_KINDS or (block.kind == "k_of" and block.copies > 1):
             return None
         todo.extend(block.parts)
-    return c, others[0]
+    return (c, others[0]) if reached else None
 
 
 def _multiple(law: Lattice, c: int) -> Lattice:
