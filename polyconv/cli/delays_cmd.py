@@ -27,6 +27,7 @@ Spec format (polyconv's own keys; unknown keys are refused)::
     law = "gamma"
     params = { a = 3.0, scale = 4.0 }
     unit = "s"                        # optional: this stage's unit (converted onto the grid)
+    scale = 0.8                       # optional: the stage's delay times this (any stage form)
 
     [stage.pick]                      # ... or a table: samples, values + probabilities/counts
     samples = [31, 35, 29, 44, 38]
@@ -67,11 +68,11 @@ Spec format (polyconv's own keys; unknown keys are refused)::
 
 A stage named in several places is **one draw** (the same host, cache or queue), conditioned on
 exactly (see :mod:`polyconv.dist.network`); give each use its own stage when they are truly
-independent.  Measured stages (``samples_file``, ``histogram``) carry the Dvoretzky-Kiefer-
-Wolfowitz band (Massart's constant) of their sample size at the report's joint confidence
-(split over the measured stages by Bonferroni's inequality); tail probabilities past the data
-are bounds, and the report says how many samples back each percentile.  Inline ``samples`` and
-``values`` tables are taken as exact laws.
+independent.  Measured stages (``samples_file``, ``histogram``, inline ``samples``, ``values``
+with ``counts``) carry the Dvoretzky-Kiefer-Wolfowitz band (Massart's constant) of their
+sample size at the report's joint confidence (split over the measured stages by Bonferroni's
+inequality); tail probabilities past the data are bounds, and the report says how many samples
+back each percentile.  Only ``values`` with ``probabilities`` is taken as an exact law.
 
 Outputs in the report folder (see :mod:`polyconv.cli.distribution_report`): ``summary.md``,
 ``summary.json``, ``delays.csv`` (delay, probability, cdf, exceedance), ``measures.csv`` (every
@@ -201,9 +202,12 @@ def extra_tables(res: DelayResult) -> list[skeleton.Table]:
               "yes" if r["supported"] else "no: the level is inside the band (read the range)"]
              for r in support]))
         out.append(skeleton.Table(
-            "Measured stages", ["stage", "samples", "band (DKW, Massart)", "largest sample"],
+            "Measured stages", ["stage", "samples", "band (DKW, Massart)", "largest sample",
+                                "samples beyond its p50 / p99"],
             [[name, f"{s.n:,.0f}", f"+/- {s.eps:.2e} at alpha {s.alpha:.2g}",
-              f"{fmt(s.largest)} {u}"] for name, s in res.sampled.items()]))
+              f"{fmt(s.largest)} {u}",
+              f"{samples_beyond(s.n, 0.5):,} / {samples_beyond(s.n, 0.99):,}"]
+             for name, s in res.sampled.items()]))
     if res.retries:
         rows = []
         for name, f in res.retries.items():
@@ -264,6 +268,8 @@ def report_of(res: DelayResult) -> skeleton.DistributionReport:
              "shared_stages": res.shared, "sample_support": sample_support(res),
              "measured_stages": {n: {"samples": s.n, "band": s.eps, "alpha": s.alpha,
                                      "largest": s.largest,
+                                     "samples_beyond_p50": samples_beyond(s.n, 0.5),
+                                     "samples_beyond_p99": samples_beyond(s.n, 0.99),
                                      "tail": s.tail.description if s.tail else None}
                                  for n, s in res.sampled.items()},
              "retries_and_hedges": res.retries,

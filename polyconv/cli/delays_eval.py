@@ -8,7 +8,9 @@ laws, retries' failure probabilities, sensitivity and targets, reliability outpu
 
 from __future__ import annotations
 
+import contextlib
 import math
+import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -79,7 +81,7 @@ def _measured(spec: DelaySpec, name: str, sec: Section, alpha: float) -> Sampled
     upper = sec.number("upper", None, positive=True) if sec.has("upper") else None
     upper = None if upper is None else upper * c
     if form == "histogram":
-        sec.check_keys(("histogram", "unit", "upper"))
+        sec.check_keys(("histogram", "unit", "scale", "upper"))
         hist = sec.table("histogram")
         hist.check_keys(("edges", "counts"))
         edges = [e * c for e in hist.numbers("edges", minimum=0.0)]
@@ -88,7 +90,69 @@ def _measured(spec: DelaySpec, name: str, sec: Section, alpha: float) -> Sampled
             return from_histogram(edges, counts, step=spec.step, alpha=alpha, upper=upper)
         except ValueError as exc:
             raise hist.error("counts", str(exc)) from None
-    sec.check_keys(("samples_file", "column", "unit", "tail", "upper"))
+    if form == "table":  # values with counts: measured values, each seen counts[i] times
+        sec.check_keys(("values", "counts", "unit", "scale", "upper"))
+        values = sec.numbers("values", minimum=0.0)
+        counts = sec.numbers("counts", minimum=0.0)
+        if len(counts) != len(values):
+            raise sec.error("counts", f"has {len(counts)} entries but 'values' has "
+                            f"{len(values)}")
+        try:
+            return empirical(np.asarray(values) * c, counts=counts, step=spec.step,
+                             alpha=alpha, upper=upper)
+        except ValueError as exc:
+            raise sec.error("counts", str(exc)) from None
+    key, source = ("samples", "inline") if form == "samples" else ("samples_file", None)
+    if form == "samples":
+        sec.check_keys(("samples", "unit", "scale", "tail", "upper"))
+        x = np.asarray(sec.numbers("samples", minimum=0.0), dtype=float)
+    else:
+        x, source = _file_samples(spec, sec)
+    if c != 1.0:
+        x = x * c
+    tail = None
+    if sec.has("tail"):
+        t = sec.table("tail")
+        t.check_keys(("threshold", "law"))
+        tail = {"threshold": t.number("threshold", minimum=0.0) * c,
+                "law": t.string("law", "genpareto", ("genpareto", "expon"))}
+    if float(x.max()) / spec.step > spec.max_points:
+        raise sec.error(key, f"samples reach {float(x.max()):g} {spec.unit}, which "
+                        f"needs more than grid.max_points = {spec.max_points} points of step "
+                        f"{spec.step:g}; coarsen grid.step or raise grid.max_points")
+    try:
+        return empirical(x, step=spec.step, alpha=alpha, upper=upper, tail=tail,
+                         size=spec.max_points if tail else None)
+    except ValueError as exc:
+        raise sec.error(key, f"{source}: {exc}") from None
+
+
+@contextlib.contextmanager
+def stage_warnings(spec: DelaySpec, name: str, sec: Section, own_unit: float = 1.0):
+    """Library warnings raised while one stage is built, re-issued naming the stage; a law
+    built in the stage's own unit (``own_unit`` grid units per stage unit, not 1) says so, since
+    its step and suggestion are in that unit."""
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        yield
+    unit = f" (in {sec.string('unit')}: the grid step {spec.step:g} {spec.unit} is " \
+        f"{spec.step / own_unit:g} {sec.string('unit')}" + \
+        (", scale included)" if sec.has("scale") else ")") if own_unit != 1.0 and \
+        sec.has("unit") else ""
+    for w in caught:
+        warnings.warn(f"stage {name}: {w.message}{unit}", w.category, stacklevel=3)
+
+
+def is_measured(sec: Section) -> bool:
+    """Measured data, which carries the sample-size band: a samples file, a histogram, inline
+    ``samples`` or ``values`` with ``counts`` (``values`` with ``probabilities`` is a law)."""
+    form = leaf_form(sec)
+    return form in ("samples_file", "histogram", "samples") or \
+        (form == "table" and sec.has("counts"))
+
+
+def _file_samples(spec: DelaySpec, sec: Section) -> tuple[np.ndarray, str]:
+    sec.check_keys(("samples_file", "column", "unit", "scale", "tail", "upper"))
     path = Path(sec.string("samples_file"))
     if not path.is_absolute():
         path = spec.doc.base_dir / path
@@ -101,23 +165,7 @@ def _measured(spec: DelaySpec, name: str, sec: Section, alpha: float) -> Sampled
         raise sec.error("samples_file", str(exc)) from None
     if x.size == 0:
         raise sec.error("samples_file", f"{path.name} holds no samples")
-    if c != 1.0:
-        x = x * c
-    tail = None
-    if sec.has("tail"):
-        t = sec.table("tail")
-        t.check_keys(("threshold", "law"))
-        tail = {"threshold": t.number("threshold", minimum=0.0) * c,
-                "law": t.string("law", "genpareto", ("genpareto", "expon"))}
-    if float(x.max()) / spec.step > spec.max_points:
-        raise sec.error("samples_file", f"samples reach {float(x.max()):g} {spec.unit}, which "
-                        f"needs more than grid.max_points = {spec.max_points} points of step "
-                        f"{spec.step:g}; coarsen grid.step or raise grid.max_points")
-    try:
-        return empirical(x, step=spec.step, alpha=alpha, upper=upper, tail=tail,
-                         size=spec.max_points if tail else None)
-    except ValueError as exc:
-        raise sec.error("samples_file", f"{path.name}: {exc}") from None
+    return x, path.name
 
 
 def _relabel(lat: Lattice, c: float, step: float) -> Lattice:
@@ -143,7 +191,7 @@ def compute(spec: DelaySpec, steps: Steps | None = None) -> DelayResult:
     descriptions: dict[str, str] = {}
     used = used_sections(spec)
     leaves = {n: s for n, s in used.items() if block_kind(s) == "leaf"}
-    measured = [n for n, s in leaves.items() if leaf_form(s) in ("samples_file", "histogram")]
+    measured = [n for n, s in leaves.items() if is_measured(s)]
     alpha = stage_alpha(1 - spec.confidence, len(measured))
     nodes: dict[str, Lattice | Block] = {}
     sampled: dict[str, Sampled] = {}
@@ -151,12 +199,17 @@ def compute(spec: DelaySpec, steps: Steps | None = None) -> DelayResult:
         for name in measured:
             if steps:
                 steps.step(f"stage {name}")
-            s = _measured(spec, name, leaves[name], alpha)
+            with stage_warnings(spec, name, leaves[name]):
+                s = _measured(spec, name, leaves[name], alpha)
             sampled[name] = s
             nodes[name] = s.lattice
-            what = f"{s.n:,.0f} measured samples" if leaf_form(leaves[name]) != "histogram" \
-                else f"histogram of {s.n:,.0f} samples"
-            descriptions[name] = what + (f"; {s.tail.description}" if s.tail else "")
+            what = {"histogram": f"histogram of {s.n:,.0f} samples",
+                    "samples": f"{s.n:,.0f} samples (inline)",
+                    "table": f"{s.n:,.0f} measured values (with counts)"}.get(
+                leaf_form(leaves[name]), f"{s.n:,.0f} measured samples")
+            descriptions[name] = what + (f"; {s.tail.description}" if s.tail else "") + \
+                (f"; delays x {leaves[name].number('scale'):g}" if leaves[name].has("scale")
+                 else "")
         points = _horizon(spec, leaves, sampled, notes)
         for name, sec in leaves.items():
             if name in sampled:
@@ -164,12 +217,14 @@ def compute(spec: DelaySpec, steps: Steps | None = None) -> DelayResult:
             if steps:
                 steps.step(f"stage {name}")
             c = leaf_factor(spec, sec)
-            built = laws.build(_plain(sec), spec.step / c, rule=spec.rule,
-                               max_points=spec.max_points, points=points)
+            with stage_warnings(spec, name, sec, c):
+                built = laws.build(_plain(sec), spec.step / c, rule=spec.rule,
+                                   max_points=spec.max_points, points=points)
             lat = built.lattice if c == 1.0 else _relabel(built.lattice, c, spec.step)
             notes.extend(f"stage {name}: {n}" for n in built.notes)
             descriptions[name] = built.description + (f" (in {sec.string('unit')})"
-                                                      if sec.has("unit") else "")
+                                                      if sec.has("unit") else "") + \
+                (f" x {sec.number('scale'):g}" if sec.has("scale") else "")
             grid_mass.require_mass(lat, 0.0, *grid_mass.leaf_fail(sec),
                                    f"stage {name} ({built.description})", spec.unit)
             nodes[name] = lat

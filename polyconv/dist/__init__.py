@@ -91,3 +91,4 @@ __all__ = [
     "largest_claim", "occurrence_exceedance", "aggregate_exceedance", "return_period_table",
     "claims_severity", "claims_counts", "wang", "proportional_hazard", "layer_table",
 ]
+

@@ -28,8 +28,6 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import special, stats
-from scipy.special import logsumexp
 
 from .counts import CountsLaw, classify
 from .transform import TransformLaw
@@ -38,28 +36,41 @@ QUADRATURE_NODES = 64
 """Nodes of the Gauss rule used for inverse Gaussian and lognormal mixing."""
 
 
-class _TableCounts(stats.rv_discrete):
-    """A count law given by a pmf function, mean and variance (internal)."""
+def _table_counts(pmf_fn, mean: float, var: float, name: str):
+    """A frozen scipy.stats discrete law given by a pmf function, mean and variance (the class
+    is built on first use so that importing this module does not load scipy.stats)."""
+    global _TABLE_COUNTS
+    if _TABLE_COUNTS is None:
+        from scipy import stats
 
-    def __new__(cls, *args, **kwds):  # rv_discrete.__new__ inspects 'values' only
-        return object.__new__(cls)
+        class _TableCounts(stats.rv_discrete):
+            """A count law given by a pmf function, mean and variance (internal)."""
 
-    def __init__(self, pmf_fn=None, mean: float = 0.0, var: float = 0.0, name: str = "counts",
-                 **kw):
-        kw.pop("a", None)
-        super().__init__(a=0, name=name, **kw)
-        self._fn, self._m, self._v = pmf_fn, mean, var
+            def __new__(cls, *args, **kwds):  # rv_discrete.__new__ inspects 'values' only
+                return object.__new__(cls)
 
-    def _updated_ctor_param(self):  # scipy re-creates the instance when freezing
-        d = super()._updated_ctor_param()
-        d.update(pmf_fn=self._fn, mean=self._m, var=self._v)
-        return d
+            def __init__(self, pmf_fn=None, mean: float = 0.0, var: float = 0.0, name: str = "counts",
+                         **kw):
+                kw.pop("a", None)
+                super().__init__(a=0, name=name, **kw)
+                self._fn, self._m, self._v = pmf_fn, mean, var
 
-    def _pmf(self, k):
-        return self._fn(np.asarray(k, dtype=float))
+            def _updated_ctor_param(self):  # scipy re-creates the instance when freezing
+                d = super()._updated_ctor_param()
+                d.update(pmf_fn=self._fn, mean=self._m, var=self._v)
+                return d
 
-    def _stats(self):
-        return self._m, self._v, None, None
+            def _pmf(self, k):
+                return self._fn(np.asarray(k, dtype=float))
+
+            def _stats(self):
+                return self._m, self._v, None, None
+
+        _TABLE_COUNTS = _TableCounts
+    return _TABLE_COUNTS(pmf_fn, mean, var, name)()
+
+
+_TABLE_COUNTS = None
 
 
 def _attach(frozen, law: CountsLaw):
@@ -119,7 +130,7 @@ def zero_modified(counts, p0: float):
     def pmf_fn(k):
         return np.where(k == 0, p0, scale * counts.pmf(k))
 
-    frozen = _TableCounts(pmf_fn, mean, second - mean * mean, law.name.replace(" ", "_"))()
+    frozen = _table_counts(pmf_fn, mean, second - mean * mean, law.name.replace(" ", "_"))
     return _attach(frozen, law)
 
 
@@ -130,6 +141,9 @@ def zero_truncated(counts):
 
 def poisson_mixture(weights, means, name: str = "poisson_mixture"):
     """``sum_i w_i Poisson(mu_i)`` as a count law (PGF ``sum_i w_i exp(mu_i (z - 1))``)."""
+    from scipy import stats
+    from scipy.special import logsumexp
+
     w = np.asarray(weights, dtype=float)
     mu = np.asarray(means, dtype=float)
     if w.shape != mu.shape or w.ndim != 1 or w.size == 0:
@@ -161,7 +175,7 @@ def poisson_mixture(weights, means, name: str = "poisson_mixture"):
         return np.sum(w[:, None] * stats.poisson.pmf(np.atleast_1d(k)[None, :], mu[:, None]),
                       axis=0).reshape(np.shape(k))
 
-    frozen = _TableCounts(pmf_fn, mean, second - mean * mean, name)()
+    frozen = _table_counts(pmf_fn, mean, second - mean * mean, name)
     return _attach(frozen, law)
 
 
@@ -174,6 +188,8 @@ def mixed_poisson(mean: float, mixing: str, cv: float):
     law has the attribute ``quadrature_gap`` (its variance minus the exact mixed variance
     ``mean + mean^2 cv^2``).
     """
+    from scipy import special, stats
+
     if not (mean > 0 and math.isfinite(mean) and cv > 0 and math.isfinite(cv)):
         raise ValueError(f"mean and cv must be positive and finite; got {mean!r}, {cv!r}")
     if mixing == "gamma":
@@ -204,6 +220,8 @@ def mixed_poisson(mean: float, mixing: str, cv: float):
 def empirical_counts(values, probabilities=None):
     """A count law from observed counts per year (each weight ``1/n``) or from ``values`` with
     their ``probabilities`` (summing to 1, not renormalised)."""
+    from scipy import stats
+
     v = np.asarray(values)
     if v.ndim != 1 or v.size == 0 or np.any(v < 0) or np.any(v != np.round(v)):
         raise ValueError("values must be a non-empty list of non-negative whole numbers")

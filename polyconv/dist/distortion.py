@@ -29,7 +29,6 @@ from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import special
 
 from .lattice import Lattice
 
@@ -38,6 +37,8 @@ def wang(lam: float) -> Callable[[np.ndarray], np.ndarray]:
     """Wang transform ``g(u) = Phi(Phi^{-1}(u) + lam)``, ``lam >= 0``."""
     if not (lam >= 0 and math.isfinite(lam)):
         raise ValueError(f"lam must be finite and >= 0; got {lam!r}")
+
+    from scipy import special  # on first use (test_import_light)
 
     def g(u):
         u = np.clip(np.asarray(u, dtype=float), 0.0, 1.0)

@@ -23,8 +23,6 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import optimize, stats
-
 from .law_moments import is_scipy_continuous, tail_moment
 
 
@@ -38,67 +36,18 @@ def _check_law(law, name: str):
     return law
 
 
-class _Built(stats.rv_continuous):
-    """A law given by cdf and sf callables and its first two moments (internal)."""
+def _built(*args):
+    """A frozen :class:`polyconv.dist.built_law.BuiltLaw` (loaded on first use, so that importing
+    this module does not load scipy.stats)."""
+    from .built_law import BuiltLaw
 
-    def __init__(self, cdf=None, sf=None, moments=None, upper: float = math.inf,
-                 name: str = "built", tail=None, **kw):
-        kw.pop("a", None)
-        kw.pop("b", None)
-        super().__init__(a=0.0, b=upper, name=name, **kw)
-        self._c, self._s, self._mom, self._upper, self._tail = cdf, sf, moments, upper, tail
+    return BuiltLaw(*args).freeze()
 
-    def _updated_ctor_param(self):  # scipy re-creates the instance when freezing
-        d = super()._updated_ctor_param()
-        d.update(cdf=self._c, sf=self._s, moments=self._mom, upper=self._upper, tail=self._tail)
-        return d
 
-    def tail_moment(self, b: float) -> float:
-        """``E[X 1{X > b}]`` from the components' own (closed forms where scipy's laws have
-        them, :func:`polyconv.dist.law_moments.tail_moment`); read by that function."""
-        return float(self._tail(float(b)))
+def _is_built(dist) -> bool:
+    from .built_law import BuiltLaw
 
-    def _cdf(self, x):
-        return np.clip(self._c(np.asarray(x, dtype=float)), 0.0, 1.0)
-
-    def _sf(self, x):
-        return np.clip(self._s(np.asarray(x, dtype=float)), 0.0, 1.0)
-
-    def _ppf(self, q):
-        return np.vectorize(self._invert)(q, False)
-
-    def _isf(self, q):
-        return np.vectorize(self._invert)(q, True)
-
-    def _invert(self, q: float, upper: bool) -> float:
-        fn = (lambda x: float(self._s(np.array([x]))[0]) - q) if upper else \
-            (lambda x: float(self._c(np.array([x]))[0]) - q)
-        if (upper and q >= 1) or (not upper and q <= 0):
-            return 0.0
-        hi = 1.0
-        while (fn(hi) > 0 if upper else fn(hi) < 0):
-            hi *= 2.0
-            if hi > 1e300:
-                return math.inf
-        lo = 0.0
-        if (fn(lo) <= 0 if upper else fn(lo) >= 0):
-            return 0.0
-        return float(optimize.brentq(fn, lo, hi, xtol=1e-12 * hi, rtol=1e-13))
-
-    def _pdf(self, x):
-        h = 1e-6 * np.maximum(np.abs(x), 1e-6)
-        return np.maximum((self._cdf(x + h) - self._cdf(x - h)) / (2 * h), 0.0)
-
-    def _stats(self):
-        m1, m2 = self.tail_moment(0.0), self._mom()[1]
-        return m1, m2 - m1 * m1, None, None
-
-    def _munp(self, n):
-        if n == 1:
-            return self.tail_moment(0.0)
-        if n == 2:
-            return self._mom()[1]
-        return super()._munp(n)
+    return isinstance(dist, BuiltLaw)
 
 
 def _piece_moments(law, lo: float, hi: float) -> tuple[float, float]:
@@ -144,7 +93,7 @@ def splice(below, above, threshold: float, weight_below: float | None = None):
         inner = tail_moment(below, b) - tail_moment(below, t)
         return w / f1t * inner + (1 - w) / s2t * tail_moment(above, t)
 
-    return _Built(cdf, sf, moments, math.inf, "splice", tail).freeze()
+    return _built(cdf, sf, moments, math.inf, "splice", tail)
 
 
 def mixture(weights, laws):
@@ -168,7 +117,7 @@ def mixture(weights, laws):
         return sum(wi * tail_moment(law, b) for wi, law in zip(w, laws, strict=True))
 
     upper = max(float(law.support()[1]) for law in laws)
-    return _Built(cdf, sf, moments, upper, "mixture", tail).freeze()
+    return _built(cdf, sf, moments, upper, "mixture", tail)
 
 
 def left_truncated(law, deductible: float, *, shift: bool = False):
@@ -201,7 +150,7 @@ def left_truncated(law, deductible: float, *, shift: bool = False):
         return (tail_moment(law, y) - off * float(law.sf(y))) / sd
 
     upper = float(law.support()[1]) - off
-    return _Built(cdf, sf, moments, upper, "left_truncated", tail).freeze()
+    return _built(cdf, sf, moments, upper, "left_truncated", tail)
 
 
 def censored(law, limit: float):
@@ -227,7 +176,7 @@ def censored(law, limit: float):
             return 0.0
         return tail_moment(law, b) - tail_moment(law, u) + u * su
 
-    return _Built(cdf, sf, moments, u, "censored", tail).freeze()
+    return _built(cdf, sf, moments, u, "censored", tail)
 
 
 def inflated(law, factor: float):
@@ -242,13 +191,13 @@ def inflated(law, factor: float):
     n_shapes = len(dist.shapes.split(",")) if dist.shapes else 0
     loc = kwds.pop("loc", args[n_shapes] if len(args) > n_shapes else 0.0)
     scale = kwds.pop("scale", args[n_shapes + 1] if len(args) > n_shapes + 1 else 1.0)
-    if isinstance(dist, _Built):
+    if _is_built(dist):
         c, s, mom, tl = dist._c, dist._s, dist._mom, dist._tail
 
         def moments():
             m1, m2 = mom()
             return r * m1, r * r * m2
 
-        return _Built(lambda x: c(x / r), lambda x: s(x / r), moments,
-                      float(law.support()[1]) * r, "inflated", lambda b: r * tl(b / r)).freeze()
+        return _built(lambda x: c(x / r), lambda x: s(x / r), moments,
+                      float(law.support()[1]) * r, "inflated", lambda b: r * tl(b / r))
     return dist(*args[:n_shapes], loc=loc * r, scale=scale * r, **kwds)

@@ -56,6 +56,8 @@ def by_values(net, name: str, here: list[str], fixed, replace, memo, root: str) 
     support = np.flatnonzero(np.asarray(law.pmf) > 0)
     what = "the network" if name == root else net.label(name)
     fast = _sum_pattern(net, name, here, fixed, replace)
+    if fast is not None and fast[1] is None:
+        return _multiple(law, fast[0])
     if fast is not None:
         return _sum_by_events(net, fast[0], fast[1], s, law, support, fixed, replace, memo,
                               what)
@@ -80,28 +82,46 @@ def by_values(net, name: str, here: list[str], fixed, replace, memo, root: str) 
 
 def _sum_pattern(net, name: str, here: list[str], fixed, replace):
     """``(c, part)`` when block ``name`` is ``c`` uses of the one shared stage plus one part
-    reaching it through joins, races, k-of-n and one-of blocks only (:func:`_sum_by_events`);
-    else None."""
+    reaching it through joins, races, k-of-n and one-of blocks only (:func:`_sum_by_events`),
+    ``(c, None)`` when it is ``c`` uses and nothing else (:func:`_multiple`); else None."""
     node = net.nodes[name]
     if len(here) != 1 or node.kind != "in_sequence":
         return None
     s = here[0]
     others = [p for p in node.parts if p != s]
     c = len(node.parts) - len(others)
+    if c >= 1 and not others:
+        return c, None
     if c < 1 or len(others) != 1 or others[0] in fixed or others[0] in replace:
         return None
     sub = net._subtrees()
     todo = [others[0]]
+    reached = False  # S itself is reached (not hidden in a replaced or fixed block)
     while todo:
         n = todo.pop()
         block = net.nodes[n]
+        reached = reached or n == s
         if n == s or n in fixed or n in replace or not isinstance(block, Block) or \
                 s not in sub[n]:
             continue
         if block.kind not in BOOLEAN_KINDS or (block.kind == "k_of" and block.copies > 1):
             return None
         todo.extend(block.parts)
-    return c, others[0]
+    return (c, others[0]) if reached else None
+
+
+def _multiple(law: Lattice, c: int) -> Lattice:
+    """``c S`` for one draw ``S`` used ``c`` times in a sum: the same probabilities at ``c``
+    times the values (an injective push-forward: point, L1 and cumulative errors unchanged; the
+    truncated part's first and second moments times ``c`` and ``c^2``)."""
+    check_allocation(8 * (c * (len(law) - 1) + 1), "multiple of a shared stage")
+    pmf = np.zeros(c * (len(law) - 1) + 1)
+    pmf[::c] = np.asarray(law.pmf)
+    e = law.errors
+    tf = min(c * e.truncated_from, pmf.size)
+    return Lattice._make(pmf, law.step, c * law.origin,
+                         e._replace(truncated_from=tf, truncated_moment=c * e.truncated_moment,
+                                    truncated_moment2=c * c * e.truncated_moment2))
 
 
 def _sum_by_events(net, c: int, part: str, s: str, law: Lattice, support, fixed, replace,

@@ -59,10 +59,97 @@ column = "latency_ms"
     sup = {r["percentile"]: r for r in s["sample_support"]}
     assert sup[99]["samples_beyond"] == 500 and sup[99]["supported"]
     assert sup[99.999]["samples_beyond"] == 0 and not sup[99.999]["supported"]
+    # the stage's own percentiles say how many samples back them: floor(n (1 - q)), by hand
+    db = s["measured_stages"]["db"]
+    assert db["samples_beyond_p50"] == 25_000 and db["samples_beyond_p99"] == 500
     # the median is the binned empirical median (numpy reference, nearest rule)
     med = s["percentiles"][0]["value"]
     k = np.floor(x / 0.5 + 0.5)
     assert med == 0.5 * np.sort(k)[math.ceil(0.5 * x.size) - 1]
+
+
+def test_inline_samples_and_counted_values_carry_the_dkw_band(tmp_path, capsys):
+    x = [31, 35, 29, 44, 38, 41, 33, 30, 52, 36]
+    spec = write(tmp_path, "s.toml", f"""unit = "ms"
+[grid]
+step = 1.0
+[report]
+deadlines = [60.0]
+confidence = 0.9
+[network]
+in_sequence = ["pick", "pack", "label"]
+[stage.pick]
+samples = {x}
+[stage.pack]
+values = [2, 3, 5]
+counts = [70, 20, 10]
+[stage.label]
+values = [1, 2]
+probabilities = [0.5, 0.5]
+""")
+    code, s, err = run_json(["delays", str(spec), "-o", str(tmp_path / "r")], capsys)
+    assert code == 0, err
+    # Massart (1990) at alpha = 0.1 split over the two measured stages (Bonferroni)
+    bands = {n: m["band"] for n, m in s["measured_stages"].items()}
+    assert bands == {"pick": pytest.approx(dkw_epsilon(10, 0.05), rel=1e-12),
+                     "pack": pytest.approx(dkw_epsilon(100, 0.05), rel=1e-12)}
+    # past the largest possible total (52 + 5 + 2) the data say only P <= the bands' sum
+    miss = s["miss_probability"][0]
+    assert miss["low"] == 0 and miss["high"] >= dkw_epsilon(10, 0.05) + dkw_epsilon(100, 0.05)
+
+
+def test_microsecond_stages_on_a_millisecond_step_warn_naming_the_stage(tmp_path, capsys):
+    spec = write(tmp_path, "s.toml", """unit = "ms"
+[grid]
+step = 1.0
+[network]
+in_sequence = ["parse", "cache", "probe"]
+[stage.parse]
+law = "gamma"
+params = { a = 4.0, scale = 2.5 }
+[stage.cache]
+law = "gamma"
+params = { a = 3.0, scale = 20.0 }
+unit = "us"
+[stage.probe]
+samples = [41, 52, 47, 60, 39, 44, 58, 50, 45, 49]
+unit = "us"
+""")
+    code, s, err = run_json(["delays", str(spec), "-o", str(tmp_path / "r")], capsys)
+    assert code == 0, err
+    notes = "\n".join(s["notes"])
+    assert "stage cache: step 1000 is too coarse" in notes and "(in us:" in notes
+    assert "stage probe: step 1 is much coarser than the samples' spread" in notes
+    assert "stage parse" not in notes  # a 10 ms gamma on a 1 ms step is fine
+
+
+def test_stage_scale_is_the_delay_multiplied(tmp_path, capsys):
+    base = """unit = "ms"
+[grid]
+step = 1.0
+[report]
+percentiles = [50, 99]
+[network]
+in_sequence = ["a", "b"]
+[stage.a]
+values = [10, 20, 40]
+probabilities = [0.5, 0.3, 0.2]
+{scale_a}
+[stage.b]
+law = "gamma"
+params = {{ a = 3.0, scale = 10.0 }}
+{scale_b}
+"""
+    spec = write(tmp_path, "s.toml", base.format(scale_a="scale = 0.5", scale_b="scale = 2.0"))
+    code, s, err = run_json(["delays", str(spec), "-o", str(tmp_path / "r")], capsys)
+    assert code == 0, err
+    # reference: a x 0.5 = values 5, 10, 20; b x 2 = gamma(3, scale 20) (scaling a gamma law)
+    ref = write(tmp_path, "r.toml", base.format(scale_a="", scale_b="").replace(
+        "values = [10, 20, 40]", "values = [5, 10, 20]").replace("scale = 10.0", "scale = 20.0"))
+    code, r, err = run_json(["delays", str(ref), "-o", str(tmp_path / "r2")], capsys)
+    assert code == 0, err
+    assert [x["value"] for x in s["percentiles"]] == [x["value"] for x in r["percentiles"]]
+    assert s["mean"]["value"] == pytest.approx(r["mean"]["value"], rel=1e-12)
 
 
 def test_histogram_and_units_convert_onto_the_grid(tmp_path, capsys):

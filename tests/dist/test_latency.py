@@ -66,6 +66,18 @@ def test_dkw_band_is_massarts_formula_and_bounds_the_tail():
     assert samples_beyond(n, 0.999) == 1000 and samples_beyond(100, 0.999) == 0
 
 
+def test_coarse_step_against_the_samples_spread_warns():
+    from polyconv.dist.step_check import CoarseStepWarning
+    x = np.random.default_rng(6).normal(0.050, 0.006, 1000)  # ~50 us, in ms
+    with pytest.warns(CoarseStepWarning, match="much coarser than the samples' spread"):
+        Lattice.from_samples(x, step=1.0)
+    # the threshold is one standard deviation (Sheppard's h^2/12 vs the variance: by hand)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", CoarseStepWarning)
+        Lattice.from_samples(x, step=0.005)  # step below the spread: silent
+        Lattice.from_samples([1.0, 2.0, 2.0, 3.0], step=1.0)  # exact values on the lattice
+
+
 def test_band_adds_through_a_series():
     rng = np.random.default_rng(7)
     s1 = empirical(rng.exponential(10.0, 40_000), step=1.0)
@@ -218,6 +230,7 @@ def test_shared_stage_under_a_sum_by_values():
     (("a", "m", "c", "a"), lambda v: 2 * v[0] + max(v[0], v[1]) + v[2]),  # grouped, vectorised
     (("q", "c", "a"), lambda v: v[0] + min(max(v[0], v[1]), v[2]) + v[2]),  # two shared: by point
     (("r", "a"), lambda v: v[0] + v[0] + v[2]),  # a sum below the sum: by point
+    (("a", "b", "a"), lambda v: 2 * v[0] + v[1]),  # grouped: a + a is 2 a
 ])
 def test_shared_stage_under_a_sum_routes_against_enumeration(parts, fn):
     stages = {"a": A, "b": B, "c": C, "m": Block("all_of", ("a", "b")),
