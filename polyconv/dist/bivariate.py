@@ -299,7 +299,8 @@ def _pgf_slope(law: CountsLaw, l1: float, mean_n: float) -> float:
 
 
 def compound2(counts, severity: BivariateLattice, shape: tuple[int, int] | None = None, *,
-              pad: float = 2.0, cap: int = 1 << 16) -> BivariateLattice:
+              pad: float | tuple[float, float] = 2.0, cap: int = 1 << 16
+              ) -> BivariateLattice:
     """Joint law of ``(sum_{i <= N} X_i, sum_{i <= N} Y_i)`` for i.i.d. pairs ``(X_i, Y_i)``.
 
     ``g = IFFT2(P_N(FFT2(f e^{-theta1 i - theta2 j}))) e^{theta1 i + theta2 j}`` on transform
@@ -314,8 +315,10 @@ def compound2(counts, severity: BivariateLattice, shape: tuple[int, int] | None 
     shape : (int, int), optional
         Rectangle of the result.  Default per axis: the smallest grid whose Chernoff-bounded
         tail is below :data:`DEFAULT_TAIL`, at most ``cap``.  A short second axis is a window.
-    pad : float
-        Transform length per axis relative to the result (``>= 1``; 2 per DESIGN.md section 6).
+    pad : float or (float, float)
+        Transform length per axis relative to the result (``>= 1``; 2 per DESIGN.md section 6);
+        a pair sets each axis (1 on an axis whose tail beyond the result is already negligible:
+        the aliasing bound in the ledger says how much wrapped).
 
     Returns
     -------
@@ -341,10 +344,11 @@ def compound2(counts, severity: BivariateLattice, shape: tuple[int, int] | None 
     n1, n2 = (int(s) for s in shape)
     if n1 < 1 or n2 < 1:
         raise ValueError(f"shape must be two positive integers; got {shape!r}")
-    if not pad >= 1:
-        raise ValueError(f"pad must be >= 1; got {pad!r}")
-    m1 = tf.fast_length(max(int(math.ceil(pad * n1)), f.shape[0], MIN_TRANSFORM), real=False)
-    m2 = tf.fast_length(max(int(math.ceil(pad * n2)), f.shape[1], MIN_TRANSFORM), real=True)
+    pad1, pad2 = (pad, pad) if not isinstance(pad, tuple) else pad
+    if not (pad1 >= 1 and pad2 >= 1):
+        raise ValueError(f"pad must be >= 1 (or a pair of them); got {pad!r}")
+    m1 = tf.fast_length(max(int(math.ceil(pad1 * n1)), f.shape[0], MIN_TRANSFORM), real=False)
+    m2 = tf.fast_length(max(int(math.ceil(pad2 * n2)), f.shape[1], MIN_TRANSFORM), real=True)
     half = m2 // 2 + 1
     check_allocation(16 * n1 * half + 8 * n1 * n2 + 16 * f.shape[0] * half
                      + 16 * m1 * COLUMN_BLOCK * 3,
@@ -360,7 +364,9 @@ def compound2(counts, severity: BivariateLattice, shape: tuple[int, int] | None 
     l1_tilted = float(np.sum(ft))
     # rfft along the short axis of the (small) severity, then column blocks: fft along the
     # long axis, P_N, inverse fft, keep the n1 rows wanted (memory ~ n1 x m2 / 2, not m1 x m2)
-    cols = np.ascontiguousarray(tf.rfft(tf.zero_padded(ft, m2), -1, 1).T)  # half x rows
+    cols = np.empty((half, f.shape[0]), dtype=complex)  # half x rows, by row blocks (no
+    for r0 in range(0, f.shape[0], ROW_BLOCK):         # padded copy of the whole severity)
+        cols[:, r0:r0 + ROW_BLOCK] = tf.rfft(tf.zero_padded(ft[r0:r0 + ROW_BLOCK], m2), -1, 1).T
     del ft
     spec = np.empty((half, n1), dtype=complex)
     sq = lip_sq = 0.0
@@ -373,8 +379,8 @@ def compound2(counts, severity: BivariateLattice, shape: tuple[int, int] | None 
         big = law.transform.pgf(phi)
         weight = np.full(c1 - c0, 2.0)
         weight[(np.arange(c0, c1) == 0) | ((np.arange(c0, c1) == m2 // 2) & (m2 % 2 == 0))] = 1
-        mag = np.abs(big) ** 2
-        sq += float(np.sum(mag * weight[:, None]))
+        mag = big.real ** 2 + big.imag ** 2
+        sq += float(weight @ mag.sum(axis=1))
         if law.transform.ratio is not None:  # |P'(phi)|^2 = |r(phi)|^2 |P(phi)|^2
             lip_sq += float(np.sum(np.abs(law.transform.ratio(phi)) ** 2 * mag
                                    * weight[:, None]))

@@ -35,12 +35,15 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..numerics.budget import check_allocation
 from .bivariate import BivariateLattice, compound2
 from .compound import compound
 from .lattice import Lattice
 from .ledger import ErrorLedger, cum_bound
 
 _U = 2.0 ** -53
+ROW_TAIL = 1e-10
+"""Gross mass beyond the grid under which the joint's retained axis is transformed unpadded."""
 
 
 @dataclass(frozen=True)
@@ -216,7 +219,10 @@ def xol_programme(counts, severity: Lattice, layer: XoLLayer, *, size: int | Non
         notes.append("no aggregate terms: ceded and net are the compounds of the per-claim "
                      "split's two parts (their joint law is not needed)")
     else:
-        joint = compound2(counts, split, (n1, window), pad=pad)
+        # rows (retained R <= G): when the gross law's mass beyond its grid is negligible, so is
+        # R's, and the rows need no padding (the wrapped mass is in the joint's ledger)
+        rows_pad = 1.0 if gross.errors.truncated <= ROW_TAIL else pad
+        joint = compound2(counts, split, (n1, window), pad=(rows_pad, pad))
         layer_loss = joint.marginal(1)
         if al is None:
             retained = compound(counts, split.marginal(0), size=n1)
@@ -253,11 +259,10 @@ def _net(joint: BivariateLattice, gross: Lattice, aad: int, al: int) -> Lattice:
     """``P(net = t)`` from the window and the gross law (module docstring)."""
     n1 = joint.shape[0]
     a = aad + al  # window columns 0..a
-    j = np.arange(a)
-    phi = np.minimum(j, aad)
-    sub = BivariateLattice(joint.pmf[:, :a], joint.step)
-    first = sub.columns_pushed(phi, n1)
-    diag = sub.columns_pushed(j, n1 + al)  # P(G = s, L < A)
+    sub = joint.pmf[:, :a]  # a view: no copy of the window
+    first = _diagonal_sums(sub[:, :aad], n1)  # columns j < AAD pushed by j ...
+    first[aad:] += sub[:n1 - aad, aad:].sum(axis=1)  # ... the others by AAD
+    diag = _diagonal_sums(sub, n1 + al)  # P(G = s, L < A)
     g = np.zeros(n1 + al)
     g[:n1] = gross.pmf
     vec = first + (g[al:al + n1] - diag[al:al + n1])
@@ -269,6 +274,23 @@ def _net(joint: BivariateLattice, gross: Lattice, aad: int, al: int) -> Lattice:
     led = ErrorLedger(min(point + neg, 2.0), min(l1 + neg, 2.0), 0.0, tf,
                       lg.truncated_moment, min(2 * cum_bound(lj) + cum_bound(lg) + neg, 2.0))
     return Lattice._make(np.maximum(vec, 0.0), joint.step, 0.0, led)
+
+
+def _diagonal_sums(pmf: np.ndarray, size: int) -> np.ndarray:
+    """``v[s] = sum_{i + j = s} pmf[i, j]`` for ``s < size`` (the law of ``X + Y`` on a window):
+    each column ``j`` shifted down by ``j`` in a strided view, then one sum per row."""
+    n1, k = pmf.shape
+    out = np.zeros(size)
+    if k == 0:
+        return out
+    check_allocation(8 * (n1 + k) * k, f"the diagonal sums of a {n1} x {k} window")
+    shifted = np.zeros((n1 + k) * k)
+    view = np.lib.stride_tricks.as_strided(shifted, shape=(n1, k),
+                                           strides=(8 * k, 8 * (k + 1)), writeable=True)
+    view[:] = pmf  # view[i, j] is shifted[(i + j) * k + j]: row i + j, column j
+    sums = shifted.reshape(n1 + k, k).sum(axis=1)
+    out[: min(size, sums.size)] = sums[:size]
+    return out
 
 
 def layer_mean(lat: Lattice, attachment: float, width: float) -> float:
