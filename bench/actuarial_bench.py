@@ -159,13 +159,19 @@ def main() -> None:
         got = dict(np.load(out + ".npz"))
         with open(out + ".json") as fh:
             info = json.load(fh)
+    t0, c0 = time.perf_counter(), time.process_time()
     ref = reference()
+    ref_wall, ref_cpu = time.perf_counter() - t0, time.process_time() - c0
     print("| quantity | value |\n|---|---|")
     print(f"| seconds (fresh process, incl. imports of laws and 3 lines) | "
           f"{info['seconds']:.2f} |")
     print(f"| CPU seconds of that process (all its threads) | {info['cpu_seconds']:.2f} |")
     print(f"| load average (1 min) when run | {os.getloadavg()[0]:.1f} on {os.cpu_count()} "
           "cores |")
+    print(f"| reference (scipy fftconvolve + Poisson thinning, same run): wall / CPU s | "
+          f"{ref_wall:.2f} / {ref_cpu:.2f} |")
+    print(f"| ratio polyconv / reference, CPU (below 1: polyconv faster) | "
+          f"{info['cpu_seconds'] / ref_cpu:.2f} |")
     print(f"| peak RSS | {info['peak_bytes'] / 2**30:.2f} GiB |")
     print(f"| joint window shape | {info['joint_shape'][0]} x {info['joint_shape'][1]} |")
     for key in ("gross", "ceded", "net"):

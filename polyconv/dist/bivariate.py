@@ -382,8 +382,9 @@ def compound2(counts, severity: BivariateLattice, shape: tuple[int, int] | None 
         mag = big.real ** 2 + big.imag ** 2
         sq += float(weight @ mag.sum(axis=1))
         if law.transform.ratio is not None:  # |P'(phi)|^2 = |r(phi)|^2 |P(phi)|^2
-            lip_sq += float(np.sum(np.abs(law.transform.ratio(phi)) ** 2 * mag
-                                   * weight[:, None]))
+            r = law.transform.ratio(phi)
+            lip_sq += float(weight @ ((r.real ** 2 + r.imag ** 2) * mag).sum(axis=1))
+            del r
         else:
             lip_sq = math.inf
         del phi
