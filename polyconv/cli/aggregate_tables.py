@@ -23,7 +23,7 @@ import numpy as np
 from ..dist import Lattice
 from ..dist.allocation import split_contributions, tvar_contributions
 from ..dist.distortion import layer_table, proportional_hazard, wang
-from ..dist.exceedance import RETURN_PERIODS, largest_claim, return_period_table
+from ..dist.exceedance import RETURN_PERIODS, largest_claim, largest_of, return_period_table
 from .aggregate_line import programme_table
 from .distribution_report import Table
 from .report import fmt, fmt_prob, level_name
@@ -132,14 +132,14 @@ def programme_facts(res) -> dict:
     return out
 
 
-def occurrence_law(results) -> Lattice | None:
-    """The year's largest claim (one line: from its count law's generating function)."""
-    if len(results) != 1:
-        return None
-    r = results[0]
+def occurrence_law(results) -> Lattice:
+    """The year's largest claim: per line from its count law's generating function, over
+    several independent lines the product of their cdfs (:func:`~polyconv.dist.exceedance.
+    largest_of`)."""
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        return largest_claim(r.spec.counts.law, r.per_claim)
+        each = [largest_claim(r.spec.counts.law, r.per_claim) for r in results]
+        return each[0] if len(each) == 1 else largest_of(each)
 
 
 def return_table(largest, gross, net, periods) -> tuple[Table, list]:

@@ -211,6 +211,13 @@ def test_lines_on_different_steps_are_regridded_and_summed(tmp_path, capsys):
     tvar = next(r for r in rows if r["measure"] == "TVaR 95%")
     assert tvar["diversification"] == pytest.approx(sum(tvar["lines"]) - tvar["total"])
     assert s["regrid"][0]["from_step"] == 1.0 and s["regrid"][0]["to_step"] == 2.0
+    # the year's largest claim over both lines: P(M <= x) = prod_i exp(-lam_i (1 - F_i(x)))
+    # (Poisson PGFs at the cdfs); 1 in 20: the smallest x with P(M <= x) >= 0.95
+    x = np.arange(8)
+    f1 = np.where(x >= 3, 1.0, np.where(x >= 1, 0.6, 0.0))
+    f2 = np.where(x >= 6, 1.0, np.where(x >= 2, 0.7, 0.0))
+    cdf = np.exp(-1.5 * (1 - f1) - 0.8 * (1 - f2))
+    assert s["return_periods"][0]["occurrence"] == x[np.searchsorted(cdf, 0.95 - 1e-12)]
 
 
 def test_allocation_against_enumeration_of_the_two_lines(tmp_path, capsys):
@@ -330,6 +337,26 @@ def test_zero_modified_negative_binomial_against_its_pmf(tmp_path, capsys):
     ref = base.pmf(k) * 0.7 / (1 - base.pmf(0))  # (a, b, 1) definition: (1-p0)/(1-q0) q_k
     ref[0] = 0.3
     same_pmf(got, ref, 1e-14)
+
+
+def test_zero_modified_by_recursion_and_by_transform_agree_with_the_pmf(tmp_path, capsys):
+    # (a, b, 1) Panjer recursion (Sundt & Jewell 1981) and the transform route, same spec; the
+    # reference: compound of the zero-modified Poisson pmf written out (definition, numpy)
+    claims = 'law = "zero-modified"\np0 = 0.3\nbase = { law = "poisson", mean = 2.0 }'
+    text = DEGENERATE.format(claims=claims).replace("values = [1.0]\nprobabilities = [1.0]",
+                                                    "values = [1.0, 2.0]\n"
+                                                    "probabilities = [0.5, 0.5]")
+    k = np.arange(60)
+    pn = stats.poisson.pmf(k, 2.0) * 0.7 / (1 - math.exp(-2.0))
+    pn[0] = 0.3
+    ref, power = np.zeros(130), np.array([1.0])
+    for n in range(60):
+        ref[:power.size] += pn[n] * power
+        power = np.convolve(power, [0, 0.5, 0.5])
+    for method in ("recursion", "fft"):
+        _, out = run_json(tmp_path, text.replace("points = 120", f"points = 120\nmethod = "
+                                                 f'"{method}"'), capsys, name=f"{method}.toml")
+        same_pmf(csv_pmf(out), ref[:120], 1e-14)
 
 
 def test_gamma_mixed_poisson_is_scipy_nbinom(tmp_path, capsys):
