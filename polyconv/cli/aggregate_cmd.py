@@ -343,7 +343,7 @@ def report_of(res: AggregateResult) -> skeleton.DistributionReport:
         pre = f"{r.spec.name}: " if spec.several else ""
         mean_n = float(r.spec.counts.law.mean())
         described += [[f"{pre}claims", r.spec.counts.text], [f"{pre}severity", r.severity_text],
-                      [f"{pre}cover per claim", line_mod.cover_text(r.spec) + f" {spec.currency}"],
+                      [f"{pre}cover per claim", line_mod.cover_text(r.spec, spec.currency)],
                       [f"{pre}reinsurance", line_mod.reinsurance_text(r.spec)],
                       [f"{pre}expected claims E[N]", fmt(mean_n)],
                       [f"{pre}check E[N] x mean per claim ({spec.currency})",

@@ -257,12 +257,12 @@ def programme_table(res: LineResult, levels: list[float]) -> list[list[str]]:
     return [["measure"] + [c for c, _ in cols]] + rows
 
 
-def cover_text(line: LineSpec) -> str:
+def cover_text(line: LineSpec, currency: str = "") -> str:
     """The per-claim cover in words."""
     if line.deductible == 0 and not math.isfinite(line.limit):
         return "none (ground-up)"
     lim = f"{line.limit:,.0f}" if math.isfinite(line.limit) else "unlimited"
-    return f"deductible {line.deductible:,.0f}, limit {lim}"
+    return f"deductible {line.deductible:,.0f}, limit {lim} {currency}".rstrip()
 
 
 def reinsurance_text(line: LineSpec) -> str:
