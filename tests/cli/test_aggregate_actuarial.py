@@ -137,6 +137,56 @@ def test_programme_terms_against_a_direct_two_dimensional_sum(tmp_path, capsys):
     assert "Reinsurance (the line)" in md and "model output, not advice" in md
 
 
+def _powers_sum(f: np.ndarray, weights: np.ndarray, size: int) -> np.ndarray:
+    """``sum_n weights[n] f^{*n}`` on ``size x size`` (scipy.signal.convolve2d powers)."""
+    out = np.zeros((size, size))
+    power = np.zeros((size, size))
+    power[0, 0] = 1.0
+    for w in weights:
+        out += w * power
+        power = signal.convolve2d(power, f)[:size, :size]
+    return out
+
+
+@pytest.mark.parametrize("basis", ["per-risk", "per-occurrence"])
+def test_clustered_claims_against_a_direct_two_dimensional_sum(tmp_path, capsys, basis):
+    # occurrences Poisson(0.9), claims per occurrence zero-truncated Poisson(0.7), amounts
+    # 1, 2, 4; layer 2 xs 1 on each claim (per risk) or on each occurrence's total, AAL 3
+    text = PROGRAMME.replace("quota_share = 0.25\n", "").replace(
+        'mean = 1.2', 'mean = 0.9\nper_occurrence = { law = "zero-truncated", base = '
+        '{ law = "poisson", mean = 0.7 } }').replace(
+        "aggregate_deductible = 1.0", f'aggregate_deductible = 0.0\nbasis = "{basis}"')
+    s, _ = run_json(tmp_path, text, capsys)
+    size = 90
+    k = np.arange(30)
+    pk = stats.poisson.pmf(k, 0.7) / (1 - math.exp(-0.7))  # zero-truncated (definition)
+    pk[0] = 0.0
+    claim = np.zeros(5)
+    claim[[1, 2, 4]] = [0.5, 0.3, 0.2]
+    if basis == "per-risk":  # joint (retained, ceded) of one claim, then of one occurrence
+        f = np.zeros((5, 5))
+        for x, p in zip((1, 2, 4), (0.5, 0.3, 0.2), strict=True):
+            c = min(max(x - 1, 0), 2)
+            f[x - c, c] += p
+        occ = _powers_sum(f, pk, size)
+    else:  # the occurrence total, then its split
+        total = _powers_sum(claim[:, None], pk, size)[:, 0]
+        occ = np.zeros((size, size))
+        for x in range(size):
+            c = min(max(x - 1, 0), 2)
+            occ[x - c, c] += total[x]
+    joint = _powers_sum(occ, stats.poisson.pmf(np.arange(40), 0.9), size)
+    r, layer = np.meshgrid(np.arange(size), np.arange(size), indexing="ij")
+    rec = np.clip(layer, 0, 3)
+    rein = s["reinsurance"]["the line"]
+    assert rein["expected_recovery"] == pytest.approx(float((rec * joint).sum()), rel=1e-9)
+    assert rein["net_mean"] == pytest.approx(float(((r + layer - rec) * joint).sum()),
+                                             rel=1e-9)
+    # E[S] = E[N] E[K] E[X] (Wald twice), the same for both bases
+    assert s["mean"]["value"] == pytest.approx(0.9 * 0.7 / (1 - math.exp(-0.7)) * 1.9,
+                                               rel=1e-10)
+
+
 def test_programme_split_contributions_sum_to_the_gross_tvar(tmp_path, capsys):
     s, _ = run_json(tmp_path, PROGRAMME.replace("quota_share = 0.25\n", ""), capsys)
     split = s["reinsurance"]["the line"]["split"]
