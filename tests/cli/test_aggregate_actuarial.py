@@ -536,3 +536,35 @@ def test_bundled_programme_spec_runs_and_keeps_its_identities(tmp_path, capsys):
             assert c["lattice"] == pytest.approx(c["law"], rel=2e-3), c["quantity"]
     md = (out / "summary.md").read_text()
     assert "Return periods" in md and "Layer prices" in md
+
+
+@pytest.mark.parametrize("edit, key", [
+    (lambda t: t.replace('basis = "x"', ""), None),  # control: the unedited spec runs
+    (lambda t: t.replace("[reinsurance.xol]", '[reinsurance.xol]\nbasis = "per-event"'),
+     "reinsurance.xol.basis"),
+    (lambda t: t.replace("quota_share = 0.25", "quota_share = 0.25\nsurplus = { lines = 1 }"),
+     "reinsurance.surplus"),
+    (lambda t: t.replace("deductible = 1.0", "deductible = 1.5", 1), "reinsurance.xol.deductible"),
+    (lambda t: t.replace('law = "poisson"\nmean = 1.2', 'law = "zero-modified"\np0 = 1.0\n'
+                         'base = { law = "poisson", mean = 1.2 }'), "claims.p0"),
+    (lambda t: t.replace('law = "poisson"\nmean = 1.2', 'law = "mixed-poisson"\nmean = 1.2\n'
+                         'mixing = "beta"\ncv = 0.3'), "claims.mixing"),
+    (lambda t: t.replace("values = [1, 2, 4]\nprobabilities = [0.5, 0.3, 0.2]",
+                         'law = "mixture"\ncomponents = [{ weight = 0.5, law = "expon" }]'),
+     "severity.components"),
+    (lambda t: t.replace("values = [1, 2, 4]\nprobabilities = [0.5, 0.3, 0.2]",
+                         'claims_file = "nowhere.csv"'), "severity.claims_file"),
+    (lambda t: t.replace("return_periods = []", "return_periods = [0.5]"),
+     "report.return_periods[0]"),
+    (lambda t: t + "\n[[lines]]\nname = \"a\"\n", "claims"),
+])
+def test_bad_actuarial_keys_name_the_key(tmp_path, capsys, edit, key):
+    # common practice, no source: a refused spec exits 2 and names the dotted key
+    spec = tmp_path / "bad.toml"
+    spec.write_text(edit(PROGRAMME), encoding="utf-8")
+    code = main(["aggregate", str(spec), "-o", str(tmp_path / "out"), "--quiet"])
+    err = capsys.readouterr().err
+    if key is None:
+        assert code == 0
+    else:
+        assert code == 2 and key in err, err
