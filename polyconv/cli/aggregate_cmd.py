@@ -123,15 +123,6 @@ class AggregateSpec:
     retentions: list[float]
     extras: dict
 
-    # one-line views (the first line), kept for callers of the one-line spec
-    @property
-    def counts(self):
-        return self.lines[0].counts.law
-
-    @property
-    def step_of_first(self) -> float:
-        return self.lines[0].step
-
 
 def parse(doc: SpecDoc) -> AggregateSpec:
     """Validate a parsed spec (raises :class:`~polyconv.cli.errors.SpecError`)."""
