@@ -364,9 +364,12 @@ def compound2(counts, severity: BivariateLattice, shape: tuple[int, int] | None 
     l1_tilted = float(np.sum(ft))
     # rfft along the short axis of the (small) severity, then column blocks: fft along the
     # long axis, P_N, inverse fft, keep the n1 rows wanted (memory ~ n1 x m2 / 2, not m1 x m2)
-    cols = np.empty((half, f.shape[0]), dtype=complex)  # half x rows, by row blocks (no
-    for r0 in range(0, f.shape[0], ROW_BLOCK):         # padded copy of the whole severity)
-        cols[:, r0:r0 + ROW_BLOCK] = tf.rfft(tf.zero_padded(ft[r0:r0 + ROW_BLOCK], m2), -1, 1).T
+    cols = np.empty((half, f.shape[0]), dtype=complex)  # half x rows, by blocks of rows
+    for r0 in range(0, f.shape[0], 4 * ROW_BLOCK):     # transformed along axis 0 of the
+        r1 = min(f.shape[0], r0 + 4 * ROW_BLOCK)       # transposed block: lands in place
+        block = np.zeros((m2, r1 - r0))
+        block[: f.shape[1]] = ft[r0:r1].T
+        cols[:, r0:r1] = tf.rfft(block, 0, 1)
     del ft
     spec = np.empty((half, n1), dtype=complex)
     sq = lip_sq = 0.0
