@@ -34,7 +34,6 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..dist import Lattice, compound
-from ..dist.law_moments import limited_mean
 from ..dist.reinsurance import ProgrammeResult, XoLLayer, quota_share, surplus_share, xol_programme
 from . import aggregate_laws as al
 from . import grid_mass
@@ -224,43 +223,37 @@ def compute_line(line: LineSpec, currency: str, steps=None) -> LineResult:
 
 
 def mean_checks(res: LineResult, ground_up: Lattice) -> list[list]:
-    """Rows ``[quantity, from the law, on the lattice]``: the severity's mean, each layer's
-    limited expected value and E[N] E[X] against the lattice (exact means of the laws)."""
+    """Rows ``[quantity, exact, on the lattice]``: the severity's mean (or its limited mean up to
+    a grid cut), the cover's and the XoL layer's limited expected values per claim, and
+    ``E[N] E[K] E[per claim]`` against the lattice (:func:`polyconv.cli.aggregate_laws.
+    exact_law`: the law before discretisation)."""
     line = res.spec
-    mean_n = line.claims_mean()
+    ex = al.exact_law(line.severity)
     rows = []
-    law = None
-    if res.severity_mean is not None:
-        law = al.continuous_law(line.severity)
-        if ground_up.truncated_mass > 1e-9:  # grid cut (e.g. past the cover): E[min(X, top)]
-            top = ground_up.origin + ground_up.step * (len(ground_up) - 1)
-            on = float(np.dot(np.minimum(ground_up.values, top), ground_up.pmf)) + \
-                top * ground_up.truncated_mass
-            rows.append([f"severity limited mean E[min(X, {fmt(top)})]",
-                         limited_mean(law, top), on])
-        else:
-            rows.append(["severity mean E[X]", res.severity_mean, ground_up.mean()])
-    cover_mean = None
-    if law is not None and (line.deductible > 0 or math.isfinite(line.limit)):
-        top = line.deductible + line.limit
-        cover_mean = (limited_mean(law, top) if math.isfinite(top) else res.severity_mean) \
-            - limited_mean(law, line.deductible)
+    if ex is None:
+        return [["aggregate mean E[N] x E[per claim]", None, res.gross.mean()]]
+    if ground_up.truncated_mass > 1e-9:  # grid cut (e.g. past the cover): E[min(X, top)]
+        top = ground_up.origin + ground_up.step * (len(ground_up) - 1)
+        on = float(np.dot(np.minimum(ground_up.values, top), ground_up.pmf)) + \
+            top * ground_up.truncated_mass
+        rows.append([f"severity limited mean E[min(X, {fmt(top)})]", ex.limited(top), on])
+    else:
+        rows.append(["severity mean E[X]", ex.mean, ground_up.mean()])
+
+    def lev(lo: float, hi: float) -> float:
+        return (ex.limited(hi) if math.isfinite(hi) else ex.mean) - ex.limited(lo)
+
+    top = line.deductible + line.limit
+    per_claim_exact = lev(line.deductible, top)
+    if line.deductible > 0 or math.isfinite(line.limit):
         rows.append([f"per-claim cover mean E[min((X - {fmt(line.deductible)})+, "
-                     f"{fmt(line.limit)})]", cover_mean, res.per_claim.mean()])
-    if law is not None and line.layer is not None:
+                     f"{fmt(line.limit)})]", per_claim_exact, res.per_claim.mean()])
+    if line.layer is not None:
         d, w = line.deductible + line.layer.deductible, line.layer.limit
-        lev = limited_mean(law, d + w) - limited_mean(law, d)
-        if math.isfinite(line.limit):
-            lev = limited_mean(law, min(d + w, line.deductible + line.limit)) - \
-                limited_mean(law, min(d, line.deductible + line.limit))
         on = res.per_claim.layer(line.layer.deductible, line.layer.limit).mean()
         rows.append([f"XoL layer per claim (limited expected values, {fmt(w)} xs "
-                     f"{fmt(line.layer.deductible)})", lev, on])
-    per_claim_law = cover_mean if cover_mean is not None else (
-        res.severity_mean if law is not None and line.deductible == 0 and
-        not math.isfinite(line.limit) else None)
-    rows.append(["aggregate mean E[N] x E[per claim]",
-                 mean_n * per_claim_law if per_claim_law is not None else None,
+                     f"{fmt(line.layer.deductible)})", lev(min(d, top), min(d + w, top)), on])
+    rows.append(["aggregate mean E[N] x E[per claim]", line.claims_mean() * per_claim_exact,
                  res.gross.mean()])
     return rows
 

@@ -135,6 +135,10 @@ def test_programme_terms_against_a_direct_two_dimensional_sum(tmp_path, capsys):
     np.testing.assert_allclose(csv_pmf(out)[:40], g[:40], atol=1e-13)
     md = (out / "summary.md").read_text()
     assert "Reinsurance (the line)" in md and "model output, not advice" in md
+    # mean checks from the table itself (by hand): E[X] = 1.9; the layer 2 xs 1 per claim:
+    # E[min((X - 1)+, 2)] = 0.3 x 1 + 0.2 x 2 = 0.7; E[N] E[X] = 1.2 x 1.9
+    checks = [(c["law"], c["lattice"]) for c in s["mean_checks"]]
+    np.testing.assert_allclose(checks, [(1.9, 1.9), (0.7, 0.7), (2.28, 2.28)], rtol=1e-11)
 
 
 def _powers_sum(f: np.ndarray, weights: np.ndarray, size: int) -> np.ndarray:
