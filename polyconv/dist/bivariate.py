@@ -299,8 +299,7 @@ def _pgf_slope(law: CountsLaw, l1: float, mean_n: float) -> float:
 
 
 def compound2(counts, severity: BivariateLattice, shape: tuple[int, int] | None = None, *,
-              pad: float | tuple[float, float] = 2.0, cap: int = 1 << 16
-              ) -> BivariateLattice:
+              pad: float | tuple = 2.0, cap: int = 1 << 16) -> BivariateLattice:
     """Joint law of ``(sum_{i <= N} X_i, sum_{i <= N} Y_i)`` for i.i.d. pairs ``(X_i, Y_i)``.
 
     ``g = IFFT2(P_N(FFT2(f e^{-theta1 i - theta2 j}))) e^{theta1 i + theta2 j}`` on transform
@@ -316,9 +315,7 @@ def compound2(counts, severity: BivariateLattice, shape: tuple[int, int] | None 
         Rectangle of the result.  Default per axis: the smallest grid whose Chernoff-bounded
         tail is below :data:`DEFAULT_TAIL`, at most ``cap``.  A short second axis is a window.
     pad : float or (float, float)
-        Transform length per axis relative to the result (``>= 1``; 2 per DESIGN.md section 6);
-        a pair sets each axis (1 on an axis whose tail beyond the result is already negligible:
-        the aliasing bound in the ledger says how much wrapped).
+        Transform length per axis (or each) relative to the result (``>= 1``; 2: DESIGN.md s. 6).
 
     Returns
     -------
@@ -344,11 +341,10 @@ def compound2(counts, severity: BivariateLattice, shape: tuple[int, int] | None 
     n1, n2 = (int(s) for s in shape)
     if n1 < 1 or n2 < 1:
         raise ValueError(f"shape must be two positive integers; got {shape!r}")
-    pad1, pad2 = (pad, pad) if not isinstance(pad, tuple) else pad
-    if not (pad1 >= 1 and pad2 >= 1):
+    if not min(pads := pad if isinstance(pad, tuple) else (pad, pad)) >= 1:
         raise ValueError(f"pad must be >= 1 (or a pair of them); got {pad!r}")
-    m1 = tf.fast_length(max(int(math.ceil(pad1 * n1)), f.shape[0], MIN_TRANSFORM), real=False)
-    m2 = tf.fast_length(max(int(math.ceil(pad2 * n2)), f.shape[1], MIN_TRANSFORM), real=True)
+    m1 = tf.fast_length(max(int(math.ceil(pads[0] * n1)), f.shape[0], MIN_TRANSFORM), real=False)
+    m2 = tf.fast_length(max(int(math.ceil(pads[1] * n2)), f.shape[1], MIN_TRANSFORM), real=True)
     half = m2 // 2 + 1
     check_allocation(16 * n1 * half + 8 * n1 * n2 + 16 * f.shape[0] * half
                      + 16 * m1 * COLUMN_BLOCK * 3,
@@ -364,12 +360,10 @@ def compound2(counts, severity: BivariateLattice, shape: tuple[int, int] | None 
     l1_tilted = float(np.sum(ft))
     # rfft along the short axis of the (small) severity, then column blocks: fft along the
     # long axis, P_N, inverse fft, keep the n1 rows wanted (memory ~ n1 x m2 / 2, not m1 x m2)
-    cols = np.empty((half, f.shape[0]), dtype=complex)  # half x rows, by blocks of rows
-    for r0 in range(0, f.shape[0], 4 * ROW_BLOCK):     # transformed along axis 0 of the
-        r1 = min(f.shape[0], r0 + 4 * ROW_BLOCK)       # transposed block: lands in place
-        block = np.zeros((m2, r1 - r0))
-        block[: f.shape[1]] = ft[r0:r1].T
-        cols[:, r0:r1] = tf.rfft(block, 0, 1)
+    cols = np.empty((half, f.shape[0]), dtype=complex)  # half x rows: blocks of rows, each
+    for r0 in range(0, f.shape[0], 4 * ROW_BLOCK):     # transposed, transformed along axis 0
+        cols[:, r0:r0 + 4 * ROW_BLOCK] = tf.rfft(np.pad(ft[r0:r0 + 4 * ROW_BLOCK].T,
+                                                        ((0, m2 - f.shape[1]), (0, 0))), 0, 1)
     del ft
     spec = np.empty((half, n1), dtype=complex)
     sq = lip_sq = 0.0
@@ -385,9 +379,8 @@ def compound2(counts, severity: BivariateLattice, shape: tuple[int, int] | None 
         mag = big.real ** 2 + big.imag ** 2
         sq += float(weight @ mag.sum(axis=1))
         if law.transform.ratio is not None:  # |P'(phi)|^2 = |r(phi)|^2 |P(phi)|^2
-            r = law.transform.ratio(phi)
-            lip_sq += float(weight @ ((r.real ** 2 + r.imag ** 2) * mag).sum(axis=1))
-            del r
+            lip_sq += float(weight @ (np.abs(law.transform.ratio(phi)) ** 2 * mag
+                                      ).sum(axis=1))
         else:
             lip_sq = math.inf
         del phi
