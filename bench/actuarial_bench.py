@@ -21,7 +21,10 @@ below-layer, in-layer and through-layer claims (independent Poisson counts), so
 
 Usage::
 
-    python bench/actuarial_bench.py          # prints the table for bench/RESULTS.md
+    nice -n 10 python bench/actuarial_bench.py   # prints the table for bench/RESULTS.md
+
+The wall-clock goal (5 s) is judged on a quiet machine; the table also gives the process's CPU
+seconds and the load average, since on a shared machine the wall time mostly measures waiting.
 """
 
 from __future__ import annotations
@@ -69,16 +72,19 @@ def other_lines() -> list[Lattice]:
 def worker(out_path: str) -> None:
     """The timed computation (fresh process: its peak RSS is the benchmark's memory)."""
     t0 = time.perf_counter()
+    c0 = time.process_time()
     sev = property_severity()
     res = xol_programme(stats.poisson(LAMBDA), sev, LAYER, size=N1)
     lines = other_lines()
     book = portfolio([res.gross] + lines, step=STEP, names=["property", "liability", "motor"])
     net_book = portfolio([res.net] + lines, step=STEP)
     seconds = time.perf_counter() - t0
+    cpu = time.process_time() - c0
     peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
     np.savez(out_path, gross=res.gross.pmf, ceded=res.ceded.pmf, net=res.net.pmf,
              total_gross=book.total.pmf, total_net=net_book.total.pmf)
-    info = {"seconds": seconds, "peak_bytes": peak, "joint_shape": list(res.joint.shape),
+    info = {"seconds": seconds, "cpu_seconds": cpu, "peak_bytes": peak,
+            "joint_shape": list(res.joint.shape),
             "net_l1_bound": res.net.errors.l1, "ceded_l1_bound": res.ceded.errors.l1,
             "expected_ceded": res.expected_ceded, "premium": res.premium,
             "erp": res.expected_reinstatement_premium,
@@ -153,10 +159,19 @@ def main() -> None:
         got = dict(np.load(out + ".npz"))
         with open(out + ".json") as fh:
             info = json.load(fh)
+    t0, c0 = time.perf_counter(), time.process_time()
     ref = reference()
+    ref_wall, ref_cpu = time.perf_counter() - t0, time.process_time() - c0
     print("| quantity | value |\n|---|---|")
     print(f"| seconds (fresh process, incl. imports of laws and 3 lines) | "
           f"{info['seconds']:.2f} |")
+    print(f"| CPU seconds of that process (all its threads) | {info['cpu_seconds']:.2f} |")
+    print(f"| load average (1 min) when run | {os.getloadavg()[0]:.1f} on {os.cpu_count()} "
+          "cores |")
+    print(f"| reference (scipy fftconvolve + Poisson thinning, same run): wall / CPU s | "
+          f"{ref_wall:.2f} / {ref_cpu:.2f} |")
+    print(f"| ratio polyconv / reference, CPU (below 1: polyconv faster) | "
+          f"{info['cpu_seconds'] / ref_cpu:.2f} |")
     print(f"| peak RSS | {info['peak_bytes'] / 2**30:.2f} GiB |")
     print(f"| joint window shape | {info['joint_shape'][0]} x {info['joint_shape'][1]} |")
     for key in ("gross", "ceded", "net"):

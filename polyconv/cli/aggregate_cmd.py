@@ -123,15 +123,6 @@ class AggregateSpec:
     retentions: list[float]
     extras: dict
 
-    # one-line views (the first line), kept for callers of the one-line spec
-    @property
-    def counts(self):
-        return self.lines[0].counts.law
-
-    @property
-    def step_of_first(self) -> float:
-        return self.lines[0].step
-
 
 def parse(doc: SpecDoc) -> AggregateSpec:
     """Validate a parsed spec (raises :class:`~polyconv.cli.errors.SpecError`)."""
@@ -249,7 +240,7 @@ def compute(spec: AggregateSpec, steps: Steps | None = None) -> AggregateResult:
             lambda message: first.spec.severity.doc.error(
                 (("lines", 0) if spec.several else ()) + grid_key, message),
             "choose a larger grid.step (or more grid.points)",
-            f"the aggregate loss (E[N] = {fmt(float(first.spec.counts.law.mean()))} claims in "
+            f"the aggregate loss (E[N] = {fmt(first.spec.claims_mean())} claims in "
             f"{first.spec.name})", spec.currency)
         if steps:
             steps.step("risk measures and tables")
@@ -341,9 +332,12 @@ def report_of(res: AggregateResult) -> skeleton.DistributionReport:
     described = []
     for r in res.lines:
         pre = f"{r.spec.name}: " if spec.several else ""
-        mean_n = float(r.spec.counts.law.mean())
-        described += [[f"{pre}claims", r.spec.counts.text], [f"{pre}severity", r.severity_text],
-                      [f"{pre}cover per claim", line_mod.cover_text(r.spec) + f" {spec.currency}"],
+        mean_n = r.spec.claims_mean()
+        described += [[f"{pre}claims", r.spec.counts.text + (
+                           f"; claims per occurrence: {r.spec.cluster.text}"
+                           if r.spec.cluster is not None else "")],
+                      [f"{pre}severity", r.severity_text],
+                      [f"{pre}cover per claim", line_mod.cover_text(r.spec, spec.currency)],
                       [f"{pre}reinsurance", line_mod.reinsurance_text(r.spec)],
                       [f"{pre}expected claims E[N]", fmt(mean_n)],
                       [f"{pre}check E[N] x mean per claim ({spec.currency})",
@@ -352,9 +346,8 @@ def report_of(res: AggregateResult) -> skeleton.DistributionReport:
     first = res.lines[0]
     facts = {"currency": spec.currency, "claims": first.spec.counts.text,
              "severity": res.severity_text,
-             "expected_claims": sum(float(r.spec.counts.law.mean()) for r in res.lines),
-             "mean_check": sum(float(r.spec.counts.law.mean()) * r.per_claim.mean()
-                               for r in res.lines),
+             "expected_claims": sum(r.spec.claims_mean() for r in res.lines),
+             "mean_check": sum(r.spec.claims_mean() * r.per_claim.mean() for r in res.lines),
              "severity_truncated_mass": max(r.per_claim.truncated_mass for r in res.lines),
              "deductible": first.spec.deductible,
              "limit": first.spec.limit if math.isfinite(first.spec.limit) else None,

@@ -36,7 +36,7 @@ from pathlib import Path
 from ..dist import Lattice, law_ops
 from ..dist import count_laws as cl
 from ..dist.claims_data import claims_counts, claims_severity
-from ..dist.law_moments import law_mean
+from ..dist.law_moments import law_mean, limited_mean
 from . import laws
 from .spec import Section
 
@@ -302,11 +302,41 @@ def describe(sec: Section) -> str:
     return ", ".join([text] + [m for m in mods if m])
 
 
-def exact_mean(sec: Section) -> float | None:
-    """``E[X]`` of a continuous severity from its law (None for tables and data)."""
+@dataclass
+class ExactLaw:
+    """A severity's exact mean and limited expected value ``E[min(X, u)]`` (before the grid)."""
+
+    mean: float
+    limited: object
+
+
+def exact_law(sec: Section) -> ExactLaw | None:
+    """The exact law behind a severity table: a continuous law's (:mod:`polyconv.dist.
+    law_moments`), or the table's / sample's own values before they are put on the grid
+    (inflation applied); None for a form without one."""
+    factor = float(sec.raw("inflation", 1.0)) if sec.has("claims_file") or \
+        laws.describe_kind(_plain(sec)) != "law" else 1.0
     if sec.has("claims_file"):
-        return None
-    plain = _plain(sec)
-    if plain.raw("law", None) is None:
-        return None
-    return float(law_mean(continuous_law(sec)))
+        values = read_claims_file(sec, "claims_file", "amount")
+        probs = [1.0 / len(values)] * len(values)
+    elif sec.raw("law", None) is not None:
+        law = continuous_law(sec)
+        return ExactLaw(float(law_mean(law)), lambda u: float(limited_mean(law, u)))
+    elif sec.has("samples"):
+        values = sec.numbers("samples")
+        probs = [1.0 / len(values)] * len(values)
+    else:
+        values = sec.numbers("values")
+        key = "probabilities" if sec.has("probabilities") else "counts"
+        weights = sec.numbers(key)
+        total = math.fsum(weights)
+        probs = [w / total for w in weights]
+    v = [x * factor for x in values]
+    return ExactLaw(math.fsum(x * p for x, p in zip(v, probs, strict=True)),
+                    lambda u: math.fsum(min(x, u) * p for x, p in zip(v, probs, strict=True)))
+
+
+def exact_mean(sec: Section) -> float | None:
+    """``E[X]`` of the severity (:func:`exact_law`)."""
+    ex = exact_law(sec)
+    return None if ex is None else ex.mean

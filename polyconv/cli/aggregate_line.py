@@ -15,6 +15,13 @@ and ``[grid]`` step).  Reinsurance of a line (``[reinsurance]``, all keys option
     aggregate_limit = 1.0e6              # annual aggregate limit
     premium = 30000.0                    # upfront premium; omitted: the pure premium
 
+``[claims]`` may carry ``per_occurrence = { law = "zero-truncated", base = { law = "poisson",
+mean = 0.5 } }`` (claims per occurrence ``K``, any count form of
+:mod:`polyconv.cli.aggregate_laws`): ``[claims]`` then counts occurrences, and
+``[reinsurance.xol] basis = "per-occurrence"`` (default: the layer on each occurrence's total)
+or ``"per-risk"`` (on each claim) tells the two apart; without it each claim is one occurrence
+and the two coincide.
+
 Gross, XoL recovery and net come from one joint law (:func:`polyconv.dist.xol_programme`); the
 quota share scales the net after the XoL (:func:`polyconv.dist.quota_share`).
 """
@@ -27,7 +34,6 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..dist import Lattice, compound
-from ..dist.law_moments import limited_mean
 from ..dist.reinsurance import ProgrammeResult, XoLLayer, quota_share, surplus_share, xol_programme
 from . import aggregate_laws as al
 from . import grid_mass
@@ -38,7 +44,8 @@ RULES = ("nearest", "down", "up", "moments")
 METHODS = ("auto", "fft", "recursion")
 LINE_KEYS = ("name", "claims", "severity", "cover", "grid", "reinsurance")
 XOL_KEYS = ("deductible", "limit", "reinstatements", "rates", "aggregate_deductible",
-            "aggregate_limit", "premium")
+            "aggregate_limit", "premium", "basis")
+BASES = ("per-occurrence", "per-risk")
 
 
 @dataclass
@@ -58,6 +65,13 @@ class LineSpec:
     layer: XoLLayer | None = None
     share: float = 0.0
     share_text: str = ""
+    cluster: al.Counts | None = None
+    basis: str = "per-occurrence"
+
+    def claims_mean(self) -> float:
+        """``E[N] E[K]``: expected claims (``K`` claims per occurrence, 1 without a cluster)."""
+        k = float(self.cluster.law.mean()) if self.cluster is not None else 1.0
+        return float(self.counts.law.mean()) * k
 
 
 def on_step(value: float, step: float) -> bool:
@@ -68,7 +82,13 @@ def on_step(value: float, step: float) -> bool:
 
 def parse_line(sec: Section, name: str, default_step: float | None = None) -> LineSpec:
     """Validate one line (the keys of :data:`LINE_KEYS` in ``sec``)."""
-    counts = al.parse_counts(sec.table("claims"))
+    claims = sec.table("claims")
+    cluster = None
+    if claims.has("per_occurrence"):  # claims per occurrence K: [claims] then counts events
+        cluster = al.parse_counts(claims.table("per_occurrence"))
+        claims = Section({k: v for k, v in claims.data.items() if k != "per_occurrence"},
+                         claims.path, claims.doc)
+    counts = al.parse_counts(claims)
     severity = sec.table("severity")
     if not al.is_composite(severity):
         al.laws.describe_kind(severity)
@@ -89,7 +109,7 @@ def parse_line(sec: Section, name: str, default_step: float | None = None) -> Li
             raise cover.error(key, f"must be a whole multiple of grid.step = {step:g}; got "
                               f"{value:g}")
     line = LineSpec(name, counts, severity, deductible, limit, step, points, max_points, rule,
-                    method)
+                    method, cluster=cluster)
     if sec.has("reinsurance"):
         parse_reinsurance(sec.table("reinsurance"), line)
     return line
@@ -129,6 +149,7 @@ def parse_reinsurance(sec: Section, line: LineSpec) -> None:
         raise x.error("rates", f"must give one rate or one per reinstatement ({k}); got "
                       f"{len(rates)}")
     premium = x.number("premium", None, minimum=0.0)
+    line.basis = x.string("basis", "per-occurrence", BASES)
     line.layer = XoLLayer(vals["deductible"], vals["limit"], k, rates,
                           vals["aggregate_deductible"], vals["aggregate_limit"], premium)
 
@@ -145,6 +166,7 @@ class LineResult:
     programme: ProgrammeResult | None = None
     qs_ceded: Lattice | None = None
     severity_mean: float | None = None
+    per_occurrence: Lattice | None = None
     checks: list[list] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
 
@@ -174,66 +196,64 @@ def compute_line(line: LineSpec, currency: str, steps=None) -> LineResult:
         if steps:
             steps.step(f"compound ({line.name})")
         programme = None
+        cluster = line.cluster.law if line.cluster is not None else None
+        occurrence = per_claim if cluster is None else compound(cluster, per_claim)
         if line.layer is not None:
             try:
                 programme = xol_programme(line.counts.law, per_claim, line.layer,
-                                          size=line.points)
+                                          size=line.points, cluster=cluster, basis=line.basis)
             except ValueError as exc:
                 raise line.severity.doc.error(line.severity.path[:-1] + ("reinsurance", "xol"),
                                               str(exc)) from None
             gross, net = programme.gross, programme.net
             notes.extend(programme.notes)
         else:
-            gross = compound(line.counts.law, per_claim, method=line.method, size=line.points)
+            gross = compound(line.counts.law, occurrence, method=line.method, size=line.points)
             net = gross
         qs_ceded = None
         if line.share > 0:
             net, qs_ceded = quota_share(net, line.share)
     sev_mean = al.exact_mean(line.severity)
+    if line.cluster is not None:
+        notes.extend(line.cluster.caveats)
     res = LineResult(line, per_claim, built.description, gross, net, programme, qs_ceded,
-                     sev_mean, notes=notes)
+                     sev_mean, occurrence, notes=notes)
     res.checks = mean_checks(res, ground_up)
     return res
 
 
 def mean_checks(res: LineResult, ground_up: Lattice) -> list[list]:
-    """Rows ``[quantity, from the law, on the lattice]``: the severity's mean, each layer's
-    limited expected value and E[N] E[X] against the lattice (exact means of the laws)."""
+    """Rows ``[quantity, exact, on the lattice]``: the severity's mean (or its limited mean up to
+    a grid cut), the cover's and the XoL layer's limited expected values per claim, and
+    ``E[N] E[K] E[per claim]`` against the lattice (:func:`polyconv.cli.aggregate_laws.
+    exact_law`: the law before discretisation)."""
     line = res.spec
-    mean_n = float(line.counts.law.mean())
+    ex = al.exact_law(line.severity)
     rows = []
-    law = None
-    if res.severity_mean is not None:
-        law = al.continuous_law(line.severity)
-        if ground_up.truncated_mass > 1e-9:  # grid cut (e.g. past the cover): E[min(X, top)]
-            top = ground_up.origin + ground_up.step * (len(ground_up) - 1)
-            on = float(np.dot(np.minimum(ground_up.values, top), ground_up.pmf)) + \
-                top * ground_up.truncated_mass
-            rows.append([f"severity limited mean E[min(X, {fmt(top)})]",
-                         limited_mean(law, top), on])
-        else:
-            rows.append(["severity mean E[X]", res.severity_mean, ground_up.mean()])
-    cover_mean = None
-    if law is not None and (line.deductible > 0 or math.isfinite(line.limit)):
-        top = line.deductible + line.limit
-        cover_mean = (limited_mean(law, top) if math.isfinite(top) else res.severity_mean) \
-            - limited_mean(law, line.deductible)
+    if ex is None:
+        return [["aggregate mean E[N] x E[per claim]", None, res.gross.mean()]]
+    if ground_up.truncated_mass > 1e-9:  # grid cut (e.g. past the cover): E[min(X, top)]
+        top = ground_up.origin + ground_up.step * (len(ground_up) - 1)
+        on = float(np.dot(np.minimum(ground_up.values, top), ground_up.pmf)) + \
+            top * ground_up.truncated_mass
+        rows.append([f"severity limited mean E[min(X, {fmt(top)})]", ex.limited(top), on])
+    else:
+        rows.append(["severity mean E[X]", ex.mean, ground_up.mean()])
+
+    def lev(lo: float, hi: float) -> float:
+        return (ex.limited(hi) if math.isfinite(hi) else ex.mean) - ex.limited(lo)
+
+    top = line.deductible + line.limit
+    per_claim_exact = lev(line.deductible, top)
+    if line.deductible > 0 or math.isfinite(line.limit):
         rows.append([f"per-claim cover mean E[min((X - {fmt(line.deductible)})+, "
-                     f"{fmt(line.limit)})]", cover_mean, res.per_claim.mean()])
-    if law is not None and line.layer is not None:
+                     f"{fmt(line.limit)})]", per_claim_exact, res.per_claim.mean()])
+    if line.layer is not None:
         d, w = line.deductible + line.layer.deductible, line.layer.limit
-        lev = limited_mean(law, d + w) - limited_mean(law, d)
-        if math.isfinite(line.limit):
-            lev = limited_mean(law, min(d + w, line.deductible + line.limit)) - \
-                limited_mean(law, min(d, line.deductible + line.limit))
         on = res.per_claim.layer(line.layer.deductible, line.layer.limit).mean()
         rows.append([f"XoL layer per claim (limited expected values, {fmt(w)} xs "
-                     f"{fmt(line.layer.deductible)})", lev, on])
-    per_claim_law = cover_mean if cover_mean is not None else (
-        res.severity_mean if law is not None and line.deductible == 0 and
-        not math.isfinite(line.limit) else None)
-    rows.append(["aggregate mean E[N] x E[per claim]",
-                 mean_n * per_claim_law if per_claim_law is not None else None,
+                     f"{fmt(line.layer.deductible)})", lev(min(d, top), min(d + w, top)), on])
+    rows.append(["aggregate mean E[N] x E[per claim]", line.claims_mean() * per_claim_exact,
                  res.gross.mean()])
     return rows
 
@@ -257,12 +277,12 @@ def programme_table(res: LineResult, levels: list[float]) -> list[list[str]]:
     return [["measure"] + [c for c, _ in cols]] + rows
 
 
-def cover_text(line: LineSpec) -> str:
+def cover_text(line: LineSpec, currency: str = "") -> str:
     """The per-claim cover in words."""
     if line.deductible == 0 and not math.isfinite(line.limit):
         return "none (ground-up)"
     lim = f"{line.limit:,.0f}" if math.isfinite(line.limit) else "unlimited"
-    return f"deductible {line.deductible:,.0f}, limit {lim}"
+    return f"deductible {line.deductible:,.0f}, limit {lim} {currency}".rstrip()
 
 
 def reinsurance_text(line: LineSpec) -> str:
@@ -271,7 +291,9 @@ def reinsurance_text(line: LineSpec) -> str:
     if line.layer is not None:
         lay = line.layer
         k = "unlimited" if lay.reinstatements is None else str(lay.reinstatements)
-        parts.append(f"XoL {lay.limit:,.0f} xs {lay.deductible:,.0f} per occurrence, {k} "
+        basis = line.basis.replace("-", " ") if line.cluster is not None else \
+            "per occurrence (one claim each)"
+        parts.append(f"XoL {lay.limit:,.0f} xs {lay.deductible:,.0f} {basis}, {k} "
                      f"reinstatements at {', '.join(f'{r:g}' for r in lay.rates)}, AAD "
                      f"{lay.aggregate_deductible:,.0f}, AAL "
                      + (f"{lay.aggregate_limit:,.0f}" if math.isfinite(

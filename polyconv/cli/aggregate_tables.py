@@ -23,7 +23,7 @@ import numpy as np
 from ..dist import Lattice
 from ..dist.allocation import split_contributions, tvar_contributions
 from ..dist.distortion import layer_table, proportional_hazard, wang
-from ..dist.exceedance import RETURN_PERIODS, largest_claim, return_period_table
+from ..dist.exceedance import RETURN_PERIODS, largest_claim, largest_of, return_period_table
 from .aggregate_line import programme_table
 from .distribution_report import Table
 from .report import fmt, fmt_prob, level_name
@@ -132,21 +132,21 @@ def programme_facts(res) -> dict:
     return out
 
 
-def occurrence_law(results) -> Lattice | None:
-    """The year's largest claim (one line: from its count law's generating function)."""
-    if len(results) != 1:
-        return None
-    r = results[0]
+def occurrence_law(results) -> Lattice:
+    """The year's largest occurrence (claim, without clusters): per line from its count law's
+    generating function, over several independent lines the product of their cdfs
+    (:func:`~polyconv.dist.exceedance.largest_of`)."""
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        return largest_claim(r.spec.counts.law, r.per_claim)
+        each = [largest_claim(r.spec.counts.law, r.per_occurrence) for r in results]
+        return each[0] if len(each) == 1 else largest_of(each)
 
 
 def return_table(largest, gross, net, periods) -> tuple[Table, list]:
     """Occurrence (largest claim) and aggregate amounts at each return period."""
     rows_g = return_period_table(largest, gross, periods)
     rows_n = return_period_table(None, net, periods) if net is not None else None
-    header = ["return period", "probability per year", "largest claim (OEP)",
+    header = ["return period", "probability per year", "largest occurrence (OEP)",
               "aggregate gross (AEP)"] + (["aggregate net"] if net is not None else [])
     rows, facts = [], []
     for i, r in enumerate(rows_g):
@@ -174,7 +174,7 @@ def exceedance_table(largest, gross, amounts) -> tuple[Table, list]:
             oep = _sf(largest, x) if largest is not None else math.nan
         rows.append([fmt(x), fmt_prob(oep) if largest is not None else "-", fmt_prob(aep)])
         facts.append({"amount": x, "oep": oep if largest is not None else None, "aep": aep})
-    return Table("Exceedance probabilities", ["amount", "OEP P(largest claim > x)",
+    return Table("Exceedance probabilities", ["amount", "OEP P(largest occurrence > x)",
                                               "AEP P(S > x)"], rows), facts
 
 

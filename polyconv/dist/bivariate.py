@@ -90,7 +90,7 @@ def _pgf_slope(law: CountsLaw, l1: float, mean_n: float) -> float:
 
 
 def compound2(counts, severity: BivariateLattice, shape: tuple[int, int] | None = None, *,
-              pad: float = 2.0, cap: int = 1 << 16) -> BivariateLattice:
+              pad: float | tuple = 2.0, cap: int = 1 << 16) -> BivariateLattice:
     """Joint law of ``(sum_{i <= N} X_i, sum_{i <= N} Y_i)`` for i.i.d. pairs ``(X_i, Y_i)``.
 
     ``g = IFFT2(P_N(FFT2(f e^{-theta1 i - theta2 j}))) e^{theta1 i + theta2 j}`` on transform
@@ -105,8 +105,8 @@ def compound2(counts, severity: BivariateLattice, shape: tuple[int, int] | None 
     shape : (int, int), optional
         Rectangle of the result.  Default per axis: the smallest grid whose Chernoff-bounded
         tail is below :data:`DEFAULT_TAIL`, at most ``cap``.  A short second axis is a window.
-    pad : float
-        Transform length per axis relative to the result (``>= 1``; 2 per DESIGN.md section 6).
+    pad : float or (float, float)
+        Transform length per axis (or each) relative to the result (``>= 1``; 2: DESIGN.md s. 6).
 
     Returns
     -------
@@ -132,10 +132,10 @@ def compound2(counts, severity: BivariateLattice, shape: tuple[int, int] | None 
     n1, n2 = (int(s) for s in shape)
     if n1 < 1 or n2 < 1:
         raise ValueError(f"shape must be two positive integers; got {shape!r}")
-    if not pad >= 1:
-        raise ValueError(f"pad must be >= 1; got {pad!r}")
-    m1 = tf.fast_length(max(int(math.ceil(pad * n1)), f.shape[0], MIN_TRANSFORM), real=False)
-    m2 = tf.fast_length(max(int(math.ceil(pad * n2)), f.shape[1], MIN_TRANSFORM), real=True)
+    if not min(pads := pad if isinstance(pad, tuple) else (pad, pad)) >= 1:
+        raise ValueError(f"pad must be >= 1 (or a pair of them); got {pad!r}")
+    m1 = tf.fast_length(max(int(math.ceil(pads[0] * n1)), f.shape[0], MIN_TRANSFORM), real=False)
+    m2 = tf.fast_length(max(int(math.ceil(pads[1] * n2)), f.shape[1], MIN_TRANSFORM), real=True)
     half = m2 // 2 + 1
     check_allocation(16 * n1 * half + 8 * n1 * n2 + 16 * f.shape[0] * half
                      + 16 * m1 * COLUMN_BLOCK * 3,
@@ -157,11 +157,11 @@ def compound2(counts, severity: BivariateLattice, shape: tuple[int, int] | None 
         big = law.transform.pgf(phi)
         cols = np.arange(c0, c1)
         weight = np.where((cols == 0) | ((cols == m2 // 2) & (m2 % 2 == 0)), 1.0, 2.0)
-        mag = np.abs(big) ** 2
-        sums["sq"] += float(np.sum(mag * weight[:, None]))
+        mag = big.real ** 2 + big.imag ** 2
+        sums["sq"] += float(weight @ mag.sum(axis=1))
         if law.transform.ratio is not None:  # |P'(phi)|^2 = |r(phi)|^2 |P(phi)|^2
-            sums["lip_sq"] += float(np.sum(np.abs(law.transform.ratio(phi)) ** 2 * mag
-                                           * weight[:, None]))
+            sums["lip_sq"] += float(weight @ (np.abs(law.transform.ratio(phi)) ** 2 * mag
+                                              ).sum(axis=1))
         else:
             sums["lip_sq"] = math.inf
         return big

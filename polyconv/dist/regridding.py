@@ -33,7 +33,8 @@ def regrid_parts(lat, step: float) -> tuple[np.ndarray, float, float, ErrorLedge
     """``(pmf, step, origin, ledger)`` of ``lat`` on the grid ``step * j`` (module docstring).
 
     The origin becomes ``H floor(origin / H)``; the truncated part stays beyond (from the image
-    of its first index), its first-moment bound raised by ``H`` times its mass.
+    of its first index), its moment bounds raised as by a shift of ``H``:
+    ``m1 + H t`` and ``m2 + 2 H m1 + H^2 t`` (``t`` its mass bound).
     """
     h_new = float(step)
     if not (h_new > 0 and math.isfinite(h_new)):
@@ -56,9 +57,12 @@ def regrid_parts(lat, step: float) -> tuple[np.ndarray, float, float, ErrorLedge
     point = min(e.l1, fan_in * e.point) + rounding
     l1 = e.l1 + 2 * _U * float(np.sum(lat.pmf))
     tf = out.size if e.truncated_from >= len(lat) else int(lo[min(e.truncated_from, len(lo) - 1)])
-    moment = e.truncated_moment
-    if moment not in (0.0, math.inf):
-        moment += h_new * min(1.0, e.truncated + e.l1)
+    moment, moment2 = e.truncated_moment, e.truncated_moment2
+    if moment not in (0.0, math.inf):  # the truncated part moves up by less than H
+        mass = min(1.0, e.truncated + e.l1)
+        moment2 = moment2 + 2 * h_new * moment + h_new * h_new * mass \
+            if math.isfinite(moment2) else math.inf
+        moment += h_new * mass
     led = ErrorLedger(min(point, 2.0), min(l1, 2.0), 0.0, min(tf, out.size), moment,
-                      min(cum_bound(e) + 2 * _U, 2.0))
+                      min(cum_bound(e) + 2 * _U, 2.0), moment2)
     return out, h_new, base * h_new, led

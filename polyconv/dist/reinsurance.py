@@ -35,12 +35,15 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..numerics.budget import check_allocation
 from .bivariate import BivariateLattice, compound2
 from .compound import compound
 from .lattice import Lattice
 from .ledger import ErrorLedger, cum_bound
 
 _U = 2.0 ** -53
+ROW_TAIL = 1e-10
+"""Gross mass beyond the grid under which the joint's retained axis is transformed unpadded."""
 
 
 @dataclass(frozen=True)
@@ -163,7 +166,8 @@ def _on_grid_mean(b: BivariateLattice, axis: int) -> float:
 
 
 def xol_programme(counts, severity: Lattice, layer: XoLLayer, *, size: int | None = None,
-                  pad: float = 2.0) -> ProgrammeResult:
+                  pad: float = 2.0, cluster=None, basis: str = "per-occurrence"
+                  ) -> ProgrammeResult:
     """Gross, ceded and net aggregate laws of a line protected by one XoL layer (module
     docstring), with the expected reinstatement premium.
 
@@ -179,6 +183,14 @@ def xol_programme(counts, severity: Lattice, layer: XoLLayer, *, size: int | Non
         Points of the gross (and net) grid; default that of :func:`polyconv.dist.compound`.
     pad : float
         Transform padding of the joint compound.
+    cluster : scipy.stats frozen discrete law, optional
+        Claims per occurrence ``K`` (i.i.d. over occurrences, independent of the amounts);
+        ``counts`` then counts occurrences.  Default: one claim per occurrence.
+    basis : {"per-occurrence", "per-risk"}
+        With a ``cluster``: the layer applies to each occurrence's total ``sum_{j <= K} X_j``
+        (its severity is that 1-D compound), or to each claim (the occurrence's pair of
+        retained and ceded sums is the joint compound of ``K`` per-claim splits, windowed at
+        ``L <= A`` like the year's: an occurrence beyond the window puts the year beyond it).
 
     Returns
     -------
@@ -195,10 +207,15 @@ def xol_programme(counts, severity: Lattice, layer: XoLLayer, *, size: int | Non
     """
     if not isinstance(layer, XoLLayer):
         raise TypeError(f"layer must be an XoLLayer; got {type(layer).__name__}")
+    if basis not in ("per-occurrence", "per-risk"):
+        raise ValueError(f"basis must be 'per-occurrence' or 'per-risk'; got {basis!r}")
     h = severity.step
     aad = _index(layer.aggregate_deductible, h, "aggregate_deductible")
     cap = layer.aggregate_cap()
     _index(layer.limit, h, "limit")
+    per_claim = severity
+    if cluster is not None:
+        severity = compound(cluster, severity, size=size)  # one occurrence's total
     gross = compound(counts, severity, size=size)
     n1 = len(gross)
     if math.isinf(cap):
@@ -207,19 +224,37 @@ def xol_programme(counts, severity: Lattice, layer: XoLLayer, *, size: int | Non
     else:
         al = _index(cap, h, "aggregate cap")
         window = aad + al + 1
-    split = layer_split(severity, layer.deductible, layer.limit)
     notes: list[str] = []
+    per_risk = cluster is not None and basis == "per-risk"
+    if per_risk:
+        notes.append("per-risk layer on clustered claims: the occurrence's retained and ceded "
+                     "sums are the joint compound of its claims' splits")
     if al is None and aad == 0:  # no aggregate terms: C = L and net = R, two 1-D compounds
-        layer_loss = compound(counts, split.marginal(1), size=n1)
-        net = compound(counts, split.marginal(0), size=n1)
+        split = layer_split(per_claim if per_risk else severity, layer.deductible, layer.limit)
+        parts = [split.marginal(0), split.marginal(1)]
+        if per_risk:
+            parts = [compound(cluster, x, size=n1) for x in parts]
+        layer_loss = compound(counts, parts[1], size=n1)
+        net = compound(counts, parts[0], size=n1)
         joint = None
         notes.append("no aggregate terms: ceded and net are the compounds of the per-claim "
                      "split's two parts (their joint law is not needed)")
     else:
-        joint = compound2(counts, split, (n1, window), pad=pad)
+        # rows (retained R <= G): when the gross law's mass beyond its grid is negligible, so is
+        # R's, and the rows need no padding (the wrapped mass is in the joint's ledger)
+        rows_pad = 1.0 if gross.errors.truncated <= ROW_TAIL else pad
+        split = compound2(cluster, layer_split(per_claim, layer.deductible, layer.limit),
+                          (n1, window), pad=(rows_pad, pad)) if per_risk \
+            else layer_split(severity, layer.deductible, layer.limit)
+        joint = compound2(counts, split, (n1, window), pad=(rows_pad, pad))
         layer_loss = joint.marginal(1)
-        if al is None:
-            retained = compound(counts, split.marginal(0), size=n1)
+        if al is None:  # R and L in full from 1-D compounds (the window holds only L <= AAD)
+            full = layer_split(per_claim, layer.deductible, layer.limit) if per_risk else split
+            kept, ceded_part = full.marginal(0), full.marginal(1)
+            if per_risk:
+                kept, ceded_part = (compound(cluster, x, size=n1) for x in (kept, ceded_part))
+            retained = compound(counts, kept, size=n1)
+            layer_loss = compound(counts, ceded_part, size=n1)
             net = _net_uncapped(joint, retained, gross, aad)
         else:
             net = _net(joint, gross, aad, al)
@@ -253,11 +288,10 @@ def _net(joint: BivariateLattice, gross: Lattice, aad: int, al: int) -> Lattice:
     """``P(net = t)`` from the window and the gross law (module docstring)."""
     n1 = joint.shape[0]
     a = aad + al  # window columns 0..a
-    j = np.arange(a)
-    phi = np.minimum(j, aad)
-    sub = BivariateLattice(joint.pmf[:, :a], joint.step)
-    first = sub.columns_pushed(phi, n1)
-    diag = sub.columns_pushed(j, n1 + al)  # P(G = s, L < A)
+    sub = joint.pmf[:, :a]  # a view: no copy of the window
+    first = _diagonal_sums(sub[:, :aad], n1)  # columns j < AAD pushed by j ...
+    first[aad:] += sub[:n1 - aad, aad:].sum(axis=1)  # ... the others by AAD
+    diag = _diagonal_sums(sub, n1 + al)  # P(G = s, L < A)
     g = np.zeros(n1 + al)
     g[:n1] = gross.pmf
     vec = first + (g[al:al + n1] - diag[al:al + n1])
@@ -269,6 +303,23 @@ def _net(joint: BivariateLattice, gross: Lattice, aad: int, al: int) -> Lattice:
     led = ErrorLedger(min(point + neg, 2.0), min(l1 + neg, 2.0), 0.0, tf,
                       lg.truncated_moment, min(2 * cum_bound(lj) + cum_bound(lg) + neg, 2.0))
     return Lattice._make(np.maximum(vec, 0.0), joint.step, 0.0, led)
+
+
+def _diagonal_sums(pmf: np.ndarray, size: int) -> np.ndarray:
+    """``v[s] = sum_{i + j = s} pmf[i, j]`` for ``s < size`` (the law of ``X + Y`` on a window):
+    each column ``j`` shifted down by ``j`` in a strided view, then one sum per row."""
+    n1, k = pmf.shape
+    out = np.zeros(size)
+    if k == 0:
+        return out
+    check_allocation(8 * (n1 + k) * k, f"the diagonal sums of a {n1} x {k} window")
+    shifted = np.zeros((n1 + k) * k)
+    view = np.lib.stride_tricks.as_strided(shifted, shape=(n1, k),
+                                           strides=(8 * k, 8 * (k + 1)), writeable=True)
+    view[:] = pmf  # view[i, j] is shifted[(i + j) * k + j]: row i + j, column j
+    sums = shifted.reshape(n1 + k, k).sum(axis=1)
+    out[: min(size, sums.size)] = sums[:size]
+    return out
 
 
 def layer_mean(lat: Lattice, attachment: float, width: float) -> float:

@@ -196,7 +196,11 @@ def mapped_spectrum_2d(f: np.ndarray, shape: tuple, keep: tuple, pointwise,
     m1, m2 = shape
     n1, n2 = keep
     half = m2 // 2 + 1
-    cols = np.ascontiguousarray(tf.rfft(tf.zero_padded(f, m2), -1, threads).T)  # half x rows
+    cols = np.empty((half, f.shape[0]), dtype=complex)  # half x rows: blocks of rows, each
+    rows = 4 * row_block                                  # transposed, transformed along axis 0
+    for r0 in range(0, f.shape[0], rows):
+        cols[:, r0:r0 + rows] = tf.rfft(np.pad(f[r0:r0 + rows].T, ((0, m2 - f.shape[1]), (0, 0))),
+                                        0, threads)
     spec = np.empty((half, n1), dtype=complex)
     for c0 in range(0, half, column_block):
         c1 = min(half, c0 + column_block)

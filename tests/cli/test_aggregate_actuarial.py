@@ -135,6 +135,60 @@ def test_programme_terms_against_a_direct_two_dimensional_sum(tmp_path, capsys):
     np.testing.assert_allclose(csv_pmf(out)[:40], g[:40], atol=1e-13)
     md = (out / "summary.md").read_text()
     assert "Reinsurance (the line)" in md and "model output, not advice" in md
+    # mean checks from the table itself (by hand): E[X] = 1.9; the layer 2 xs 1 per claim:
+    # E[min((X - 1)+, 2)] = 0.3 x 1 + 0.2 x 2 = 0.7; E[N] E[X] = 1.2 x 1.9
+    checks = [(c["law"], c["lattice"]) for c in s["mean_checks"]]
+    np.testing.assert_allclose(checks, [(1.9, 1.9), (0.7, 0.7), (2.28, 2.28)], rtol=1e-11)
+
+
+def _powers_sum(f: np.ndarray, weights: np.ndarray, size: int) -> np.ndarray:
+    """``sum_n weights[n] f^{*n}`` on ``size x size`` (scipy.signal.convolve2d powers)."""
+    out = np.zeros((size, size))
+    power = np.zeros((size, size))
+    power[0, 0] = 1.0
+    for w in weights:
+        out += w * power
+        power = signal.convolve2d(power, f)[:size, :size]
+    return out
+
+
+@pytest.mark.parametrize("basis", ["per-risk", "per-occurrence"])
+def test_clustered_claims_against_a_direct_two_dimensional_sum(tmp_path, capsys, basis):
+    # occurrences Poisson(0.9), claims per occurrence zero-truncated Poisson(0.7), amounts
+    # 1, 2, 4; layer 2 xs 1 on each claim (per risk) or on each occurrence's total, AAL 3
+    text = PROGRAMME.replace("quota_share = 0.25\n", "").replace(
+        'mean = 1.2', 'mean = 0.9\nper_occurrence = { law = "zero-truncated", base = '
+        '{ law = "poisson", mean = 0.7 } }').replace(
+        "aggregate_deductible = 1.0", f'aggregate_deductible = 0.0\nbasis = "{basis}"')
+    s, _ = run_json(tmp_path, text, capsys)
+    size = 90
+    k = np.arange(30)
+    pk = stats.poisson.pmf(k, 0.7) / (1 - math.exp(-0.7))  # zero-truncated (definition)
+    pk[0] = 0.0
+    claim = np.zeros(5)
+    claim[[1, 2, 4]] = [0.5, 0.3, 0.2]
+    if basis == "per-risk":  # joint (retained, ceded) of one claim, then of one occurrence
+        f = np.zeros((5, 5))
+        for x, p in zip((1, 2, 4), (0.5, 0.3, 0.2), strict=True):
+            c = min(max(x - 1, 0), 2)
+            f[x - c, c] += p
+        occ = _powers_sum(f, pk, size)
+    else:  # the occurrence total, then its split
+        total = _powers_sum(claim[:, None], pk, size)[:, 0]
+        occ = np.zeros((size, size))
+        for x in range(size):
+            c = min(max(x - 1, 0), 2)
+            occ[x - c, c] += total[x]
+    joint = _powers_sum(occ, stats.poisson.pmf(np.arange(40), 0.9), size)
+    r, layer = np.meshgrid(np.arange(size), np.arange(size), indexing="ij")
+    rec = np.clip(layer, 0, 3)
+    rein = s["reinsurance"]["the line"]
+    assert rein["expected_recovery"] == pytest.approx(float((rec * joint).sum()), rel=1e-9)
+    assert rein["net_mean"] == pytest.approx(float(((r + layer - rec) * joint).sum()),
+                                             rel=1e-9)
+    # E[S] = E[N] E[K] E[X] (Wald twice), the same for both bases
+    assert s["mean"]["value"] == pytest.approx(0.9 * 0.7 / (1 - math.exp(-0.7)) * 1.9,
+                                               rel=1e-10)
 
 
 def test_programme_split_contributions_sum_to_the_gross_tvar(tmp_path, capsys):
@@ -211,6 +265,13 @@ def test_lines_on_different_steps_are_regridded_and_summed(tmp_path, capsys):
     tvar = next(r for r in rows if r["measure"] == "TVaR 95%")
     assert tvar["diversification"] == pytest.approx(sum(tvar["lines"]) - tvar["total"])
     assert s["regrid"][0]["from_step"] == 1.0 and s["regrid"][0]["to_step"] == 2.0
+    # the year's largest claim over both lines: P(M <= x) = prod_i exp(-lam_i (1 - F_i(x)))
+    # (Poisson PGFs at the cdfs); 1 in 20: the smallest x with P(M <= x) >= 0.95
+    x = np.arange(8)
+    f1 = np.where(x >= 3, 1.0, np.where(x >= 1, 0.6, 0.0))
+    f2 = np.where(x >= 6, 1.0, np.where(x >= 2, 0.7, 0.0))
+    cdf = np.exp(-1.5 * (1 - f1) - 0.8 * (1 - f2))
+    assert s["return_periods"][0]["occurrence"] == x[np.searchsorted(cdf, 0.95 - 1e-12)]
 
 
 def test_allocation_against_enumeration_of_the_two_lines(tmp_path, capsys):
@@ -330,6 +391,26 @@ def test_zero_modified_negative_binomial_against_its_pmf(tmp_path, capsys):
     ref = base.pmf(k) * 0.7 / (1 - base.pmf(0))  # (a, b, 1) definition: (1-p0)/(1-q0) q_k
     ref[0] = 0.3
     same_pmf(got, ref, 1e-14)
+
+
+def test_zero_modified_by_recursion_and_by_transform_agree_with_the_pmf(tmp_path, capsys):
+    # (a, b, 1) Panjer recursion (Sundt & Jewell 1981) and the transform route, same spec; the
+    # reference: compound of the zero-modified Poisson pmf written out (definition, numpy)
+    claims = 'law = "zero-modified"\np0 = 0.3\nbase = { law = "poisson", mean = 2.0 }'
+    text = DEGENERATE.format(claims=claims).replace("values = [1.0]\nprobabilities = [1.0]",
+                                                    "values = [1.0, 2.0]\n"
+                                                    "probabilities = [0.5, 0.5]")
+    k = np.arange(60)
+    pn = stats.poisson.pmf(k, 2.0) * 0.7 / (1 - math.exp(-2.0))
+    pn[0] = 0.3
+    ref, power = np.zeros(130), np.array([1.0])
+    for n in range(60):
+        ref[:power.size] += pn[n] * power
+        power = np.convolve(power, [0, 0.5, 0.5])
+    for method in ("recursion", "fft"):
+        _, out = run_json(tmp_path, text.replace("points = 120", f"points = 120\nmethod = "
+                                                 f'"{method}"'), capsys, name=f"{method}.toml")
+        same_pmf(csv_pmf(out), ref[:120], 1e-14)
 
 
 def test_gamma_mixed_poisson_is_scipy_nbinom(tmp_path, capsys):
@@ -459,3 +540,35 @@ def test_bundled_programme_spec_runs_and_keeps_its_identities(tmp_path, capsys):
             assert c["lattice"] == pytest.approx(c["law"], rel=2e-3), c["quantity"]
     md = (out / "summary.md").read_text()
     assert "Return periods" in md and "Layer prices" in md
+
+
+@pytest.mark.parametrize("edit, key", [
+    (lambda t: t.replace('basis = "x"', ""), None),  # control: the unedited spec runs
+    (lambda t: t.replace("[reinsurance.xol]", '[reinsurance.xol]\nbasis = "per-event"'),
+     "reinsurance.xol.basis"),
+    (lambda t: t.replace("quota_share = 0.25", "quota_share = 0.25\nsurplus = { lines = 1 }"),
+     "reinsurance.surplus"),
+    (lambda t: t.replace("deductible = 1.0", "deductible = 1.5", 1), "reinsurance.xol.deductible"),
+    (lambda t: t.replace('law = "poisson"\nmean = 1.2', 'law = "zero-modified"\np0 = 1.0\n'
+                         'base = { law = "poisson", mean = 1.2 }'), "claims.p0"),
+    (lambda t: t.replace('law = "poisson"\nmean = 1.2', 'law = "mixed-poisson"\nmean = 1.2\n'
+                         'mixing = "beta"\ncv = 0.3'), "claims.mixing"),
+    (lambda t: t.replace("values = [1, 2, 4]\nprobabilities = [0.5, 0.3, 0.2]",
+                         'law = "mixture"\ncomponents = [{ weight = 0.5, law = "expon" }]'),
+     "severity.components"),
+    (lambda t: t.replace("values = [1, 2, 4]\nprobabilities = [0.5, 0.3, 0.2]",
+                         'claims_file = "nowhere.csv"'), "severity.claims_file"),
+    (lambda t: t.replace("return_periods = []", "return_periods = [0.5]"),
+     "report.return_periods[0]"),
+    (lambda t: t + "\n[[lines]]\nname = \"a\"\n", "claims"),
+])
+def test_bad_actuarial_keys_name_the_key(tmp_path, capsys, edit, key):
+    # common practice, no source: a refused spec exits 2 and names the dotted key
+    spec = tmp_path / "bad.toml"
+    spec.write_text(edit(PROGRAMME), encoding="utf-8")
+    code = main(["aggregate", str(spec), "-o", str(tmp_path / "out"), "--quiet"])
+    err = capsys.readouterr().err
+    if key is None:
+        assert code == 0
+    else:
+        assert code == 2 and key in err, err

@@ -19,6 +19,7 @@ from polyconv.dist.distortion import (
 from polyconv.dist.exceedance import (
     aggregate_exceedance,
     largest_claim,
+    largest_of,
     occurrence_exceedance,
     return_period_table,
 )
@@ -35,6 +36,21 @@ def test_largest_claim_against_the_poisson_closed_form():
     assert m.pmf[0] == pytest.approx(math.exp(-lam * (1 - SEV.pmf[0])))
     oep = occurrence_exceedance(stats.poisson(lam), SEV, [20.0, 50.0])
     np.testing.assert_allclose(oep, 1 - np.exp(-lam * (1 - f[[20, 50]])), rtol=1e-10)
+
+
+def test_largest_of_two_lines_against_the_product_of_poisson_pgfs():
+    # source: independent lines, P(max <= x) = prod_i exp(-lam_i (1 - F_i(x))) (Poisson PGF at
+    # the cdf); line 2 on step 2 is read as a step function on the finer grid
+    a = Lattice([0.0, 0.5, 0.3, 0.2])
+    b = Lattice([0.0, 0.6, 0.4], step=2.0)
+    m = largest_of([largest_claim(stats.poisson(1.5), a), largest_claim(stats.poisson(0.7), b)])
+    x = np.arange(5)
+    fa = np.array([0, 0.5, 0.8, 1.0, 1.0])
+    fb = np.array([0, 0, 0.6, 0.6, 1.0])
+    ref = np.exp(-1.5 * (1 - fa)) * np.exp(-0.7 * (1 - fb))
+    np.testing.assert_allclose(np.cumsum(m.pmf)[x], ref, rtol=1e-12)
+    assert m.step == 1.0 and m.truncated_mass == 0.0
+    assert m.errors.cumulative < 1e-14
 
 
 def test_return_periods_against_the_count_pgf():

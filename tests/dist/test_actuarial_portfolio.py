@@ -1,6 +1,8 @@
 """Portfolios (regrid, total, diversification) and Euler TVaR contributions."""
 
 import itertools
+import math
+import warnings
 from fractions import Fraction
 
 import numpy as np
@@ -47,6 +49,15 @@ def test_lattice_regrid_method_is_the_kernel_and_keeps_the_ledger():
     assert moved.truncated_mass == heavy.truncated_mass > 0
     assert heavy.errors.l1 <= moved.errors.l1 <= heavy.errors.l1 + 1e-15
     assert moved.pmf.sum() == pytest.approx(heavy.pmf.sum(), abs=1e-14)
+    # the truncated part moves up by less than H: E[(X + H)^2] = m2 + 2 H m1 + H^2 t (algebra)
+    e, f = heavy.errors, moved.errors
+    t = min(1.0, e.truncated + e.l1)
+    assert math.isfinite(e.truncated_moment2)
+    assert f.truncated_moment2 == pytest.approx(e.truncated_moment2 + 2 * 1.25 *
+                                                e.truncated_moment + 1.25 ** 2 * t, rel=1e-12)
+    with warnings.catch_warnings():  # the range is wide here (a heavy tail), but finite
+        warnings.simplefilter("ignore")
+        assert math.isfinite(moved.bounded("std").high)
     with pytest.raises(ValueError, match="step"):
         lat.regrid(0.0)
 

@@ -11,6 +11,7 @@ second).
 import math
 
 import numpy as np
+import pytest
 from scipy import stats
 
 from polyconv.dist import Lattice
@@ -71,4 +72,44 @@ def test_full_programme_against_monte_carlo():
             assert _prob_close(sample <= v, float(lat.cdf(v)))
             assert float(lat.cdf(v)) >= p
         for t in (5.0, 20.0, 40.0):
+            assert _prob_close(sample > t, float(lat.sf(t)))
+
+
+def _simulate_clustered(basis: str, layer: XoLLayer, seed: int = 7):
+    """Occurrences Poisson(1.5), claims per occurrence 1 + Poisson(0.8), amounts from the
+    table; the layer on each claim (per risk) or on each occurrence's total."""
+    rng = np.random.default_rng(seed)
+    n = rng.poisson(1.5, YEARS)
+    occ_year = np.repeat(np.arange(YEARS), n)
+    k = 1 + rng.poisson(0.8, occ_year.size)
+    occ = np.repeat(np.arange(occ_year.size), k)
+    x = rng.choice(VALUES, size=occ.size, p=PROBS)
+    occ_loss = np.bincount(occ, x, minlength=occ_year.size)
+    if basis == "per-risk":
+        per_occ = np.bincount(occ, np.clip(x - layer.deductible, 0, layer.limit),
+                              minlength=occ_year.size)
+    else:
+        per_occ = np.clip(occ_loss - layer.deductible, 0, layer.limit)
+    gross = np.bincount(occ_year, occ_loss, minlength=YEARS)
+    layer_loss = np.bincount(occ_year, per_occ, minlength=YEARS)
+    rec = np.clip(layer_loss - layer.aggregate_deductible, 0, layer.aggregate_cap())
+    return gross, rec, gross - rec
+
+
+@pytest.mark.parametrize("basis", ["per-risk", "per-occurrence"])
+@pytest.mark.parametrize("layer", [LAYER, XoLLayer(deductible=4.0, limit=10.0),
+                                   XoLLayer(deductible=2.0, limit=6.0, aggregate_deductible=3.0)],
+                         ids=["aggregate-terms", "no-aggregate-terms", "deductible-only"])
+def test_clustered_claims_per_risk_and_per_occurrence_against_monte_carlo(basis, layer):
+    pmf = np.zeros(VALUES.max() + 1)
+    pmf[VALUES] = PROBS
+    # 1 + Poisson(0.8) claims per occurrence: scipy's poisson with loc = 1
+    res = xol_programme(stats.poisson(1.5), Lattice(pmf), layer, size=600,
+                        cluster=stats.poisson(0.8, loc=1), basis=basis)
+    gross, rec, net = _simulate_clustered(basis, layer)
+    assert _close(gross, res.gross.mean())
+    assert _close(rec, res.ceded.mean())
+    assert _close(net, res.net.mean())
+    for lat, sample in ((res.ceded, rec), (res.net, net)):
+        for t in (5.0, 15.0, 30.0):
             assert _prob_close(sample > t, float(lat.sf(t)))
