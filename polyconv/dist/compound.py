@@ -108,10 +108,12 @@ def compound(counts, severity: Lattice, *, method: str = "auto", size: int | Non
 
 
 def compound_lattice(counts, law: CountsLaw, severity: Lattice, method: str, size: int | None,
-                     second_moment: bool = True) -> Lattice:
+                     second_moment: bool = True, rebalance: bool = True) -> Lattice:
     """:func:`compound` after its argument checks (``law = classify(counts)``);
     ``second_moment=False`` skips the truncated second-moment bound (:func:`compound_ledger`),
-    for callers that ask no standard deviation."""
+    for callers that ask no standard deviation; ``rebalance=False`` skips the transform's
+    second, re-tilted run (:func:`polyconv.dist.transform.transform_compound`), for callers
+    whose tolerance is far above the rounding."""
     f = _severity_vector(severity)
     size = _grid_size(law, f, size)
     check_transform_budget(max(size, f.size), f"size={size} (compound points)")
@@ -125,7 +127,7 @@ def compound_lattice(counts, law: CountsLaw, severity: Lattice, method: str, siz
         g, errs = panjer_recursion(law, f, size)
         r_point, r_l1 = float(np.max(errs)), float(np.sum(errs))
     else:
-        res = transform_compound(law.transform, f, size)
+        res = transform_compound(law.transform, f, size, rebalance=rebalance)
         g, r_point, r_l1 = res.pmf, res.trust_floor, min(res.l1_bound, size * res.trust_floor)
         # per point: the tilted-domain bound (a Euclidean norm, so also per point) untilted at
         # each index, plus the aliasing bound (uniform in k)
@@ -218,17 +220,20 @@ def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g:
         moment = math.inf
     else:
         k = accuracy.float_range(size)
-        # longdouble sum of non-negative terms (within (size + 2) u_long), rounded once (u)
-        on_grid = h * float(np.sum(k.astype(np.longdouble) * g.astype(np.longdouble)))
-        j = k[1:]
-        # sum_k x_k |e_k|: the route's per-point bounds; the severity's errors carried through
-        # by summation by parts on their cumulative bound
-        err = h * float(np.dot(k, errs)) + h * float(np.sum(np.minimum(
-            min(l1_in, 2 * cum_in), (size - j) * point_in)))
-        err = err * (1 + 4 * _U) + ((size + 2) * _UL + 4 * _U) * on_grid
         total = mean_n * sev_mean_high * (1 + 4 * _U)
         if law.tail_mass > 0:
             total += _count_tail_moment(counts, law) * sev_mean_high
+        on_grid = h * accuracy.dot(k, g)  # a float dot: within (size + 2) u (Higham 3.1)
+        rnd = (size + 2) * _U
+        if rnd * on_grid > 1e-3 * max(total - on_grid, 0.0):
+            # the float rounding would dominate the bound (little truncated): longdouble sum
+            # of non-negative terms (within (size + 2) u_long), rounded once (u)
+            on_grid = h * float(np.sum(k.astype(np.longdouble) * g.astype(np.longdouble)))
+            rnd = (size + 2) * _UL
+        # sum_k x_k |e_k|: the route's per-point bounds; the severity's errors carried through
+        # by summation by parts on their cumulative bound
+        err = h * accuracy.dot(k, errs) + h * _ramp_sum(min(l1_in, 2 * cum_in), point_in, size)
+        err = err * (1 + 4 * _U) + (rnd + 4 * _U) * on_grid
         moment = max(total - (on_grid - err), 1e-300)
     moment2 = math.inf if not second_moment else _truncated_second_moment(
         counts, law, severity, br, g, errs, h, (l1_in, cum_in, point_in), sev_mean_high)
@@ -249,7 +254,7 @@ def _truncated_second_moment(counts, law: CountsLaw, severity: Lattice, br, g: n
     sev_pmf = np.asarray(severity.pmf)
     vals = severity.values
     with np.errstate(over="ignore", invalid="ignore"):
-        m2_sev = float(np.dot(sev_pmf, vals * vals))
+        m2_sev = accuracy.dot(sev_pmf, vals * vals)
         ex2 = br.second_moment_range(sev_pmf, m2_sev)[1]
     if not math.isfinite(ex2):
         return math.inf
@@ -259,15 +264,26 @@ def _truncated_second_moment(counts, law: CountsLaw, severity: Lattice, br, g: n
     size = g.size
     k = accuracy.float_range(size)
     k2 = k * k
-    on_grid2 = h * h * float(np.dot(k2, g))
+    on_grid2 = h * h * accuracy.dot(k2, g)
     l1_in, cum_in, point_in = carried
     j = k[1:]
-    err2 = h * h * (float(np.dot(k2, errs)) + float(np.dot(2 * j - 1, np.minimum(
-        min(l1_in, 2 * cum_in), (size - j) * point_in))))
+    err2 = h * h * (accuracy.dot(k2, errs) + accuracy.dot(2 * j - 1, np.minimum(
+        min(l1_in, 2 * cum_in), (size - j) * point_in)))
     err2 = err2 * (1 + 4 * _U) + ((size + 2) * _U + 4 * _U) * on_grid2
     if not math.isfinite(total - on_grid2 + err2):
         return math.inf
     return max(total - (on_grid2 - err2), 1e-300)
+
+
+def _ramp_sum(cap: float, slope: float, size: int) -> float:
+    """``sum_{j=1}^{size-1} min(cap, (size - j) slope)`` in closed form (``m slope`` for
+    ``m = size - j`` up to ``cap / slope``, then ``cap``), rounded up."""
+    top = size - 1
+    if top <= 0 or cap <= 0 or slope <= 0:
+        return 0.0
+    ratio = cap / slope
+    q = top if not ratio < top else int(ratio)
+    return (slope * q * (q + 1) / 2 + (top - q) * cap) * (1 + 8 * _U)
 
 
 def _count_tail_moment(counts, law: CountsLaw) -> float:

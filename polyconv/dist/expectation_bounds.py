@@ -28,7 +28,7 @@ import math
 
 import numpy as np
 
-from .accuracy import UNIT_ROUNDOFF, float_range
+from .accuracy import UNIT_ROUNDOFF, dot, float_range
 from .arguments import lattice_index
 from .ledger import cum_bound
 
@@ -166,10 +166,10 @@ class ExpectationBounds:
             + self.h * self._sb1()
         k = float_range(self.n)
         if self.o >= 0:  # every point non-negative: |x_k| = o + h k
-            absum = self.o * float(np.sum(self.pmf)) + self.h * float(np.dot(k, self.pmf))
+            absum = self.o * float(np.sum(self.pmf)) + self.h * dot(k, self.pmf)
             absum *= 1 + 4 * _U
         else:
-            absum = float(np.dot(np.abs(self.o + self.h * k), self.pmf))
+            absum = dot(np.abs(self.o + self.h * k), self.pmf)
         mass = float(np.sum(self.pmf)) * (1 + (self.n + 2) * _U)
         err += (self.n + 2) * _U * absum + 4 * _U * (abs(self.o) * mass + abs(value))
         x_from = self._x_from_low()
@@ -195,8 +195,8 @@ class ExpectationBounds:
         parts, and the ledger's bound of the truncated part's second moment (``inf`` unknown)."""
         w = (abs(self.o) + self.h * np.arange(self.n)) ** 2
         inc = np.diff(np.concatenate(([0.0], w)))  # increments of a non-decreasing weight
-        err = float(np.dot(inc, self.B[: self.n]))
-        err += (self.n + 2) * _U * float(np.dot(w, pmf))
+        err = dot(inc, self.B[: self.n])
+        err += (self.n + 2) * _U * dot(w, pmf)
         trunc = self.ledger.truncated_moment2 if self.t_high > 0 else 0.0
         high = (value + err + trunc) * (1 + 2 * _U)
         return max(value - err, 0.0), high

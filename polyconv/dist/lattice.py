@@ -266,7 +266,7 @@ class Lattice(LatticeQueries, LatticeAnswers):
     def _abs_moment(self) -> float:
         """Upper bound of ``sum |x_k| q_k`` (the represented part's absolute first moment)."""
         x = np.abs(self.values)
-        return float(np.dot(self._pmf, x)) + self._ledger.l1 * float(np.max(x)) + 1e-300
+        return accuracy.dot(self._pmf, x) + self._ledger.l1 * float(np.max(x)) + 1e-300
 
     # -- transformations --------------------------------------------------------------------
     def layer(self, deductible: float, limit: float = math.inf) -> Lattice:

@@ -26,6 +26,7 @@ from typing import NamedTuple
 import numpy as np
 
 from . import law_moments
+from .accuracy import dot
 from .goals import Goal
 from .pilot import PILOT_POINTS, Pilot, pilot_compound
 
@@ -191,7 +192,7 @@ class PilotPair(NamedTuple):
 
 def _pilot_stop_loss(pilot: Pilot, d: float) -> float:
     x = np.arange(len(pilot.pmf)) * pilot.step
-    return float(np.dot(pilot.pmf, np.maximum(x - d, 0.0)))
+    return dot(pilot.pmf, np.maximum(x - d, 0.0))
 
 
 def pilot_step(pilot: PilotPair, goal: Goal) -> float:
