@@ -25,7 +25,7 @@ from ..numerics import transforms as tf
 from .accuracy import dot
 from .from_law import LawAccess, rule_pmf
 
-PILOT_POINTS = 1 << 16
+PILOT_POINTS = 1 << 15
 """Points of a pilot grid."""
 
 PILOT_TILT = 25.0

@@ -137,7 +137,7 @@ def pilot_for(counts, law) -> PilotPair:
 NEAR_STEPS = 1024
 """A second, finer pilot is run when the far pilot's 99.9% VaR is within this many steps."""
 
-NEAR_POINTS = 1 << 14
+NEAR_POINTS = 1 << 13
 """Points of the finer pilot."""
 
 SF_MARGIN = 2.0
