@@ -134,13 +134,25 @@ def compound_lattice(counts, law: CountsLaw, severity: Lattice, method: str, siz
         errs = res.rounding_floor * np.exp(res.theta * (np.arange(size) - (size - 1))) \
             + res.aliasing_floor
     g = np.minimum(g, 1.0)
-    ledger = compound_ledger(counts, law, severity, f, g, r_point, r_l1, errs, second_moment)
-    return Lattice._make(g, severity.step, 0.0, ledger, _profile(errs, severity, counts, law))
+    route_l2 = None
+    if method != "recursion":
+        # Euclidean norm of the route's error: the tilted-domain bound is one (untilted: times
+        # at most e^{theta (size - 1)}); the aliased mass has L1 (so L2) at most its bound
+        route_l2 = res.rounding_floor + res.aliasing_floor
+    ledger = compound_ledger(counts, law, severity, f, g, r_point, r_l1, errs, second_moment,
+                             route_l2)
+    profile, carried = _profile(errs, severity, counts, law)
+    l2 = None
+    if route_l2 is not None:  # plus the severity's carried errors, ||e||_2^2 <= ||e||_inf ||e||_1
+        l2 = (route_l2 + math.sqrt(carried * max(ledger.l1, 0.0))) * (1 + 8 * _U)
+    return Lattice._make(g, severity.step, 0.0, ledger, profile, l2)
 
 
-def _profile(errs: np.ndarray, severity: Lattice, counts, law: CountsLaw) -> np.ndarray:
+def _profile(errs: np.ndarray, severity: Lattice, counts, law: CountsLaw
+             ) -> tuple[np.ndarray, float]:
     """Per-point error bounds of a compound: the route's own (``errs``) plus the severity's
-    carried per-point error ``d P_N'(1 + l)`` (:func:`compound_ledger`), rounded up."""
+    carried per-point error ``d P_N'(1 + l)`` (:func:`compound_ledger`), rounded up; and that
+    carried per-point error."""
     e = severity.errors
     carried = 0.0
     if e.l1 > 0:
@@ -148,7 +160,7 @@ def _profile(errs: np.ndarray, severity: Lattice, counts, law: CountsLaw) -> np.
         slope = (math.expm1(_log_pgf_above_one(law, 2 * delta))
                  - math.expm1(_log_pgf_above_one(law, delta))) / delta * (1 + 1e-6)
         carried = e.point * max(slope, float(counts.mean()))
-    return np.asarray(errs, dtype=float) * (1 + 4 * _U) + carried
+    return np.asarray(errs, dtype=float) * (1 + 4 * _U) + carried, carried
 
 
 def _grid_size(law: CountsLaw, f: np.ndarray, size: int | None) -> int:
@@ -170,8 +182,8 @@ def _log_pgf_above_one(law: CountsLaw, delta: float) -> float:
 
 
 def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g: np.ndarray,
-                    r_point: float, r_l1: float, errs: np.ndarray, second_moment: bool = True
-                    ) -> ErrorLedger:
+                    r_point: float, r_l1: float, errs: np.ndarray, second_moment: bool = True,
+                    route_l2: float | None = None) -> ErrorLedger:
     """Error ledger of a compound computed from the severity vector ``f`` (route rounding
     ``r_point``, ``r_l1``).
 
@@ -186,6 +198,9 @@ def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g:
       ``E[S] - sum_{k < size} x_k q_k`` with ``E[S] = E[N] E[X]`` (Wald's identity), ``E[X]``
       at most the severity's certified mean bound: this is what keeps TVaR and stop-loss finite
       on heavy tails.
+    * ``route_l2``: a bound of the route's error in Euclidean norm (transform routes); the
+      on-grid moment's error ``sum_k x_k |e_k|`` is then also at most ``||x||_2 route_l2``
+      (Cauchy-Schwarz), far below the per-point sum on long grids.
     * ``second_moment=False`` leaves the truncated part's second moment unknown (``inf``: the
       standard deviation is then refused), for callers that need no std.
     """
@@ -213,8 +228,10 @@ def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g:
     if law.tail_mass > 0:
         froms.append(0)
     tf = int(min(froms))
-    # first moment of the truncated part: E[S] - (represented on-grid moment)
     br = severity._br()
+    if _fits_the_grid(counts, law, severity, f, size):  # nothing of S lies beyond the grid
+        return ErrorLedger(point, l1, 0.0, size, 0.0, cum, 0.0)
+    # first moment of the truncated part: E[S] - (represented on-grid moment)
     sev_mean_high = br.mean_range(severity._mean())[1]
     if not math.isfinite(sev_mean_high):
         moment = math.inf
@@ -232,7 +249,11 @@ def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g:
             rnd = (size + 2) * _UL
         # sum_k x_k |e_k|: the route's per-point bounds; the severity's errors carried through
         # by summation by parts on their cumulative bound
-        err = h * accuracy.dot(k, errs) + h * _ramp_sum(min(l1_in, 2 * cum_in), point_in, size)
+        route = accuracy.dot(k, errs)
+        if route_l2 is not None:  # ||k||_2^2 = (s - 1) s (2 s - 1) / 6
+            route = min(route, math.sqrt((size - 1) * size * (2 * size - 1) / 6) * route_l2
+                        * (1 + 8 * _U))
+        err = h * route + h * _ramp_sum(min(l1_in, 2 * cum_in), point_in, size)
         err = err * (1 + 4 * _U) + (rnd + 4 * _U) * on_grid
         moment = max(total - (on_grid - err), 1e-300)
     moment2 = math.inf if not second_moment else _truncated_second_moment(
@@ -273,6 +294,21 @@ def _truncated_second_moment(counts, law: CountsLaw, severity: Lattice, br, g: n
     if not math.isfinite(total - on_grid2 + err2):
         return math.inf
     return max(total - (on_grid2 - err2), 1e-300)
+
+
+def _fits_the_grid(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, size: int) -> bool:
+    """True when ``S`` surely lies on the grid: a count bounded by ``n_max`` (binomial), its
+    whole law summed (no dropped tail), a severity with nothing truncated and its last point
+    at index ``L``, and ``n_max L < size``."""
+    if law.tail_mass > 0 or not untruncated(severity.errors):
+        return False
+    n_max = float(counts.support()[1])
+    if not math.isfinite(n_max):
+        return False
+    nz = np.flatnonzero(f)
+    # where the computed severity is 0 the exact one is 0 too only if it has no error
+    top = f.size - 1 if severity.errors.l1 > 0 else (int(nz[-1]) if nz.size else 0)
+    return n_max * top < size
 
 
 def _ramp_sum(cap: float, slope: float, size: int) -> float:

@@ -70,6 +70,8 @@ class ExpectationBounds:
         xm = self.o + h * m
         value = h * self.t[m] + (xm - d) * self.s[m]
         err = (xm - d) * self.Bt[m] + h * self.SB[np.minimum(m + 1, n + 1)]
+        if self.l2 is not None:
+            err = np.minimum(err, self._l2_excess(xm - d, n - m))
         err = err + (8 * _U + 2 * (n - m + 2) * _UL) * value \
             + 4 * _U * (np.abs(xm) + np.abs(d)) * self.s[m]  # float x_m - d
         x_from = self._x_from_low()
@@ -78,6 +80,18 @@ class ExpectationBounds:
         low = np.maximum(value - err, 0.0) + trunc_low
         high = value + err + trunc_high
         return low, high
+
+    def _l2_excess(self, a: np.ndarray, count: np.ndarray) -> np.ndarray:
+        """``||w||_2 l2`` for the weights ``w_j = a + h j``, ``j = 0..count-1`` (the excesses
+        ``x_k - d`` over ``count`` points from the first point above ``d``), by the closed
+        form ``sum_j (a + h j)^2 = N a^2 + a h N (N - 1) + h^2 (N - 1) N (2N - 1) / 6``,
+        rounded up (a few ulps)."""
+        big_n = np.asarray(count, dtype=float)
+        a = np.asarray(a, dtype=float)
+        h = self.h
+        s2 = big_n * a * a + a * h * big_n * (big_n - 1) \
+            + h * h * (big_n - 1) * big_n * (2 * big_n - 1) / 6
+        return np.sqrt(np.maximum(s2, 0.0)) * self.l2 * (1 + 16 * _U)
 
     def _x_from_low(self) -> float:
         """A float-safe lower bound of the lowest point where truncated mass may lie,
@@ -112,7 +126,10 @@ class ExpectationBounds:
             t_long = self.t_long[:n]
             value = _L(h) * t_long
             rel = (2 * (n - k) + 6) * _UL  # two longdouble cumulative sums and one product
-            err = _L(h) * self.SB[1: n + 1].astype(_L) * _L(1 + (n + 6) * _U)
+            err = h * self.SB[1: n + 1] * (1 + (n + 6) * _U)
+            if self.l2 is not None:  # weights h, 2h, ... beyond x_k
+                err = np.minimum(err, self._l2_excess(np.full(n, h), n - 1 - k))
+            err = err.astype(_L)
             d = self.o + h * k  # float points: within u |d| of the exact x_k
             moved = 2 * _U * np.abs(d)
             x_from = self._x_from_low()

@@ -94,13 +94,19 @@ class Bracketer(ExpectationBounds):
         Per-point bounds ``|e_k| <= profile_k`` when the computation knows them; the running
         sums of the profile bound the cumulative errors where they beat ``(k + 1) point`` and
         ``l1`` (in the tail of a compound, where the pmf and its errors decay).
+    l2 : float, optional
+        A bound of the error's Euclidean norm ``||e||_2`` when the computation knows one
+        (transform routes bound exactly that): by Cauchy-Schwarz, ``|sum_k w_k e_k| <=
+        ||w||_2 l2`` for every weight ``w`` (cumulative sums, stop-loss excesses), a factor up
+        to ``sqrt(n)`` below the per-point route.
     """
 
     def __init__(self, pmf: np.ndarray, step: float, origin: float, ledger: ErrorLedger,
-                 profile: np.ndarray | None = None):
+                 profile: np.ndarray | None = None, l2: float | None = None):
         n = pmf.size
         self.n, self.h, self.o, self.ledger, self.pmf = n, step, origin, ledger, pmf
         self.profile = profile
+        self.l2 = l2
         self.tf = ledger.truncated_from
         self._sl = None
 
@@ -171,6 +177,8 @@ class Bracketer(ExpectationBounds):
         if self.profile is not None:  # float running sum of non-negative terms: (k + 2) u
             run = np.cumsum(self.profile) * (1 + (k + 2) * _U)
             out = np.minimum(out, run)
+        if self.l2 is not None:
+            out = np.minimum(out, np.sqrt(k + 1.0) * self.l2 * (1 + 4 * _U))
         return out
 
     @cached_property
@@ -182,6 +190,8 @@ class Bracketer(ExpectationBounds):
             run = np.zeros(self.n + 1)
             run[: self.n] = np.cumsum(self.profile[::-1])[::-1]
             out = np.minimum(out, run * (1 + (self.n - j + 2) * _U))
+        if self.l2 is not None:
+            out = np.minimum(out, np.sqrt(self.n - j + 0.0) * self.l2 * (1 + 4 * _U))
         return out
 
     @cached_property

@@ -46,7 +46,7 @@ from .accuracy import UNIT_ROUNDOFF
 from .errors import AccuracyWarning
 from .from_law import _OFFSET, LawAccess, check_rule, make_lattice, rule_pmf
 from .goals import Goal
-from .ledger import Bounded, ErrorLedger
+from .ledger import Bounded, ErrorLedger, cum_bound
 from .splice_plan import pilot_for, pilot_step, plan_grids
 
 REBALANCE_RTOL = 1e-8
@@ -102,7 +102,13 @@ def capped(lattice):
                          "a spliced answer needs it beyond the grid's end")
     pmf = np.append(np.asarray(lattice.pmf), lattice.truncated_mass)
     ledger = ErrorLedger(min(max(led.point, led.l1), 1.0), min(2 * led.l1, 2.0), 0.0, n + 1, 0.0)
-    return Lattice(pmf, lattice.step, lattice.origin, errors=ledger)
+    # the appended mass errs by the truncated total's error, at most the cumulative bound K:
+    # per point K, in Euclidean norm at most l2 + K
+    k = cum_bound(led)
+    cache = lattice._cache
+    profile = None if "profile" not in cache else np.append(cache["profile"], k)
+    l2 = None if "l2" not in cache else (cache["l2"] + k) * (1 + 4 * UNIT_ROUNDOFF)
+    return Lattice._make(pmf, lattice.step, lattice.origin, ledger, profile, l2)
 
 
 def _quiet(lattice, measure, arg) -> Bounded:
