@@ -142,6 +142,8 @@ def compound_lattice(counts, law: CountsLaw, severity: Lattice, method: str, siz
     ledger = compound_ledger(counts, law, severity, f, g, r_point, r_l1, errs, second_moment,
                              route_l2)
     profile, carried = _profile(errs, severity, counts, law)
+    if method != "recursion" and res.theta * (size - 1) < 1:
+        profile = None  # nearly uniform: the Euclidean bound l2 beats its running sums
     l2 = None
     if route_l2 is not None:  # plus the severity's carried errors, ||e||_2^2 <= ||e||_inf ||e||_1
         l2 = (route_l2 + math.sqrt(carried * max(ledger.l1, 0.0))) * (1 + 8 * _U)
