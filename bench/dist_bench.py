@@ -25,7 +25,8 @@ import time
 import numpy as np
 from scipy import stats
 
-from polyconv.dist import Lattice, compound
+sys.path.insert(0, str(__import__("pathlib").Path(__file__).resolve().parent.parent))
+from polyconv.dist import Lattice, compound  # noqa: E402
 
 
 def severity(n: int) -> Lattice:

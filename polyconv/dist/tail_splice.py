@@ -53,6 +53,10 @@ REBALANCE_RTOL = 1e-8
 """Goals at least this loose skip the transforms' re-tilted second run (rounding bounds of a
 few 1e-13 are far inside them)."""
 
+REFINE_GAIN = 1.5
+"""A refinement round that narrows the widest missed range by less than this factor ends the
+refinements (the range is then bounded by rounding or truncation, not by the coarse steps)."""
+
 RETRIES = 3
 """Times the grids are refined (fine reach doubled, coarse step halved) when the goal is unmet."""
 
@@ -182,6 +186,17 @@ def _answer(measure, arg, fine, cap, levels, ends, goal: Goal) -> Bounded:
     return _judge(Bounded(values[k_own], min(lows), min(highs), False, ""), goal)
 
 
+def _excess(answers: dict, goal: Goal) -> float:
+    """Largest ratio of a refused answer's certified width to the goal's tolerance."""
+    out = 0.0
+    for b in answers.values():
+        if b.refused:
+            width = b.high - b.low
+            tol = goal.tolerance(b.high if math.isfinite(b.high) else b.low)
+            out = max(out, width / tol if tol > 0 and math.isfinite(width) else math.inf)
+    return out
+
+
 def _own_var(fine, p: float) -> float:
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
@@ -255,9 +270,11 @@ def spliced_aggregate(counts, law, *, goal: Goal, step: float | None = None,
         fine = aggregate_for_goal(counts, law, goal=goal, step=h, rule=rule, method=method)
         answers = {(m, a): _judge(_quiet(fine, m, a), goal) for m, a in goal.measures}
         return SplicedAnswers(answers, h, len(fine), (), fine)
+    sev = lattice_from_law(law, step=h, size=n_f, rule=rule)
+    fine = compound(sev, n_f)  # refinements change the far-tail levels only
+    cap = capped(fine)
+    previous = math.inf
     for attempt in range(RETRIES + 1):
-        sev = lattice_from_law(law, step=h, size=n_f, rule=rule, check=attempt == 0)
-        fine = compound(sev, n_f)
         levels, ends = [], [h * n_f]
         for i, (k, n) in enumerate(plan):
             down_sev, up_sev = coarse_pair(law, rule, h, k, n)
@@ -266,12 +283,13 @@ def spliced_aggregate(counts, law, *, goal: Goal, step: float | None = None,
                 pair = [capped(x) for x in pair]
             levels.append(tuple(pair))
             ends.append(n * k * h)
-        cap = capped(fine)
         answers = {(m, a): _answer(m, a, fine, cap, levels, ends, goal)
                    for m, a in goal.measures}
         missed = [f"{m}({a}): {r.reason}" for (m, a), r in answers.items() if r.refused]
-        if not missed or attempt == RETRIES:
-            break
+        excess = _excess(answers, goal)
+        if not missed or attempt == RETRIES or excess > previous / REFINE_GAIN:
+            break  # met, out of rounds, or the last refinement did not help (rounding-bound)
+        previous = excess
         plan = [(max(1, k // 2), min(2 * n, goal.max_points)) for k, n in plan]
     if missed:
         warnings.warn("goal not met: " + "; ".join(missed), AccuracyWarning, stacklevel=2)
