@@ -24,7 +24,7 @@ capital, prices or deadlines, check them against local regulation and codes and 
 actuarial or engineering practice.
 """
 
-from .brackets import Bracket, law_bracket
+from .brackets import Bracket, GoalBracket, bracket_to_goal, law_bracket
 from .compound import compound
 from .delays import all_of, first_of, mixture, series
 from .errors import AccuracyWarning, TruncationWarning
@@ -54,6 +54,8 @@ __all__ = [
     "StepCheck",
     "check_step",
     "law_bracket",
+    "bracket_to_goal",
+    "GoalBracket",
     "Bracket",
     "Goal",
     "aggregate_for_goal",
