@@ -2,7 +2,8 @@
 
 Sums of independent random variables (``X + Y``, :meth:`Lattice.nfold`), compound distributions
 (:func:`compound`), continuous laws put on a lattice (:meth:`Lattice.from_law`, bracketed by
-:func:`law_bracket`), delay networks
+:func:`law_bracket`, to a stated precision by :func:`bracket_to_goal`; grids sized for a
+:class:`Goal` by :func:`aggregate_for_goal`), delay networks
 (:func:`series`, :func:`all_of`, :func:`first_of`, :func:`mixture`, :func:`kth_of`,
 :func:`retry`, :func:`hedge`, :class:`Network` with shared stages drawn once, measured samples
 via :meth:`Lattice.from_samples` / :func:`from_histogram` with their DKW band, sensitivity
