@@ -39,7 +39,7 @@ import numpy as np
 
 from .accuracy import UNIT_ROUNDOFF
 from .arguments import SNAP, check_level, lattice_index, real_value
-from .expectation_bounds import UNIT_ROUNDOFF_LONG, ExpectationBounds
+from .expectation_bounds import SCALAR_MIN, UNIT_ROUNDOFF_LONG, ExpectationBounds
 from .ledger import ErrorLedger, cum_bound, t_bounds, untruncated
 
 TRUNCATION_LEVEL = 1e-9
@@ -61,7 +61,7 @@ modules that reach them as ``risk.real_value`` and so on."""
 _U = UNIT_ROUNDOFF
 _UL = UNIT_ROUNDOFF_LONG
 
-WINDOW_MIN = 1 << 14
+WINDOW_MIN = SCALAR_MIN
 """Lattices of at least this many points answer one quantile bracket from the cdf bounds on a
 window around it (:meth:`Bracketer._window`) instead of the whole arrays."""
 

@@ -104,3 +104,42 @@ def test_exact_lattice_tvar_range_is_a_few_roundoffs():
         tv = x.bounded("tvar", level)
         assert Fraction(tv.low) <= want <= Fraction(tv.high)
         assert ratio(tv, float(want)) <= 4.0
+
+
+def test_long_lattice_stop_loss_and_quantile_without_whole_arrays():
+    # a geometric law on {0, 1, ...}, P(K = k) = (1 - q) q^k: E[(K - d)+] = q^(d + 1) / (1 - q)
+    # and the p-quantile is ceil(log(1 - p) / log q) - 1 (closed forms, common practice, no
+    # source); 30000 points, so one stop-loss is read from sums above d and one quantile from
+    # a window of the cdf bounds (risk.WINDOW_MIN), the same ranges as the whole arrays
+    import numpy as np
+
+    from polyconv.dist import ErrorLedger, risk
+
+    n, q, one_q = 30000, math.exp(-1 / 2000), -math.expm1(-1 / 2000)
+    pmf = one_q * np.exp(-np.arange(n) / 2000)
+    # each entry within (3 + k / 2000) roundoffs of (1 - q) q^k (expm1, exp, product and the
+    # rounded exponent), so within 8u in L1; the mass beyond the grid is q^n, its first moment
+    # q^n (n + q / (1 - q))
+    tail = q ** n
+    led = ErrorLedger(8 * U * float(pmf.max()), 8 * U, tail, n,
+                      tail * (n + q / one_q) * (1 + 1e-12), 8 * U)
+    x = Lattice(pmf, errors=led)
+    assert n >= risk.WINDOW_MIN
+    for d in (0.0, 1000.0, 25000.0):
+        b = x.bounded("stop_loss", d)
+        want = math.exp(-(d + 1) / 2000) / one_q
+        # width: the truncated part's position (mass q^n beyond the grid whose mean excess is
+        # q / (1 - q), memoryless) plus the on-grid error, measured equal to that within 1e-3
+        allowance = tail * q / one_q
+        assert b.low <= want <= b.high and b.high - b.low <= 1.01 * allowance + 1e-9 * want
+        whole = risk.Bracketer(x.pmf, 1.0, 0.0, x.errors)
+        _ = whole.t  # builds the tail arrays: the array route
+        lo, hi = whole.stop_loss_range(np.asarray(d))
+        assert (b.high - b.low) <= 1.01 * (hi - lo)
+    for p in (0.5, 0.99, 0.999):
+        want = math.ceil(math.log(1 - p) / math.log(q)) - 1
+        lo, hi = x.quantile_bracket(p)
+        assert lo <= want <= hi
+        whole = risk.Bracketer(x.pmf, 1.0, 0.0, x.errors)
+        _ = whole.F_high
+        assert tuple(int(v) for v in whole.quantile_range(np.asarray(p))) == (int(lo), int(hi))
