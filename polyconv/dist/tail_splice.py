@@ -105,10 +105,12 @@ def capped(lattice):
         raise ValueError("the truncated mass may lie on the grid (truncated_from < len); "
                          "a spliced answer needs it beyond the grid's end")
     pmf = np.append(np.asarray(lattice.pmf), lattice.truncated_mass)
-    ledger = ErrorLedger(min(max(led.point, led.l1), 1.0), min(2 * led.l1, 2.0), 0.0, n + 1, 0.0)
-    # the appended mass errs by the truncated total's error, at most the cumulative bound K:
-    # per point K, in Euclidean norm at most l2 + K
-    k = cum_bound(led)
+    # the appended mass 1 - sum(pmf) errs by the cumulative bound K of the represented part plus
+    # the float rounding of the sum ((n + 2) u, any order; Higham section 4.2): per point at most
+    # that, in L1 l1 + that, in Euclidean norm l2 + that
+    k = cum_bound(led) + (n + 2) * UNIT_ROUNDOFF * max(float(np.sum(lattice.pmf)), 1.0)
+    ledger = ErrorLedger(min(max(led.point, k), 1.0), min(led.l1 + k, 2.0), 0.0, n + 1, 0.0,
+                         min(cum_bound(led) + k, 2.0))
     cache = lattice._cache
     profile = None if "profile" not in cache else np.append(cache["profile"], k)
     l2 = None if "l2" not in cache else (cache["l2"] + k) * (1 + 4 * UNIT_ROUNDOFF)
