@@ -143,7 +143,7 @@ NEAR_POINTS = 1 << 13
 SF_MARGIN = 1.0
 """The plan reads the pilot's survival function (already read on the safe side,
 :meth:`PilotPair.sf_high`) times this; 1 measured 15-20 % faster than 2 on five heavy models,
-with certified TVaR widths 4.7e-5 to 6.8e-5 against a goal of 1e-4 (2: 3e-5 to 5.5e-5)."""
+with certified TVaR widths 4.7e-5 to 7.0e-5 against a goal of 1e-4 (2: 3e-5 to 5.5e-5)."""
 
 
 class PilotPair(NamedTuple):
