@@ -2,7 +2,8 @@
 
 Sums of independent random variables (``X + Y``, :meth:`Lattice.nfold`), compound distributions
 (:func:`compound`), continuous laws put on a lattice (:meth:`Lattice.from_law`, bracketed by
-:func:`law_bracket`), delay networks
+:func:`law_bracket`, to a stated precision by :func:`bracket_to_goal`; grids sized for a
+:class:`Goal` by :func:`aggregate_for_goal`), delay networks
 (:func:`series`, :func:`all_of`, :func:`first_of`, :func:`mixture`, :func:`kth_of`,
 :func:`retry`, :func:`hedge`, :class:`Network` with shared stages drawn once, measured samples
 via :meth:`Lattice.from_samples` / :func:`from_histogram` with their DKW band, sensitivity
@@ -25,7 +26,7 @@ actuarial or engineering practice.
 """
 
 from .allocation import Contributions, split_contributions, tvar_contributions
-from .brackets import Bracket, law_bracket
+from .brackets import Bracket, GoalBracket, bracket_to_goal, law_bracket
 from .claims_data import claims_counts, claims_severity
 from .compound import compound
 from .count_laws import empirical_counts, mixed_poisson, zero_modified, zero_truncated
@@ -69,6 +70,8 @@ __all__ = [
     "StepCheck",
     "check_step",
     "law_bracket",
+    "bracket_to_goal",
+    "GoalBracket",
     "Bracket",
     "Goal",
     "aggregate_for_goal",

@@ -183,3 +183,15 @@ def float_range(n: int) -> np.ndarray:
     out = np.arange(n, dtype=float)
     out.flags.writeable = False
     return out
+
+
+def dot(a: np.ndarray, b: np.ndarray) -> float:
+    """``sum_k a_k b_k`` of two 1-D float arrays, without BLAS.
+
+    ``numpy.dot`` on long vectors calls the threaded BLAS ``ddot``; on a shared, loaded machine
+    its threads cost 20-40 times the arithmetic (measured: 5.6 ms against 0.13 ms of CPU for
+    186k points).  ``einsum`` runs the same sum in one thread.  Any summation order is within
+    the recursive-summation bound ``gamma_n sum |a_k b_k|`` (Higham, section 3.1) that the
+    ledgers charge.
+    """
+    return float(np.einsum("i,i->", a, b))

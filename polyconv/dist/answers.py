@@ -16,7 +16,7 @@ import warnings
 import numpy as np
 
 from . import risk
-from .accuracy import float_range
+from .accuracy import dot, float_range
 from .errors import AccuracyWarning, TruncationWarning
 from .ledger import Bounded
 from .queries import _real_or_inf
@@ -178,7 +178,7 @@ class LatticeAnswers:
             truncated_moment2=led.truncated_moment2 / h / h))
         lo1, hi1 = scaled.mean_range(m1 / h)
         u = self._origin / h + float_range(self._pmf.size)
-        m2 = float(np.dot(self._pmf, u * u))
+        m2 = dot(self._pmf, u * u)
         lo2, hi2 = scaled.second_moment_range(self._pmf, m2)
         sq_hi = max(lo1 * lo1, hi1 * hi1)
         sq_lo = 0.0 if lo1 <= 0 <= hi1 else min(lo1 * lo1, hi1 * hi1)

@@ -32,6 +32,7 @@ from .counts import CountsLaw, classify
 from .errors import TruncationWarning
 from .lattice import Lattice
 from .ledger import ErrorLedger, cum_bound, untruncated
+from .panjer import panjer_recursion
 from .transform import check_transform_budget, size_for_tail, transform_compound
 
 DEFAULT_TAIL = 1e-12
@@ -46,8 +47,6 @@ RECURSION_AUTO_MAX = 512
 
 _U = accuracy.UNIT_ROUNDOFF
 _UL = float(np.finfo(np.longdouble).eps) / 2
-_RESCALE = 1e280
-_LOG_RESCALE = math.log(_RESCALE)
 
 
 def compound(counts, severity: Lattice, *, method: str = "auto", size: int | None = None,
@@ -109,10 +108,12 @@ def compound(counts, severity: Lattice, *, method: str = "auto", size: int | Non
 
 
 def compound_lattice(counts, law: CountsLaw, severity: Lattice, method: str, size: int | None,
-                     second_moment: bool = True) -> Lattice:
+                     second_moment: bool = True, rebalance: bool = True) -> Lattice:
     """:func:`compound` after its argument checks (``law = classify(counts)``);
     ``second_moment=False`` skips the truncated second-moment bound (:func:`compound_ledger`),
-    for callers that ask no standard deviation."""
+    for callers that ask no standard deviation; ``rebalance=False`` skips the transform's
+    second, re-tilted run (:func:`polyconv.dist.transform.transform_compound`), for callers
+    whose tolerance is far above the rounding."""
     f = _severity_vector(severity)
     size = _grid_size(law, f, size)
     check_transform_budget(max(size, f.size), f"size={size} (compound points)")
@@ -126,20 +127,34 @@ def compound_lattice(counts, law: CountsLaw, severity: Lattice, method: str, siz
         g, errs = panjer_recursion(law, f, size)
         r_point, r_l1 = float(np.max(errs)), float(np.sum(errs))
     else:
-        res = transform_compound(law.transform, f, size)
+        res = transform_compound(law.transform, f, size, rebalance=rebalance)
         g, r_point, r_l1 = res.pmf, res.trust_floor, min(res.l1_bound, size * res.trust_floor)
         # per point: the tilted-domain bound (a Euclidean norm, so also per point) untilted at
         # each index, plus the aliasing bound (uniform in k)
         errs = res.rounding_floor * np.exp(res.theta * (np.arange(size) - (size - 1))) \
             + res.aliasing_floor
     g = np.minimum(g, 1.0)
-    ledger = compound_ledger(counts, law, severity, f, g, r_point, r_l1, errs, second_moment)
-    return Lattice._make(g, severity.step, 0.0, ledger, _profile(errs, severity, counts, law))
+    route_l2 = None
+    if method != "recursion":
+        # Euclidean norm of the route's error: the tilted-domain bound is one (untilted: times
+        # at most e^{theta (size - 1)}); the aliased mass has L1 (so L2) at most its bound
+        route_l2 = res.rounding_floor + res.aliasing_floor
+    ledger = compound_ledger(counts, law, severity, f, g, r_point, r_l1, errs, second_moment,
+                             route_l2)
+    profile, carried = _profile(errs, severity, counts, law)
+    if method != "recursion" and res.theta * (size - 1) < 1:
+        profile = None  # nearly uniform: the Euclidean bound l2 beats its running sums
+    l2 = None
+    if route_l2 is not None:  # plus the severity's carried errors, ||e||_2^2 <= ||e||_inf ||e||_1
+        l2 = (route_l2 + math.sqrt(carried * max(ledger.l1, 0.0))) * (1 + 8 * _U)
+    return Lattice._make(g, severity.step, 0.0, ledger, profile, l2)
 
 
-def _profile(errs: np.ndarray, severity: Lattice, counts, law: CountsLaw) -> np.ndarray:
+def _profile(errs: np.ndarray, severity: Lattice, counts, law: CountsLaw
+             ) -> tuple[np.ndarray, float]:
     """Per-point error bounds of a compound: the route's own (``errs``) plus the severity's
-    carried per-point error ``d P_N'(1 + l)`` (:func:`compound_ledger`), rounded up."""
+    carried per-point error ``d P_N'(1 + l)`` (:func:`compound_ledger`), rounded up; and that
+    carried per-point error."""
     e = severity.errors
     carried = 0.0
     if e.l1 > 0:
@@ -147,7 +162,7 @@ def _profile(errs: np.ndarray, severity: Lattice, counts, law: CountsLaw) -> np.
         slope = (math.expm1(_log_pgf_above_one(law, 2 * delta))
                  - math.expm1(_log_pgf_above_one(law, delta))) / delta * (1 + 1e-6)
         carried = e.point * max(slope, float(counts.mean()))
-    return np.asarray(errs, dtype=float) * (1 + 4 * _U) + carried
+    return np.asarray(errs, dtype=float) * (1 + 4 * _U) + carried, carried
 
 
 def _grid_size(law: CountsLaw, f: np.ndarray, size: int | None) -> int:
@@ -169,8 +184,8 @@ def _log_pgf_above_one(law: CountsLaw, delta: float) -> float:
 
 
 def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g: np.ndarray,
-                    r_point: float, r_l1: float, errs: np.ndarray, second_moment: bool = True
-                    ) -> ErrorLedger:
+                    r_point: float, r_l1: float, errs: np.ndarray, second_moment: bool = True,
+                    route_l2: float | None = None) -> ErrorLedger:
     """Error ledger of a compound computed from the severity vector ``f`` (route rounding
     ``r_point``, ``r_l1``).
 
@@ -185,6 +200,9 @@ def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g:
       ``E[S] - sum_{k < size} x_k q_k`` with ``E[S] = E[N] E[X]`` (Wald's identity), ``E[X]``
       at most the severity's certified mean bound: this is what keeps TVaR and stop-loss finite
       on heavy tails.
+    * ``route_l2``: a bound of the route's error in Euclidean norm (transform routes); the
+      on-grid moment's error ``sum_k x_k |e_k|`` is then also at most ``||x||_2 route_l2``
+      (Cauchy-Schwarz), far below the per-point sum on long grids.
     * ``second_moment=False`` leaves the truncated part's second moment unknown (``inf``: the
       standard deviation is then refused), for callers that need no std.
     """
@@ -212,24 +230,33 @@ def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g:
     if law.tail_mass > 0:
         froms.append(0)
     tf = int(min(froms))
-    # first moment of the truncated part: E[S] - (represented on-grid moment)
     br = severity._br()
+    if _fits_the_grid(counts, law, severity, f, size):  # nothing of S lies beyond the grid
+        return ErrorLedger(point, l1, 0.0, size, 0.0, cum, 0.0)
+    # first moment of the truncated part: E[S] - (represented on-grid moment)
     sev_mean_high = br.mean_range(severity._mean())[1]
     if not math.isfinite(sev_mean_high):
         moment = math.inf
     else:
         k = accuracy.float_range(size)
-        # longdouble sum of non-negative terms (within (size + 2) u_long), rounded once (u)
-        on_grid = h * float(np.sum(k.astype(np.longdouble) * g.astype(np.longdouble)))
-        j = k[1:]
-        # sum_k x_k |e_k|: the route's per-point bounds; the severity's errors carried through
-        # by summation by parts on their cumulative bound
-        err = h * float(np.dot(k, errs)) + h * float(np.sum(np.minimum(
-            min(l1_in, 2 * cum_in), (size - j) * point_in)))
-        err = err * (1 + 4 * _U) + ((size + 2) * _UL + 4 * _U) * on_grid
         total = mean_n * sev_mean_high * (1 + 4 * _U)
         if law.tail_mass > 0:
             total += _count_tail_moment(counts, law) * sev_mean_high
+        on_grid = h * accuracy.dot(k, g)  # a float dot: within (size + 2) u (Higham 3.1)
+        rnd = (size + 2) * _U
+        if rnd * on_grid > 1e-3 * max(total - on_grid, 0.0):
+            # the float rounding would dominate the bound (little truncated): longdouble sum
+            # of non-negative terms (within (size + 2) u_long), rounded once (u)
+            on_grid = h * float(np.sum(k.astype(np.longdouble) * g.astype(np.longdouble)))
+            rnd = (size + 2) * _UL
+        # sum_k x_k |e_k|: the route's per-point bounds; the severity's errors carried through
+        # by summation by parts on their cumulative bound
+        route = accuracy.dot(k, errs)
+        if route_l2 is not None:  # ||k||_2^2 = (s - 1) s (2 s - 1) / 6
+            route = min(route, math.sqrt((size - 1) * size * (2 * size - 1) / 6) * route_l2
+                        * (1 + 8 * _U))
+        err = h * route + h * _ramp_sum(min(l1_in, 2 * cum_in), point_in, size)
+        err = err * (1 + 4 * _U) + (rnd + 4 * _U) * on_grid
         moment = max(total - (on_grid - err), 1e-300)
     moment2 = math.inf if not second_moment else _truncated_second_moment(
         counts, law, severity, br, g, errs, h, (l1_in, cum_in, point_in), sev_mean_high)
@@ -250,7 +277,7 @@ def _truncated_second_moment(counts, law: CountsLaw, severity: Lattice, br, g: n
     sev_pmf = np.asarray(severity.pmf)
     vals = severity.values
     with np.errstate(over="ignore", invalid="ignore"):
-        m2_sev = float(np.dot(sev_pmf, vals * vals))
+        m2_sev = accuracy.dot(sev_pmf, vals * vals)
         ex2 = br.second_moment_range(sev_pmf, m2_sev)[1]
     if not math.isfinite(ex2):
         return math.inf
@@ -260,15 +287,41 @@ def _truncated_second_moment(counts, law: CountsLaw, severity: Lattice, br, g: n
     size = g.size
     k = accuracy.float_range(size)
     k2 = k * k
-    on_grid2 = h * h * float(np.dot(k2, g))
+    on_grid2 = h * h * accuracy.dot(k2, g)
     l1_in, cum_in, point_in = carried
     j = k[1:]
-    err2 = h * h * (float(np.dot(k2, errs)) + float(np.dot(2 * j - 1, np.minimum(
-        min(l1_in, 2 * cum_in), (size - j) * point_in))))
+    err2 = h * h * (accuracy.dot(k2, errs) + accuracy.dot(2 * j - 1, np.minimum(
+        min(l1_in, 2 * cum_in), (size - j) * point_in)))
     err2 = err2 * (1 + 4 * _U) + ((size + 2) * _U + 4 * _U) * on_grid2
     if not math.isfinite(total - on_grid2 + err2):
         return math.inf
     return max(total - (on_grid2 - err2), 1e-300)
+
+
+def _fits_the_grid(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, size: int) -> bool:
+    """True when ``S`` surely lies on the grid: a count bounded by ``n_max`` (binomial), its
+    whole law summed (no dropped tail), a severity with nothing truncated and its last point
+    at index ``L``, and ``n_max L < size``."""
+    if law.tail_mass > 0 or not untruncated(severity.errors):
+        return False
+    n_max = float(counts.support()[1])
+    if not math.isfinite(n_max):
+        return False
+    nz = np.flatnonzero(f)
+    # where the computed severity is 0 the exact one is 0 too only if it has no error
+    top = f.size - 1 if severity.errors.l1 > 0 else (int(nz[-1]) if nz.size else 0)
+    return n_max * top < size
+
+
+def _ramp_sum(cap: float, slope: float, size: int) -> float:
+    """``sum_{j=1}^{size-1} min(cap, (size - j) slope)`` in closed form (``m slope`` for
+    ``m = size - j`` up to ``cap / slope``, then ``cap``), rounded up."""
+    top = size - 1
+    if top <= 0 or cap <= 0 or slope <= 0:
+        return 0.0
+    ratio = cap / slope
+    q = top if not ratio < top else int(ratio)
+    return (slope * q * (q + 1) / 2 + (top - q) * cap) * (1 + 8 * _U)
 
 
 def _count_tail_moment(counts, law: CountsLaw) -> float:
@@ -288,71 +341,3 @@ def _severity_vector(severity: Lattice) -> np.ndarray:
     f = np.zeros(k + severity.pmf.size)
     f[k:] = severity.pmf
     return f
-
-
-def panjer_recursion(law: CountsLaw, f: np.ndarray, size: int) -> tuple[np.ndarray, np.ndarray]:
-    """Panjer's recursion on ``size`` points, scaled, with a running error bound.
-
-    Implementation: values are stored reversed (``R[size-1-k] = g_k``) so that the ``m`` values
-    ``g_{x-1}, ..., g_{x-m}`` are one contiguous slice, and the two sums
-    ``sum f_y g_{x-y}``, ``sum y f_y g_{x-y}`` are one small matrix product per point.  A second
-    column carries ``H_x = e_x + gamma |g_x|`` where ``e_x = c sum |a + b y/x| f_y H_{x-y}`` bounds
-    the absolute error of ``g_x`` to first order (``gamma = gamma_{m+3}``, Higham's dot-product
-    constant; ``|a + b y/x| <= |a| + |b| y/x``).
-
-    Returns
-    -------
-    (numpy.ndarray, numpy.ndarray)
-        The pmf and the bound of each entry's absolute error.
-    """
-    if law.ab1 is not None:  # (a, b, 1) class: polyconv.dist.panjer_ab1 (engineer actuarial)
-        from .panjer_ab1 import ab1_recursion
-        return ab1_recursion(law, f, size)
-    a, b = law.ab
-    u = accuracy.UNIT_ROUNDOFF
-    f0 = float(f[0])
-    c = 1.0 / (1.0 - a * f0)
-    m_max = max(0, min(f.size - 1, size - 1))
-    gamma = (m_max + 3) * u / (1 - (m_max + 3) * u)
-    log_scale = law.log_pgf_at(f0)
-    if log_scale == -math.inf:
-        return np.zeros(size), np.zeros(size)
-    fy = f[1 : m_max + 1]
-    y = np.arange(1, m_max + 1, dtype=float)
-    signed = np.vstack([a * c * fy, b * c * y * fy])
-    mixed = a < 0 or b < 0
-    absw = np.vstack([abs(a) * c * fy, abs(b) * c * y * fy]) if mixed else signed
-    n = size
-    r = np.zeros((n, 2))
-    r[n - 1, 0] = 1.0
-    r[n - 1, 1] = gamma
-    for x in range(1, n):
-        m = x if x < m_max else m_max
-        if m == 0:
-            break
-        seg = r[n - x : n - x + m]
-        res = signed[:, :m] @ seg
-        gx = res[0, 0] + res[1, 0] / x
-        if mixed:
-            res2 = absw[:, :m] @ seg[:, 1]
-            ex = res2[0] + res2[1] / x
-        else:
-            ex = res[0, 1] + res[1, 1] / x
-        r[n - 1 - x, 0] = gx
-        r[n - 1 - x, 1] = ex + gamma * abs(gx)
-        if abs(gx) > _RESCALE or ex > _RESCALE:
-            r[n - 1 - x :] /= _RESCALE
-            log_scale += _LOG_RESCALE
-    vals = r[::-1, 0]
-    errs = r[::-1, 1]
-    g = _unscale(vals, log_scale)
-    e = _unscale(errs, log_scale)
-    final_rel = (abs(log_scale) + 2) * u  # exp of the accumulated log scale
-    return np.maximum(g, 0.0), e + final_rel * np.abs(g)
-
-
-def _unscale(v: np.ndarray, log_scale: float) -> np.ndarray:
-    out = np.zeros_like(v)
-    nz = v != 0
-    out[nz] = np.sign(v[nz]) * np.exp(np.log(np.abs(v[nz])) + log_scale)
-    return out

@@ -28,7 +28,7 @@ import math
 
 import numpy as np
 
-from .accuracy import UNIT_ROUNDOFF, float_range
+from .accuracy import UNIT_ROUNDOFF, dot, float_range
 from .arguments import lattice_index
 from .ledger import cum_bound
 
@@ -37,6 +37,10 @@ UNIT_ROUNDOFF_LONG = float(np.finfo(np.longdouble).eps) / 2
 """Unit roundoff of longdouble, in which the cumulative sums run."""
 _UL = UNIT_ROUNDOFF_LONG
 _L = np.longdouble
+
+SCALAR_MIN = 1 << 14
+"""Lattices of at least this many points answer one stop-loss from sums over the points above
+its retention (no tail arrays), and one quantile bracket from a window of the cdf bounds."""
 
 
 def _down(x) -> float:
@@ -51,6 +55,15 @@ def _up(x) -> float:
     return float(np.nextafter(f, math.inf)) if _L(f) < x else f
 
 
+def _ramp_total(cap: float, slope: float, count: int) -> float:
+    """``sum_{i=0}^{count-1} min(cap, i slope)`` in closed form, rounded up."""
+    if count <= 1 or cap <= 0 or slope <= 0:
+        return 0.0
+    ratio = cap / slope
+    q = count - 1 if not ratio < count - 1 else int(ratio)
+    return (slope * q * (q + 1) / 2 + (count - 1 - q) * cap) * (1 + 8 * _U)
+
+
 class ExpectationBounds:
     """Stop-loss, TVaR and moment ranges of a :class:`~polyconv.dist.risk.Bracketer` (mixin)."""
 
@@ -59,25 +72,80 @@ class ExpectationBounds:
     # -- stop-loss --------------------------------------------------------------------------
     def stop_loss_value(self, d: np.ndarray) -> np.ndarray:
         """The lattice's own ``E[(X - d)+]`` (computed pmf only), finite ``d``."""
+        one = self._one_stop_loss(d)
+        if one is not None:
+            return one[0]
         m = np.clip(lattice_index(d, self.o, self.h, self.n) + 1, 0, self.n)
         xm = self.o + self.h * m
         return self.h * self.t[m] + (xm - d) * self.s[m]
 
+    def _one_stop_loss(self, d):
+        """``(value, on-grid error, S_m, x_m, m)`` of one stop-loss on a long lattice whose
+        tail arrays are not built, from sums over the points above ``d`` only (longdouble,
+        rounded once: within the same ``2 (n - m + 2) u_long``), the error by closed forms
+        (:meth:`_ramp_total`, :meth:`_l2_excess`) and one pass over the profile; None
+        otherwise.  The sum of the per-point minima (the arrays' route) can only be smaller:
+        the minimum of these sums is as rigorous, and wider at most by their spread."""
+        if np.ndim(d) != 0 or self.n < SCALAR_MIN or "_tails_long" in self.__dict__:
+            return None
+        n, h = self.n, self.h
+        m = int(np.clip(lattice_index(d, self.o, h, n) + 1, 0, n))
+        memo = self.__dict__.setdefault("_one_sl", {})
+        key = (m, float(d))
+        if key not in memo:
+            big_n = n - m
+            xm = self.o + h * m
+            pl = np.asarray(self.pmf[m:], dtype=_L)
+            s_m = float(np.sum(pl))
+            t_m = float(np.sum(np.arange(big_n, dtype=_L) * pl))
+            value = h * t_m + (xm - d) * s_m
+            c = min(self.ledger.l1, 2 * cum_bound(self.ledger))
+            pt = self.ledger.point
+            err = (xm - d) * min(c, big_n * pt) + h * _ramp_total(c, pt, big_n)
+            if self.profile is not None:
+                prof = self.profile[m:]
+                direct = (xm - d) * float(np.sum(prof)) + h * dot(np.arange(big_n, dtype=float),
+                                                                   prof)
+                err = min(err, direct * (1 + (big_n + 4) * _U))
+            if self.l2 is not None:
+                err = min(err, float(self._l2_excess(xm - d, big_n)))
+            memo[key] = (value, err, s_m, xm, m)
+        return memo[key]
+
     def stop_loss_range(self, d: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Certified ``(low, high)`` of the exact ``E[(X - d)+]`` at finite ``d``."""
         n, h = self.n, self.h
-        m = np.clip(lattice_index(d, self.o, h, n) + 1, 0, n)
-        xm = self.o + h * m
-        value = h * self.t[m] + (xm - d) * self.s[m]
-        err = (xm - d) * self.Bt[m] + h * self.SB[np.minimum(m + 1, n + 1)]
+        one = self._one_stop_loss(d)
+        if one is not None:
+            value, err, s_m, xm, m = one
+        else:
+            m = np.clip(lattice_index(d, self.o, h, n) + 1, 0, n)
+            xm = self.o + h * m
+            s_m = self.s[m]
+            value = h * self.t[m] + (xm - d) * s_m
+            err = (xm - d) * self.Bt[m] + h * self.SB[np.minimum(m + 1, n + 1)]
+            if self.l2 is not None:
+                err = np.minimum(err, self._l2_excess(xm - d, n - m))
         err = err + (8 * _U + 2 * (n - m + 2) * _UL) * value \
-            + 4 * _U * (np.abs(xm) + np.abs(d)) * self.s[m]  # float x_m - d
+            + 4 * _U * (np.abs(xm) + np.abs(d)) * s_m  # float x_m - d
         x_from = self._x_from_low()
         trunc_low = self.t_low * np.maximum(x_from - d, 0.0) if self.t_low > 0 else 0.0
         trunc_high = self._truncated_excess_high(d, x_from)
         low = np.maximum(value - err, 0.0) + trunc_low
         high = value + err + trunc_high
         return low, high
+
+    def _l2_excess(self, a: np.ndarray, count: np.ndarray) -> np.ndarray:
+        """``||w||_2 l2`` for the weights ``w_j = a + h j``, ``j = 0..count-1`` (the excesses
+        ``x_k - d`` over ``count`` points from the first point above ``d``), by the closed
+        form ``sum_j (a + h j)^2 = N a^2 + a h N (N - 1) + h^2 (N - 1) N (2N - 1) / 6``,
+        rounded up (a few ulps)."""
+        big_n = np.asarray(count, dtype=float)
+        a = np.asarray(a, dtype=float)
+        h = self.h
+        s2 = big_n * a * a + a * h * big_n * (big_n - 1) \
+            + h * h * (big_n - 1) * big_n * (2 * big_n - 1) / 6
+        return np.sqrt(np.maximum(s2, 0.0)) * self.l2 * (1 + 16 * _U)
 
     def _x_from_low(self) -> float:
         """A float-safe lower bound of the lowest point where truncated mass may lie,
@@ -112,7 +180,10 @@ class ExpectationBounds:
             t_long = self.t_long[:n]
             value = _L(h) * t_long
             rel = (2 * (n - k) + 6) * _UL  # two longdouble cumulative sums and one product
-            err = _L(h) * self.SB[1: n + 1].astype(_L) * _L(1 + (n + 6) * _U)
+            err = h * self.SB[1: n + 1] * (1 + (n + 6) * _U)
+            if self.l2 is not None:  # weights h, 2h, ... beyond x_k
+                err = np.minimum(err, self._l2_excess(np.full(n, h), n - 1 - k))
+            err = err.astype(_L)
             d = self.o + h * k  # float points: within u |d| of the exact x_k
             moved = 2 * _U * np.abs(d)
             x_from = self._x_from_low()
@@ -166,10 +237,10 @@ class ExpectationBounds:
             + self.h * self._sb1()
         k = float_range(self.n)
         if self.o >= 0:  # every point non-negative: |x_k| = o + h k
-            absum = self.o * float(np.sum(self.pmf)) + self.h * float(np.dot(k, self.pmf))
+            absum = self.o * float(np.sum(self.pmf)) + self.h * dot(k, self.pmf)
             absum *= 1 + 4 * _U
         else:
-            absum = float(np.dot(np.abs(self.o + self.h * k), self.pmf))
+            absum = dot(np.abs(self.o + self.h * k), self.pmf)
         mass = float(np.sum(self.pmf)) * (1 + (self.n + 2) * _U)
         err += (self.n + 2) * _U * absum + 4 * _U * (abs(self.o) * mass + abs(value))
         x_from = self._x_from_low()
@@ -195,8 +266,8 @@ class ExpectationBounds:
         parts, and the ledger's bound of the truncated part's second moment (``inf`` unknown)."""
         w = (abs(self.o) + self.h * np.arange(self.n)) ** 2
         inc = np.diff(np.concatenate(([0.0], w)))  # increments of a non-decreasing weight
-        err = float(np.dot(inc, self.B[: self.n]))
-        err += (self.n + 2) * _U * float(np.dot(w, pmf))
+        err = dot(inc, self.B[: self.n])
+        err += (self.n + 2) * _U * dot(w, pmf)
         trunc = self.ledger.truncated_moment2 if self.t_high > 0 else 0.0
         high = (value + err + trunc) * (1 + 2 * _U)
         return max(value - err, 0.0), high

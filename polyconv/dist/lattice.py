@@ -144,12 +144,14 @@ class Lattice(LatticeQueries, LatticeAnswers):
 
     @classmethod
     def _make(cls, pmf: np.ndarray, step: float, origin: float, ledger: ErrorLedger,
-              profile: np.ndarray | None = None) -> Lattice:
+              profile: np.ndarray | None = None, l2: float | None = None) -> Lattice:
         """Internal constructor for computed results: ``pmf`` already non-negative and finite;
         ``truncated`` is set to ``1 - sum(pmf)`` (clipped at 0, the excess is in ``l1``).
         ``profile``: optional per-point bounds ``|e_k| <= profile_k`` (a route that knows
         them, e.g. a compound); the certified ranges use them where they beat the ledger's
-        scalar bounds (:class:`polyconv.dist.risk.Bracketer`).  Not carried by operations."""
+        scalar bounds (:class:`polyconv.dist.risk.Bracketer`); ``l2``: optional bound of the
+        error's Euclidean norm (transform routes), used by Cauchy-Schwarz.  Neither is carried
+        by operations."""
         arr = np.clip(np.asarray(pmf, dtype=float), 0.0, 1.0)
         arr.flags.writeable = False
         total = float(np.sum(arr))
@@ -169,6 +171,8 @@ class Lattice(LatticeQueries, LatticeAnswers):
             prof = np.asarray(profile, dtype=float)
             if prof.shape == arr.shape and np.all(prof >= 0):
                 out._cache["profile"] = prof
+        if l2 is not None and math.isfinite(l2) and l2 >= 0:
+            out._cache["l2"] = float(l2)
         return out
 
     @classmethod
@@ -266,7 +270,8 @@ class Lattice(LatticeQueries, LatticeAnswers):
     def _br(self) -> risk.Bracketer:
         if "br" not in self._cache:
             self._cache["br"] = risk.Bracketer(self._pmf, self._step, self._origin,
-                                               self._ledger, self._cache.get("profile"))
+                                               self._ledger, self._cache.get("profile"),
+                                               self._cache.get("l2"))
         return self._cache["br"]
 
     def _warn_truncated(self, what: str, relative_to: float = 1.0) -> None:
@@ -278,7 +283,7 @@ class Lattice(LatticeQueries, LatticeAnswers):
     def _abs_moment(self) -> float:
         """Upper bound of ``sum |x_k| q_k`` (the represented part's absolute first moment)."""
         x = np.abs(self.values)
-        return float(np.dot(self._pmf, x)) + self._ledger.l1 * float(np.max(x)) + 1e-300
+        return accuracy.dot(self._pmf, x) + self._ledger.l1 * float(np.max(x)) + 1e-300
 
     # -- transformations --------------------------------------------------------------------
     def layer(self, deductible: float, limit: float = math.inf) -> Lattice:

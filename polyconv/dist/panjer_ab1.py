@@ -7,7 +7,7 @@ For counts with ``p_k = (a + b / k) p_{k-1}`` only from ``k >= 2`` (Klugman, Pan
     ``g_0 = P_N(f_0)``.
 
 Computed with a running first-order error bound as in
-:func:`polyconv.dist.compound.panjer_recursion`: a second column carries
+:func:`polyconv.dist.panjer.panjer_recursion`: a second column carries
 ``H_x = c (|extra| f_x u + sum |a + b y/x| f_y H_{x-y}) + gamma |g_x|`` (``gamma = gamma_{m+4}``,
 Higham's dot-product constant).  Plain (unscaled) arithmetic: ``g_0`` must not underflow
 (``P_N(f_0) > 1e-300``), else use the transform route.

@@ -22,9 +22,10 @@ from typing import NamedTuple
 import numpy as np
 
 from ..numerics import transforms as tf
+from .accuracy import dot
 from .from_law import LawAccess, rule_pmf
 
-PILOT_POINTS = 1 << 16
+PILOT_POINTS = 1 << 15
 """Points of a pilot grid."""
 
 PILOT_TILT = 25.0
@@ -56,7 +57,7 @@ class Pilot(NamedTuple):
         if not math.isfinite(v):
             return math.inf
         x = np.arange(self.pmf.size) * self.step
-        excess = float(np.dot(self.pmf, np.maximum(x - v, 0.0))) + max(tail_moment, 0.0)
+        excess = dot(self.pmf, np.maximum(x - v, 0.0)) + max(tail_moment, 0.0)
         return v + excess / (1 - p)
 
 

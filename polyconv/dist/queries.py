@@ -17,7 +17,7 @@ import warnings
 import numpy as np
 
 from . import risk
-from .accuracy import float_range
+from .accuracy import dot, float_range
 from .errors import AccuracyWarning, TruncationWarning
 
 _real = risk.real_value
@@ -39,7 +39,7 @@ class LatticeQueries:
             raise ValueError(f"k must be a non-negative integer; got {k!r}")
         self._warn_truncated(f"moment({k})")
         with np.errstate(over="ignore", invalid="ignore"):
-            value = float(np.dot(self._pmf, self.values ** int(k)))
+            value = dot(self._pmf, self.values ** int(k))
         if not math.isfinite(value):
             warnings.warn(f"moment({k}) overflows float64 (largest point "
                           f"{float(np.max(np.abs(self.values))):.3g}); returning {value}",
@@ -49,7 +49,7 @@ class LatticeQueries:
     def _mean(self) -> float:
         mass = float(np.sum(self._pmf))
         k = float_range(self._pmf.size)
-        return self._origin * mass + self._step * float(np.dot(self._pmf, k))
+        return self._origin * mass + self._step * dot(self._pmf, k)
 
     def mean(self) -> float:
         """``E[X] = origin * mass + step * sum k p_k`` over the lattice."""
@@ -62,8 +62,8 @@ class LatticeQueries:
         if mass == 0:
             return 0.0
         k = float_range(self._pmf.size)
-        mk = float(np.dot(self._pmf, k)) / mass
-        return float(np.dot(self._pmf, (k - mk) ** 2))
+        mk = dot(self._pmf, k) / mass
+        return dot(self._pmf, (k - mk) ** 2)
 
     def _variance(self) -> float:
         return self._step * self._step * self._variance_steps()

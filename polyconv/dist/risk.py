@@ -39,7 +39,7 @@ import numpy as np
 
 from .accuracy import UNIT_ROUNDOFF
 from .arguments import SNAP, check_level, lattice_index, real_value
-from .expectation_bounds import UNIT_ROUNDOFF_LONG, ExpectationBounds
+from .expectation_bounds import SCALAR_MIN, UNIT_ROUNDOFF_LONG, ExpectationBounds
 from .ledger import ErrorLedger, cum_bound, t_bounds, untruncated
 
 TRUNCATION_LEVEL = 1e-9
@@ -60,6 +60,10 @@ modules that reach them as ``risk.real_value`` and so on."""
 
 _U = UNIT_ROUNDOFF
 _UL = UNIT_ROUNDOFF_LONG
+
+WINDOW_MIN = SCALAR_MIN
+"""Lattices of at least this many points answer one quantile bracket from the cdf bounds on a
+window around it (:meth:`Bracketer._window`) instead of the whole arrays."""
 
 
 def tail_sums(pmf: np.ndarray, long: bool = False) -> tuple[np.ndarray, np.ndarray]:
@@ -94,13 +98,19 @@ class Bracketer(ExpectationBounds):
         Per-point bounds ``|e_k| <= profile_k`` when the computation knows them; the running
         sums of the profile bound the cumulative errors where they beat ``(k + 1) point`` and
         ``l1`` (in the tail of a compound, where the pmf and its errors decay).
+    l2 : float, optional
+        A bound of the error's Euclidean norm ``||e||_2`` when the computation knows one
+        (transform routes bound exactly that): by Cauchy-Schwarz, ``|sum_k w_k e_k| <=
+        ||w||_2 l2`` for every weight ``w`` (cumulative sums, stop-loss excesses), a factor up
+        to ``sqrt(n)`` below the per-point route.
     """
 
     def __init__(self, pmf: np.ndarray, step: float, origin: float, ledger: ErrorLedger,
-                 profile: np.ndarray | None = None):
+                 profile: np.ndarray | None = None, l2: float | None = None):
         n = pmf.size
         self.n, self.h, self.o, self.ledger, self.pmf = n, step, origin, ledger, pmf
         self.profile = profile
+        self.l2 = l2
         self.tf = ledger.truncated_from
         self._sl = None
 
@@ -166,22 +176,40 @@ class Bracketer(ExpectationBounds):
     @cached_property
     def C(self) -> np.ndarray:  # noqa: N802 (the name of the bound in the module docstring)
         """``|sum_{j <= k} e_j|`` bound at each ``k``."""
-        k = np.arange(self.n)
+        return self._c_on(0, self.n)
+
+    def _c_on(self, a: int, b: int) -> np.ndarray:
+        """:attr:`C` at ``k = a..b-1``."""
+        k = np.arange(a, b)
         out = np.minimum(cum_bound(self.ledger), (k + 1) * self.ledger.point)
         if self.profile is not None:  # float running sum of non-negative terms: (k + 2) u
-            run = np.cumsum(self.profile) * (1 + (k + 2) * _U)
-            out = np.minimum(out, run)
+            run = np.cumsum(self.profile[a:b])
+            if a > 0:
+                run += float(np.sum(self.profile[:a]))
+            out = np.minimum(out, run * (1 + (k + 2) * _U))
+        if self.l2 is not None:
+            out = np.minimum(out, np.sqrt(k + 1.0) * self.l2 * (1 + 4 * _U))
         return out
 
     @cached_property
     def B(self) -> np.ndarray:  # noqa: N802
         """Bound of ``sum_{k >= j} |e_k|``, ``j = 0..n``."""
-        j = np.arange(self.n + 1)
-        out = np.minimum(self.ledger.l1, (self.n - j) * self.ledger.point)
+        return self._b_on(0, self.n + 1)
+
+    def _b_on(self, a: int, b: int) -> np.ndarray:
+        """:attr:`B` at ``j = a..b-1`` (``b <= n + 1``)."""
+        n = self.n
+        j = np.arange(a, b)
+        out = np.minimum(self.ledger.l1, (n - j) * self.ledger.point)
         if self.profile is not None:
-            run = np.zeros(self.n + 1)
-            run[: self.n] = np.cumsum(self.profile[::-1])[::-1]
-            out = np.minimum(out, run * (1 + (self.n - j + 2) * _U))
+            inner = np.zeros(b - a)
+            top = min(b, n)
+            inner[: top - a] = np.cumsum(self.profile[a:top][::-1])[::-1]
+            if top < n:
+                inner[: top - a] += float(np.sum(self.profile[top:]))
+            out = np.minimum(out, inner * (1 + (n - j + 2) * _U))
+        if self.l2 is not None:
+            out = np.minimum(out, np.sqrt(n - j + 0.0) * self.l2 * (1 + 4 * _U))
         return out
 
     @cached_property
@@ -197,39 +225,72 @@ class Bracketer(ExpectationBounds):
         return sb
 
     @cached_property
-    def _cdf_bounds(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-        """``(F_low, F_high, S_low, S_high)`` at each index, the cdf from both routes."""
+    def _route_bounds(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """``(cum_low, cum_high, tail_low, tail_high)``: the cdf from the left and the sf from
+        the right, each with its own error bound."""
+        return self._route_on(0, self.n)
+
+    def _route_on(self, a: int, b: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """:attr:`_route_bounds` at ``k = a..b-1``; a window builds its tail sums from the
+        suffix sum beyond it (longdouble, so within the same ``(n - k + 2) u_long``)."""
         n = self.n
-        k = np.arange(n)
-        rc = (_U + (k + 2) * _UL) * self.cum + 2 * _U
-        tail = self.s[1:]
+        k = np.arange(a, b)
+        cum = self.cum[a:b]
+        rc = (_U + (k + 2) * _UL) * cum + 2 * _U
+        if a == 0 and b == n:
+            tail, bt = self.s[1:], self.Bt[1:]
+        else:
+            pl = np.asarray(self.pmf, dtype=np.longdouble)
+            tail_l = np.zeros(b - a, dtype=np.longdouble)
+            tail_l[:-1] = np.cumsum(pl[a + 1: b][::-1])[::-1]
+            tail = (tail_l + np.sum(pl[b:])).astype(float)
+            bt = np.minimum(self._b_on(a + 1, b + 1), 2 * cum_bound(self.ledger))
         rs = (_U + (n - k + 2) * _UL) * tail
         maybe_below = k >= self.tf
-        cum_low = self.cum - self.C - rc
-        cum_high = self.cum + self.C + rc + np.where(maybe_below, self.t_high, 0.0)
-        tail_low = np.maximum(tail - self.Bt[1:] - rs, 0.0) + np.where(maybe_below, 0.0,
-                                                                        self.t_low)
-        tail_high = tail + self.Bt[1:] + rs + self.t_high
+        c = self.C[a:b] if "C" in self.__dict__ else self._c_on(a, b)
+        cum_low = cum - c - rc
+        cum_high = cum + c + rc
+        if self.t_high > 0:
+            cum_high[maybe_below] += self.t_high
+        tail_low = np.maximum(tail - bt - rs, 0.0)
+        if self.t_low > 0:
+            tail_low[~maybe_below] += self.t_low
+        tail_high = tail + bt + rs + self.t_high
+        return cum_low, cum_high, tail_low, tail_high
+
+    @staticmethod
+    def _pair(cum_low, cum_high, tail_low, tail_high) -> tuple[np.ndarray, np.ndarray]:
+        """``(F_low, F_high)``: the tighter end of both routes."""
         return (np.clip(np.maximum(cum_low, 1.0 - tail_high - 2 * _U), 0.0, 1.0),
-                np.clip(np.minimum(cum_high, 1.0 - tail_low + 2 * _U), 0.0, 1.0),
-                np.clip(np.maximum(tail_low, 1.0 - cum_high - 2 * _U), 0.0, 1.0),
+                np.clip(np.minimum(cum_high, 1.0 - tail_low + 2 * _U), 0.0, 1.0))
+
+    @cached_property
+    def _cdf_pair(self) -> tuple[np.ndarray, np.ndarray]:
+        """``(F_low, F_high)`` (built without the sf pair, which a quantile does not need)."""
+        return self._pair(*self._route_bounds)
+
+    @cached_property
+    def _sf_pair(self) -> tuple[np.ndarray, np.ndarray]:
+        """``(S_low, S_high)``."""
+        cum_low, cum_high, tail_low, tail_high = self._route_bounds
+        return (np.clip(np.maximum(tail_low, 1.0 - cum_high - 2 * _U), 0.0, 1.0),
                 np.clip(np.minimum(tail_high, 1.0 - cum_low + 2 * _U), 0.0, 1.0))
 
     @property
     def F_low(self) -> np.ndarray:  # noqa: N802
-        return self._cdf_bounds[0]
+        return self._cdf_pair[0]
 
     @property
     def F_high(self) -> np.ndarray:  # noqa: N802
-        return self._cdf_bounds[1]
+        return self._cdf_pair[1]
 
     @property
     def S_low(self) -> np.ndarray:  # noqa: N802
-        return self._cdf_bounds[2]
+        return self._sf_pair[0]
 
     @property
     def S_high(self) -> np.ndarray:  # noqa: N802
-        return self._cdf_bounds[3]
+        return self._sf_pair[1]
 
     @cached_property
     def _run_high(self) -> np.ndarray:
@@ -263,11 +324,37 @@ class Bracketer(ExpectationBounds):
     def quantile_range(self, p: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Indices ``(low, high)`` containing the exact model's quantile index (``high = n``:
         it may lie beyond the grid)."""
-        lo = np.searchsorted(self._run_high, p, side="left")
-        hi = np.searchsorted(self._run_low, p, side="left")
+        window = self._window(p)
+        if window is not None:
+            lo, hi = window
+        else:
+            lo = np.searchsorted(self._run_high, p, side="left")
+            hi = np.searchsorted(self._run_low, p, side="left")
         if self.ledger.point == 0 and self.ledger.l1 == 0:
             lo, hi = self._exact_ties(np.asarray(p, dtype=float), lo, hi)
         return lo, hi
+
+    def _window(self, p) -> tuple[int, int] | None:
+        """The bracket of one level from the cdf bounds on a window of a long lattice (None:
+        use the whole arrays).  ``F_high(k) <= cum(k) + K + r + T`` and ``F_low(k) >=
+        cum(k) - K - r`` (``K`` the cumulative bound, ``r`` the largest rounding term, ``T``
+        the truncated mass) are non-decreasing in ``k``, so both first crossings of ``p`` lie
+        between the crossings of these envelopes; inside, the bounds are the same as on the
+        whole arrays."""
+        p = np.asarray(p, dtype=float)
+        n = self.n
+        if p.ndim != 0 or n < WINDOW_MIN or "_cdf_pair" in self.__dict__:
+            return None
+        r = (_U + (n + 2) * _UL) * 2.0 + 2 * _U
+        k_all = cum_bound(self.ledger)
+        a = int(np.searchsorted(self.cum, float(p) - k_all - r - self.t_high, side="left"))
+        b = int(np.searchsorted(self.cum, float(p) + k_all + r, side="left"))
+        a, b = max(a - 1, 0), min(b + 1, n)
+        if b - a > n // 4:
+            return None
+        f_low, f_high = self._pair(*self._route_on(a, b))
+        lo, hi = np.flatnonzero(f_high >= p), np.flatnonzero(f_low >= p)
+        return (a + int(lo[0]) if lo.size else n), (a + int(hi[0]) if hi.size else n)
 
     def _exact_ties(self, p: np.ndarray, lo: np.ndarray, hi: np.ndarray):
         """An exact pmf (no computed error): decide ``sum_{j <= k} p_j >= p`` exactly inside

@@ -26,6 +26,7 @@ from typing import NamedTuple
 import numpy as np
 
 from . import law_moments
+from .accuracy import dot
 from .goals import Goal
 from .pilot import PILOT_POINTS, Pilot, pilot_compound
 
@@ -136,11 +137,13 @@ def pilot_for(counts, law) -> PilotPair:
 NEAR_STEPS = 1024
 """A second, finer pilot is run when the far pilot's 99.9% VaR is within this many steps."""
 
-NEAR_POINTS = 1 << 14
+NEAR_POINTS = 1 << 13
 """Points of the finer pilot."""
 
-SF_MARGIN = 2.0
-"""The plan reads the pilot's survival function times this (on the safe side)."""
+SF_MARGIN = 1.0
+"""The plan reads the pilot's survival function (already read on the safe side,
+:meth:`PilotPair.sf_high`) times this; 1 measured 15-20 % faster than 2 on five heavy models,
+with certified TVaR widths 4.7e-5 to 7.0e-5 against a goal of 1e-4 (2: 3e-5 to 5.5e-5)."""
 
 
 class PilotPair(NamedTuple):
@@ -191,7 +194,7 @@ class PilotPair(NamedTuple):
 
 def _pilot_stop_loss(pilot: Pilot, d: float) -> float:
     x = np.arange(len(pilot.pmf)) * pilot.step
-    return float(np.dot(pilot.pmf, np.maximum(x - d, 0.0)))
+    return dot(pilot.pmf, np.maximum(x - d, 0.0))
 
 
 def pilot_step(pilot: PilotPair, goal: Goal) -> float:

@@ -27,6 +27,7 @@ from typing import NamedTuple
 import numpy as np
 
 from . import law_moments
+from .accuracy import dot
 from .errors import AccuracyWarning
 from .from_law import (
     LawAccess,
@@ -74,10 +75,10 @@ def _comparisons(frozen, pmf: np.ndarray, h: float, origin: float, truncated: fl
     if rule != "moments" and math.isfinite(mean) and origin >= 0:
         edge = {"nearest": 0.5, "down": 1.0, "up": 0.0}[rule]
         b = max(origin + (pmf.size - 1 + edge) * h, 0.0)
-        out.append(("mean", float(np.dot(pmf, x)), mean - law_moments.tail_moment(frozen, b)))
+        out.append(("mean", dot(pmf, x), mean - law_moments.tail_moment(frozen, b)))
     if origin >= 0:
         m = float(frozen.median())
-        out.append((f"E[min(X, {m:.6g})]", float(np.dot(pmf, np.minimum(x, m))) + m * truncated,
+        out.append((f"E[min(X, {m:.6g})]", dot(pmf, np.minimum(x, m)) + m * truncated,
                     law_moments.limited_mean(frozen, m)))
     if layer is not None:
         d, lim = layer
@@ -90,7 +91,7 @@ def _comparisons(frozen, pmf: np.ndarray, h: float, origin: float, truncated: fl
         else:
             hi = law_moments.limited_mean(frozen, d + lim) if math.isfinite(lim) else mean
             hi_law = hi - law_moments.limited_mean(frozen, d)
-        out.append((f"layer E[min((X - {d:g})+, {lim:g})]", float(np.dot(pmf, pay)) + beyond,
+        out.append((f"layer E[min((X - {d:g})+, {lim:g})]", dot(pmf, pay) + beyond,
                     hi_law))
     return out
 

@@ -48,8 +48,16 @@ from .from_law import _OFFSET, LawAccess, check_rule, rule_pmf
 from .goals import Goal
 from .lattice import Lattice
 from .law_lattice import lattice_from_law, make_lattice
-from .ledger import Bounded, ErrorLedger
+from .ledger import Bounded, ErrorLedger, cum_bound
 from .splice_plan import pilot_for, pilot_step, plan_grids
+
+REBALANCE_RTOL = 1e-8
+"""Goals at least this loose skip the transforms' re-tilted second run (rounding bounds of a
+few 1e-13 are far inside them)."""
+
+REFINE_GAIN = 1.5
+"""A refinement round that narrows the widest missed range by less than this factor ends the
+refinements (the range is then bounded by rounding or truncation, not by the coarse steps)."""
 
 RETRIES = 3
 """Times the grids are refined (fine reach doubled, coarse step halved) when the goal is unmet."""
@@ -99,8 +107,16 @@ def capped(lattice):
         raise ValueError("the truncated mass may lie on the grid (truncated_from < len); "
                          "a spliced answer needs it beyond the grid's end")
     pmf = np.append(np.asarray(lattice.pmf), lattice.truncated_mass)
-    ledger = ErrorLedger(min(max(led.point, led.l1), 1.0), min(2 * led.l1, 2.0), 0.0, n + 1, 0.0)
-    return Lattice(pmf, lattice.step, lattice.origin, errors=ledger)
+    # the appended mass 1 - sum(pmf) errs by the cumulative bound K of the represented part plus
+    # the float rounding of the sum ((n + 2) u, any order; Higham section 4.2): per point at most
+    # that, in L1 l1 + that, in Euclidean norm l2 + that
+    k = cum_bound(led) + (n + 2) * UNIT_ROUNDOFF * max(float(np.sum(lattice.pmf)), 1.0)
+    ledger = ErrorLedger(min(max(led.point, k), 1.0), min(led.l1 + k, 2.0), 0.0, n + 1, 0.0,
+                         min(cum_bound(led) + k, 2.0))
+    cache = lattice._cache
+    profile = None if "profile" not in cache else np.append(cache["profile"], k)
+    l2 = None if "l2" not in cache else (cache["l2"] + k) * (1 + 4 * UNIT_ROUNDOFF)
+    return Lattice._make(pmf, lattice.step, lattice.origin, ledger, profile, l2)
 
 
 def _quiet(lattice, measure, arg) -> Bounded:
@@ -174,6 +190,17 @@ def _answer(measure, arg, fine, cap, levels, ends, goal: Goal) -> Bounded:
     return _judge(Bounded(values[k_own], min(lows), min(highs), False, ""), goal)
 
 
+def _excess(answers: dict, goal: Goal) -> float:
+    """Largest ratio of a refused answer's certified width to the goal's tolerance."""
+    out = 0.0
+    for b in answers.values():
+        if b.refused:
+            width = b.high - b.low
+            tol = goal.tolerance(b.high if math.isfinite(b.high) else b.low)
+            out = max(out, width / tol if tol > 0 and math.isfinite(width) else math.inf)
+    return out
+
+
 def _own_var(fine, p: float) -> float:
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
@@ -232,8 +259,9 @@ def spliced_aggregate(counts, law, *, goal: Goal, step: float | None = None,
         raise ValueError(f"method must be 'auto', 'fft' or 'recursion'; got {method!r}")
     count_law = classify(counts)
 
-    def compound(sev, size):  # no std is asked: skip the second-moment bound
-        return compound_lattice(counts, count_law, sev, method, size, second_moment=False)
+    def compound(sev, size):  # no std is asked; a tolerance far above the rounding
+        return compound_lattice(counts, count_law, sev, method, size, second_moment=False,
+                                rebalance=not goal.rtol >= REBALANCE_RTOL)
 
     pilot = pilot_for(counts, law)
     if step is None:
@@ -245,9 +273,11 @@ def spliced_aggregate(counts, law, *, goal: Goal, step: float | None = None,
         fine = aggregate_for_goal(counts, law, goal=goal, step=h, rule=rule, method=method)
         answers = {(m, a): _judge(_quiet(fine, m, a), goal) for m, a in goal.measures}
         return SplicedAnswers(answers, h, len(fine), (), fine)
+    sev = lattice_from_law(law, step=h, size=n_f, rule=rule, cls=Lattice)
+    fine = compound(sev, n_f)  # refinements change the far-tail levels only
+    cap = capped(fine)
+    previous = math.inf
     for attempt in range(RETRIES + 1):
-        sev = lattice_from_law(law, step=h, size=n_f, rule=rule, check=attempt == 0, cls=Lattice)
-        fine = compound(sev, n_f)
         levels, ends = [], [h * n_f]
         for i, (k, n) in enumerate(plan):
             down_sev, up_sev = coarse_pair(law, rule, h, k, n)
@@ -256,12 +286,13 @@ def spliced_aggregate(counts, law, *, goal: Goal, step: float | None = None,
                 pair = [capped(x) for x in pair]
             levels.append(tuple(pair))
             ends.append(n * k * h)
-        cap = capped(fine)
         answers = {(m, a): _answer(m, a, fine, cap, levels, ends, goal)
                    for m, a in goal.measures}
         missed = [f"{m}({a}): {r.reason}" for (m, a), r in answers.items() if r.refused]
-        if not missed or attempt == RETRIES:
-            break
+        excess = _excess(answers, goal)
+        if not missed or attempt == RETRIES or excess > previous / REFINE_GAIN:
+            break  # met, out of rounds, or the last refinement did not help (rounding-bound)
+        previous = excess
         plan = [(max(1, k // 2), min(2 * n, goal.max_points)) for k, n in plan]
     if missed:
         warnings.warn("goal not met: " + "; ".join(missed), AccuracyWarning, stacklevel=2)

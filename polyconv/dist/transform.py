@@ -236,8 +236,8 @@ class TransformResult:
 
 
 def transform_compound(law: TransformLaw, f: np.ndarray, size: int, *, n_fft: int | None = None,
-                       theta: float | None = None, log_alias_mass: float | None = None
-                       ) -> TransformResult:
+                       theta: float | None = None, log_alias_mass: float | None = None,
+                       rebalance: bool = True) -> TransformResult:
     """First ``size`` entries of ``IFFT(P(FFT(f)))`` with tilting and padding.
 
     Parameters
@@ -255,6 +255,10 @@ def transform_compound(law: TransformLaw, f: np.ndarray, size: int, *, n_fft: in
         ``theta = 0`` disables tilting.
     log_alias_mass : float, optional
         log of a bound of ``P(S >= n_fft)``; default a Chernoff bound.
+    rebalance : bool
+        With the default tilt: when the aliasing bound exceeds ten times the rounding bound,
+        run once more with the tilt re-chosen from the measured rounding (a tighter bound for
+        a second transform); False keeps the first (its bounds are as rigorous, only wider).
 
     Returns
     -------
@@ -264,7 +268,7 @@ def transform_compound(law: TransformLaw, f: np.ndarray, size: int, *, n_fft: in
     """
     auto_theta = theta is None
     res = _transform_once(law, f, size, n_fft, theta, log_alias_mass)
-    if auto_theta and res.aliasing_floor > 10 * res.rounding_floor:
+    if rebalance and auto_theta and res.aliasing_floor > 10 * res.rounding_floor:
         # the tilt was chosen from an a-priori rounding estimate (E[N] as Lipschitz factor);
         # with the measured tilted-domain rounding, rebalance once
         tilted_round = res.rounding_floor * math.exp(-res.theta * max(size - 1, 0))

@@ -51,12 +51,6 @@ def within(b: Bounded, ref: float, slack: float = 0.0) -> bool:
     return b.low - slack <= ref <= b.high + slack
 
 
-def ratio(b: Bounded, ref: float) -> float:
-    """Half-width of the certified range over the observed error (floored at one roundoff)."""
-    half = max(b.high - b.value, b.value - b.low)
-    return half / max(abs(b.value - ref), U * abs(ref), 1e-300)
-
-
 # ---------------------------------------------------------------- sums of exponentials
 
 
@@ -215,44 +209,6 @@ def test_compound_geometric_exponential_closed_form_both_routes():
             assert not tv_lo.refused and not tv_hi.refused
             assert tv_lo.low <= v + theta / p <= tv_hi.high
             assert s_lo.quantile(level) <= v <= s_hi.quantile(level) + h
-
-
-def exact_binomial_compound(m: int, p: Fraction, f: list[Fraction], size: int) -> list[Fraction]:
-    """sum_n C(m, n) p^n (1 - p)^(m - n) f^{*n}, exactly (fractions.Fraction enumeration)."""
-    g = [Fraction(0)] * size
-    conv = [Fraction(1)]
-    for n in range(m + 1):
-        w = math.comb(m, n) * p ** n * (1 - p) ** (m - n)
-        for k, v in enumerate(conv[:size]):
-            g[k] += w * v
-        new = [Fraction(0)] * (len(conv) + len(f) - 1)
-        for i, a in enumerate(conv):
-            for j, b in enumerate(f):
-                new[i + j] += a * b
-        conv = new
-    return g
-
-
-@pytest.mark.parametrize("method", ["fft", "recursion"])
-def test_small_compound_against_exact_fractions(method):
-    f = [Fraction(1, 8), Fraction(3, 8), Fraction(1, 4), Fraction(0), Fraction(1, 4)]
-    m, p, size = 6, Fraction(1, 4), 30
-    g = exact_binomial_compound(m, p, f, size)
-    s = compound(stats.binom(m, 0.25), Lattice([float(v) for v in f]), method=method, size=size)
-    cum = Fraction(0)
-    mean = m * p * sum(k * v for k, v in enumerate(f))  # Wald: E[S] = E[N] E[X]
-    for k in range(size):
-        cum += g[k]
-        b = s.bounded("cdf", float(k))
-        assert Fraction(b.low) <= cum <= Fraction(b.high)
-        # stop-loss E[(S - k)+] = E[S] - k + sum_{j <= k} (k - j) g_j (exact)
-        sl = mean - k + sum((k - j) * g[j] for j in range(k + 1))
-        bs = s.bounded("stop_loss", float(k))
-        assert Fraction(bs.low) <= sl <= Fraction(bs.high)
-    for level in (0.5, 0.9, 0.99):
-        qk = next(k for k in range(size) if sum(g[: k + 1]) >= Fraction(level))
-        lo, hi = s.quantile_bracket(level)
-        assert lo <= qk <= hi and s.cdf(s.quantile(level)) >= level
 
 
 def test_poisson_zero_gives_zero_tvar_and_stop_loss():

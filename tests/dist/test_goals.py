@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 from scipy import special, stats
 
-from polyconv.dist import Goal, Lattice, aggregate_for_goal, compound, law_bracket
+from polyconv.dist import AccuracyWarning, Goal, Lattice, aggregate_for_goal, compound, law_bracket
 from polyconv.dist.tail_splice import spliced_aggregate
 from polyconv.dist.transform import log_chernoff_tail, log_split_tail, reduced_severity
 
@@ -181,3 +181,29 @@ def test_spliced_tvar_agrees_with_one_long_grid():
     ref = compound(counts, sev, size=1 << 20).bounded("tvar", 0.995)
     assert tv.low <= ref.high and ref.low <= tv.high
     assert res.fine_points + sum(n for _, n in res.levels) < (1 << 20) // 4
+
+
+def test_bracket_to_goal_meets_an_absolute_precision():
+    # issue 11 item 4, "p99.9 to 0.1": the sum of three Exp(scale 2) is gamma(3, scale 2)
+    # (handbook identity; scipy.stats.gamma as the reference); a delay of three stages
+    from polyconv.dist import bracket_to_goal
+
+    law = stats.expon(scale=2.0)
+
+    def make(rule, step):
+        x = Lattice.from_law(law, step=step, rule=rule)
+        return x + x + x
+
+    ref = stats.gamma(3, scale=2.0)
+    b = bracket_to_goal(make, "quantile", 0.999, step=1.0, atol=0.1)
+    assert b.met and b.high - b.low <= 0.1 and b.step < 1.0
+    assert b.low <= ref.ppf(0.999) <= b.high
+    c = bracket_to_goal(make, "cdf", 10.0, step=1.0, atol=1e-3)  # a shrinking measure
+    assert c.met and c.low <= ref.cdf(10.0) <= c.high and c.high - c.low <= 1e-3
+    with pytest.warns(AccuracyWarning, match="wider than the goal"):
+        d = bracket_to_goal(make, "quantile", 0.999, step=1.0, atol=1e-9, halvings=1)
+    assert not d.met and d.low <= ref.ppf(0.999) <= d.high
+    with pytest.raises(ValueError, match="atol or rtol"):
+        bracket_to_goal(make, "quantile", 0.999, step=1.0)
+    with pytest.raises(TypeError, match="make must be a callable"):
+        bracket_to_goal(None, "quantile", 0.999, step=1.0, atol=0.1)
