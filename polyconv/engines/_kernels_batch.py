@@ -112,3 +112,16 @@ def primes_ntt(a, b, primes, tw, twq, itw, itwq, p_neg_inv, f, fq, out):
     for i in range(primes.shape[0]):
         product_mod_prime(a, b, primes[i], tw[i], twq[i], itw[i], itwq[i], p_neg_inv[i], f[i],
                           fq[i], fa, fb, out[i])
+
+
+@njit("void(int64[::1], int64[::1], uint32[:, ::1], uint64[::1], int64[::1])", cache=CACHE)
+def one_ntt_mod(a, b, tab, consts, out):
+    """``out = (a * b mod p)[:len(out)]``: :func:`product_mod_prime` with its arguments packed
+    (``tab`` rows: twiddles, their Shoup quotients, inverse twiddles, theirs, ``tab.shape[1]``
+    points; ``consts``: ``p``, ``-p^-1 mod 2^32``, ``f``, ``f``'s quotient), so that a short
+    product pays the dispatch of five arguments instead of thirteen."""
+    n = tab.shape[1]
+    fa = np.empty(n, dtype=np.uint32)
+    fb = np.empty(n, dtype=np.uint32)
+    product_mod_prime(a, b, consts[0], tab[0], tab[1], tab[2], tab[3], consts[1], consts[2],
+                      consts[3], fa, fb, out)
