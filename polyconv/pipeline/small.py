@@ -33,6 +33,10 @@ TINY_WORK = 2**12
 #: (measured: 3 x 2 0.8 us against 2.4 us; 8 x 8 4 us against 3 us).
 PYTHON_WORK = 24
 
+#: int64 arrays up to this length are read as lists (measured: 3 entries 0.5 us against 2.4 us
+#: for ``x.min()`` and ``x.max()``; even at about 32).
+SHORT_ARRAY = 32
+
 _INT64 = np.dtype(np.int64)
 
 
@@ -44,6 +48,9 @@ def _operand(x) -> tuple | None:
                 return None
         return (x, min(x), max(x)) if x else None
     if type(x) is np.ndarray and x.ndim == 1 and x.dtype == _INT64 and x.shape[0]:
+        if x.shape[0] <= SHORT_ARRAY:  # a list and Python's min/max beat two numpy reductions
+            values = x.tolist()
+            return values, min(values), max(values)
         return x, int(x.min()), int(x.max())
     return None
 
