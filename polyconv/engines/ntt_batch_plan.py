@@ -45,7 +45,7 @@ NAME = "ntt-batch"
 MAX_ROW_TRANSFORM = 2**12
 
 #: Defaults when the cost table has no ``ntt_batch`` section (measured on the development
-#: machine with bench/compiled_bench.py --batch-axis; see bench/RESULTS.md).
+#: machine: bench/RESULTS.md, "Batched short products"; `polyconv calibrate` fits them).
 DEFAULTS = {"overhead": 6e-6, "per_row": 1.5e-7, "per_mac_wrap": 2.5e-10,
             "per_mac_mod": 5e-10}
 
