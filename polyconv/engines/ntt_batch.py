@@ -39,6 +39,8 @@ from . import jit_state as jit
 from .ntt_compiled import (
     KERNEL_MODULUS_LIMIT,
     _garner_constants,
+    convolve_exact,
+    convolve_mod,
     is_ntt_prime,
     max_length,
     primes_for,
@@ -264,6 +266,8 @@ def multiply_rows_exact(a_rows: np.ndarray, b_rows: np.ndarray, bound: int,
         _kernels().rows_schoolbook_wrap(a.view(np.uint64), b.view(np.uint64),
                                         out.view(np.uint64))
         return out if as_int64 else out.astype(object)
+    if rows == 1 and a.dtype != object and b.dtype != object:  # one product: all primes in
+        return convolve_exact(a[0], b[0], bound, keep, as_int64)[None]  # one kernel call
     primes = primes_for(bound, transform_length(n1, n2))
     budget.check_allocation(8.0 * (len(primes) + 1) * rows * count, "batched exact products")
     res = _residues_by_prime(a, b, primes, count)
@@ -289,6 +293,8 @@ def multiply_rows_mod(a_rows: np.ndarray, b_rows: np.ndarray, m: int,
     if is_ntt_prime(m) and transform_length(n1, n2) <= max_length(m):
         return multiply_rows_mod_prime(a, b, m, keep)
     rows, count = a.shape[0], _count(n1, n2, keep)
+    if rows == 1 and a.dtype != object and b.dtype != object:
+        return convolve_mod(a[0], b[0], m, keep)[None]
     bound = min(n1, n2) * (m - 1) ** 2
     primes = primes_for(bound, transform_length(n1, n2), signed=False)
     budget.check_allocation(8.0 * (len(primes) + 1) * rows * count, "batched products mod m")

@@ -70,8 +70,6 @@ def option(job: Job) -> Option | str:
     if state == "unavailable":
         return f"compiled engines unavailable: {jit_state.reason()}"
     facts = job.facts
-    if job.rows == 1:
-        return "a single row (the one-product engines serve it)"
     if not magnitude_fits_int64(max(facts.max_a, facts.max_b)):
         return "operands beyond int64 (the batched kernels read int64 rows)"
     if job.n_full > MAX_ROW_TRANSFORM:
