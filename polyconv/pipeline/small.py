@@ -112,7 +112,9 @@ def tiny_product(a, b, mode: str, method: str, modulus, length, axis) -> np.ndar
     else:
         max_x, max_y = max(hi_x, -lo_x), max(hi_y, -lo_y)
     terms = min(n1, n2)
-    if terms * max_x * max_y < INT64_LIMIT and n1 * n2 > PYTHON_WORK:
+    if (terms * max_x * max_y < INT64_LIMIT and max(max_x, max_y) < INT64_LIMIT
+            and n1 * n2 > PYTHON_WORK):  # (an all-zero side keeps the product small, but the
+        # other one must still be an int64)
         out = np.convolve(np.asarray(x, dtype=np.int64), np.asarray(y, dtype=np.int64))
         if m is not None:
             if m < INT64_LIMIT:
