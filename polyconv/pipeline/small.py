@@ -55,6 +55,13 @@ def _operand(x) -> tuple | None:
     return None
 
 
+def _length(x) -> int:
+    """Entries of a list or of a 1-D array (anything else: 0, decided by :func:`_operand`)."""
+    if type(x) is list:
+        return len(x)
+    return x.shape[0] if type(x) is np.ndarray and x.ndim == 1 else 0
+
+
 def _reduced(x, m: int):
     """Residues in ``[0, m)`` of a list or an int64 array (``m < 2^63`` for arrays)."""
     if type(x) is list:
@@ -89,6 +96,8 @@ def tiny_product(a, b, mode: str, method: str, modulus, length, axis) -> np.ndar
     integer operands; None when the short path does not apply (the caller then plans)."""
     if (method != "auto" or mode != "full" or length is not None or axis not in (-1, 0)
             or (modulus is not None and (type(modulus) is not int or modulus < 2))):
+        return None
+    if _length(a) * _length(b) > TINY_WORK:  # before any pass over the operands
         return None
     xa = _operand(a)
     if xa is None:
