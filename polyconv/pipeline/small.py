@@ -23,7 +23,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..engines import jit_state, ntt_compiled
+from ..engines import jit_state, ntt_batch, ntt_compiled
 from ..numerics.limits import INT64_LIMIT
 
 #: Products of at most this many multiply-adds take the short path (schoolbook costs ~1 ns per
@@ -84,6 +84,8 @@ def _compiled(x, y, m: int | None, bound: int, top: int) -> np.ndarray | None:
     y = np.asarray(y, dtype=np.int64)
     if m is not None:
         return ntt_compiled.convolve_mod(x, y, m)
+    if bound < 2**127:  # 128-bit schoolbook sums, two words per Python int
+        return ntt_batch.multiply_rows_exact(x, y, bound, as_int64=False)[0]
     return ntt_compiled.convolve_exact(x, y, bound, as_int64=False)
 
 
