@@ -49,7 +49,7 @@ MAX_ROW_TRANSFORM = 2**12
 #: Defaults when the cost table has no ``ntt_batch`` section (measured on the development
 #: machine: bench/RESULTS.md, "Batched short products"; `polyconv calibrate` fits them).
 DEFAULTS = {"overhead": 6e-6, "per_row": 1.5e-7, "per_mac_wrap": 2.5e-10,
-            "per_mac_mod": 5e-10, "per_mac_128": 1.0e-9}
+            "per_mac_mod": 5e-10, "per_mac_128": 6e-10}
 
 
 def _primes(facts, n_full: int) -> tuple[int, str | bool, bool]:
