@@ -1,6 +1,7 @@
 """Compiled NTT engine vs python-flint and vs the numpy engines; JIT costs reported apart.
 
-Run: python bench/compiled_bench.py [--quick | --division | --cold]  (markdown; ~3 minutes)
+Run: python bench/compiled_bench.py [--quick | --division | --cold | --small]  (markdown;
+~4 minutes)
 
 Ratios are polyconv / python-flint in the same process, best of several rounds (below 1:
 polyconv faster).  "multiply alone" times flint's product of ready nmod_poly objects against
@@ -89,6 +90,10 @@ def main() -> None:
     if "--division" in sys.argv:  # the division table alone
         division_table(np.random.default_rng(5))
         return
+    if "--small" in sys.argv:  # batch axis, tiny products, products over Z alone
+        jit.kernels()
+        small_tables(np.random.default_rng(7))
+        return
     first, warm = cold_costs()
     print(f"JIT: first compile {first:.2f} s, warm-cache load {warm:.2f} s (new processes)")
     product, base = fresh_process_product()
@@ -125,6 +130,7 @@ def main() -> None:
             engine = polyconv.plan(a, b).engine
             print(f"| 2^{lg} | {bits} | {t_pc / t_flint:.3f} | {engine} |", flush=True)
     batched_tables(rng)
+    small_tables(rng)
     division_table(rng)
 
 
@@ -199,6 +205,61 @@ def batched_tables(rng) -> None:
     t_rows = best(lambda: nb.multiply_rows_mod_prime(a, b, P))
     print(f"one 3 x 2 product mod {P}: polyconv.convolve {t_pc * 1e6:.1f} us, "
           f"ntt_batch row call {t_rows * 1e6:.1f} us, flint end to end {t_flint * 1e6:.1f} us")
+
+
+def _flint_rows(a, b, m=None):
+    """flint's end-to-end product of each row pair (lists in, lists of ints out)."""
+    if m is None:
+        return [(fmpz_poly(x) * fmpz_poly(y)).coeffs() for x, y in zip(a, b, strict=True)]
+    return [(nmod_poly(x, m) * nmod_poly(y, m)).coeffs() for x, y in zip(a, b, strict=True)]
+
+
+def small_tables(rng) -> None:
+    """The batch axis of convolve (2-D int64 operands, one product per row) and single tiny
+    products, end to end against flint from lists; product over Z of 1,000 linear factors."""
+    print("\n| convolve of rows x n (2-D, batch axis) | setting | polyconv us | flint us | ratio "
+          "| engine |")
+    print("|---|---|---|---|---|---|")
+    for rows, n in ((1000, 4), (200, 16), (50, 64), (10, 256)):
+        for setting, m, top in (("16-bit", None, 2**15), ("mod 998244353", P, None),
+                                ("40-bit", None, 2**39)):
+            lo = 0 if m else -top
+            a = rng.integers(lo, m or top, (rows, n))
+            b = rng.integers(lo, m or top, (rows, n))
+            la, lb = a.tolist(), b.tolist()
+            t_pc = best(lambda a=a, b=b, m=m: polyconv.convolve(a, b, modulus=m))
+            t_fl = best(lambda la=la, lb=lb, m=m: _flint_rows(la, lb, m))
+            engine = polyconv.plan(a, b, modulus=m).engine
+            print(f"| {rows} x {n} | {setting} | {t_pc * 1e6:.1f} | {t_fl * 1e6:.1f} | "
+                  f"{t_pc / t_fl:.2f} | {engine} |", flush=True)
+    print("\n| one product n1 x n2 (1-D) | setting | polyconv us | flint us | ratio |")
+    print("|---|---|---|---|---|")
+    for n1, n2 in ((3, 2), (8, 8), (32, 32), (64, 64)):
+        for setting, m, top in (("16-bit", None, 2**15), ("63-bit", None, 2**62),
+                                ("mod 998244353", P, None), ("mod 2^61-1", 2**61 - 1, None)):
+            lo = 0 if m else -top
+            a, b = rng.integers(lo, m or top, n1), rng.integers(lo, m or top, n2)
+            la, lb = a.tolist(), b.tolist()
+            t_pc = best(lambda a=a, b=b, m=m: polyconv.convolve(a, b, modulus=m))
+            if m is None or m < 2**62:
+                t_fl = best(lambda la=la, lb=lb, m=m: _flint_rows([la], [lb], m))
+            print(f"| {n1} x {n2} | {setting} | {t_pc * 1e6:.1f} | {t_fl * 1e6:.1f} | "
+                  f"{t_pc / t_fl:.2f} |", flush=True)
+    for bits in (8, 64):
+        top = 2**(bits - 1)
+        factors = [rng.integers(1, top, 2) * rng.choice([-1, 1], 2) for _ in range(1000)]
+
+        def flint_tree(factors=factors):
+            polys = [fmpz_poly(f.tolist()) for f in factors]
+            while len(polys) > 1:
+                nxt = [polys[i] * polys[i + 1] for i in range(0, len(polys) - 1, 2)]
+                polys = nxt + ([polys[-1]] if len(polys) % 2 else [])
+            return polys[0].coeffs()
+
+        t_fl = best(flint_tree, budget=1.0)
+        t_pc = best(lambda factors=factors: polyconv.product(factors), budget=1.0)
+        print(f"\nproduct over Z of 1,000 linear {bits}-bit factors: polyconv "
+              f"{t_pc * 1e3:.1f} ms, flint {t_fl * 1e3:.1f} ms ({t_pc / t_fl:.2f}x)")
 
 
 if __name__ == "__main__":

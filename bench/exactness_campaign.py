@@ -9,7 +9,8 @@ uint64 / object arrays, or plain lists of Python ints) and a modulus class (none
 primes, odd moduli between 2^31 and 2^52, powers of two, 2^62 - 57, huge primes, even
 composites); it forces every exact engine ("direct-exact", "fft-exact", "limbs", "kronecker",
 "ntt", and the compiled "ntt-compiled" in all its modes: one NTT prime, exact from one or several
-primes with Garner CRT, any modulus reduced inside or after the recombination; an engine that
+primes with Garner CRT, any modulus reduced inside or after the recombination; "ntt-batch", the
+batched engine, on its one-row path; an engine that
 refuses with a ValueError is skipped) and "auto", and compares every
 coefficient with python-flint's fmpz_poly product (reduced by the modulus).  One draw in fifty
 also checks ``polyconv.product`` and ``polyconv.power``.  Stops at the first mismatch with a
@@ -36,7 +37,8 @@ sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
 
 import polyconv  # noqa: E402
 
-ENGINES = ("auto", "direct-exact", "fft-exact", "limbs", "kronecker", "ntt", "ntt-compiled")
+ENGINES = ("auto", "direct-exact", "fft-exact", "limbs", "kronecker", "ntt", "ntt-compiled",
+           "ntt-batch")
 MODULUS_CLASSES = {
     "none": [None],
     "small": [2, 3, 7, 97, 65537, 2**20 + 7],
@@ -123,7 +125,7 @@ def jit_module():
     import importlib
 
     for name in ("polyconv.jit", "polyconv.numerics.jit", "polyconv.tuning.jit",
-                 "polyconv.engines.jit", "polyconv.pipeline.jit"):
+                 "polyconv.engines.jit", "polyconv.engines.jit_state", "polyconv.pipeline.jit"):
         try:
             return importlib.import_module(name)
         except ImportError:

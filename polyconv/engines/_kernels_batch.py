@@ -12,6 +12,9 @@ whose transform kernels the NTT rows reuse.  Every kernel has one explicit signa
   ``n1 n2`` multiply-adds are cheaper than three transforms.  Residues are below ``p < 2^30``,
   so a product is below ``2^60`` and 15 of them can be summed in a uint64 before one reduction
   modulo ``p`` (common practice, no source).
+* :func:`rows_schoolbook_128`: the same in 128-bit two's complement, for products up to
+  ``2^127`` (63-bit operands over a few terms, 40-bit ones over many), whose two words become
+  Python ints faster than Garner rows do.
 * :func:`primes_ntt`: one product modulo several primes in one call (the multi-prime engines'
   short products, where a Python call per prime costs as much as its transforms).
 * :func:`rows_schoolbook_wrap`: exact integer products by schoolbook summation in wrapping
@@ -112,3 +115,70 @@ def primes_ntt(a, b, primes, tw, twq, itw, itwq, p_neg_inv, f, fq, out):
     for i in range(primes.shape[0]):
         product_mod_prime(a, b, primes[i], tw[i], twq[i], itw[i], itwq[i], p_neg_inv[i], f[i],
                           fq[i], fa, fb, out[i])
+
+
+@njit("void(int64[::1], int64[::1], uint32[:, ::1], uint64[::1], int64[::1])", cache=CACHE)
+def one_ntt_mod(a, b, tab, consts, out):
+    """``out = (a * b mod p)[:len(out)]``: :func:`product_mod_prime` with its arguments packed
+    (``tab`` rows: twiddles, their Shoup quotients, inverse twiddles, theirs, ``tab.shape[1]``
+    points; ``consts``: ``p``, ``-p^-1 mod 2^32``, ``f``, ``f``'s quotient), so that a short
+    product pays the dispatch of five arguments instead of thirteen."""
+    n = tab.shape[1]
+    fa = np.empty(n, dtype=np.uint32)
+    fb = np.empty(n, dtype=np.uint32)
+    product_mod_prime(a, b, consts[0], tab[0], tab[1], tab[2], tab[3], consts[1], consts[2],
+                      consts[3], fa, fb, out)
+
+
+_LOW32 = np.uint64(0xFFFFFFFF)
+
+
+@njit(inline="always")  # no signature: inlined into the kernel below only
+def _product_128(x, y):
+    """``x y`` for int64 ``x``, ``y`` as a 128-bit two's-complement pair ``(high, low)`` of
+    uint64 words: the magnitudes' product from four 32 x 32-bit products (schoolbook on half
+    words), negated when the signs differ (common practice, no source)."""
+    negative = (x < 0) != (y < 0)
+    ux = np.uint64(-x) if x < 0 else np.uint64(x)  # -(-2^63) wraps to -2^63: 2^63 as uint64
+    uy = np.uint64(-y) if y < 0 else np.uint64(y)
+    a0 = ux & _LOW32
+    a1 = ux >> np.uint64(32)
+    b0 = uy & _LOW32
+    b1 = uy >> np.uint64(32)
+    p00 = a0 * b0
+    p01 = a0 * b1
+    p10 = a1 * b0
+    mid = (p00 >> np.uint64(32)) + (p01 & _LOW32) + (p10 & _LOW32)
+    low = (p00 & _LOW32) | (mid << np.uint64(32))
+    high = a1 * b1 + (p01 >> np.uint64(32)) + (p10 >> np.uint64(32)) + (mid >> np.uint64(32))
+    if negative:
+        low = ~low + np.uint64(1)
+        high = ~high + (np.uint64(1) if low == 0 else np.uint64(0))
+    return high, low
+
+
+@njit("void(int64[:, ::1], int64[:, ::1], uint64[:, ::1], uint64[:, ::1])", cache=CACHE)
+def rows_schoolbook_128(a, b, high, low):
+    """``(high[r] 2^64 + low[r])`` = ``(a[r] * b[r])[:low.shape[1]]`` in 128-bit two's
+    complement (sums modulo ``2^128``: exact for every coefficient below ``2^127`` in absolute
+    value, as :func:`rows_schoolbook_wrap` is below ``2^63``)."""
+    n1 = a.shape[1]
+    n2 = b.shape[1]
+    count = low.shape[1]
+    for r in range(a.shape[0]):
+        hr = high[r]
+        lr = low[r]
+        hr[:] = 0
+        lr[:] = 0
+        ar = a[r]
+        br = b[r]
+        for i in range(min(n1, count)):
+            x = ar[i]
+            if x == 0:
+                continue
+            top = min(n2, count - i)
+            for j in range(top):
+                ph, pl = _product_128(x, br[j])
+                s = lr[i + j] + pl
+                hr[i + j] += ph + (np.uint64(1) if s < pl else np.uint64(0))
+                lr[i + j] = s

@@ -12,15 +12,15 @@ against many) and compute all ``r`` products in one kernel call of
   (1971) 365-374) with shared buffers and twiddle tables;
 * :func:`multiply_rows_exact`: exact integer products, from an a-priori bound ``B`` of
   ``sum_i |a_i| |b_{k-i}|`` (for example ``min(n1, n2) max|a| max|b|`` or ``||a||_2 ||b||_2``):
-  schoolbook in wrapping 64-bit arithmetic when ``B < 2^63`` and the rows are short, else products
-  modulo enough NTT primes that ``P > 2B`` and Garner's CRT (Knuth, TAOCP vol. 2, section 4.3.2)
-  to int64 when ``B < 2^63``, else to Python ints;
+  schoolbook in wrapping 64-bit (``B < 2^63``) or 128-bit (``B < 2^127``) arithmetic for short
+  rows, else products modulo enough NTT primes that ``P > 2B`` and Garner's CRT (Knuth, TAOCP
+  vol. 2, section 4.3.2) to int64 when ``B < 2^63``, else to Python ints;
 * :func:`multiply_rows_mod`: modulo any ``m`` (operands in ``[0, m)``) by the exact non-negative
   products (``P > min(n1, n2) (m - 1)^2``) reduced during the recombination;
 * :func:`product_mod`: the product of many polynomials modulo ``m`` by a balanced product tree
   whose every level is one batched call;
-* :func:`small_product`: one short product without any planning, for callers that have
-  validated their operands (about 5 us against 30-40 us through the planner; measured).
+* :func:`small_product`: one short product without planning, for callers that have validated
+  their operands (about 5 us against 30-40 us through the planner; measured).
 
 This module imports no numba: the kernels come through :func:`polyconv.engines.jit_state.kernels`,
 which raises :class:`polyconv.engines.jit_state.JitUnavailableError` when they cannot run here.
@@ -39,6 +39,8 @@ from . import jit_state as jit
 from .ntt_compiled import (
     KERNEL_MODULUS_LIMIT,
     _garner_constants,
+    convolve_exact,
+    convolve_mod,
     is_ntt_prime,
     max_length,
     primes_for,
@@ -54,7 +56,9 @@ SCHOOLBOOK_WORK = 112 * 112
 #: The same for exact int64 rows in wrapping arithmetic, against two-prime NTT + Garner (64 rows,
 #: us per row): n = 128 3.5 / 16.2, 256 13.5 / 34.1, 384 29.3 / 62.6.
 SCHOOLBOOK_WORK_WRAP = 512 * 512
-
+#: The same below ``2^127`` in 128-bit sums, against primes + Garner to Python ints (us per row):
+#: 16 x 128 40 / 108, 8 x 256 108 / 185, 4 x 512 327 / 371, 2 x 1024 1096 / 787.
+SCHOOLBOOK_WORK_128 = 512 * 512
 
 #: :func:`small_product` takes products of at most this many multiply-adds.
 SMALL_PRODUCT_WORK = 128 * 128
@@ -135,8 +139,7 @@ def _int64_rows(x: np.ndarray, rows: int) -> np.ndarray:
 
 
 def _count(n1: int, n2: int, keep: int | None) -> int:
-    full = n1 + n2 - 1
-    return full if keep is None else max(0, min(keep, full))
+    return n1 + n2 - 1 if keep is None else max(0, min(keep, n1 + n2 - 1))
 
 
 def _output(rows: int, count: int, what: str) -> np.ndarray:
@@ -264,11 +267,31 @@ def multiply_rows_exact(a_rows: np.ndarray, b_rows: np.ndarray, bound: int,
         _kernels().rows_schoolbook_wrap(a.view(np.uint64), b.view(np.uint64),
                                         out.view(np.uint64))
         return out if as_int64 else out.astype(object)
+    if (bound < 2**127 and n1 * n2 <= SCHOOLBOOK_WORK_128 and a.dtype != object
+            and b.dtype != object):
+        return _rows_128(a, b, count, as_int64)
+    if rows == 1 and a.dtype != object and b.dtype != object:  # one product: all primes in
+        return convolve_exact(a[0], b[0], bound, keep, as_int64)[None]  # one kernel call
     primes = primes_for(bound, transform_length(n1, n2))
     budget.check_allocation(8.0 * (len(primes) + 1) * rows * count, "batched exact products")
     res = _residues_by_prime(a, b, primes, count)
     flat = recombine(res.reshape(len(primes), rows * count), primes, as_int64)
     return flat.reshape(rows, count)
+
+
+def _rows_128(a: np.ndarray, b: np.ndarray, count: int, as_int64: bool) -> np.ndarray:
+    """Exact int64 row products below ``2^127`` by 128-bit sums; Python ints from two words."""
+    rows = a.shape[0]
+    budget.check_allocation(16.0 * rows * count, "batched exact products")
+    high = np.empty((rows, count), dtype=np.uint64)
+    low = np.empty((rows, count), dtype=np.uint64)
+    _kernels().rows_schoolbook_128(a, b, high, low)
+    if as_int64:
+        return low.view(np.int64)
+    out = np.empty(rows * count, dtype=object)
+    out[:] = [(h << 64) + v for h, v in zip(high.view(np.int64).ravel().tolist(),
+                                            low.ravel().tolist(), strict=True)]
+    return out.reshape(rows, count)
 
 
 def multiply_rows_mod(a_rows: np.ndarray, b_rows: np.ndarray, m: int,
@@ -289,6 +312,8 @@ def multiply_rows_mod(a_rows: np.ndarray, b_rows: np.ndarray, m: int,
     if is_ntt_prime(m) and transform_length(n1, n2) <= max_length(m):
         return multiply_rows_mod_prime(a, b, m, keep)
     rows, count = a.shape[0], _count(n1, n2, keep)
+    if rows == 1 and a.dtype != object and b.dtype != object:
+        return convolve_mod(a[0], b[0], m, keep)[None]
     bound = min(n1, n2) * (m - 1) ** 2
     primes = primes_for(bound, transform_length(n1, n2), signed=False)
     budget.check_allocation(8.0 * (len(primes) + 1) * rows * count, "batched products mod m")

@@ -12,6 +12,7 @@ Cost (constants in the cost table's ``exact.ntt_batch`` section, else :data:`DEF
 primes, ``C`` output coefficients, ``N`` the transform length, ``r`` rows)::
 
     t = jit + c0 + r (c_wrap n1 n2)                          exact, B < 2^63, n1 n2 <= 512^2
+    t = jit + c0 + r (c_128 n1 n2 + c_obj C)                 exact, B < 2^127, n1 n2 <= 512^2
     t = jit + c0 + r k (c_mod n1 n2  or  c_nlogn N lg N + c_pt N) + r c_digit k^2 C
         + r c_obj C [Python ints out]                        otherwise
 
@@ -31,6 +32,7 @@ from . import jit_state
 from ._common import INTEGER_KINDS, Engine, Job, Option
 from .ntt_batch import (
     SCHOOLBOOK_WORK,
+    SCHOOLBOOK_WORK_128,
     SCHOOLBOOK_WORK_WRAP,
     multiply_rows_exact,
     multiply_rows_mod,
@@ -45,18 +47,20 @@ NAME = "ntt-batch"
 MAX_ROW_TRANSFORM = 2**12
 
 #: Defaults when the cost table has no ``ntt_batch`` section (measured on the development
-#: machine with bench/compiled_bench.py --batch-axis; see bench/RESULTS.md).
+#: machine: bench/RESULTS.md, "Batched short products"; `polyconv calibrate` fits them).
 DEFAULTS = {"overhead": 6e-6, "per_row": 1.5e-7, "per_mac_wrap": 2.5e-10,
-            "per_mac_mod": 5e-10}
+            "per_mac_mod": 5e-10, "per_mac_128": 6e-10}
 
 
-def _primes(facts, n_full: int) -> tuple[int, bool, bool]:
-    """``(k, schoolbook wrap, objects out)`` for the job's rows."""
+def _primes(facts, n_full: int) -> tuple[int, str | bool, bool]:
+    """``(k, schoolbook ("wrap": 64-bit, "128": 128-bit, False: none), objects out)``."""
     m = facts.modulus
     if m is None:
         bound = product_bound(facts)
         if bound < 2**63 and facts.n1 * facts.n2 <= SCHOOLBOOK_WORK_WRAP:
-            return 0, True, False
+            return 0, "wrap", False
+        if bound < 2**127 and facts.n1 * facts.n2 <= SCHOOLBOOK_WORK_128:
+            return 0, "128", True
         return prime_count(bound, n_full), False, not magnitude_fits_int64(bound)
     if is_ntt_prime(m) and n_full <= max_length(m):
         return 1, False, False
@@ -70,8 +74,6 @@ def option(job: Job) -> Option | str:
     if state == "unavailable":
         return f"compiled engines unavailable: {jit_state.reason()}"
     facts = job.facts
-    if job.rows == 1:
-        return "a single row (the one-product engines serve it)"
     if not magnitude_fits_int64(max(facts.max_a, facts.max_b)):
         return "operands beyond int64 (the batched kernels read int64 rows)"
     if job.n_full > MAX_ROW_TRANSFORM:
@@ -86,9 +88,12 @@ def option(job: Job) -> Option | str:
     j = {**JIT_DEFAULTS, **exact.get("jit", {})}
     charge = {"compiled": 0.0, "cached": j["load_seconds"]}.get(state, j["compile_seconds"])
     n1, n2, n = job.n1, job.n2, job.n_full
-    if wrap:
+    if wrap == "wrap":
         per_row = c["per_mac_wrap"] * n1 * n2
         what = "schoolbook sums in wrapping 64-bit arithmetic"
+    elif wrap:
+        per_row = c["per_mac_128"] * n1 * n2 + t["per_object_out"] * job.out_len
+        what = "schoolbook sums in 128-bit arithmetic, Python ints out"
     else:
         if n1 * n2 <= SCHOOLBOOK_WORK:
             per_prime, how = c["per_mac_mod"] * n1 * n2, "schoolbook"
@@ -98,7 +103,10 @@ def option(job: Job) -> Option | str:
         if objects_out:
             per_row += t["per_object_out"] * job.out_len
         what = f"{how} products modulo {'one prime' if k == 1 else f'{k} primes, Garner CRT'}"
-    seconds = charge + c["overhead"] + job.rows * (c["per_row"] + per_row)
+    # one row of transforms runs as ntt-compiled's one product would (it delegates), with
+    # that engine's overhead: the one-product engine keeps such jobs (measured 0-20% faster)
+    c0 = c["overhead"] if wrap or job.rows > 1 else max(c["overhead"], t["overhead"])
+    seconds = charge + c0 + job.rows * (c["per_row"] + per_row)
     note = f"{job.rows} row(s) in one compiled call: {what}; {jit_state.reason()}"
     if charge:
         note += f" ({charge:.2g} s charged)"

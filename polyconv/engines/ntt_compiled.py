@@ -208,7 +208,22 @@ def convolve_mod_prime(a: np.ndarray, b: np.ndarray, p: int,
     count = _count(a, b, keep)
     ra = _as_int64(a)
     rb = ra if b is a else _as_int64(b)
+    n = transform_length(a.shape[-1], b.shape[-1])
+    if n <= STACKED_TABLES_LENGTH:  # short: the packed-argument kernel (dispatch is the cost)
+        out = np.empty(count, dtype=np.int64)
+        jit_state.kernels("_kernels_batch").one_ntt_mod(ra, rb, *_packed_tables(p, n), out)
+        return out
     return multiply_mod_primes(ra, rb, (p,), count)[0]
+
+
+@lru_cache(maxsize=128)
+def _packed_tables(p: int, n: int) -> tuple[np.ndarray, np.ndarray]:
+    """``(4, n)`` tables and ``(p, -p^-1 mod 2^32, f, f')`` as
+    :func:`polyconv.engines._kernels_batch.one_ntt_mod` takes them."""
+    tw, twq, itw, itwq, neg_inv = tables(p, n)
+    f, fq = _scale_factor(p, n)
+    tab = np.ascontiguousarray(np.stack([t[:n] for t in (tw, twq, itw, itwq)]))
+    return tab, np.array([p, neg_inv, f, fq], dtype=np.uint64)
 
 
 def _count(a: np.ndarray, b: np.ndarray, keep: int | None) -> int:

@@ -1,10 +1,11 @@
 """Running a plan: one engine on prepared operands, the check a certificate calls for, fallback.
 
 Float plans run their engine on all rows at once, with the non-finite policy of
-:mod:`polyconv.pipeline.shaping`.  Exact plans run their engine row by row
-(:func:`run_exact`), perform the random-evaluation check a ``"check"`` certificate calls for
-(recomputing with the plan's fallback engine when it fails) and return int64 or Python ints as the
-plan says.  :func:`convolve_prepared` is the whole pipeline for callers inside polyconv.
+:mod:`polyconv.pipeline.shaping`.  Exact plans run a batched engine (``Engine.batched``, e.g.
+"ntt-batch") once on the stacked rows and any other engine row by row (:func:`run_exact`),
+perform the random-evaluation check a ``"check"`` certificate calls for (recomputing with the
+plan's fallback engine when it fails) and return int64 or Python ints as the plan says.
+:func:`convolve_prepared` is the whole pipeline for callers inside polyconv.
 """
 
 from __future__ import annotations

@@ -7,6 +7,10 @@ the engine itself:
 * ``per_digit``: Garner to int64 over ``k`` primes, per ``k^2`` and output coefficient;
 * ``per_object_out``: Garner to Python ints beyond the int64 route, per coefficient;
 * ``per_object_in``: residues of Python-int operands, per coefficient;
+* ``ntt_batch`` (:mod:`polyconv.engines.ntt_batch_plan`): ``overhead`` and ``per_row`` of one
+  batched call, ``per_mac_wrap`` (exact int64 schoolbook rows) and ``per_mac_mod`` (schoolbook
+  rows modulo a prime), fitted to ``c0 + r (c_row + c_mac n^2)`` over rows and lengths, and
+  ``per_mac_128`` (128-bit sums) from long rows less their Python-int outputs;
 * ``jit``: the time this process took to make the kernels ready (compiling them ahead of time if
   the cache was cold); a cold compile is recorded as ``compile_seconds``, a warm load as
   ``load_seconds``.
@@ -19,6 +23,7 @@ from collections.abc import Callable
 import numpy as np
 
 from ..engines import jit_state
+from ..engines import ntt_batch as nb
 from ..engines import ntt_compiled as nc
 
 
@@ -63,4 +68,34 @@ def measure_compiled(quick: bool, best_time: Callable, fit: Callable,
     primes = nc.primes_for(2**300, 2 * count)
     t = best_time(lambda: nc._residue_rows(wide, primes), budget)
     out["per_object_in"] = t / count
-    return {"ntt_compiled": out, "jit": timing}
+    batch = _measure_batch(rng, budget, best_time, fit, out["per_object_out"])
+    return {"ntt_compiled": out, "ntt_batch": batch, "jit": timing}
+
+
+def _measure_batch(rng, budget: float, best_time: Callable, fit: Callable,
+                   per_object_out: float) -> dict:
+    """``exact.ntt_batch``: batched schoolbook rows, exact int64 (64- and 128-bit sums) and
+    modulo a prime."""
+    p = nc.PRIMES[1][0]
+    out = {}
+    for key, top in (("per_mac_wrap", 2**15), ("per_mac_mod", p), ("per_mac_128", 2**50)):
+        rows, times = [], []
+        sizes = ((1, 4), (64, 4), (1024, 4), (16, 32), (256, 32), (8, 96), (64, 96))
+        for r, n in sizes if key != "per_mac_128" else ((1, 128), (4, 128), (2, 256), (8, 256)):
+            a = rng.integers(0, top, (r, n))
+            if key != "per_mac_mod":  # bound below 2^63 (wrapped) or 2^127 (128-bit sums)
+                def run(a=a, bound=n * top * top):
+                    return nb.multiply_rows_exact(a, a, bound)
+            else:
+                def run(a=a):
+                    return nb.multiply_rows_mod_prime(a, a, p)
+            t = best_time(run, budget)
+            if key == "per_mac_128":  # the Python ints out are priced by per_object_out
+                t = max(t - r * (2 * n - 1) * per_object_out, 0.1 * t)
+            times.append(t)
+            rows.append([1.0, float(r), float(r * n * n)])
+        c0, c_row, c_mac = fit(rows, times)
+        out[key] = c_mac
+        out.setdefault("overhead", c0)
+        out.setdefault("per_row", c_row)
+    return out

@@ -54,7 +54,8 @@ OPTIONAL_KEYS = frozenset({("exact", "direct_float"), ("exact", "limbs_mod_wide"
                            ("version",),
                            # the compiled engine's sections: absent where the kernels cannot run
                            # (numba missing, POLYCONV_JIT=0); readers fall back to the defaults
-                           ("exact", "jit"), ("exact", "ntt_compiled")})
+                           ("exact", "jit"), ("exact", "ntt_compiled"),
+                           ("exact", "ntt_batch")})
 #: Tables keyed by size (log2 of a length or bit count): any keys, at least one numeric entry.
 _SIZE_TABLES = frozenset({"rate_by_log2n", "mul_rate_by_log2bits"})
 

@@ -224,3 +224,22 @@ def test_small_product_equals_flint_and_declines_what_it_cannot_do():
     assert nb.small_product(negative, ry, P) is None  # residues are checked
     assert nb.small_product(np.arange(200), np.arange(200)) is None  # too long for this path
     assert nb.small_product(rx.astype(np.float64), ry) is None  # int64 only
+
+
+@pytest.mark.parametrize("rows,n1,n2,top", [(50, 4, 4, 2**62), (20, 7, 5, 2**61),
+                                            (3, 32, 32, 2**58), (4, 1, 1, 2**63),
+                                            (2, 300, 200, 2**55)])
+def test_rows_exact_128_bit_sums_equal_flint(rows, n1, n2, top):
+    """Products between 2^63 and 2^127 in 128-bit schoolbook sums (the extreme int64 -2^63
+    included), each row against flint."""
+    rng = np.random.default_rng(rows + n1 + n2)
+    a = rng.integers(-top, top - 1, (rows, n1), endpoint=True)
+    b = rng.integers(-top, top - 1, (rows, n2), endpoint=True)
+    if top == 2**63:
+        a[0, 0], b[0, 0], a[1, 0], b[1, 0] = -2**63, -2**63, -2**63, 2**63 - 1
+    bound = min(n1, n2) * top * top
+    assert 2**63 <= bound < 2**127 and n1 * n2 <= nb.SCHOOLBOOK_WORK_128
+    got = nb.multiply_rows_exact(a, b, bound)
+    assert got.dtype == object
+    for r in range(rows):
+        assert [int(v) for v in got[r]] == _reference(a[r], b[r])  # python-flint fmpz_poly

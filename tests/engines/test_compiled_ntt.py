@@ -178,3 +178,15 @@ def test_primes_for_bound():
         assert math.prod(primes[:-1]) <= 2 ** (bits + 1)
     with pytest.raises(ValueError, match="more NTT primes"):
         nc.primes_for(2**200, 2**25)
+
+
+def test_short_multi_prime_square_and_one_point(kernels):
+    """Products up to 2^12 points run all primes in one kernel call (stacked tables), a square
+    with one forward transform per prime; single coefficients use one-point transforms."""
+    rng = np.random.default_rng(8)
+    a = rng.integers(-2**62, 2**62, 300)
+    got = nc.convolve_exact(a, a, 300 * 2**124)
+    assert [int(v) for v in got] == _fmpz(a, a)  # python-flint fmpz_poly
+    one = np.array([-(2**62) + 1])
+    assert [int(v) for v in nc.convolve_exact(one, one, 2**124)] == _fmpz(one, one)
+    assert nc.convolve_mod_prime(np.array([P - 1]), np.array([P - 1]), P).tolist() == [1]

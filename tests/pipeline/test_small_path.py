@@ -37,6 +37,8 @@ CASES = [  # a, b, modulus
     (list(range(-20, 20)), list(range(30, 0, -1)), None),  # numpy.convolve int64 route
     (list(range(40)), list(range(50)), 2**31 - 1),
     ([0, 0, 0], [0], None),
+    ([0] * 30, [2**70, 1] * 15, None),                  # all-zero side, the other beyond int64
+    ([0] * 30, [2**70, 1] * 15, 2**80),
 ]
 
 
