@@ -71,8 +71,9 @@ def convolve(a, b, *, mode: str = "full", method: str = "auto", modulus: int | N
         the central ``max(n1, n2)``, "valid" the ``max - min + 1`` that need no zero padding.
     method : str
         "auto" (the cost model picks), or an engine: "direct", "fft", "overlap-add" for floats;
-        "direct-exact", "fft-exact", "limbs", "kronecker", "ntt" for integers (each refuses, with
-        a ValueError saying why, where it cannot give an exact result).  :func:`plan` tells what
+        "direct-exact", "fft-exact", "limbs", "kronecker", "ntt", "ntt-compiled" (numba kernels),
+        "ntt-batch" (many short rows in one compiled call) for integers (each refuses, with a
+        ValueError saying why, where it cannot give an exact result).  :func:`plan` tells what
         "auto" would do.
     modulus : int, optional
         Integer operands only: return the product's coefficients reduced to ``[0, modulus)``.
