@@ -8,18 +8,26 @@ Every result is compared with ``numpy.convolve`` (exact integers: equal; floats:
 
 Usage::
 
-    nice -n 10 python bench/block_overhead.py                 # 10^4 blocks of 256
-    nice -n 10 python bench/block_overhead.py --blocks 1000 --dask-blocks 200
+    PYTHONPATH=. nice -n 10 python bench/block_overhead.py            # 10^4 blocks of 256
+    PYTHONPATH=. nice -n 10 python bench/block_overhead.py --taps 64 --dask-blocks 300
+
+(``PYTHONPATH`` picks the checkout measured; without it the script's own checkout is used.)
 """
 
 from __future__ import annotations
 
 import argparse
 import os
+import sys
 import tempfile
 import time
 
 import numpy as np
+
+try:
+    import polyconv  # noqa: F401
+except ImportError:
+    sys.path.insert(0, os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 
 
 def _best(fn, repeats: int) -> tuple[float, object]:

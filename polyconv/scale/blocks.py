@@ -22,6 +22,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..numerics.limits import INT64_LIMIT
 from ..pipeline.choose import choose
 from ..pipeline.execute import run
 from ..pipeline.facts import bound_facts, normalise_integers
@@ -29,9 +30,17 @@ from ..pipeline.inputs import combine_kinds, kind_of
 from ..pipeline.plan import Plan
 from ..pipeline.prepare import _float_operand, check_budget
 from ..pipeline.shaping import shape_result
+from ..pipeline.small import TINY_WORK
 
 _EXACT = ("integer", "bigint")
 _F64 = np.dtype(np.float64)
+_I64 = np.dtype(np.int64)
+
+
+def _rounded(v: int) -> int:
+    """``2^bits(v) - 1``: a magnitude as :func:`~polyconv.pipeline.facts.integer_facts`
+    rounds it."""
+    return (1 << v.bit_length()) - 1
 
 
 @dataclass(frozen=True, slots=True)
@@ -113,8 +122,30 @@ class BlockProducts:
         pipeline's floating point product otherwise."""
         a = x if isinstance(x, Operand) else self.operand(x, 0)
         b = y if isinstance(y, Operand) else self.operand(y, 1)
+        if self.exact and a.shape[0] * b.shape[0] <= TINY_WORK:
+            out = self._tiny(a, b)
+            if out is not None:
+                return out
         the_plan = self.plan_for(a, b)
         return shape_result(run(the_plan, a.array, b.array), the_plan, -1, None)
+
+    def _tiny(self, a: Operand, b: Operand) -> np.ndarray | None:
+        """The short path of :mod:`polyconv.pipeline.small` for tiny int64 blocks, with the
+        magnitudes already measured: ``numpy.convolve`` in int64, exact when
+        ``min(n1, n2) max|a| max|b| < 2^63`` (no partial sum leaves int64; common practice, no
+        source), in that module's output dtype; None when it does not apply."""
+        x, y = a.array, b.array
+        if x.dtype != _I64 or y.dtype != _I64 or (
+                min(x.shape[0], y.shape[0]) * a.max_abs * b.max_abs >= INT64_LIMIT):
+            return None
+        out = np.convolve(x, y)
+        m = self.modulus
+        if m is None:  # int64 when the rounded bound fits, as IntegerFacts.bound decides
+            bound = min(x.shape[0], y.shape[0]) * _rounded(a.max_abs) * _rounded(b.max_abs)
+            return out if bound < INT64_LIMIT else out.astype(object)
+        if m < INT64_LIMIT:
+            return out % m
+        return out if m == INT64_LIMIT else out.astype(object)  # values < 2^63: residues
 
     def plan_for(self, a: Operand, b: Operand) -> Plan:
         """The plan of this block shape; exact: re-chosen when ``a`` or ``b`` exceeds the
