@@ -2,9 +2,11 @@
 
 Many small blocks (default 10^4 blocks of 256 samples, a 16-tap kernel) through
 ``convolve_chunks``, ``convolve_file`` and ``convolve_dask`` (fewer blocks: dask's own per-task
-cost dominates), against ``numpy.convolve`` of the concatenated signal measured in the same run.
-Every result is compared with ``numpy.convolve`` (exact integers: equal; floats: to rounding).
-"Per block" = (streaming seconds - numpy seconds) / blocks.
+cost dominates), against ``numpy.convolve`` of the concatenated signal, and against calling the
+whole pipeline (``polyconv.convolve``, arguments checked and product planned) on every block, as
+the block products did before they shared one plan per block shape; all measured in the same
+run, round-robin.  Every result is compared with ``numpy.convolve`` (exact integers: equal;
+floats: to rounding).  "Per block" = (seconds - numpy.convolve seconds) / blocks.
 
 Usage::
 
@@ -18,6 +20,7 @@ from __future__ import annotations
 
 import argparse
 import os
+import shutil
 import sys
 import tempfile
 import time
@@ -30,13 +33,15 @@ except ImportError:
     sys.path.insert(0, os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 
 
-def _best(fn, repeats: int) -> tuple[float, object]:
-    best, out = float("inf"), None
+def _rounds(fns: dict, repeats: int) -> dict:
+    """Best seconds of each function, run round-robin (machine noise hits all alike)."""
+    best = dict.fromkeys(fns, float("inf"))
     for _ in range(repeats):
-        t0 = time.perf_counter()
-        out = fn()
-        best = min(best, time.perf_counter() - t0)
-    return best, out
+        for name, fn in fns.items():
+            t0 = time.perf_counter()
+            fn()
+            best[name] = min(best[name], time.perf_counter() - t0)
+    return best
 
 
 def _check(got: np.ndarray, ref: np.ndarray, exact: bool) -> None:
@@ -56,51 +61,61 @@ def main() -> None:
     parser.add_argument("--repeats", type=int, default=3)
     args = parser.parse_args()
 
+    import polyconv
     from polyconv.scale import convolve_chunks, convolve_file
 
+    try:
+        import dask.array as da
+
+        from polyconv.scale import convolve_dask
+    except ImportError:  # pragma: no cover - optional
+        da = None
     rng = np.random.default_rng(15)
-    n, size = args.blocks * args.block, args.block
+    n, size, nd = args.blocks * args.block, args.block, args.dask_blocks * args.block
     rows = []
+    folder = tempfile.mkdtemp()
     for label, x, k in (
-            ("int64, |x| < 2^15", rng.integers(-2**15, 2**15, n), rng.integers(-2**15, 2**15,
-                                                                             args.taps)),
+            ("int64, |x| < 2^15", rng.integers(1 - 2**15, 2**15, n),
+             rng.integers(1 - 2**15, 2**15, args.taps)),
             ("float64", rng.standard_normal(n), rng.standard_normal(args.taps))):
         exact = x.dtype == np.int64
-        t_np, ref = _best(lambda x=x, k=k: np.convolve(x, k), args.repeats)
+        ref = np.convolve(x, k)
         chunks = [x[s: s + size] for s in range(0, n, size)]
-        t_chunks, got = _best(lambda chunks=chunks, k=k: np.concatenate(
-            list(convolve_chunks(chunks, k))), args.repeats)
-        _check(got, ref, exact)
-        rows.append((label, "convolve_chunks", args.blocks, t_chunks, t_np))
-        with tempfile.TemporaryDirectory() as folder:
-            src, dst = os.path.join(folder, "x.npy"), os.path.join(folder, "y.npy")
-            np.save(src, x)
-            t_file, _ = _best(lambda src=src, dst=dst, k=k: convolve_file(src, k, dst,
-                                                                          block=size),
-                              args.repeats)
-            _check(np.load(dst), ref, exact)
-        rows.append((label, "convolve_file", args.blocks, t_file, t_np))
-        try:
-            import dask.array as da
-        except ImportError:  # pragma: no cover - optional
-            continue
-        from polyconv.scale import convolve_dask
+        src, dst = os.path.join(folder, "x.npy"), os.path.join(folder, "y.npy")
+        np.save(src, x)
+        _check(np.concatenate(list(convolve_chunks(chunks, k))), ref, exact)
+        convolve_file(src, k, dst, block=size)
+        _check(np.load(dst), ref, exact)
+        fns = {
+            "numpy.convolve (whole signal)": lambda x=x, k=k: np.convolve(x, k),
+            "polyconv.convolve per block (no overlap-add)":
+                lambda chunks=chunks, k=k: [polyconv.convolve(c, k) for c in chunks],
+            "convolve_chunks": lambda chunks=chunks, k=k: list(convolve_chunks(chunks, k)),
+            "convolve_file": lambda src=src, dst=dst, k=k: convolve_file(src, k, dst,
+                                                                         block=size),
+        }
+        best = _rounds(fns, args.repeats)
+        for name, t in best.items():
+            rows.append((label, name, args.blocks, t, best["numpy.convolve (whole signal)"]))
+        if da is not None:
+            xs = x[:nd]
+            xd = da.from_array(xs, chunks=size)
+            _check(convolve_dask(xd, k).compute(scheduler="sync"), np.convolve(xs, k), exact)
+            best = _rounds({"numpy": lambda xs=xs, k=k: np.convolve(xs, k),
+                            "convolve_dask (sync)": lambda xd=xd, k=k: convolve_dask(
+                                xd, k).compute(scheduler="sync")}, args.repeats)
+            rows.append((label, "convolve_dask (sync scheduler)", args.dask_blocks,
+                         best["convolve_dask (sync)"], best["numpy"]))
+    shutil.rmtree(folder)
 
-        nd = args.dask_blocks * size
-        xd = da.from_array(x[:nd], chunks=size)
-        t_npd, refd = _best(lambda x=x, k=k: np.convolve(x[:nd], k), args.repeats)
-        t_dask, got = _best(lambda xd=xd, k=k: convolve_dask(xd, k).compute(scheduler="sync"),
-                            args.repeats)
-        _check(got, refd, exact)
-        rows.append((label, "convolve_dask (sync)", args.dask_blocks, t_dask, t_npd))
-
-    print(f"{args.block}-sample blocks, {args.taps}-tap kernel, best of {args.repeats}")
+    print(f"{args.block}-sample blocks, {args.taps}-tap kernel, best of {args.repeats} "
+          "round-robin rounds")
     print()
-    print("| data | path | blocks | seconds | numpy.convolve s | ratio | per block us |")
-    print("|---|---|---|---|---|---|---|")
+    print("| data | path | blocks | seconds | / numpy.convolve | per block us |")
+    print("|---|---|---|---|---|---|")
     for label, path, blocks, t, t_np in rows:
-        print(f"| {label} | {path} | {blocks} | {t:.3f} | {t_np:.4f} | {t / t_np:.0f}x | "
-              f"{(t - t_np) / blocks * 1e6:.1f} |")
+        per = "-" if path.startswith("numpy") else f"{(t - t_np) / blocks * 1e6:.1f}"
+        print(f"| {label} | {path} | {blocks} | {t:.3f} | {t / t_np:.1f}x | {per} |")
 
 
 if __name__ == "__main__":
