@@ -140,3 +140,17 @@ def test_object_block_in_float_product_too_large_for_float64_is_named():
         list(convolve_chunks([np.array([1.0]), np.array([2**1100, 1.0], dtype=object)],
                              [1.0, 2.0]))
     assert products(np.array([1, 2.5], dtype=object)).tolist() == [1.0, 4.5, 5.0]  # by hand
+
+
+def test_bound_facts_hold_for_every_operand_within_the_bounds():
+    from polyconv.pipeline.facts import bound_facts, integer_facts
+
+    facts = bound_facts(3000, 700, 2**15 - 1, 3, None)
+    # the rounded magnitudes are those integer_facts would plan for (2^bits - 1)
+    assert (facts.max_a, facts.max_b) == (2**15 - 1, 3)
+    for x in (np.full(3000, 2**15 - 1), RNG.integers(1 - 2**15, 2**15, 3000)):
+        y = RNG.integers(-3, 4, 700)
+        # ||x||_2 <= max|x| sqrt(n) (Cauchy-Schwarz) bounds every such operand's norm (numpy)
+        assert np.linalg.norm(x.astype(float)) <= facts.norm_a
+        assert np.linalg.norm(y.astype(float)) <= facts.norm_b
+        assert integer_facts(x, y, None).norm_a <= facts.norm_a
