@@ -44,6 +44,31 @@ def _rounds(fns: dict, repeats: int) -> dict:
     return best
 
 
+def _former_overlap_add(k: np.ndarray, exact: bool):
+    """Overlap-add whose block products call the whole pipeline, ``polyconv.convolve(block,
+    k)``, per block (arguments checked and the product planned every time): the block path
+    before branch house-blocks, run in this process for a same-run comparison."""
+    import inspect
+
+    import polyconv
+    from polyconv.scale.overlap import OverlapAdd, Summation, exact_summation
+
+    summation = exact_summation(0, None) if exact else Summation(exact=False)
+    if "products" not in inspect.signature(OverlapAdd).parameters:  # an older checkout
+        return lambda chunks: _push_all(OverlapAdd(k, summation, None), chunks)
+
+    def per_block(block):
+        return polyconv.convolve(block, k)
+
+    return lambda chunks: _push_all(OverlapAdd(per_block, summation), chunks)
+
+
+def _push_all(state, chunks: list) -> list:
+    out = [state.push(c) for c in chunks]
+    out.append(state.flush_carry())
+    return out
+
+
 def _check(got: np.ndarray, ref: np.ndarray, exact: bool) -> None:
     if exact:
         assert got.dtype == np.int64 and np.array_equal(got, ref), "exact result differs"
@@ -86,10 +111,14 @@ def main() -> None:
         _check(np.concatenate(list(convolve_chunks(chunks, k))), ref, exact)
         convolve_file(src, k, dst, block=size)
         _check(np.load(dst), ref, exact)
+        former = _former_overlap_add(k, exact)
+        _check(np.concatenate(former(chunks)), ref, exact)
         fns = {
             "numpy.convolve (whole signal)": lambda x=x, k=k: np.convolve(x, k),
             "polyconv.convolve per block (no overlap-add)":
                 lambda chunks=chunks, k=k: [polyconv.convolve(c, k) for c in chunks],
+            "overlap-add, polyconv.convolve per block (former path)":
+                lambda chunks=chunks, former=former: former(chunks),
             "convolve_chunks": lambda chunks=chunks, k=k: list(convolve_chunks(chunks, k)),
             "convolve_file": lambda src=src, dst=dst, k=k: convolve_file(src, k, dst,
                                                                          block=size),

@@ -89,12 +89,12 @@ def exact_product_dask(a, b, *, modulus: int | None = None, client=None,
         Bad arguments (floating point data, empty or non-1-D operands, bad ``pieces``).
     """
     dask_array_module()
-    (x, top_a), (y, top_b) = _check_exact_operand(a, "a"), _check_exact_operand(b, "b")
+    x, y = _check_exact_operand(a, "a"), _check_exact_operand(b, "b")
     n1, n2 = x.shape[0], y.shape[0]
     check_modulus(modulus)
     client = _resolve_client(client)
     blocks = _cut(n1, n2, _check_pieces(pieces, client))
-    bound = min(n1, n2) * top_a * top_b
+    bound = min(n1, n2) * _operand_max_abs(x, "a") * _operand_max_abs(y, "b")
     summation = exact_summation(bound, modulus)
     check_allocation((n1 + n2 - 1) * coefficient_bytes("integer", bound.bit_length() + 1),
                      f"exact_product_dask of a ({n1} coefficients) and b ({n2}), gathered in "
@@ -108,21 +108,30 @@ def exact_product_dask(a, b, *, modulus: int | None = None, client=None,
     return as_output_dtype(out, summation)
 
 
-def _check_exact_operand(x, name: str) -> tuple:
-    """The checked operand and ``max |x_i|`` (one eager pass over a dask array's blocks, which
-    also classifies the entries of an object dask array)."""
+def _check_exact_operand(x, name: str):
     if is_dask_array(x):
         check_dask_vector(x, name)
-        kind, top = dtype_kind(x.dtype, name), 0
-        if kind in (None, "integer"):  # object dtype: the entries decide (one pass serves both)
-            kind, top = dask_summary(x, name)
+        kind = dtype_kind(x.dtype, name) or "integer"  # object entries: _operand_max_abs
     else:
         x, kind = check_sequence(x, name)
-        top = max_abs(x) if kind in ("integer", "bigint") else 0
+    _require_integers(x, kind, name)
+    return x
+
+
+def _operand_max_abs(x, name: str) -> int:
+    """``max |x_i|``; for a dask array one eager pass over its blocks, which also classifies
+    the entries of an object dask array (Python floats are refused by name, not truncated)."""
+    if not is_dask_array(x):
+        return max_abs(x)
+    kind, top = dask_summary(x, name)
+    _require_integers(x, kind, name)
+    return top
+
+
+def _require_integers(x, kind: str, name: str) -> None:
     if kind not in ("integer", "bigint"):
         raise TypeError(f"{name} must hold integers (exact product); got dtype {x.dtype} "
                         f"({kind} numbers): for floating point use convolve_dask")
-    return x, top
 
 
 def _check_pieces(pieces, client) -> int:
