@@ -161,7 +161,8 @@ def _chunk_products(chunks: Iterator, k: np.ndarray, kernel_kind: str,
                          else Summation(exact=first_exact))
             state = OverlapAdd(KernelProducts(k, first_exact, modulus, "chunks"), summation)
         _check_same_kind(x, _is_exact(kind), first_exact, index)
-        block = state.products.operand(x, name=f"chunks[{index}]")
+        # (the name only matters in the refusals of object chunks)
+        block = state.products.operand(x, name=f"chunks[{index}]" if x.dtype == object else None)
         if first_exact and modulus is None and not state.summation.wide:
             max_x = max(max_x, block.max_abs)
             seen = state.consumed + x.shape[0]
