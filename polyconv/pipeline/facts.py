@@ -132,6 +132,24 @@ def integer_facts(x: np.ndarray, y: np.ndarray, modulus: int | None,
     return IntegerFacts(n1, n2, max_a, max_b, norm_a, norm_b, modulus, centred_a, centred_b)
 
 
+def bound_facts(n1: int, n2: int, max_a: int, max_b: int,
+                modulus: int | None) -> IntegerFacts:
+    """Facts that hold for *every* pair of operands of lengths ``n1``, ``n2`` whose magnitudes
+    are at most ``max_a`` and ``max_b``: a plan chosen from them is valid (its certificate
+    holds) for each such pair, so block products share one plan per block shape.
+
+    As :func:`integer_facts`, but the norms are only the bounds ``||x||_2 <= max|x| sqrt(n)``
+    (Cauchy-Schwarz; common practice, no source), never an operand's own norm, and the centred
+    norms are not computed (``inf``: the limb engine then assumes the worst).
+    """
+    max_a, max_b = _round_magnitude(max_a), _round_magnitude(max_b)
+    norm_a = norm_b = math.inf
+    if (n1 * n2 >= NORM_MIN_WORK and min(n1, n2) * max_a * max_b < FLOAT_EXACT_LIMIT
+            and max(max_a, max_b) < FLOAT_EXACT_LIMIT):  # the conditions of integer_facts
+        norm_a, norm_b = _crude_norm(max_a, n1), _crude_norm(max_b, n2)
+    return IntegerFacts(n1, n2, max_a, max_b, norm_a, norm_b, modulus)
+
+
 def _crude_norm(max_abs: int, n: int) -> float:
     """An upper bound of ``||x||_2`` from ``max|x| sqrt(n)``, rounded up like the real norms."""
     return _round_norm(math.nextafter(float(max_abs) * math.sqrt(n) * (1 + 2**-50), math.inf))

@@ -1,6 +1,7 @@
 """Convolution at scale: signals longer than memory, and products spread over processes.
 
-Modules: :mod:`.overlap` (overlap-add state and the exact-sum policy of block products),
+Modules: :mod:`.blocks` (block products: checked once, one plan per block shape),
+:mod:`.overlap` (overlap-add state and the exact-sum policy of block products),
 :mod:`.streaming` (:func:`convolve_chunks`, :func:`convolve_file`), :mod:`.npyio` (the ``.npy``
 block reader and the atomic ``.npy`` writer), :mod:`.dask` (:func:`convolve_dask`, lazy
 overlap-add), :mod:`.dask_exact` (:func:`exact_product_dask`, block products as tasks) and

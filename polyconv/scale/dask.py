@@ -3,8 +3,10 @@
 Optional: needs the ``dask`` extra (``dask[array]`` and ``distributed``); dask is imported only
 when :func:`convolve_dask` is called (:mod:`polyconv.scale.dask_common`).  The result is a dask
 array built by block-wise overlap-add (Oppenheim & Schafer, *Discrete-Time Signal Processing*,
-3rd ed., section 8.7); every block product is computed by :func:`polyconv.api.convolve` on a
-worker, so each task gets whichever engine the planner picks for its size.
+3rd ed., section 8.7); every block product is computed on a worker by the pipeline through
+:class:`polyconv.scale.blocks.KernelProducts` (the arguments are checked once, on the caller's
+side; one plan per block length), so each task gets whichever engine the planner picks for its
+size.
 
 The exact product of two long integer sequences as Dask tasks, :func:`exact_product_dask`, lives
 in :mod:`polyconv.scale.dask_exact` and is re-exported here.
@@ -14,11 +16,11 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..pipeline.execute import convolve
 from ..pipeline.inputs import check_mode, check_modulus, combine_kinds, dtype_kind
 from ..pipeline.plan import mode_window
 from ..pipeline.shaping import float_work_dtype
-from .dask_common import check_dask_vector, dask_array_module, dask_max_abs, is_dask_array
+from .blocks import KernelProducts
+from .dask_common import check_dask_vector, dask_array_module, dask_summary, is_dask_array
 from .dask_exact import exact_product_dask
 from .overlap import (
     INT64_LIMIT,
@@ -36,10 +38,10 @@ __all__ = ["convolve_dask", "exact_product_dask", "is_dask_array"]
 
 # ----------------------------------------------------------------------------- tasks (workers)
 
-def _block_product(x: np.ndarray, k: np.ndarray, modulus: int | None,
+def _block_product(x: np.ndarray, products: KernelProducts,
                    summation: Summation) -> np.ndarray:
     """Full product of one block with the kernel, in the summation's working type."""
-    y = convolve(x, k, modulus=modulus)
+    y = products(x)
     return as_exact(y, summation) if summation.exact else y
 
 
@@ -62,9 +64,10 @@ def _stitch(y: np.ndarray, carry: np.ndarray | None, size: int | None,
 def convolve_dask(a, b, *, mode: str = "full", modulus: int | None = None):
     """Convolve a long 1-D dask array with an in-memory kernel; a lazy dask array.
 
-    Each chunk of ``a`` is convolved with the whole kernel by :func:`polyconv.api.convolve`
-    (``map_blocks``; the kernel enters the graph once, as one ``dask.delayed`` key, so a
-    distributed scheduler ships it to each worker once), giving ``chunk + m - 1`` entries; the
+    Each chunk of ``a`` is convolved with the whole kernel (``map_blocks``; the kernel enters
+    the graph once, with the block plans, as one ``dask.delayed`` key of
+    :class:`polyconv.scale.blocks.KernelProducts`, so a distributed scheduler ships it to each
+    worker once), giving ``chunk + m - 1`` entries; the
     ``m - 1`` entries overhanging a chunk are cut off where they were computed and added into
     the head of the next chunk's product (overlap-add, Oppenheim & Schafer, *Discrete-Time
     Signal Processing*, 3rd ed., section 8.7).  Only those ``m - 1`` entries move between
@@ -98,11 +101,13 @@ def convolve_dask(a, b, *, mode: str = "full", modulus: int | None = None):
 
     Notes
     -----
-    Exact integers: the result is int64 when ``min(n, m) max|a| max|b| < 2^63`` is proven,
-    else an object array of Python ints.  ``max|a|`` is taken from ``a``'s dtype range when
-    that proves it, otherwise from one eager reduction pass over ``a`` (the dtype of a dask
-    array must be known before it is computed).  With ``modulus``: int64 when
-    ``modulus < 2^63``.
+    An object ``a`` is classified by its entries (one eager pass over its blocks): Python ints
+    give an exact product, Python floats a floating point one (float64), as in
+    :func:`polyconv.api.convolve`.  Exact integers: the result is int64 when
+    ``min(n, m) max|a| max|b| < 2^63`` is proven, else an object array of Python ints.
+    ``max|a|`` is taken from ``a``'s dtype range when that proves it, otherwise from one eager
+    reduction pass over ``a`` (the dtype of a dask array must be known before it is computed).
+    With ``modulus``: int64 when ``modulus < 2^63``.
 
     Examples
     --------
@@ -117,9 +122,13 @@ def convolve_dask(a, b, *, mode: str = "full", modulus: int | None = None):
     k, kernel_kind = check_kernel(b.compute() if is_dask_array(b) else b)
     check_mode(mode)
     m = k.shape[0]
-    summation, dtype = _dask_summation(x, k, kernel_kind, modulus, da)
+    kind_a, top = dtype_kind(x.dtype, "a"), None
+    if kind_a is None:  # object entries decide (Python floats must not be taken for ints)
+        kind_a, top = dask_summary(x, "a")
+    summation, dtype = _dask_summation(x, k, combine_kinds(kind_a, kernel_kind), modulus, top)
     x = _merge_short_chunks(x, m)
-    full = _overlap_add_graph(x, k, modulus, summation, dtype, da)
+    products = KernelProducts(k, summation.exact, modulus, "a")
+    full = _overlap_add_graph(x, products, summation, dtype, da)
     return _select_mode(full, x.shape[0], m, mode)
 
 
@@ -132,11 +141,10 @@ def _check_long_operand(a, da):
     return a
 
 
-def _dask_summation(x, k: np.ndarray, kernel_kind: str, modulus: int | None,
-                    da) -> tuple[Summation, np.dtype]:
-    """Summation and output dtype, from the kinds of the dtypes (no product is computed; the
-    entries of an object dask array are taken for Python ints, as its tasks will check)."""
-    kind = combine_kinds(dtype_kind(x.dtype, "a") or "bigint", kernel_kind)
+def _dask_summation(x, k: np.ndarray, kind: str, modulus: int | None,
+                    top: int | None) -> tuple[Summation, np.dtype]:
+    """Summation and output dtype of the products of kind ``kind`` (``top``: ``max |a_i|`` when
+    known already); no product is computed."""
     check_modulus(modulus, kind)
     if kind not in ("integer", "bigint"):
         return Summation(exact=False), float_work_dtype(x.dtype, k.dtype, kind)
@@ -146,7 +154,7 @@ def _dask_summation(x, k: np.ndarray, kernel_kind: str, modulus: int | None,
     factor = min(x.shape[0], k.shape[0]) * max_abs(k)
     by_dtype = dtype_max_abs(x.dtype)
     if by_dtype is None or factor * by_dtype >= INT64_LIMIT:
-        by_dtype = dask_max_abs(x, da)
+        by_dtype = top if top is not None else dask_summary(x, "a")[1]
     summation = exact_summation(factor * by_dtype, None)
     return summation, summation.out_dtype
 
@@ -159,16 +167,15 @@ def _merge_short_chunks(x, m: int):
     return x.rechunk(max(m - 1, max(chunks)))
 
 
-def _overlap_add_graph(x, k: np.ndarray, modulus: int | None, summation: Summation,
-                       dtype: np.dtype, da):
+def _overlap_add_graph(x, products: KernelProducts, summation: Summation, dtype: np.dtype, da):
     """The full product as a dask array: block products, then carries added block to block."""
     import dask
 
-    m = k.shape[0]
+    m = products.kernel.shape[0]
     sizes = x.chunks[0]
     work = np.dtype(object) if summation.exact and summation.wide else dtype
-    kernel = dask.delayed(k, pure=True)
-    products = x.map_blocks(_block_product, kernel, modulus, summation,
+    runner = dask.delayed(products, pure=True)
+    products = x.map_blocks(_block_product, runner, summation,
                             chunks=(tuple(c + m - 1 for c in sizes),), dtype=work,
                             meta=np.empty((0,), dtype=work))
     blocks = products.to_delayed().ravel()

@@ -1,5 +1,6 @@
 """What the Dask back ends share: loading dask on first use, recognising dask arrays, checking a
-dask operand and the eager ``max |x_i|`` pass (one reduction over the blocks).
+dask operand and the eager pass that classifies it and finds ``max |x_i|`` (one reduction over
+the blocks).
 
 Dask is imported only inside these functions, so polyconv works without it.
 """
@@ -11,7 +12,7 @@ import sys
 
 import numpy as np
 
-from ..pipeline.inputs import check_vector_shape
+from ..pipeline.inputs import check_vector_shape, combine_kinds, kind_of
 from .overlap import max_abs
 
 _INSTALL_HINT = "polyconv's Dask back end needs the optional extra: pip install 'polyconv[dask]'"
@@ -43,11 +44,27 @@ def check_dask_vector(x, name: str) -> None:
                          "first")
 
 
-def _block_max_abs(x: np.ndarray) -> np.ndarray:
-    return np.array([max_abs(x)], dtype=object)
+def _block_summary(x: np.ndarray, name: str) -> np.ndarray:
+    """``[kind, max |x_i|]`` of one block: kind from the dtype or, for object blocks, from the
+    entries (None for an empty block); the maximum over integer blocks only (0 otherwise)."""
+    kind = kind_of(x, name) if x.size else None
+    top = max_abs(x) if kind in ("integer", "bigint") else 0
+    return np.array([kind, top], dtype=object)
 
 
-def dask_max_abs(x, da) -> int:
-    """``max |x_i|`` of a dask array as a Python int (one reduction pass)."""
-    per_block = x.map_blocks(_block_max_abs, chunks=((1,) * x.numblocks[0],), dtype=object)
-    return max(int(v) for v in per_block.compute())
+def dask_summary(x, name: str) -> tuple[str, int]:
+    """``(kind, max |x_i|)`` of a dask array in one eager reduction pass over its blocks.
+
+    The kind is that of :func:`polyconv.pipeline.inputs.kind_of`, combined over the blocks: an
+    object dask array of Python floats is ``"real"`` (its entries decide, never its dtype
+    alone).  ``max |x_i|`` is a Python int over integer data (0 when the data are not all
+    integers).  A non-number entry raises TypeError naming ``name``.
+    """
+    per_block = x.map_blocks(_block_summary, name, chunks=((2,) * x.numblocks[0],),
+                             dtype=object, meta=np.empty((0,), dtype=object)).compute()
+    kinds = [k for k in per_block[0::2] if k is not None]
+    kind = kinds[0] if kinds else "integer"
+    for other in kinds[1:]:
+        kind = combine_kinds(kind, other)
+    top = max((int(v) for v in per_block[1::2]), default=0)
+    return kind, top if kind in ("integer", "bigint") else 0

@@ -2,7 +2,9 @@
 
 Optional: needs the ``dask`` extra (``dask[array]`` and ``distributed``); dask is imported only
 when :func:`exact_product_dask` is called.  Block products run as tasks on the workers (each by
-:func:`polyconv.api.convolve`, exact) and are summed exactly on the caller's side.
+the pipeline through :class:`polyconv.scale.blocks.BlockProducts`: the arguments are checked
+once, on the caller's side, one plan per block shape) and are summed exactly on the caller's
+side.
 """
 
 from __future__ import annotations
@@ -14,9 +16,9 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..numerics.budget import check_allocation, coefficient_bytes
-from ..pipeline.execute import convolve
 from ..pipeline.inputs import check_count, check_modulus, check_sequence, dtype_kind
-from .dask_common import check_dask_vector, dask_array_module, dask_max_abs, is_dask_array
+from .blocks import BlockProducts
+from .dask_common import check_dask_vector, dask_array_module, dask_summary, is_dask_array
 from .overlap import Summation, add_into, as_exact, as_output_dtype, exact_summation, max_abs
 
 
@@ -29,10 +31,10 @@ class _Blocks:
     count_b: int
 
 
-def _pair_product(x: np.ndarray, y: np.ndarray, modulus: int | None,
+def _pair_product(x: np.ndarray, y: np.ndarray, products: BlockProducts,
                   summation: Summation) -> np.ndarray:
     """Exact product of one block of ``a`` with one block of ``b``."""
-    return as_exact(convolve(x, y, modulus=modulus), summation)
+    return as_exact(products.product(x, y), summation)
 
 
 def exact_product_dask(a, b, *, modulus: int | None = None, client=None,
@@ -40,8 +42,9 @@ def exact_product_dask(a, b, *, modulus: int | None = None, client=None,
     """Exact product of two long integer sequences, block products run as Dask tasks.
 
     Both operands are cut into blocks of one common length ``L = ceil(max(n1, n2) / pieces)``;
-    every block of ``a`` times every block of ``b`` is one task, computed on a worker by
-    :func:`polyconv.api.convolve` (exact), and each task's result is added, exactly, at offset
+    every block of ``a`` times every block of ``b`` is one task, computed on a worker by the
+    pipeline (exact; one plan per block shape, :class:`polyconv.scale.blocks.BlockProducts`),
+    and each task's result is added, exactly, at offset
     ``i L + j L`` of the result on the caller's side as soon as it arrives.
 
     Why this scheme: it is exact with no extra bound analysis (a partial sum of an output is
@@ -58,7 +61,9 @@ def exact_product_dask(a, b, *, modulus: int | None = None, client=None,
     ----------
     a, b : array_like or dask.array.Array
         1-D, non-empty integer sequences (fixed-width integers, bool, or Python ints in object
-        arrays).  Dask arrays are cut into the blocks on the workers.
+        arrays; an object dask array is classified by its entries in one eager pass, so Python
+        floats in it are refused, never truncated).  Dask arrays are cut into the blocks on the
+        workers.
     modulus : int, optional
         Return the product reduced to ``[0, modulus)``.
     client : distributed.Client, optional
@@ -89,7 +94,7 @@ def exact_product_dask(a, b, *, modulus: int | None = None, client=None,
     check_modulus(modulus)
     client = _resolve_client(client)
     blocks = _cut(n1, n2, _check_pieces(pieces, client))
-    bound = min(n1, n2) * _operand_max_abs(x) * _operand_max_abs(y)
+    bound = min(n1, n2) * _operand_max_abs(x, "a") * _operand_max_abs(y, "b")
     summation = exact_summation(bound, modulus)
     check_allocation((n1 + n2 - 1) * coefficient_bytes("integer", bound.bit_length() + 1),
                      f"exact_product_dask of a ({n1} coefficients) and b ({n2}), gathered in "
@@ -97,7 +102,8 @@ def exact_product_dask(a, b, *, modulus: int | None = None, client=None,
     a_parts = _operand_blocks(x, blocks.length, client)
     b_parts = _operand_blocks(y, blocks.length, client)
     out = np.zeros(n1 + n2 - 1, dtype=object if summation.wide else np.int64)
-    for (i, j), part in _run_pairs(a_parts, b_parts, modulus, summation, client):
+    products = BlockProducts(True, modulus, ("a", "b"))
+    for (i, j), part in _run_pairs(a_parts, b_parts, products, summation, client):
         add_into(out, (i + j) * blocks.length, part, summation)
     return as_output_dtype(out, summation)
 
@@ -105,13 +111,27 @@ def exact_product_dask(a, b, *, modulus: int | None = None, client=None,
 def _check_exact_operand(x, name: str):
     if is_dask_array(x):
         check_dask_vector(x, name)
-        kind = dtype_kind(x.dtype, name) or "integer"  # object entries: checked by the tasks
+        kind = dtype_kind(x.dtype, name) or "integer"  # object entries: _operand_max_abs
     else:
         x, kind = check_sequence(x, name)
+    _require_integers(x, kind, name)
+    return x
+
+
+def _operand_max_abs(x, name: str) -> int:
+    """``max |x_i|``; for a dask array one eager pass over its blocks, which also classifies
+    the entries of an object dask array (Python floats are refused by name, not truncated)."""
+    if not is_dask_array(x):
+        return max_abs(x)
+    kind, top = dask_summary(x, name)
+    _require_integers(x, kind, name)
+    return top
+
+
+def _require_integers(x, kind: str, name: str) -> None:
     if kind not in ("integer", "bigint"):
         raise TypeError(f"{name} must hold integers (exact product); got dtype {x.dtype} "
                         f"({kind} numbers): for floating point use convolve_dask")
-    return x
 
 
 def _check_pieces(pieces, client) -> int:
@@ -152,12 +172,6 @@ def _resolve_client(client):
         return None
 
 
-def _operand_max_abs(x) -> int:
-    if is_dask_array(x):
-        return dask_max_abs(x, dask_array_module())
-    return max_abs(x)
-
-
 def _operand_blocks(x, length: int, client) -> list:
     """The operand's blocks: futures (client), delayed objects (local) or dask blocks."""
     import dask
@@ -171,7 +185,7 @@ def _operand_blocks(x, length: int, client) -> list:
     return [dask.delayed(v, pure=True) for v in arrays]
 
 
-def _run_pairs(a_parts: list, b_parts: list, modulus: int | None, summation: Summation,
+def _run_pairs(a_parts: list, b_parts: list, products: BlockProducts, summation: Summation,
                client):
     """Yield ``((i, j), product of block i of a and block j of b)``, as they complete."""
     import dask
@@ -179,13 +193,15 @@ def _run_pairs(a_parts: list, b_parts: list, modulus: int | None, summation: Sum
     pairs = [(i, j) for i in range(len(a_parts)) for j in range(len(b_parts))]
     if client is None:
         task = dask.delayed(_pair_product, pure=True)
-        results = dask.compute(*[task(a_parts[i], b_parts[j], modulus, summation)
+        runner = dask.delayed(products, pure=True)  # one key: its plans are shared by the tasks
+        results = dask.compute(*[task(a_parts[i], b_parts[j], runner, summation)
                                  for i, j in pairs])
         yield from zip(pairs, results, strict=True)
         return
     from distributed import as_completed
 
-    futures = {client.submit(_pair_product, a_parts[i], b_parts[j], modulus, summation,
+    runner = client.scatter(products, hash=False, broadcast=True)  # one copy per worker
+    futures = {client.submit(_pair_product, a_parts[i], b_parts[j], runner, summation,
                              pure=False): (i, j) for i, j in pairs}
     for future in as_completed(list(futures)):
         part = future.result()  # raises the task's exception, if any

@@ -20,7 +20,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..numerics.limits import INT64_LIMIT, max_abs
-from ..pipeline.execute import convolve
+from .blocks import KernelProducts, Operand
 
 __all__ = ["INT64_LIMIT", "Summation", "OverlapAdd", "exact_summation", "add_overlap",
            "add_into", "as_exact", "as_output_dtype", "dtype_max_abs", "is_integer_dtype",
@@ -126,12 +126,11 @@ class OverlapAdd:
 
     Parameters
     ----------
-    kernel : numpy.ndarray
-        The 1-D, non-empty kernel.
+    products : KernelProducts
+        The block products with the kernel (:mod:`polyconv.scale.blocks`: arguments checked
+        once, one plan per block shape).
     summation : Summation
         How block products and carries are added.
-    modulus : int, optional
-        Passed to :func:`polyconv.api.convolve` for every block product.
 
     Notes
     -----
@@ -139,16 +138,15 @@ class OverlapAdd:
     holds the partial sums of outputs ``s .. s + m - 2``; :meth:`flush_carry` returns those.
     """
 
-    def __init__(self, kernel: np.ndarray, summation: Summation, modulus: int | None = None):
-        self.kernel = kernel
+    def __init__(self, products: KernelProducts, summation: Summation):
+        self.products = products
         self.summation = summation
-        self.modulus = modulus
         self.carry: np.ndarray | None = None
         self.consumed = 0
 
-    def push(self, block: np.ndarray) -> np.ndarray:
+    def push(self, block: np.ndarray | Operand) -> np.ndarray:
         """Convolve one non-empty block; return its ``len(block)`` finished outputs."""
-        y = convolve(block, self.kernel, modulus=self.modulus)
+        y = self.products(block)
         if self.carry is not None and self.carry.shape[0]:
             y = add_overlap(y, self.carry, self.summation)
         elif self.summation.exact:

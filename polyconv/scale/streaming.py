@@ -35,6 +35,7 @@ from ..pipeline.inputs import (
     dtype_kind,
 )
 from ..pipeline.shaping import float_work_dtype
+from .blocks import KernelProducts
 from .npyio import NpySource, NpyWriter, native
 from .overlap import (
     INT64_LIMIT,
@@ -42,12 +43,11 @@ from .overlap import (
     Summation,
     dtype_max_abs,
     exact_summation,
-    is_integer_dtype,
     max_abs,
 )
 
-#: Smallest default block (samples): large enough that a block product amortises the fixed cost
-#: of one :func:`polyconv.api.convolve` call and of one read and one write, small enough (a few
+#: Smallest default block (samples): large enough that a block amortises the fixed cost of one
+#: block product (:mod:`polyconv.scale.blocks`) and of one read and one write, small enough (a few
 #: MiB) that a block, its product and the engine's work space stay far below the memory goal.
 MIN_BLOCK = 1 << 20
 
@@ -88,8 +88,9 @@ def convolve_chunks(chunks: Iterable, kernel, *,
     """Convolve a signal arriving in chunks with a kernel; yield the output in chunks.
 
     Overlap-add (Oppenheim & Schafer, *Discrete-Time Signal Processing*, 3rd ed., section 8.7):
-    each chunk is convolved with the whole kernel by :func:`polyconv.api.convolve`, and the
-    ``m - 1`` entries that overhang the chunk are carried into the next one.  For each non-empty
+    each chunk is convolved with the whole kernel (the arguments checked once, one plan per chunk
+    length: :class:`polyconv.scale.blocks.KernelProducts`), and the ``m - 1`` entries that
+    overhang the chunk are carried into the next one.  For each non-empty
     input chunk one output chunk of the same length is yielded; after the last, one more chunk
     of ``m - 1`` entries (none when ``m == 1``).  Concatenated, they are
     ``convolve(concatenate(chunks), kernel, mode="full", modulus=modulus)``.
@@ -145,7 +146,6 @@ def _chunk_products(chunks: Iterator, k: np.ndarray, kernel_kind: str,
                     modulus: int | None) -> Iterator[np.ndarray]:
     """The output chunks of :func:`convolve_chunks` (arguments checked)."""
     m = k.shape[0]
-    max_k = max_abs(k) if is_integer_dtype(k.dtype) else 0
     state: OverlapAdd | None = None
     first_exact = None
     max_x = 0
@@ -159,14 +159,16 @@ def _chunk_products(chunks: Iterator, k: np.ndarray, kernel_kind: str,
             first_exact = _is_exact(kind)
             summation = (exact_summation(0, modulus) if first_exact and modulus is not None
                          else Summation(exact=first_exact))
-            state = OverlapAdd(k, summation, modulus)
+            state = OverlapAdd(KernelProducts(k, first_exact, modulus, "chunks"), summation)
         _check_same_kind(x, _is_exact(kind), first_exact, index)
+        # (the name only matters in the refusals of object chunks)
+        block = state.products.operand(x, name=f"chunks[{index}]" if x.dtype == object else None)
         if first_exact and modulus is None and not state.summation.wide:
-            max_x = max(max_x, max_abs(x))
+            max_x = max(max_x, block.max_abs)
             seen = state.consumed + x.shape[0]
-            if min(seen, m) * max_x * max_k >= INT64_LIMIT:
+            if min(seen, m) * max_x * state.products.kernel.max_abs >= INT64_LIMIT:
                 state.widen(exact_summation(INT64_LIMIT, None))
-        yield state.push(x)
+        yield state.push(block)
     if state is None:
         raise ValueError("chunks held no samples: the signal is empty")
     tail = state.flush_carry()
@@ -320,7 +322,7 @@ def _convolve_open_file(src: NpySource, kernel, destination, modulus, block, pro
                      f"the default block of {size} samples (8 kernel lengths; pass block=)")
     summation, dtype = _file_summation(src, k, kernel_kind, modulus, size)
     total = src.length + k.shape[0] - 1
-    state = OverlapAdd(k, summation, modulus)
+    state = OverlapAdd(KernelProducts(k, summation.exact, modulus, "source"), summation)
     with NpyWriter(dest, dtype, total) as writer:
         _report(progress, 0, total)
         for x in src.blocks(size):
