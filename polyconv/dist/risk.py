@@ -79,11 +79,6 @@ def tail_sums(pmf: np.ndarray, long: bool = False) -> tuple[np.ndarray, np.ndarr
     return (s, t) if long else (s.astype(float), t.astype(float))
 
 
-def _cdf_bound(i: int, doc: str) -> property:
-    """Entry ``i`` of :attr:`Bracketer._cdf_bounds` as a read-only property."""
-    return property(lambda self: self._cdf_bounds[i], doc=doc)
-
-
 class Bracketer(ExpectationBounds):
     """Certified bounds of every query on one Lattice (arrays built once, ``O(n)``).
 
@@ -220,10 +215,21 @@ class Bracketer(ExpectationBounds):
                 np.clip(np.maximum(tail_low, 1.0 - cum_high - 2 * _U), 0.0, 1.0),
                 np.clip(np.minimum(tail_high, 1.0 - cum_low + 2 * _U), 0.0, 1.0))
 
-    F_low = _cdf_bound(0, "Lower bounds of the cdf at each index.")
-    F_high = _cdf_bound(1, "Upper bounds of the cdf at each index.")
-    S_low = _cdf_bound(2, "Lower bounds of the survival function at each index.")
-    S_high = _cdf_bound(3, "Upper bounds of the survival function at each index.")
+    @property
+    def F_low(self) -> np.ndarray:  # noqa: N802
+        return self._cdf_bounds[0]
+
+    @property
+    def F_high(self) -> np.ndarray:  # noqa: N802
+        return self._cdf_bounds[1]
+
+    @property
+    def S_low(self) -> np.ndarray:  # noqa: N802
+        return self._cdf_bounds[2]
+
+    @property
+    def S_high(self) -> np.ndarray:  # noqa: N802
+        return self._cdf_bounds[3]
 
     @cached_property
     def _run_high(self) -> np.ndarray:
