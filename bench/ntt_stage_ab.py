@@ -2,7 +2,7 @@
 ``polyconv/engines/_kernels_ntt.py`` (for checking that a kernel edit costs no speed).
 
 Run: git show REV:polyconv/engines/_kernels_ntt.py > /tmp/kernels_a.py
-     nice -n 10 python bench/ntt_stage_ab.py /tmp/kernels_a.py [ROUNDS]
+     PYTHONPATH=. nice -n 10 python bench/ntt_stage_ab.py /tmp/kernels_a.py [ROUNDS]
 
 A is the given file (loaded as a sibling module, so its relative imports resolve), B the
 working tree's; both run in one process, alternating, best of ROUNDS (default 15); outputs are
