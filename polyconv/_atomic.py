@@ -80,27 +80,37 @@ def critical_section() -> Iterator[None]:
     the new target complete.  Only the main thread can install signal handlers; elsewhere the
     block simply runs.
     """
-    if threading.current_thread() is not threading.main_thread():
-        yield
-        return
     pending: list[int] = []
 
     def hold(signum, frame) -> None:
         pending.append(signum)
 
+    try:
+        with signal_handler(hold, HELD_SIGNALS):
+            yield
+    finally:
+        for sig in dict.fromkeys(pending):
+            signal.raise_signal(sig)
+
+
+@contextlib.contextmanager
+def signal_handler(handler, signals: tuple = HELD_SIGNALS) -> Iterator[None]:
+    """Install ``handler`` for each of ``signals`` while the block runs and restore the
+    previous handlers afterwards (shared by :func:`critical_section` and the CLI's
+    ``signals_as_interrupts``).  Only the main thread can install signal handlers; elsewhere
+    the block simply runs."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
     previous = {}
-    for sig in HELD_SIGNALS:
-        try:
-            previous[sig] = signal.signal(sig, hold)
-        except (ValueError, OSError):  # pragma: no cover - not settable here
-            pass
+    for sig in signals:
+        with contextlib.suppress(ValueError, OSError):  # not settable here
+            previous[sig] = signal.signal(sig, handler)
     try:
         yield
     finally:
-        for sig, handler in previous.items():
-            signal.signal(sig, handler)
-        for sig in dict.fromkeys(pending):
-            signal.raise_signal(sig)
+        for sig, old in previous.items():
+            signal.signal(sig, old)
 
 
 class AtomicFile:

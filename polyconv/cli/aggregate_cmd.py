@@ -59,7 +59,6 @@ from . import aggregate_tables as tabs
 from . import distribution_report as skeleton
 from . import grid_mass
 from .bounded_rows import MeasureRow, ask
-from .fileio import ReportFolder
 from .progress import Steps
 from .report import caution, collect_warnings, fmt, fmt_prob, level_name, number_name
 from .spec import SpecDoc
@@ -362,18 +361,5 @@ def report_of(res: AggregateResult) -> skeleton.DistributionReport:
         markers=skeleton.finite_markers(res.rows, "var", most=3))
 
 
-def write_report(res: AggregateResult, out: ReportFolder, prefix: str = "") -> list[str]:
-    """Add this result's files to a report folder; returns the names written."""
-    return skeleton.write_files(report_of(res), out, prefix)
-
-
-def json_summary(res: AggregateResult) -> dict:
-    """The machine-readable summary (floats already rounded, see
-    :func:`polyconv.cli.distribution_report.json_summary`)."""
-    return skeleton.json_summary(report_of(res))
-
-
-def run(args) -> int:
-    """Entry point of ``polyconv aggregate``."""
-    return skeleton.run_spec_command(args, name="aggregate", parse=parse, compute=compute,
-                                     report_of=report_of, step_count=step_count)
+COMMAND = skeleton.SpecCommand("aggregate", parse, compute, report_of, step_count)
+write_report, json_summary, run = COMMAND.write_report, COMMAND.json_summary, COMMAND.run

@@ -121,10 +121,7 @@ def _empirical(sec: Section) -> Counts:
                         "'probabilities'), 'per_year' or 'claims_file' (with 'years')")
     if forms[0] == "values":
         values = sec.numbers("values", minimum=0.0)
-        probs = sec.numbers("probabilities", minimum=0.0)
-        if len(probs) != len(values):
-            raise sec.error("probabilities", f"has {len(probs)} entries but 'values' has "
-                            f"{len(values)}")
+        probs = sec.numbers_like("probabilities", values, minimum=0.0)
         try:
             law = cl.empirical_counts(values, probs)
         except ValueError as exc:

@@ -13,7 +13,6 @@ source tree measure properly.
 
 from __future__ import annotations
 
-import argparse
 import time
 from collections.abc import Callable
 from dataclasses import dataclass
@@ -23,7 +22,7 @@ import numpy as np
 from ..pipeline.execute import convolve
 from ..pipeline.prepare import plan
 from .progress import track
-from .report import dumps, paragraph, text_table
+from .report import add_command, dumps, text_table
 
 EXAMPLE = """example:
   polyconv bench            a table in a few seconds
@@ -39,14 +38,13 @@ QUADRATIC_LIMIT = 2e8
 
 def register(sub) -> None:
     """Add the ``bench`` sub-command to ``sub``."""
-    p = sub.add_parser(
-        "bench",
+    p = add_command(
+        sub, "bench",
         help="quick speed ratios against numpy, scipy and python-flint",
-        description=paragraph(
+        description=(
             "Time a few products with polyconv and with the reference implementations "
             "installed here; print each reference's time and its ratio to polyconv's."),
         epilog=EXAMPLE,
-        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     p.add_argument("--json", action="store_true", help="print the results as JSON")
     p.add_argument("--quiet", action="store_true", help="no progress bar")

@@ -90,7 +90,6 @@ from .bounded_rows import range_text
 from .delays_eval import DelayResult, compute, count_blocks
 from .delays_figure import delays_figure
 from .delays_spec import ROOT, DelaySpec, parse
-from .fileio import ReportFolder
 from .report import caution, fmt, fmt_prob, percent_level, percentile_name
 
 __all__ = ["DelaySpec", "DelayResult", "parse", "compute", "report_of", "write_report",
@@ -300,19 +299,6 @@ def report_of(res: DelayResult) -> skeleton.DistributionReport:
         tables=[stage_table(res), *extra_tables(res)], markers=markers, figure=figure)
 
 
-def write_report(res: DelayResult, out: ReportFolder, prefix: str = "") -> list[str]:
-    """Add this result's files to a report folder; returns the names written."""
-    return skeleton.write_files(report_of(res), out, prefix)
-
-
-def json_summary(res: DelayResult) -> dict:
-    """The machine-readable summary (floats already rounded, see
-    :func:`polyconv.cli.distribution_report.json_summary`)."""
-    return skeleton.json_summary(report_of(res))
-
-
-def run(args) -> int:
-    """Entry point of ``polyconv delays``."""
-    return skeleton.run_spec_command(args, name="delays", parse=parse, compute=compute,
-                                     report_of=report_of,
-                                     step_count=lambda spec: count_blocks(spec) + 2)
+COMMAND = skeleton.SpecCommand("delays", parse, compute, report_of,
+                                lambda spec: count_blocks(spec) + 2)
+write_report, json_summary, run = COMMAND.write_report, COMMAND.json_summary, COMMAND.run

@@ -93,10 +93,7 @@ def _measured(spec: DelaySpec, name: str, sec: Section, alpha: float) -> Sampled
     if form == "table":  # values with counts: measured values, each seen counts[i] times
         sec.check_keys(("values", "counts", "unit", "scale", "upper"))
         values = sec.numbers("values", minimum=0.0)
-        counts = sec.numbers("counts", minimum=0.0)
-        if len(counts) != len(values):
-            raise sec.error("counts", f"has {len(counts)} entries but 'values' has "
-                            f"{len(values)}")
+        counts = sec.numbers_like("counts", values, minimum=0.0)
         try:
             return empirical(np.asarray(values) * c, counts=counts, step=spec.step,
                              alpha=alpha, upper=upper)

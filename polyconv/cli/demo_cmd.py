@@ -13,7 +13,6 @@ into place (see :mod:`polyconv.cli.fileio`).
 
 from __future__ import annotations
 
-import argparse
 from importlib import resources
 from pathlib import Path
 
@@ -25,7 +24,7 @@ from . import aggregate_cmd, delays_cmd, plots
 from . import distribution_report as skeleton
 from .fileio import ReportFolder, unlimited_int_digits
 from .progress import Steps
-from .report import dumps, md_table, paragraph
+from .report import add_command, dumps, md_table
 from .spec import parse_spec
 
 SCENARIOS = ("quillmere_claims.toml", "larkspur_pipeline.toml")
@@ -43,16 +42,15 @@ EXAMPLE = """example:
 
 def register(sub) -> None:
     """Add the ``demo`` sub-command to ``sub``."""
-    p = sub.add_parser(
-        "demo",
+    p = add_command(
+        sub, "demo",
         help="run aggregate, delays and exact counting on bundled invented scenarios",
-        description=paragraph(
+        description=(
             "Run the three kinds of work on invented data: the aggregate claims of a "
             "fictional insurer (Quillmere Mutual), the delays of a fictional order pipeline "
             "(Larkspur Parcel) and exact counts from polynomial products (dice, coin change). "
             "Writes a report folder and prints where."),
         epilog=EXAMPLE,
-        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     p.add_argument("-o", "--output", metavar="DIR", default="polyconv-demo",
                    help="report folder (default: ./polyconv-demo)")

@@ -22,7 +22,6 @@ written when the spec or the computation is refused (exit status 2).
 
 from __future__ import annotations
 
-import argparse
 import math
 from collections.abc import Callable
 from dataclasses import dataclass, field
@@ -35,6 +34,7 @@ from .fileio import ReportFolder
 from .progress import Steps
 from .report import (
     JSON_DIGITS,
+    add_command,
     add_spec_report_options,
     distribution_csv,
     dumps,
@@ -43,7 +43,6 @@ from .report import (
     jsonable,
     md_table,
     number_name,
-    paragraph,
     report_folder,
     text_table,
     wrap,
@@ -279,8 +278,7 @@ def finite_markers(rows: list[MeasureRow], key: str, most: int | None = None
 def add_spec_command(sub, *, name: str, help: str, description: str, epilog: str,
                      run: Callable) -> None:
     """Register a spec-driven report command (``SPEC``, ``-o DIR``, ``--json``, ``--quiet``)."""
-    p = sub.add_parser(name, help=help, description=paragraph(description), epilog=epilog,
-                       formatter_class=argparse.RawDescriptionHelpFormatter)
+    p = add_command(sub, name, help=help, description=description, epilog=epilog)
     add_spec_report_options(p)
     p.set_defaults(run=run)
 
@@ -317,3 +315,29 @@ def run_spec_command(args, *, name: str, parse: Callable, compute: Callable,
     else:
         print(terminal_text(rep, folder))
     return 0
+
+
+@dataclass(frozen=True)
+class SpecCommand:
+    """The entry points of one spec-driven report command (``aggregate``, ``delays``): its own
+    ``parse``, ``compute``, ``report_of`` and ``step_count`` (as in :func:`run_spec_command`),
+    the rest from this skeleton."""
+
+    name: str
+    parse: Callable
+    compute: Callable
+    report_of: Callable
+    step_count: Callable
+
+    def write_report(self, res, out: ReportFolder, prefix: str = "") -> list[str]:
+        """Add this result's files to a report folder; returns the names written."""
+        return write_files(self.report_of(res), out, prefix)
+
+    def json_summary(self, res) -> dict:
+        """The machine-readable summary (floats already rounded, see :func:`json_summary`)."""
+        return json_summary(self.report_of(res))
+
+    def run(self, args) -> int:
+        """Entry point of ``polyconv <name>``."""
+        return run_spec_command(args, name=self.name, parse=self.parse, compute=self.compute,
+                                report_of=self.report_of, step_count=self.step_count)

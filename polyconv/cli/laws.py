@@ -176,9 +176,7 @@ def build(sec: Section, step: float, *, rule: str = "nearest", max_points: int =
         if sec.has("probabilities") == sec.has("counts"):
             raise sec.error("values", "needs exactly one of 'probabilities' or 'counts' beside it")
         key = "probabilities" if sec.has("probabilities") else "counts"
-        weights = sec.numbers(key, minimum=0.0)
-        if len(weights) != len(values):
-            raise sec.error(key, f"has {len(weights)} entries but 'values' has {len(values)}")
+        weights = sec.numbers_like(key, values, minimum=0.0)
         if key == "counts":
             total = sum(weights)
             if total <= 0:

@@ -14,10 +14,10 @@ import importlib
 import os
 import signal
 import sys
-import threading
 import warnings
 from collections.abc import Iterator
 
+from .._atomic import signal_handler
 from .errors import INTERRUPTED, USAGE_ERROR, CliError, Interrupted
 
 COMMANDS = ("multiply", "aggregate", "delays", "demo", "bench", "calibrate")
@@ -60,9 +60,6 @@ def signals_as_interrupts() -> Iterator[None]:
     status 130.  Only the first signal is raised; later ones are ignored, so the cleanup it
     starts runs to its end.  The previous handlers are restored afterwards (main thread only:
     elsewhere the block simply runs)."""
-    if threading.current_thread() is not threading.main_thread():
-        yield
-        return
     seen: list[int] = []
 
     def interrupt(signum, frame) -> None:
@@ -70,15 +67,8 @@ def signals_as_interrupts() -> Iterator[None]:
         if len(seen) == 1:
             raise Interrupted(signum, signal.Signals(signum).name)
 
-    previous = {}
-    for sig in HANDLED_SIGNALS:
-        with contextlib.suppress(ValueError, OSError):
-            previous[sig] = signal.signal(sig, interrupt)
-    try:
+    with signal_handler(interrupt, HANDLED_SIGNALS):
         yield
-    finally:
-        for sig, handler in previous.items():
-            signal.signal(sig, handler)
 
 
 def main(argv: list[str] | None = None) -> int:

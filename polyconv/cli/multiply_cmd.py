@@ -8,7 +8,6 @@ per line.
 
 from __future__ import annotations
 
-import argparse
 import dataclasses
 import math
 import os
@@ -32,7 +31,7 @@ from .fileio import (
     sequence_bytes,
     unlimited_int_digits,
 )
-from .report import dumps, paragraph, plan_dict
+from .report import add_command, dumps, plan_dict
 
 EXAMPLE = """examples:
   polyconv multiply a.txt b.txt                    product to stdout, one coefficient per line
@@ -55,16 +54,15 @@ DEFAULT_BUDGET_MIB = 1024
 
 def register(sub) -> None:
     """Add the ``multiply`` sub-command to ``sub``."""
-    p = sub.add_parser(
-        "multiply",
+    p = add_command(
+        sub, "multiply",
         help="multiply two coefficient sequences (exact for integers)",
-        description=paragraph(
+        description=(
             "Convolve two sequences: coefficient i is that of x**i, so the output holds "
             "the coefficients of the product polynomial.  Integer inputs give exact "
             "integers of any size; floats give floating point with the engine's error "
             "bound (--explain)."),
         epilog=EXAMPLE,
-        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     p.add_argument("a", help="first sequence (.npy, .txt, .csv or .json)")
     p.add_argument("b", help="second sequence (.npy, .txt, .csv or .json)")

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import argparse
 import contextlib
 import json
 import math
@@ -48,6 +49,14 @@ def caution(independence: str, discretisation: str, truncation: str, practice: s
 def paragraph(text: str, width: int = 88) -> str:
     """A help description wrapped for the terminal (argparse's raw formatter keeps it as is)."""
     return textwrap.fill(" ".join(text.split()), width=width)
+
+
+def add_command(sub, name: str, *, help: str, description: str, epilog: str):
+    """Register sub-command ``name`` on ``sub`` (an argparse subparsers object) and return its
+    parser: ``description`` wrapped by :func:`paragraph`, the ``epilog`` examples kept as
+    written."""
+    return sub.add_parser(name, help=help, description=paragraph(description), epilog=epilog,
+                          formatter_class=argparse.RawDescriptionHelpFormatter)
 
 
 def wrap(lines: list[str], width: int = 96, indent: str = "") -> list[str]:

@@ -236,6 +236,14 @@ class Section:
                 maximum=maximum, below=below))
         return out
 
+    def numbers_like(self, key: str, values: list, **checks: Any) -> list[float]:
+        """:meth:`numbers` at ``key`` with one entry per entry of ``values`` (the list read at
+        ``'values'``)."""
+        out = self.numbers(key, **checks)
+        if len(out) != len(values):
+            raise self.error(key, f"has {len(out)} entries but 'values' has {len(values)}")
+        return out
+
     def strings(self, key: str, default: Any = _MISSING) -> list[str]:
         """A non-empty list of strings."""
         v = self._get(key, default)

@@ -36,37 +36,49 @@ def _standard(frozen):
     return frozen.dist.name, tuple(float(s) for s in shapes), float(loc), float(scale)
 
 
-def _standard_tail(name: str, shapes: tuple, z: float) -> float | None:
-    """``G(z) = E[Y 1{Y > z}]`` for the standard member, or None without a closed form."""
+def _family_tail(name: str, shapes: tuple, z: float, k: int) -> float | None:
+    """``E[Y^k 1{Y > z}]`` (``k`` = 1 or 2) for the standard gamma, weibull_min, lognorm, pareto
+    and invgamma members, or None for another family: ``gamma(a)``:
+    ``a (a+1)..(a+k-1) Q(a + k, z)``; ``weibull_min(c)``: ``Gamma(1 + k/c) Q(1 + k/c, z^c)``;
+    ``lognorm(s)``: ``e^{k^2 s^2 / 2} Phi(k s - ln(z) / s)``; ``pareto(b)``:
+    ``b/(b-k) max(z, 1)^{k-b}``; ``invgamma(a)``: ``P(a - k, 1/z) / ((a-1)..(a-k))`` (infinite
+    where the ``k``-th moment is)."""
     from scipy import special  # on first use (import cost: tests/test_import_light.py)
 
-    if name == "expon":
-        return 1.0 if z <= 0 else (z + 1.0) * math.exp(-z)
     if name == "gamma":
         (a,) = shapes
-        return a if z <= 0 else a * float(special.gammaincc(a + 1.0, z))
+        m = a * (a + 1.0) if k == 2 else a
+        return m if z <= 0 else m * float(special.gammaincc(a + k, z))
     if name == "weibull_min":
         (c,) = shapes
-        m = math.gamma(1.0 + 1.0 / c)
-        return m if z <= 0 else m * float(special.gammaincc(1.0 + 1.0 / c, z ** c))
+        m = math.gamma(1.0 + k / c)
+        return m if z <= 0 else m * float(special.gammaincc(1.0 + k / c, z ** c))
     if name == "lognorm":
         (s,) = shapes
-        m = math.exp(s * s / 2.0)
-        return m if z <= 0 else m * float(special.ndtr(s - math.log(z) / s))
+        m = math.exp(k * k * s * s / 2.0)
+        return m if z <= 0 else m * float(special.ndtr(k * s - math.log(z) / s))
     if name == "pareto":
         (b,) = shapes
-        return math.inf if b <= 1 else b / (b - 1.0) * max(z, 1.0) ** (1.0 - b)
+        return math.inf if b <= k else b / (b - k) * max(z, 1.0) ** (k - b)
+    if name == "invgamma":
+        (a,) = shapes
+        if a <= k:
+            return math.inf
+        d = (a - 1.0) * (a - 2.0) if k == 2 else a - 1.0
+        return (1.0 if z <= 0 else float(special.gammainc(a - k, 1.0 / z))) / d
+    return None
+
+
+def _standard_tail(name: str, shapes: tuple, z: float) -> float | None:
+    """``G(z) = E[Y 1{Y > z}]`` for the standard member, or None without a closed form."""
+    if name == "expon":
+        return 1.0 if z <= 0 else (z + 1.0) * math.exp(-z)
     if name == "lomax":
         (c,) = shapes
         if c <= 1:
             return math.inf
         z = max(z, 0.0)
         return z * (1.0 + z) ** (-c) + (1.0 + z) ** (1.0 - c) / (c - 1.0)
-    if name == "invgamma":
-        (a,) = shapes
-        if a <= 1:
-            return math.inf
-        return 1.0 / (a - 1.0) if z <= 0 else float(special.gammainc(a - 1.0, 1.0 / z)) / (a - 1.0)
     if name == "halfnorm":
         z = max(z, 0.0)
         return 2.0 * math.exp(-z * z / 2.0) / math.sqrt(2.0 * math.pi)
@@ -75,7 +87,7 @@ def _standard_tail(name: str, shapes: tuple, z: float) -> float | None:
     if name == "uniform":
         z = min(max(z, 0.0), 1.0)
         return (1.0 - z * z) / 2.0
-    return None
+    return _family_tail(name, shapes, z, 1)
 
 
 def _standard_tail2(name: str, shapes: tuple, z: float) -> float | None:
@@ -87,32 +99,12 @@ def _standard_tail2(name: str, shapes: tuple, z: float) -> float | None:
 
     if name == "expon":
         return 2.0 if z <= 0 else (z * z + 2.0 * z + 2.0) * math.exp(-z)
-    if name == "gamma":
-        (a,) = shapes
-        return a * (a + 1.0) * (1.0 if z <= 0 else float(special.gammaincc(a + 2.0, z)))
-    if name == "weibull_min":
-        (c,) = shapes
-        m = math.gamma(1.0 + 2.0 / c)
-        return m if z <= 0 else m * float(special.gammaincc(1.0 + 2.0 / c, z ** c))
-    if name == "lognorm":
-        (s,) = shapes
-        m = math.exp(2.0 * s * s)
-        return m if z <= 0 else m * float(special.ndtr(2.0 * s - math.log(z) / s))
-    if name == "pareto":
-        (b,) = shapes
-        return math.inf if b <= 2 else b / (b - 2.0) * max(z, 1.0) ** (2.0 - b)
     if name == "lomax":
         (c,) = shapes
         if c <= 2:
             return math.inf
         w = 1.0 + max(z, 0.0)  # substitute w = 1 + y: c int (w - 1)^2 w^(-c-1) dw
         return c * (w ** (2.0 - c) / (c - 2.0) - 2.0 * w ** (1.0 - c) / (c - 1.0) + w ** (-c) / c)
-    if name == "invgamma":
-        (a,) = shapes
-        if a <= 2:
-            return math.inf
-        return (1.0 if z <= 0 else float(special.gammainc(a - 2.0, 1.0 / z))) / (
-            (a - 1.0) * (a - 2.0))
     if name in ("halfnorm", "norm"):
         zz = max(z, 0.0) if name == "halfnorm" else z
         val = zz * math.exp(-zz * zz / 2.0) / math.sqrt(2.0 * math.pi) + float(special.ndtr(-zz))
@@ -120,7 +112,7 @@ def _standard_tail2(name: str, shapes: tuple, z: float) -> float | None:
     if name == "uniform":
         z = min(max(z, 0.0), 1.0)
         return (1.0 - z ** 3) / 3.0
-    return None
+    return _family_tail(name, shapes, z, 2)
 
 
 TAIL2_SLACK = 1e-12

@@ -23,6 +23,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
+
 from .law_moments import is_scipy_continuous, tail_moment
 
 
@@ -34,6 +35,14 @@ def _check_law(law, name: str):
         raise ValueError(f"{name} must live on [0, inf) (support starts at "
                          f"{float(law.support()[0])})")
     return law
+
+
+def _positive_finite(value, name: str) -> float:
+    """``value`` as a float ``> 0`` and finite (ValueError naming ``name`` otherwise)."""
+    v = float(value)
+    if not (v > 0 and math.isfinite(v)):
+        raise ValueError(f"{name} must be positive and finite; got {value!r}")
+    return v
 
 
 def _built(*args):
@@ -63,9 +72,7 @@ def splice(below, above, threshold: float, weight_below: float | None = None):
     """Spliced severity: ``below`` conditioned on ``X <= t`` with probability ``w``, ``above``
     conditioned on ``X > t`` with ``1 - w`` (default ``w = F_below(t)``)."""
     below, above = _check_law(below, "below"), _check_law(above, "above")
-    t = float(threshold)
-    if not (t > 0 and math.isfinite(t)):
-        raise ValueError(f"threshold must be positive and finite; got {threshold!r}")
+    t = _positive_finite(threshold, "threshold")
     f1t, s2t = float(below.cdf(t)), float(above.sf(t))
     if f1t <= 0 or s2t <= 0:
         raise ValueError("below must have mass at or below the threshold and above mass above it")
@@ -156,9 +163,7 @@ def left_truncated(law, deductible: float, *, shift: bool = False):
 def censored(law, limit: float):
     """``min(X, u)``: the law up to ``u`` and an atom ``S(u)`` at ``u``."""
     law = _check_law(law, "law")
-    u = float(limit)
-    if not (u > 0 and math.isfinite(u)):
-        raise ValueError(f"limit must be positive and finite; got {limit!r}")
+    u = _positive_finite(limit, "limit")
     su = float(law.sf(u))
 
     def cdf(x):
@@ -182,9 +187,7 @@ def censored(law, limit: float):
 def inflated(law, factor: float):
     """``r X`` for ``r > 0``: a scipy law with ``loc`` and ``scale`` multiplied by ``r``."""
     law = _check_law(law, "law")
-    r = float(factor)
-    if not (r > 0 and math.isfinite(r)):
-        raise ValueError(f"factor must be positive and finite; got {factor!r}")
+    r = _positive_finite(factor, "factor")
     kwds = dict(law.kwds)
     args = list(law.args)
     dist = law.dist

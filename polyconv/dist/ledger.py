@@ -104,45 +104,36 @@ def exact(n: int) -> ErrorLedger:
     return ErrorLedger(0.0, 0.0, 0.0, int(n), 0.0)
 
 
+def _non_negative(ledger: ErrorLedger, name: str) -> float:
+    """Field ``name`` of ``ledger`` as a float >= 0 (TypeError / ValueError naming it)."""
+    v = getattr(ledger, name)
+    try:
+        v = float(v)
+    except (TypeError, ValueError, OverflowError):
+        raise TypeError(f"errors.{name} must be a real number; got {v!r}") from None
+    if not v >= 0:
+        raise ValueError(f"errors.{name} must be >= 0; got {v!r}")
+    return v
+
+
 def validate(ledger: ErrorLedger, n: int) -> ErrorLedger:
     """Check a ledger's fields (non-negative bounds, index in ``[0, n]``); ValueError naming the
     field otherwise.  Returns it as floats/ints."""
     if not isinstance(ledger, ErrorLedger):
         raise TypeError(f"errors must be an ErrorLedger; got {type(ledger).__name__}")
-    out = []
-    for name in ("point", "l1", "truncated", "truncated_moment"):
-        v = getattr(ledger, name)
-        try:
-            v = float(v)
-        except (TypeError, ValueError, OverflowError):
-            raise TypeError(f"errors.{name} must be a real number; got {v!r}") from None
-        if not v >= 0:
-            raise ValueError(f"errors.{name} must be >= 0; got {v!r}")
-        out.append(v)
-    point, l1, truncated, moment = out
+    point, l1, truncated, moment = (_non_negative(ledger, name) for name in
+                                    ("point", "l1", "truncated", "truncated_moment"))
     if point > 1 or truncated > 1 or not math.isfinite(l1):
         raise ValueError("errors.point and errors.truncated must be at most 1 and errors.l1 "
                          f"finite; got {ledger!r}")
-    try:
-        cumulative = float(ledger.cumulative)
-    except (TypeError, ValueError, OverflowError):
-        raise TypeError(f"errors.cumulative must be a real number; got "
-                        f"{ledger.cumulative!r}") from None
-    if not cumulative >= 0:
-        raise ValueError(f"errors.cumulative must be >= 0; got {ledger.cumulative!r}")
+    cumulative = _non_negative(ledger, "cumulative")
     tf = ledger.truncated_from
     if isinstance(tf, bool) or not isinstance(tf, int) and not hasattr(tf, "__index__"):
         raise TypeError(f"errors.truncated_from must be an integer; got {tf!r}")
     tf = int(tf)
     if not 0 <= tf <= n:
         raise ValueError(f"errors.truncated_from must lie in [0, {n}]; got {tf}")
-    try:
-        moment2 = float(ledger.truncated_moment2)
-    except (TypeError, ValueError, OverflowError):
-        raise TypeError(f"errors.truncated_moment2 must be a real number; got "
-                        f"{ledger.truncated_moment2!r}") from None
-    if not moment2 >= 0:
-        raise ValueError(f"errors.truncated_moment2 must be >= 0; got {moment2!r}")
+    moment2 = _non_negative(ledger, "truncated_moment2")
     return ErrorLedger(point, min(l1, 2.0), truncated, tf, moment, min(cumulative, l1, 2.0),
                        moment2)
 

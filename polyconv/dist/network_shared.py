@@ -132,7 +132,7 @@ def _sum_by_events(net, c: int, part: str, s: str, law: Lattice, support, fixed,
     shifted pieces of two pmfs (no evaluation per point).  Ledger as :func:`by_events` (the
     result is a push-forward of the leaves' product measure; summation by parts over the
     values of ``S`` adds its cumulative bound once)."""
-    leaves = _leaves(net, part, [s], fixed, replace, memo)
+    leaves = _leaves(net, [part], [s], fixed, replace, memo)
     names = list(leaves)
     lats = [leaves[n] for n in names]
     _check(lats, part)
@@ -187,9 +187,9 @@ def _sum_by_events(net, c: int, part: str, s: str, law: Lattice, support, fixed,
                                      moment, min(cum + r_cum, 2.0), moment))
 
 
-def _leaves(net, name: str, here: list[str], fixed, replace, memo) -> dict[str, Lattice]:
-    """The independent atoms below ``name``: the shared stages of ``here`` and every block or
-    stage that holds none of them."""
+def _leaves(net, roots, here: list[str], fixed, replace, memo) -> dict[str, Lattice]:
+    """The independent atoms below the nodes ``roots``: the shared stages of ``here`` and every
+    block or stage that holds none of them."""
     sub = net._subtrees()
     leaves: dict[str, Lattice] = {}
 
@@ -202,7 +202,8 @@ def _leaves(net, name: str, here: list[str], fixed, replace, memo) -> dict[str, 
         for p in node.parts:
             collect(p)
 
-    collect(name)
+    for r in roots:
+        collect(r)
     return leaves
 
 
@@ -224,28 +225,13 @@ def by_events(net, name: str, here: list[str], fixed, replace, memo) -> Lattice:
     # deterministic given the events, so both uses see the same value); the rest are atoms
     here = [s for s in here if not (isinstance(net.nodes[s], Block) and
                                     sub[s] & (set(here) - {s}))]
-    leaves: dict[str, Lattice] = {}
-
-    def collect(n: str) -> None:
-        node = net.nodes[n]
-        if n in here or n in fixed or n in replace or not isinstance(node, Block) or \
-                not (sub[n] & set(here)):
-            leaves[n] = net._eval(n, fixed, replace, memo)
-            return
-        for p in node.parts:
-            collect(p)
-
-    for p in net.nodes[name].parts:
-        collect(p)
+    leaves = _leaves(net, net.nodes[name].parts, here, fixed, replace, memo)
     names = list(leaves)
     lats = [leaves[n] for n in names]
     _check(lats, name)
     h, base, offs, length = _grid(lats)
     limit = known_limit(lats, offs, length)
-    cdfs: dict[str, tuple[np.ndarray, np.ndarray]] = {}
-    for n, o, d in zip(names, offs, lats, strict=True):
-        c, tail, r = _represented(d, o, length)
-        cdfs[n] = (np.clip(c[:limit], 0, 1), np.clip(tail[:limit] + (1.0 - r), 0, 1))
+    cdfs = {n: _cdf_pair(d, o, length, limit) for n, o, d in zip(names, offs, lats, strict=True)}
     cdf = np.zeros(limit)
     sf = np.zeros(limit)
     for outcome in range(1 << len(here)):

@@ -44,31 +44,55 @@ CACHE = _jit.cache_enabled()
 BLOCK = 1 << 12
 
 
-@njit("void(uint32[::1], uint64, uint32[::1], uint32[::1], int64, int64)", cache=CACHE)
-def _dif_stages(x, p, tw, twq, h_first, h_last):
-    """Gentleman-Sande stages ``(u, v) -> (u + v, (u - v) w^j)`` over the whole of ``x``, for
-    half-lengths ``h = h_first, h_first/2, .., h_last``; values stay in ``[0, 2p)``.
+@njit(inline="always")
+def _stages(x, p, tw, twq, h_first, h_last, dif):
+    """Butterfly stages over the whole of ``x``.  ``dif``: Gentleman-Sande stages
+    ``(u, v) -> (u + v, (u - v) w^j)`` for half-lengths ``h = h_first, h_first/2, .., h_last``,
+    values staying in ``[0, 2p)``; else Cooley-Tukey stages ``(u, v) -> (u + v w^j, u - v w^j)``
+    for ``h = h_first, 2 h_first, .., h_last`` (``w`` the inverse roots), inputs and outputs in
+    ``[0, 4p)``.
 
     Arithmetic is on uint32 words with wrap-around (``min(a, a - 2p)`` is ``a mod 2p`` for
     ``a < 4p``; the Shoup remainder is exact modulo ``2^32``), which lets the compiler
-    vectorise the inner loop (measured: 3x faster than uint64 temporaries).
+    vectorise the inner loops (measured: 3x faster than uint64 temporaries).  Inlined into
+    :func:`_dif_stages` and :func:`_dit_stages` with ``dif`` a constant, so each is compiled
+    without the other's branch (a run-time test measured 1-3% slower).
     """
     n = x.shape[0]
     pp = np.uint32(p)
     p2 = np.uint32(p + p)
     h = h_first
-    while h >= h_last:
+    while (h >= h_last) if dif else (h <= h_last):
         w = tw[h:2 * h]
         wq = twq[h:2 * h]
         for s in range(0, n, 2 * h):
             xu = x[s:s + h]
             xv = x[s + h:s + 2 * h]
-            for j in range(h):
-                u = xu[j]
-                v = xv[j]
-                xu[j] = add_2p(u, v, p2)
-                xv[j] = twist(u + p2 - v, w[j], wq[j], pp)
-        h >>= 1
+            if dif:
+                for j in range(h):
+                    u = xu[j]
+                    v = xv[j]
+                    xu[j] = add_2p(u, v, p2)
+                    xv[j] = twist(u + p2 - v, w[j], wq[j], pp)
+            else:
+                for j in range(h):
+                    u = reduce_2p(xu[j], p2)
+                    t = twist(xv[j], w[j], wq[j], pp)
+                    xu[j] = u + t
+                    xv[j] = u + p2 - t
+        h = (h >> 1) if dif else (h << 1)
+
+
+@njit("void(uint32[::1], uint64, uint32[::1], uint32[::1], int64, int64)", cache=CACHE)
+def _dif_stages(x, p, tw, twq, h_first, h_last):
+    """The forward (Gentleman-Sande) stages of :func:`_stages`."""
+    _stages(x, p, tw, twq, h_first, h_last, True)
+
+
+@njit("void(uint32[::1], uint64, uint32[::1], uint32[::1], int64, int64)", cache=CACHE)
+def _dit_stages(x, p, tw, twq, h_first, h_last):
+    """The inverse (Cooley-Tukey) stages of :func:`_stages`."""
+    _stages(x, p, tw, twq, h_first, h_last, False)
 
 
 @njit("void(uint32[::1], uint64, uint32[::1], uint32[::1])", cache=CACHE)
@@ -102,29 +126,6 @@ def _dif_from(x, p, tw, twq, h_first):
         _dif_last_two(x, p, tw, twq)
     elif x.shape[0] == 2:
         _dif_stages(x, p, tw, twq, 1, 1)
-
-
-@njit("void(uint32[::1], uint64, uint32[::1], uint32[::1], int64, int64)", cache=CACHE)
-def _dit_stages(x, p, tw, twq, h_first, h_last):
-    """Cooley-Tukey stages ``(u, v) -> (u + v w^j, u - v w^j)`` over the whole of ``x``, for
-    half-lengths ``h = h_first, 2 h_first, .., h_last`` (``w`` the inverse roots); inputs in
-    ``[0, 4p)``, outputs in ``[0, 4p)``; uint32 arithmetic as in :func:`_dif_stages`."""
-    n = x.shape[0]
-    pp = np.uint32(p)
-    p2 = np.uint32(p + p)
-    h = h_first
-    while h <= h_last:
-        w = tw[h:2 * h]
-        wq = twq[h:2 * h]
-        for s in range(0, n, 2 * h):
-            xu = x[s:s + h]
-            xv = x[s + h:s + 2 * h]
-            for j in range(h):
-                u = reduce_2p(xu[j], p2)
-                t = twist(xv[j], w[j], wq[j], pp)
-                xu[j] = u + t
-                xv[j] = u + p2 - t
-        h <<= 1
 
 
 @njit("void(uint32[::1], uint64, uint32[::1], uint32[::1])", cache=CACHE)

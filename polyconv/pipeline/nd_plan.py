@@ -32,7 +32,7 @@ from ..engines.fft import predict_fft, thread_speedup
 from ..numerics import transforms as tf
 from ..tuning.costs import load_costs
 from ..tuning.threads import THREADS
-from .plan import format_seconds
+from .plan import PlanHead, format_seconds
 
 FLOAT_ND_METHODS = ("auto", "direct", "fft", "overlap-add")
 
@@ -49,7 +49,7 @@ OVERLAP_ADD_FACTOR = 2.0
 
 
 @dataclass(frozen=True, slots=True)
-class NdPlan:
+class NdPlan(PlanHead):
     """How a product over several axes will be computed, and why.
 
     Attributes
@@ -84,12 +84,6 @@ class NdPlan:
         Lengths of the flattened operands.
     """
 
-    engine: str
-    exact: bool
-    certificate: str
-    error_bound: float
-    predicted_seconds: float
-    reason: str
     kind: str
     axes: tuple
     modes: tuple
@@ -114,10 +108,7 @@ class NdPlan:
         lines = [
             f"polyconv plan: {self.engine} over axes {self.axes} for {self.kind} operands of "
             f"extents {sa} and {sb}{batch}, mode {modes!r} -> {self.output_shape}",
-            f"  why:         {self.reason}",
-            f"  predicted:   {format_seconds(self.predicted_seconds)}",
-            f"  exact:       {'yes' if self.exact else 'no'} (certificate: {self.certificate})",
-            "  error bound: " + ("0 (exact)" if self.error_bound == 0 else
+            *self._verdict_lines("0 (exact)" if self.error_bound == 0 else
                                  "not computed" if math.isinf(self.error_bound) else
                                  f"{self.error_bound:.3g} (absolute, any coefficient)"),
         ]

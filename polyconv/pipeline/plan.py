@@ -111,7 +111,29 @@ def engine_settings(engine: str, values: dict) -> _Settings:
 
 
 @dataclass(frozen=True, slots=True)
-class Plan:
+class PlanHead:
+    """The verdict every plan states first: the engine chosen, how far its result can be
+    trusted, its predicted time and why (fields as in :class:`Plan`; shared with
+    :class:`polyconv.pipeline.nd_plan.NdPlan`)."""
+
+    engine: str
+    exact: bool
+    certificate: str
+    error_bound: float
+    predicted_seconds: float
+    reason: str
+
+    def _verdict_lines(self, bound_text: str) -> list[str]:
+        """The why / predicted / exact / error-bound lines of ``str(plan)``."""
+        return [f"  why:         {self.reason}",
+                f"  predicted:   {format_seconds(self.predicted_seconds)}",
+                f"  exact:       {'yes' if self.exact else 'no'} (certificate: "
+                f"{self.certificate})",
+                f"  error bound: {bound_text}"]
+
+
+@dataclass(frozen=True, slots=True)
+class Plan(PlanHead):
     """How one convolution will be computed, and why.
 
     Attributes
@@ -162,12 +184,6 @@ class Plan:
         For exact plans: whether the result is returned as int64 (else Python ints).
     """
 
-    engine: str
-    exact: bool
-    certificate: str
-    error_bound: float
-    predicted_seconds: float
-    reason: str
     kind: str = "real"
     mode: str = "full"
     lengths: tuple = (0, 0)
@@ -192,10 +208,7 @@ class Plan:
         lines = [
             f"polyconv plan: {self.engine} for {self.kind} operands of lengths {n1} and {n2}"
             f"{batch}, mode {self.mode!r} -> {self.output_length} outputs",
-            f"  why:         {self.reason}",
-            f"  predicted:   {format_seconds(self.predicted_seconds)}",
-            f"  exact:       {'yes' if self.exact else 'no'} (certificate: {self.certificate})",
-            f"  error bound: {_fmt_bound(self.error_bound)}",
+            *self._verdict_lines(_fmt_bound(self.error_bound)),
         ]
         if self.transform_length:
             detail = f"  transform:   length {self.transform_length}"
