@@ -83,6 +83,12 @@ def tail_sums(pmf: np.ndarray, long: bool = False) -> tuple[np.ndarray, np.ndarr
     return (s, t) if long else (s.astype(float), t.astype(float))
 
 
+def _pair_entry(pair: str, i: int, doc: str) -> property:
+    """Entry ``i`` of the cached pair ``pair`` of a :class:`Bracketer` as a read-only
+    property."""
+    return property(lambda self: getattr(self, pair)[i], doc=doc)
+
+
 class Bracketer(ExpectationBounds):
     """Certified bounds of every query on one Lattice (arrays built once, ``O(n)``).
 
@@ -276,21 +282,10 @@ class Bracketer(ExpectationBounds):
         return (np.clip(np.maximum(tail_low, 1.0 - cum_high - 2 * _U), 0.0, 1.0),
                 np.clip(np.minimum(tail_high, 1.0 - cum_low + 2 * _U), 0.0, 1.0))
 
-    @property
-    def F_low(self) -> np.ndarray:  # noqa: N802
-        return self._cdf_pair[0]
-
-    @property
-    def F_high(self) -> np.ndarray:  # noqa: N802
-        return self._cdf_pair[1]
-
-    @property
-    def S_low(self) -> np.ndarray:  # noqa: N802
-        return self._sf_pair[0]
-
-    @property
-    def S_high(self) -> np.ndarray:  # noqa: N802
-        return self._sf_pair[1]
+    F_low = _pair_entry("_cdf_pair", 0, "Lower bounds of the cdf at each index.")
+    F_high = _pair_entry("_cdf_pair", 1, "Upper bounds of the cdf at each index.")
+    S_low = _pair_entry("_sf_pair", 0, "Lower bounds of the survival function at each index.")
+    S_high = _pair_entry("_sf_pair", 1, "Upper bounds of the survival function at each index.")
 
     @cached_property
     def _run_high(self) -> np.ndarray:
