@@ -35,12 +35,14 @@ def kernel_parse(buf: np.ndarray, delimiter: int | None, index: int, ncols: int)
         from ._parse_kernel import OK, parse_numbers
     except Exception:  # noqa: BLE001 - numba missing or failing here: numpy.loadtxt instead
         return None
-    lines = int(np.count_nonzero(buf == 10)) + 1
-    out = np.empty(lines if delimiter is not None else buf.size // 2 + 1)
+    # at most one number per two bytes ("1\n"): an upper bound without a counting pass; the
+    # untouched pages are never committed, and resize shrinks the block in place (realloc)
+    out = np.empty(buf.size // 2 + 1)
     count, status = parse_numbers(buf, -1 if delimiter is None else delimiter, index, out)
     if status != OK or count == 0:
         return None
-    return out[:count].copy()
+    out.resize((count,), refcheck=False)
+    return out
 
 
 

@@ -61,8 +61,11 @@ def as_samples(samples, name: str) -> np.ndarray:
 def _indices(x: np.ndarray, step: float, origin: float, rule: str) -> np.ndarray:
     """Lattice index of each sample by ``rule`` (as int64; the arithmetic ``(x - origin) /
     step`` then the rounding, in place: one temporary for 10^6 samples, not three)."""
-    v = np.subtract(x, origin) if origin != 0 else np.array(x, dtype=float)
-    np.divide(v, step, out=v)
+    if origin != 0:
+        v = np.subtract(x, origin)
+        np.divide(v, step, out=v)
+    else:
+        v = np.divide(x, step)  # x - 0 is x: one pass less
     if rule == "nearest":
         v += 0.5
         np.floor(v, out=v)
@@ -92,7 +95,7 @@ def _weights(counts, size: int) -> np.ndarray | None:
 
 
 def check_spread(x: np.ndarray, w: np.ndarray | None, h: float, k: np.ndarray,
-                 origin: float) -> float:
+                 origin: float, counts: np.ndarray | None = None) -> float:
     """Warn (:class:`~polyconv.dist.step_check.CoarseStepWarning`) when the step is much coarser
     than the samples' spread (:data:`COARSE_SPREAD`) and the samples are not on the lattice;
     returns the standard deviation (``nan`` when it was not needed).
@@ -100,10 +103,11 @@ def check_spread(x: np.ndarray, w: np.ndarray | None, h: float, k: np.ndarray,
     Binning moves each sample by at most ``h / 2`` (rule ``nearest``; ``h`` for ``down`` /
     ``up``), so the standard deviation of the samples is at least that of their lattice
     points minus ``h`` (Minkowski's inequality); only when that does not settle it are the
-    samples themselves looked at."""
+    samples themselves looked at.  ``counts``: ``bincount(k)`` when already computed."""
     lo, hi = int(k.min()), int(k.max())
     if hi - lo > 64:
-        counts = np.bincount(k - lo, weights=w).astype(float)
+        counts = (np.bincount(k - lo, weights=w) if counts is None else counts[lo:]
+                  ).astype(float)
         j = np.arange(counts.size, dtype=float)
         mean = float(np.dot(counts, j) / counts.sum())
         binned_sd = h * math.sqrt(max(float(np.dot(counts, (j - mean) ** 2) / counts.sum()), 0))
@@ -123,9 +127,11 @@ def check_spread(x: np.ndarray, w: np.ndarray | None, h: float, k: np.ndarray,
     return sd
 
 
-def band_inputs(samples, step, origin, counts, alpha, rule):
+def band_inputs(samples, step, origin, counts, alpha, rule, *, with_counts=False):
     """Checked samples ``x``, weights ``w`` (None: one each), step ``h``, origin ``o``, sample
-    size ``n``, DKW half-width ``eps`` and the lattice index ``k`` of every sample."""
+    size ``n``, DKW half-width ``eps`` and the lattice index ``k`` of every sample; with
+    ``with_counts`` also ``bincount(k, weights=w)`` (computed once for the spread check and
+    the binned law)."""
     x = as_samples(samples, "samples")
     h = real_value(step, "step")
     if not h > 0:
@@ -141,8 +147,12 @@ def band_inputs(samples, step, origin, counts, alpha, rule):
         j = int(np.argmin(k))
         raise ValueError(f"samples must lie on or above the lattice origin {o!r}; "
                          f"samples[{j}] = {x[j]!r}")
-    check_spread(x, w, h, k, o)
-    return x, w, h, o, n, eps, k
+    full = None
+    if with_counts:
+        check_allocation(8 * (int(k.max()) + 2), "empirical lattice of the samples")
+        full = np.bincount(k, weights=w)
+    check_spread(x, w, h, k, o, full)
+    return (x, w, h, o, n, eps, k, full) if with_counts else (x, w, h, o, n, eps, k)
 
 
 def binned(k: np.ndarray, w: np.ndarray | None, n: float, top: int) -> np.ndarray:
@@ -168,14 +178,16 @@ def band_law(samples, *, step, origin=0.0, counts=None, alpha=0.05, rule="neares
     allows beyond the data, ``(eps + cumulative) max(|upper|, |origin|)``; without it that moment
     is unknown (infinite) and means are refused.
     """
-    x, w, h, o, n, eps, k = band_inputs(samples, step, origin, counts, alpha, rule)
-    pmf = binned(k, w, n, int(k.max()))
+    x, w, h, o, n, eps, k, full = band_inputs(samples, step, origin, counts, alpha, rule,
+                                              with_counts=True)
+    pmf = full / n  # = binned(k, w, n, k.max())
+    largest = x.max()
     moment = math.inf
     if upper is not None:
         top_value = real_value(upper, "upper")
-        if top_value < float(x.max()):
-            raise ValueError(f"upper must be at least the largest sample {x.max()!r}; "
+        if top_value < float(largest):
+            raise ValueError(f"upper must be at least the largest sample {largest!r}; "
                              f"got {upper!r}")
         cum = band_ledger(eps, pmf.size, 0.0).cumulative
         moment = min(eps + cum, 1.0) * max(abs(top_value), abs(o))
-    return np.minimum(pmf, 1.0), h, o, band_ledger(eps, pmf.size, moment), n, eps, float(x.max())
+    return np.minimum(pmf, 1.0), h, o, band_ledger(eps, pmf.size, moment), n, eps, float(largest)
