@@ -9,6 +9,7 @@ than numpy 2's ``loadtxt`` (0.8-1.0 s vs 0.6-0.8 s per 10^6 values, busy machine
 
 from __future__ import annotations
 
+import importlib.util
 import os
 import sys
 from pathlib import Path
@@ -22,6 +23,41 @@ KERNEL_BYTES = 8 << 20
 second once per process; numpy.loadtxt costs about as much per 10^6 values)."""
 
 
+_BLAS_PROBE = "scipy.linalg.cython_blas"
+
+
+def _kernel():
+    """The module :mod:`polyconv.cli._parse_kernel`, loaded (numba cache) and run once on a
+    tiny buffer.
+
+    Loading a cached numba function sets up numba's CPU target, whose ``numba.np.arraymath``
+    probes for BLAS by importing ``scipy.linalg`` (0.2-0.3 s of CPU, about a third of the
+    load, for a kernel that does no linear algebra).  The probe is deferred: while the kernel
+    loads, that one module is marked absent in ``sys.modules`` (its import fails at once), then
+    the mark is removed and numba's flag is set back to "BLAS available" when scipy is
+    installed, so a kernel compiled later in this process that needs BLAS imports it then, as
+    numba's own ``ensure_blas`` does for ``np.dot``.
+    """
+    if "polyconv.cli._parse_kernel" in sys.modules:
+        return sys.modules["polyconv.cli._parse_kernel"]
+    from ..engines import jit_state
+    jit_state.cache_enabled()  # points numba at a writable cache before it is imported
+    blocked = _BLAS_PROBE not in sys.modules and "numba.np.arraymath" not in sys.modules
+    if blocked:
+        sys.modules[_BLAS_PROBE] = None  # type: ignore[assignment]
+    try:
+        from . import _parse_kernel as kernel
+        kernel.parse_numbers(np.frombuffer(b"1\n", dtype=np.uint8), -1, 0, np.empty(2))
+    finally:
+        if blocked and sys.modules.get(_BLAS_PROBE, 0) is None:
+            del sys.modules[_BLAS_PROBE]
+            arraymath = sys.modules.get("numba.np.arraymath")
+            if arraymath is not None and getattr(arraymath, "_HAVE_BLAS", True) is False \
+                    and importlib.util.find_spec("scipy") is not None:
+                arraymath._HAVE_BLAS = True
+    return kernel
+
+
 def kernel_parse(buf: np.ndarray, delimiter: int | None, index: int, ncols: int):
     """The compiled parser's values (:mod:`polyconv.cli._parse_kernel`), or None: file small,
     numba absent or disabled (``POLYCONV_JIT=0``), or a number it does not take (fall back)."""
@@ -30,16 +66,15 @@ def kernel_parse(buf: np.ndarray, delimiter: int | None, index: int, ncols: int)
     if os.environ.get("POLYCONV_JIT", "").strip().lower() in ("0", "off", "no", "false"):
         return None
     try:
-        from ..engines import jit_state
-        jit_state.cache_enabled()  # points numba at a writable cache before it is imported
-        from ._parse_kernel import OK, parse_numbers
+        kernel = _kernel()
     except Exception:  # noqa: BLE001 - numba missing or failing here: numpy.loadtxt instead
         return None
     # at most one number per two bytes ("1\n"): an upper bound without a counting pass; the
     # untouched pages are never committed, and resize shrinks the block in place (realloc)
     out = np.empty(buf.size // 2 + 1)
-    count, status = parse_numbers(buf, -1 if delimiter is None else delimiter, index, out)
-    if status != OK or count == 0:
+    count, status = kernel.parse_numbers(buf, -1 if delimiter is None else delimiter, index,
+                                         out)
+    if status != kernel.OK or count == 0:
         return None
     out.resize((count,), refcheck=False)
     return out

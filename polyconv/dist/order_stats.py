@@ -101,10 +101,10 @@ def _count_tails(k: int, mult: list[int], fs: list[np.ndarray], ss: list[np.ndar
                  ) -> tuple[np.ndarray, np.ndarray]:
     """``(P(C >= k), P(C < k))`` at each point for groups of multiplicity ``mult`` with
     finished / unfinished probabilities ``fs`` / ``ss``."""
-    from scipy import special  # on first use (import cost: tests/test_import_light.py)
-
     n = sum(mult)
     if len(mult) == 1:
+        from scipy import special  # on first use (import cost: tests/test_import_light.py)
+
         m, f, s = mult[0], fs[0], ss[0]
         with np.errstate(invalid="ignore"):
             ge = special.betainc(float(k), float(m - k + 1), f)
