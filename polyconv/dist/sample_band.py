@@ -78,6 +78,10 @@ def _indices(x: np.ndarray, step: float, origin: float, rule: str) -> np.ndarray
     return v.astype(np.int64)
 
 
+def _is_float_array(samples) -> bool:
+    return isinstance(samples, np.ndarray) and samples.dtype == np.float64
+
+
 def _weights(counts, size: int) -> np.ndarray | None:
     if counts is None:
         return None
@@ -95,7 +99,8 @@ def _weights(counts, size: int) -> np.ndarray | None:
 
 
 def check_spread(x: np.ndarray, w: np.ndarray | None, h: float, k: np.ndarray,
-                 origin: float, counts: np.ndarray | None = None) -> float:
+                 origin: float, counts: np.ndarray | None = None,
+                 krange: tuple[int, int] | None = None) -> float:
     """Warn (:class:`~polyconv.dist.step_check.CoarseStepWarning`) when the step is much coarser
     than the samples' spread (:data:`COARSE_SPREAD`) and the samples are not on the lattice;
     returns the standard deviation (``nan`` when it was not needed).
@@ -103,8 +108,9 @@ def check_spread(x: np.ndarray, w: np.ndarray | None, h: float, k: np.ndarray,
     Binning moves each sample by at most ``h / 2`` (rule ``nearest``; ``h`` for ``down`` /
     ``up``), so the standard deviation of the samples is at least that of their lattice
     points minus ``h`` (Minkowski's inequality); only when that does not settle it are the
-    samples themselves looked at.  ``counts``: ``bincount(k)`` when already computed."""
-    lo, hi = int(k.min()), int(k.max())
+    samples themselves looked at.  ``counts``: ``bincount(k)``, ``krange``: ``(k.min(),
+    k.max())``, when already known."""
+    lo, hi = (int(k.min()), int(k.max())) if krange is None else krange
     if hi - lo > 64:
         counts = (np.bincount(k - lo, weights=w) if counts is None else counts[lo:]
                   ).astype(float)
@@ -132,7 +138,13 @@ def band_inputs(samples, step, origin, counts, alpha, rule, *, with_counts=False
     size ``n``, DKW half-width ``eps`` and the lattice index ``k`` of every sample; with
     ``with_counts`` also ``bincount(k, weights=w)`` (computed once for the spread check and
     the binned law)."""
-    x = as_samples(samples, "samples")
+    x = np.asarray(samples, dtype=float).ravel() if _is_float_array(samples) else \
+        as_samples(samples, "samples")
+    if x.size == 0:
+        as_samples(x, "samples")  # raises: no value
+    lo_x, hi_x = x.min(), x.max()  # NaN propagates: all finite iff both ends are
+    if not (math.isfinite(lo_x) and math.isfinite(hi_x)):
+        as_samples(x, "samples")  # raises, naming the first value that is not finite
     h = real_value(step, "step")
     if not h > 0:
         raise ValueError(f"step must be positive; got {step!r}")
@@ -143,15 +155,18 @@ def band_inputs(samples, step, origin, counts, alpha, rule, *, with_counts=False
     n = float(x.size if w is None else w.sum())
     eps = dkw_epsilon(n, alpha)
     k = _indices(x, h, o, rule)
-    if k.min() < 0:
+    # the same operations on the two ends: (x - o) / h, the shift and the rounding are monotone
+    # in x (IEEE arithmetic rounds monotonically), so these are exactly k.min() and k.max()
+    k_lo, k_hi = (int(v) for v in _indices(np.array([lo_x, hi_x]), h, o, rule))
+    if k_lo < 0:
         j = int(np.argmin(k))
         raise ValueError(f"samples must lie on or above the lattice origin {o!r}; "
                          f"samples[{j}] = {x[j]!r}")
     full = None
     if with_counts:
-        check_allocation(8 * (int(k.max()) + 2), "empirical lattice of the samples")
+        check_allocation(8 * (k_hi + 2), "empirical lattice of the samples")
         full = np.bincount(k, weights=w)
-    check_spread(x, w, h, k, o, full)
+    check_spread(x, w, h, k, o, full, (k_lo, k_hi))
     return (x, w, h, o, n, eps, k, full) if with_counts else (x, w, h, o, n, eps, k)
 
 
