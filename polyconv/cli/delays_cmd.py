@@ -89,6 +89,7 @@ from . import distribution_report as skeleton
 from .bounded_rows import range_text
 from .delays_eval import DelayResult, compute, count_blocks
 from .delays_figure import delays_figure
+from .delays_figure import warm as figure_modules
 from .delays_spec import ROOT, DelaySpec, parse
 from .fileio import ReportFolder
 from .report import caution, fmt, fmt_prob, percent_level, percentile_name
@@ -313,6 +314,9 @@ def json_summary(res: DelayResult) -> dict:
 
 def run(args) -> int:
     """Entry point of ``polyconv delays``."""
-    return skeleton.run_spec_command(args, name="delays", parse=parse, compute=compute,
+    def compute_warm(spec, steps):
+        return compute(spec, steps, warm=figure_modules)
+
+    return skeleton.run_spec_command(args, name="delays", parse=parse, compute=compute_warm,
                                      report_of=report_of,
                                      step_count=lambda spec: count_blocks(spec) + 2)

@@ -81,6 +81,17 @@ def _figure(size: tuple[float, float]):
     return fig
 
 
+def warm() -> None:
+    """Import the figure's matplotlib modules now (about 0.4 s of CPU): ``polyconv delays``
+    calls it while the samples files are parsed on a worker thread
+    (:mod:`polyconv.cli.delays_prefetch`), so the two overlap."""
+    try:
+        import matplotlib.backends.backend_agg  # noqa: F401
+        import matplotlib.figure  # noqa: F401
+    except ImportError:  # no figure then (the report says so)
+        pass
+
+
 def delays_figure(total: Lattice, **options) -> bytes:
     """The PNG of :func:`delays_panels` (same arguments)."""
     import io

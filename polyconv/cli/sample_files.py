@@ -28,6 +28,7 @@ second once per process; numpy.loadtxt costs about as much per 10^6 values)."""
 
 
 _BLAS_PROBE = "scipy.linalg.cython_blas"
+KERNEL_MODULE = "polyconv.cli._parse_kernel"
 
 
 def _kernel():
@@ -42,8 +43,8 @@ def _kernel():
     installed, so a kernel compiled later in this process that needs BLAS imports it then, as
     numba's own ``ensure_blas`` does for ``np.dot``.
     """
-    if "polyconv.cli._parse_kernel" in sys.modules:
-        return sys.modules["polyconv.cli._parse_kernel"]
+    if KERNEL_MODULE in sys.modules:
+        return sys.modules[KERNEL_MODULE]
     from ..engines import jit_state
     jit_state.cache_enabled()  # points numba at a writable cache before it is imported
     blocked = _BLAS_PROBE not in sys.modules and "numba.np.arraymath" not in sys.modules
@@ -65,7 +66,7 @@ def _kernel():
 def kernel_parse(buf: np.ndarray, delimiter: int | None, index: int, ncols: int):
     """The compiled parser's values (:mod:`polyconv.cli._parse_kernel`), or None: file small,
     numba absent or disabled (``POLYCONV_JIT=0``), or a number it does not take (fall back)."""
-    if buf.size < KERNEL_BYTES and "polyconv.cli._parse_kernel" not in sys.modules:
+    if buf.size < KERNEL_BYTES and KERNEL_MODULE not in sys.modules:
         return None
     if os.environ.get("POLYCONV_JIT", "").strip().lower() in ("0", "off", "no", "false"):
         return None
@@ -89,7 +90,8 @@ class SampleFileError(ValueError):
     """A samples file that cannot be read (message names the file and what is wrong)."""
 
 
-def read_samples(path: str | Path, *, column: str | int | None = None) -> np.ndarray:
+def read_samples(path: str | Path, *, column: str | int | None = None,
+                 fast_only: bool = False) -> np.ndarray | None:
     """The samples in ``path`` as a float array.
 
     Parameters
@@ -100,6 +102,10 @@ def read_samples(path: str | Path, *, column: str | int | None = None) -> np.nda
         index, default 0) or anything else as plain text (numbers separated by white space).
     column : str or int, optional
         Which column of a CSV file or 2-D array.
+    fast_only : bool
+        Only the compiled kernel, already loaded in this process: None when it does not read
+        the file (then nothing is imported and no warning is issued, so a worker thread can
+        call it; :mod:`polyconv.cli.delays_prefetch`).
 
     Raises
     ------
@@ -112,6 +118,8 @@ def read_samples(path: str | Path, *, column: str | int | None = None) -> np.nda
     except OSError as exc:
         raise SampleFileError(f"cannot read samples file {str(p)!r}: {exc.strerror}") from None
     check_allocation(24 * size + (1 << 20), f"reading samples file {p.name}")
+    if fast_only and (p.suffix.lower() == ".npy" or KERNEL_MODULE not in sys.modules):
+        return None
     if p.suffix.lower() == ".npy":
         return _npy(p, column)
     try:
@@ -119,11 +127,11 @@ def read_samples(path: str | Path, *, column: str | int | None = None) -> np.nda
     except OSError as exc:
         raise SampleFileError(f"cannot read samples file {str(p)!r}: {exc.strerror}") from None
     if p.suffix.lower() == ".csv":
-        return _csv(p, raw, column)
+        return _csv(p, raw, column, fast_only)
     if column is not None:
         raise SampleFileError(f"{p.name}: 'column' applies to CSV files and 2-D .npy arrays")
     fast = kernel_parse(np.frombuffer(raw, dtype=np.uint8), None, 0, 1)
-    if fast is not None:
+    if fast is not None or fast_only:
         return fast
     import warnings
     with warnings.catch_warnings():
@@ -153,7 +161,7 @@ def _npy(p: Path, column) -> np.ndarray:
     return arr.astype(float, copy=False)
 
 
-def _csv(p: Path, raw: bytes, column) -> np.ndarray:
+def _csv(p: Path, raw: bytes, column, fast_only: bool = False) -> np.ndarray | None:
     nl = raw.find(b"\n")
     first = raw[: nl if nl >= 0 else len(raw)].decode("utf-8", "replace").strip()
     names = [c.strip().strip('"') for c in first.split(",")]
@@ -172,8 +180,10 @@ def _csv(p: Path, raw: bytes, column) -> np.ndarray:
                               "out of range")
     start = nl + 1 if header and nl >= 0 else 0
     body = np.frombuffer(raw, dtype=np.uint8)[start:]
-    return _fast_or_loadtxt(p, raw, body, ord(","), index, len(names),
-                            skip=1 if header else 0)
+    fast = kernel_parse(body, ord(","), index, len(names))
+    if fast is not None or fast_only:
+        return fast
+    return _loadtxt(p, ord(","), index, skip=1 if header else 0)
 
 
 def _is_number(text: str) -> bool:
@@ -184,11 +194,7 @@ def _is_number(text: str) -> bool:
         return False
 
 
-def _fast_or_loadtxt(p: Path, raw: bytes, buf: np.ndarray, delimiter: int | None, index: int,
-                     ncols: int, skip: int = 0) -> np.ndarray:
-    fast = kernel_parse(buf, delimiter, index, ncols)
-    if fast is not None:
-        return fast
+def _loadtxt(p: Path, delimiter: int | None, index: int, skip: int = 0) -> np.ndarray:
     try:
         with p.open("rb") as fh:
             out = np.loadtxt(fh, delimiter=None if delimiter is None else chr(delimiter),
