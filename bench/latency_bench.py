@@ -112,16 +112,13 @@ def breakdown(spec: Path, folder: Path) -> dict[str, float]:
     env = dict(os.environ, PYTHONPATH=str(Path(__file__).resolve().parents[1]))
     out = {}
     for what, code in (("python + numpy", "import numpy"),
-                       ("python + CLI parser (every command, scipy.stats)",
+                       ("python + CLI parser (every command)",
                         "import polyconv.cli.main as m; m.build_parser()"),
                        ("python + CLI parser + matplotlib figure/Agg",
                         "import polyconv.cli.main as m; m.build_parser(); "
                         "import matplotlib.figure, matplotlib.backends.backend_agg"),
-                       ("python + numba parser kernel loaded",
-                        "import numpy as np; from polyconv.engines import jit_state; "
-                        "jit_state.cache_enabled(); from polyconv.cli._parse_kernel import "
-                        "parse_numbers; parse_numbers(np.frombuffer(b'1\\n', dtype=np.uint8), "
-                        "-1, 0, np.empty(2))")):
+                       ("python + numba parser kernel loaded (as the CLI loads it)",
+                        "from polyconv.cli import sample_files; sample_files._kernel()")):
         cpu = _child_cpu()
         subprocess.run([sys.executable, "-c", code], env=env, check=True)
         out[what + " (CPU)"] = _child_cpu() - cpu

@@ -20,7 +20,7 @@ OK, FALLBACK = 0, 1
 _P10 = np.array([10.0 ** k for k in range(23)])
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)  # nogil: files parse on a worker thread (delays_prefetch)
 def parse_numbers(buf, delim, col, out):
     """Parse ``buf`` (uint8) into ``out``; ``delim < 0``: white-space separated numbers, else
     field ``col`` of each line split on byte ``delim``.  Returns ``(count, status)``."""

@@ -89,6 +89,7 @@ from . import distribution_report as skeleton
 from .bounded_rows import range_text
 from .delays_eval import DelayResult, compute, count_blocks
 from .delays_figure import delays_figure
+from .delays_figure import warm as figure_modules
 from .delays_spec import ROOT, DelaySpec, parse
 from .report import caution, fmt, fmt_prob, percent_level, percentile_name
 
@@ -299,6 +300,11 @@ def report_of(res: DelayResult) -> skeleton.DistributionReport:
         tables=[stage_table(res), *extra_tables(res)], markers=markers, figure=figure)
 
 
-COMMAND = skeleton.SpecCommand("delays", parse, compute, report_of,
+def _compute_warm(spec, steps):
+    """:func:`compute` with the figure's modules imported while the sample files are parsed."""
+    return compute(spec, steps, warm=figure_modules)
+
+
+COMMAND = skeleton.SpecCommand("delays", parse, _compute_warm, report_of,
                                 lambda spec: count_blocks(spec) + 2)
 write_report, json_summary, run = COMMAND.write_report, COMMAND.json_summary, COMMAND.run

@@ -22,7 +22,7 @@ from ..dist.network import Block, Network
 from ..dist.retry import hedge, retry
 from ..dist.samples import Sampled, empirical, from_histogram, stage_alpha
 from ..dist.sensitivity import StageEffect, Target, required_speedup, stage_effects
-from . import grid_mass, laws
+from . import delays_prefetch, grid_mass, laws
 from .bounded_rows import MeasureRow, ask
 from .delays_spec import (
     LEAF_EXTRAS,
@@ -75,7 +75,7 @@ def _plain(sec: Section) -> Section:
                    sec.doc)
 
 
-def _measured(spec: DelaySpec, name: str, sec: Section, alpha: float) -> Sampled:
+def _measured(spec: DelaySpec, name: str, sec: Section, alpha: float, ahead=None) -> Sampled:
     form = leaf_form(sec)
     c = leaf_factor(spec, sec)
     upper = sec.number("upper", None, positive=True) if sec.has("upper") else None
@@ -104,7 +104,7 @@ def _measured(spec: DelaySpec, name: str, sec: Section, alpha: float) -> Sampled
         sec.check_keys(("samples", "unit", "scale", "tail", "upper"))
         x = np.asarray(sec.numbers("samples", minimum=0.0), dtype=float)
     else:
-        x, source = _file_samples(spec, sec)
+        x, source = _file_samples(spec, sec, ahead)
     if c != 1.0:
         x = x * c
     tail = None
@@ -148,7 +148,7 @@ def is_measured(sec: Section) -> bool:
         (form == "table" and sec.has("counts"))
 
 
-def _file_samples(spec: DelaySpec, sec: Section) -> tuple[np.ndarray, str]:
+def _file_samples(spec: DelaySpec, sec: Section, ahead=None) -> tuple[np.ndarray, str]:
     sec.check_keys(("samples_file", "column", "unit", "scale", "tail", "upper"))
     path = Path(sec.string("samples_file"))
     if not path.is_absolute():
@@ -156,8 +156,9 @@ def _file_samples(spec: DelaySpec, sec: Section) -> tuple[np.ndarray, str]:
     column = sec.raw("column", None)
     if column is not None and (isinstance(column, bool) or not isinstance(column, (str, int))):
         raise sec.error("column", "must be a header name or a 0-based column index")
+    x = ahead.take(path, column) if ahead is not None else None  # read ahead (same values)
     try:
-        x = read_samples(path, column=column)
+        x = read_samples(path, column=column) if x is None else x
     except SampleFileError as exc:
         raise sec.error("samples_file", str(exc)) from None
     if x.size == 0:
@@ -182,8 +183,9 @@ def _law_points(spec: DelaySpec, sec: Section) -> float:
 # ------------------------------------------------------------------------------- compute
 
 
-def compute(spec: DelaySpec, steps: Steps | None = None) -> DelayResult:
-    """Read the stages, evaluate the network (shared stages one draw) and measure the total."""
+def compute(spec: DelaySpec, steps: Steps | None = None, *, warm=None) -> DelayResult:
+    """Read the stages, evaluate the network (shared stages one draw) and measure the total;
+    samples files are parsed ahead on a worker thread while ``warm()`` (if given) runs."""
     notes: list[str] = []
     descriptions: dict[str, str] = {}
     used = used_sections(spec)
@@ -192,12 +194,15 @@ def compute(spec: DelaySpec, steps: Steps | None = None) -> DelayResult:
     alpha = stage_alpha(1 - spec.confidence, len(measured))
     nodes: dict[str, Lattice | Block] = {}
     sampled: dict[str, Sampled] = {}
-    with collect_warnings(notes):
+    ahead = delays_prefetch.start(delays_prefetch.sources(spec, [leaves[n] for n in measured]))
+    with collect_warnings(notes), contextlib.closing(ahead):
+        if warm is not None:
+            warm()
         for name in measured:
             if steps:
                 steps.step(f"stage {name}")
             with stage_warnings(spec, name, leaves[name]):
-                s = _measured(spec, name, leaves[name], alpha)
+                s = _measured(spec, name, leaves[name], alpha, ahead)
             sampled[name] = s
             nodes[name] = s.lattice
             what = {"histogram": f"histogram of {s.n:,.0f} samples",

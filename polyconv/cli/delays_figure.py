@@ -81,6 +81,17 @@ def _figure(size: tuple[float, float]):
     return fig
 
 
+def warm() -> None:
+    """Import the figure's matplotlib modules now (about 0.4 s of CPU): ``polyconv delays``
+    calls it while the samples files are parsed on a worker thread
+    (:mod:`polyconv.cli.delays_prefetch`), so the two overlap."""
+    try:
+        import matplotlib.backends.backend_agg  # noqa: F401
+        import matplotlib.figure  # noqa: F401
+    except ImportError:  # no figure then (the report says so)
+        pass
+
+
 def delays_figure(total: Lattice, **options) -> bytes:
     """The PNG of :func:`delays_panels` (same arguments)."""
     import io
@@ -117,7 +128,7 @@ def delays_panels(total: Lattice, *, title: str, unit: str, axis: str = "auto",
         ax1.plot(*_thin(lat.values, np.asarray(lat.pmf), left, right, "mean"), lw=0.9,
                  alpha=0.8, label=f"stage {name}")
     ax1.set_ylabel("probability of each grid point")
-    ax1.set_title("distribution")
+    ax1.set_title("distribution", y=1.0)  # y given: no title layout pass (0.3 s)
     xs, sfs = _thin(x, sf, left, right, "start")
     shown = np.where(sfs > noise * 1e-2, sfs, np.nan)
     ax2.step(xs, shown, where="post", color="#b2402a", lw=1.5, label="P(delay > x)")
@@ -131,7 +142,7 @@ def delays_panels(total: Lattice, *, title: str, unit: str, axis: str = "auto",
     floor = max(noise * 1e-2, 0.1 * float(seen.min())) if seen.size else noise
     ax2.set_ylim(max(floor, 1e-16), 1.5)
     ax2.set_ylabel("probability of exceeding x (log scale)")
-    ax2.set_title("exceedance curve")
+    ax2.set_title("exceedance curve", y=1.0)
     palette = ["#6a3d9a", "#33a02c", "#ff7f00", "#1f78b4", "#e31a1c", "#b15928"]
     for i, (label, v) in enumerate(markers):
         if not left <= v <= right:

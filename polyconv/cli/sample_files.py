@@ -4,11 +4,16 @@ Measured latencies come as millions of decimal numbers.  Large files are parsed 
 kernel (:mod:`polyconv.cli._parse_kernel`, exact fast-path conversion); small ones, and
 anything the kernel does not take, by ``numpy.loadtxt`` (whose error names the bad line) or
 ``numpy.fromstring`` for plain text.  A whole-array numpy parser was tried and was no faster
-than numpy 2's ``loadtxt`` (0.8-1.0 s vs 0.6-0.8 s per 10^6 values, busy machine).
+than numpy 2's ``loadtxt`` (0.8-1.0 s vs 0.6-0.8 s per 10^6 values, busy machine); a
+vectorised digit parser (16-byte windows ending at each newline, digits combined as 8-byte
+words) was exact but took 0.23-0.30 s per 10^6-row file against 0.02 s of CPU for the kernel,
+so the kernel's one-time load (about 0.5 s of CPU with numba's BLAS probe deferred, see
+:func:`_kernel`) pays for itself from the third file on.
 """
 
 from __future__ import annotations
 
+import importlib.util
 import os
 import sys
 from pathlib import Path
@@ -22,25 +27,62 @@ KERNEL_BYTES = 8 << 20
 second once per process; numpy.loadtxt costs about as much per 10^6 values)."""
 
 
+_BLAS_PROBE = "scipy.linalg.cython_blas"
+KERNEL_MODULE = "polyconv.cli._parse_kernel"
+
+
+def _kernel():
+    """The module :mod:`polyconv.cli._parse_kernel`, loaded (numba cache) and run once on a
+    tiny buffer.
+
+    Loading a cached numba function sets up numba's CPU target, whose ``numba.np.arraymath``
+    probes for BLAS by importing ``scipy.linalg`` (0.2-0.3 s of CPU, about a third of the
+    load, for a kernel that does no linear algebra).  The probe is deferred: while the kernel
+    loads, that one module is marked absent in ``sys.modules`` (its import fails at once), then
+    the mark is removed and numba's flag is set back to "BLAS available" when scipy is
+    installed, so a kernel compiled later in this process that needs BLAS imports it then, as
+    numba's own ``ensure_blas`` does for ``np.dot``.
+    """
+    if KERNEL_MODULE in sys.modules:
+        return sys.modules[KERNEL_MODULE]
+    from ..engines import jit_state
+    jit_state.cache_enabled()  # points numba at a writable cache before it is imported
+    blocked = _BLAS_PROBE not in sys.modules and "numba.np.arraymath" not in sys.modules
+    if blocked:
+        sys.modules[_BLAS_PROBE] = None  # type: ignore[assignment]
+    try:
+        from . import _parse_kernel as kernel
+        kernel.parse_numbers(np.frombuffer(b"1\n", dtype=np.uint8), -1, 0, np.empty(2))
+    finally:
+        if blocked and sys.modules.get(_BLAS_PROBE, 0) is None:
+            del sys.modules[_BLAS_PROBE]
+            arraymath = sys.modules.get("numba.np.arraymath")
+            if arraymath is not None and getattr(arraymath, "_HAVE_BLAS", True) is False \
+                    and importlib.util.find_spec("scipy") is not None:
+                arraymath._HAVE_BLAS = True
+    return kernel
+
+
 def kernel_parse(buf: np.ndarray, delimiter: int | None, index: int, ncols: int):
     """The compiled parser's values (:mod:`polyconv.cli._parse_kernel`), or None: file small,
     numba absent or disabled (``POLYCONV_JIT=0``), or a number it does not take (fall back)."""
-    if buf.size < KERNEL_BYTES and "polyconv.cli._parse_kernel" not in sys.modules:
+    if buf.size < KERNEL_BYTES and KERNEL_MODULE not in sys.modules:
         return None
     if os.environ.get("POLYCONV_JIT", "").strip().lower() in ("0", "off", "no", "false"):
         return None
     try:
-        from ..engines import jit_state
-        jit_state.cache_enabled()  # points numba at a writable cache before it is imported
-        from ._parse_kernel import OK, parse_numbers
+        kernel = _kernel()
     except Exception:  # noqa: BLE001 - numba missing or failing here: numpy.loadtxt instead
         return None
-    lines = int(np.count_nonzero(buf == 10)) + 1
-    out = np.empty(lines if delimiter is not None else buf.size // 2 + 1)
-    count, status = parse_numbers(buf, -1 if delimiter is None else delimiter, index, out)
-    if status != OK or count == 0:
+    # at most one number per two bytes ("1\n"): an upper bound without a counting pass; the
+    # untouched pages are never committed, and resize shrinks the block in place (realloc)
+    out = np.empty(buf.size // 2 + 1)
+    count, status = kernel.parse_numbers(buf, -1 if delimiter is None else delimiter, index,
+                                         out)
+    if status != kernel.OK or count == 0:
         return None
-    return out[:count].copy()
+    out.resize((count,), refcheck=False)
+    return out
 
 
 
@@ -48,7 +90,8 @@ class SampleFileError(ValueError):
     """A samples file that cannot be read (message names the file and what is wrong)."""
 
 
-def read_samples(path: str | Path, *, column: str | int | None = None) -> np.ndarray:
+def read_samples(path: str | Path, *, column: str | int | None = None,
+                 fast_only: bool = False) -> np.ndarray | None:
     """The samples in ``path`` as a float array.
 
     Parameters
@@ -59,6 +102,10 @@ def read_samples(path: str | Path, *, column: str | int | None = None) -> np.nda
         index, default 0) or anything else as plain text (numbers separated by white space).
     column : str or int, optional
         Which column of a CSV file or 2-D array.
+    fast_only : bool
+        Only the compiled kernel, already loaded in this process: None when it does not read
+        the file (then nothing is imported and no warning is issued, so a worker thread can
+        call it; :mod:`polyconv.cli.delays_prefetch`).
 
     Raises
     ------
@@ -71,6 +118,8 @@ def read_samples(path: str | Path, *, column: str | int | None = None) -> np.nda
     except OSError as exc:
         raise SampleFileError(f"cannot read samples file {str(p)!r}: {exc.strerror}") from None
     check_allocation(24 * size + (1 << 20), f"reading samples file {p.name}")
+    if fast_only and (p.suffix.lower() == ".npy" or KERNEL_MODULE not in sys.modules):
+        return None
     if p.suffix.lower() == ".npy":
         return _npy(p, column)
     try:
@@ -78,11 +127,11 @@ def read_samples(path: str | Path, *, column: str | int | None = None) -> np.nda
     except OSError as exc:
         raise SampleFileError(f"cannot read samples file {str(p)!r}: {exc.strerror}") from None
     if p.suffix.lower() == ".csv":
-        return _csv(p, raw, column)
+        return _csv(p, raw, column, fast_only)
     if column is not None:
         raise SampleFileError(f"{p.name}: 'column' applies to CSV files and 2-D .npy arrays")
     fast = kernel_parse(np.frombuffer(raw, dtype=np.uint8), None, 0, 1)
-    if fast is not None:
+    if fast is not None or fast_only:
         return fast
     import warnings
     with warnings.catch_warnings():
@@ -112,7 +161,7 @@ def _npy(p: Path, column) -> np.ndarray:
     return arr.astype(float, copy=False)
 
 
-def _csv(p: Path, raw: bytes, column) -> np.ndarray:
+def _csv(p: Path, raw: bytes, column, fast_only: bool = False) -> np.ndarray | None:
     nl = raw.find(b"\n")
     first = raw[: nl if nl >= 0 else len(raw)].decode("utf-8", "replace").strip()
     names = [c.strip().strip('"') for c in first.split(",")]
@@ -131,8 +180,10 @@ def _csv(p: Path, raw: bytes, column) -> np.ndarray:
                               "out of range")
     start = nl + 1 if header and nl >= 0 else 0
     body = np.frombuffer(raw, dtype=np.uint8)[start:]
-    return _fast_or_loadtxt(p, raw, body, ord(","), index, len(names),
-                            skip=1 if header else 0)
+    fast = kernel_parse(body, ord(","), index, len(names))
+    if fast is not None or fast_only:
+        return fast
+    return _loadtxt(p, ord(","), index, skip=1 if header else 0)
 
 
 def _is_number(text: str) -> bool:
@@ -143,11 +194,7 @@ def _is_number(text: str) -> bool:
         return False
 
 
-def _fast_or_loadtxt(p: Path, raw: bytes, buf: np.ndarray, delimiter: int | None, index: int,
-                     ncols: int, skip: int = 0) -> np.ndarray:
-    fast = kernel_parse(buf, delimiter, index, ncols)
-    if fast is not None:
-        return fast
+def _loadtxt(p: Path, delimiter: int | None, index: int, skip: int = 0) -> np.ndarray:
     try:
         with p.open("rb") as fh:
             out = np.loadtxt(fh, delimiter=None if delimiter is None else chr(delimiter),

@@ -69,10 +69,13 @@ def _groups(delays: list[Lattice], copies: int) -> tuple[list[Lattice], list[int
 def _binomial_terms(m: int, f: np.ndarray, s: np.ndarray, top: int) -> np.ndarray:
     """``P(Bin(m, F) = j)`` for ``j = 0..top`` (rows) at every point (columns), from logs of
     ``F`` and of ``S = 1 - F`` given separately (no ``1 - F`` rounding)."""
-    from scipy import special  # on first use (import cost: tests/test_import_light.py)
-
     j = np.arange(top + 1, dtype=float)[:, None]
-    logc = special.gammaln(m + 1.0) - special.gammaln(j + 1.0) - special.gammaln(m - j + 1.0)
+    if m == 1:  # log C(1, j) = 0 (j = 0, 1), as gammaln gives it: no scipy import (0.3 s)
+        logc = np.zeros_like(j)
+    else:
+        from scipy import special  # on first use (import cost: tests/test_import_light.py)
+
+        logc = special.gammaln(m + 1.0) - special.gammaln(j + 1.0) - special.gammaln(m - j + 1.0)
     with np.errstate(divide="ignore", invalid="ignore"):
         lf, ls = np.log(f)[None, :], np.log(s)[None, :]
         t = logc + np.where(j > 0, j * lf, 0.0) + np.where(m - j > 0, (m - j) * ls, 0.0)
@@ -82,11 +85,15 @@ def _binomial_terms(m: int, f: np.ndarray, s: np.ndarray, top: int) -> np.ndarra
 
 def _at_least(m: int, r: np.ndarray, f: np.ndarray) -> np.ndarray:
     """``P(Bin(m, F) >= r)`` (rows ``r``): ``I_F(r, m - r + 1)``; 1 for ``r <= 0``, 0 above m."""
-    from scipy import special  # on first use (import cost: tests/test_import_light.py)
-
     rr = r[:, None].astype(float)
-    with np.errstate(invalid="ignore"):
-        val = special.betainc(np.maximum(rr, 1.0), np.maximum(m - rr + 1.0, 1.0), f[None, :])
+    if m == 1:  # one stage: P(finished) itself (I_F(1, 1) = F, as betainc gives it bit for bit)
+        val = np.broadcast_to(f[None, :], (rr.shape[0], f.size))
+    else:
+        from scipy import special  # on first use (import cost: tests/test_import_light.py)
+
+        with np.errstate(invalid="ignore"):
+            val = special.betainc(np.maximum(rr, 1.0), np.maximum(m - rr + 1.0, 1.0),
+                                  f[None, :])
     return np.where(rr <= 0, 1.0, np.where(rr > m, 0.0, val))
 
 
@@ -94,10 +101,10 @@ def _count_tails(k: int, mult: list[int], fs: list[np.ndarray], ss: list[np.ndar
                  ) -> tuple[np.ndarray, np.ndarray]:
     """``(P(C >= k), P(C < k))`` at each point for groups of multiplicity ``mult`` with
     finished / unfinished probabilities ``fs`` / ``ss``."""
-    from scipy import special  # on first use (import cost: tests/test_import_light.py)
-
     n = sum(mult)
     if len(mult) == 1:
+        from scipy import special  # on first use (import cost: tests/test_import_light.py)
+
         m, f, s = mult[0], fs[0], ss[0]
         with np.errstate(invalid="ignore"):
             ge = special.betainc(float(k), float(m - k + 1), f)

@@ -61,8 +61,11 @@ def as_samples(samples, name: str) -> np.ndarray:
 def _indices(x: np.ndarray, step: float, origin: float, rule: str) -> np.ndarray:
     """Lattice index of each sample by ``rule`` (as int64; the arithmetic ``(x - origin) /
     step`` then the rounding, in place: one temporary for 10^6 samples, not three)."""
-    v = np.subtract(x, origin) if origin != 0 else np.array(x, dtype=float)
-    np.divide(v, step, out=v)
+    if origin != 0:
+        v = np.subtract(x, origin)
+        np.divide(v, step, out=v)
+    else:
+        v = np.divide(x, step)  # x - 0 is x: one pass less
     if rule == "nearest":
         v += 0.5
         np.floor(v, out=v)
@@ -73,6 +76,10 @@ def _indices(x: np.ndarray, step: float, origin: float, rule: str) -> np.ndarray
         v -= SNAP
         np.ceil(v, out=v)
     return v.astype(np.int64)
+
+
+def _is_float_array(samples) -> bool:
+    return isinstance(samples, np.ndarray) and samples.dtype == np.float64
 
 
 def _weights(counts, size: int) -> np.ndarray | None:
@@ -92,7 +99,8 @@ def _weights(counts, size: int) -> np.ndarray | None:
 
 
 def check_spread(x: np.ndarray, w: np.ndarray | None, h: float, k: np.ndarray,
-                 origin: float) -> float:
+                 origin: float, counts: np.ndarray | None = None,
+                 krange: tuple[int, int] | None = None) -> float:
     """Warn (:class:`~polyconv.dist.step_check.CoarseStepWarning`) when the step is much coarser
     than the samples' spread (:data:`COARSE_SPREAD`) and the samples are not on the lattice;
     returns the standard deviation (``nan`` when it was not needed).
@@ -100,10 +108,12 @@ def check_spread(x: np.ndarray, w: np.ndarray | None, h: float, k: np.ndarray,
     Binning moves each sample by at most ``h / 2`` (rule ``nearest``; ``h`` for ``down`` /
     ``up``), so the standard deviation of the samples is at least that of their lattice
     points minus ``h`` (Minkowski's inequality); only when that does not settle it are the
-    samples themselves looked at."""
-    lo, hi = int(k.min()), int(k.max())
+    samples themselves looked at.  ``counts``: ``bincount(k)``, ``krange``: ``(k.min(),
+    k.max())``, when already known."""
+    lo, hi = (int(k.min()), int(k.max())) if krange is None else krange
     if hi - lo > 64:
-        counts = np.bincount(k - lo, weights=w).astype(float)
+        counts = (np.bincount(k - lo, weights=w) if counts is None else counts[lo:]
+                  ).astype(float)
         j = np.arange(counts.size, dtype=float)
         mean = float(np.dot(counts, j) / counts.sum())
         binned_sd = h * math.sqrt(max(float(np.dot(counts, (j - mean) ** 2) / counts.sum()), 0))
@@ -123,10 +133,18 @@ def check_spread(x: np.ndarray, w: np.ndarray | None, h: float, k: np.ndarray,
     return sd
 
 
-def band_inputs(samples, step, origin, counts, alpha, rule):
+def band_inputs(samples, step, origin, counts, alpha, rule, *, with_counts=False):
     """Checked samples ``x``, weights ``w`` (None: one each), step ``h``, origin ``o``, sample
-    size ``n``, DKW half-width ``eps`` and the lattice index ``k`` of every sample."""
-    x = as_samples(samples, "samples")
+    size ``n``, DKW half-width ``eps`` and the lattice index ``k`` of every sample; with
+    ``with_counts`` also ``bincount(k, weights=w)`` (computed once for the spread check and
+    the binned law)."""
+    x = np.asarray(samples, dtype=float).ravel() if _is_float_array(samples) else \
+        as_samples(samples, "samples")
+    if x.size == 0:
+        as_samples(x, "samples")  # raises: no value
+    lo_x, hi_x = x.min(), x.max()  # NaN propagates: all finite iff both ends are
+    if not (math.isfinite(lo_x) and math.isfinite(hi_x)):
+        as_samples(x, "samples")  # raises, naming the first value that is not finite
     h = real_value(step, "step")
     if not h > 0:
         raise ValueError(f"step must be positive; got {step!r}")
@@ -137,12 +155,19 @@ def band_inputs(samples, step, origin, counts, alpha, rule):
     n = float(x.size if w is None else w.sum())
     eps = dkw_epsilon(n, alpha)
     k = _indices(x, h, o, rule)
-    if k.min() < 0:
+    # the same operations on the two ends: (x - o) / h, the shift and the rounding are monotone
+    # in x (IEEE arithmetic rounds monotonically), so these are exactly k.min() and k.max()
+    k_lo, k_hi = (int(v) for v in _indices(np.array([lo_x, hi_x]), h, o, rule))
+    if k_lo < 0:
         j = int(np.argmin(k))
         raise ValueError(f"samples must lie on or above the lattice origin {o!r}; "
                          f"samples[{j}] = {x[j]!r}")
-    check_spread(x, w, h, k, o)
-    return x, w, h, o, n, eps, k
+    full = None
+    if with_counts:
+        check_allocation(8 * (k_hi + 2), "empirical lattice of the samples")
+        full = np.bincount(k, weights=w)
+    check_spread(x, w, h, k, o, full, (k_lo, k_hi))
+    return (x, w, h, o, n, eps, k, full) if with_counts else (x, w, h, o, n, eps, k)
 
 
 def binned(k: np.ndarray, w: np.ndarray | None, n: float, top: int) -> np.ndarray:
@@ -168,14 +193,16 @@ def band_law(samples, *, step, origin=0.0, counts=None, alpha=0.05, rule="neares
     allows beyond the data, ``(eps + cumulative) max(|upper|, |origin|)``; without it that moment
     is unknown (infinite) and means are refused.
     """
-    x, w, h, o, n, eps, k = band_inputs(samples, step, origin, counts, alpha, rule)
-    pmf = binned(k, w, n, int(k.max()))
+    x, w, h, o, n, eps, k, full = band_inputs(samples, step, origin, counts, alpha, rule,
+                                              with_counts=True)
+    pmf = full / n  # = binned(k, w, n, k.max())
+    largest = x.max()
     moment = math.inf
     if upper is not None:
         top_value = real_value(upper, "upper")
-        if top_value < float(x.max()):
-            raise ValueError(f"upper must be at least the largest sample {x.max()!r}; "
+        if top_value < float(largest):
+            raise ValueError(f"upper must be at least the largest sample {largest!r}; "
                              f"got {upper!r}")
         cum = band_ledger(eps, pmf.size, 0.0).cumulative
         moment = min(eps + cum, 1.0) * max(abs(top_value), abs(o))
-    return np.minimum(pmf, 1.0), h, o, band_ledger(eps, pmf.size, moment), n, eps, float(x.max())
+    return np.minimum(pmf, 1.0), h, o, band_ledger(eps, pmf.size, moment), n, eps, float(largest)

@@ -332,6 +332,68 @@ def test_compiled_parser_equals_python_float(tmp_path, monkeypatch):
         read_samples(tmp_path / "gap.csv", column="ms")
 
 
+ADVERSARIAL = [
+    "4.35", "0.1", "0.3", "2.675", "1.015", "8.325", "0.000000000000000000001", "1e22",
+    "1e23", "9007199254740992", "9007199254740993", "9007199254740991.5", "123456789012345678",
+    "1234567890123456789", "0.1234567890123456789", "000123.4500", "-0", "-0.0", "+0.0", ".5",
+    "5.", "1.7976931348623157e308", "5e-324", "2.2250738585072014e-308", "3.0e-22", "7e-23",
+    "4.9406564584124654e-324", "1e-400", "0.30000000000000004", "9.999999999999999e22",
+    "1.00000000000000011102230246251565404236316680908203125", "2.5E+21", "1E0", "-12.5e-3",
+]
+"""Strings where a naive digit parser rounds wrongly (double rounding, more than 2^53, powers of
+ten past 10^22, subnormals, leading zeros, signs, a lone dot side): from memory of the classic
+decimal-to-binary cases (Clinger 1990; Python's float() is the reference, correctly rounded)."""
+
+
+def test_compiled_parser_adversarial_strings(tmp_path, monkeypatch):
+    from polyconv.cli import sample_files
+    monkeypatch.setattr(sample_files, "KERNEL_BYTES", 0)
+    pytest.importorskip("numba")
+    rng = np.random.default_rng(11)
+    mids = [repr(float(np.nextafter(x, np.inf)) + 0.0) for x in rng.random(200) * 1000]
+    plain = [f"{x:.{d}f}" for x, d in zip(rng.lognormal(3, 2, 300), rng.integers(0, 9, 300),
+                                             strict=True)]
+    texts = ADVERSARIAL + mids + [f"{x:.17g}" for x in rng.lognormal(0, 8, 500)] + plain
+    ref = np.array([float(t) for t in texts])  # reference: Python's float()
+    (tmp_path / "adv.csv").write_text("id,ms\n" + "".join(f"{i},{t}\r\n"
+                                                          for i, t in enumerate(texts)))
+    got = read_samples(tmp_path / "adv.csv", column="ms")
+    assert got.tobytes() == ref.tobytes()  # bit for bit, -0.0 included
+    taken = set()
+    for t in texts:  # each string alone: the kernel takes it (same bits) or hands it back
+        out = sample_files.kernel_parse(np.frombuffer(t.encode(), dtype=np.uint8), None, 0, 1)
+        if out is not None:
+            taken.add(t)
+            assert out.tobytes() == np.array([float(t)]).tobytes(), t
+    assert set(plain) <= taken  # plain decimals all go through the exact fast path
+    assert read_samples_text(tmp_path, texts).tobytes() == ref.tobytes()
+
+
+def read_samples_text(folder, texts):
+    (folder / "adv.txt").write_text("\n".join(texts) + "\n")
+    return read_samples(folder / "adv.txt")
+
+
+def test_kernel_load_defers_the_blas_probe(tmp_path):
+    """Loading the parser kernel does not import scipy.linalg, and leaves numba's BLAS flag as
+    numba sets it (True with scipy installed), so later kernels still use BLAS."""
+    pytest.importorskip("numba")
+    import os
+    import subprocess
+    import sys
+    from pathlib import Path
+    code = ("import sys, numpy as np\n"
+            "from polyconv.cli import sample_files\n"
+            "sample_files.KERNEL_BYTES = 0\n"
+            "v = sample_files.kernel_parse(np.frombuffer(b'1.5 2', dtype=np.uint8), None, 0, 1)\n"
+            "import numba.np.arraymath as a\n"
+            "print(v.tolist(), 'scipy.linalg' in sys.modules, a._HAVE_BLAS)\n")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True, cwd=str(tmp_path),
+                         env={**os.environ, "PYTHONPATH": str(Path(__file__).resolve().parents[2])})
+    assert out.stdout.split() == ["[1.5,", "2.0]", "False", "True"]
+
+
 def test_figure_log_axis_when_heavy_and_markers_outside_not_in_legend():
     import matplotlib
     matplotlib.use("Agg")
