@@ -85,6 +85,7 @@ from __future__ import annotations
 import math
 
 from ..dist.samples import samples_beyond
+from . import delays_goal
 from . import distribution_report as skeleton
 from .bounded_rows import range_text
 from .delays_eval import DelayResult, compute, count_blocks
@@ -313,6 +314,7 @@ def json_summary(res: DelayResult) -> dict:
 
 def run(args) -> int:
     """Entry point of ``polyconv delays``."""
-    return skeleton.run_spec_command(args, name="delays", parse=parse, compute=compute,
+    return skeleton.run_spec_command(args, name="delays", parse=delays_goal.parse,  # [goal]
+                                     compute=delays_goal.compute_with_goal,
                                      report_of=report_of,
                                      step_count=lambda spec: count_blocks(spec) + 2)
