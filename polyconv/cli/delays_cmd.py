@@ -20,6 +20,10 @@ Spec format (polyconv's own keys; unknown keys are refused)::
     sensitivity = { speedup_percent = 10, percentiles = [99] }
     target = { stage = "db", percentile = 99, below = 500.0 }   # how much faster must db be
 
+    [goal]                            # optional: percentiles to a stated precision; grid.step
+    percentiles = [99.9]              # is then the first step tried, halved until met
+    atol = 0.1                        # and/or rtol (see polyconv.cli.delays_goal)
+
     [network]                         # what is evaluated: a block like those below
     in_sequence = ["accept", "checks", "dispatch"]
 
