@@ -29,7 +29,6 @@ Caution: a model output, not advice; defer to local regulation and licensed actu
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 from ..dist import Goal, Lattice
@@ -37,7 +36,7 @@ from ..dist.goals import MAX_POINTS, MIN_POINTS
 from ..dist.tail_splice import spliced_aggregate
 from . import aggregate_laws as al
 from . import aggregate_line as line_mod
-from .bounded_rows import MeasureRow
+from .bounded_rows import GoalRow, MeasureRow
 from .report import collect_warnings, fmt, level_name, number_name
 from .spec import Section
 
@@ -53,16 +52,6 @@ class GoalSpec:
 
     goal: Goal
     step_given: bool
-
-
-class GoalRow(MeasureRow):
-    """A goal measure: status ``met`` or ``refused: reason``."""
-
-    def status(self) -> str:
-        """``"met"`` or ``"refused: reason"``."""
-        if self.refused or not math.isfinite(self.value):
-            return f"refused: {self.reason or 'no value on this grid'}"
-        return "met"
 
 
 def parse_goal(root: Section) -> GoalSpec | None:

@@ -30,7 +30,7 @@ import warnings
 from copy import copy
 
 from ..dist import bracket_to_goal
-from .bounded_rows import MeasureRow
+from .bounded_rows import GoalRow, MeasureRow
 from .delays_eval import DelayResult, compute
 from .delays_spec import DelaySpec, block_kind, leaf_form, used_sections
 from .delays_spec import parse as parse_plain
@@ -55,14 +55,6 @@ class GoalDelaySpec(DelaySpec):
     """A delays spec with its goal."""
 
     goal: DelayGoal | None = None
-
-
-class GoalRow(MeasureRow):
-    """A goal percentile: status ``met`` or ``refused: reason``."""
-
-    def status(self) -> str:
-        """``"met"`` or ``"refused: reason"``."""
-        return f"refused: {self.reason}" if self.refused else "met"
 
 
 def parse(doc: SpecDoc) -> DelaySpec:
