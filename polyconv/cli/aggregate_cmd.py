@@ -256,7 +256,7 @@ def compute(spec: AggregateSpec, steps: Steps | None = None) -> AggregateResult:
             total, min(spec.levels),
             lambda message: first.spec.severity.doc.error(
                 (("lines", 0) if spec.several else ()) + grid_key, message),
-            "choose a larger grid.step (or more grid.points)",
+            goal_mod.MASS_HINT if spec.goal else "choose a larger grid.step (or more grid.points)",
             f"the aggregate loss (E[N] = {fmt(first.spec.claims_mean())} claims in "
             f"{first.spec.name})", spec.currency)
         if steps:

@@ -44,6 +44,7 @@ GOAL_KEYS = ("var", "tvar", "stop_loss", "rtol", "atol", "max_points")
 CONFLICTS = ("lines", "cover", "reinsurance")
 """Top-level tables a goal cannot be combined with."""
 NAMES = {"var": "VaR", "tvar": "TVaR"}
+MASS_HINT = "loosen goal.rtol / goal.atol, give a larger grid.step or raise goal.max_points"
 
 
 @dataclass(frozen=True)

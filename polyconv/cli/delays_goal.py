@@ -12,11 +12,11 @@ Format (keys are polyconv's own)::
 "down" and "up" (stochastic lower and upper discretisations); since every block is a
 non-decreasing function of its stages' delays, the percentile of the continuous model lies
 between the low end of the "down" network and the high end of the "up" one
-(:func:`polyconv.dist.bracket_to_goal`).  ``grid.step`` is the first step tried, halved until
-every bracket is narrow enough; the report then uses the finest step needed, and each goal
-percentile is a row ``goal: p99.9`` with its bracket and the status ``met`` or ``refused:
-reason``.  The grid's size still comes from the used stages.  A bracket needs continuous laws:
-a goal is refused when a used stage is measured or a table.
+(:func:`polyconv.dist.bracket_to_goal`).  ``grid.step`` (optional with a goal; absent: ``atol``)
+is the first step tried, halved until every bracket is narrow enough; the report then uses
+the finest step needed, and each goal percentile is a row ``goal: p99.9`` with its bracket and
+the status ``met`` or ``refused: reason``.  The grid's size still comes from the used stages.
+A bracket needs continuous laws: a goal is refused when a used stage is measured or a table.
 
 Caution: model output; check deadlines and margins against the applicable engineering codes
 and a qualified engineer's review.
@@ -48,6 +48,7 @@ class DelayGoal:
     atol: float
     rtol: float
     halvings: int
+    step_given: bool = True
 
 
 @dataclasses.dataclass
@@ -62,9 +63,6 @@ def parse(doc: SpecDoc) -> DelaySpec:
     root = doc.root()
     if not root.has("goal"):
         return parse_plain(doc)
-    plain = copy(doc)
-    plain.data = {k: v for k, v in doc.data.items() if k != "goal"}
-    spec = parse_plain(plain)
     sec = root.table("goal")
     sec.check_keys(GOAL_KEYS)
     qs = sec.numbers("percentiles", minimum=0.0, maximum=100.0)
@@ -75,12 +73,21 @@ def parse(doc: SpecDoc) -> DelaySpec:
     if atol == 0 and rtol == 0:
         raise sec.error("atol", "give a positive atol (in the grid's unit) or rtol")
     halvings = sec.integer("halvings", 8, minimum=0, maximum=20)
+    plain = copy(doc)
+    plain.data = {k: v for k, v in doc.data.items() if k != "goal"}
+    grid = root.table("grid", {})
+    if not grid.has("step"):  # the step is chosen: first try atol (module docstring)
+        if atol == 0:
+            raise sec.error("atol", "without grid.step, give atol (the first step tried)")
+        plain.data["grid"] = {**grid.data, "step": atol}
+    spec = parse_plain(plain)
     for name, stage in used_sections(spec).items():
         if block_kind(stage) == "leaf" and leaf_form(stage) != "law":
             raise sec.error(None, f"a goal brackets continuous laws; stage '{name}' is "
                             f"{leaf_form(stage)} (remove [goal] or give the stage a law)")
     fields = {f.name: getattr(spec, f.name) for f in dataclasses.fields(DelaySpec)}
-    return GoalDelaySpec(**fields, goal=DelayGoal(tuple(qs), atol, rtol, halvings))
+    return GoalDelaySpec(**fields, goal=DelayGoal(tuple(qs), atol, rtol, halvings,
+                                                         grid.has("step")))
 
 
 def compute_with_goal(spec: DelaySpec, steps=None) -> DelayResult:
@@ -117,7 +124,8 @@ def compute_with_goal(spec: DelaySpec, steps=None) -> DelayResult:
                                                    and r.argument in asked)]
     res.notes = notes + res.notes + [
         f"step chosen for the goal (atol {goal.atol:g}, rtol {goal.rtol:g}): {fmt(h)} "
-        f"{spec.unit}, from grid.step {fmt(spec.step)} halved "
+        f"{spec.unit}, from {'grid.step' if goal.step_given else 'goal.atol'} "
+        f"{fmt(spec.step)} halved "
         f"{round(math.log2(spec.step / h))} times; percentiles bracketed between the "
         "networks of the 'down' and 'up' rules"]
     return res

@@ -183,3 +183,27 @@ def test_delays_goal_refuses_measured_stage(tmp_path, capsys):
                           "samples = [3.0, 4.0, 9.0, 5.0]")
     err = fails(tmp_path, "delays", text, capsys)
     assert "goal" in err and "stage 'c'" in err
+
+
+def test_aggregate_goal_out_of_reach_is_refused_on_its_row(tmp_path, capsys):
+    text = POISSON_EXPON.replace("rtol = 1e-4", "rtol = 1e-13\nmax_points = 4096") + \
+        "[grid]\nstep = 1.0\n"
+    out = run_json(tmp_path, "aggregate", text, capsys)
+    (tvar,) = out["goal_tvar"]
+    _, tvar_ref = compound_expon_reference(5.0, 100.0, 0.995)
+    assert tvar["refused"] and "wider than the goal" in tvar["reason"]
+    # the range is still shown; at step 1 it lies within 1e-3 of the closed form (the
+    # discretisation of the nearest rule, common practice, no source)
+    assert abs(tvar["low"] - tvar_ref) <= 1e-3 * tvar_ref
+    summary = (tmp_path / "out" / "summary.md").read_text()
+    assert "| goal: TVaR 99.5% (EUR) | refused |" in summary and "refused: " in summary
+
+
+def test_delays_goal_without_step_starts_from_atol(tmp_path, capsys):
+    out = run_json(tmp_path, "delays", DELAYS.replace("[grid]\nstep = 1.0\n", ""), capsys)
+    (row,) = out["goal_percentiles"]
+    ref = float(stats.gamma(6.5, scale=5.0).ppf(0.999))  # scipy.stats.gamma, as above
+    assert not row["refused"] and row["low"] <= ref <= row["high"]
+    assert out["grid_step"] <= 0.1
+    text = DELAYS.replace("[grid]\nstep = 1.0\n", "").replace("atol = 0.1", "rtol = 1e-3")
+    assert "goal.atol" in fails(tmp_path, "delays", text, capsys)
