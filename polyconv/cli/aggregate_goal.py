@@ -29,6 +29,7 @@ Caution: a model output, not advice; defer to local regulation and licensed actu
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 from ..dist import Goal, Lattice
@@ -144,7 +145,12 @@ def goal_rows(answers: dict, currency: str) -> list[MeasureRow]:
             label, arg_name = f"goal: stop-loss E[(S - {number_name(a)})+]", "retention"
         else:
             label, arg_name = f"goal: {NAMES[m]} {level_name(a)}", "level"
-        rows.append(GoalRow(f"goal_{m}", label, currency, arg_name, a, float(b.value),
+        value = float(b.value)
+        if not b.refused and math.isfinite(b.low) and math.isfinite(b.high):
+            # the range holds the exact lattice answer; a lattice-only value may lie just
+            # outside it (TVaR without the moment beyond the grid): shown at the range's edge
+            value = min(max(value, float(b.low)), float(b.high))
+        rows.append(GoalRow(f"goal_{m}", label, currency, arg_name, a, value,
                             float(b.low), float(b.high), bool(b.refused), str(b.reason)))
     return rows
 

@@ -56,23 +56,34 @@ def compound_expon_reference(lam: float, theta: float, p: float) -> tuple[float,
         return stats.poisson(lam).pmf(0) + float(np.sum(w * stats.gamma(n, scale=theta).cdf(x)))
 
     var = optimize.brentq(lambda x: cdf(x) - p, 1e-9, 1e5, xtol=1e-12, rtol=1e-15)
-    excess = float(np.sum(w * (n * theta * stats.gamma(n + 1, scale=theta).sf(var)
-                               - var * stats.gamma(n, scale=theta).sf(var))))
-    return var, var + excess / (1 - p)
+    return var, var + expon_stop_loss(lam, theta, var) / (1 - p)
+
+
+def expon_stop_loss(lam: float, theta: float, d: float) -> float:
+    """E[(S - d)+] of compound Poisson(lam) x Exp(theta), same closed form as above."""
+    n = np.arange(1, 200)
+    w = stats.poisson(lam).pmf(n)
+    return float(np.sum(w * (n * theta * stats.gamma(n + 1, scale=theta).sf(d)
+                             - d * stats.gamma(n, scale=theta).sf(d))))
 
 
 def test_aggregate_goal_poisson_exponential_meets_rtol(tmp_path, capsys):
-    out = run_json(tmp_path, "aggregate", POISSON_EXPON, capsys)
+    text = POISSON_EXPON.replace("rtol = 1e-4", "stop_loss = [2000.0]\nrtol = 1e-4")
+    out = run_json(tmp_path, "aggregate", text, capsys)
     var_ref, tvar_ref = compound_expon_reference(5.0, 100.0, 0.995)
-    (var,), (tvar,) = out["goal_var"], out["goal_tvar"]
+    (var,), (tvar,), (sl,) = out["goal_var"], out["goal_tvar"], out["goal_stop_loss"]
+    sl_ref = expon_stop_loss(5.0, 100.0, 2000.0)
+    assert sl["retention"] == 2000.0 and not sl["refused"]
+    assert abs(sl["value"] - sl_ref) <= 1e-4 * sl_ref  # closed form above, goal rtol
     assert var["level"] == 0.995 and not var["refused"] and not tvar["refused"]
     # goal rtol 1e-4 against the closed form (the chosen step, rtol x VaR, keeps the
     # discretisation of the nearest rule inside it: common practice, no source)
     assert abs(var["value"] - var_ref) <= 1e-4 * var_ref
     assert abs(tvar["value"] - tvar_ref) <= 1e-4 * tvar_ref
     # certified ranges as narrow as the goal asks
-    for row in (var, tvar):
+    for row in (var, tvar, sl):
         assert row["high"] - row["low"] <= 1e-4 * abs(row["value"]) * (1 + 1e-6)
+        assert row["low"] <= row["value"] <= row["high"]
     assert out["grid_step"] <= 1e-4 * var_ref  # the step was chosen, not given
     summary = (tmp_path / "out" / "summary.md").read_text()
     assert "| goal: VaR 99.5% (EUR) |" in summary and "| met |" in summary
