@@ -33,6 +33,12 @@ Spec format (keys are polyconv's own; every key is checked, unknown keys are ref
     levels = [0.90, 0.95, 0.99, 0.995, 0.999]
     retentions = [1.0e6, 1.5e6]       # stop-loss E[(S - d)+] at these d
 
+    [goal]                            # optional: measures and precision; the grid follows
+    var = [0.995]                     # VaR / TVaR levels, stop-loss retentions to meet
+    tvar = [0.995]
+    rtol = 1e-4                       # and/or atol (currency units); grid.step then optional,
+                                      # grid.points refused (see polyconv.cli.aggregate_goal)
+
 Several lines (each with its own step, re-gridded to a common step keeping mass and mean,
 summed as independent lines), reinsurance per line (quota share, surplus, per-occurrence excess
 of loss with reinstatements and annual aggregate terms), richer counts and severities, claims
@@ -54,6 +60,7 @@ from dataclasses import dataclass, field
 
 from ..dist import Lattice
 from ..dist.portfolio import portfolio
+from . import aggregate_goal as goal_mod
 from . import aggregate_line as line_mod
 from . import aggregate_tables as tabs
 from . import distribution_report as skeleton
@@ -121,13 +128,15 @@ class AggregateSpec:
     levels: list[float]
     retentions: list[float]
     extras: dict
+    goal: goal_mod.GoalSpec | None = None
 
 
 def parse(doc: SpecDoc) -> AggregateSpec:
     """Validate a parsed spec (raises :class:`~polyconv.cli.errors.SpecError`)."""
     root = doc.root()
     root.check_keys(("title", "currency", "claims", "severity", "cover", "grid", "report",
-                     "reinsurance", "lines"))
+                     "reinsurance", "lines", "goal"))
+    goal = goal_mod.parse_goal(root)
     title = root.string("title", "Aggregate loss distribution")
     currency = root.string("currency", "units")
     common = None
@@ -154,7 +163,7 @@ def parse(doc: SpecDoc) -> AggregateSpec:
     else:
         root_line = line_mod.Section({k: v for k, v in root.data.items()
                                       if k in line_mod.LINE_KEYS}, (), doc)
-        lines = [line_mod.parse_line(root_line, "the line")]
+        lines = [line_mod.parse_line(root_line, "the line", step_optional=goal is not None)]
         several = False
     rep = root.table("report", {})
     rep.check_keys(("levels", "retentions", "return_periods", "allocation", "layers",
@@ -167,7 +176,8 @@ def parse(doc: SpecDoc) -> AggregateSpec:
     if extras["basic_limit"] is not None and several:
         raise rep.error("basic_limit", "increased-limit factors are per claim of one line; "
                         "give it in a one-line spec")
-    return AggregateSpec(title, currency, lines, several, common, levels, retentions, extras)
+    return AggregateSpec(title, currency, lines, several, common, levels, retentions, extras,
+                         goal)
 
 
 # ------------------------------------------------------------------------------- compute
@@ -201,7 +211,13 @@ def compute(spec: AggregateSpec, steps: Steps | None = None) -> AggregateResult:
     or when the aggregate grid holds less probability than the lowest level asked.
     """
     notes: list[str] = []
-    results = [line_mod.compute_line(x, spec.currency, steps) for x in spec.lines]
+    goal_rows: list[MeasureRow] = []
+    if spec.goal is not None:  # one line (polyconv.cli.aggregate_goal)
+        first_line, goal_rows = goal_mod.compute_goal_line(spec.lines[0], spec.goal,
+                                                           spec.currency, steps)
+        results = [first_line]
+    else:
+        results = [line_mod.compute_line(x, spec.currency, steps) for x in spec.lines]
     for r in results:
         notes.extend(r.notes if not spec.several else [f"{r.spec.name}: {n}" for n in r.notes])
     reinsured = any(r.programme is not None or r.qs_ceded is not None for r in results)
@@ -233,18 +249,20 @@ def compute(spec: AggregateSpec, steps: Steps | None = None) -> AggregateResult:
             total = results[0].gross
             net = results[0].net if reinsured else None
         first = results[0]
-        grid_key = ("grid", "points") if first.spec.points else ("grid", "step")
+        grid_key = ("goal",) if spec.goal else ("grid", "points") if first.spec.points \
+            else ("grid", "step")
         grid_mass.require_mass(
             total, min(spec.levels),
             lambda message: first.spec.severity.doc.error(
                 (("lines", 0) if spec.several else ()) + grid_key, message),
-            "choose a larger grid.step (or more grid.points)",
+            goal_mod.MASS_HINT if spec.goal else "choose a larger grid.step (or more grid.points)",
             f"the aggregate loss (E[N] = {fmt(first.spec.claims_mean())} claims in "
             f"{first.spec.name})", spec.currency)
         if steps:
             steps.step("risk measures and tables")
         per_claim = None if spec.several else first.per_claim
-        rows = measure_rows(spec, total, per_claim, net)
+        rows = goal_rows + goal_mod.replaced(measure_rows(spec, total, per_claim, net),
+                                             goal_rows)
         tables += tabs.reinsurance_tables(spec.levels, spec.extras["allocation"], results, facts)
         largest = tabs.occurrence_law(results)
         t, facts["return_periods"] = tabs.return_table(largest, total, net,

@@ -80,8 +80,10 @@ def on_step(value: float, step: float) -> bool:
     return math.isfinite(k) and abs(k - round(k)) <= 1e-9 * max(1.0, abs(k))
 
 
-def parse_line(sec: Section, name: str, default_step: float | None = None) -> LineSpec:
-    """Validate one line (the keys of :data:`LINE_KEYS` in ``sec``)."""
+def parse_line(sec: Section, name: str, default_step: float | None = None, *,
+               step_optional: bool = False) -> LineSpec:
+    """Validate one line (the keys of :data:`LINE_KEYS` in ``sec``); ``step_optional``: the
+    step may be absent (None: chosen later, for a ``[goal]``)."""
     claims = sec.table("claims")
     cluster = None
     if claims.has("per_occurrence"):  # claims per occurrence K: [claims] then counts events
@@ -92,10 +94,14 @@ def parse_line(sec: Section, name: str, default_step: float | None = None) -> Li
     severity = sec.table("severity")
     if not al.is_composite(severity):
         al.laws.describe_kind(severity)
-    grid = sec.table("grid", {}) if default_step is not None else sec.table("grid")
+    grid = sec.table("grid", {}) if default_step is not None or step_optional \
+        else sec.table("grid")
     grid.check_keys(("step", "points", "max_points", "rule", "method"))
-    step = grid.number("step", positive=True) if default_step is None or grid.has("step") \
-        else default_step
+    if default_step is None or grid.has("step"):
+        step = grid.number("step", None, positive=True) if step_optional \
+            else grid.number("step", positive=True)
+    else:
+        step = default_step
     points = grid.integer("points", None, minimum=2, maximum=1 << 24)
     max_points = grid.integer("max_points", 1 << 20, minimum=2, maximum=1 << 24)
     rule = grid.string("rule", "nearest", RULES)
@@ -105,7 +111,7 @@ def parse_line(sec: Section, name: str, default_step: float | None = None) -> Li
     deductible = cover.number("deductible", 0.0, minimum=0.0)
     limit = cover.number("limit", math.inf, positive=True)
     for key, value in (("deductible", deductible), ("limit", limit)):
-        if math.isfinite(value) and not on_step(value, step):
+        if step is not None and math.isfinite(value) and not on_step(value, step):
             raise cover.error(key, f"must be a whole multiple of grid.step = {step:g}; got "
                               f"{value:g}")
     line = LineSpec(name, counts, severity, deductible, limit, step, points, max_points, rule,

@@ -103,6 +103,16 @@ class MeasureRow:
                          "true" if self.refused else "false", reason])
 
 
+class GoalRow(MeasureRow):
+    """A measure of a spec's ``[goal]``: status ``met`` or ``refused: reason``."""
+
+    def status(self) -> str:
+        """``"met"`` or ``"refused: reason"``."""
+        if self.refused or not math.isfinite(self.value):
+            return f"refused: {self.reason or 'no value on this grid'}"
+        return "met"
+
+
 CSV_HEADER = "measure,label,argument,value,low,high,refused,reason"
 
 

@@ -20,6 +20,10 @@ Spec format (polyconv's own keys; unknown keys are refused)::
     sensitivity = { speedup_percent = 10, percentiles = [99] }
     target = { stage = "db", percentile = 99, below = 500.0 }   # how much faster must db be
 
+    [goal]                            # optional: percentiles to a stated precision; grid.step
+    percentiles = [99.9]              # is then the first step tried, halved until met
+    atol = 0.1                        # and/or rtol (see polyconv.cli.delays_goal)
+
     [network]                         # what is evaluated: a block like those below
     in_sequence = ["accept", "checks", "dispatch"]
 
@@ -85,6 +89,7 @@ from __future__ import annotations
 import math
 
 from ..dist.samples import samples_beyond
+from . import delays_goal
 from . import distribution_report as skeleton
 from .bounded_rows import range_text
 from .delays_eval import DelayResult, compute, count_blocks
@@ -301,10 +306,13 @@ def report_of(res: DelayResult) -> skeleton.DistributionReport:
 
 
 def _compute_warm(spec, steps):
-    """:func:`compute` with the figure's modules imported while the sample files are parsed."""
+    """:func:`compute` with the figure's modules imported while the sample files are parsed;
+    a spec with a ``[goal]`` goes to :func:`polyconv.cli.delays_goal.compute_with_goal`."""
+    if getattr(spec, "goal", None) is not None:
+        return delays_goal.compute_with_goal(spec, steps)
     return compute(spec, steps, warm=figure_modules)
 
 
-COMMAND = skeleton.SpecCommand("delays", parse, _compute_warm, report_of,
-                                lambda spec: count_blocks(spec) + 2)
+COMMAND = skeleton.SpecCommand("delays", delays_goal.parse, _compute_warm, report_of,
+                                lambda spec: count_blocks(spec) + 2)  # [goal]: cli.delays_goal
 write_report, json_summary, run = COMMAND.write_report, COMMAND.json_summary, COMMAND.run

@@ -136,6 +136,10 @@ def ledger(lat: Lattice) -> dict:
     return lat.errors._asdict()
 
 
+PLAIN_STATUSES = ("ok", "met")
+"""Statuses without a reason (``met``: a goal row of :mod:`polyconv.cli.aggregate_goal`)."""
+
+
 def measure_cells(rep: DistributionReport) -> list[list[str]]:
     """The measures table, one row per measure."""
     return [r.cells() for r in rep.rows]
@@ -148,7 +152,7 @@ def footnoted_cells(rep: DistributionReport) -> tuple[list[list[str]], list[str]
     for r in rep.rows:
         cells = r.cells()
         status = cells[3]
-        if status != "ok":
+        if status not in PLAIN_STATUSES:
             flag, _, reason = status.partition(": ")
             if reason not in notes:
                 notes.append(reason)
@@ -214,10 +218,10 @@ def brief_text(rep: DistributionReport, number: str, indent: str) -> list[str]:
     for r in rep.rows:
         _, value, _, status = r.cells()
         unit = f" {r.unit}" if r.unit and value != "refused" else ""
-        measures.append(f"{r.label} {value}{unit}" + ("" if status == "ok" else " (!)"))
+        measures.append(f"{r.label} {value}{unit}" + ("" if status in PLAIN_STATUSES else " (!)"))
     lines = [f"{number}{rep.title}"]
     lines += wrap(["; ".join(measures)], indent=indent)
-    if any(r.status() != "ok" for r in rep.rows):
+    if any(r.status() not in PLAIN_STATUSES for r in rep.rows):
         lines += wrap(["(!) refused or warned: see the status column of the report"],
                       indent=indent)
     return lines + wrap(rep.caution, indent=indent)
