@@ -84,7 +84,14 @@ class LatticeAnswers:
         return self._bounded_stop_loss(arg, rtol, 3)
 
     def _refuse_or_keep(self, value, low, high, rtol, default, what, stacklevel) -> Bounded:
+        """The Bounded answer, refused when its range is wider than ``rtol``.  A value outside its
+        own certified range (the lattice's own TVaR, stop-loss or moment leaves out the mass
+        beyond the grid, which the range counts) is replaced by the middle of the range, as
+        the spliced answers do (:mod:`polyconv.dist.tail_splice`): never a value the
+        certificate excludes."""
         rtol = default if rtol is None else rtol
+        if math.isfinite(value) and low <= high and not low <= value <= high:
+            value = 0.5 * (low + high)
         scale = max(abs(value), self._step) if math.isfinite(value) else math.inf
         width = high - low
         if not math.isfinite(value) or not (width <= rtol * scale):
