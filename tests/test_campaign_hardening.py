@@ -103,3 +103,20 @@ def test_convolve_file_names_a_header_numpy_cannot_tokenize(tmp_path):
     with pytest.raises(ValueError, match="damaged .npy header"):
         polyconv.convolve_file(src, [1, 2, 3], tmp_path / "out.npy")
     assert not (tmp_path / "out.npy").exists()
+
+
+# ------------------------------------------------------------------------------- from_law
+# Finding (issue 16 item 11 audit): a frozen scipy law with parameters outside its family's
+# domain (scipy.stats.gamma(-1): the shape must be > 0, scipy's gamma documentation) reached
+# math.floor(nan) ("cannot convert float NaN to integer") instead of naming the law.
+
+
+@pytest.mark.parametrize("family, args, kwds", [("gamma", (-1,), {}), ("lognorm", (), {"s": -1}),
+                                               ("gamma", (2,), {"scale": -1})])
+def test_a_scipy_law_with_invalid_parameters_is_named(family, args, kwds):
+    from scipy import stats
+
+    frozen = getattr(stats, family)(*args, **kwds)
+    assert np.isnan(frozen.support()[0])  # scipy's own verdict: the parameters are invalid
+    with pytest.raises(ValueError, match=r"law: invalid parameters for scipy\.stats\."):
+        polyconv.dist.Lattice.from_law(frozen, step=0.1)

@@ -84,6 +84,10 @@ class LawAccess:
         if law_moments.is_scipy_continuous(law):
             self.frozen = law
             self.lower = float(law.support()[0])
+            if math.isnan(self.lower):  # scipy's mark of parameters outside the family's domain
+                raise ValueError(f"{name}: invalid parameters for scipy.stats."
+                                 f"{getattr(law.dist, 'name', 'law')} (args {law.args}, "
+                                 f"keywords {law.kwds}): its support is undefined")
         elif callable(law):
             self.frozen = None
             self.call = law
