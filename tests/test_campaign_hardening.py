@@ -120,3 +120,29 @@ def test_a_scipy_law_with_invalid_parameters_is_named(family, args, kwds):
     assert np.isnan(frozen.support()[0])  # scipy's own verdict: the parameters are invalid
     with pytest.raises(ValueError, match=r"law: invalid parameters for scipy\.stats\."):
         polyconv.dist.Lattice.from_law(frozen, step=0.1)
+
+
+# ----------------------------------------------------------------------------- step check
+# Finding (robustness campaign, "hang" over 60 s): Lattice.from_law(lognorm(1, scale=5),
+# step=0.1, size=1, rule="moments") searched 40 halvings of the step for a suggestion, the
+# last twenty on 2^20-point trial lattices, although no step can pass: one point of step 0.1
+# leaves the law's mass beyond 0.1 (scipy: lognorm.sf(0.1) = 0.99991) truncated.
+
+
+def test_the_step_suggestion_gives_up_when_the_size_truncates_the_law():
+    import warnings
+
+    from scipy import stats
+
+    law = stats.lognorm(1.0, scale=5.0)
+    assert law.sf(0.1) > 0.999  # scipy: nearly all the mass lies beyond the one point
+    res = polyconv.dist.check_step(law, step=0.1, size=1, rule="moments", warn=False)
+    assert not res.ok and np.isnan(res.suggested_step)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        polyconv.dist.Lattice.from_law(law, step=0.1, size=1, rule="moments")
+    assert any("raise size" in str(w.message) for w in caught)
+    # a step that is merely coarse still gets a suggestion that passes the same check
+    coarse = polyconv.dist.check_step(law, step=3.0, warn=False)
+    assert not coarse.ok and coarse.suggested_step < 3.0
+    assert polyconv.dist.check_step(law, step=coarse.suggested_step, warn=False).ok

@@ -8,6 +8,7 @@ variable ``POLYCONV_DEBUG=1`` to see the traceback of an unexpected internal err
 
 from __future__ import annotations
 
+import atexit
 import contextlib
 import os
 import signal
@@ -127,10 +128,14 @@ def main(argv: list[str] | None = None) -> int:
 
     Without ``argv`` this is the process entry (the ``polyconv`` script, ``python -m
     polyconv.cli.main``): the signal handlers are installed before anything heavy is imported
-    and stay installed until the process ends, so a signal while the interpreter shuts down
-    ends it with the status already decided instead of the signal's default action.  With
-    ``argv`` (a call from Python) the previous handlers are restored on return."""
+    and stay installed after the command: a signal while the interpreter shuts down ends it
+    at once with the status already decided, and from the last exit hook on the signals are
+    ignored (:func:`_ignore_signals`), never the default action that would kill the finished
+    process.  With ``argv`` (a call from Python) the previous handlers are restored on
+    return."""
     entry = argv is None
+    if entry:  # registered first, so it runs last of the exit hooks
+        atexit.register(_ignore_signals)
     name = "polyconv"
     status = INTERRUPTED
     try:
@@ -150,12 +155,34 @@ def main(argv: list[str] | None = None) -> int:
     return status
 
 
+def _ignore_signals() -> None:
+    """The last exit hook of the process entry: ignore the handled signals from here on.  The
+    interpreter resets Python-level handlers to the default action when it finalises (but
+    leaves ignored signals ignored); a signal in that last stretch would kill the process
+    after its work was done (seen as exit -1, -2 or -15)."""
+    for stream in (sys.stdout, sys.stderr):
+        with contextlib.suppress(Exception):
+            stream.flush()
+    if threading.current_thread() is threading.main_thread():
+        for sig in HANDLED_SIGNALS:
+            with contextlib.suppress(ValueError, OSError):
+                signal.signal(sig, signal.SIG_IGN)
+
+
 def _parse_and_run(argv: list[str] | None) -> int:
     """Parse the arguments and run the command (an interruption names the command)."""
     name = "polyconv"
     try:
         _raise_early_signal()
-        parser = build_parser()
+        try:
+            parser = build_parser()
+        except Exception as exc:  # noqa: BLE001 - a sub-command (numpy, scipy) failed to load
+            _raise_if_signalled(exc)
+            if os.environ.get("POLYCONV_DEBUG"):
+                raise
+            print(f"polyconv: error: cannot load the command line: {type(exc).__name__}: "
+                  f"{exc}".rstrip(), file=sys.stderr)
+            return USAGE_ERROR
         try:
             args = parser.parse_args(argv)
         except SystemExit as exc:  # --help (0) or a usage error (2): argparse printed it
@@ -170,6 +197,14 @@ def _parse_and_run(argv: list[str] | None) -> int:
         raise
 
 
+def _raise_if_signalled(exc: BaseException) -> None:
+    """Re-raise as :class:`Interrupted` an error that a signal caused: the handler raised inside
+    code that turned the interruption into another exception (numpy's import, for one, reports
+    any failure while its extension modules load as an ImportError)."""
+    if _SEEN and not isinstance(exc, (KeyboardInterrupt, SystemExit)):
+        raise Interrupted(_SEEN[0], signal.Signals(_SEEN[0]).name) from exc
+
+
 def _run(name: str, args) -> int:
     """Run the parsed command; every failure becomes one line on stderr and status 2."""
     import warnings
@@ -180,7 +215,11 @@ def _run(name: str, args) -> int:
     try:
         with warnings.catch_warnings():
             warnings.showwarning = show
-            status = args.run(args)
+            try:
+                status = args.run(args)
+            except Exception as exc:  # noqa: BLE001 - only to tell a signal's doing apart
+                _raise_if_signalled(exc)
+                raise
         return 0 if status in (None, 0) else USAGE_ERROR
     except BrokenPipeError:  # e.g. piped into `head`: stop quietly
         _silence_stdout()

@@ -82,19 +82,29 @@ _SIGNAL_AT_EXIT = """
 import atexit, os, signal, sys, time
 from polyconv.cli.main import main
 sig = getattr(signal, os.environ["SIG"])
-atexit.register(lambda: (os.kill(os.getpid(), sig), time.sleep(5)))  # at interpreter shut-down
-sys.exit(main())
+def late():
+    os.kill(os.getpid(), sig)
+    time.sleep(1)
+if os.environ["WHEN"] == "last":  # registered before main's own hook: runs after it
+    atexit.register(late)
+status = main()
+if os.environ["WHEN"] == "first":  # runs before main's hook: the handler is still in place
+    atexit.register(late)
+sys.exit(status)
 """
 
 
 @pytest.mark.parametrize("sig", ["SIGINT", "SIGTERM", "SIGHUP"])
+@pytest.mark.parametrize("when", ["first", "last"])
 @pytest.mark.parametrize("files, status", [(["a.txt", "a.txt"], 0), (["no.txt", "a.txt"], 2)])
 def test_a_signal_while_the_interpreter_shuts_down_keeps_the_status(tmp_path, monkeypatch, sig,
-                                                                    files, status):
-    # found by the robustness campaign: exit -15 (killed by SIGTERM) after the command had
-    # finished, its handlers already restored to the default action
+                                                                    when, files, status):
+    # found by the robustness campaign: exit -15, -1 (killed by SIGTERM, SIGHUP) after the
+    # command had finished: its handlers restored to the default action, or reset to it by the
+    # interpreter's finalisation
     (tmp_path / "a.txt").write_text("3 1 4 1 5")
     monkeypatch.setenv("SIG", sig)
+    monkeypatch.setenv("WHEN", when)
     proc = _python(_SIGNAL_AT_EXIT, ["multiply", *files], tmp_path)
     assert proc.returncode == status, proc.stderr
     assert "Traceback" not in proc.stderr and "Exception ignored" not in proc.stderr
@@ -103,6 +113,73 @@ def test_a_signal_while_the_interpreter_shuts_down_keeps_the_status(tmp_path, mo
         assert [int(v) for v in proc.stdout.split()] == want
     else:
         assert "no.txt" in proc.stderr
+
+
+def test_the_last_exit_hook_ignores_the_signals(monkeypatch):
+    # CPython's signal finalisation resets Python-level handlers to SIG_DFL but leaves SIG_IGN
+    # (Modules/signalmodule.c, _PySignal_Fini): ignoring is what survives to the very end
+    from polyconv.cli import main as cli
+
+    saved = {s: signal.getsignal(s) for s in cli.HANDLED_SIGNALS}
+    try:
+        cli._ignore_signals()
+        assert all(signal.getsignal(s) == signal.SIG_IGN for s in cli.HANDLED_SIGNALS)
+    finally:
+        for s, h in saved.items():
+            signal.signal(s, h)
+
+
+def _numpy_like_import(signum):
+    """A loader that turns an interruption into an ImportError, as numpy's __init__ does."""
+    def build_parser():
+        try:
+            os.kill(os.getpid(), signum)
+            time.sleep(1)
+        except KeyboardInterrupt as exc:
+            raise ImportError("numpy: the extension modules failed to load") from exc
+        raise AssertionError("the signal was not raised")
+
+    return build_parser
+
+
+@pytest.mark.parametrize("sig", SIGNALS)
+def test_a_signal_turned_into_an_import_error_still_exits_130(monkeypatch, capsys, sig):
+    # found by the robustness campaign: SIGINT while numpy loaded gave exit 1 and numpy's
+    # "troubleshooting ImportError" text
+    from polyconv.cli import main as cli
+
+    monkeypatch.setattr(cli, "build_parser", _numpy_like_import(sig))
+    assert main(["multiply", "a.txt", "b.txt"]) == 130
+    err = capsys.readouterr().err
+    assert f"interrupted ({signal.Signals(sig).name})" in err and "numpy" not in err
+
+
+def test_a_broken_installation_exits_2_naming_the_failure(monkeypatch, capsys):
+    from polyconv.cli import main as cli
+
+    def broken():
+        raise ImportError("numpy: the extension modules failed to load")
+
+    monkeypatch.setattr(cli, "build_parser", broken)
+    assert main(["multiply", "a.txt", "b.txt"]) == 2
+    err = capsys.readouterr().err
+    assert "cannot load the command line" in err and "extension modules" in err
+
+
+def test_a_signal_turned_into_another_error_inside_a_command_exits_130(tmp_path, monkeypatch,
+                                                                         capsys):
+    def converts():
+        try:
+            os.kill(os.getpid(), signal.SIGTERM)
+            time.sleep(1)
+        except KeyboardInterrupt as exc:
+            raise RuntimeError("a library wrapped the interruption") from exc
+
+    monkeypatch.setattr(demo_cmd, "counting", converts)
+    assert main(["demo", "-o", str(tmp_path / "d"), "--quiet"]) == 130
+    err = capsys.readouterr().err
+    assert "interrupted (SIGTERM)" in err and "internal error" not in err
+    assert os.listdir(tmp_path) == []
 
 
 _SIGNAL_WHILE_LOADING = """
