@@ -5,9 +5,10 @@
 Each draw picks a family (library calls, ``polyconv.dist``, CLI ``multiply`` on corrupt files and
 odd flags, spec mutations of the bundled demo specs for ``aggregate`` and ``delays``, ``demo`` /
 ``calibrate`` / ``bench`` with odd outputs and cost files, failures injected while report folders
-and files are written, disk-full via a file-size limit, real signals to a CLI subprocess), builds
-a hostile input from a seed and runs it in a worker process under a per-case alarm; the parent
-restarts the worker when it dies or stops answering.  Every outcome is classified:
+and files are written, disk-full via a file-size limit, real signals to a CLI subprocess at a
+random moment within 6 s after it installed its handler), builds a hostile input from a seed
+and runs it in a worker process under a per-case alarm; the parent restarts the worker when it
+dies or stops answering.  Every outcome is classified:
 
 ``ok``            a result that equals the oracle (python-flint ``fmpz_poly``/``nmod_poly`` for
                   integer products, ``numpy.convolve`` for floats, direct sums for lattice queries)
