@@ -142,7 +142,9 @@ def test_the_step_suggestion_gives_up_when_the_size_truncates_the_law():
         warnings.simplefilter("always")
         polyconv.dist.Lattice.from_law(law, step=0.1, size=1, rule="moments")
     assert any("raise size" in str(w.message) for w in caught)
-    # a step that is merely coarse still gets a suggestion that passes the same check
-    coarse = polyconv.dist.check_step(law, step=3.0, warn=False)
-    assert not coarse.ok and coarse.suggested_step < 3.0
-    assert polyconv.dist.check_step(law, step=coarse.suggested_step, warn=False).ok
+    # a step that is merely coarse still gets a suggestion that passes the same check, also
+    # from a step far beyond the law's scale (was 1e300 / 2^40 = 9.1e287, failing again)
+    for step in (3.0, 1e300):
+        coarse = polyconv.dist.check_step(law, step=step, warn=False)
+        assert not coarse.ok and coarse.suggested_step < 100.0
+        assert polyconv.dist.check_step(law, step=coarse.suggested_step, warn=False).ok
