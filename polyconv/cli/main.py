@@ -14,6 +14,7 @@ import os
 import signal
 import sys
 import threading
+import time
 from collections.abc import Iterator
 
 from .errors import INTERRUPTED, USAGE_ERROR, CliError, Interrupted
@@ -111,14 +112,36 @@ def signals_as_interrupts(keep: bool = False) -> Iterator[None]:
         _SEEN.clear()  # a call from Python: earlier signals are not this command's
     _FINISHED.clear()
     previous = _install_handlers()
+    hook = sys.unraisablehook
+    sys.unraisablehook = _redeliver_unraisable
     _ARMED.append(True)
     try:
         yield
     finally:
         _ARMED.clear()
+        if sys.unraisablehook is _redeliver_unraisable:
+            sys.unraisablehook = hook
         if not keep:
             for sig, handler in previous.items():
                 signal.signal(sig, handler)
+
+
+def _redeliver_unraisable(unraisable) -> None:
+    """``sys.unraisablehook`` while a command runs: an :class:`Interrupted` raised inside a
+    finaliser (``__del__``, a weakref callback) cannot propagate, and Python would print it as
+    "Exception ignored" with a traceback and carry on, losing the interruption.  Deliver the
+    signal again instead: the handler raises it in the command's own code."""
+    exc = unraisable.exc_value
+    if not isinstance(exc, Interrupted):
+        sys.__unraisablehook__(unraisable)
+        return
+
+    def send() -> None:  # from a helper thread, once this hook has returned: sending from the
+        time.sleep(0.01)  # hook itself would run the handler (and raise) inside the hook
+        _SEEN.clear()
+        os.kill(os.getpid(), exc.signum)
+
+    threading.Thread(target=send, name="polyconv-redeliver", daemon=True).start()
 
 
 def main(argv: list[str] | None = None) -> int:

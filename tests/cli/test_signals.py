@@ -246,6 +246,32 @@ def test_sighup_while_demo_replaces_its_folder_keeps_the_old_one(tmp_path):
         assert "SIGHUP" in err and after == before
 
 
+class _SignalsWhenCollected:
+    """An object whose finaliser receives the signal (the handler then raises inside __del__,
+    where Python can only report the exception as "Exception ignored")."""
+
+    def __del__(self):
+        os.kill(os.getpid(), signal.SIGHUP)
+        time.sleep(0.5)
+
+
+def test_a_signal_inside_a_finaliser_is_not_lost(tmp_path, monkeypatch, capsys):
+    # found by the robustness campaign: SIGHUP during `aggregate` gave exit 0 with a traceback
+    # ("Exception ignored in ...") and the report written as if nothing had happened
+    def counting():
+        _SignalsWhenCollected()  # collected at once (reference count 0)
+        time.sleep(0.5)
+        raise AssertionError("the signal was lost")
+
+    monkeypatch.setattr(demo_cmd, "counting", counting)
+    before = sys.unraisablehook
+    assert main(["demo", "-o", str(tmp_path / "d"), "--quiet"]) == 130
+    err = capsys.readouterr().err
+    assert "interrupted (SIGHUP)" in err
+    assert "Exception ignored" not in err and "Traceback" not in err
+    assert os.listdir(tmp_path) == [] and sys.unraisablehook is before
+
+
 def test_sigterm_in_process_maps_to_130_and_restores_the_handler(tmp_path, capsys, monkeypatch):
     before = signal.getsignal(signal.SIGTERM)
     monkeypatch.setattr(demo_cmd, "counting", lambda: os.kill(os.getpid(), signal.SIGTERM))
