@@ -88,8 +88,10 @@ def case_dist(rng: random.Random, work: Path):
             if isinstance(x, float) and not math.isnan(x) and np.ndim(got) == 0:
                 v = lat.values
                 if query == "cdf":
-                    # documented: x within 1e-9 steps of a point counts as it
-                    ref = float(p[v <= x + 1e-9 * lat.step].sum())
+                    # documented: x within 1e-9 steps of a point counts as it; at +inf the
+                    # mass beyond the grid (at finite points) counts too
+                    ref = float(p[v <= x + 1e-9 * lat.step].sum()) + \
+                        (lat.truncated_mass if x == math.inf else 0.0)
                 elif query == "sf":
                     ref = float(p[v > x + 1e-9 * lat.step].sum()) + lat.truncated_mass
                 else:

@@ -47,7 +47,9 @@ def _standard_tail(name: str, shapes: tuple, z: float) -> float | None:
     if name == "weibull_min":
         (c,) = shapes
         m = math.gamma(1.0 + 1.0 / c)
-        return m if z <= 0 else m * float(special.gammaincc(1.0 + 1.0 / c, z ** c))
+        with np.errstate(over="ignore"):  # z^c beyond the float range: inf, the tail is 0 there
+            zc = np.power(max(z, 0.0), c)
+        return m if z <= 0 else m * float(special.gammaincc(1.0 + 1.0 / c, zc))
     if name == "lognorm":
         (s,) = shapes
         m = math.exp(s * s / 2.0)
@@ -90,7 +92,9 @@ def _standard_tail2(name: str, shapes: tuple, z: float) -> float | None:
     if name == "weibull_min":
         (c,) = shapes
         m = math.gamma(1.0 + 2.0 / c)
-        return m if z <= 0 else m * float(special.gammaincc(1.0 + 2.0 / c, z ** c))
+        with np.errstate(over="ignore"):  # as in _standard_tail: inf, the tail is 0
+            zc = np.power(max(z, 0.0), c)
+        return m if z <= 0 else m * float(special.gammaincc(1.0 + 2.0 / c, zc))
     if name == "lognorm":
         (s,) = shapes
         m = math.exp(2.0 * s * s)

@@ -80,13 +80,12 @@ def real_value(value, name: str) -> float:
     return out
 
 
-def lattice_index(x, origin: float, step: float, n: int) -> np.ndarray:
-    """Index ``k`` of the last lattice point ``origin + step k <= x``, clipped to ``[-1, n]``
-    (so huge or infinite ``x`` never overflow an integer cast); ``nan`` maps to ``-1`` (callers
-    mask it)."""
+def lattice_index(x, origin: float, step: float, n: int, snap: float = SNAP) -> np.ndarray:
+    """Index ``k`` of the last point ``origin + step k <= x + snap step``, clipped to ``[-1, n]``
+    (so huge or infinite ``x`` never overflow an integer cast); ``nan`` maps to ``-1``."""
     xs = np.asarray(x, dtype=float)
     with np.errstate(invalid="ignore", over="ignore"):
-        k = np.floor((xs - origin) / step + SNAP)
+        k = np.floor((xs - origin) / step + snap)
     k = np.where(np.isnan(k), -1.0, np.clip(k, -1.0, float(n)))
     return k.astype(np.int64)
 
@@ -306,15 +305,15 @@ class Bracketer:
 
     # -- stop-loss --------------------------------------------------------------------------
     def stop_loss_value(self, d: np.ndarray) -> np.ndarray:
-        """The lattice's own ``E[(X - d)+]`` (computed pmf only), finite ``d``."""
-        m = np.clip(lattice_index(d, self.o, self.h, self.n) + 1, 0, self.n)
+        """The lattice's own ``E[(X - d)+]`` (computed pmf only), finite ``d`` (not snapped)."""
+        m = np.clip(lattice_index(d, self.o, self.h, self.n, snap=0.0) + 1, 0, self.n)
         xm = self.o + self.h * m
         return self.h * self.t[m] + (xm - d) * self.s[m]
 
     def stop_loss_range(self, d: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Certified ``(low, high)`` of the exact ``E[(X - d)+]`` at finite ``d``."""
         n, h = self.n, self.h
-        m = np.clip(lattice_index(d, self.o, h, n) + 1, 0, n)
+        m = np.clip(lattice_index(d, self.o, h, n, snap=0.0) + 1, 0, n)
         xm = self.o + h * m
         value = h * self.t[m] + (xm - d) * self.s[m]
         err = (xm - d) * self.Bt[m] + h * self.SB[np.minimum(m + 1, n + 1)]
@@ -404,8 +403,8 @@ class Bracketer:
         c = min(self.ledger.l1, 2 * cum_bound(self.ledger))
         d = self.ledger.point
         top = self.n - 1  # m = n - j runs over 0..n-1
-        if d <= 0 or c <= 0:
-            return 0.0
+        if not (c > 0 and d > 0):  # NaN: a ledger entry unknown (a NaN count law), no bound
+            return 0.0 if d <= 0 or c <= 0 else math.inf
         q = min(int(c / d), top)
         return (d * q * (q + 1) / 2 + (top - q) * c) * (1 + 4 * _U)
 
