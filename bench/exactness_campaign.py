@@ -124,8 +124,9 @@ def jit_module():
     """polyconv's JIT-state module wherever the layout keeps it (it may move between packages)."""
     import importlib
 
-    for name in ("polyconv.jit", "polyconv.numerics.jit", "polyconv.tuning.jit",
-                 "polyconv.engines.jit", "polyconv.engines.jit_state", "polyconv.pipeline.jit"):
+    for name in ("polyconv.engines.jit_state", "polyconv.jit", "polyconv.numerics.jit",
+                 "polyconv.tuning.jit",
+                 "polyconv.engines.jit", "polyconv.pipeline.jit"):
         try:
             return importlib.import_module(name)
         except ImportError:

@@ -32,13 +32,13 @@ def real_value(value, name: str) -> float:
     return out
 
 
-def lattice_index(x, origin: float, step: float, n: int) -> np.ndarray:
-    """Index ``k`` of the last lattice point ``origin + step k <= x``, clipped to ``[-1, n]``
+def lattice_index(x, origin: float, step: float, n: int, snap: float = SNAP) -> np.ndarray:
+    """Index ``k`` of the last point ``origin + step k <= x + snap step``, clipped to ``[-1, n]``
     (so huge or infinite ``x`` never overflow an integer cast); ``nan`` maps to ``-1`` (callers
     mask it)."""
     xs = np.asarray(x, dtype=float)
     with np.errstate(invalid="ignore", over="ignore"):
-        k = np.floor((xs - origin) / step + SNAP)
+        k = np.floor((xs - origin) / step + snap)
     k = np.where(np.isnan(k), -1.0, np.clip(k, -1.0, float(n)))
     return k.astype(np.int64)
 

@@ -59,6 +59,8 @@ def _ramp_total(cap: float, slope: float, count: int) -> float:
     """``sum_{i=0}^{count-1} min(cap, i slope)`` in closed form, rounded up."""
     if count <= 1 or cap <= 0 or slope <= 0:
         return 0.0
+    if math.isnan(cap) or math.isnan(slope):  # a ledger entry unknown: no bound
+        return math.inf
     ratio = cap / slope
     q = count - 1 if not ratio < count - 1 else int(ratio)
     return (slope * q * (q + 1) / 2 + (count - 1 - q) * cap) * (1 + 8 * _U)
@@ -71,11 +73,11 @@ class ExpectationBounds:
 
     # -- stop-loss --------------------------------------------------------------------------
     def stop_loss_value(self, d: np.ndarray) -> np.ndarray:
-        """The lattice's own ``E[(X - d)+]`` (computed pmf only), finite ``d``."""
+        """The lattice's own ``E[(X - d)+]`` (computed pmf only), finite ``d`` (not snapped)."""
         one = self._one_stop_loss(d)
         if one is not None:
             return one[0]
-        m = np.clip(lattice_index(d, self.o, self.h, self.n) + 1, 0, self.n)
+        m = np.clip(lattice_index(d, self.o, self.h, self.n, snap=0.0) + 1, 0, self.n)
         xm = self.o + self.h * m
         return self.h * self.t[m] + (xm - d) * self.s[m]
 
@@ -89,7 +91,7 @@ class ExpectationBounds:
         if np.ndim(d) != 0 or self.n < SCALAR_MIN or "_tails_long" in self.__dict__:
             return None
         n, h = self.n, self.h
-        m = int(np.clip(lattice_index(d, self.o, h, n) + 1, 0, n))
+        m = int(np.clip(lattice_index(d, self.o, h, n, snap=0.0) + 1, 0, n))
         memo = self.__dict__.setdefault("_one_sl", {})
         key = (m, float(d))
         if key not in memo:
@@ -119,7 +121,7 @@ class ExpectationBounds:
         if one is not None:
             value, err, s_m, xm, m = one
         else:
-            m = np.clip(lattice_index(d, self.o, h, n) + 1, 0, n)
+            m = np.clip(lattice_index(d, self.o, h, n, snap=0.0) + 1, 0, n)
             xm = self.o + h * m
             s_m = self.s[m]
             value = h * self.t[m] + (xm - d) * s_m
@@ -256,8 +258,8 @@ class ExpectationBounds:
         c = min(self.ledger.l1, 2 * cum_bound(self.ledger))
         d = self.ledger.point
         top = self.n - 1  # m = n - j runs over 0..n-1
-        if d <= 0 or c <= 0:
-            return 0.0
+        if not (c > 0 and d > 0):  # NaN: a ledger entry unknown (a NaN count law), no bound
+            return 0.0 if d <= 0 or c <= 0 else math.inf
         q = min(int(c / d), top)
         return (d * q * (q + 1) / 2 + (top - q) * c) * (1 + 4 * _U)
 

@@ -89,6 +89,10 @@ class LawAccess:
         if law_moments.is_scipy_continuous(law):
             self.frozen = law
             self.lower = float(law.support()[0])
+            if math.isnan(self.lower):  # scipy's mark of parameters outside the family's domain
+                raise ValueError(f"{name}: invalid parameters for scipy.stats."
+                                 f"{getattr(law.dist, 'name', 'law')} (args {law.args}, "
+                                 f"keywords {law.kwds}): its support is undefined")
         elif callable(law):
             self.frozen = None
             self.call = law
@@ -247,11 +251,14 @@ def rule_pmf(law: LawAccess, origin: float, h: float, size: int, rule: str,
 
 
 def _cell_integrals(law: LawAccess, origin: float, h: float, n_cells: int, nodes, weights):
-    """``int_{o+(j-1)h}^{o+jh} S(t) dt`` for ``j = 1..n_cells``."""
-    left = origin + h * np.arange(n_cells)
-    pts = left[:, None] + (nodes[None, :] + 1.0) * (h / 2.0)
-    vals = law.sf(pts.ravel()).reshape(pts.shape)
-    return (vals @ weights) * (h / 2.0)
+    """``int_{o+(j-1)h}^{o+jh} S(t) dt`` for ``j = 1..n_cells``, by blocks of cells so the
+    nodes times cells arrays stay small (within ``FROM_LAW_BYTES_PER_POINT``)."""
+    out = np.empty(n_cells)
+    for start in range(0, n_cells, 1 << 16):
+        j = np.arange(start, min(start + (1 << 16), n_cells))
+        pts = (origin + h * j)[:, None] + (nodes[None, :] + 1.0) * (h / 2.0)
+        out[start:start + j.size] = (law.sf(pts.ravel()).reshape(pts.shape) @ weights) * (h / 2.0)
+    return out
 
 
 def truncated_moment(law: LawAccess, origin: float, h: float, size: int, rule: str,

@@ -52,7 +52,11 @@ def _family_tail(name: str, shapes: tuple, z: float, k: int) -> float | None:
     if name == "weibull_min":
         (c,) = shapes
         m = math.gamma(1.0 + k / c)
-        return m if z <= 0 else m * float(special.gammaincc(1.0 + k / c, z ** c))
+        if z <= 0:
+            return m
+        with np.errstate(over="ignore"):  # z^c beyond the float range: inf, the tail is 0 there
+            zc = float(np.power(z, c))
+        return m * float(special.gammaincc(1.0 + k / c, zc))
     if name == "lognorm":
         (s,) = shapes
         m = math.exp(k * k * s * s / 2.0)

@@ -121,14 +121,19 @@ def _nice_floor(x: float) -> float:
 
 
 def _suggest(access: LawAccess, h: float, rule: str, rtol: float, layer, reach: float) -> float:
-    """First of ``h / 2^k`` whose trial lattice passes with margin 2 (rounded to a nice step)."""
+    """First of ``h / 2^k`` whose trial lattice passes with margin 2 (rounded to a nice step);
+    NaN when none does before the trial lattice reaches :data:`SUGGEST_MAX_POINTS` points or
+    when halving stops shrinking the gap (then the lattice's size, not its step, is at fault:
+    it truncates the law)."""
     frozen = access.frozen
     far = min(reach, float(frozen.isf(1e-9)))
     if layer is not None:
         far = max(far, layer[0] + (layer[1] if math.isfinite(layer[1]) else 0.0))
     trial = h
+    span = far - lattice_origin(access, h)  # a step beyond the span is pointless to halve
+    gaps: list[float] = []
     for _ in range(40):
-        trial /= 2.0
+        trial = span / 2.0 if span > 0 and trial > span else trial / 2.0
         origin = lattice_origin(access, trial)
         size = int(min(max((far - origin) / trial + 2, 2), SUGGEST_MAX_POINTS))
         pmf, _, _, truncated = rule_pmf(access, origin, trial, size, rule)
@@ -136,7 +141,13 @@ def _suggest(access: LawAccess, h: float, rule: str, rtol: float, layer, reach: 
         gap = _worst(_comparisons(frozen, pmf, trial, origin, truncated, moment, rule, layer))[3]
         if gap <= rtol / 2:
             return _nice_floor(trial)
-    return trial
+        gaps.append(gap)
+        # the trial lattice truncates the law and three halvings kept the gap: the size is
+        # at fault, no step will pass
+        stalled = truncated > rtol and len(gaps) >= 4 and not gap < 0.9 * gaps[-4]
+        if size >= SUGGEST_MAX_POINTS or stalled:
+            break
+    return math.nan
 
 
 def check_step(law, *, step: float, rule: str = "nearest", rtol: float = STEP_RTOL,
@@ -203,9 +214,15 @@ def _check(access: LawAccess, lattice, rule: str, rtol: float, layer, warn: bool
     reach = origin + h * pmf.size
     suggested = _suggest(access, h, rule, rtol, layer, reach)
     if warn:
+        if math.isfinite(suggested):
+            advice = f"try step={suggested:g}"
+        elif float(access.sf(np.array([reach]))[0]) > rtol:
+            advice = "no smaller step helps: the lattice's size truncates the law (raise size)"
+        else:
+            advice = "no smaller step found that passes"
         warnings.warn(f"step {h:g} is too coarse for this law ({rule!r} rule): the lattice's "
                       f"{name} is {lat:.6g} against the law's {law_value:.6g} (relative gap "
-                      f"{gap:.2g} > {rtol:g}); try step={suggested:g}", CoarseStepWarning,
+                      f"{gap:.2g} > {rtol:g}); {advice}", CoarseStepWarning,
                       stacklevel=stacklevel + 1)
     return StepCheck(name, lat, law_value, gap, False, suggested)
 

@@ -1,4 +1,5 @@
-"""Hardening of the command line's files, signals and input errors (issue 16, items 6-12).
+"""Hardening of the command line's files and input errors (issue 16, items 6-8, 10-12; signals, item
+9, are in test_signals.py).
 
 Oracles: the file system state itself (contents, ``os.stat`` modes, directory listings), exit
 statuses (0, 2, 130 are the CLI's documented statuses), numpy.convolve / python-flint for the
@@ -15,7 +16,6 @@ import signal
 import stat
 import subprocess
 import sys
-import time
 from pathlib import Path
 
 import flint
@@ -128,22 +128,6 @@ def test_successful_rerun_replaces_every_file_and_keeps_the_users(old_report, ca
     assert os.listdir(old_report.parent) == ["rep"]
 
 
-def test_critical_section_holds_a_signal_until_the_rename_is_done(tmp_path):
-    target = tmp_path / "f.txt"
-    target.write_text("old")
-    seen = []
-    previous = signal.signal(signal.SIGTERM, lambda s, f: seen.append(target.read_text()))
-    try:
-        with _atomic.critical_section():
-            os.kill(os.getpid(), signal.SIGTERM)
-            time.sleep(0.05)
-            assert seen == []  # held back
-            target.write_text("new")
-        assert seen == ["new"]  # delivered after the block, when the target was complete
-    finally:
-        signal.signal(signal.SIGTERM, previous)
-
-
 # --------------------------------------------------------------------------- item 8: modes
 
 
@@ -244,23 +228,8 @@ def test_demo_keeps_an_edited_spec_copy_and_says_so(tmp_path, capsys):
     assert f"kept your edited {other}" not in out
 
 
-# ------------------------------------------------------------------------ item 9: signals
-
-
-def _wait_for_handler(proc, signum: int, timeout: float = 60.0) -> None:
-    """Poll /proc until the process catches ``signum`` (the CLI's handler is installed)."""
-    deadline = time.monotonic() + timeout
-    while time.monotonic() < deadline:
-        try:
-            status = Path(f"/proc/{proc.pid}/status").read_text()
-        except OSError:
-            return
-        caught = int(next(line.split()[1] for line in status.splitlines()
-                          if line.startswith("SigCgt:")), 16)
-        if caught >> (signum - 1) & 1:
-            return
-        time.sleep(0.005)
-    raise AssertionError("the CLI never installed its signal handler")
+# ------------------------------------------------------------------------ disk full (11)
+# (item 9, signals: tests/cli/test_signals.py)
 
 
 def _cli(args, cwd, **kwargs):
@@ -269,48 +238,6 @@ def _cli(args, cwd, **kwargs):
                             env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
                             **kwargs)
 
-
-@pytest.mark.skipif(not Path("/proc/self/status").exists(), reason="needs Linux /proc")
-def test_ctrl_c_while_numpy_and_scipy_load_exits_130_without_traceback(tmp_path):
-    (tmp_path / "a.txt").write_text("1 2")
-    proc = _cli(["multiply", "a.txt", "a.txt"], tmp_path)
-    _wait_for_handler(proc, signal.SIGTERM)  # installed before the sub-commands are imported
-    proc.send_signal(signal.SIGINT)
-    out, err = proc.communicate(timeout=120)
-    assert proc.returncode == 130, err
-    assert "Traceback" not in err and "interrupted" in err
-
-
-@pytest.mark.skipif(not Path("/proc/self/status").exists(), reason="needs Linux /proc")
-@pytest.mark.parametrize("sig", [signal.SIGTERM, signal.SIGHUP])
-def test_sigterm_and_sighup_while_streaming_remove_the_temporary(tmp_path, sig):
-    np.save(tmp_path / "a.npy", np.arange(4_000_000) % 1000)
-    np.save(tmp_path / "k.npy", np.arange(200) % 7)
-    (tmp_path / "out.npy").write_bytes(b"previous")
-    proc = _cli(["multiply", "a.npy", "k.npy", "-o", "out.npy", "--memory-budget", "4",
-                 "--quiet"], tmp_path)
-    deadline = time.monotonic() + 120
-    while not any(n.endswith(".tmp") for n in os.listdir(tmp_path)):  # the writer has started
-        assert proc.poll() is None and time.monotonic() < deadline, proc.communicate()
-        time.sleep(0.005)
-    proc.send_signal(sig)
-    out, err = proc.communicate(timeout=120)
-    assert proc.returncode == 130, err
-    assert "Traceback" not in err and signal.Signals(sig).name in err
-    assert sorted(os.listdir(tmp_path)) == ["a.npy", "k.npy", "out.npy"]
-    assert (tmp_path / "out.npy").read_bytes() == b"previous"
-
-
-def test_sigterm_in_process_maps_to_130_and_restores_the_handler(tmp_path, capsys, monkeypatch):
-    before = signal.getsignal(signal.SIGTERM)
-    monkeypatch.setattr(demo_cmd, "counting", lambda: os.kill(os.getpid(), signal.SIGTERM))
-    code, _, err = run_cli(["demo", "-o", str(tmp_path / "d"), "--quiet"], capsys)
-    assert code == 130 and "SIGTERM" in err
-    assert os.listdir(tmp_path) == []
-    assert signal.getsignal(signal.SIGTERM) == before
-
-
-# ------------------------------------------------------------------------ disk full (11)
 
 
 def _limit_file_size(limit: int):

@@ -1,0 +1,1 @@
+"""The robustness campaign's modules (entry point: ``bench/robustness_campaign.py``)."""
