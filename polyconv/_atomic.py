@@ -141,17 +141,26 @@ class AtomicFile:
         self.done = False
         self.temp = _temp_name(self.target, ".tmp")
         keep = existing_mode(self.target)
+        fd = None
         try:
-            fd = os.open(self.temp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666)  # umask applies
-        except OSError as exc:
-            raise _named(exc, self.target) from None
-        try:
-            if keep is not None:
-                os.fchmod(fd, keep)
-            self.file: BinaryIO = os.fdopen(fd, "wb")
+            # signals held while the temporary is created and opened: an interruption between
+            # os.open and the cleanup below would leave it behind; delivered on leaving, inside
+            # this try, so the except removes it
+            with critical_section():
+                try:
+                    fd = os.open(self.temp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666)  # umask
+                except OSError as exc:
+                    raise _named(exc, self.target) from None
+                if keep is not None:
+                    os.fchmod(fd, keep)
+                self.file: BinaryIO = os.fdopen(fd, "wb")
         except BaseException:
-            os.close(fd)
-            self._remove_temp()
+            if fd is not None:
+                if getattr(self, "file", None) is not None:
+                    self.file.close()
+                else:
+                    os.close(fd)
+                self._remove_temp()
             raise
 
     def write(self, data) -> None:
