@@ -252,11 +252,23 @@ def figure_png(rep: DistributionReport) -> bytes:
                                                 if r.argument_name == "deadline"])
 
 
+PLOT_LIMIT = 1e250
+"""Largest amount a report figure draws: tick and limit arithmetic (differences, margins,
+products of the step) must stay finite in float64."""
+
+
 def write_files(rep: DistributionReport, out: ReportFolder, prefix: str = "") -> list[str]:
     """Add the report's files to a report folder; returns the names written."""
     names = []
     fig_name = None
-    if plots.available():
+    top = rep.lattice.origin + rep.lattice.step * len(rep.lattice)
+    if not (math.isfinite(top) and abs(top) <= PLOT_LIMIT and
+            abs(rep.lattice.origin) <= PLOT_LIMIT):
+        note = (f"figure left out: amounts up to {top:.3g} are beyond what a figure can draw "
+                f"(|x| <= {PLOT_LIMIT:g})")
+        if note not in rep.notes:
+            rep.notes.append(note)
+    elif plots.available():
         fig_name = f"{prefix}{rep.stem}.png"
         out.write_bytes(fig_name, (rep.figure or figure_png)(rep))
         names.append(fig_name)

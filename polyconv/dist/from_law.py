@@ -207,6 +207,13 @@ def default_size(law: LawAccess, h: float, origin: float, tail: float = DEFAULT_
     top = law.isf(tail)
     n = (top - origin) / h + 3 if math.isfinite(top) else math.inf
     if n > MAX_POINTS:
+        median = law.isf(0.5)
+        if origin + h * (MAX_POINTS - 1) < median:  # most of the mass beyond any grid allowed
+            raise ValueError(f"step={h!r} is too small for this law: {MAX_POINTS} points (the "
+                             f"most from_law lays out) end at {origin + h * MAX_POINTS:.6g}, "
+                             f"below the law's median {median:.6g}; give a step of at least "
+                             f"{(median - origin) / MAX_POINTS:.3g} (e.g. "
+                             f"{(median - origin) / 2 ** 16:.3g}) or an explicit size")
         warnings.warn(f"from_law: the tail needs more than {MAX_POINTS} points to fall below "
                       f"{tail}; cut there (see truncated_mass)", TruncationWarning, stacklevel=3)
         n = MAX_POINTS

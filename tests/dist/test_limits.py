@@ -141,3 +141,17 @@ def test_std_of_truncated_compound_and_sum_is_bounded():
             assert not b_long.refused and (b_long.high - b_long.low) < 1e-3 * b_long.value
             assert math.isfinite(b_short.high)
             assert b_short.low <= b_long.value <= b_short.high
+
+
+def test_step_far_too_small_for_the_law_is_refused_up_front():
+    # hardening campaign: gamma(2) on step 1e-300 laid out 2^24 points holding no mass (and
+    # ran > 60 s with rule "moments"); the most points from_law lays out end far below the
+    # law's median (scipy.stats.gamma(2).median() = 1.678..., scipy), so it is refused by name
+    from scipy import stats
+
+    from polyconv.dist import Lattice
+
+    assert stats.gamma(2).median() > 1.6
+    for rule in ("nearest", "moments"):
+        with pytest.raises(ValueError, match=r"step=1e-300 is too small for this law"):
+            Lattice.from_law(stats.gamma(2), step=1e-300, rule=rule)
