@@ -30,6 +30,10 @@ AHEAD_BYTES = 128 << 20
 Key = tuple[Path, "str | int | None"]
 
 
+JOIN_SECONDS = 30.0
+"""Longest wait for the worker in :meth:`Prefetch.close` (one file's parse)."""
+
+
 class Prefetch:
     """Files ``sources`` (``(path, column)`` in the order they will be asked for) parsed ahead
     on a daemon thread; :meth:`take` returns an array or None (read it yourself)."""
@@ -82,12 +86,16 @@ class Prefetch:
         return x
 
     def close(self) -> None:
-        """Stop reading ahead (what is held is dropped)."""
+        """Stop reading ahead (what is held is dropped) and wait for the worker to end: it
+        finishes at most the file it is parsing, so no thread is left in compiled code while
+        the interpreter shuts down (a signal at the end of a run then gave exit -6)."""
         with self._cond:
             self._stop = True
             self._done.clear()
             self._held = 0
             self._cond.notify_all()
+        if self._thread is not None and self._thread is not threading.current_thread():
+            self._thread.join(JOIN_SECONDS)
 
 
 def sources(spec, sections) -> list[Key]:
