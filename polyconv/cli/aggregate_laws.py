@@ -105,8 +105,13 @@ def _base(sec: Section, law: str) -> tuple[object, str]:
         if not var > mean:
             raise sec.error("variance", f"must exceed the mean ({mean:g}) for a negative "
                             f"binomial; got {var:g} (equal: use law = \"poisson\")")
-        return stats.nbinom(mean * mean / (var - mean), mean / var), \
-            f"negative binomial, mean {mean:g}, variance {var:g}"
+        size, prob = mean * mean / (var - mean), mean / var
+        if not (size > 0 and prob > 0 and math.isfinite(size)):
+            raise sec.error("mean", f"and variance ({mean:g}, {var:g}) give a negative binomial "
+                            f"with n = {size:g}, p = {prob:g} beyond the float range; give a "
+                            f"mean and variance whose ratio and mean^2 / (variance - mean) "
+                            f"are positive finite numbers")
+        return stats.nbinom(size, prob), f"negative binomial, mean {mean:g}, variance {var:g}"
     sec.check_keys(("law", "trials", "probability"))
     trials = sec.integer("trials", minimum=0)
     prob = sec.number("probability", minimum=0.0, maximum=1.0)

@@ -142,8 +142,13 @@ def _nbinom(n: float, p: float) -> CountsLaw:
         mean=n * q / p,
         pgf_rel=2 * n * q / p + 6,  # conservative: exp(n log(..)) with |n log| ~ n q|z-1|/p
     )
-    return CountsLaw("nbinom", (q, (n - 1.0) * q), law,
-                     lambda f0: n * (math.log(p) - math.log1p(-q * f0)))
+    def log_pgf_at(f0: float) -> float:
+        # 1 - q f0 = p + q (1 - f0): no cancellation near f0 = 1 (with q rounded to 1 for a
+        # tiny p, log1p(-q f0) at f0 = 1 was a math domain error); log1p where q f0 is small
+        x = q * f0
+        return n * (math.log(p) - (math.log1p(-x) if x < 0.5 else math.log(p + q * (1.0 - f0))))
+
+    return CountsLaw("nbinom", (q, (n - 1.0) * q), law, log_pgf_at)
 
 
 def _binom(m: int, p: float) -> CountsLaw:

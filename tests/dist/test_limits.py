@@ -155,3 +155,21 @@ def test_step_far_too_small_for_the_law_is_refused_up_front():
     for rule in ("nearest", "moments"):
         with pytest.raises(ValueError, match=r"step=1e-300 is too small for this law"):
             Lattice.from_law(stats.gamma(2), step=1e-300, rule=rule)
+
+
+def test_negative_binomial_log_pgf_near_one_has_no_domain_error():
+    # robustness campaign: nbinom with variance 1e308 (p = 3e-308, q rounds to 1) raised
+    # "math domain error" at f0 = 1 in the largest-claim table.  log P(f0) = n (log p -
+    # log(1 - q f0)) is the nbinom pgf (Johnson, Kemp & Kotz, Univariate Discrete
+    # Distributions, ch. 5, from memory), checked with mpmath; log P(1) = 0 exactly
+    import mpmath
+    from scipy import stats
+
+    from polyconv.dist.counts import classify
+
+    tiny = classify(stats.nbinom(3 * 3 / (1e308 - 3), 3 / 1e308))
+    assert tiny.log_pgf_at(1.0) == 0.0
+    law = classify(stats.nbinom(2.5, 0.3))
+    for f0 in (0.0, 0.2, 0.9, 0.999999):
+        ref = 2.5 * (mpmath.log(mpmath.mpf(0.3)) - mpmath.log(1 - mpmath.mpf(0.7) * f0))
+        assert law.log_pgf_at(f0) == pytest.approx(float(ref), rel=1e-13, abs=1e-15)
