@@ -12,33 +12,14 @@ import pytest
 flint = pytest.importorskip("flint")
 pytest.importorskip("numba")
 
-from polyconv.engines import jit_state as jit  # noqa: E402
+from flint_rows import flint_row_product as _reference  # noqa: E402
+
 from polyconv.engines import ntt_batch as nb  # noqa: E402
 
 P = 998244353
 
 
-@pytest.fixture(scope="module", autouse=True)
-def kernels():
-    """Compile or load the kernels once (skipped where they cannot run, e.g. POLYCONV_JIT=0)."""
-    try:
-        return jit.kernels("_kernels_batch")
-    except jit.JitUnavailableError as exc:
-        pytest.skip(str(exc))
-
-
-def _reference(a, b, m=None):
-    """python-flint's product of one row pair, as Python ints, zero-padded to full length."""
-    if m is None:
-        c = flint.fmpz_poly([int(v) for v in a]) * flint.fmpz_poly([int(v) for v in b])
-        ref = [int(v) for v in c.coeffs()]
-    elif m < 2**63:
-        c = (flint.nmod_poly([int(v) % m for v in a], m)
-             * flint.nmod_poly([int(v) % m for v in b], m))
-        ref = [int(v) for v in c.coeffs()]
-    else:  # nmod_poly takes word-size moduli only: exact product, then reduce
-        ref = [v % m for v in _reference(a, b)]
-    return ref + [0] * (len(a) + len(b) - 1 - len(ref))
+pytestmark = pytest.mark.usefixtures("batch_kernels")
 
 
 SHAPES = [(1, 1, 1), (5, 3, 4), (4, 1, 9), (3, 40, 50), (2, 130, 100), (2, 700, 3)]

@@ -9,8 +9,6 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-import polyconv.pipeline.inputs as inputs
-import polyconv.scale.blocks as blocks
 from polyconv.scale.blocks import BlockProducts, KernelProducts
 from polyconv.scale.streaming import convolve_chunks, convolve_file
 
@@ -24,26 +22,6 @@ def _flint_product(x, k, modulus=None) -> list[int]:
     c = (flint.fmpz_poly([int(v) for v in x]) * flint.fmpz_poly([int(v) for v in k])).coeffs()
     out = [int(v) for v in c] + [0] * (len(x) + len(k) - 1 - len(c))
     return out if modulus is None else [v % modulus for v in out]
-
-
-@pytest.fixture
-def counted(monkeypatch):
-    """Count calls of the pipeline's validating entry point (inputs.prepare_pair: every
-    polyconv.convolve classifies its operands there) and of the chooser used for blocks."""
-    calls = {"prepare_pair": 0, "choose": 0}
-    prepare_pair, choose = inputs.prepare_pair, blocks.choose
-
-    def counting_prepare(*args, **kwargs):
-        calls["prepare_pair"] += 1
-        return prepare_pair(*args, **kwargs)
-
-    def counting_choose(*args, **kwargs):
-        calls["choose"] += 1
-        return choose(*args, **kwargs)
-
-    monkeypatch.setattr(inputs, "prepare_pair", counting_prepare)
-    monkeypatch.setattr(blocks, "choose", counting_choose)
-    return calls
 
 
 # ----------------------------------------------------------------------------- validated once

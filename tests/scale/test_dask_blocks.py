@@ -10,9 +10,6 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-import polyconv.pipeline.inputs as inputs
-import polyconv.scale.blocks as blocks
-
 da = pytest.importorskip("dask.array")
 flint = pytest.importorskip("flint")
 
@@ -80,20 +77,8 @@ def test_object_dask_array_of_python_ints_stays_exact():
 
 # ----------------------------------------------------------------------------- checked once
 
-def test_dask_blocks_skip_per_block_validation(monkeypatch):
-    calls = {"prepare_pair": 0, "choose": 0}
-    prepare_pair, choose = inputs.prepare_pair, blocks.choose
-
-    def counting_prepare(*args, **kwargs):
-        calls["prepare_pair"] += 1
-        return prepare_pair(*args, **kwargs)
-
-    def counting_choose(*args, **kwargs):
-        calls["choose"] += 1
-        return choose(*args, **kwargs)
-
-    monkeypatch.setattr(inputs, "prepare_pair", counting_prepare)
-    monkeypatch.setattr(blocks, "choose", counting_choose)
+def test_dask_blocks_skip_per_block_validation(counted):
+    calls = counted
     x = RNG.standard_normal(30 * 400 + 50)
     k = RNG.standard_normal(80)
     got = convolve_dask(da.from_array(x, chunks=400), k).compute(scheduler="sync")
