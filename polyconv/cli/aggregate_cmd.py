@@ -225,6 +225,8 @@ def compute(spec: AggregateSpec, steps: Steps | None = None) -> AggregateResult:
         if steps:
             steps.step("total")
         facts: dict = {}
+        if results[0].goal_grid is not None:
+            facts["goal_grid"] = results[0].goal_grid
         tables = []
         if spec.several:
             names = [r.spec.name for r in results]

@@ -133,6 +133,11 @@ def compute_goal_line(line: line_mod.LineSpec, spec: GoalSpec, currency: str, st
                               severity_mean=al.exact_mean(line.severity),
                               per_occurrence=per_claim, notes=notes)
     out.checks = line_mod.mean_checks(out, per_claim)
+    out.goal_grid = {"rtol": spec.goal.rtol, "atol": spec.goal.atol,
+                     "max_points": spec.goal.max_points, "step": res.step,
+                     "step_source": "given" if spec.step_given else "pilot VaR",
+                     "points": len(fine),
+                     "far_tail": [{"step": k, "points": n} for k, n in res.levels]}
     return out, goal_rows(res.answers, currency)
 
 

@@ -175,6 +175,8 @@ class LineResult:
     per_occurrence: Lattice | None = None
     checks: list[list] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
+    goal_grid: dict | None = None
+    """With a ``[goal]``: the grid chosen for it (numbers for ``summary.json``)."""
 
 
 def compute_line(line: LineSpec, currency: str, steps=None) -> LineResult:

@@ -282,6 +282,8 @@ def report_of(res: DelayResult) -> skeleton.DistributionReport:
              "target": res.target._asdict() if res.target else None,
              "reliability": [r.as_json() for r in res.reliability_rows],
              "hazard_at_mission_times": res.hazards}
+    if res.goal_grid is not None:
+        facts["goal_grid"] = res.goal_grid
     markers = skeleton.finite_markers(res.rows, "percentiles")
     deadlines = [(r.argument, r.value, r.low, r.high) for r in res.rows
                  if r.argument_name == "deadline"]

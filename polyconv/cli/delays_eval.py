@@ -59,6 +59,8 @@ class DelayResult:
     target: Target | None = None
     reliability_rows: list[MeasureRow] = field(default_factory=list)
     hazards: list[float] = field(default_factory=list)
+    goal_grid: dict | None = None
+    """With a ``[goal]``: the step chosen for it (numbers for ``summary.json``)."""
 
 
 def count_blocks(spec: DelaySpec) -> int:

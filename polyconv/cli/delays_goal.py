@@ -122,6 +122,12 @@ def compute_with_goal(spec: DelaySpec, steps=None) -> DelayResult:
     asked = set(goal.percentiles)
     res.rows = rows + [r for r in res.rows if not (r.key == "percentiles"
                                                    and r.argument in asked)]
+    res.goal_grid = {"atol": goal.atol, "rtol": goal.rtol, "step": h,
+                     "step_source": "grid.step" if goal.step_given else "goal.atol",
+                     "start_step": spec.step, "halvings": round(math.log2(spec.step / h)),
+                     "brackets": [{"percentile": q, "low": b.low, "high": b.high,
+                                   "step": b.step, "met": bool(b.met)}
+                                  for q, b in zip(goal.percentiles, brackets, strict=True)]}
     res.notes = notes + res.notes + [
         f"step chosen for the goal (atol {goal.atol:g}, rtol {goal.rtol:g}): {fmt(h)} "
         f"{spec.unit}, from {'grid.step' if goal.step_given else 'goal.atol'} "

@@ -85,6 +85,11 @@ def test_aggregate_goal_poisson_exponential_meets_rtol(tmp_path, capsys):
         assert row["high"] - row["low"] <= 1e-4 * abs(row["value"]) * (1 + 1e-6)
         assert row["low"] <= row["value"] <= row["high"]
     assert out["grid_step"] <= 1e-4 * var_ref  # the step was chosen, not given
+    # the grid choice as numbers in summary.json (same run)
+    grid = out["goal_grid"]
+    assert grid["step"] == out["grid_step"] and grid["points"] == out["grid_points"]
+    assert grid["step_source"] == "pilot VaR" and grid["rtol"] == 1e-4
+    assert grid["points"] <= grid["max_points"] and grid["far_tail"] == []
     summary = (tmp_path / "out" / "summary.md").read_text()
     assert "| goal: VaR 99.5% (EUR) |" in summary and "| met |" in summary
     assert "CAUTION" in summary
@@ -187,6 +192,11 @@ def test_delays_goal_p999_within_atol_of_gamma(tmp_path, capsys):
     assert row["low"] <= ref <= row["high"] and row["high"] - row["low"] <= 0.1 * (1 + 1e-9)
     assert abs(row["value"] - ref) <= 0.1
     assert out["grid_step"] < 1.0  # halved from the first step
+    grid = out["goal_grid"]  # the step choice as numbers (same run)
+    assert grid["step"] == out["grid_step"] and grid["start_step"] == 1.0
+    assert grid["step"] * 2 ** grid["halvings"] == 1.0 and grid["step_source"] == "grid.step"
+    (br,) = grid["brackets"]
+    assert br["percentile"] == 99.9 and br["met"] and br["low"] <= ref <= br["high"]
 
 
 def test_delays_goal_refuses_measured_stage(tmp_path, capsys):
