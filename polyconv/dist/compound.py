@@ -126,23 +126,29 @@ def compound_lattice(counts, law: CountsLaw, severity: Lattice, method: str, siz
                              f"binom with loc=0); counts is {law.name}: use method='fft'")
         g, errs = panjer_recursion(law, f, size)
         r_point, r_l1 = float(np.max(errs)), float(np.sum(errs))
+        r_cum = r_l1
     else:
         res = transform_compound(law.transform, f, size, rebalance=rebalance)
         g, r_point, r_l1 = res.pmf, res.trust_floor, min(res.l1_bound, size * res.trust_floor)
-        # per point: the tilted-domain bound (a Euclidean norm, so also per point) untilted at
-        # each index, plus the aliasing bound (uniform in k)
-        errs = res.rounding_floor * np.exp(res.theta * (np.arange(size) - (size - 1))) \
-            + res.aliasing_floor
+        if res.errors is not None:  # longdouble route: a-posteriori per-point bounds
+            errs = res.errors
+            r_cum = min(res.cumulative, r_l1)
+        else:
+            # per point: the tilted-domain bound (a Euclidean norm, so also per point) untilted
+            # at each index, plus the aliasing bound (uniform in k)
+            errs = res.rounding_floor * np.exp(res.theta * (np.arange(size) - (size - 1))) \
+                + res.aliasing_floor
+            r_cum = r_l1
     g = np.minimum(g, 1.0)
     route_l2 = None
     if method != "recursion":
         # Euclidean norm of the route's error: the tilted-domain bound is one (untilted: times
         # at most e^{theta (size - 1)}); the aliased mass has L1 (so L2) at most its bound
-        route_l2 = res.rounding_floor + res.aliasing_floor
+        route_l2 = res.l2_bound
     ledger = compound_ledger(counts, law, severity, f, g, r_point, r_l1, errs, second_moment,
-                             route_l2)
+                             route_l2, r_cum)
     profile, carried = _profile(errs, severity, counts, law)
-    if method != "recursion" and res.theta * (size - 1) < 1:
+    if method != "recursion" and res.errors is None and res.theta * (size - 1) < 1:
         profile = None  # nearly uniform: the Euclidean bound l2 beats its running sums
     l2 = None
     if route_l2 is not None:  # plus the severity's carried errors, ||e||_2^2 <= ||e||_inf ||e||_1
@@ -185,7 +191,7 @@ def _log_pgf_above_one(law: CountsLaw, delta: float) -> float:
 
 def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g: np.ndarray,
                     r_point: float, r_l1: float, errs: np.ndarray, second_moment: bool = True,
-                    route_l2: float | None = None) -> ErrorLedger:
+                    route_l2: float | None = None, r_cum: float | None = None) -> ErrorLedger:
     """Error ledger of a compound computed from the severity vector ``f`` (route rounding
     ``r_point``, ``r_l1``).
 
@@ -205,6 +211,7 @@ def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g:
       (Cauchy-Schwarz), far below the per-point sum on long grids.
     * ``second_moment=False`` leaves the truncated part's second moment unknown (``inf``: the
       standard deviation is then refused), for callers that need no std.
+    * ``r_cum``: a bound of the route's cumulative (signed) error sums (default ``r_l1``).
     """
     e = severity.errors
     h = severity.step
@@ -222,7 +229,7 @@ def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g:
         l1_in = point_in = cum_in = 0.0
     l1 = min(r_l1 + l1_in, 2.0)
     point = min(r_point + point_in, l1)
-    cum = min(r_l1 + cum_in, l1)
+    cum = min((r_l1 if r_cum is None else r_cum) + cum_in, l1)
     k0 = f.size - len(severity)
     froms = [size]
     if not untruncated(e):

@@ -116,11 +116,12 @@ def _poisson(mu: float) -> CountsLaw:
     if not (math.isfinite(mu) and mu >= 0):
         raise ValueError(f"counts: poisson mean must be finite and >= 0; got {mu!r}")
     law = TransformLaw(
-        pgf=lambda z: np.exp(mu * (z - 1.0)),
+        pgf=lambda z: np.exp(mu * (z - 1.0)),  # in z's precision (longdouble too)
         ratio=lambda z: np.full(z.shape, mu),
         log_pgf_real=lambda s: mu * math.expm1(s) if s < 700 else math.inf,
         mean=mu,
         pgf_rel=2 * mu + 4,  # exp of w = mu (z - 1), |w| <= 2 mu: relative error ~ (|w| + 2) u
+        long_ok=True,
     )
     return CountsLaw("poisson", (0.0, mu), law, lambda f0: -mu * (1.0 - f0))
 
@@ -135,12 +136,19 @@ def _nbinom(n: float, p: float) -> CountsLaw:
             return math.inf
         return n * (math.log(p) - math.log1p(-q * math.exp(s)))
 
+    def pgf(z):
+        # constants in z's precision (a longdouble route must not meet float64 log(p))
+        real = z.real.dtype.type
+        pz, qz = real(p), real(1) - real(p)
+        return np.exp(n * (np.log(pz) - np.log(1 - qz * z)))
+
     law = TransformLaw(
-        pgf=lambda z: np.exp(n * (math.log(p) - np.log(1.0 - q * z))),
+        pgf=pgf,
         ratio=lambda z: n * q / (1.0 - q * z),
         log_pgf_real=log_pgf_real,
         mean=n * q / p,
         pgf_rel=2 * n * q / p + 6,  # conservative: exp(n log(..)) with |n log| ~ n q|z-1|/p
+        long_ok=True,
     )
     def log_pgf_at(f0: float) -> float:
         # 1 - q f0 = p + q (1 - f0): no cancellation near f0 = 1 (with q rounded to 1 for a
@@ -154,12 +162,17 @@ def _nbinom(n: float, p: float) -> CountsLaw:
 def _binom(m: int, p: float) -> CountsLaw:
     if not (m >= 0 and 0 <= p <= 1):
         raise ValueError(f"counts: binom needs n >= 0 and 0 <= p <= 1; got n={m!r}, p={p!r}")
+    def pgf(z):
+        real = z.real.dtype.type  # constants in z's precision (longdouble too)
+        return integer_power(real(1) - real(p) + real(p) * z, m)
+
     law = TransformLaw(
-        pgf=lambda z: integer_power(1.0 - p + p * z, m),
+        pgf=pgf,
         ratio=lambda z: m * p / np.where(1.0 - p + p * z == 0, 1.0, 1.0 - p + p * z),
         log_pgf_real=lambda s: m * math.log1p(p * math.expm1(s)) if s < 700 else math.inf,
         mean=m * p,
         pgf_rel=m * math.sqrt(5.0) + 4,
+        long_ok=True,
     )
     ab = None if p >= 1 else (-p / (1 - p), (m + 1) * p / (1 - p))
 
@@ -217,6 +230,6 @@ def _generic(counts, name: str) -> CountsLaw:
         return float(logsumexp(logp + ns * s))
 
     law = TransformLaw(pgf, None, log_pgf_real, mean, pgf_rel=2.0 * lo + 2,
-                       pgf_abs=2.0 * (top - lo + 1))
+                       pgf_abs=2.0 * (top - lo + 1), long_ok=True)  # Horner in z's precision
     return CountsLaw(name, None, law, lambda f0: log_pgf_real(math.log(f0)) if f0 > 0
                      else (math.log(pn[0]) if lo == 0 and pn[0] > 0 else -math.inf), tail)

@@ -144,11 +144,17 @@ def nfold(x, n: int) -> tuple[np.ndarray, float, float, ErrorLedger]:
     from scipy import fft as sfft
     res = transform_compound(power_law(n), f, full, n_fft=sfft.next_fast_len(full, real=True),
                              theta=0.0, log_alias_mass=-math.inf)
-    point, l1, cum = power_errors(e, n, res.trust_floor,
-                                  min(res.l1_bound, full * res.trust_floor))
+    r_l1 = min(res.l1_bound, full * res.trust_floor)
+    point, l1, cum = power_errors(e, n, res.trust_floor, r_l1,
+                                  None if res.cumulative is None else min(res.cumulative, r_l1))
     moment = power_moment(e, abs_moment(f, x.step, x.origin, e), n)
     tf = truncated_from([(e, 0)], full)
-    return res.pmf, x.step, n * x.origin, ErrorLedger(point, l1, 0.0, tf, moment, cum)
+    ledger = ErrorLedger(point, l1, 0.0, tf, moment, cum)
+    if res.errors is None:
+        return res.pmf, x.step, n * x.origin, ledger
+    # longdouble route: its per-point bounds plus the input's carried per-point error
+    carried = power_errors(e, n, 0.0, 0.0)[0]
+    return res.pmf, x.step, n * x.origin, ledger, res.errors + carried * (1 + 1e-12)
 
 
 def _whole(value: float, name: str, what: str) -> int:
