@@ -56,6 +56,10 @@ class CountsLaw:
         For the ``(a, b, 1)`` class (zero-modified laws, :mod:`polyconv.dist.count_laws`):
         ``p_1 - (a + b) p_0``, the extra term of its recursion (:mod:`polyconv.dist.panjer_ab1`);
         None for the ``(a, b, 0)`` class.
+    ab_long : tuple of numpy.longdouble or None
+        Panjer's ``(a, b)`` computed in longdouble from the law's own parameters (relative
+        error at most ``3 u_L`` each), for the extended-precision recursion
+        (:mod:`polyconv.dist.panjer_long`); None when not available.
     """
 
     name: str
@@ -64,6 +68,7 @@ class CountsLaw:
     log_pgf_at: object
     tail_mass: float = 0.0
     ab1: float | None = None
+    ab_long: tuple | None = None
 
 
 def _bind(frozen) -> dict:
@@ -123,7 +128,8 @@ def _poisson(mu: float) -> CountsLaw:
         pgf_rel=2 * mu + 4,  # exp of w = mu (z - 1), |w| <= 2 mu: relative error ~ (|w| + 2) u
         long_ok=True,
     )
-    return CountsLaw("poisson", (0.0, mu), law, lambda f0: -mu * (1.0 - f0))
+    return CountsLaw("poisson", (0.0, mu), law, lambda f0: -mu * (1.0 - f0),
+                     ab_long=(np.longdouble(0), np.longdouble(mu)))
 
 
 def _nbinom(n: float, p: float) -> CountsLaw:
@@ -156,7 +162,9 @@ def _nbinom(n: float, p: float) -> CountsLaw:
         x = q * f0
         return n * (math.log(p) - (math.log1p(-x) if x < 0.5 else math.log(p + q * (1.0 - f0))))
 
-    return CountsLaw("nbinom", (q, (n - 1.0) * q), law, log_pgf_at)
+    ql = np.longdouble(1) - np.longdouble(p)
+    return CountsLaw("nbinom", (q, (n - 1.0) * q), law, log_pgf_at,
+                     ab_long=(ql, (np.longdouble(n) - 1) * ql))
 
 
 def _binom(m: int, p: float) -> CountsLaw:
@@ -180,7 +188,11 @@ def _binom(m: int, p: float) -> CountsLaw:
         base = 1.0 - p + p * f0
         return m * math.log(base) if base > 0 else -math.inf
 
-    return CountsLaw("binom", ab, law, log_p0)
+    ab_long = None
+    if p < 1:
+        pl = np.longdouble(p)
+        ab_long = (-pl / (1 - pl), (m + 1) * pl / (1 - pl))
+    return CountsLaw("binom", ab, law, log_p0, ab_long=ab_long)
 
 
 def _generic(counts, name: str) -> CountsLaw:

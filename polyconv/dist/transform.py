@@ -23,6 +23,7 @@ import numpy as np
 
 from ..numerics import transforms as tf
 from . import accuracy, long_route
+from .enclosure import Enclosure
 
 TRANSFORM_BYTES_PER_POINT = 80
 """Peak bytes per result point of a padded transform route (``M = 2 size``: the tilted input and
@@ -246,6 +247,9 @@ class TransformResult:
     """Bound of every cumulative sum of the error (longdouble route), or None (``l1_bound``)."""
     l2_bound: float = float("inf")
     """Bound of the error's Euclidean norm over the ``size`` entries."""
+    enclosure: object = None
+    """Longdouble route: :class:`polyconv.dist.enclosure.Enclosure` of the exact model (the
+    longdouble result, radius its a-priori bound plus the aliasing bound), else None."""
 
 
 def transform_compound(law: TransformLaw, f: np.ndarray, size: int, *, n_fft: int | None = None,
@@ -354,7 +358,8 @@ def _transform_once(law, f, size, n_fft, theta, log_alias_mass) -> TransformResu
     return TransformResult(pmf, float(np.max(errors)), n_fft, theta, rounding_u, alias,
                            max(d_l1 + extra, 0.0), log_alias_mass, errors=errors,
                            cumulative=max(cum + extra, 0.0),
-                           l2_bound=long_route.l2_norm(errors))
+                           l2_bound=long_route.l2_norm(errors),
+                           enclosure=Enclosure(np.maximum(g, 0), per_point * (1 + 4 * 2.0 ** -53)))
 
 
 def _hermitian_sq_sum(half: np.ndarray, n_fft: int) -> float:
