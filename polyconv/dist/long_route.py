@@ -34,6 +34,8 @@ import math
 
 import numpy as np
 
+from .enclosure import Enclosure
+
 L = np.longdouble
 UNIT_ROUNDOFF_LONG = float(np.finfo(L).eps) / 2
 """Unit roundoff ``u_L`` of numpy.longdouble (``2^-64`` on x86)."""
@@ -108,21 +110,60 @@ def rounded(g_long: np.ndarray, apriori: np.ndarray) -> tuple[np.ndarray, np.nda
     return g, errors, cumulative
 
 
-def convolve(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray, float]:
-    """``a * b`` of two non-negative float vectors computed directly in longdouble, rounded.
+def convolve(a: np.ndarray, b: np.ndarray) -> Enclosure:
+    """``a * b`` of two non-negative float vectors computed directly in longdouble, with its
+    radius: an :class:`~polyconv.dist.enclosure.Enclosure` of the exact product.
 
     Each longdouble output is a sum of at most ``m = min(len a, len b)`` products of
-    non-negative numbers, so it errs by at most ``gamma_m (|a| * |b|)_k`` with ``gamma_m =
+    non-negative numbers, so it errs by at most ``gamma_m (a * b)_k`` with ``gamma_m =
     m u_L / (1 - m u_L)`` (Higham, section 3.1, the dot-product bound; the product of two
-    float64 numbers is exact in longdouble, which only helps), and ``|a| * |b| = g_L`` up to
-    that factor.  Returns :func:`rounded` of it.
+    float64 numbers is exact in longdouble, which only helps), and the exact ``(a * b)_k`` is
+    at most ``g_L,k / (1 - gamma_m)``.
     """
-    al, bl = np.asarray(a, dtype=L), np.asarray(b, dtype=L)
-    g_long = np.convolve(al, bl)
+    g_long = np.convolve(np.asarray(a, dtype=L), np.asarray(b, dtype=L))
     m = min(a.size, b.size)
     gamma = m * _UL / (1 - m * _UL)
-    apriori = np.abs(g_long).astype(float) * gamma * (1 + 2 * gamma) * (1 + 4 * _U)
-    return rounded(g_long, apriori)
+    radius = g_long.astype(float) * (gamma / (1 - gamma)) * (1 + 4 * _U) + 1e-320
+    return Enclosure(g_long, radius)
+
+
+def power(f: np.ndarray, n: int) -> Enclosure | None:
+    """``f^{*n}`` of a non-negative float vector by binary powering of direct longdouble
+    products, with its radius, or None when the products would cost more than
+    ``4 LONG_MAX_PRODUCT`` multiplications.
+
+    Non-negative data: a computed product of factors with componentwise relative errors
+    ``rho_a``, ``rho_b`` is within ``(1 + rho_a)(1 + rho_b)(1 + gamma_m) - 1`` of the exact one,
+    relative, componentwise (each output is a sum of non-negative terms; :func:`convolve`), so
+    the relative bound composes along the powering and the radius is ``rho / (1 - rho)`` times
+    the longdouble value.
+    """
+    cost, size, acc, k = 0, f.size, 1, n
+    while k > 1:  # squarings and multiplications, in the order below
+        cost += size * size
+        size = 2 * size - 1
+        k >>= 1
+    if cost + n * f.size * (n * f.size) > 4 * LONG_MAX_PRODUCT or not available():
+        return None
+    result, rho_r = None, 0.0
+    base, rho_b = np.asarray(f, dtype=L), 0.0
+    while n:
+        if n & 1:
+            if result is None:
+                result, rho_r = base, rho_b
+            else:
+                m = min(result.size, base.size)
+                result = np.convolve(result, base)
+                rho_r = (1 + rho_r) * (1 + rho_b) * (1 + m * _UL / (1 - m * _UL)) - 1
+        n >>= 1
+        if n:
+            m = base.size
+            base = np.convolve(base, base)
+            rho_b = (1 + rho_b) ** 2 * (1 + m * _UL / (1 - m * _UL)) - 1
+        acc += 1
+    rho = rho_r * (1 + 1e-12)
+    radius = result.astype(float) * (rho / (1 - rho)) * (1 + 4 * _U) + 1e-320
+    return Enclosure(result, radius)
 
 
 def l2_norm(errors: np.ndarray) -> float:
