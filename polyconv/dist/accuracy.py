@@ -44,12 +44,14 @@ def _levels(n_fft: int) -> int:
     return max(1, math.ceil(math.log2(max(int(n_fft), 2))))
 
 
-def fft_relative_error(n_fft: int) -> float:
+def fft_relative_error(n_fft: int, u: float = UNIT_ROUNDOFF, mu: float = TWIDDLE_ERROR
+                       ) -> float:
     """Relative 2-norm error bound of one length-``n_fft`` FFT (Higham, Thm 24.2, from memory).
 
-    ``n eta / (1 - n eta)`` with ``eta = mu + gamma_4 (sqrt 2 + mu)``, ``n = ceil(log2 n_fft)``.
+    ``n eta / (1 - n eta)`` with ``eta = mu + gamma_4 (sqrt 2 + mu)``, ``n = ceil(log2 n_fft)``;
+    ``u`` the unit roundoff and ``mu`` the twiddle error of the arithmetic (float64 by default;
+    :mod:`polyconv.dist.long_route` passes longdouble's).
     """
-    u, mu = UNIT_ROUNDOFF, TWIDDLE_ERROR
     gamma4 = 4 * u / (1 - 4 * u)
     eta = mu + gamma4 * (math.sqrt(2.0) + mu)
     t = _levels(n_fft) * eta
@@ -93,7 +95,8 @@ def propagated_sum_floor(floor_a: float, mass_a: float, floor_b: float, mass_b: 
 
 
 def transform_compound_floor(n_fft: int, l1_tilted: float, lipschitz: float, pgf_rel: float,
-                             pgf_abs: float, l2_out_tilted: float) -> float:
+                             pgf_abs: float, l2_out_tilted: float,
+                             eta: float | None = None) -> float:
     """Rounding bound, in the tilted domain, of ``g = IFFT(P(FFT(f)))`` (first order).
 
     Let ``eta`` be :func:`fft_relative_error`.  Each forward output errs by at most
@@ -119,8 +122,12 @@ def transform_compound_floor(n_fft: int, l1_tilted: float, lipschitz: float, pgf
         Relative and absolute rounding of evaluating ``P`` on the spectrum.
     l2_out_tilted : float
         ``||g||_2`` of the (tilted) output.
+    eta : float, optional
+        The transforms' relative error (default :func:`fft_relative_error` in float64; a
+        longdouble route passes its own, plus the relative rounding of its tilted input).
     """
-    eta = fft_relative_error(n_fft)
+    if eta is None:
+        eta = fft_relative_error(n_fft)
     return eta * l1_tilted * lipschitz + pgf_abs + (pgf_rel + eta) * l2_out_tilted
 
 

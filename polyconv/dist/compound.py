@@ -28,11 +28,14 @@ import warnings
 import numpy as np
 
 from . import accuracy
+from .compound_tail import count_tail_moment, tail_moment_bound, truncated_second_moment
 from .counts import CountsLaw, classify
+from .enclosure import Enclosure, EnclosureSums, pick
 from .errors import TruncationWarning
 from .lattice import Lattice
 from .ledger import ErrorLedger, cum_bound, untruncated
 from .panjer import panjer_recursion
+from .panjer_long import long_recursion
 from .transform import check_transform_budget, size_for_tail, transform_compound
 
 DEFAULT_TAIL = 1e-12
@@ -120,34 +123,72 @@ def compound_lattice(counts, law: CountsLaw, severity: Lattice, method: str, siz
     stable = law.ab is not None and law.ab[0] >= 0
     if method == "auto":
         method = "recursion" if stable and size <= RECURSION_AUTO_MAX else "fft"
+    n_max = float(counts.support()[1]) if law.tail_mass == 0 else math.inf
+    enc = None
     if method == "recursion":
         if law.ab is None:
             raise ValueError(f"method='recursion' needs a Panjer (a, b, 0) law (poisson, nbinom, "
                              f"binom with loc=0); counts is {law.name}: use method='fft'")
-        g, errs = panjer_recursion(law, f, size)
+        enc = long_recursion(law, f, size, n_max)
+        if enc is not None:  # longdouble recursion, rounded once (polyconv.dist.panjer_long)
+            g = np.minimum(enc.center, 1).astype(float)
+            if law.ab[0] < 0:  # unstable recursion (binomial): certified by the transform too
+                enc = pick(enc, transform_compound(law.transform, f, size).enclosure)
+            errs = EnclosureSums(g, enc).profile
+        else:
+            g, errs = panjer_recursion(law, f, size)
+            g, errs = _beyond_support(g, errs, f, n_max)
         r_point, r_l1 = float(np.max(errs)), float(np.sum(errs))
+        r_cum = r_l1
     else:
         res = transform_compound(law.transform, f, size, rebalance=rebalance)
+        if res.enclosure is not None:  # certified also by the longdouble recursion
+            enc = pick(res.enclosure, long_recursion(law, f, size, n_max))
         g, r_point, r_l1 = res.pmf, res.trust_floor, min(res.l1_bound, size * res.trust_floor)
-        # per point: the tilted-domain bound (a Euclidean norm, so also per point) untilted at
-        # each index, plus the aliasing bound (uniform in k)
-        errs = res.rounding_floor * np.exp(res.theta * (np.arange(size) - (size - 1))) \
-            + res.aliasing_floor
+        if res.errors is not None:  # longdouble route: a-posteriori per-point bounds
+            errs = res.errors
+            r_cum = min(res.cumulative, r_l1)
+        else:
+            # per point: the tilted-domain bound (a Euclidean norm, so also per point) untilted
+            # at each index, plus the aliasing bound (uniform in k)
+            errs = res.rounding_floor * np.exp(res.theta * (np.arange(size) - (size - 1))) \
+                + res.aliasing_floor
+            r_cum = r_l1
     g = np.minimum(g, 1.0)
+    if enc is not None:
+        r_point, r_l1, r_cum = EnclosureSums(g, enc).ledger_numbers()
+        errs = np.minimum(errs, EnclosureSums(g, enc).profile)
     route_l2 = None
     if method != "recursion":
         # Euclidean norm of the route's error: the tilted-domain bound is one (untilted: times
         # at most e^{theta (size - 1)}); the aliased mass has L1 (so L2) at most its bound
-        route_l2 = res.rounding_floor + res.aliasing_floor
+        route_l2 = res.l2_bound
     ledger = compound_ledger(counts, law, severity, f, g, r_point, r_l1, errs, second_moment,
-                             route_l2)
+                             route_l2, r_cum)
     profile, carried = _profile(errs, severity, counts, law)
-    if method != "recursion" and res.theta * (size - 1) < 1:
+    if method != "recursion" and res.errors is None and res.theta * (size - 1) < 1:
         profile = None  # nearly uniform: the Euclidean bound l2 beats its running sums
     l2 = None
     if route_l2 is not None:  # plus the severity's carried errors, ||e||_2^2 <= ||e||_inf ||e||_1
         l2 = (route_l2 + math.sqrt(carried * max(ledger.l1, 0.0))) * (1 + 8 * _U)
-    return Lattice._make(g, severity.step, 0.0, ledger, profile, l2)
+    if enc is not None and carried > 0:  # the enclosure is of the computed severity's compound
+        enc = Enclosure(enc.center, enc.radius + carried * (1 + 4 * _U))
+    return Lattice._make(g, severity.step, 0.0, ledger, profile, l2, enc)
+
+
+def _beyond_support(g: np.ndarray, errs: np.ndarray, f: np.ndarray, n_max: float):
+    """A count bounded by ``n_max`` and a severity vector whose last positive entry is at
+    ``top``: the compound of that vector is exactly 0 beyond ``n_max top`` (there the
+    recursion, unstable for ``a < 0``, only grows noise)."""
+    nz = np.flatnonzero(f)
+    if not math.isfinite(n_max) or not nz.size:
+        return g, errs
+    last = int(n_max) * int(nz[-1])
+    if last + 1 < g.size:
+        g, errs = g.copy(), errs.copy()
+        g[last + 1:] = 0.0
+        errs[last + 1:] = 0.0
+    return g, errs
 
 
 def _profile(errs: np.ndarray, severity: Lattice, counts, law: CountsLaw
@@ -185,7 +226,7 @@ def _log_pgf_above_one(law: CountsLaw, delta: float) -> float:
 
 def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g: np.ndarray,
                     r_point: float, r_l1: float, errs: np.ndarray, second_moment: bool = True,
-                    route_l2: float | None = None) -> ErrorLedger:
+                    route_l2: float | None = None, r_cum: float | None = None) -> ErrorLedger:
     """Error ledger of a compound computed from the severity vector ``f`` (route rounding
     ``r_point``, ``r_l1``).
 
@@ -205,6 +246,7 @@ def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g:
       (Cauchy-Schwarz), far below the per-point sum on long grids.
     * ``second_moment=False`` leaves the truncated part's second moment unknown (``inf``: the
       standard deviation is then refused), for callers that need no std.
+    * ``r_cum``: a bound of the route's cumulative (signed) error sums (default ``r_l1``).
     """
     e = severity.errors
     h = severity.step
@@ -222,7 +264,7 @@ def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g:
         l1_in = point_in = cum_in = 0.0
     l1 = min(r_l1 + l1_in, 2.0)
     point = min(r_point + point_in, l1)
-    cum = min(r_l1 + cum_in, l1)
+    cum = min((r_l1 if r_cum is None else r_cum) + cum_in, l1)
     k0 = f.size - len(severity)
     froms = [size]
     if not untruncated(e):
@@ -241,7 +283,7 @@ def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g:
         k = accuracy.float_range(size)
         total = mean_n * sev_mean_high * (1 + 4 * _U)
         if law.tail_mass > 0:
-            total += _count_tail_moment(counts, law) * sev_mean_high
+            total += count_tail_moment(counts, law) * sev_mean_high
         on_grid = h * accuracy.dot(k, g)  # a float dot: within (size + 2) u (Higham 3.1)
         rnd = (size + 2) * _U
         if rnd * on_grid > 1e-3 * max(total - on_grid, 0.0):
@@ -258,44 +300,11 @@ def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g:
         err = h * route + h * _ramp_sum(min(l1_in, 2 * cum_in), point_in, size)
         err = err * (1 + 4 * _U) + (rnd + 4 * _U) * on_grid
         moment = max(total - (on_grid - err), 1e-300)
-    moment2 = math.inf if not second_moment else _truncated_second_moment(
+        if untruncated(e) and e.l1 == 0 and law.tail_mass == 0:
+            moment = min(moment, tail_moment_bound(counts, law, f, h, size))
+    moment2 = math.inf if not second_moment else truncated_second_moment(
         counts, law, severity, br, g, errs, h, (l1_in, cum_in, point_in), sev_mean_high)
     return ErrorLedger(point, l1, 0.0, tf, moment, cum, moment2)
-
-
-def _truncated_second_moment(counts, law: CountsLaw, severity: Lattice, br, g: np.ndarray,
-                             errs: np.ndarray, h: float, carried, sev_mean_high: float) -> float:
-    """Upper bound of ``E[S^2 1{S in the truncated part}]``: ``E[S^2]`` minus the on-grid
-    second moment, ``E[S^2] = E[N] E[X^2] + E[N(N - 1)] E[X]^2`` (moments of a random sum;
-    common practice, no source), with ``E[X]`` and ``E[X^2]`` at the severity's certified high
-    ends (its ledger's truncated second moment included).  The on-grid sum's error is the
-    route's per-point bounds times ``x_k^2`` plus the severity's carried errors by summation by
-    parts (``x_k^2`` grows by ``h^2 (2k - 1)`` per point).  ``inf`` when a moment is unknown or
-    the count tail is dropped (generic counting laws)."""
-    if law.tail_mass > 0 or not math.isfinite(sev_mean_high):
-        return math.inf
-    sev_pmf = np.asarray(severity.pmf)
-    vals = severity.values
-    with np.errstate(over="ignore", invalid="ignore"):
-        m2_sev = accuracy.dot(sev_pmf, vals * vals)
-        ex2 = br.second_moment_range(sev_pmf, m2_sev)[1]
-    if not math.isfinite(ex2):
-        return math.inf
-    m, v = (float(t) for t in counts.stats(moments="mv"))
-    factorial2 = max(v + m * m - m, 0.0)  # E[N(N - 1)]
-    total = (m * ex2 + factorial2 * sev_mean_high * sev_mean_high) * (1 + 8 * _U)
-    size = g.size
-    k = accuracy.float_range(size)
-    k2 = k * k
-    on_grid2 = h * h * accuracy.dot(k2, g)
-    l1_in, cum_in, point_in = carried
-    j = k[1:]
-    err2 = h * h * (accuracy.dot(k2, errs) + accuracy.dot(2 * j - 1, np.minimum(
-        min(l1_in, 2 * cum_in), (size - j) * point_in)))
-    err2 = err2 * (1 + 4 * _U) + ((size + 2) * _U + 4 * _U) * on_grid2
-    if not math.isfinite(total - on_grid2 + err2):
-        return math.inf
-    return max(total - (on_grid2 - err2), 1e-300)
 
 
 def _fits_the_grid(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, size: int) -> bool:
@@ -322,13 +331,6 @@ def _ramp_sum(cap: float, slope: float, size: int) -> float:
     ratio = cap / slope
     q = top if not ratio < top else int(ratio)
     return (slope * q * (q + 1) / 2 + (top - q) * cap) * (1 + 8 * _U)
-
-
-def _count_tail_moment(counts, law: CountsLaw) -> float:
-    """Bound of ``E[N 1{N beyond the summed support}]`` by Cauchy-Schwarz:
-    ``sqrt(E[N^2] P(N > top))`` (scipy's moments)."""
-    m, v = (float(t) for t in counts.stats(moments="mv"))
-    return math.sqrt(max(v + m * m, 0.0) * law.tail_mass)
 
 
 def _severity_vector(severity: Lattice) -> np.ndarray:

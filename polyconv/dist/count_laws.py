@@ -49,8 +49,8 @@ def _table_counts(pmf_fn, mean: float, var: float, name: str):
             def __new__(cls, *args, **kwds):  # rv_discrete.__new__ inspects 'values' only
                 return object.__new__(cls)
 
-            def __init__(self, pmf_fn=None, mean: float = 0.0, var: float = 0.0, name: str = "counts",
-                         **kw):
+            def __init__(self, pmf_fn=None, mean: float = 0.0, var: float = 0.0,
+                         name: str = "counts", **kw):
                 kw.pop("a", None)
                 super().__init__(a=0, name=name, **kw)
                 self._fn, self._m, self._v = pmf_fn, mean, var

@@ -56,6 +56,10 @@ class CountsLaw:
         For the ``(a, b, 1)`` class (zero-modified laws, :mod:`polyconv.dist.count_laws`):
         ``p_1 - (a + b) p_0``, the extra term of its recursion (:mod:`polyconv.dist.panjer_ab1`);
         None for the ``(a, b, 0)`` class.
+    ab_long : tuple of numpy.longdouble or None
+        Panjer's ``(a, b)`` computed in longdouble from the law's own parameters (relative
+        error at most ``3 u_L`` each), for the extended-precision recursion
+        (:mod:`polyconv.dist.panjer_long`); None when not available.
     """
 
     name: str
@@ -64,6 +68,7 @@ class CountsLaw:
     log_pgf_at: object
     tail_mass: float = 0.0
     ab1: float | None = None
+    ab_long: tuple | None = None
 
 
 def _bind(frozen) -> dict:
@@ -116,13 +121,15 @@ def _poisson(mu: float) -> CountsLaw:
     if not (math.isfinite(mu) and mu >= 0):
         raise ValueError(f"counts: poisson mean must be finite and >= 0; got {mu!r}")
     law = TransformLaw(
-        pgf=lambda z: np.exp(mu * (z - 1.0)),
+        pgf=lambda z: np.exp(mu * (z - 1.0)),  # in z's precision (longdouble too)
         ratio=lambda z: np.full(z.shape, mu),
         log_pgf_real=lambda s: mu * math.expm1(s) if s < 700 else math.inf,
         mean=mu,
         pgf_rel=2 * mu + 4,  # exp of w = mu (z - 1), |w| <= 2 mu: relative error ~ (|w| + 2) u
+        long_ok=True,
     )
-    return CountsLaw("poisson", (0.0, mu), law, lambda f0: -mu * (1.0 - f0))
+    return CountsLaw("poisson", (0.0, mu), law, lambda f0: -mu * (1.0 - f0),
+                     ab_long=(np.longdouble(0), np.longdouble(mu)))
 
 
 def _nbinom(n: float, p: float) -> CountsLaw:
@@ -135,12 +142,19 @@ def _nbinom(n: float, p: float) -> CountsLaw:
             return math.inf
         return n * (math.log(p) - math.log1p(-q * math.exp(s)))
 
+    def pgf(z):
+        # constants in z's precision (a longdouble route must not meet float64 log(p))
+        real = z.real.dtype.type
+        pz, qz = real(p), real(1) - real(p)
+        return np.exp(n * (np.log(pz) - np.log(1 - qz * z)))
+
     law = TransformLaw(
-        pgf=lambda z: np.exp(n * (math.log(p) - np.log(1.0 - q * z))),
+        pgf=pgf,
         ratio=lambda z: n * q / (1.0 - q * z),
         log_pgf_real=log_pgf_real,
         mean=n * q / p,
         pgf_rel=2 * n * q / p + 6,  # conservative: exp(n log(..)) with |n log| ~ n q|z-1|/p
+        long_ok=True,
     )
     def log_pgf_at(f0: float) -> float:
         # 1 - q f0 = p + q (1 - f0): no cancellation near f0 = 1 (with q rounded to 1 for a
@@ -148,18 +162,25 @@ def _nbinom(n: float, p: float) -> CountsLaw:
         x = q * f0
         return n * (math.log(p) - (math.log1p(-x) if x < 0.5 else math.log(p + q * (1.0 - f0))))
 
-    return CountsLaw("nbinom", (q, (n - 1.0) * q), law, log_pgf_at)
+    ql = np.longdouble(1) - np.longdouble(p)
+    return CountsLaw("nbinom", (q, (n - 1.0) * q), law, log_pgf_at,
+                     ab_long=(ql, (np.longdouble(n) - 1) * ql))
 
 
 def _binom(m: int, p: float) -> CountsLaw:
     if not (m >= 0 and 0 <= p <= 1):
         raise ValueError(f"counts: binom needs n >= 0 and 0 <= p <= 1; got n={m!r}, p={p!r}")
+    def pgf(z):
+        real = z.real.dtype.type  # constants in z's precision (longdouble too)
+        return integer_power(real(1) - real(p) + real(p) * z, m)
+
     law = TransformLaw(
-        pgf=lambda z: integer_power(1.0 - p + p * z, m),
+        pgf=pgf,
         ratio=lambda z: m * p / np.where(1.0 - p + p * z == 0, 1.0, 1.0 - p + p * z),
         log_pgf_real=lambda s: m * math.log1p(p * math.expm1(s)) if s < 700 else math.inf,
         mean=m * p,
         pgf_rel=m * math.sqrt(5.0) + 4,
+        long_ok=True,
     )
     ab = None if p >= 1 else (-p / (1 - p), (m + 1) * p / (1 - p))
 
@@ -167,7 +188,11 @@ def _binom(m: int, p: float) -> CountsLaw:
         base = 1.0 - p + p * f0
         return m * math.log(base) if base > 0 else -math.inf
 
-    return CountsLaw("binom", ab, law, log_p0)
+    ab_long = None
+    if p < 1:
+        pl = np.longdouble(p)
+        ab_long = (-pl / (1 - pl), (m + 1) * pl / (1 - pl))
+    return CountsLaw("binom", ab, law, log_p0, ab_long=ab_long)
 
 
 def _generic(counts, name: str) -> CountsLaw:
@@ -217,6 +242,6 @@ def _generic(counts, name: str) -> CountsLaw:
         return float(logsumexp(logp + ns * s))
 
     law = TransformLaw(pgf, None, log_pgf_real, mean, pgf_rel=2.0 * lo + 2,
-                       pgf_abs=2.0 * (top - lo + 1))
+                       pgf_abs=2.0 * (top - lo + 1), long_ok=True)  # Horner in z's precision
     return CountsLaw(name, None, law, lambda f0: log_pgf_real(math.log(f0)) if f0 > 0
                      else (math.log(pn[0]) if lo == 0 and pn[0] > 0 else -math.inf), tail)

@@ -23,7 +23,9 @@ import math
 
 import numpy as np
 
+from . import exact_small
 from .accuracy import UNIT_ROUNDOFF
+from .enclosure import EnclosureSums
 from .lattice import Lattice, same_step
 from .ledger import ErrorLedger, cum_bound, untruncated
 from .propagate import abs_moment, second_moment_high, truncated_from
@@ -173,7 +175,7 @@ def all_of(*delays: Lattice) -> Lattice:
                          truncated_from([(d.errors, o) for d, o in zip(ds, offs, strict=True)],
                                         length), _max_moment(ds), cum + r_cum)
     ledger = ledger._replace(truncated_moment2=_order_moment2(ds, pmf, h, base, ledger, sum))
-    return Lattice._make(pmf, h, base, ledger)
+    return _exact_or(pmf, h, base, ledger, exact_small.enclosure("max", ds, offs, length))
 
 
 def _order_moment2(ds, pmf, h, base, ledger, combine) -> float:
@@ -253,7 +255,7 @@ def first_of(*delays: Lattice) -> Lattice:
     moment = _min_moment(ds, offs, limit, h, base)
     ledger = ErrorLedger(min(l1 + r_point, 2.0), l1 + r_l1, 0.0, limit, moment, cum + r_cum)
     ledger = ledger._replace(truncated_moment2=_order_moment2(ds, pmf, h, base, ledger, min))
-    return Lattice._make(pmf, h, base, ledger)
+    return _exact_or(pmf, h, base, ledger, exact_small.enclosure("min", ds, offs, limit))
 
 
 def _min_moment(ds: list[Lattice], offs: list[int], limit: int, h: float, base: float) -> float:
@@ -311,4 +313,16 @@ def mixture(weights, delays) -> Lattice:
                         for wi, d in zip(w, ds, strict=True))) * (1 + rel)
     ledger = ErrorLedger(point + rel * float(np.max(pmf)), l1 + rel * float(np.sum(pmf)), 0.0,
                          tf, moment, cum + rel * float(np.sum(pmf)), moment2)
-    return Lattice._make(pmf, h, base, ledger)
+    return _exact_or(pmf, h, base, ledger, exact_small.enclosure("mix", ds, offs, length, w))
+
+
+def _exact_or(pmf: np.ndarray, h: float, base: float, ledger: ErrorLedger, enc) -> Lattice:
+    """The result, or with an exact enclosure (:mod:`polyconv.dist.exact_small`) its exact
+    values rounded to float64 and the ledger's error bounds from the enclosure (they are about
+    the new pmf)."""
+    if enc is None:
+        return Lattice._make(pmf, h, base, ledger)
+    pmf = np.clip(enc.center, 0, 1).astype(float)
+    point, l1, cum = EnclosureSums(pmf, enc).ledger_numbers()
+    ledger = ledger._replace(point=point, l1=l1, cumulative=cum)
+    return Lattice._make(pmf, h, base, ledger, enclosure=enc)

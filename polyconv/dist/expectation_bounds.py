@@ -111,6 +111,8 @@ class ExpectationBounds:
                 err = min(err, direct * (1 + (big_n + 4) * _U))
             if self.l2 is not None:
                 err = min(err, float(self._l2_excess(xm - d, big_n)))
+            if self.enc is not None:
+                err = min(err, self._enc_excess(xm - d, m))
             memo[key] = (value, err, s_m, xm, m)
         return memo[key]
 
@@ -128,6 +130,8 @@ class ExpectationBounds:
             err = (xm - d) * self.Bt[m] + h * self.SB[np.minimum(m + 1, n + 1)]
             if self.l2 is not None:
                 err = np.minimum(err, self._l2_excess(xm - d, n - m))
+            if self.enc is not None:
+                err = np.minimum(err, self._enc_excess(xm - d, m))
         err = err + (8 * _U + 2 * (n - m + 2) * _UL) * value \
             + 4 * _U * (np.abs(xm) + np.abs(d)) * s_m  # float x_m - d
         x_from = self._x_from_low()
@@ -136,6 +140,11 @@ class ExpectationBounds:
         low = np.maximum(value - err, 0.0) + trunc_low
         high = value + err + trunc_high
         return low, high
+
+    def _enc_excess(self, a, m):
+        """Bound of ``|sum_{k >= m} (a + h (k - m)) e_k|`` from the enclosure's tail and ramp
+        sums (:mod:`polyconv.dist.enclosure`), rounded up."""
+        return (a * self.enc.tail[m] + self.h * self.enc.ramp[m]) * (1 + 4 * _U)
 
     def _l2_excess(self, a: np.ndarray, count: np.ndarray) -> np.ndarray:
         """``||w||_2 l2`` for the weights ``w_j = a + h j``, ``j = 0..count-1`` (the excesses
@@ -185,6 +194,8 @@ class ExpectationBounds:
             err = h * self.SB[1: n + 1] * (1 + (n + 6) * _U)
             if self.l2 is not None:  # weights h, 2h, ... beyond x_k
                 err = np.minimum(err, self._l2_excess(np.full(n, h), n - 1 - k))
+            if self.enc is not None:  # h sum_{j >= k} (j - k) e_j
+                err = np.minimum(err, h * self.enc.ramp[:n] * (1 + 4 * _U))
             err = err.astype(_L)
             d = self.o + h * k  # float points: within u |d| of the exact x_k
             moved = 2 * _U * np.abs(d)
@@ -237,6 +248,9 @@ class ExpectationBounds:
         """Certified range of the exact mean around the lattice's own ``value``."""
         err = abs(self.o) * min(cum_bound(self.ledger), self.n * self.ledger.point) \
             + self.h * self._sb1()
+        if self.enc is not None:  # sum_k (o + h k) e_k = o S_0(e) + h T_0(e)
+            err = min(err, (abs(self.o) * self.enc.tail[0] + self.h * self.enc.ramp[0])
+                      * (1 + 4 * _U))
         k = float_range(self.n)
         if self.o >= 0:  # every point non-negative: |x_k| = o + h k
             absum = self.o * float(np.sum(self.pmf)) + self.h * dot(k, self.pmf)

@@ -144,14 +144,16 @@ class Lattice(LatticeQueries, LatticeAnswers):
 
     @classmethod
     def _make(cls, pmf: np.ndarray, step: float, origin: float, ledger: ErrorLedger,
-              profile: np.ndarray | None = None, l2: float | None = None) -> Lattice:
+              profile: np.ndarray | None = None, l2: float | None = None,
+              enclosure=None) -> Lattice:
         """Internal constructor for computed results: ``pmf`` already non-negative and finite;
         ``truncated`` is set to ``1 - sum(pmf)`` (clipped at 0, the excess is in ``l1``).
         ``profile``: optional per-point bounds ``|e_k| <= profile_k`` (a route that knows
         them, e.g. a compound); the certified ranges use them where they beat the ledger's
         scalar bounds (:class:`polyconv.dist.risk.Bracketer`); ``l2``: optional bound of the
-        error's Euclidean norm (transform routes), used by Cauchy-Schwarz.  Neither is carried
-        by operations."""
+        error's Euclidean norm (transform routes), used by Cauchy-Schwarz; ``enclosure``: an
+        optional :class:`polyconv.dist.enclosure.Enclosure` of the exact model, point by point.
+        None of them is carried by operations."""
         arr = np.clip(np.asarray(pmf, dtype=float), 0.0, 1.0)
         arr.flags.writeable = False
         total = float(np.sum(arr))
@@ -173,6 +175,8 @@ class Lattice(LatticeQueries, LatticeAnswers):
                 out._cache["profile"] = prof
         if l2 is not None and math.isfinite(l2) and l2 >= 0:
             out._cache["l2"] = float(l2)
+        if enclosure is not None and np.shape(enclosure.radius) == arr.shape:
+            out._cache["enclosure"] = enclosure
         return out
 
     @classmethod
@@ -271,7 +275,8 @@ class Lattice(LatticeQueries, LatticeAnswers):
         if "br" not in self._cache:
             self._cache["br"] = risk.Bracketer(self._pmf, self._step, self._origin,
                                                self._ledger, self._cache.get("profile"),
-                                               self._cache.get("l2"))
+                                               self._cache.get("l2"),
+                                               self._cache.get("enclosure"))
         return self._cache["br"]
 
     def _warn_truncated(self, what: str, relative_to: float = 1.0) -> None:

@@ -149,10 +149,10 @@ def mass_bound(mass: float, l1: float) -> float:
 
 
 def sum_errors(x: ErrorLedger, mass_x: float, max_x: float, y: ErrorLedger, mass_y: float,
-               max_y: float, rounding_point: float, rounding_l1: float
-               ) -> tuple[float, float, float]:
+               max_y: float, rounding_point: float, rounding_l1: float,
+               rounding_cum: float | None = None) -> tuple[float, float, float]:
     """``(point, l1, cumulative)`` of a convolution ``p^_X * p^_Y`` computed with the given
-    rounding.
+    rounding (``rounding_cum``: a bound of its cumulative sums, default ``rounding_l1``).
 
     ``max_*`` are the largest computed probabilities (``||q||_inf <= max + point``).
     See the module docstring for the inequalities; the cumulative sums of ``a * b`` are
@@ -168,7 +168,8 @@ def sum_errors(x: ErrorLedger, mass_x: float, max_x: float, y: ErrorLedger, mass
     kx, ky = cum_bound(x), cum_bound(y)
     # p^_X * p^_Y - q_X * q_Y = e_X * p^_Y + q_X * e_Y: no cross term (p^_Y >= 0 has L1 norm
     # mass_y, q_X at most qx), so the cumulative bounds of sampled inputs (DKW bands, l1 = 2) add
-    cum = kx * mass_y * (1 + 1e-12) + ky * qx + rounding_l1
+    cum = kx * mass_y * (1 + 1e-12) + ky * qx + \
+        (rounding_l1 if rounding_cum is None else rounding_cum)
     return min(point, l1, 2.0), min(l1, 2.0), min(cum, l1, 2.0)
 
 
@@ -197,14 +198,15 @@ def _mul(a: float, b: float) -> float:
     return 0.0 if b == 0 or a == 0 else a * b
 
 
-def power_errors(x: ErrorLedger, n: int, rounding_point: float, rounding_l1: float
-                 ) -> tuple[float, float, float]:
+def power_errors(x: ErrorLedger, n: int, rounding_point: float, rounding_l1: float,
+                 rounding_cum: float | None = None) -> tuple[float, float, float]:
     """``(point, l1, cumulative)`` of ``p^^{*n}`` against ``q^{*n}`` (telescoping
-    ``sum_i p^^{*i} * e * q^{*(n-1-i)}``, each factor of L1 norm at most ``1 + l1``)."""
+    ``sum_i p^^{*i} * e * q^{*(n-1-i)}``, each factor of L1 norm at most ``1 + l1``);
+    ``rounding_cum`` bounds the rounding's cumulative sums (default ``rounding_l1``)."""
     growth = math.exp((n - 1) * math.log1p(x.l1)) if x.l1 > 0 else 1.0
     l1 = math.expm1(n * math.log1p(x.l1)) if x.l1 > 0 else 0.0
     point = n * x.point * growth
-    cum = n * cum_bound(x) * growth + rounding_l1
+    cum = n * cum_bound(x) * growth + (rounding_l1 if rounding_cum is None else rounding_cum)
     l1 = min(l1 + rounding_l1, 2.0)
     return min(point + rounding_point, l1), l1, min(cum, l1)
 

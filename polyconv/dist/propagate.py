@@ -15,7 +15,8 @@ import numbers
 import numpy as np
 
 from ..pipeline.execute import convolve_prepared
-from . import accuracy
+from . import accuracy, long_route
+from .enclosure import Enclosure, EnclosureSums, pick
 from .ledger import (
     ErrorLedger,
     cum_bound,
@@ -80,10 +81,12 @@ def independent_sum(x, y) -> tuple[np.ndarray, float, float, ErrorLedger]:
         raise ValueError(f"cannot add lattices with different steps ({x.step!r} and {y.step!r}); "
                          "re-discretise one of them on the other's step")
     a, b = np.asarray(x.pmf), np.asarray(y.pmf)
+    ma, mb = float(a.sum()), float(b.sum())
+    if a.size * b.size <= long_route.LONG_MAX_PRODUCT and long_route.available():
+        return _long_sum(x, y, a, b, ma, mb)
     c, the_plan = convolve_prepared(a, b)  # prepared once: the plan is the one that ran
     c = np.clip(c, 0.0, 1.0)
     r_point = accuracy.convolution_bound(the_plan.engine, a, b, the_plan.transform_length)
-    ma, mb = float(a.sum()), float(b.sum())
     if the_plan.engine == "direct":
         m = min(a.size, b.size)
         r_l1 = m * _U / (1 - m * _U) * ma * mb * (1 + 1e-12)
@@ -97,6 +100,27 @@ def independent_sum(x, y) -> tuple[np.ndarray, float, float, ErrorLedger]:
     moment2 = 0.0 if untruncated(ex) and untruncated(ey) else _sum_moment2(x, y, c, l1, moment)
     return c, x.step, x.origin + y.origin, ErrorLedger(point, l1, 0.0, tf, moment, cum,
                                                        moment2)
+
+
+def _long_sum(x, y, a: np.ndarray, b: np.ndarray, ma: float, mb: float):
+    """:func:`independent_sum` of short inputs: the product in longdouble, rounded once, with
+    its enclosure (:func:`polyconv.dist.long_route.convolve`) plus the inputs' carried
+    per-point errors."""
+    enc = long_route.convolve(a, b)
+    c = np.clip(enc.center, 0, 1).astype(float)
+    sums = EnclosureSums(c, enc)
+    r_point, r_l1, r_cum = sums.ledger_numbers()
+    ex, ey = x.errors, y.errors
+    point, l1, cum = sum_errors(ex, ma, float(a.max()), ey, mb, float(b.max()), r_point, r_l1,
+                                r_cum)
+    if ex.l1 > 0 or ey.l1 > 0:  # the enclosure is of the computed inputs' product
+        enc = Enclosure(enc.center, enc.radius + max(point - r_point, 0.0) * (1 + 4 * _U))
+    moment = sum_moment(ex, abs_moment(a, x.step, x.origin, ex), ey,
+                        abs_moment(b, y.step, y.origin, ey))
+    tf = truncated_from([(ex, 0), (ey, 0)], c.size)
+    moment2 = 0.0 if untruncated(ex) and untruncated(ey) else _sum_moment2(x, y, c, l1, moment)
+    return c, x.step, x.origin + y.origin, ErrorLedger(point, l1, 0.0, tf, moment, cum,
+                                                       moment2), None, None, enc
 
 
 def _sum_moment2(x, y, c: np.ndarray, l1: float, moment: float) -> float:
@@ -144,11 +168,24 @@ def nfold(x, n: int) -> tuple[np.ndarray, float, float, ErrorLedger]:
     from scipy import fft as sfft
     res = transform_compound(power_law(n), f, full, n_fft=sfft.next_fast_len(full, real=True),
                              theta=0.0, log_alias_mass=-math.inf)
-    point, l1, cum = power_errors(e, n, res.trust_floor,
-                                  min(res.l1_bound, full * res.trust_floor))
+    r_l1, r_point, r_cum = min(res.l1_bound, full * res.trust_floor), res.trust_floor, None
+    enc = res.enclosure
+    if enc is not None:  # also certified by direct longdouble products where they are cheap
+        enc = pick(enc, long_route.power(f, n))
+        r_point, r_l1, r_cum = EnclosureSums(res.pmf, enc).ledger_numbers()
+    elif res.cumulative is not None:
+        r_cum = min(res.cumulative, r_l1)
+    point, l1, cum = power_errors(e, n, r_point, r_l1, r_cum)
     moment = power_moment(e, abs_moment(f, x.step, x.origin, e), n)
     tf = truncated_from([(e, 0)], full)
-    return res.pmf, x.step, n * x.origin, ErrorLedger(point, l1, 0.0, tf, moment, cum)
+    ledger = ErrorLedger(point, l1, 0.0, tf, moment, cum)
+    if enc is None:
+        return res.pmf, x.step, n * x.origin, ledger
+    # longdouble route: its enclosure plus the input's carried per-point error
+    carried = power_errors(e, n, 0.0, 0.0)[0] * (1 + 1e-12)
+    if carried > 0:
+        enc = Enclosure(enc.center, enc.radius + carried)
+    return res.pmf, x.step, n * x.origin, ledger, None, None, enc
 
 
 def _whole(value: float, name: str, what: str) -> int:

@@ -39,6 +39,7 @@ import numpy as np
 
 from .accuracy import UNIT_ROUNDOFF
 from .arguments import SNAP, check_level, lattice_index, real_value
+from .enclosure import Enclosure, EnclosureSums
 from .expectation_bounds import SCALAR_MIN, UNIT_ROUNDOFF_LONG, ExpectationBounds
 from .ledger import ErrorLedger, cum_bound, t_bounds, untruncated
 
@@ -109,12 +110,21 @@ class Bracketer(ExpectationBounds):
         (transform routes bound exactly that): by Cauchy-Schwarz, ``|sum_k w_k e_k| <=
         ||w||_2 l2`` for every weight ``w`` (cumulative sums, stop-loss excesses), a factor up
         to ``sqrt(n)`` below the per-point route.
+    enclosure : Enclosure, optional
+        A componentwise enclosure of the exact model (:mod:`polyconv.dist.enclosure`): the
+        cumulative, tail and stop-loss sums of the error are then also bounded by their signed
+        sums on the known part ``pmf - center`` plus the radii's sums.
     """
 
     def __init__(self, pmf: np.ndarray, step: float, origin: float, ledger: ErrorLedger,
-                 profile: np.ndarray | None = None, l2: float | None = None):
+                 profile: np.ndarray | None = None, l2: float | None = None,
+                 enclosure: Enclosure | None = None):
         n = pmf.size
         self.n, self.h, self.o, self.ledger, self.pmf = n, step, origin, ledger, pmf
+        self.enc = None if enclosure is None else EnclosureSums(pmf, enclosure)
+        if self.enc is not None:
+            profile = self.enc.profile if profile is None else \
+                np.minimum(profile, self.enc.profile)
         self.profile = profile
         self.l2 = l2
         self.tf = ledger.truncated_from
@@ -195,6 +205,8 @@ class Bracketer(ExpectationBounds):
             out = np.minimum(out, run * (1 + (k + 2) * _U))
         if self.l2 is not None:
             out = np.minimum(out, np.sqrt(k + 1.0) * self.l2 * (1 + 4 * _U))
+        if self.enc is not None:
+            out = np.minimum(out, self.enc.cum[a:b])
         return out
 
     @cached_property
@@ -221,7 +233,8 @@ class Bracketer(ExpectationBounds):
     @cached_property
     def Bt(self) -> np.ndarray:  # noqa: N802
         """Bound of ``|sum_{k >= j} e_k|`` (signed sums), ``j = 0..n``."""
-        return np.minimum(self.B, 2 * cum_bound(self.ledger))
+        out = np.minimum(self.B, 2 * cum_bound(self.ledger))
+        return out if self.enc is None else np.minimum(out, self.enc.tail)
 
     @cached_property
     def SB(self) -> np.ndarray:  # noqa: N802
@@ -251,6 +264,8 @@ class Bracketer(ExpectationBounds):
             tail_l[:-1] = np.cumsum(pl[a + 1: b][::-1])[::-1]
             tail = (tail_l + np.sum(pl[b:])).astype(float)
             bt = np.minimum(self._b_on(a + 1, b + 1), 2 * cum_bound(self.ledger))
+            if self.enc is not None:
+                bt = np.minimum(bt, self.enc.tail[a + 1: b + 1])
         rs = (_U + (n - k + 2) * _UL) * tail
         maybe_below = k >= self.tf
         c = self.C[a:b] if "C" in self.__dict__ else self._c_on(a, b)

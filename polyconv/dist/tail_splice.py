@@ -43,6 +43,7 @@ import numpy as np
 
 from . import law_moments
 from .accuracy import UNIT_ROUNDOFF
+from .enclosure import Enclosure
 from .errors import AccuracyWarning
 from .from_law import _OFFSET, LawAccess, check_rule, rule_pmf
 from .goals import Goal
@@ -116,7 +117,11 @@ def capped(lattice):
     cache = lattice._cache
     profile = None if "profile" not in cache else np.append(cache["profile"], k)
     l2 = None if "l2" not in cache else (cache["l2"] + k) * (1 + 4 * UNIT_ROUNDOFF)
-    return Lattice._make(pmf, lattice.step, lattice.origin, ledger, profile, l2)
+    enc = cache.get("enclosure")
+    if enc is not None:  # the appended mass: its computed value, radius k as above
+        enc = Enclosure(np.append(enc.center, np.longdouble(lattice.truncated_mass)),
+                        np.append(enc.radius, k))
+    return Lattice._make(pmf, lattice.step, lattice.origin, ledger, profile, l2, enc)
 
 
 def _quiet(lattice, measure, arg) -> Bounded:

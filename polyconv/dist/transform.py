@@ -22,7 +22,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..numerics import transforms as tf
-from . import accuracy
+from . import accuracy, long_route
+from .enclosure import Enclosure
 
 TRANSFORM_BYTES_PER_POINT = 80
 """Peak bytes per result point of a padded transform route (``M = 2 size``: the tilted input and
@@ -59,6 +60,8 @@ class TransformLaw:
         Relative rounding of evaluating ``P`` (in units of the roundoff ``u``).
     pgf_abs : float
         Absolute rounding of evaluating ``P`` on the unit disc (in units of ``u``).
+    long_ok : bool
+        ``pgf`` keeps a longdouble argument's precision.
     """
 
     pgf: Callable[[np.ndarray], np.ndarray]
@@ -67,6 +70,9 @@ class TransformLaw:
     mean: float
     pgf_rel: float = 4.0
     pgf_abs: float = 0.0
+    long_ok: bool = False
+    """True when ``pgf`` evaluates in the precision of its argument (constants included), so a
+    longdouble route may call it (:mod:`polyconv.dist.long_route`)."""
 
 
 def power_law(n: int) -> TransformLaw:
@@ -77,7 +83,7 @@ def power_law(n: int) -> TransformLaw:
         return integer_power(z, n)
 
     return TransformLaw(pgf, lambda z: n / np.where(z == 0, 1.0, z), lambda s: n * s, float(n),
-                        pgf_rel=n * math.sqrt(5.0) + 2.0)
+                        pgf_rel=n * math.sqrt(5.0) + 2.0, long_ok=True)
 
 
 def integer_power(z: np.ndarray, n: int) -> np.ndarray:
@@ -233,6 +239,17 @@ class TransformResult:
     :func:`polyconv.dist.accuracy.untilted_l1`)."""
     log_alias_mass: float = 0.0
     """log of the bound of ``P(S >= n_fft)`` used."""
+    errors: np.ndarray | None = None
+    """Per-point bounds of the returned pmf's error (the longdouble route,
+    :mod:`polyconv.dist.long_route`), or None (float route: ``rounding_floor`` untilted at
+    each index plus ``aliasing_floor``)."""
+    cumulative: float | None = None
+    """Bound of every cumulative sum of the error (longdouble route), or None (``l1_bound``)."""
+    l2_bound: float = float("inf")
+    """Bound of the error's Euclidean norm over the ``size`` entries."""
+    enclosure: object = None
+    """Longdouble route: :class:`polyconv.dist.enclosure.Enclosure` of the exact model (the
+    longdouble result, radius its a-priori bound plus the aliasing bound), else None."""
 
 
 def transform_compound(law: TransformLaw, f: np.ndarray, size: int, *, n_fft: int | None = None,
@@ -282,43 +299,67 @@ def transform_compound(law: TransformLaw, f: np.ndarray, size: int, *, n_fft: in
 
 
 def _transform_once(law, f, size, n_fft, theta, log_alias_mass) -> TransformResult:
-    u = accuracy.UNIT_ROUNDOFF
     if n_fft is None:
         n_fft = tf.fast_length(max(2 * size, f.size), real=True)
     if n_fft < f.size:
         f = _fold(f, n_fft)
     if log_alias_mass is None:
         log_alias_mass = log_tail_bound(law, reduced_severity(f), float(n_fft))
-    eta = accuracy.fft_relative_error(n_fft)
+    long = long_route.transform_applies(n_fft, law.long_ok)
+    if long:  # extended precision, rounded once (polyconv.dist.long_route)
+        u = long_route.UNIT_ROUNDOFF_LONG
+        eta = accuracy.fft_relative_error(n_fft, u, long_route.TWIDDLE_ERROR_LONG)
+    else:
+        u = accuracy.UNIT_ROUNDOFF
+        eta = accuracy.fft_relative_error(n_fft)
     pre_round = eta * (law.mean + 1) + (law.pgf_rel + law.pgf_abs) * u
     if theta is None:
         theta = accuracy.choose_tilt(n_fft, size, log_alias_mass, pre_round)
-    j = np.arange(f.size)
-    ft = f * np.exp(-theta * j) if theta > 0 else f
-    phi = tf.rfft(tf.zero_padded(ft, n_fft), -1, 1)
+    dt = long_route.L if long else float
+    j = np.arange(f.size, dtype=dt)
+    # the tilted input errs by 3 u relative (exp and product): within eta + 3u of the transform
+    ft = f * np.exp(-theta * j) if theta > 0 else np.asarray(f, dtype=dt)
+    eta_in = eta + 3 * u if theta > 0 else eta
+    if long:
+        phi = long_route.rfft(ft, n_fft)
+    else:
+        phi = tf.rfft(tf.zero_padded(ft, n_fft), -1, 1)
     big_g = law.pgf(phi)
-    g_full = tf.irfft(big_g, n_fft, -1, 1)
+    g_full = long_route.irfft(big_g, n_fft) if long else tf.irfft(big_g, n_fft, -1, 1)
     gt = g_full[:size]
     # floor: Lipschitz factor ||P'(phi)||_2 / sqrt(M) over the full (Hermitian) spectrum
     if law.ratio is not None:
-        deriv = np.abs(law.ratio(phi) * big_g)
+        deriv = np.abs(law.ratio(phi) * big_g).astype(float)
         lip = math.sqrt(_hermitian_sq_sum(deriv, n_fft) / n_fft)
         lip = min(lip, law.mean) if law.mean > 0 else lip
     else:
         lip = law.mean
     l2_out = float(np.sqrt(np.sum(g_full * g_full)))  # the inverse transform's whole output
     rounding = accuracy.transform_compound_floor(n_fft, float(np.sum(np.abs(ft))), lip,
-                                                 law.pgf_rel * u, law.pgf_abs * u, l2_out)
-    if theta > 0:
-        g = gt * np.exp(theta * np.arange(size))
-    else:
-        g = gt
+                                                 law.pgf_rel * u, law.pgf_abs * u, l2_out,
+                                                 eta=eta_in) * (1 + 1e-12)
+    k = np.arange(size, dtype=dt)
+    g = gt * np.exp(theta * k) if theta > 0 else gt
     rounding_u = accuracy.untilted_floor(rounding, theta, size - 1)
     alias = accuracy.aliasing_bound(log_alias_mass, theta, n_fft)
-    np.maximum(g, 0.0, out=g)
     l1 = accuracy.untilted_l1(rounding, theta, size) + alias
-    return TransformResult(g, rounding_u + alias, n_fft, theta, rounding_u, alias, l1,
-                           log_alias_mass)
+    if not long:
+        np.maximum(g, 0.0, out=g)
+        return TransformResult(g, rounding_u + alias, n_fft, theta, rounding_u, alias, l1,
+                               log_alias_mass, l2_bound=rounding_u + alias)
+    # per point: tilted-domain bound untilted at k, the untilting's own 3 u_L, the aliasing
+    per_point = rounding * np.exp(theta * np.arange(size, dtype=float)) * (1 + 1e-12) \
+        + 3 * u * np.abs(g).astype(float) + alias
+    pmf, errors, cum = long_route.rounded(g, per_point)
+    # cumulative and L1: the running sum of E_L is at most its Cauchy-Schwarz form (l1 above)
+    a_sum = float(np.sum(per_point))
+    extra = min(l1 + 3 * u * float(np.sum(np.abs(g))), a_sum) - a_sum
+    d_l1 = float(np.sum(errors)) * (1 + (size + 2) * 2.0 ** -53)
+    return TransformResult(pmf, float(np.max(errors)), n_fft, theta, rounding_u, alias,
+                           max(d_l1 + extra, 0.0), log_alias_mass, errors=errors,
+                           cumulative=max(cum + extra, 0.0),
+                           l2_bound=long_route.l2_norm(errors),
+                           enclosure=Enclosure(np.maximum(g, 0), per_point * (1 + 4 * 2.0 ** -53)))
 
 
 def _hermitian_sq_sum(half: np.ndarray, n_fft: int) -> float:

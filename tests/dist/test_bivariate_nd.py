@@ -1,4 +1,5 @@
-"""Bivariate lattices on the N-D convolution: sums, marginals, compounds, conditional expectations."""
+"""Bivariate lattices on the N-D convolution: sums, marginals, compounds, conditional
+expectations."""
 
 from __future__ import annotations
 
