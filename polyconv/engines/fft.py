@@ -42,14 +42,28 @@ def convolve_fft(a: np.ndarray, b: np.ndarray, n_fft: int, keep: int, threads: i
         How many leading entries of the result to return (``keep <= n_fft``).
     threads : int
         Threads allowed.  With two or more, two 1-D forward transforms run concurrently and
-        batched transforms are split by pocketfft.
+        batched transforms are split by the library.
 
     Returns
     -------
     numpy.ndarray
         Shape ``batch + (keep,)``, dtype of the real or complex result.
+
+    Notes
+    -----
+    When one operand is 1-D (and the other is 1-D on one thread, or a batch) and the library
+    has a fused circular product (:func:`polyconv.numerics.transforms.circular_product`), the
+    rows are zero padded once and transformed, multiplied by the kernel's spectrum and
+    transformed back in that one call: the same FFT plan and the same pointwise products, with
+    no spectrum arrays and no Python in between (measured 0.6-0.85x the time of separate
+    rfft/multiply/irfft calls at ``N = 2^7 .. 2^23`` on one thread, bench/RESULTS.md).
     """
     dtype = np.result_type(a, b)
+    if tf.FUSED and (a.ndim == 1 or b.ndim == 1) and (threads == 1 or a.ndim + b.ndim > 2):
+        rows, kernel = (a, b) if b.ndim == 1 else (b, a)
+        out = tf.zero_padded(rows, n_fft, dtype)
+        tf.circular_product(out, tf.zero_padded(kernel, n_fft, dtype), threads)
+        return out[..., :keep]
     if dtype.kind == "c":
         return _convolve_complex(a, b, n_fft, keep, threads, dtype)
     if a.ndim == 1 and b.ndim == 1:

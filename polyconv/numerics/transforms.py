@@ -216,6 +216,46 @@ def fft_inplace(x: np.ndarray, axis: int, forward: bool, threads: int) -> None:
         x[...] = (_sfft.fft if forward else _sfft.ifft)(x, axis=axis, workers=threads)
 
 
+def _fused_agrees() -> bool:
+    """ducc0's fused circular product against numpy.convolve (any failure: no)."""
+    try:
+        x = np.zeros((2, 16))
+        x[:, :7] = np.arange(1.0, 15.0).reshape(2, 7) ** 0.5
+        k = np.zeros(16)
+        k[:9] = np.arange(9.0, 0.0, -1.0)
+        want = np.array([np.convolve(r[:7], k[:9]) for r in x])
+        z = x[0] * (1 + 0.5j)
+        got = _dfft.convolve_axis(x, x, 1, k, 1)[:, :15]
+        gotc = _dfft.convolve_axis(z, z, 0, k.astype(np.complex128), 1)[:15]
+        return bool(np.allclose(got, want) and np.allclose(gotc, want[0] * (1 + 0.5j)))
+    except Exception:  # noqa: BLE001 - any failure means: transform, multiply and invert
+        return False
+
+
+#: ducc0's ``convolve_axis`` passed its self-test: one call does forward transform, product with
+#: the kernel's spectrum and inverse (see :func:`circular_product`).
+FUSED = _kernels is _DUCC and _fused_agrees()
+
+
+def circular_product(x: np.ndarray, kernel: np.ndarray, threads: int) -> np.ndarray | None:
+    """Circular convolution of every row of ``x`` with ``kernel`` in one library call.
+
+    ``x`` (rows along the last axis, already at the transform length ``N``, C-contiguous and
+    writable: it is overwritten) and the 1-D ``kernel`` (length ``N``, same dtype) are
+    transformed by the same real (or complex) FFT plan as :func:`rfft` uses, multiplied bin by
+    bin in the half-complex layout and transformed back, the ``1/N`` scale applied to the
+    kernel's spectrum (exact for a power of two; else one rounding, as on the output in
+    :func:`irfft`).  ducc0's ``convolve_axis`` with equal input and output lengths; the rows
+    are transformed several at a time (SIMD across rows) and no spectrum array is allocated.
+
+    Returns ``x`` holding the products, or None when the running library has no such call (the
+    caller then uses :func:`rfft`, a product and :func:`irfft`).
+    """
+    if not FUSED:
+        return None
+    return _dfft.convolve_axis(x, x, x.ndim - 1, kernel, threads)
+
+
 def zero_padded(x: np.ndarray, length: int, dtype=None) -> np.ndarray:
     """A new array with ``x`` along the last axis followed by zeros up to ``length``."""
     out = np.zeros(x.shape[:-1] + (length,), dtype=dtype or x.dtype)

@@ -47,12 +47,38 @@ def convolve(a, b, *, mode: str = "full", method: str = "auto", modulus: int | N
     """:func:`polyconv.api.convolve` on in-memory arrays (no dask), for callers inside polyconv.
 
     Tiny plain integer products take the short path of :mod:`polyconv.pipeline.small` (same
-    values and dtype, no planning)."""
+    values and dtype, no planning); two plain 1-D float arrays that of :func:`plain_float_pair`."""
+    if type(a) is np.ndarray and type(b) is np.ndarray:
+        out = plain_float_pair(a, b, mode, method, modulus, length, axis)
+        if out is not None:
+            return out
     out = tiny_product(a, b, mode, method, modulus, length, axis)
     if out is not None:
         return out
     return convolve_prepared(a, b, mode=mode, method=method, modulus=modulus, length=length,
                              axis=axis)[0]
+
+
+_PLAIN_FLOATS = (np.dtype(np.float64), np.dtype(np.float32))
+
+
+def plain_float_pair(a: np.ndarray, b: np.ndarray, mode, method, modulus, length,
+                     axis) -> np.ndarray | None:
+    """The product of two non-empty 1-D float64 (or float32) arrays of one dtype with the
+    default arguments, planned and run as :func:`convolve_prepared` would (the same plan, the
+    same engine call, the same values), without the classification of array-likes, which is
+    most of the cost of a short product; None for anything else (the caller then prepares).
+    """
+    if (a.ndim != 1 or b.ndim != 1 or mode != "full" or method != "auto" or modulus is not None
+            or length is not None or type(axis) is not int or axis not in (-1, 0)
+            or a.dtype != b.dtype or a.dtype not in _PLAIN_FLOATS):
+        return None
+    n1, n2 = a.shape[0], b.shape[0]
+    if n1 == 0 or n2 == 0:
+        return None  # the preparing path names the empty operand
+    the_plan = choose("real", n1, n2, (), (), (), "full", "auto", None)
+    check_budget(the_plan, "real", 0, None)
+    return shaping.shape_result(run(the_plan, a, b), the_plan, 0, None)
 
 
 def convolve_integer_rows(x: np.ndarray, y: np.ndarray, *, mode: str = "full",
