@@ -27,7 +27,8 @@ def _padded_spectrum(x: np.ndarray, n_fft: int, dtype) -> np.ndarray:
     return tf.rfft(tf.zero_padded(x, n_fft, dtype), -1, 1)
 
 
-def convolve_fft(a: np.ndarray, b: np.ndarray, n_fft: int, keep: int, threads: int = 1):
+def convolve_fft(a: np.ndarray, b: np.ndarray, n_fft: int, keep: int, threads: int = 1,
+                 fused: bool = True):
     """First ``keep`` entries of the length-``n_fft`` circular convolution along the last axis.
 
     Parameters
@@ -40,6 +41,9 @@ def convolve_fft(a: np.ndarray, b: np.ndarray, n_fft: int, keep: int, threads: i
         touches entries that mode drops).
     keep : int
         How many leading entries of the result to return (``keep <= n_fft``).
+    fused : bool
+        Allow the fused circular product (Notes); False: separate transform calls always (the
+        calibration measures both).
     threads : int
         Threads allowed.  With two or more, two 1-D forward transforms run concurrently and
         batched transforms are split by the library.
@@ -59,7 +63,7 @@ def convolve_fft(a: np.ndarray, b: np.ndarray, n_fft: int, keep: int, threads: i
     rfft/multiply/irfft calls at ``N = 2^7 .. 2^23`` on one thread, bench/RESULTS.md).
     """
     dtype = np.result_type(a, b)
-    if tf.FUSED and (a.ndim == 1 or b.ndim == 1) and (threads == 1 or a.ndim + b.ndim > 2):
+    if fused and takes_fused(a.ndim == 1, b.ndim == 1, threads):
         rows, kernel = (a, b) if b.ndim == 1 else (b, a)
         out = tf.zero_padded(rows, n_fft, dtype)
         tf.circular_product(out, tf.zero_padded(kernel, n_fft, dtype), threads)
@@ -89,6 +93,12 @@ def convolve_fft(a: np.ndarray, b: np.ndarray, n_fft: int, keep: int, threads: i
     return tf.irfft(product, n_fft, -1, threads)[..., :keep]
 
 
+def takes_fused(a_1d: bool, b_1d: bool, threads: int) -> bool:
+    """Whether :func:`convolve_fft` uses the fused circular product: one operand 1-D, and a
+    batch or one thread (two 1-D operands on two threads overlap their forward transforms)."""
+    return tf.FUSED and (a_1d or b_1d) and (threads == 1 or not (a_1d and b_1d))
+
+
 def _convolve_complex(a, b, n_fft, keep, threads, dtype):
     fa = tf.fft(tf.zero_padded(a, n_fft, dtype), -1, threads)
     fb = tf.fft(tf.zero_padded(b, n_fft, dtype), -1, threads)
@@ -109,12 +119,16 @@ def thread_speedup(costs: dict, points: int, threads: int, batched: bool) -> flo
     return t["speedup_batch"] if batched else t["speedup_1d"]
 
 
-def predict_fft(costs: dict, n_fft: int, work: float, threads: int, batched: bool) -> float:
-    """Seconds for the fft engine: ``work`` counts 1-D real products of length ``n_fft``."""
+def predict_fft(costs: dict, n_fft: int, work: float, threads: int, batched: bool,
+                fused: bool = False) -> float:
+    """Seconds for the fft engine: ``work`` counts 1-D real products of length ``n_fft``
+    (``fused``: by the fused circular product, at its own measured constants when the table
+    has them)."""
     c = costs["fft"]
     flops = n_fft * math.log2(n_fft) * work
     speed = thread_speedup(costs, int(n_fft * work), threads, batched)
-    return c["overhead"] + fft_rate(costs, n_fft) * flops / speed
+    overhead = c.get("fused_overhead", c["overhead"]) if fused else c["overhead"]
+    return overhead + fft_rate(costs, n_fft, fused) * flops / speed
 
 
 def transform_work(job: Job) -> float:
@@ -132,8 +146,10 @@ def option(job: Job) -> Option:
     work = transform_work(job)
     batched = job.rows > 1
     speed = thread_speedup(job.costs, int(n_fft * work), job.threads, batched)
-    return Option(predict_fft(job.costs, n_fft, work, job.threads, batched),
-                  settings={"transform_length": n_fft, "threads": job.threads if speed > 1 else 1})
+    threads = job.threads if speed > 1 else 1
+    fused = takes_fused(not job.batch_a, not job.batch_b, threads)
+    return Option(predict_fft(job.costs, n_fft, work, threads, batched, fused),
+                  settings={"transform_length": n_fft, "threads": threads})
 
 
 def run_planned(plan, a: np.ndarray, b: np.ndarray, keep: int) -> np.ndarray:

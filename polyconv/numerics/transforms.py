@@ -237,23 +237,25 @@ def _fused_agrees() -> bool:
 FUSED = _kernels is _DUCC and _fused_agrees()
 
 
-def circular_product(x: np.ndarray, kernel: np.ndarray, threads: int) -> np.ndarray | None:
+def circular_product(x: np.ndarray, kernel: np.ndarray, threads: int,
+                     out: np.ndarray | None = None) -> np.ndarray | None:
     """Circular convolution of every row of ``x`` with ``kernel`` in one library call.
 
-    ``x`` (rows along the last axis, already at the transform length ``N``, C-contiguous and
-    writable: it is overwritten) and the 1-D ``kernel`` (length ``N``, same dtype) are
-    transformed by the same real (or complex) FFT plan as :func:`rfft` uses, multiplied bin by
-    bin in the half-complex layout and transformed back, the ``1/N`` scale applied to the
-    kernel's spectrum (exact for a power of two; else one rounding, as on the output in
-    :func:`irfft`).  ducc0's ``convolve_axis`` with equal input and output lengths; the rows
-    are transformed several at a time (SIMD across rows) and no spectrum array is allocated.
+    ``x`` (rows along the last axis, already at the transform length ``N``; overwritten unless
+    ``out``, an array of ``x``'s shape not overlapping it, is given) and the 1-D ``kernel``
+    (length ``N``, same dtype) are transformed by the same real (or complex) FFT plan as
+    :func:`rfft` uses, multiplied bin by bin in the half-complex layout and transformed back,
+    the ``1/N`` scale applied to the kernel's spectrum (exact for a power of two; else one
+    rounding, as on the output in :func:`irfft`).  ducc0's ``convolve_axis`` with equal input
+    and output lengths; the rows are transformed several at a time (SIMD across rows) and no
+    spectrum array is allocated.
 
-    Returns ``x`` holding the products, or None when the running library has no such call (the
-    caller then uses :func:`rfft`, a product and :func:`irfft`).
+    Returns ``out`` (default ``x``) holding the products, or None when the running library has
+    no such call (the caller then uses :func:`rfft`, a product and :func:`irfft`).
     """
     if not FUSED:
         return None
-    return _dfft.convolve_axis(x, x, x.ndim - 1, kernel, threads)
+    return _dfft.convolve_axis(x, x if out is None else out, x.ndim - 1, kernel, threads)
 
 
 def zero_padded(x: np.ndarray, length: int, dtype=None) -> np.ndarray:
