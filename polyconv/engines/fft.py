@@ -67,7 +67,13 @@ def convolve_fft(a: np.ndarray, b: np.ndarray, n_fft: int, keep: int, threads: i
         rows, kernel = (a, b) if b.ndim == 1 else (b, a)
         out = tf.zero_padded(rows, n_fft, dtype)
         tf.circular_product(out, tf.zero_padded(kernel, n_fft, dtype), threads)
-        return out[..., :keep]
+        return out[..., :keep]  # (no numpy arithmetic: no floating-point warnings to silence)
+    with np.errstate(invalid="ignore", over="ignore"):  # NaN/inf: the caller's policy decides
+        return _separate_calls(a, b, n_fft, keep, threads, dtype)
+
+
+def _separate_calls(a, b, n_fft, keep, threads, dtype):
+    """:func:`convolve_fft` by forward transforms, a spectral product and an inverse."""
     if dtype.kind == "c":
         return _convolve_complex(a, b, n_fft, keep, threads, dtype)
     if a.ndim == 1 and b.ndim == 1:

@@ -58,7 +58,6 @@ def convolve_overlap_add(x: np.ndarray, k: np.ndarray, n_fft: int, threads: int 
     block = n_fft - m + 1
     n_blocks = -(-n // block)
     dtype = np.result_type(x, k)
-    complex_data = dtype.kind == "c"
     lead_x = x.shape[:-1]
     batch = np.broadcast_shapes(lead_x, k.shape[:-1])
     rows = 1
@@ -67,15 +66,23 @@ def convolve_overlap_add(x: np.ndarray, k: np.ndarray, n_fft: int, threads: int 
     per_group = max(1, min(n_blocks, group_points // (n_fft * max(rows, 1))))
 
     kernel = tf.zero_padded(k, n_fft, dtype)
-    if fused and tf.FUSED and k.ndim == 1:  # at least FUSED_BLOCKS per call: the kernel's transform
-        per_group = max(per_group, min(n_blocks, FUSED_BLOCKS))  # is repeated in each
+    if fused and tf.FUSED and k.ndim == 1:  # at least FUSED_BLOCKS per call: the kernel's
+        per_group = max(per_group, min(n_blocks, FUSED_BLOCKS))  # transform is repeated in each
         return _fused_blocks(x, kernel, n, m, block, n_blocks, per_group, batch, threads)
+    with np.errstate(invalid="ignore", over="ignore"):  # NaN/inf: the caller's policy decides
+        return _separate_blocks(x, kernel, n, m, block, n_blocks, per_group, batch, threads)
+
+
+def _separate_blocks(x, kernel, n, m, block, n_blocks, per_group, batch, threads):
+    """Overlap-add by batched forward transforms, spectral products and inverses."""
+    n_fft, dtype = kernel.shape[-1], kernel.dtype
+    complex_data = dtype.kind == "c"
     if complex_data:
         kernel_spectrum = tf.fft(kernel, -1, 1)[..., None, :]
     else:
         kernel_spectrum = tf.rfft(kernel, -1, 1)[..., None, :]
     out = np.zeros(batch + ((n_blocks + 1) * block,), dtype=dtype)
-    buf = np.zeros(lead_x + (per_group, n_fft), dtype=dtype)
+    buf = np.zeros(x.shape[:-1] + (per_group, n_fft), dtype=dtype)
     for first in range(0, n_blocks, per_group):
         count = min(per_group, n_blocks - first)
         _load_blocks(buf, x, first, count, block)

@@ -119,23 +119,21 @@ def run(the_plan: Plan, x: np.ndarray, y: np.ndarray) -> np.ndarray:
     x = x.astype(work, copy=False)
     y = y.astype(work, copy=False)
     keep = needed_entries(the_plan.mode, x.shape[-1], y.shape[-1], the_plan.output_length)
-    if engine.nonfinite_safe:
-        return engine.run(the_plan, x, y, keep)
+    out = engine.run(the_plan, x, y, keep)  # (transform engines silence their NaN warnings)
+    if engine.nonfinite_safe or shaping.looks_finite(out, engine.smears_nonfinite):
+        return out
 
     def product(u: np.ndarray, v: np.ndarray) -> np.ndarray:
         return engine.run(the_plan, u, v, keep)
 
-    with np.errstate(invalid="ignore", over="ignore"):  # a NaN input is handled just below
-        out = product(x, y)
-    if not shaping.looks_finite(out, first_entries_only=engine.smears_nonfinite):
-        bad = shaping.nonfinite_masks(x, y)
-        if bad is not None:
-            x, y = shaping.zero_nonfinite(x), shaping.zero_nonfinite(y)
-        # finite inputs whose product overflows: inf - inf inside a transform would give NaN
-        # where numpy.convolve gives +-inf, so the product is formed on scaled operands
-        out = shaping.run_scaled(product, x, y)
-        if bad is not None:
-            out = shaping.mark_nonfinite(out, bad, x.shape[-1], y.shape[-1])
+    bad = shaping.nonfinite_masks(x, y)  # a NaN or inf input, or an overflow
+    if bad is not None:
+        x, y = shaping.zero_nonfinite(x), shaping.zero_nonfinite(y)
+    # finite inputs whose product overflows: inf - inf inside a transform would give NaN
+    # where numpy.convolve gives +-inf, so the product is formed on scaled operands
+    out = shaping.run_scaled(product, x, y)
+    if bad is not None:
+        out = shaping.mark_nonfinite(out, bad, x.shape[-1], y.shape[-1])
     return out
 
 
