@@ -62,8 +62,13 @@ def convolve_fft(a: np.ndarray, b: np.ndarray, n_fft: int, keep: int, threads: i
     no spectrum arrays and no Python in between (measured 0.6-0.85x the time of separate
     rfft/multiply/irfft calls at ``N = 2^7 .. 2^23`` on one thread, bench/RESULTS.md).
     """
-    dtype = np.result_type(a, b)
+    dtype = a.dtype if a.dtype == b.dtype else np.result_type(a, b)
     if fused and takes_fused(a.ndim == 1, b.ndim == 1, threads):
+        if a.ndim == 1 and b.ndim == 1:  # the common case, without the batch bookkeeping
+            out, kernel = np.zeros(n_fft, dtype), np.zeros(n_fft, dtype)
+            out[: a.shape[0]] = a
+            kernel[: b.shape[0]] = b
+            return tf.circular_product(out, kernel, threads)[:keep]
         rows, kernel = (a, b) if b.ndim == 1 else (b, a)
         out = tf.zero_padded(rows, n_fft, dtype)
         tf.circular_product(out, tf.zero_padded(kernel, n_fft, dtype), threads)

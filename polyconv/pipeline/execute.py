@@ -18,6 +18,7 @@ import numpy as np
 from ..engines.registry import REGISTRY
 from ..numerics.checks import random_evaluation_check
 from ..numerics.limits import INT64_LIMIT
+from ..tuning import costs as _costs
 from . import shaping
 from .choose import choose
 from .facts import integer_facts, normalise_integers
@@ -60,6 +61,9 @@ def convolve(a, b, *, mode: str = "full", method: str = "auto", modulus: int | N
 
 
 _PLAIN_FLOATS = (np.dtype(np.float64), np.dtype(np.float32))
+#: plans of :func:`plain_float_pair` by ``(n1, n2, cost table generation)``, kept only for
+#: products whose memory the budget grants whatever its setting (so no re-check is skipped)
+_plain_plans: dict = {}
 
 
 def plain_float_pair(a: np.ndarray, b: np.ndarray, mode, method, modulus, length,
@@ -76,9 +80,19 @@ def plain_float_pair(a: np.ndarray, b: np.ndarray, mode, method, modulus, length
     n1, n2 = a.shape[0], b.shape[0]
     if n1 == 0 or n2 == 0:
         return None  # the preparing path names the empty operand
-    the_plan = choose("real", n1, n2, (), (), (), "full", "auto", None)
-    check_budget(the_plan, "real", 0, None)
-    return shaping.shape_result(run(the_plan, a, b), the_plan, 0, None)
+    key = (n1, n2, _costs.generation)
+    the_plan = _plain_plans.get(key)
+    if the_plan is None:
+        the_plan = choose("real", n1, n2, (), (), (), "full", "auto", None)
+        if check_budget(the_plan, "real", 0, None):  # granted whatever the budget: memoise
+            if len(_plain_plans) >= 512:
+                _plain_plans.clear()
+            _plain_plans[(n1, n2, _costs.generation)] = the_plan
+    engine = REGISTRY[the_plan.engine]
+    out = engine.run(the_plan, a, b, the_plan.output_length)  # what run() would call
+    if not (engine.nonfinite_safe or shaping.looks_finite(out, engine.smears_nonfinite)):
+        out = run(the_plan, a, b)  # NaN, inf or overflow: run()'s policy, from the start
+    return shaping.shape_result(out, the_plan, 0, None)
 
 
 def convolve_integer_rows(x: np.ndarray, y: np.ndarray, *, mode: str = "full",
