@@ -51,7 +51,7 @@ def _ifft_public(spec, axis, threads):
 
 
 def _rfft_direct(x, axis, threads):
-    return _pp.r2c(x, (axis % x.ndim,), True, 0, None, threads)
+    return _pp.r2c(_as_float(x), (axis % x.ndim,), True, 0, None, threads)
 
 
 def _irfft_direct(spec, n, axis, threads):
