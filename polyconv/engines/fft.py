@@ -158,9 +158,13 @@ def option(job: Job) -> Option:
     batched = job.rows > 1
     speed = thread_speedup(job.costs, int(n_fft * work), job.threads, batched)
     threads = job.threads if speed > 1 else 1
-    fused = takes_fused(not job.batch_a, not job.batch_b, threads)
-    return Option(predict_fft(job.costs, n_fft, work, threads, batched, fused),
-                  settings={"transform_length": n_fft, "threads": threads})
+    one_d = (not job.batch_a, not job.batch_b)
+    seconds = predict_fft(job.costs, n_fft, work, threads, batched, takes_fused(*one_d, threads))
+    if threads > 1 and not takes_fused(*one_d, threads) and takes_fused(*one_d, 1):
+        alone = predict_fft(job.costs, n_fft, work, 1, batched, True)  # fused, one thread
+        if alone < seconds:
+            seconds, threads = alone, 1
+    return Option(seconds, settings={"transform_length": n_fft, "threads": threads})
 
 
 def run_planned(plan, a: np.ndarray, b: np.ndarray, keep: int) -> np.ndarray:

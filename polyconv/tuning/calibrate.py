@@ -8,9 +8,13 @@ themselves (best of several runs), so the chooser compares like with like:
   grid of 1-D sizes;
 * ``direct_batch``: ``t = c0 + m (c_step + c_elem B n)`` likewise on batched shapes;
 * ``fft``: the fixed cost ``c0`` from the smallest transforms, then ``rate_by_log2n[k]`` =
-  ``(t - c0) / (N log2 N)`` for one real 1-D product at ``N = 2**k`` on one thread;
-* ``threads``: the smallest ``N`` at which two threads beat one, and the speed-ups at large ``N``;
-* ``overlap_add``: ``c0`` and ``c_pt`` fitted to what overlap-add costs beyond its transforms.
+  ``(t - c0) / (N log2 N)`` for one real 1-D product at ``N = 2**k`` on one thread by separate
+  transform calls, and ``fused_overhead`` / ``fused_rate_by_log2n`` likewise by the library's
+  fused circular product where it has one;
+* ``threads``: the smallest ``N`` at which two threads beat one, and the speed-ups at large ``N``
+  (against separate transform calls on one thread: the speed-up scales ``rate_by_log2n``);
+* ``overlap_add``: ``c0`` and ``c_pt`` fitted to what overlap-add costs beyond its transforms
+  (and ``fused_*`` for its fused variant).
 """
 
 from __future__ import annotations
@@ -91,7 +95,8 @@ def measure(quick: bool = False, progress: Callable[[str], None] | None = None) 
         for k in range(12, top + 1):
             n_fft = 2**k
             x, y = rng.standard_normal(n_fft // 2), rng.standard_normal(n_fft // 2)
-            one = best_time(lambda x=x, y=y, n=n_fft: convolve_fft(x, y, n, n - 1, 1), budget)
+            one = best_time(lambda x=x, y=y, n=n_fft: convolve_fft(x, y, n, n - 1, 1,
+                                                                    fused=False), budget)
             two = best_time(lambda x=x, y=y, n=n_fft: convolve_fft(x, y, n, n - 1, threads), budget)
             if two < 0.95 * one:
                 thread_table["min_points"] = min(thread_table["min_points"], n_fft)
