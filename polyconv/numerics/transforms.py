@@ -7,14 +7,17 @@ be imported: the lean float recipe (two real transforms, a product, one inverse)
 ducc0 cannot be imported, scipy's compiled pocketfft binding is called directly (public
 ``scipy.fft`` functions spend about 3 us per call on dispatch); failing that, the public
 functions.  Either library passes a self-test at import against numpy.fft; scipy is imported
-only when ducc0 is not used (it costs about 0.3 s).
+only when ducc0 is not used (it costs about 0.3 s).  ducc0 also has a fused circular product
+(:func:`circular_product`: forward transform, product with a kernel's spectrum and inverse in
+one call, :data:`FUSED`), which the float engines prefer when one operand is 1-D.
 
 :data:`LIBRARY` and :data:`LIBRARY_VERSION` name what runs; error certificates
 (:mod:`polyconv.numerics.bounds`) are issued only for a library and version range whose twiddle
 error was measured.  No other module asks which library is present.
 
 All functions transform along one axis of an array that is *already* at the transform length
-(the caller zero pads), and return new arrays.
+(the caller zero pads), and return new arrays (save the ``*_into``/``*_inplace`` ones and
+:func:`circular_product`, which write where they are told).
 """
 
 from __future__ import annotations
