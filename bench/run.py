@@ -7,22 +7,33 @@ Usage::
 
 Every contender is timed in one process, interleaved round by round (so drift in machine load hits
 all of them alike), and the best of the rounds is kept.  A ratio below 1 means polyconv is faster.
+The float tables include the lean scipy.fft recipe of issue #12's goal: ``rfft`` of both operands
+at ``scipy.fft.next_fast_len(n1 + n2 - 1, real=True)``, a product, ``irfft`` (scipy.fft's default
+of one worker).
 The env notes say OPENBLAS_CORETYPE / OPENBLAS_L2_SIZE may be set on this machine; they do not
-touch the FFT paths measured here, so this script leaves them alone.
+touch the FFT paths measured here, so this script leaves them alone; with ``POLYCONV_THREADS=1``
+it caps BLAS and OpenMP pools at one thread too (OPENBLAS_NUM_THREADS, OMP_NUM_THREADS, unless
+set), so that every contender runs on one thread.
 """
 
 from __future__ import annotations
 
 import argparse
 import math
+import os
 import platform
 import sys
 import time
 from pathlib import Path
 
-import numpy as np
-import scipy
-import scipy.signal as ss
+if os.environ.get("POLYCONV_THREADS", "").strip() == "1":  # before numpy starts its pools
+    for _name in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS"):
+        os.environ.setdefault(_name, "1")
+
+import numpy as np  # noqa: E402
+import scipy  # noqa: E402
+import scipy.fft as sfft  # noqa: E402
+import scipy.signal as ss  # noqa: E402
 
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent))
@@ -59,6 +70,7 @@ def interleaved_best(contenders: dict, rounds: int, min_seconds: float) -> dict:
 def all_contenders(x, y, with_numpy: bool, with_direct: bool) -> dict:
     """auto, the references and polyconv's own engines on one pair."""
     c = {"auto": lambda: polyconv.convolve(x, y),
+         "lean": lean_recipe(x, y),
          "fftconvolve": lambda: ss.fftconvolve(x, y),
          "oaconvolve": lambda: ss.oaconvolve(x, y)}
     if with_numpy:
@@ -67,6 +79,13 @@ def all_contenders(x, y, with_numpy: bool, with_direct: bool) -> dict:
     if not with_direct:
         c.pop("pc:direct", None)
     return c
+
+
+def lean_recipe(x, y):
+    """Issue #12's reference: rfft, multiply, irfft at scipy's fast real length (one worker)."""
+    full = x.shape[-1] + y.shape[-1] - 1
+    size = sfft.next_fast_len(full, real=True)
+    return lambda: sfft.irfft(sfft.rfft(x, size) * sfft.rfft(y, size), size)[:full]
 
 
 def engine_contenders(x, y) -> dict:
@@ -96,7 +115,7 @@ def bench_float(quick: bool) -> tuple[list[str], list[str]]:
         x, y = rng.standard_normal(n), rng.standard_normal(n)
         c = all_contenders(x, y, with_numpy=n <= 2**14, with_direct=n <= 2**14)
         t = interleaved_best(c, rounds if n < 2**20 else 3, min_seconds)
-        equal_rows.append(_row(f"2^{e} x 2^{e}", t, polyconv.plan(x, y).engine))
+        equal_rows.append(_row(f"2^{e} x 2^{e}", t, polyconv.plan(x, y).engine, _goal(n)))
         print(equal_rows[-1], flush=True)
 
     n = 2**18 if quick else 2**22
@@ -105,7 +124,8 @@ def bench_float(quick: bool) -> tuple[list[str], list[str]]:
         y = rng.standard_normal(m)
         c = all_contenders(x, y, with_numpy=m <= 512, with_direct=m <= 512)
         t = interleaved_best(c, 3, min_seconds)
-        long_rows.append(_row(f"2^{int(math.log2(n))} x {m}", t, polyconv.plan(x, y).engine))
+        long_rows.append(_row(f"2^{int(math.log2(n))} x {m}", t, polyconv.plan(x, y).engine,
+                              _goal(n)))
         print(long_rows[-1], flush=True)
     return equal_rows, long_rows
 
@@ -114,17 +134,26 @@ def _ratio(a: float, b: float | None) -> str:
     return "-" if b is None or not math.isfinite(b) else f"{a / b:.2f}"
 
 
-def _row(label: str, t: dict, engine: str) -> str:
+def _goal(n: int) -> float:
+    """Issue #12's float goal against the lean recipe: 0.6 up to n = 2^16, 0.9 above."""
+    return 0.6 if n <= 2**16 else 0.9
+
+
+def _row(label: str, t: dict, engine: str, goal: float) -> str:
     auto = t["auto"]
+    lean = _ratio(auto, t.get("lean"))
+    lean += f" ({'meets' if auto / t['lean'] <= goal else 'misses'} <= {goal})"
     own = {k: v for k, v in t.items() if k.startswith("pc:")}
     best_name = min(own, key=own.get)
-    return (f"| {label} | {auto * 1e3:.4g} | {engine} | {_ratio(auto, t.get('fftconvolve'))} | "
+    return (f"| {label} | {auto * 1e3:.4g} | {engine} | {lean} | "
+            f"{_ratio(auto, t.get('fftconvolve'))} | "
             f"{_ratio(auto, t.get('oaconvolve'))} | {_ratio(auto, t.get('numpy'))} | "
             f"{_ratio(auto, own[best_name])} ({best_name[3:]}) |")
 
 
-HEADER = ("| sizes | auto ms | engine chosen | auto / fftconvolve | auto / oaconvolve | "
-          "auto / numpy | auto / best own engine |\n|---|---|---|---|---|---|---|")
+HEADER = ("| sizes | auto ms | engine chosen | auto / lean scipy.fft | auto / fftconvolve | "
+          "auto / oaconvolve | auto / numpy | auto / best own engine |\n"
+          "|---|---|---|---|---|---|---|---|")
 
 
 def write_results(command: str, equal_rows: list[str], long_rows: list[str],

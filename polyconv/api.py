@@ -118,6 +118,9 @@ def convolve(a, b, *, mode: str = "full", method: str = "auto", modulus: int | N
     >>> polyconv.convolve([1.0, 2.0, 3.0], [0.0, 1.0, 0.5])
     array([0. , 1. , 2.5, 4. , 1.5])
     """
+    if type(a) is np.ndarray and type(b) is np.ndarray and axes is None:  # the common case
+        return execute.convolve(a, b, mode=mode, method=method, modulus=modulus, length=length,
+                                axis=axis)
     if _is_dask_array(a) or _is_dask_array(b):
         if axes is not None:
             raise ValueError("axes= is not supported for dask arrays; compute them first")

@@ -31,9 +31,13 @@ def power_of_two_at_least(n: int) -> int:
     return 1 << max(0, (n - 1).bit_length())
 
 
-def fft_rate(costs: dict, n_fft: int) -> float:
-    """Seconds per ``N log2 N`` of one real 1-D FFT product at length ``N``, interpolated."""
-    return value_at_size(costs["fft"]["rate_by_log2n"], max(n_fft, 2))
+def fft_rate(costs: dict, n_fft: int, fused: bool = False) -> float:
+    """Seconds per ``N log2 N`` of one real 1-D FFT product at length ``N``, interpolated:
+    separate transform calls, or with ``fused`` the library's fused circular product
+    (``fft.fused_rate_by_log2n``; tables without it give the separate calls' rate)."""
+    c = costs["fft"]
+    table = c.get("fused_rate_by_log2n") if fused else None
+    return value_at_size(table or c["rate_by_log2n"], max(n_fft, 2))
 
 
 def gmp_rate(c: dict, bits: int) -> float:

@@ -23,10 +23,13 @@ from ._common import FLOAT_KINDS, LARGE_ARRAY, Engine, Job, Option, fft_rate, sp
 #: and output stay in the CPU cache (measured: groups of 2**14-2**16 points beat one call over
 #: all blocks by 1.5-2x at n = 2**22), large enough that the Python loop over groups costs little.
 GROUP_POINTS = 2**15
+#: fewest blocks per fused call (:func:`polyconv.numerics.transforms.circular_product`
+#: transforms the kernel once per call)
+FUSED_BLOCKS = 8
 
 
 def convolve_overlap_add(x: np.ndarray, k: np.ndarray, n_fft: int, threads: int = 1,
-                         group_points: int = GROUP_POINTS):
+                         group_points: int = GROUP_POINTS, fused: bool = True):
     """Full convolution of a long ``x`` with a short kernel ``k`` along the last axis.
 
     Parameters
@@ -41,6 +44,10 @@ def convolve_overlap_add(x: np.ndarray, k: np.ndarray, n_fft: int, threads: int 
         Threads pocketfft may use for the batched block transforms.
     group_points : int
         About how many points (blocks x ``n_fft`` x batch) to transform per call.
+    fused : bool
+        With a 1-D kernel, let the library's fused circular product
+        (:func:`polyconv.numerics.transforms.circular_product`) do each group of blocks (at
+        least :data:`FUSED_BLOCKS` per call); False: separate transform calls.
 
     Returns
     -------
@@ -51,7 +58,6 @@ def convolve_overlap_add(x: np.ndarray, k: np.ndarray, n_fft: int, threads: int 
     block = n_fft - m + 1
     n_blocks = -(-n // block)
     dtype = np.result_type(x, k)
-    complex_data = dtype.kind == "c"
     lead_x = x.shape[:-1]
     batch = np.broadcast_shapes(lead_x, k.shape[:-1])
     rows = 1
@@ -60,12 +66,23 @@ def convolve_overlap_add(x: np.ndarray, k: np.ndarray, n_fft: int, threads: int 
     per_group = max(1, min(n_blocks, group_points // (n_fft * max(rows, 1))))
 
     kernel = tf.zero_padded(k, n_fft, dtype)
+    if fused and tf.FUSED and k.ndim == 1:  # at least FUSED_BLOCKS per call: the kernel's
+        per_group = max(per_group, min(n_blocks, FUSED_BLOCKS))  # transform is repeated in each
+        return _fused_blocks(x, kernel, n, m, block, n_blocks, per_group, batch, threads)
+    with np.errstate(invalid="ignore", over="ignore"):  # NaN/inf: the caller's policy decides
+        return _separate_blocks(x, kernel, n, m, block, n_blocks, per_group, batch, threads)
+
+
+def _separate_blocks(x, kernel, n, m, block, n_blocks, per_group, batch, threads):
+    """Overlap-add by batched forward transforms, spectral products and inverses."""
+    n_fft, dtype = kernel.shape[-1], kernel.dtype
+    complex_data = dtype.kind == "c"
     if complex_data:
         kernel_spectrum = tf.fft(kernel, -1, 1)[..., None, :]
     else:
         kernel_spectrum = tf.rfft(kernel, -1, 1)[..., None, :]
     out = np.zeros(batch + ((n_blocks + 1) * block,), dtype=dtype)
-    buf = np.zeros(lead_x + (per_group, n_fft), dtype=dtype)
+    buf = np.zeros(x.shape[:-1] + (per_group, n_fft), dtype=dtype)
     for first in range(0, n_blocks, per_group):
         count = min(per_group, n_blocks - first)
         _load_blocks(buf, x, first, count, block)
@@ -75,14 +92,34 @@ def convolve_overlap_add(x: np.ndarray, k: np.ndarray, n_fft: int, threads: int 
         else:
             spectra = spectral_product(tf.rfft(buf[..., :count, :], -1, threads), kernel_spectrum)
             pieces = tf.irfft(spectra, n_fft, -1, threads)
-        start = first * block
-        heads = out[..., start: start + count * block]
-        heads += pieces[..., :block].reshape(batch + (count * block,))
-        if m > 1:
-            tails = out[..., start + block: start + (count + 1) * block]
-            tails = tails.reshape(batch + (count, block))
-            tails[..., : m - 1] += pieces[..., block:]
+        _add_pieces(out, pieces, first, count, block, m, batch)
     return out[..., : n + m - 1]
+
+
+def _fused_blocks(x, kernel, n, m, block, n_blocks, per_group, batch, threads):
+    """Overlap-add with the library's fused circular product per group of blocks (the kernel's
+    spectrum is recomputed per group inside that call; no spectrum arrays in Python)."""
+    n_fft = kernel.shape[-1]
+    out = np.zeros(batch + ((n_blocks + 1) * block,), dtype=kernel.dtype)
+    buf = np.zeros(x.shape[:-1] + (per_group, n_fft), dtype=kernel.dtype)
+    pieces = np.empty_like(buf)
+    for first in range(0, n_blocks, per_group):
+        count = min(per_group, n_blocks - first)
+        _load_blocks(buf, x, first, count, block)
+        done = tf.circular_product(buf[..., :count, :], kernel, threads, pieces[..., :count, :])
+        _add_pieces(out, done, first, count, block, m, batch)
+    return out[..., : n + m - 1]
+
+
+def _add_pieces(out, pieces, first, count, block, m, batch) -> None:
+    """Add ``count`` block products (``block + m - 1`` entries each) into ``out``."""
+    start = first * block
+    heads = out[..., start: start + count * block]
+    heads += pieces[..., :block].reshape(batch + (count * block,))
+    if m > 1:
+        tails = out[..., start + block: start + (count + 1) * block]
+        tails = tails.reshape(batch + (count, block))
+        tails[..., : m - 1] += pieces[..., block:]
 
 
 def _load_blocks(buf: np.ndarray, x: np.ndarray, first: int, count: int, block: int) -> None:
@@ -108,19 +145,21 @@ def _load_blocks(buf: np.ndarray, x: np.ndarray, first: int, count: int, block: 
 
 
 def predict_overlap_add(costs: dict, n: int, m: int, n_fft: int, batch: int, complex_factor: float,
-                        threads: int) -> float:
-    """Seconds for overlap-add with block transforms of length ``n_fft``."""
+                        threads: int, fused: bool = False) -> float:
+    """Seconds for overlap-add with block transforms of length ``n_fft`` (``fused``: by the
+    fused circular product, at its own constants ``fused_*`` when the table has them)."""
     c = costs["overlap_add"]
+    pre = "fused_" if fused and "fused_per_point" in c else ""
     block = n_fft - m + 1
     blocks = -(-n // block)
     transforms = (2 * blocks * batch + 1) / 3 * complex_factor
-    big = c["per_sample_large"] * n * batch if n * batch >= LARGE_ARRAY else 0.0
-    return (c["overhead"] + fft_rate(costs, n_fft) * n_fft * math.log2(n_fft) * transforms
-            + c["per_point"] * blocks * n_fft * batch + big)
+    big = c[pre + "per_sample_large"] * n * batch if n * batch >= LARGE_ARRAY else 0.0
+    return (c[pre + "overhead"] + fft_rate(costs, n_fft, fused) * n_fft * math.log2(n_fft)
+            * transforms + c[pre + "per_point"] * blocks * n_fft * batch + big)
 
 
 def best_overlap_add(costs: dict, n: int, m: int, batch: int, complex_factor: float,
-                     threads: int) -> tuple[float, int] | None:
+                     threads: int, fused: bool = False) -> tuple[float, int] | None:
     """Cheapest overlap-add transform length for a long ``n`` and a kernel ``m``, or None.
 
     Candidates are fast lengths from about ``2m`` up to below the one-shot transform length; a
@@ -131,7 +170,7 @@ def best_overlap_add(costs: dict, n: int, m: int, batch: int, complex_factor: fl
     size = tf.fast_length(max(2 * m, 16))
     while size < full:
         if size - m + 1 >= max(m - 1, 1):
-            t = predict_overlap_add(costs, n, m, size, batch, complex_factor, threads)
+            t = predict_overlap_add(costs, n, m, size, batch, complex_factor, threads, fused)
             if best is None or t < best[0]:
                 best = (t, size)
         size = tf.fast_length(size * 2)
@@ -148,10 +187,12 @@ def option(job: Job) -> Option | str:
     if job.mode == "valid" or min(job.n1, job.n2) <= 1:
         return REFUSAL
     n_long, n_short = max(job.n1, job.n2), min(job.n1, job.n2)
-    long_batch = job.batch_a if job.n1 >= job.n2 else job.batch_b
+    long_batch, kernel_batch = ((job.batch_a, job.batch_b) if job.n1 >= job.n2
+                                else (job.batch_b, job.batch_a))
     rows_long = math.prod(long_batch) if long_batch else 1
     best = best_overlap_add(job.costs, n_long, n_short, max(rows_long, 1),
-                            2.0 if job.kind == "complex" else 1.0, job.threads)
+                            2.0 if job.kind == "complex" else 1.0, job.threads,
+                            tf.FUSED and not kernel_batch)
     if best is None:
         return REFUSAL
     seconds, n_fft = best

@@ -22,6 +22,14 @@ is mixed-radix, not a plain radix-2 transform:
   covering it;
 * the real transforms (``rfft``/``irfft``) are a half-length complex transform plus one twiddled
   post-processing pass: at most ``n`` levels again, so the bound at length ``N`` is used;
+* the fused circular product (:func:`polyconv.numerics.transforms.circular_product`, ducc0's
+  ``convolve_axis``, which the fft and overlap-add engines call when one operand is 1-D) runs
+  the same real (or complex) FFT plan forward on both operands and backward on their product,
+  one complex multiplication per bin (``sqrt 5 eps`` covers it, with or without a fused
+  multiply-add), and scales the kernel's spectrum instead of the output by ``1/N`` (exact for
+  the power-of-two lengths of the certified path); so the same theorem and constants apply.
+  Its results differ from separate calls' in the last bits (rounding order of the product);
+  tests/pipeline/test_float_fused.py holds both within the bound against exact products;
 * twiddle error ``beta`` = :data:`TWIDDLE_ERROR`, measured per library and version range
   (:data:`MEASURED_TWIDDLE_ERROR`) from unit-impulse responses, which return the roots of unity
   as the transform produces them, against roots at exact reference angles (long double from a

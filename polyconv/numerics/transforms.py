@@ -7,14 +7,17 @@ be imported: the lean float recipe (two real transforms, a product, one inverse)
 ducc0 cannot be imported, scipy's compiled pocketfft binding is called directly (public
 ``scipy.fft`` functions spend about 3 us per call on dispatch); failing that, the public
 functions.  Either library passes a self-test at import against numpy.fft; scipy is imported
-only when ducc0 is not used (it costs about 0.3 s).
+only when ducc0 is not used (it costs about 0.3 s).  ducc0 also has a fused circular product
+(:func:`circular_product`: forward transform, product with a kernel's spectrum and inverse in
+one call, :data:`FUSED`), which the float engines prefer when one operand is 1-D.
 
 :data:`LIBRARY` and :data:`LIBRARY_VERSION` name what runs; error certificates
 (:mod:`polyconv.numerics.bounds`) are issued only for a library and version range whose twiddle
 error was measured.  No other module asks which library is present.
 
 All functions transform along one axis of an array that is *already* at the transform length
-(the caller zero pads), and return new arrays.
+(the caller zero pads), and return new arrays (save the ``*_into``/``*_inplace`` ones and
+:func:`circular_product`, which write where they are told).
 """
 
 from __future__ import annotations
@@ -51,7 +54,7 @@ def _ifft_public(spec, axis, threads):
 
 
 def _rfft_direct(x, axis, threads):
-    return _pp.r2c(x, (axis % x.ndim,), True, 0, None, threads)
+    return _pp.r2c(_as_float(x), (axis % x.ndim,), True, 0, None, threads)
 
 
 def _irfft_direct(spec, n, axis, threads):
@@ -214,6 +217,48 @@ def fft_inplace(x: np.ndarray, axis: int, forward: bool, threads: int) -> None:
         _pp.c2c(x, (axis % x.ndim,), forward, inorm, x, threads)
     else:  # pragma: no cover - public scipy.fft only
         x[...] = (_sfft.fft if forward else _sfft.ifft)(x, axis=axis, workers=threads)
+
+
+def _fused_agrees() -> bool:
+    """ducc0's fused circular product against numpy.convolve (any failure: no)."""
+    try:
+        x = np.zeros((2, 16))
+        x[:, :7] = np.arange(1.0, 15.0).reshape(2, 7) ** 0.5
+        k = np.zeros(16)
+        k[:9] = np.arange(9.0, 0.0, -1.0)
+        want = np.array([np.convolve(r[:7], k[:9]) for r in x])
+        z = x[0] * (1 + 0.5j)
+        got = _dfft.convolve_axis(x, x, 1, k, 1)[:, :15]
+        gotc = _dfft.convolve_axis(z, z, 0, k.astype(np.complex128), 1)[:15]
+        return bool(np.allclose(got, want) and np.allclose(gotc, want[0] * (1 + 0.5j)))
+    except Exception:  # noqa: BLE001 - any failure means: transform, multiply and invert
+        return False
+
+
+#: ducc0's ``convolve_axis`` passed its self-test: one call does forward transform, product with
+#: the kernel's spectrum and inverse (see :func:`circular_product`).
+FUSED = _kernels is _DUCC and _fused_agrees()
+
+
+def circular_product(x: np.ndarray, kernel: np.ndarray, threads: int,
+                     out: np.ndarray | None = None) -> np.ndarray | None:
+    """Circular convolution of every row of ``x`` with ``kernel`` in one library call.
+
+    ``x`` (rows along the last axis, already at the transform length ``N``; overwritten unless
+    ``out``, an array of ``x``'s shape not overlapping it, is given) and the 1-D ``kernel``
+    (length ``N``, same dtype) are transformed by the same real (or complex) FFT plan as
+    :func:`rfft` uses, multiplied bin by bin in the half-complex layout and transformed back,
+    the ``1/N`` scale applied to the kernel's spectrum (exact for a power of two; else one
+    rounding, as on the output in :func:`irfft`).  ducc0's ``convolve_axis`` with equal input
+    and output lengths; the rows are transformed several at a time (SIMD across rows) and no
+    spectrum array is allocated.
+
+    Returns ``out`` (default ``x``) holding the products, or None when the running library has
+    no such call (the caller then uses :func:`rfft`, a product and :func:`irfft`).
+    """
+    if not FUSED:
+        return None
+    return _dfft.convolve_axis(x, x if out is None else out, x.ndim - 1, kernel, threads)
 
 
 def zero_padded(x: np.ndarray, length: int, dtype=None) -> np.ndarray:

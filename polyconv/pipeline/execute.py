@@ -18,6 +18,7 @@ import numpy as np
 from ..engines.registry import REGISTRY
 from ..numerics.checks import random_evaluation_check
 from ..numerics.limits import INT64_LIMIT
+from ..tuning import costs as _costs
 from . import shaping
 from .choose import choose
 from .facts import integer_facts, normalise_integers
@@ -47,12 +48,51 @@ def convolve(a, b, *, mode: str = "full", method: str = "auto", modulus: int | N
     """:func:`polyconv.api.convolve` on in-memory arrays (no dask), for callers inside polyconv.
 
     Tiny plain integer products take the short path of :mod:`polyconv.pipeline.small` (same
-    values and dtype, no planning)."""
+    values and dtype, no planning); two plain 1-D float arrays that of :func:`plain_float_pair`."""
+    if type(a) is np.ndarray and type(b) is np.ndarray:
+        out = plain_float_pair(a, b, mode, method, modulus, length, axis)
+        if out is not None:
+            return out
     out = tiny_product(a, b, mode, method, modulus, length, axis)
     if out is not None:
         return out
     return convolve_prepared(a, b, mode=mode, method=method, modulus=modulus, length=length,
                              axis=axis)[0]
+
+
+_PLAIN_FLOATS = (np.dtype(np.float64), np.dtype(np.float32))
+#: plans of :func:`plain_float_pair` by ``(n1, n2, cost table generation)``, kept only for
+#: products whose memory the budget grants whatever its setting (so no re-check is skipped)
+_plain_plans: dict = {}
+
+
+def plain_float_pair(a: np.ndarray, b: np.ndarray, mode, method, modulus, length,
+                     axis) -> np.ndarray | None:
+    """The product of two non-empty 1-D float64 (or float32) arrays of one dtype with the
+    default arguments, planned and run as :func:`convolve_prepared` would (the same plan, the
+    same engine call, the same values), without the classification of array-likes, which is
+    most of the cost of a short product; None for anything else (the caller then prepares).
+    """
+    if (a.ndim != 1 or b.ndim != 1 or mode != "full" or method != "auto" or modulus is not None
+            or length is not None or type(axis) is not int or axis not in (-1, 0)
+            or a.dtype != b.dtype or a.dtype not in _PLAIN_FLOATS):
+        return None
+    n1, n2 = a.shape[0], b.shape[0]
+    if n1 == 0 or n2 == 0:
+        return None  # the preparing path names the empty operand
+    key = (n1, n2, _costs.generation)
+    the_plan = _plain_plans.get(key)
+    if the_plan is None:
+        the_plan = choose("real", n1, n2, (), (), (), "full", "auto", None)
+        if check_budget(the_plan, "real", 0, None):  # granted whatever the budget: memoise
+            if len(_plain_plans) >= 512:
+                _plain_plans.clear()
+            _plain_plans[(n1, n2, _costs.generation)] = the_plan
+    engine = REGISTRY[the_plan.engine]
+    out = engine.run(the_plan, a, b, the_plan.output_length)  # what run() would call
+    if not (engine.nonfinite_safe or shaping.looks_finite(out, engine.smears_nonfinite)):
+        out = run(the_plan, a, b)  # NaN, inf or overflow: run()'s policy, from the start
+    return shaping.shape_result(out, the_plan, 0, None)
 
 
 def convolve_integer_rows(x: np.ndarray, y: np.ndarray, *, mode: str = "full",
@@ -93,23 +133,21 @@ def run(the_plan: Plan, x: np.ndarray, y: np.ndarray) -> np.ndarray:
     x = x.astype(work, copy=False)
     y = y.astype(work, copy=False)
     keep = needed_entries(the_plan.mode, x.shape[-1], y.shape[-1], the_plan.output_length)
-    if engine.nonfinite_safe:
-        return engine.run(the_plan, x, y, keep)
+    out = engine.run(the_plan, x, y, keep)  # (transform engines silence their NaN warnings)
+    if engine.nonfinite_safe or shaping.looks_finite(out, engine.smears_nonfinite):
+        return out
 
     def product(u: np.ndarray, v: np.ndarray) -> np.ndarray:
         return engine.run(the_plan, u, v, keep)
 
-    with np.errstate(invalid="ignore", over="ignore"):  # a NaN input is handled just below
-        out = product(x, y)
-    if not shaping.looks_finite(out, first_entries_only=engine.smears_nonfinite):
-        bad = shaping.nonfinite_masks(x, y)
-        if bad is not None:
-            x, y = shaping.zero_nonfinite(x), shaping.zero_nonfinite(y)
-        # finite inputs whose product overflows: inf - inf inside a transform would give NaN
-        # where numpy.convolve gives +-inf, so the product is formed on scaled operands
-        out = shaping.run_scaled(product, x, y)
-        if bad is not None:
-            out = shaping.mark_nonfinite(out, bad, x.shape[-1], y.shape[-1])
+    bad = shaping.nonfinite_masks(x, y)  # a NaN or inf input, or an overflow
+    if bad is not None:
+        x, y = shaping.zero_nonfinite(x), shaping.zero_nonfinite(y)
+    # finite inputs whose product overflows: inf - inf inside a transform would give NaN
+    # where numpy.convolve gives +-inf, so the product is formed on scaled operands
+    out = shaping.run_scaled(product, x, y)
+    if bad is not None:
+        out = shaping.mark_nonfinite(out, bad, x.shape[-1], y.shape[-1])
     return out
 
 

@@ -13,7 +13,7 @@ import math
 import numpy as np
 
 from ..numerics.bounds import convolution_error_bound, norm2_upper
-from ..numerics.budget import check_allocation, coefficient_bytes
+from ..numerics.budget import ALWAYS_GRANTED, check_allocation, coefficient_bytes
 from . import inputs
 from .choose import choose
 from .facts import integer_facts, normalise_integers
@@ -72,13 +72,14 @@ def _float_operand(x: np.ndarray, work: np.dtype, name: str) -> np.ndarray:
 TRANSFORM_ARRAYS = 3
 
 
-def check_budget(the_plan: Plan, kind: str, bits: int, length: int | None) -> None:
+def check_budget(the_plan: Plan, kind: str, bits: int, length: int | None) -> bool:
     """Refuse, before any allocation, a product whose result and work space exceed the memory
     budget (:mod:`polyconv.numerics.budget`): ``rows * length * bytes per coefficient`` for the
     result
     (``bits``: coefficient size of exact outputs) plus the transform arrays of the plan's
     engine (all rows at once for float engines, one row at a time for exact ones; limbs hold
-    one spectrum per limb)."""
+    one spectrum per limb).  Returns True when the request is below
+    :data:`~polyconv.numerics.budget.ALWAYS_GRANTED` (granted whatever the budget), else False."""
     rows = math.prod(the_plan.batch_shape) if the_plan.batch_shape else 1
     count = length if length is not None else the_plan.output_length
     result = rows * count * coefficient_bytes(kind if not the_plan.exact else "integer", bits)
@@ -88,6 +89,8 @@ def check_budget(the_plan: Plan, kind: str, bits: int, length: int | None) -> No
         if the_plan.engine == "limbs":
             arrays = 2 * (the_plan.settings.limbs_a + the_plan.settings.limbs_b)
         work = arrays * 16.0 * the_plan.transform_length * (1 if the_plan.exact else rows)
+    if result + work <= ALWAYS_GRANTED:  # granted whatever the budget: no message to build
+        return True
     n1, n2 = the_plan.lengths
     if length is not None and length > n1 + n2 - 1:
         what = f"length={length}"
@@ -96,6 +99,7 @@ def check_budget(the_plan: Plan, kind: str, bits: int, length: int | None) -> No
                 + (f" in a batch of {rows}" if rows > 1 else "")
                 + (f" with length={length}" if length is not None else ""))
     check_allocation(result + work, what)
+    return False
 
 
 def plan(a, b, *, mode: str = "full", method: str = "auto", modulus: int | None = None,

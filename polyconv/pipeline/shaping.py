@@ -6,6 +6,8 @@ the non-finite policy of the transform engines (see :func:`polyconv.convolve`).
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from .plan import Plan, mode_window
@@ -86,6 +88,8 @@ def looks_finite(out: np.ndarray, first_entries_only: bool) -> bool:
     false alarm (a finite sum that overflowed) only costs a careful look at the inputs.
     """
     if first_entries_only:
+        if out.ndim == 1 and out.dtype.kind == "f":
+            return math.isfinite(out[0])
         return bool(np.isfinite(out[..., 0]).all())
     return bool(np.isfinite(np.add.reduce(out, axis=None)))
 

@@ -8,9 +8,13 @@ themselves (best of several runs), so the chooser compares like with like:
   grid of 1-D sizes;
 * ``direct_batch``: ``t = c0 + m (c_step + c_elem B n)`` likewise on batched shapes;
 * ``fft``: the fixed cost ``c0`` from the smallest transforms, then ``rate_by_log2n[k]`` =
-  ``(t - c0) / (N log2 N)`` for one real 1-D product at ``N = 2**k`` on one thread;
-* ``threads``: the smallest ``N`` at which two threads beat one, and the speed-ups at large ``N``;
-* ``overlap_add``: ``c0`` and ``c_pt`` fitted to what overlap-add costs beyond its transforms.
+  ``(t - c0) / (N log2 N)`` for one real 1-D product at ``N = 2**k`` on one thread by separate
+  transform calls, and ``fused_overhead`` / ``fused_rate_by_log2n`` likewise by the library's
+  fused circular product where it has one;
+* ``threads``: the smallest ``N`` at which two threads beat one, and the speed-ups at large ``N``
+  (against separate transform calls on one thread: the speed-up scales ``rate_by_log2n``);
+* ``overlap_add``: ``c0`` and ``c_pt`` fitted to what overlap-add costs beyond its transforms
+  (and ``fused_*`` for its fused variant).
 """
 
 from __future__ import annotations
@@ -26,6 +30,7 @@ from ..engines._common import LARGE_ARRAY, fft_rate
 from ..engines.direct import convolve_direct
 from ..engines.fft import convolve_fft
 from ..engines.overlap_add import convolve_overlap_add
+from ..numerics import transforms as tf
 from .calibrate_exact import measure_exact
 from .costs import default_costs
 from .threads import configured_threads
@@ -82,18 +87,7 @@ def measure(quick: bool = False, progress: Callable[[str], None] | None = None) 
 
     say("fft engine")
     top = 18 if quick else 22
-    rates, fixed = {}, None
-    for k in range(4, top + 1):
-        n_fft = 2**k
-        n = n_fft // 2
-        x, y = rng.standard_normal(n), rng.standard_normal(n)
-        t = best_time(lambda x=x, y=y, n_fft=n_fft: convolve_fft(x, y, n_fft, n_fft - 1, 1),
-                      budget)
-        if fixed is None:
-            fixed = 0.8 * t
-        rates[str(k)] = max(t - fixed, 1e-12) / (n_fft * k)
-    table["fft"] = {"overhead": fixed, "rate_by_log2n": rates}
-
+    measure_fft(table, rng, budget, top)
     say("threads")
     threads = configured_threads()
     thread_table = {"min_points": 2**62, "speedup_1d": 1.0, "speedup_batch": 1.0}
@@ -101,7 +95,8 @@ def measure(quick: bool = False, progress: Callable[[str], None] | None = None) 
         for k in range(12, top + 1):
             n_fft = 2**k
             x, y = rng.standard_normal(n_fft // 2), rng.standard_normal(n_fft // 2)
-            one = best_time(lambda x=x, y=y, n=n_fft: convolve_fft(x, y, n, n - 1, 1), budget)
+            one = best_time(lambda x=x, y=y, n=n_fft: convolve_fft(x, y, n, n - 1, 1,
+                                                                    fused=False), budget)
             two = best_time(lambda x=x, y=y, n=n_fft: convolve_fft(x, y, n, n - 1, threads), budget)
             if two < 0.95 * one:
                 thread_table["min_points"] = min(thread_table["min_points"], n_fft)
@@ -114,7 +109,38 @@ def measure(quick: bool = False, progress: Callable[[str], None] | None = None) 
     table["threads"] = thread_table
 
     say("overlap-add engine")
-    rows, times = [], []
+    measure_overlap_add(table, rng, budget, quick)
+    table["exact"] = measure_exact(table, quick, best_time, fit_relative, say)
+    say("done")
+    return table
+
+
+def measure_fft(table: dict, rng: np.random.Generator, budget: float, top: int) -> None:
+    """``table["fft"]``: the fixed cost and ``rate_by_log2n`` for ``N = 2^4 .. 2^top`` (one
+    1-D real product of two ``N/2``-point operands, one thread, separate transform calls), and
+    where the library has the fused circular product, ``fused_overhead`` and
+    ``fused_rate_by_log2n`` likewise for it (each size timed both ways back to back)."""
+    variants = (False, True) if tf.FUSED else (False,)
+    rates = {v: {} for v in variants}
+    fixed: dict = {}
+    for k in range(4, top + 1):
+        n_fft = 2**k
+        n = n_fft // 2
+        x, y = rng.standard_normal(n), rng.standard_normal(n)
+        for v in variants:
+            t = best_time(lambda x=x, y=y, n_fft=n_fft, v=v: convolve_fft(x, y, n_fft, n_fft - 1,
+                                                                          1, fused=v), budget)
+            fixed.setdefault(v, 0.8 * t)
+            rates[v][str(k)] = max(t - fixed[v], 1e-12) / (n_fft * k)
+    table["fft"] = {"overhead": fixed[False], "rate_by_log2n": rates[False]}
+    if tf.FUSED:
+        table["fft"].update(fused_overhead=fixed[True], fused_rate_by_log2n=rates[True])
+
+
+def measure_overlap_add(table: dict, rng: np.random.Generator, budget: float, quick: bool) -> None:
+    """``table["overlap_add"]``: what overlap-add costs beyond its transforms (read from
+    ``table["fft"]``, so measure that first); with the fused circular product, the same
+    constants for it as ``fused_overhead``, ``fused_per_point``, ``fused_per_sample_large``."""
     configs = [(2**12, 16, 128), (2**16, 16, 128), (2**16, 64, 512), (2**14, 128, 1024),
                (2**18, 128, 1024), (2**16, 256, 2048), (2**16, 512, 4096), (2**18, 64, 8192),
                (2**16, 1024, 16384), (2**19, 64, 1024)]
@@ -122,24 +148,30 @@ def measure(quick: bool = False, progress: Callable[[str], None] | None = None) 
         configs += [(2**20, 32, 256), (2**20, 256, 4096), (2**20, 2048, 16384),
                     (2**22, 16, 1024), (2**22, 32, 512), (2**22, 128, 1024), (2**22, 512, 4096),
                     (2**22, 2048, 16384)]
-    large = []
+    variants = (False, True) if tf.FUSED else (False,)
+    fits: dict = {v: ([], [], []) for v in variants}  # rows, times, large; sizes timed both ways
     for n_long, m, n_fft in configs:
         x, y = rng.standard_normal(n_long), rng.standard_normal(m)
-        t = best_time(lambda x=x, y=y, n=n_fft: convolve_overlap_add(x, y, n, 1), budget)
         blocks = -(-n_long // (n_fft - m + 1))
-        transforms = fft_rate(table, n_fft) * n_fft * math.log2(n_fft) * (2 * blocks
-                                                                                   + 1) / 3
-        rest = max(t - transforms, 0.05 * t)
-        if n_long >= LARGE_ARRAY:
-            large.append((n_long, blocks * n_fft, rest))
-            continue
-        times.append(rest)
-        rows.append([1.0, blocks * n_fft])
-    c0, cpt = fit_relative(rows, times)
-    # large arrays: what the in-cache model leaves unexplained, per sample (memory traffic)
-    per_large = [max(r - c0 - cpt * points, 0.0) / n for n, points, r in large]
-    table["overlap_add"] = {"overhead": c0, "per_point": cpt,
-                            "per_sample_large": float(np.median(per_large)) if per_large else 0.0}
-    table["exact"] = measure_exact(table, quick, best_time, fit_relative, say)
-    say("done")
-    return table
+        for v in variants:
+            t = best_time(lambda x=x, y=y, n=n_fft, v=v: convolve_overlap_add(
+                x, y, n, 1, fused=v), budget)
+            transforms = (fft_rate(table, n_fft, v) * n_fft * math.log2(n_fft)
+                          * (2 * blocks + 1) / 3)
+            rest = max(t - transforms, 0.05 * t)
+            rows, times, large = fits[v]
+            if n_long >= LARGE_ARRAY:
+                large.append((n_long, blocks * n_fft, rest))
+                continue
+            times.append(rest)
+            rows.append([1.0, blocks * n_fft])
+    section = {}
+    for v, (rows, times, large) in fits.items():
+        c0, cpt = fit_relative(rows, times)
+        # large arrays: what the in-cache model leaves unexplained, per sample (memory traffic)
+        per_large = [max(r - c0 - cpt * points, 0.0) / n for n, points, r in large]
+        pre = "fused_" if v else ""
+        section.update({pre + "overhead": c0, pre + "per_point": cpt,
+                        pre + "per_sample_large": float(np.median(per_large)) if per_large
+                        else 0.0})
+    table["overlap_add"] = section

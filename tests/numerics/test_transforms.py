@@ -128,3 +128,22 @@ def test_scipy_fallback_when_ducc0_is_blocked():
     assert got["lib"] in ("pocketfft-scipy", "scipy.fft")
     assert np.allclose(got["r"], np.abs(np.fft.rfft(np.arange(10.0))))  # numpy.fft reference
     assert got["note"].startswith(got["lib"])
+
+
+@pytest.mark.parametrize("n", [8, 96, 1024, 3 * 2**10])
+def test_circular_product_is_the_circular_convolution(n):
+    if not tf.FUSED:
+        pytest.skip("the running FFT library has no fused circular product")
+    rng = np.random.default_rng(n)
+    rows = rng.standard_normal((3, n))
+    kernel = rng.standard_normal(n)
+    # reference: the circular convolution theorem with numpy.fft
+    want = np.fft.irfft(np.fft.rfft(rows, axis=-1) * np.fft.rfft(kernel), n, axis=-1)
+    out = np.empty_like(rows)
+    got = tf.circular_product(rows, kernel, 1, out)
+    assert got is out and np.allclose(got, want, atol=1e-12 * n)
+    assert np.allclose(tf.circular_product(rows.copy(), kernel, 1), want, atol=1e-12 * n)
+    z = rows + 1j * rng.standard_normal((3, n))
+    want_z = np.fft.ifft(np.fft.fft(z, axis=-1) * np.fft.fft(kernel), axis=-1)
+    got_z = tf.circular_product(z.copy(), kernel.astype(complex), 1)
+    assert np.allclose(got_z, want_z, atol=1e-12 * n)
