@@ -1,6 +1,7 @@
 """Compiled NTT engine vs python-flint and vs the numpy engines; JIT costs reported apart.
 
-Run: python bench/compiled_bench.py [--quick | --division | --cold | --small]  (markdown;
+Run: python bench/compiled_bench.py [--quick | --division | --cold | --small | --algebra]
+(markdown;
 ~4 minutes)
 
 Ratios are polyconv / python-flint in the same process, best of several rounds (below 1:
@@ -90,6 +91,10 @@ def main() -> None:
     if "--division" in sys.argv:  # the division table alone
         division_table(np.random.default_rng(5))
         return
+    if "--algebra" in sys.argv:  # power and inverse_series over Z at lengths 16-256 alone
+        jit.kernels()
+        algebra_table(np.random.default_rng(9))
+        return
     if "--small" in sys.argv:  # batch axis, tiny products, products over Z alone
         jit.kernels()
         small_tables(np.random.default_rng(7))
@@ -153,6 +158,57 @@ def division_table(rng) -> None:
         bits = max(abs(int(v)) for v in q).bit_length()
         print(f"| {na} / {nd} | {bits} | {t_pc * 1e3:.1f} | {t_fl * 1e3:.1f} | "
               f"{t_pc / t_fl:.2f} |", flush=True)
+
+
+def algebra_table(rng) -> None:
+    """power and inverse_series over Z at lengths 16-256 (issue 12 goal <= 1.5x), end to end
+    from int64 arrays to numpy arrays (as bench/algebra_bench.py), against flint's ``**`` and
+    ``1 / fmpz_series`` from lists."""
+    import flint
+
+    print("\n| operation | length | bits | polyconv us | flint us | ratio |")
+    print("|---|---|---|---|---|---|")
+    cases = [("power a^4", n, 16) for n in (16, 64, 256)]
+    cases += [("power a^50", 16, 64)]
+    cases += [("inverse_series", n, 16) for n in (16, 64, 256)]
+    cases += [("inverse_series", n, 64) for n in (16, 64, 256)]
+    for op, n, bits in cases:
+        top = 2**(bits - 1)
+        a = rng.integers(-top, top, n)
+        if op.startswith("power"):
+            k = int(op.split("^")[1])
+
+            def ours(a=a, k=k):
+                return polyconv.power(a, k)
+
+            def theirs(a=a, k=k):
+                return _to_numpy((fmpz_poly(a.tolist()) ** k).coeffs())
+        else:
+            a[0] = 1
+
+            def ours(a=a, n=n):
+                return polyconv.inverse_series(a, n)
+
+            def theirs(a=a, n=n):
+                cap = flint.ctx.cap
+                flint.ctx.cap = max(cap, n)
+                try:
+                    return _to_numpy((1 / flint.fmpz_series(a.tolist(), prec=n)).coeffs())
+                finally:
+                    flint.ctx.cap = cap
+        assert [int(v) for v in ours()] == [int(v) for v in theirs()], (op, n, bits)
+        t_pc, t_fl = best(ours, budget=0.5), best(theirs, budget=0.5)
+        print(f"| {op} | {n} | {bits} | {t_pc * 1e6:.1f} | {t_fl * 1e6:.1f} | "
+              f"{t_pc / t_fl:.2f} |", flush=True)
+
+
+def _to_numpy(coeffs) -> np.ndarray:
+    """flint coefficients as numpy does it in algebra_bench: int64 when they fit, else ints."""
+    values = [int(c) for c in coeffs]
+    try:
+        return np.array(values, dtype=np.int64)
+    except OverflowError:
+        return np.array(values, dtype=object)
 
 
 def batched_tables(rng) -> None:

@@ -15,6 +15,7 @@ import numpy as np
 from .pipeline import execute, nd, prepare
 from .pipeline.nd_plan import NdPlan
 from .pipeline.plan import Plan
+from .pipeline.small import tiny_product
 
 
 def plan(a, b, *, mode: str = "full", method: str = "auto", modulus: int | None = None,
@@ -118,9 +119,13 @@ def convolve(a, b, *, mode: str = "full", method: str = "auto", modulus: int | N
     >>> polyconv.convolve([1.0, 2.0, 3.0], [0.0, 1.0, 0.5])
     array([0. , 1. , 2.5, 4. , 1.5])
     """
-    if type(a) is np.ndarray and type(b) is np.ndarray and axes is None:  # the common case
-        return execute.convolve(a, b, mode=mode, method=method, modulus=modulus, length=length,
-                                axis=axis)
+    if axes is None:
+        if type(a) is np.ndarray and type(b) is np.ndarray:  # the common case
+            return execute.convolve(a, b, mode=mode, method=method, modulus=modulus,
+                                    length=length, axis=axis)
+        out = tiny_product(a, b, mode, method, modulus, length, axis)  # tiny plain lists
+        if out is not None:  # (a dask array is never one)
+            return out
     if _is_dask_array(a) or _is_dask_array(b):
         if axes is not None:
             raise ValueError("axes= is not supported for dask arrays; compute them first")

@@ -22,6 +22,7 @@ from ..numerics.limits import INT64_LIMIT as _INT64_LIMIT
 from ..numerics.limits import max_abs
 from ..pipeline.execute import convolve, convolve_integer_rows
 from ..tuning.threads import THREADS
+from . import small_products
 
 # ----------------------------------------------------------------------------- product counting
 
@@ -169,6 +170,23 @@ class _Ring:
 class _Integers(_Ring):
     """Exact integers: int64 while a bound proves no overflow, Python ints (object) beyond."""
 
+    def mul(self, x: np.ndarray, y: np.ndarray, *, length: int | None = None,
+            mode: str = "full") -> np.ndarray:
+        """Short products beyond int64 by :mod:`polyconv.algebra.small_products` (no planning);
+        the rest through :func:`_mul`."""
+        n1, n2 = x.shape[0], y.shape[0]
+        if (mode == "full" or (mode == "valid" and length is None)) and (
+                x.dtype == object or y.dtype == object or max(n1, n2) <= 512):
+            bound = min(n1, n2) * max_abs(x) * max_abs(y)
+            if bound >= _INT64_LIMIT:
+                keep = length if mode == "full" else max(n1, n2)
+                out = small_products.product(x, y, bound.bit_length(), keep)
+                if out is not None:
+                    if _product_log is not None:
+                        _product_log.append((n1, n2, mode, length))
+                    return out if mode == "full" else out[min(n1, n2) - 1:]
+        return _mul(x, y, None, length=length, mode=mode)
+
     def convert(self, x: np.ndarray) -> np.ndarray:
         if x.dtype == object:
             return np.array([int(v) for v in x], dtype=object)
@@ -217,11 +235,18 @@ class _Integers(_Ring):
     def mul_work(self, x: _Wide, y: _Wide, *, length: int | None = None) -> _Wide:
         """Products that fit int64 through :func:`polyconv.convolve` (its certified float
         engines); wider ones by Kronecker substitution on the byte rows."""
-        if min(x.shape[0], y.shape[0]) << (x.bits + y.bits) < _INT64_LIMIT:
+        terms = min(x.shape[0], y.shape[0])
+        if terms << (x.bits + y.bits) < _INT64_LIMIT:
             return _Wide.of_values(_mul(x.values(), y.values(), None, length=length,
                                         magnitudes=(1 << x.bits, 1 << y.bits)))
         if _product_log is not None:
             _product_log.append((x.shape[0], y.shape[0], "full", length))
+        if x.rows is None and y.rows is None:  # short ones: one GMP product, no planning
+            u = x.values()
+            out = small_products.product(u, u if y is x else y.values(),
+                                         x.bits + y.bits + terms.bit_length(), length)
+            if out is not None:
+                return _Wide(None, None, small_products.bits_of(out), out)
         rows = multiply_rows(x.as_rows(), y.as_rows(), length, bits=(x.bits, y.bits),
                              threads=THREADS)
         return _Wide(None, rows, _intpack.row_bits(rows))
@@ -235,6 +260,7 @@ class _Wide:
     int64: np.ndarray | None
     rows: np.ndarray | None
     bits: int
+    objects: np.ndarray | None = None  # Python ints of a short chain (small_products)
 
     @classmethod
     def of_values(cls, x: np.ndarray) -> _Wide:
@@ -246,14 +272,20 @@ class _Wide:
 
     @property
     def shape(self) -> tuple[int, ...]:
-        return self.int64.shape if self.int64 is not None else self.rows.shape
+        if self.int64 is not None:
+            return self.int64.shape
+        return self.rows.shape if self.rows is not None else self.objects.shape
 
     def values(self) -> np.ndarray:
-        return self.int64 if self.int64 is not None else _intpack.rows_to_values(self.rows)
+        if self.int64 is not None:
+            return self.int64
+        return _intpack.rows_to_values(self.rows) if self.rows is not None else self.objects
 
     def as_rows(self) -> np.ndarray:
         if self.rows is not None:
             return self.rows
+        if self.objects is not None:
+            return _intpack.values_to_rows(self.objects)
         octets = np.ascontiguousarray(self.int64).view(np.uint8).reshape(-1, 8)
         return octets[:, : self.bits // 8 + 1]
 

@@ -11,81 +11,125 @@ and the same dtype rule (int64 when ``min(n1, n2) R(max|a|) R(max|b|) < 2^63`` w
 2^bits(v) - 1`` as :func:`polyconv.pipeline.facts.integer_facts` rounds magnitudes, else Python
 ints; with a modulus, int64 residues when ``m <= 2^63``).
 
-The arithmetic is schoolbook summation (``c_k = sum_i a_i b_{k-i}``), in Python ints for the
-tiniest products and in ``numpy.convolve`` on int64 when no partial sum can leave int64
-(``min(n1, n2) max|a| max|b| < 2^63``; common practice, no source), which is what the
-direct-exact engine does at these sizes; wider products of int64 operands go to
-:mod:`polyconv.engines.ntt_compiled` (NTT primes in one kernel call, Garner's CRT) when its
-kernels are already loaded, else to the pipeline.
+The arithmetic is schoolbook summation (``c_k = sum_i a_i b_{k-i}``): ``numpy.convolve`` on
+int64 when no partial sum can leave int64 (``min(n1, n2) max|a| max|b| < 2^63``; common
+practice, no source), which is what the direct-exact engine does at these sizes (int64 arrays
+go in as they are; lists of the tiniest products are summed in Python ints instead); wider
+products of int64 operands whose sums stay below ``2^127`` go to the compiled 128-bit schoolbook
+rows (two words per coefficient, then one Python int each, reduced modulo ``m`` if given), the
+rest to :mod:`polyconv.engines.ntt_compiled` (NTT primes in one kernel call, Garner's CRT), in
+both cases only when the kernels are already loaded, else to Python sums or the pipeline.
+Every attribute look-up costs on this path (a 3 x 2 product is ~2 us in all): the checks are
+inlined, and the kernel module is fetched once.
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-from ..engines import jit_state, ntt_batch, ntt_compiled
+from ..engines import jit_state, ntt_compiled
 from ..numerics.limits import INT64_LIMIT
 
 #: Products of at most this many multiply-adds take the short path (schoolbook costs ~1 ns per
 #: multiply-add in numpy.convolve: 2^12 of them stay within the 3-6 us of the path itself).
 TINY_WORK = 2**12
 #: Below this many multiply-adds Python-int summation beats building arrays for numpy.convolve
-#: (measured: 3 x 2 0.8 us against 2.4 us; 8 x 8 4 us against 3 us).
+#: from lists (measured: 3 x 2 0.8 us against 2.4 us; 8 x 8 4 us against 3 us), and beats the
+#: 128-bit compiled rows for sums beyond int64 (the call and two words per output cost ~1.5 us).
 PYTHON_WORK = 24
+#: The 128-bit schoolbook rows take exact products of at most this many multiply-adds (beyond,
+#: the NTT primes; measured per row in polyconv.engines.ntt_batch: 512 x 512 327 / 371 us);
+#: modular ones up to ``4 PYTHON_WORK`` (measured, mod 998244353 at 32 x 32: 16 us against 11 us
+#: for the NTT primes, whose residues need no Python-int reduction).
+WORK_128 = 2**12
 
 #: int64 arrays up to this length are read as lists (measured: 3 entries 0.5 us against 2.4 us
 #: for ``x.min()`` and ``x.max()``; even at about 32).
 SHORT_ARRAY = 32
 
 _INT64 = np.dtype(np.int64)
+_ARRAY = np.ndarray
+_LIMIT_128 = 2**127
+_batch = None  # the batched kernel module, once loaded in this process
+
+
+def _kernels():
+    """The module of ``rows_schoolbook_128`` when the kernels are ready here, else None."""
+    global _batch
+    if _batch is None and jit_state.state() == "compiled":
+        _batch = jit_state.kernels("_kernels_batch")
+    return _batch
 
 
 def _operand(x) -> tuple | None:
-    """``(x, min, max)`` for a list of Python ints or a non-empty 1-D int64 array, else None."""
+    """``(x, values, min, max)`` for a list of Python ints or a non-empty 1-D int64 array
+    (``values``: the entries as a list, None for a long array), else None."""
     if type(x) is list:
         for v in x:
             if type(v) is not int:
                 return None
-        return (x, min(x), max(x)) if x else None
-    if type(x) is np.ndarray and x.ndim == 1 and x.dtype == _INT64 and x.shape[0]:
+        return (x, x, min(x), max(x)) if x else None
+    if type(x) is _ARRAY and x.ndim == 1 and x.dtype == _INT64 and x.shape[0]:
         if x.shape[0] <= SHORT_ARRAY:  # a list and Python's min/max beat two numpy reductions
             values = x.tolist()
-            return values, min(values), max(values)
-        return x, int(x.min()), int(x.max())
+            return x, values, min(values), max(values)
+        return x, None, int(x.min()), int(x.max())
     return None
 
 
 def _length(x) -> int:
-    """Entries of a list or of a 1-D array (anything else: 0, decided by :func:`_operand`)."""
-    if type(x) is list:
+    """Entries of a list or of a 1-D array (anything else: 0, declined)."""
+    t = type(x)
+    if t is list:
         return len(x)
-    return x.shape[0] if type(x) is np.ndarray and x.ndim == 1 else 0
+    return x.shape[0] if t is _ARRAY and x.ndim == 1 else 0
 
 
-def _reduced(x, m: int):
-    """Residues in ``[0, m)`` of a list or an int64 array (``m < 2^63`` for arrays)."""
+def _reduced(x, values, m: int) -> tuple:
+    """``(x, values)`` as residues in ``[0, m)`` (an array stays one when ``m < 2^63``)."""
     if type(x) is list:
-        return [v % m for v in x]
-    return x % m if m < INT64_LIMIT else [v % m for v in x.tolist()]
+        x = [v % m for v in x]
+        return x, x
+    if m < INT64_LIMIT:
+        x = x % m
+        return x, None if values is None else x.tolist()
+    x = [v % m for v in x.tolist()]
+    return x, x
 
 
-def _top(x) -> int:
-    return max(x) if type(x) is list else int(x.max())
+def _top(x, values) -> int:
+    return max(values) if values is not None else int(x.max())
 
 
-def _compiled(x, y, m: int | None, bound: int, top: int) -> np.ndarray | None:
-    """The product by one batched compiled call (Python ints out; int64 residues modulo
-    ``m < 2^62``) when the kernels are ready in this process and the operands are int64; None
-    otherwise (nothing here waits for a compiler)."""
-    if top >= INT64_LIMIT or jit_state.state() != "compiled" or (
-            m is not None and m >= ntt_compiled.KERNEL_MODULUS_LIMIT):
-        return None
-    x = np.asarray(x, dtype=np.int64)
-    y = np.asarray(y, dtype=np.int64)
+def _rows(x) -> np.ndarray:
+    """``x`` as a C-contiguous ``(1, n)`` int64 array."""
+    if type(x) is list:
+        return np.array([x], dtype=_INT64)
+    return (x if x.flags.c_contiguous else x.copy()).reshape(1, -1)
+
+
+def _wide_rows(x, y, m: int | None, count: int) -> np.ndarray:
+    """The product of int64 operands whose sums stay below ``2^127`` by the 128-bit compiled
+    rows: Python ints (``high 2^64 + low``), or their residues modulo ``m``."""
+    high = np.empty((1, count), dtype=np.uint64)
+    low = np.empty((1, count), dtype=np.uint64)
+    _batch.rows_schoolbook_128(_rows(x), _rows(y), high, low)
+    words = zip(high.view(np.int64)[0].tolist(), low[0].tolist(), strict=True)
+    if m is None:
+        out = np.empty(count, dtype=object)
+        out[:] = [(h << 64) + v for h, v in words]
+        return out
+    values = [((h << 64) + v) % m for h, v in words]
+    return np.array(values, dtype=_INT64 if m <= INT64_LIMIT else object)
+
+
+def _compiled(x, y, m: int | None, bound: int) -> np.ndarray:
+    """The product by :mod:`polyconv.engines.ntt_compiled` (Python ints out; int64 residues
+    modulo ``m < 2^62``); int64 operands, kernels loaded."""
+    x = np.asarray(x, dtype=_INT64)
+    y = np.asarray(y, dtype=_INT64)
     if m is not None:
         return ntt_compiled.convolve_mod(x, y, m)
-    if bound < 2**127:  # 128-bit schoolbook sums, two words per Python int
-        return ntt_batch.multiply_rows_exact(x, y, bound, as_int64=False)[0]
     return ntt_compiled.convolve_exact(x, y, bound, as_int64=False)
 
 
@@ -96,10 +140,12 @@ def _rounded(v: int) -> int:
 def tiny_product(a, b, mode: str, method: str, modulus, length, axis) -> np.ndarray | None:
     """The product :func:`polyconv.pipeline.execute.convolve` would return, for tiny plain
     integer operands; None when the short path does not apply (the caller then plans)."""
-    if (method != "auto" or mode != "full" or length is not None or axis not in (-1, 0)
+    if (method != "auto" or mode != "full" or length is not None or (axis != -1 and axis != 0)
             or (modulus is not None and (type(modulus) is not int or modulus < 2))):
         return None
-    if _length(a) * _length(b) > TINY_WORK:  # before any pass over the operands
+    n1 = _length(a)
+    n2 = _length(b)
+    if n1 * n2 > TINY_WORK or not n1 or not n2:  # before any pass over the operands
         return None
     xa = _operand(a)
     if xa is None:
@@ -107,26 +153,28 @@ def tiny_product(a, b, mode: str, method: str, modulus, length, axis) -> np.ndar
     yb = _operand(b)
     if yb is None:
         return None
-    (x, lo_x, hi_x), (y, lo_y, hi_y) = xa, yb
-    n1, n2 = len(x), len(y)
-    if n1 * n2 > TINY_WORK:
-        return None
+    x, vx, lo_x, hi_x = xa
+    y, vy, lo_y, hi_y = yb
     m = modulus
     if m is not None:
         if lo_x < 0 or hi_x >= m:
-            x = _reduced(x, m)
-            hi_x = _top(x)
+            x, vx = _reduced(x, vx, m)
+            lo_x, hi_x = 0, _top(x, vx)
         if lo_y < 0 or hi_y >= m:
-            y = _reduced(y, m)
-            hi_y = _top(y)
+            y, vy = _reduced(y, vy, m)
+            lo_y, hi_y = 0, _top(y, vy)
         max_x, max_y = hi_x, hi_y
     else:
-        max_x, max_y = max(hi_x, -lo_x), max(hi_y, -lo_y)
-    terms = min(n1, n2)
-    if (terms * max_x * max_y < INT64_LIMIT and max(max_x, max_y) < INT64_LIMIT
-            and n1 * n2 > PYTHON_WORK):  # (an all-zero side keeps the product small, but the
-        # other one must still be an int64)
-        out = np.convolve(np.asarray(x, dtype=np.int64), np.asarray(y, dtype=np.int64))
+        max_x = hi_x if hi_x >= -lo_x else -lo_x
+        max_y = hi_y if hi_y >= -lo_y else -lo_y
+    terms = n1 if n1 < n2 else n2
+    work = n1 * n2
+    bound = terms * max_x * max_y
+    if bound < INT64_LIMIT and max_x < INT64_LIMIT and max_y < INT64_LIMIT and (
+            work > PYTHON_WORK or (type(x) is _ARRAY and type(y) is _ARRAY)):
+        # (an all-zero side keeps the product small, but the other one must be an int64)
+        out = np.convolve(x if type(x) is _ARRAY else np.array(x, dtype=_INT64),
+                          y if type(y) is _ARRAY else np.array(y, dtype=_INT64))
         if m is not None:
             if m < INT64_LIMIT:
                 out %= m
@@ -135,22 +183,29 @@ def tiny_product(a, b, mode: str, method: str, modulus, length, axis) -> np.ndar
         elif terms * _rounded(max_x) * _rounded(max_y) >= INT64_LIMIT:
             out = out.astype(object)
         return out
-    if n1 * n2 > 4 * PYTHON_WORK:  # wide and not tiny: the compiled rows, if ready
-        return _compiled(x, y, m, terms * max_x * max_y, max(-lo_x, hi_x, -lo_y, hi_y))
-    if type(x) is not list:
-        x = x.tolist()
-    if type(y) is not list:
-        y = y.tolist()
+    if work > PYTHON_WORK:
+        ready = (-INT64_LIMIT <= min(lo_x, lo_y) and max(hi_x, hi_y) < INT64_LIMIT
+                 and (_batch is not None or _kernels() is not None))  # int64, kernels loaded
+        if ready and bound < _LIMIT_128 and work <= (WORK_128 if m is None else 4 * PYTHON_WORK):
+            return _wide_rows(x, y, m, n1 + n2 - 1)
+        if work > 4 * PYTHON_WORK:  # wide and not tiny: the compiled primes, else planning
+            if ready and (m is None or m < ntt_compiled.KERNEL_MODULUS_LIMIT):
+                return _compiled(x, y, m, bound)
+            return None
+    if vx is None:
+        vx = x.tolist()
+    if vy is None:
+        vy = y.tolist()
     out = [0] * (n1 + n2 - 1)
-    for i, u in enumerate(x):
+    for i, u in enumerate(vx):
         if u:
-            for j, v in enumerate(y, i):
+            for j, v in enumerate(vy, i):
                 out[j] += u * v
     if m is not None:
         out = [v % m for v in out]
-        return np.array(out, dtype=np.int64 if m <= INT64_LIMIT else object)
+        return np.array(out, dtype=_INT64 if m <= INT64_LIMIT else object)
     if terms * _rounded(max_x) * _rounded(max_y) < INT64_LIMIT:
-        return np.array(out, dtype=np.int64)
+        return np.array(out, dtype=_INT64)
     result = np.empty(len(out), dtype=object)
     result[:] = out
     return result

@@ -71,3 +71,18 @@ def test_bound_proves_small_quotients():
     total = [x - y for x, y in zip(a, qb + [0] * (len(a) - len(qb)), strict=True)]
     assert total[len(b) - 1:] == [0] * (len(a) - len(b) + 1)
     assert total[:len(b) - 1] == [int(v) for v in r]
+
+
+@pytest.mark.parametrize("base", [8, 40, None])
+def test_halving_splits_equal_flint(monkeypatch, base):
+    # the exact halving with recurrence blocks of `base` terms (None: the default) on a quotient
+    # of 281 terms, longer than the default block: splits, carries and blocks all run
+    if base is not None:
+        monkeypatch.setattr(division, "_HALVING_BASE", base)
+    rng = np.random.default_rng(21)
+    a = _random(rng, 340, 36)
+    b = _random(rng, 59, 36) + [-1]
+    q, r = poly_divmod(np.array(a, dtype=object), np.array(b, dtype=object))
+    fq, fr = _flint_divmod(a, b)
+    assert _strip_zeros(q) == fq
+    assert _strip_zeros(r) == (fr or [0])

@@ -77,3 +77,31 @@ def test_bad_input_still_named():
     """Declined input reaches the pipeline's checks (the argument is named)."""
     with pytest.raises(ValueError, match="modulus"):
         convolve([1, 2], [3], modulus=1)
+
+
+WIDE_CASES = [  # (n1, n2, bits, modulus): sums beyond int64, below 2^127 (128-bit rows)
+    (8, 8, 62, None),
+    (5, 7, 63, None),
+    (16, 16, 59, None),
+    (8, 8, 61, 2**61 - 1),
+    (6, 9, 40, 998244353),
+    (8, 8, 62, 2**63 + 29),   # residues as Python ints
+]
+
+
+@pytest.mark.parametrize("n1,n2,bits,m", WIDE_CASES)
+def test_wide_rows_route_equals_flint(batch_kernels, n1, n2, bits, m):
+    """int64 operands whose sums need 64-127 bits (the compiled 128-bit rows once the kernels
+    are loaded): values against flint, dtype as the planned pipeline, strided arrays too."""
+    rng = np.random.default_rng(n1 * 100 + n2 + bits)
+    top = 2**(bits - 1)
+    for trial in range(5):
+        a = rng.integers(-top, top, 2 * n1)[::2]  # not contiguous
+        b = rng.integers(-top, top, n2)
+        if trial == 0:
+            a[:] = -top  # the most negative entries: the extreme two-word sums
+            b[:] = -top
+        out = convolve(a, b, modulus=m)
+        assert [int(v) for v in out] == _flint(a.tolist(), b.tolist(), m)
+        planned, _ = convolve_prepared(a, b, modulus=m)
+        assert out.dtype == planned.dtype

@@ -1,0 +1,71 @@
+"""Short exact products of the algebra (polyconv.algebra.small_products) against python-flint.
+
+Reference: python-flint's ``fmpz_poly`` product (truncated by slicing its coefficients).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from polyconv.algebra import small_products
+from polyconv.algebra.rings import _Integers
+
+flint = pytest.importorskip("flint")
+
+
+def _flint(x, y, count=None):
+    c = [int(v) for v in (flint.fmpz_poly([int(v) for v in x])
+                          * flint.fmpz_poly([int(v) for v in y])).coeffs()]
+    c += [0] * (len(x) + len(y) - 1 - len(c))
+    return c if count is None else c[:count]
+
+
+def _bits(x, y):
+    """The bound product_values asks for: above every operand and product coefficient."""
+    top_x, top_y = max(map(abs, x)), max(map(abs, y))
+    return max(min(len(x), len(y)) * top_x * top_y, top_x, top_y).bit_length()
+
+
+@pytest.mark.parametrize("n1,n2,bits", [(1, 1, 70), (3, 2, 100), (16, 31, 300), (64, 64, 900),
+                                        (200, 7, 65)])
+def test_product_values_equals_flint(n1, n2, bits):
+    rng = np.random.default_rng(n1 + 7 * n2 + bits)
+    for trial in range(4):
+        x = [int(v) << (bits - 40) for v in rng.integers(-2**39, 2**39, n1)]
+        y = [int(v) << (bits - 40) for v in rng.integers(-2**39, 2**39, n2)]
+        if trial == 0:  # extreme signs: every slot at the edge of its range
+            x = [-(2**bits - 1)] * n1
+            y = [2**bits - 1] * n2
+        if trial == 1:
+            x[0] = 0
+            y[-1] = -y[-1] or 1
+        bound = _bits(x, y)
+        assert small_products.product_values(x, y, bound) == _flint(x, y)
+        count = max(1, (n1 + n2) // 3)
+        assert small_products.product_values(x, y, bound, count) == _flint(x, y, count)
+        assert small_products.product_values(x, x, _bits(x, x)) == _flint(x, x)  # square
+
+
+def test_product_routes_equal_flint(batch_kernels):
+    """int64 operands (128-bit rows once the kernels are loaded), object operands (one GMP
+    product) and the exact ring's mul in full, truncated and valid modes."""
+    rng = np.random.default_rng(5)
+    ring = _Integers()
+    for n1, n2, top in ((12, 9, 2**62), (40, 40, 2**50), (30, 5, 2**200)):
+        big = top >= 2**63
+        x = [int(v) * (top >> 30) for v in rng.integers(-2**30, 2**30, n1)]
+        y = [int(v) * (top >> 30) for v in rng.integers(-2**30, 2**30, n2)]
+        ax = np.array(x, dtype=object if big else np.int64)
+        ay = np.array(y, dtype=object if big else np.int64)
+        out = small_products.product(ax, ay, _bits(x, y))
+        assert out is not None and out.tolist() == _flint(x, y)
+        assert ring.mul(ax, ay, length=7).tolist() == _flint(x, y, 7)
+        full = _flint(x, y)
+        valid = full[min(n1, n2) - 1: max(n1, n2)]
+        assert [int(v) for v in ring.mul(ax, ay, mode="valid")] == valid
+
+
+def test_long_products_are_declined():
+    x = np.array([3 << 2000] * 200, dtype=object)
+    assert small_products.product(x, x, 4020) is None
