@@ -27,7 +27,7 @@ from functools import lru_cache
 import numpy as np
 
 from ..numerics.limits import INT64_LIMIT, magnitude_fits_int64, residues_fit_int64
-from . import _intpack, jit_state
+from . import _intpack, _pyints, jit_state
 from ._common import powers_mod
 
 #: NTT primes ``p = c 2^k + 1`` between ``2^29`` and ``2^30`` (so ``4p < 2^32``: lazy butterflies
@@ -269,6 +269,13 @@ def recombine(res: np.ndarray, primes: tuple[int, ...], as_int64: bool) -> np.nd
         k.garner_int64(res, arr, inv, invq, out)
         return out
     total = math.prod(primes)
+    streams = _pyints.ready()
+    if streams is not None:  # Python ints straight from a marshal stream (fastest measured)
+        words = -(-total.bit_length() // 32)
+        modulus_words = np.frombuffer(total.to_bytes(4 * words, "little"), dtype=np.uint32).copy()
+        buf = _pyints.buffer(count, total.bit_length(), "Python ints from CRT residues")
+        used = streams.garner_stream(res, arr, inv, invq, modulus_words, buf)
+        return _pyints.objects(buf, used, count)
     words = total.bit_length() // 32 + 1  # room for the sign bit
     modulus_words = np.frombuffer(total.to_bytes(4 * words, "little"), dtype=np.uint32).copy()
     rows = np.empty((count, words), dtype=np.uint32)
