@@ -4,7 +4,7 @@ Building wide Python ints one ``int.from_bytes`` call per value costs 130-180 ns
 here on 16-24-byte rows); object-array shifts and ors of two words ~90 ns.  CPython's
 ``marshal.loads`` of a list builds them in its C loop from 15-bit digits in ~25 ns per 130-bit
 value (CPython's Python/marshal.c, ``r_PyLong``), so the kernels of
-:mod:`polyconv.engines._kernels_crt` (``garner_stream``, ``rows_stream``) write that stream and
+:mod:`polyconv.engines._kernels_stream` (``garner_stream``, ``rows_stream``) write that stream and
 this module reads it.  The stream format is CPython's and undocumented, so it is checked once per
 process against ``int.from_bytes`` on a few edge values; when the check fails, or the kernels are
 not loaded in this process (no compile is ever started for a conversion), the callers keep their
@@ -43,7 +43,7 @@ def objects(buf: np.ndarray, used: int, count: int) -> np.ndarray:
 
 
 def ready():
-    """The CRT kernel module when it is loaded in this process and its streams read back
+    """The stream kernel module when it is loaded in this process and its streams read back
     correctly (checked once), else None."""
     if jit_state.state() != "compiled":
         return None
@@ -52,7 +52,7 @@ def ready():
 
 @lru_cache(maxsize=1)
 def _checked():
-    kernels = jit_state.kernels("_kernels_crt")
+    kernels = jit_state.kernels("_kernels_stream")
     values = [0, 1, -1, 2**31 - 1, -(2**31) + 1, 2**31, -(2**31), 2**32, 2**45 - 1, 2**45,
               -(2**60) + 3, 2**63 - 1, -(2**63), 2**79 + 2**15, -(2**94) - 1]
     width = 13

@@ -1,0 +1,231 @@
+"""Compiled (numba) kernels writing Python ints as a ``marshal`` stream.
+
+Loaded with the kernel modules (:data:`polyconv.engines.jit_state.KERNEL_MODULES`); read by
+:mod:`polyconv.engines._pyints`.  The fastest route measured here from machine words to Python
+ints is CPython's own ``marshal.loads`` of a list: its C loop allocates each int from 15-bit
+digits (~25 ns per 130-bit value, against 130-180 ns for one ``int.from_bytes`` per row).  The
+stream is ``[`` and an int32 count, then per value ``i`` and an int32 (``|x| < 2^30`` here), or
+``l``, the signed int32 digit count and the little-endian 15-bit digits, the top one nonzero
+(CPython's Python/marshal.c, ``w_PyLong`` / ``r_PyLong``).
+
+Both kernels work a block of values at a time in loops over the block (which the compiler
+vectorises): 32-bit words of the values, their signs and magnitudes, the 15-bit digits; then one
+scalar pass writes the stream.
+
+* :func:`garner_stream`: Garner's algorithm (Knuth, TAOCP vol. 2, 3rd ed., section 4.3.2) from
+  residues, as :func:`polyconv.engines._kernels_crt.garner_words`, straight into the stream;
+* :func:`rows_stream`: little-endian byte rows (two's complement or not; Kronecker slots with
+  their borrows, :func:`polyconv.engines._intpack.unpack_signed`).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit, types
+
+from . import jit_state as _jit
+from ._kernels_arith import M32 as _M32
+from ._kernels_arith import twist as _twist
+
+CACHE = _jit.cache_enabled()
+
+#: Values per block (the block's words and digits stay in the first-level cache).
+BLOCK = 256
+
+_RO_ROWS = types.Array(types.uint8, 2, "C", readonly=True)
+
+
+@njit("int64(uint8[::1], int64, int64)", cache=CACHE, inline="always")
+def _put_int32(out, pos, v):
+    """Little-endian int32 ``v`` at ``out[pos:pos + 4]``; returns ``pos + 4``."""
+    u = np.uint64(v)
+    for s in range(4):
+        out[pos + s] = np.uint8((u >> np.uint64(8 * s)) & np.uint64(0xFF))
+    return pos + 4
+
+
+@njit("int64(uint8[::1], int64)", cache=CACHE, inline="always")
+def _start(out, count):
+    out[0] = 0x5B  # "[": a list of count items
+    return _put_int32(out, 1, count)
+
+
+@njit("void(uint64[:, ::1], int64, uint16[:, ::1])", cache=CACHE, inline="always")
+def _digits15(x, m, dg):
+    """``dg[d, c]``: bits ``[15 d, 15 d + 15)`` of the value with 32-bit words ``x[:, c]``
+    (``x`` has a zero row above the value's words)."""
+    for d in range(dg.shape[0]):
+        w = (15 * d) >> 5
+        off = np.uint64((15 * d) & 31)
+        lo = x[w]
+        hi = x[w + 1]
+        row = dg[d]
+        for c in range(m):
+            row[c] = np.uint16(((lo[c] | (hi[c] << np.uint64(32))) >> off) & np.uint64(0x7FFF))
+
+
+@njit("int64(uint16[:, ::1], uint8[::1], int64, uint8[::1], int64)", cache=CACHE,
+      inline="always")
+def _write(dg, negative, m, out, pos):
+    """Write the ``m`` values with digits ``dg[:, c]`` and signs ``negative[c]``; returns the
+    position after them."""
+    nd = dg.shape[0]
+    for c in range(m):
+        t = nd
+        while t > 0 and dg[t - 1, c] == 0:
+            t -= 1
+        neg = negative[c] != 0
+        if t <= 2:  # below 2^30: an int32 item
+            v = (np.int64(dg[0, c]) | (np.int64(dg[1, c]) << 15)) if t else np.int64(0)
+            out[pos] = 0x69
+            pos = _put_int32(out, pos + 1, -v if neg else v)
+        else:
+            out[pos] = 0x6C
+            pos = _put_int32(out, pos + 1, -t if neg else t)
+            for d in range(t):
+                v = dg[d, c]
+                out[pos] = np.uint8(v & np.uint16(0xFF))
+                out[pos + 1] = np.uint8(v >> np.uint16(8))
+                pos += 2
+    return pos
+
+
+@njit("void(int64[:, ::1], int64[::1], int64[:, ::1], int64[:, ::1], uint32[::1], int64, "
+      "int64, uint32[:, ::1])", cache=CACHE, inline="always")
+def _garner_digits(res, primes, inv, invq, pads, start, m, digits):
+    """Mixed-radix digits ``digits[i, c] < p_i`` of columns ``start..start+m``: ``t_i = (..((r_i
+    - t_0) p_0^-1 - t_1) p_1^-1 ..) mod p_i``; ``t + pad_i - t_j`` (``pad_i`` a multiple of
+    ``p_i`` above every digit ``< 2^30``) stays in ``[0, 2^32)`` for Shoup's product."""
+    for i in range(primes.shape[0]):
+        p = np.uint32(primes[i])
+        pad = pads[i]
+        row = digits[i]
+        for c in range(m):
+            row[c] = np.uint32(res[i, start + c])
+        for j in range(i):
+            w, wq, prev = np.uint32(inv[i, j]), np.uint32(invq[i, j]), digits[j]
+            for c in range(m):
+                row[c] = _twist(np.uint32(row[c] + pad - prev[c]), w, wq, p)
+        for c in range(m):
+            row[c] = min(row[c], np.uint32(row[c] - p))
+
+
+@njit("int64(int64[:, ::1], int64[::1], int64[:, ::1], int64[:, ::1], uint32[::1], uint8[::1])",
+      cache=CACHE)
+def garner_stream(res, primes, inv, invq, modulus_words, out):
+    """Signed CRT values of residue columns (``|c| < P/2``), written as a marshal list into
+    ``out``; returns the bytes used.
+
+    ``modulus_words`` holds ``P`` in exactly as many 32-bit words as it needs.  Per block: the
+    digits; the values ``x = t_0 + p_0 (t_1 + ...)`` by Horner's rule over 32-bit words; the sign
+    (``x > floor(P/2)``, decided by the digits against those of ``(P - 1)/2`` from the top); the
+    magnitude ``P - x`` where negative.
+    """
+    k = primes.shape[0]
+    count = res.shape[1]
+    words = modulus_words.shape[0]
+    digits = np.empty((k, BLOCK), dtype=np.uint32)
+    x = np.zeros((words + 1, BLOCK), dtype=np.uint64)
+    carry = np.empty(BLOCK, dtype=np.uint64)
+    negative = np.empty(BLOCK, dtype=np.uint8)
+    decided = np.empty(BLOCK, dtype=np.uint8)
+    dg = np.empty(((32 * words + 14) // 15, BLOCK), dtype=np.uint16)
+    half = np.empty(k, dtype=np.uint32)
+    pads = np.empty(k, dtype=np.uint32)
+    for i in range(k):
+        p = np.uint64(primes[i])
+        half[i] = np.uint32((p - np.uint64(1)) >> np.uint64(1))
+        pads[i] = np.uint32((np.uint64(1 << 30) + p - np.uint64(1)) // p * p)
+    pos = _start(out, count)
+    for start in range(0, count, BLOCK):
+        m = min(BLOCK, count - start)
+        _garner_digits(res, primes, inv, invq, pads, start, m, digits)
+        for w in range(words):
+            x[w, :m] = 0
+        for c in range(m):
+            x[0, c] = np.uint64(digits[k - 1, c])
+        for i in range(k - 2, -1, -1):
+            pi = np.uint64(primes[i])
+            for c in range(m):
+                carry[c] = np.uint64(digits[i, c])
+            for w in range(min(words, (30 * (k - i) + 31) // 32)):  # x < 2^(30 (k - i))
+                xw = x[w]
+                for c in range(m):
+                    t = xw[c] * pi + carry[c]
+                    xw[c] = t & _M32
+                    carry[c] = t >> np.uint64(32)
+        negative[:m] = 0
+        decided[:m] = 0
+        for i in range(k - 1, -1, -1):
+            row, h = digits[i], half[i]
+            for c in range(m):
+                above = np.uint8(1) if row[c] > h else np.uint8(0)
+                negative[c] |= above & (decided[c] ^ np.uint8(1))
+                decided[c] |= np.uint8(1) if row[c] != h else np.uint8(0)
+        carry[:m] = 0
+        for w in range(words):  # x <- P - x where negative
+            pw = np.uint64(modulus_words[w])
+            xw = x[w]
+            for c in range(m):
+                t = pw - xw[c] - carry[c]
+                carry[c] = t >> np.uint64(63)
+                xw[c] = (t & _M32) if negative[c] else xw[c]
+        _digits15(x, m, dg)
+        pos = _write(dg, negative, m, out, pos)
+    return pos
+
+
+@njit(types.int64(_RO_ROWS, types.boolean, types.boolean, types.uint8[::1]), cache=CACHE)
+def rows_stream(rows, signed, borrowed, out):
+    """The integers of little-endian byte rows written as a marshal list into ``out``; returns
+    the bytes used.
+
+    ``signed``: rows are two's complement.  ``borrowed``: row ``r`` stands for its signed value
+    plus the top bit of row ``r - 1`` (Kronecker slots).  Rows are read into 32-bit words with
+    one word of sign extension, so adding the borrow cannot overflow; negative values are
+    negated (``~x + 1``) to their magnitudes.
+    """
+    count, width = rows.shape
+    words = width // 4 + 1
+    x = np.zeros((words + 1, BLOCK), dtype=np.uint64)
+    carry = np.empty(BLOCK, dtype=np.uint64)
+    negative = np.empty(BLOCK, dtype=np.uint8)
+    dg = np.empty(((32 * words + 14) // 15, BLOCK), dtype=np.uint16)
+    full = width // 4
+    pos = _start(out, count)
+    for start in range(0, count, BLOCK):
+        m = min(BLOCK, count - start)
+        for c in range(m):
+            row = rows[start + c]
+            fill = np.uint64(0xFFFFFFFF) if signed and width and row[width - 1] >= 128 else \
+                np.uint64(0)
+            for w in range(full):
+                b = 4 * w
+                x[w, c] = (np.uint64(row[b]) | (np.uint64(row[b + 1]) << np.uint64(8))
+                           | (np.uint64(row[b + 2]) << np.uint64(16))
+                           | (np.uint64(row[b + 3]) << np.uint64(24)))
+            v = fill
+            for b in range(width - 1, 4 * full - 1, -1):
+                v = ((v << np.uint64(8)) | np.uint64(row[b])) & _M32
+            x[full, c] = v
+            carry[c] = 1 if borrowed and start + c > 0 and rows[start + c - 1, width - 1] >= 128 \
+                else 0
+        for w in range(words):  # add the borrows
+            xw = x[w]
+            for c in range(m):
+                t = xw[c] + carry[c]
+                xw[c] = t & _M32
+                carry[c] = t >> np.uint64(32)
+        top = x[words - 1]
+        for c in range(m):
+            negative[c] = np.uint8(1) if signed and top[c] >= np.uint64(1 << 31) else np.uint8(0)
+            carry[c] = np.uint64(negative[c])
+        for w in range(words):  # ~x + 1 where negative
+            xw = x[w]
+            for c in range(m):
+                t = ((xw[c] ^ _M32) + carry[c]) if negative[c] else xw[c]
+                xw[c] = t & _M32
+                carry[c] = t >> np.uint64(32)
+        _digits15(x, m, dg)
+        pos = _write(dg, negative, m, out, pos)
+    return pos
