@@ -78,3 +78,20 @@ def rows_to_objects(rows: np.ndarray, signed: bool, borrowed: bool = False) -> n
     buf = buffer(count, 8 * width + 1, "Python ints from byte rows")
     used = kernels.rows_stream(np.ascontiguousarray(rows), signed, borrowed, buf)
     return objects(buf, used, count)
+
+
+def from_words128(high: np.ndarray, low: np.ndarray) -> np.ndarray:
+    """Python ints ``high 2^64 + low`` of 128-bit two's complement words (``high`` read as
+    signed), as a 1-D object array: by the stream when :func:`ready`, else two object
+    operations per value."""
+    high, low = high.ravel(), low.ravel()
+    words = np.empty((high.shape[0], 2), dtype=np.uint64)
+    words[:, 0] = low
+    words[:, 1] = high.view(np.uint64)
+    fast = rows_to_objects(words.view(np.uint8), signed=True)
+    if fast is not None:
+        return fast
+    out = np.empty(high.shape[0], dtype=object)
+    out[:] = [(h << 64) + v for h, v in zip(high.view(np.int64).tolist(), low.tolist(),
+                                            strict=True)]
+    return out
