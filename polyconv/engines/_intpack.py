@@ -276,7 +276,11 @@ def values_to_rows(x: np.ndarray) -> np.ndarray:
     if x.dtype.kind in _FIXED and (x.dtype.kind != "u" or n == 0 or int(x.max()) < INT64_LIMIT):
         rows = np.ascontiguousarray(x, dtype="<i8").view(np.uint8).reshape(n, 8)
         return trim_rows(rows)
-    values = [int(v) for v in x.tolist()]
+    values = x.tolist()
+    fast = _pyints.values_to_rows(values)
+    if fast is not None:
+        return fast
+    values = [int(v) for v in values]
     top = max((max(v, -v - 1).bit_length() for v in values), default=0)
     width = top // 8 + 1
     joined = b"".join([v.to_bytes(width, "little", signed=True) for v in values])

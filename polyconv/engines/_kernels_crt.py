@@ -16,7 +16,7 @@ signature.
 from __future__ import annotations
 
 import numpy as np
-from numba import njit
+from numba import njit, types
 
 from . import jit_state as _jit
 from ._kernels_arith import M32 as _M32
@@ -166,29 +166,46 @@ def garner_mod(res, primes, inv, invq, m, out):
         out[c] = r
 
 
-@njit("void(uint8[:, ::1], int64[::1], int64[::1], int64[:, ::1])", cache=CACHE)
+_RO_ROWS = types.Array(types.uint8, 2, "C", readonly=True)
+
+
+@njit(types.void(_RO_ROWS, types.int64[::1], types.int64[::1], types.int64[:, ::1]), cache=CACHE)
 def residues_from_rows(rows, primes, wrap, out):
     """``out[i, r] = value(rows[r]) mod primes[i]`` for little-endian two's-complement byte rows;
-    ``wrap[i] = 2^(8 width) mod primes[i]`` corrects negative rows."""
-    count, width = rows.shape
-    lead = width % 4
-    for i in range(primes.shape[0]):
-        p = np.uint64(primes[i])
-        for r in range(count):
-            row = rows[r]
-            acc = np.uint64(0)
-            top = width
-            if lead:
-                for b in range(width - 1, width - lead - 1, -1):
-                    acc = (acc << np.uint64(8)) | np.uint64(row[b])
-                top = width - lead
-            acc = acc % p
-            for w in range(top - 4, -1, -4):
-                word = ((np.uint64(row[w + 3]) << np.uint64(24))
-                        | (np.uint64(row[w + 2]) << np.uint64(16))
-                        | (np.uint64(row[w + 1]) << np.uint64(8)) | np.uint64(row[w]))
-                acc = ((acc << np.uint64(32)) | word) % p
-            if width and row[width - 1] >= 128:
-                acc = (acc + p - np.uint64(wrap[i])) % p
-            out[i, r] = np.int64(acc)
+    ``wrap[i] = 2^(8 width) mod primes[i]`` corrects negative rows.
 
+    A block of rows is read into 32-bit words once; then per prime Horner's rule ``r <- (r 2^32
+    + w) mod p`` over the block, each remainder from a float64 quotient estimate (``r 2^32 + w <
+    2^62`` and the quotient ``< 2^32``, so the estimate is off by at most one; corrected).
+    """
+    count, width = rows.shape
+    nw = (width + 3) // 4
+    block = 256
+    words = np.zeros((max(nw, 1), block), dtype=np.int64)
+    negative = np.zeros(block, dtype=np.uint8)
+    acc = np.empty(block, dtype=np.int64)
+    for start in range(0, count, block):
+        m = min(block, count - start)
+        for c in range(m):
+            row = rows[start + c]
+            for w in range(nw):
+                v = np.int64(0)
+                for b in range(min(4, width - 4 * w) - 1, -1, -1):
+                    v = (v << np.int64(8)) | np.int64(row[4 * w + b])
+                words[w, c] = v
+            negative[c] = 1 if width and row[width - 1] >= 128 else 0
+        for i in range(primes.shape[0]):
+            p = primes[i]
+            inv = 1.0 / float(p)
+            acc[:m] = 0
+            for w in range(nw - 1, -1, -1):
+                ww = words[w]
+                for c in range(m):
+                    x = (acc[c] << np.int64(32)) | ww[c]
+                    r = x - np.int64(float(x) * inv) * p
+                    r = r + p if r < 0 else r
+                    acc[c] = r - p if r >= p else r
+            wr = wrap[i]
+            for c in range(m):
+                r = acc[c] - wr if negative[c] else acc[c]
+                out[i, start + c] = r + p if r < 0 else r

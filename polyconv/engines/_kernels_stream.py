@@ -33,6 +33,7 @@ CACHE = _jit.cache_enabled()
 BLOCK = 256
 
 _RO_ROWS = types.Array(types.uint8, 2, "C", readonly=True)
+_RO_BYTES = types.Array(types.uint8, 1, "C", readonly=True)
 
 
 @njit("int64(uint8[::1], int64, int64)", cache=CACHE, inline="always")
@@ -229,3 +230,106 @@ def rows_stream(rows, signed, borrowed, out):
         _digits15(x, m, dg)
         pos = _write(dg, negative, m, out, pos)
     return pos
+
+
+# ------------------------------------------------------------------ and back: ints to byte rows
+#
+# ``marshal.dumps(list_of_ints, 2)`` (version 2: no object references) writes the same stream
+# from Python ints in CPython's C loop (~26 ns per 128-bit value, against ~250 ns for computing
+# the width and one ``to_bytes`` per value in Python); these kernels read it back as byte rows.
+
+
+@njit(types.int64(_RO_BYTES, types.int64), cache=CACHE, inline="always")
+def _get_int32(buf, pos):
+    v = np.int64(0)
+    for s in range(4):
+        v |= np.int64(buf[pos + s]) << np.int64(8 * s)
+    return v - (np.int64(1) << np.int64(32)) if v >= np.int64(1) << np.int64(31) else v
+
+
+@njit(types.int64(_RO_BYTES), cache=CACHE)
+def stream_width(buf):
+    """Bytes of the narrowest two's complement rows holding every int of a marshal list (``top
+    // 8 + 1`` with ``top`` the bit length of ``max(v, -v - 1)``), or -1 when the stream holds
+    anything but a list of ints."""
+    if buf.shape[0] < 5 or buf[0] != 0x5B:
+        return -1
+    count = _get_int32(buf, 1)
+    pos = 5
+    top = 0
+    for _ in range(count):
+        if pos + 5 > buf.shape[0]:
+            return -1
+        kind = buf[pos]
+        n = _get_int32(buf, pos + 1)
+        pos += 5
+        if kind == 0x69:
+            v = n if n >= 0 else -n - 1
+            bits = 0
+            while v:
+                bits += 1
+                v >>= 1
+        elif kind == 0x6C and n != 0:
+            nd = n if n > 0 else -n
+            if pos + 2 * nd > buf.shape[0]:
+                return -1
+            t = np.int64(buf[pos + 2 * nd - 2]) | (np.int64(buf[pos + 2 * nd - 1]) << 8)
+            bits = 15 * (nd - 1)
+            power = (t & (t - 1)) == 0
+            while t:
+                bits += 1
+                t >>= 1
+            if n < 0 and power:  # -v - 1 = m - 1 is one bit shorter when m = 2^j
+                for d in range(nd - 1):
+                    if buf[pos + 2 * d] or buf[pos + 2 * d + 1]:
+                        power = False
+                        break
+                if power:
+                    bits -= 1
+            pos += 2 * nd
+        else:
+            return -1
+        top = max(top, bits)
+    return top // 8 + 1
+
+
+@njit(types.void(_RO_BYTES, types.uint8[:, ::1]), cache=CACHE)
+def stream_rows(buf, rows):
+    """The ints of a marshal list (checked by :func:`stream_width`) as little-endian two's
+    complement byte rows of ``rows.shape[1]`` bytes each."""
+    count, width = rows.shape
+    pos = 5
+    for r in range(count):
+        kind = buf[pos]
+        n = _get_int32(buf, pos + 1)
+        pos += 5
+        row = rows[r]
+        row[:] = 0
+        negative = n < 0
+        if kind == 0x69:
+            m = np.uint64(-n if negative else n)
+            for b in range(min(width, 4)):
+                row[b] = np.uint8((m >> np.uint64(8 * b)) & np.uint64(0xFF))
+        else:
+            nd = -n if negative else n
+            acc = np.uint64(0)
+            bits = np.uint64(0)
+            b = 0
+            for d in range(nd):
+                acc |= (np.uint64(buf[pos + 2 * d]) | (np.uint64(buf[pos + 2 * d + 1])
+                                                        << np.uint64(8))) << bits
+                bits += np.uint64(15)
+                while bits >= np.uint64(8) and b < width:
+                    row[b] = np.uint8(acc & np.uint64(0xFF))
+                    acc >>= np.uint64(8)
+                    bits -= np.uint64(8)
+                    b += 1
+            if bits and b < width:
+                row[b] = np.uint8(acc)
+            pos += 2 * nd
+        if negative:  # two's complement: ~m + 1
+            carry = np.uint64(1)
+            for b in range(width):
+                t = (np.uint64(row[b]) ^ np.uint64(0xFF)) + carry
+                row[b] = np.uint8(t & np.uint64(0xFF))
+                carry = t >> np.uint64(8)

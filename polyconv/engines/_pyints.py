@@ -37,9 +37,7 @@ def buffer(count: int, bits: int, what: str) -> np.ndarray:
 
 def objects(buf: np.ndarray, used: int, count: int) -> np.ndarray:
     """The ``count`` Python ints of a stream as a 1-D object array."""
-    out = np.empty(count, dtype=object)
-    out[:] = marshal.loads(buf[:used])
-    return out
+    return np.fromiter(marshal.loads(buf[:used]), dtype=object, count=count)  # (fastest here)
 
 
 def ready():
@@ -95,3 +93,23 @@ def from_words128(high: np.ndarray, low: np.ndarray) -> np.ndarray:
     out[:] = [(h << 64) + v for h, v in zip(high.view(np.int64).tolist(), low.tolist(),
                                             strict=True)]
     return out
+
+
+def values_to_rows(values: list) -> np.ndarray | None:
+    """Python ints as the narrowest little-endian two's complement byte rows, read from
+    ``marshal.dumps(values, 2)`` by compiled kernels; None when :func:`ready` is None or the list
+    holds anything but exact ints (the caller's portable route then converts them)."""
+    kernels = ready()
+    if kernels is None:
+        return None
+    try:
+        data = np.frombuffer(marshal.dumps(values, 2), dtype=np.uint8)
+    except ValueError:  # unmarshallable items (gmpy2.mpz, numpy scalars)
+        return None
+    width = kernels.stream_width(data)
+    if width < 0 or data.shape[0] < 5:  # bools or other items
+        return None
+    budget.check_allocation(float(len(values)) * width, "byte rows of Python ints")
+    rows = np.empty((len(values), width), dtype=np.uint8)
+    kernels.stream_rows(data, rows)
+    return rows

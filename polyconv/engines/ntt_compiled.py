@@ -235,15 +235,18 @@ def _residue_rows(x: np.ndarray, primes: tuple[int, ...]) -> np.ndarray:
     """``x`` as int64 (when it fits) or as a ``(len(primes), n)`` matrix of residues."""
     if x.dtype.kind in "iub" and (x.dtype.kind != "u" or x.size == 0 or int(x.max()) < INT64_LIMIT):
         return _as_int64(x)
-    rows = _intpack.values_to_rows(x)
-    if not (rows.flags.c_contiguous and rows.flags.writeable):  # the kernel takes writable C rows
-        rows = rows.copy()
-    width = rows.shape[1]
-    arr = np.array(primes, dtype=np.int64)
-    wrap = np.array([pow(2, 8 * width, p) for p in primes], dtype=np.int64)
+    rows = np.ascontiguousarray(_intpack.values_to_rows(x))  # the kernel takes C rows
+    arr, wrap = _wraps(primes, rows.shape[1])
     out = np.empty((len(primes), rows.shape[0]), dtype=np.int64)
     _kernels().residues_from_rows(rows, arr, wrap, out)
     return out
+
+
+@lru_cache(maxsize=256)
+def _wraps(primes: tuple[int, ...], width: int) -> tuple[np.ndarray, np.ndarray]:
+    """The primes and ``2^(8 width) mod p`` for each, as :func:`residues_from_rows` takes them."""
+    return (np.array(primes, dtype=np.int64),
+            np.array([pow(2, 8 * width, p) for p in primes], dtype=np.int64))
 
 
 @lru_cache(maxsize=64)  # k^2 modular inverses: 19 ms for 27 primes, once per prime set
