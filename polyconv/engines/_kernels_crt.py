@@ -21,6 +21,7 @@ from numba import njit, types
 from . import jit_state as _jit
 from ._kernels_arith import M32 as _M32
 from ._kernels_arith import shoup as _shoup
+from ._kernels_arith import twist as _twist
 
 CACHE = _jit.cache_enabled()
 
@@ -56,37 +57,80 @@ def _digits(res, primes, inv, invq, pads, c, digits):
         digits[i] = t
 
 
+@njit("uint32[::1](int64[::1])", cache=CACHE, inline="always")
+def pads32(primes):
+    """:func:`_pads` in uint32 (every pad is below ``2^31``), as :func:`garner_block` takes them."""
+    return _pads(primes).astype(np.uint32)
+
+
+#: Columns per block in the block-wise kernels (their digits stay in the first-level cache).
+BLOCK = 256
+
+
+@njit("void(int64[:, ::1], int64[::1], int64[:, ::1], int64[:, ::1], uint32[::1], int64, "
+      "int64, uint32[:, ::1])", cache=CACHE, inline="always")
+def garner_block(res, primes, inv, invq, pads, start, m, digits):
+    """:func:`_digits` of columns ``start..start+m`` at once, prime by prime (loops over the
+    block, which the compiler vectorises; ``pads`` from :func:`pads32`)."""
+    for i in range(primes.shape[0]):
+        p = np.uint32(primes[i])
+        pad = pads[i]
+        row = digits[i]
+        for c in range(m):
+            row[c] = np.uint32(res[i, start + c])
+        for j in range(i):
+            w, wq, prev = np.uint32(inv[i, j]), np.uint32(invq[i, j]), digits[j]
+            for c in range(m):
+                row[c] = _twist(np.uint32(row[c] + pad - prev[c]), w, wq, p)
+        for c in range(m):
+            row[c] = min(row[c], np.uint32(row[c] - p))
+
+
+@njit("void(uint32[:, ::1], int64[::1], int64, uint8[::1], uint8[::1])", cache=CACHE,
+      inline="always")
+def negative_block(digits, primes, m, negative, decided):
+    """``negative[c]``: the value of digits ``digits[:, c]`` exceeds ``floor(P/2)``, whose
+    digits are ``(p_i - 1)/2`` (``P`` is odd), compared from the most significant."""
+    negative[:m] = 0
+    decided[:m] = 0
+    for i in range(primes.shape[0] - 1, -1, -1):
+        row, h = digits[i], np.uint32((primes[i] - 1) // 2)
+        for c in range(m):
+            above = np.uint8(1) if row[c] > h else np.uint8(0)
+            negative[c] |= above & (decided[c] ^ np.uint8(1))
+            decided[c] |= np.uint8(1) if row[c] != h else np.uint8(0)
+
+
 @njit("void(int64[:, ::1], int64[::1], int64[:, ::1], int64[:, ::1], int64[::1])", cache=CACHE)
 def garner_int64(res, primes, inv, invq, out):
     """Signed CRT values that fit int64: ``out[c] = x`` or ``x - P`` computed modulo ``2^64``.
 
     ``inv[i, j] = p_j^-1 mod p_i`` (``j < i``) with Shoup quotients ``invq``; the caller
-    guarantees ``|c| < min(2^63, P/2)``.  The sign is decided by comparing the mixed-radix digits
-    with those of ``floor(P/2)`` from the most significant.
+    guarantees ``|c| < min(2^63, P/2)``.  Block by block: the digits (:func:`garner_block`),
+    Horner's rule modulo ``2^64``, the sign (:func:`negative_block`).
     """
     k = primes.shape[0]
-    half = np.empty(k, dtype=np.uint64)
+    count = res.shape[1]
     total = np.uint64(1)  # P mod 2^64
     for i in range(k):
         total = total * np.uint64(primes[i])
-    # digits of floor(P/2): P is odd, floor(P/2) = (P - 1)/2 has digits (p_i - 1)/2
-    for i in range(k):
-        half[i] = np.uint64((primes[i] - 1) // 2)
-    digits = np.empty(k, dtype=np.uint64)
-    pads = _pads(primes)
-    for c in range(res.shape[1]):
-        _digits(res, primes, inv, invq, pads, c, digits)
-        value = np.uint64(0)
-        above = False
-        decided = False
-        for i in range(k - 1, -1, -1):
-            value = value * np.uint64(primes[i]) + digits[i]
-            if not decided and digits[i] != half[i]:
-                above = digits[i] > half[i]
-                decided = True
-        if above:
-            value -= total
-        out[c] = np.int64(value)
+    pads = pads32(primes)
+    digits = np.empty((k, BLOCK), dtype=np.uint32)
+    negative = np.empty(BLOCK, dtype=np.uint8)
+    decided = np.empty(BLOCK, dtype=np.uint8)
+    value = np.empty(BLOCK, dtype=np.uint64)
+    for start in range(0, count, BLOCK):
+        m = min(BLOCK, count - start)
+        garner_block(res, primes, inv, invq, pads, start, m, digits)
+        for c in range(m):
+            value[c] = np.uint64(digits[k - 1, c])
+        for i in range(k - 2, -1, -1):
+            pi, row = np.uint64(primes[i]), digits[i]
+            for c in range(m):
+                value[c] = value[c] * pi + np.uint64(row[c])
+        negative_block(digits, primes, m, negative, decided)
+        for c in range(m):
+            out[start + c] = np.int64(value[c] - total if negative[c] else value[c])
 
 
 @njit("void(int64[:, ::1], int64[::1], int64[:, ::1], int64[:, ::1], uint32[::1], "

@@ -25,12 +25,9 @@ from numba import njit, types
 
 from . import jit_state as _jit
 from ._kernels_arith import M32 as _M32
-from ._kernels_arith import twist as _twist
+from ._kernels_crt import BLOCK, garner_block, negative_block, pads32
 
 CACHE = _jit.cache_enabled()
-
-#: Values per block (the block's words and digits stay in the first-level cache).
-BLOCK = 256
 
 _RO_ROWS = types.Array(types.uint8, 2, "C", readonly=True)
 _RO_BYTES = types.Array(types.uint8, 1, "C", readonly=True)
@@ -91,26 +88,6 @@ def _write(dg, negative, m, out, pos):
     return pos
 
 
-@njit("void(int64[:, ::1], int64[::1], int64[:, ::1], int64[:, ::1], uint32[::1], int64, "
-      "int64, uint32[:, ::1])", cache=CACHE, inline="always")
-def _garner_digits(res, primes, inv, invq, pads, start, m, digits):
-    """Mixed-radix digits ``digits[i, c] < p_i`` of columns ``start..start+m``: ``t_i = (..((r_i
-    - t_0) p_0^-1 - t_1) p_1^-1 ..) mod p_i``; ``t + pad_i - t_j`` (``pad_i`` a multiple of
-    ``p_i`` above every digit ``< 2^30``) stays in ``[0, 2^32)`` for Shoup's product."""
-    for i in range(primes.shape[0]):
-        p = np.uint32(primes[i])
-        pad = pads[i]
-        row = digits[i]
-        for c in range(m):
-            row[c] = np.uint32(res[i, start + c])
-        for j in range(i):
-            w, wq, prev = np.uint32(inv[i, j]), np.uint32(invq[i, j]), digits[j]
-            for c in range(m):
-                row[c] = _twist(np.uint32(row[c] + pad - prev[c]), w, wq, p)
-        for c in range(m):
-            row[c] = min(row[c], np.uint32(row[c] - p))
-
-
 @njit("int64(int64[:, ::1], int64[::1], int64[:, ::1], int64[:, ::1], uint32[::1], uint8[::1])",
       cache=CACHE)
 def garner_stream(res, primes, inv, invq, modulus_words, out):
@@ -131,16 +108,11 @@ def garner_stream(res, primes, inv, invq, modulus_words, out):
     negative = np.empty(BLOCK, dtype=np.uint8)
     decided = np.empty(BLOCK, dtype=np.uint8)
     dg = np.empty(((32 * words + 14) // 15, BLOCK), dtype=np.uint16)
-    half = np.empty(k, dtype=np.uint32)
-    pads = np.empty(k, dtype=np.uint32)
-    for i in range(k):
-        p = np.uint64(primes[i])
-        half[i] = np.uint32((p - np.uint64(1)) >> np.uint64(1))
-        pads[i] = np.uint32((np.uint64(1 << 30) + p - np.uint64(1)) // p * p)
+    pads = pads32(primes)
     pos = _start(out, count)
     for start in range(0, count, BLOCK):
         m = min(BLOCK, count - start)
-        _garner_digits(res, primes, inv, invq, pads, start, m, digits)
+        garner_block(res, primes, inv, invq, pads, start, m, digits)
         for w in range(words):
             x[w, :m] = 0
         for c in range(m):
@@ -155,14 +127,7 @@ def garner_stream(res, primes, inv, invq, modulus_words, out):
                     t = xw[c] * pi + carry[c]
                     xw[c] = t & _M32
                     carry[c] = t >> np.uint64(32)
-        negative[:m] = 0
-        decided[:m] = 0
-        for i in range(k - 1, -1, -1):
-            row, h = digits[i], half[i]
-            for c in range(m):
-                above = np.uint8(1) if row[c] > h else np.uint8(0)
-                negative[c] |= above & (decided[c] ^ np.uint8(1))
-                decided[c] |= np.uint8(1) if row[c] != h else np.uint8(0)
+        negative_block(digits, primes, m, negative, decided)
         carry[:m] = 0
         for w in range(words):  # x <- P - x where negative
             pw = np.uint64(modulus_words[w])
