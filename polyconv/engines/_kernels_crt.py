@@ -188,26 +188,29 @@ def garner_mod(res, primes, inv, invq, m, out):
     ``r p_i - q m`` (in ``[-m, 2m)``) is formed in wrapping 64-bit arithmetic and corrected.
     """
     k = primes.shape[0]
-    digits = np.empty(k, dtype=np.uint64)
-    pads = _pads(primes)
+    count = res.shape[1]
+    pads = pads32(primes)
+    digits = np.empty((k, BLOCK), dtype=np.uint32)
+    acc = np.empty(BLOCK, dtype=np.int64)
     inv_m = 1.0 / float(m)
     um = np.uint64(m)
-    for c in range(res.shape[1]):
-        _digits(res, primes, inv, invq, pads, c, digits)
-        r = np.int64(0)
+    for start in range(0, count, BLOCK):
+        n = min(BLOCK, count - start)
+        garner_block(res, primes, inv, invq, pads, start, n, digits)
+        acc[:n] = 0
         for i in range(k - 1, -1, -1):
-            pi = primes[i]
-            q = np.int64(float(r) * float(pi) * inv_m)
-            t = np.int64(np.uint64(r) * np.uint64(pi) - np.uint64(q) * um)
-            while t < 0:
-                t += m
-            while t >= m:
-                t -= m
-            t += np.int64(digits[i]) % m if np.int64(digits[i]) >= m else np.int64(digits[i])
-            if t >= m:
-                t -= m
-            r = t
-        out[c] = r
+            pi, row = primes[i], digits[i]
+            fp = float(pi) * inv_m
+            for c in range(n):
+                r = acc[c]
+                t = np.int64(np.uint64(r) * np.uint64(pi)
+                             - np.uint64(np.int64(float(r) * fp)) * um)
+                t = t + m if t < 0 else t
+                t = t - m if t >= m else t
+                d = np.int64(row[c])  # a digit below 2^30, possibly >= m
+                t += d if d < m else d % m
+                acc[c] = t - m if t >= m else t
+        out[start:start + n] = acc[:n]
 
 
 _RO_ROWS = types.Array(types.uint8, 2, "C", readonly=True)
