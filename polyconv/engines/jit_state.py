@@ -35,7 +35,8 @@ from functools import lru_cache
 from pathlib import Path
 
 #: Kernel modules, in load order (``polyconv.engines.<name>``).
-KERNEL_MODULES = ("_kernels_arith", "_kernels_crt", "_kernels_ntt", "_kernels_batch")
+KERNEL_MODULES = ("_kernels_arith", "_kernels_crt", "_kernels_ntt", "_kernels_batch",
+                  "_kernels_stream")
 
 _ENGINES_DIR = Path(__file__).resolve().parent
 _MARKER = "polyconv-kernels.json"

@@ -34,7 +34,7 @@ from functools import lru_cache
 import numpy as np
 
 from ..numerics import budget
-from . import _intpack
+from . import _intpack, _pyints
 from . import jit_state as jit
 from .ntt_compiled import (
     KERNEL_MODULUS_LIMIT,
@@ -280,7 +280,8 @@ def multiply_rows_exact(a_rows: np.ndarray, b_rows: np.ndarray, bound: int,
 
 
 def _rows_128(a: np.ndarray, b: np.ndarray, count: int, as_int64: bool) -> np.ndarray:
-    """Exact int64 row products below ``2^127`` by 128-bit sums; Python ints from two words."""
+    """Exact int64 row products below ``2^127`` by 128-bit sums; Python ints from the two words
+    (:func:`polyconv.engines._pyints.from_words128`)."""
     rows = a.shape[0]
     budget.check_allocation(16.0 * rows * count, "batched exact products")
     high = np.empty((rows, count), dtype=np.uint64)
@@ -288,10 +289,7 @@ def _rows_128(a: np.ndarray, b: np.ndarray, count: int, as_int64: bool) -> np.nd
     _kernels().rows_schoolbook_128(a, b, high, low)
     if as_int64:
         return low.view(np.int64)
-    out = np.empty(rows * count, dtype=object)
-    out[:] = [(h << 64) + v for h, v in zip(high.view(np.int64).ravel().tolist(),
-                                            low.ravel().tolist(), strict=True)]
-    return out.reshape(rows, count)
+    return _pyints.from_words128(high, low).reshape(rows, count)
 
 
 def multiply_rows_mod(a_rows: np.ndarray, b_rows: np.ndarray, m: int,

@@ -35,7 +35,7 @@ NAME = "ntt-compiled"
 #: Defaults when the cost table has no ``ntt_compiled`` section (measured on the development
 #: machine with bench/compiled_bench.py, busy: see bench/RESULTS.md).
 DEFAULTS = {"overhead": 6e-6, "per_nlogn": 1.0e-9, "per_point": 2.0e-9, "per_digit": 1.5e-9,
-            "per_object_out": 1.5e-7, "per_object_in": 2.5e-7}
+            "per_object_out": 4.0e-8, "per_object_in": 1.0e-7}
 JIT_DEFAULTS = {"load_seconds": 0.9, "compile_seconds": 14.0}
 
 
