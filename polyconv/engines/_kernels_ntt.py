@@ -34,7 +34,20 @@ from numba import njit
 from . import jit_state as _jit
 from ._kernels_arith import M32, add_2p, reduce_2p, shoup, twist
 from ._kernels_crt import garner_int64, garner_mod, garner_words, residues_from_rows
-from ._kernels_simd import LANES, dif_pair, dif_quad, dif_short, dit_pair, dit_quad, dit_short
+from ._kernels_simd import (
+    LANES,
+    dif_pair,
+    dif_quad,
+    dif_short,
+    dit_pair,
+    dit_quad,
+    dit_short,
+    load_vector,
+    pointwise_vector,
+    product_short,
+    square_short,
+    store_vector,
+)
 
 __all__ = ["forward", "inverse", "load_residues", "pointwise", "store_residues",
            "product_mod_prime", "garner_int64", "garner_words", "garner_mod", "residues_from_rows"]
@@ -164,30 +177,32 @@ def inverse(x, p, itw, itwq):
 def load_residues(x, a, p):
     """``x[:len(a)] = a mod p`` for any int64 ``a``, zeros after (the transform's padding).
 
-    Entries already in ``[0, p)`` are copied; others are reduced with a float64 quotient
-    estimate ``q ~ a / p`` (off by at most a few units for ``|a| < 2^63``) and corrected.
+    16 entries at a time by :func:`polyconv.engines._kernels_simd.load_vector` (a float64
+    quotient estimate, then one correction each way), the last few one by one the same way.
     """
     pi = np.int64(p)
     inv = 1.0 / float(p)
     m = a.shape[0]
-    for i in range(m):
+    full = m - m % LANES
+    for i in range(0, full, LANES):
+        load_vector(x, a, i, pi, inv)
+    for i in range(full, m):
         v = a[i]
-        if v < 0 or v >= pi:
-            v -= np.int64(float(v) * inv) * pi
-            while v < 0:
-                v += pi
-            while v >= pi:
-                v -= pi
-        x[i] = np.uint32(v)
-    for i in range(m, x.shape[0]):
-        x[i] = 0
+        r = v - np.int64(float(v) * inv) * pi
+        r = r + 2 * pi if r < 0 else r
+        x[i] = np.uint32(r - pi if r >= pi else r)
+    x[m:] = 0
 
 
 @njit("void(uint32[::1], uint32[::1], uint64, uint64, uint64, uint64)", cache=CACHE)
 def pointwise(x, y, p, p_neg_inv, f, fq):
     """``x <- x y f R^-1 mod p`` (Montgomery product, then a Shoup product by ``f``), in
     ``[0, 2p)``; inputs in ``[0, 2p)``."""
-    for i in range(x.shape[0]):
+    n = x.shape[0]
+    full = n - n % LANES
+    for i in range(0, full, LANES):
+        pointwise_vector(x, y, i, p, p_neg_inv, f, fq)
+    for i in range(full, n):
         t = np.uint64(x[i]) * np.uint64(y[i])
         m = ((t & M32) * p_neg_inv) & M32
         r = (t + m * p) >> np.uint64(32)
@@ -197,11 +212,31 @@ def pointwise(x, y, p, p_neg_inv, f, fq):
 @njit("void(uint32[::1], uint64, int64[::1])", cache=CACHE)
 def store_residues(x, p, out):
     """``out[i] = x[i] mod p`` for entries of ``x`` in ``[0, 4p)``."""
-    for i in range(out.shape[0]):
+    count = out.shape[0]
+    full = count - count % LANES
+    for i in range(0, full, LANES):
+        store_vector(x, out, i, p)
+    for i in range(full, count):
         v = np.uint64(x[i])
         while v >= p:
             v -= p
         out[i] = np.int64(v)
+
+
+@njit("void(uint32[::1], uint32[::1], uint64, uint32[::1], uint32[::1], uint32[::1], "
+      "uint32[::1], uint64, uint64, uint64, boolean)", cache=CACHE)
+def _block_product(x, y, p, tw, twq, itw, itwq, p_neg_inv, f, fq, square):
+    """One block (``VECTOR_LENGTH <= len <= BLOCK`` words) of a product whose stages wider than
+    the block are done: ``y``'s forward stages down to 16, then, 32 words at a time, its stages
+    8..1, the product by ``x`` and the inverse stages 1..8 (one pass:
+    :func:`polyconv.engines._kernels_simd.product_short`), then the inverse stages 16 up.
+    ``square``: ``y`` is ``x``, not yet transformed."""
+    _dif_stages(y, p, tw, twq, y.shape[0] >> 1, LANES)
+    if square:
+        square_short(x, x, tw, twq, itw, itwq, p, p_neg_inv, f, fq)
+    else:
+        product_short(x, y, tw, twq, itw, itwq, p, p_neg_inv, f, fq)
+    _dit_stages(x, p, itw, itwq, LANES, x.shape[0] >> 1)
 
 
 @njit("void(int64[::1], int64[::1], uint64, uint32[::1], uint32[::1], uint32[::1], uint32[::1], "
@@ -212,15 +247,32 @@ def product_mod_prime(a, b, p, tw, twq, itw, itwq, p_neg_inv, f, fq, fa, fb, out
 
     ``f = R / n mod p`` (``R = 2^32``) with Shoup quotient ``fq`` undoes the Montgomery factor
     and scales the inverse transform.  ``a is b`` (a square) costs one forward transform less.
+    The second forward transform, the pointwise product and the inverse run block by block
+    (:func:`_block_product`) once the stages wider than :data:`BLOCK` are done.
     """
+    n = fa.shape[0]
+    square = a.shape[0] == b.shape[0] and a.ctypes.data == b.ctypes.data
     load_residues(fa, a, p)
-    forward(fa, p, tw, twq)
-    if a.shape[0] == b.shape[0] and a.ctypes.data == b.ctypes.data:
-        pointwise(fa, fa, p, p_neg_inv, f, fq)
-    else:
+    if n < VECTOR_LENGTH:
+        forward(fa, p, tw, twq)
+        if not square:
+            load_residues(fb, b, p)
+            forward(fb, p, tw, twq)
+        pointwise(fa, fa if square else fb, p, p_neg_inv, f, fq)
+        inverse(fa, p, itw, itwq)
+        store_residues(fa, p, out)
+        return
+    y = fa
+    if not square:
+        forward(fa, p, tw, twq)
         load_residues(fb, b, p)
-        forward(fb, p, tw, twq)
-        pointwise(fa, fb, p, p_neg_inv, f, fq)
-    inverse(fa, p, itw, itwq)
+        y = fb
+    if n <= BLOCK:
+        _block_product(fa, y, p, tw, twq, itw, itwq, p_neg_inv, f, fq, square)
+    else:
+        _dif_stages(y, p, tw, twq, n >> 1, BLOCK)
+        for s in range(0, n, BLOCK):
+            _block_product(fa[s:s + BLOCK], y[s:s + BLOCK], p, tw, twq, itw, itwq, p_neg_inv,
+                           f, fq, square)
+        _dit_stages(fa, p, itw, itwq, BLOCK, n >> 1)
     store_residues(fa, p, out)
-

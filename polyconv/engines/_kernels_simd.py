@@ -178,32 +178,50 @@ def _short_plan(halves):
     return steps, ([held.index(i) for i in range(16)], [held.index(i) for i in range(16, 32)])
 
 
-def _short_stages(context, builder, sig, args, halves, butterfly):
-    """Every 32-word block of ``x`` (``args``: x, tw, twq, p) through the stages ``halves``."""
-    xa = _array(context, builder, sig.args[0], args[0])
-    ta = _array(context, builder, sig.args[1], args[1])
-    qa = _array(context, builder, sig.args[2], args[2])
-    pv, p2 = _moduli(builder, args[3])
-    steps, back = _short_plan(halves)
-    undef = ir.Constant(_V, ir.Undefined)
-    twiddles = []  # loaded once, spread over the lanes (table[h:2h] holds w_{2h}^j)
-    for h, _, _, offsets in steps:
-        if h == 1:
-            twiddles.append((None, None))
-            continue
-        at = ir.Constant(_I64, h)
-        twiddles.append((_shuffle(builder, _load(builder, ta, at), undef, offsets),
-                         _shuffle(builder, _load(builder, qa, at), undef, offsets)))
+class _Short:
+    """Code for the stages ``halves`` (each < 16) of a 32-word block held in two vectors: the
+    twiddles are loaded and spread over the lanes once (``table[h:2h]`` holds ``w_{2h}^j``),
+    before the loop that :meth:`run` is called in."""
+
+    def __init__(self, builder, tw, twq, halves, butterfly):
+        self.steps, self.back = _short_plan(halves)
+        self.butterfly = butterfly
+        undef = ir.Constant(_V, ir.Undefined)
+        self.twiddles = []
+        for h, _, _, offsets in self.steps:
+            if h == 1:
+                self.twiddles.append((None, None))
+                continue
+            at = ir.Constant(_I64, h)
+            self.twiddles.append((_shuffle(builder, _load(builder, tw, at), undef, offsets),
+                                  _shuffle(builder, _load(builder, twq, at), undef, offsets)))
+
+    def run(self, builder, a, b, pv, p2):
+        """The words ``a`` (0..15), ``b`` (16..31) after the stages, in the same places."""
+        for (_, mask_u, mask_v, _), (w, wq) in zip(self.steps, self.twiddles, strict=True):
+            u, v = _shuffle(builder, a, b, mask_u), _shuffle(builder, a, b, mask_v)
+            a, b = self.butterfly(builder, u, v, w, wq, pv, p2)
+        return _shuffle(builder, a, b, self.back[0]), _shuffle(builder, a, b, self.back[1])
+
+
+def _blocks(builder, xa):
+    """A loop over the 32-word blocks of ``xa``; yields the indices of their two halves."""
     n = builder.extract_value(xa.shape, 0)
     with cgutils.for_range(builder, builder.udiv(n, ir.Constant(_I64, 32))) as loop:
         i0 = builder.mul(loop.index, ir.Constant(_I64, 32))
-        i1 = builder.add(i0, ir.Constant(_I64, 16))
-        a, b = _load(builder, xa, i0), _load(builder, xa, i1)
-        for (_, mask_u, mask_v, _), (w, wq) in zip(steps, twiddles, strict=True):
-            u, v = _shuffle(builder, a, b, mask_u), _shuffle(builder, a, b, mask_v)
-            a, b = butterfly(builder, u, v, w, wq, pv, p2)
-        _store(builder, _shuffle(builder, a, b, back[0]), xa, i0)
-        _store(builder, _shuffle(builder, a, b, back[1]), xa, i1)
+        yield i0, builder.add(i0, ir.Constant(_I64, 16))
+
+
+def _short_stages(context, builder, sig, args, halves, butterfly):
+    """Every 32-word block of ``x`` (``args``: x, tw, twq, p) through the stages ``halves``."""
+    xa = _array(context, builder, sig.args[0], args[0])
+    code = _Short(builder, _array(context, builder, sig.args[1], args[1]),
+                  _array(context, builder, sig.args[2], args[2]), halves, butterfly)
+    pv, p2 = _moduli(builder, args[3])
+    for i0, i1 in _blocks(builder, xa):
+        a, b = code.run(builder, _load(builder, xa, i0), _load(builder, xa, i1), pv, p2)
+        _store(builder, a, xa, i0)
+        _store(builder, b, xa, i1)
     return context.get_dummy_value()
 
 
@@ -222,3 +240,117 @@ def dit_short(typingctx, x, tw, twq, p):
     def codegen(context, builder, sig, args):
         return _short_stages(context, builder, sig, args, (1, 2, 4, 8), _dit)
     return types.void(x, tw, twq, p), codegen
+
+
+_F64 = ir.DoubleType()
+_VF = ir.VectorType(_F64, LANES)
+
+
+def _load_wide(builder, arr, index):
+    ptr = builder.bitcast(builder.gep(arr.data, [index]), _V64.as_pointer())
+    return builder.load(ptr, align=8)
+
+
+def _splat64(builder, scalar, ty=_V64):
+    v = builder.insert_element(ir.Constant(ty, ir.Undefined), scalar, ir.Constant(_I32, 0))
+    return builder.shuffle_vector(v, ir.Constant(ty, ir.Undefined), ir.Constant(_V, [0] * LANES))
+
+
+@intrinsic
+def load_vector(typingctx, x, a, i, p, inv):
+    """``x[i + k] = a[i + k] mod p`` for 16 int64 entries of any sign: ``r = a - trunc(a / p) p``
+    with the float64 quotient ``fl(fl(a) inv)``, ``inv = fl(1 / p)``, which lies within
+    ``2^-17`` of ``a / p`` for ``|a| < 2^63``, so ``r`` is in ``(-2p, 2p)``; then ``r + 2p`` if
+    negative, ``r - p`` if ``>= p`` (exact wrap-around int64 arithmetic)."""
+    def codegen(context, builder, sig, args):
+        xa = _array(context, builder, sig.args[0], args[0])
+        aa = _array(context, builder, sig.args[1], args[1])
+        pw = _splat64(builder, args[3])
+        v = _load_wide(builder, aa, args[2])
+        quotient = builder.fmul(builder.sitofp(v, _VF), _splat64(builder, args[4], _VF))
+        r = builder.sub(v, builder.mul(builder.fptosi(quotient, _V64), pw))
+        negative = builder.icmp_signed("<", r, ir.Constant(_V64, [0] * LANES))
+        r = builder.select(negative, builder.add(r, builder.add(pw, pw)), r)
+        r = builder.select(builder.icmp_signed(">=", r, pw), builder.sub(r, pw), r)
+        _store(builder, builder.trunc(r, _V), xa, args[2])
+        return context.get_dummy_value()
+    return types.void(x, a, i, p, inv), codegen
+
+
+@intrinsic
+def store_vector(typingctx, x, out, i, p):
+    """``out[i + k] = x[i + k] mod p`` (int64) for 16 entries of ``x`` in ``[0, 4p)``."""
+    def codegen(context, builder, sig, args):
+        xa = _array(context, builder, sig.args[0], args[0])
+        oa = _array(context, builder, sig.args[1], args[1])
+        pv, p2 = _moduli(builder, args[3])
+        v = _reduce_2p(builder, _load(builder, xa, args[2]), p2)
+        v = _reduce_2p(builder, v, pv)  # min(v, v - p): v mod p for v < 2p
+        ptr = builder.bitcast(builder.gep(oa.data, [args[2]]), _V64.as_pointer())
+        builder.store(builder.zext(v, _V64), ptr, align=8)
+        return context.get_dummy_value()
+    return types.void(x, out, i, p), codegen
+
+
+def _montgomery(builder, x, y, pv, p_neg_inv, f, fq):
+    """``x y f R^-1 mod p`` in ``[0, 2p)`` for ``x, y`` in ``[0, 2p)`` (splat constants):
+    Montgomery's reduction with ``R = 2^32``, ``p' = -p^-1 mod R`` (``t = x y``,
+    ``m = (t mod R) p' mod R``, ``(t + m p) / R``), then Shoup's product by ``f``."""
+    t = builder.mul(builder.zext(x, _V64), builder.zext(y, _V64))
+    m = builder.mul(builder.trunc(t, _V), p_neg_inv)
+    t = builder.add(t, builder.mul(builder.zext(m, _V64), builder.zext(pv, _V64)))
+    r = builder.trunc(builder.lshr(t, ir.Constant(_V64, [32] * LANES)), _V)
+    return _shoup(builder, r, f, fq, pv)
+
+
+def _words(builder, *scalars):
+    return [_splat(builder, builder.trunc(v, _I32)) for v in scalars]
+
+
+@intrinsic
+def pointwise_vector(typingctx, x, y, i, p, p_neg_inv, f, fq):
+    """``x[i + k] <- x y f R^-1 mod p`` (:func:`_montgomery`) for 16 entries."""
+    def codegen(context, builder, sig, args):
+        xa = _array(context, builder, sig.args[0], args[0])
+        ya = _array(context, builder, sig.args[1], args[1])
+        pv, _ = _moduli(builder, args[3])
+        r = _montgomery(builder, _load(builder, xa, args[2]), _load(builder, ya, args[2]), pv,
+                        *_words(builder, *args[4:7]))
+        _store(builder, r, xa, args[2])
+        return context.get_dummy_value()
+    return types.void(x, y, i, p, p_neg_inv, f, fq), codegen
+
+
+def _fused(square):
+    """An intrinsic ``(x, y, tw, twq, itw, itwq, p, p_neg_inv, f, fq)``: for every 32-word block,
+    the forward stages 8..1 of ``y`` (of ``x`` for a square), the product by ``x``'s block
+    (:func:`_montgomery`) and the inverse stages 1..8, written to ``x``: three passes in one,
+    while the block is in registers."""
+    def typer(typingctx, x, y, tw, twq, itw, itwq, p, p_neg_inv, f, fq):
+        def codegen(context, builder, sig, args):
+            xa, ya, ta, qa, ita, iqa = (_array(context, builder, t, v)
+                                        for t, v in zip(sig.args[:6], args[:6], strict=True))
+            forward = _Short(builder, ta, qa, (8, 4, 2, 1), _dif)
+            inverse = _Short(builder, ita, iqa, (1, 2, 4, 8), _dit)
+            pv, p2 = _moduli(builder, args[6])
+            consts = _words(builder, *args[7:10])
+            for i0, i1 in _blocks(builder, xa):
+                c, d = _load(builder, xa, i0), _load(builder, xa, i1)
+                if square:
+                    a, b = forward.run(builder, c, d, pv, p2)
+                    c, d = a, b
+                else:
+                    a, b = forward.run(builder, _load(builder, ya, i0), _load(builder, ya, i1),
+                                       pv, p2)
+                a = _montgomery(builder, a, c, pv, *consts)
+                b = _montgomery(builder, b, d, pv, *consts)
+                a, b = inverse.run(builder, a, b, pv, p2)
+                _store(builder, a, xa, i0)
+                _store(builder, b, xa, i1)
+            return context.get_dummy_value()
+        return types.void(x, y, tw, twq, itw, itwq, p, p_neg_inv, f, fq), codegen
+    return intrinsic(typer)
+
+
+product_short = _fused(False)
+square_short = _fused(True)
