@@ -36,9 +36,11 @@ from ._kernels_arith import M32, add_2p, reduce_2p, shoup, twist
 from ._kernels_crt import garner_int64, garner_mod, garner_words, residues_from_rows
 from ._kernels_simd import (
     LANES,
+    dif_oct,
     dif_pair,
     dif_quad,
     dif_short,
+    dit_oct,
     dit_pair,
     dit_quad,
     dit_short,
@@ -90,12 +92,18 @@ def _scalar_stages(x, p, tw, twq, dif):
 @njit("void(uint32[::1], uint64, uint32[::1], uint32[::1], int64, int64)", cache=CACHE)
 def _dif_stages(x, p, tw, twq, h_first, h_last):
     """The forward (Gentleman-Sande) stages of half-lengths ``h = h_first, h_first/2, ..,
-    h_last`` (``h_last >= 16``) over the whole of ``x``, two at a time (radix 4) while two are
-    left, 16 butterflies per vector step."""
+    h_last`` (``h_last >= 16``) over the whole of ``x``, three at a time (radix 8) while three
+    are left, then two (radix 4) or one, 16 butterflies per vector step."""
     n = x.shape[0]
     h = h_first
     while h >= h_last:
-        if h >= 2 * h_last:
+        if h >= 4 * h_last:
+            q = h >> 2
+            for s in range(0, n, 2 * h):
+                for j in range(0, q, LANES):
+                    dif_oct(x, s + j, q, tw, twq, j, p)
+            h >>= 3
+        elif h >= 2 * h_last:
             q = h >> 1
             for s in range(0, n, 2 * h):
                 for j in range(0, q, LANES):
@@ -111,11 +119,16 @@ def _dif_stages(x, p, tw, twq, h_first, h_last):
 @njit("void(uint32[::1], uint64, uint32[::1], uint32[::1], int64, int64)", cache=CACHE)
 def _dit_stages(x, p, tw, twq, h_first, h_last):
     """The inverse (Cooley-Tukey) stages ``h = h_first, 2 h_first, .., h_last`` (``h_first
-    >= 16``), two at a time while two are left."""
+    >= 16``), three, two or one at a time as in :func:`_dif_stages`."""
     n = x.shape[0]
     h = h_first
     while h <= h_last:
-        if 2 * h <= h_last:
+        if 4 * h <= h_last:
+            for s in range(0, n, 8 * h):
+                for j in range(0, h, LANES):
+                    dit_oct(x, s + j, h, tw, twq, j, p)
+            h <<= 3
+        elif 2 * h <= h_last:
             for s in range(0, n, 4 * h):
                 for j in range(0, h, LANES):
                     dit_quad(x, s + j, h, tw, twq, j, p)

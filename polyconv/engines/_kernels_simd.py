@@ -121,11 +121,12 @@ dif_pair = _pair(_dif)
 dit_pair = _pair(_dit)
 
 
-def _quad(dif):
-    """An intrinsic ``(x, i0, q, tw, twq, j, p)``: two stages on ``x[i0 + m q + k]``,
-    ``m = 0..3``, ``k < 16``, where ``i0`` is ``j`` words into a run of ``q``: DIF stages of
-    half-lengths ``2q`` (twiddles ``tw[2q + j + k]``, ``tw[3q + j + k]``) then ``q``
-    (``tw[q + j + k]``), or the DIT stages ``q`` then ``2q``."""
+def _radix(dif, r):
+    """An intrinsic ``(x, i0, q, tw, twq, j, p)``: ``r`` stages on the ``2^r`` vectors
+    ``x[i0 + m q + k]`` (``m < 2^r``, ``k < 16``) kept in registers, where ``i0`` is ``j`` words
+    into a run of ``q``: the stages of half-lengths ``H = q 2^t``, ``t = r-1 .. 0`` (DIF) or
+    ``t = 0 .. r-1`` (DIT), pair vectors ``m`` and ``m + 2^t`` (bit ``t`` of ``m`` clear) with
+    twiddles ``tw[H + (m mod 2^t) q + j + k]``."""
     def typer(typingctx, x, i0, q, tw, twq, j, p):
         def codegen(context, builder, sig, args):
             xa = _array(context, builder, sig.args[0], args[0])
@@ -134,33 +135,28 @@ def _quad(dif):
             start, step, offset = args[1], args[2], args[5]
             pv, p2 = _moduli(builder, args[6])
             index = [start]
-            for _ in range(3):
+            for _ in range(2**r - 1):
                 index.append(builder.add(index[-1], step))
-            a0, a1, a2, a3 = (_load(builder, xa, i) for i in index)
-            t_long = builder.add(builder.add(step, step), offset)
-            twiddles = []
-            for t in (t_long, builder.add(t_long, step), builder.add(step, offset)):
-                twiddles.append((_load(builder, ta, t), _load(builder, qa, t)))
-            (w1, q1), (w2, q2), (w3, q3) = twiddles
-            if dif:
-                b0, b2 = _dif(builder, a0, a2, w1, q1, pv, p2)
-                b1, b3 = _dif(builder, a1, a3, w2, q2, pv, p2)
-                c0, c1 = _dif(builder, b0, b1, w3, q3, pv, p2)
-                c2, c3 = _dif(builder, b2, b3, w3, q3, pv, p2)
-            else:
-                b0, b1 = _dit(builder, a0, a1, w3, q3, pv, p2)
-                b2, b3 = _dit(builder, a2, a3, w3, q3, pv, p2)
-                c0, c2 = _dit(builder, b0, b2, w1, q1, pv, p2)
-                c1, c3 = _dit(builder, b1, b3, w2, q2, pv, p2)
-            for i, c in zip(index, (c0, c1, c2, c3), strict=True):
+            a = [_load(builder, xa, i) for i in index]
+            for t in (range(r - 1, -1, -1) if dif else range(r)):
+                span = 1 << t
+                for low in range(span):  # twiddle run of the pairs (m, m + span), m = low mod span
+                    at = builder.add(builder.mul(step, ir.Constant(_I64, span + low)), offset)
+                    w, wq = _load(builder, ta, at), _load(builder, qa, at)
+                    for m in range(low, 2**r, 2 * span):
+                        a[m], a[m + span] = (_dif if dif else _dit)(builder, a[m], a[m + span],
+                                                                      w, wq, pv, p2)
+            for i, c in zip(index, a, strict=True):
                 _store(builder, c, xa, i)
             return context.get_dummy_value()
         return types.void(x, i0, q, tw, twq, j, p), codegen
     return intrinsic(typer)
 
 
-dif_quad = _quad(True)
-dit_quad = _quad(False)
+dif_quad = _radix(True, 2)
+dit_quad = _radix(False, 2)
+dif_oct = _radix(True, 3)
+dit_oct = _radix(False, 3)
 
 
 def _short_plan(halves):
