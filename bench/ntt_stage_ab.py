@@ -6,7 +6,7 @@ Run: git show REV:polyconv/engines/_kernels_ntt.py > /tmp/kernels_a.py
 
 A is the given file (loaded as a sibling module, so its relative imports resolve), B the
 working tree's; both run in one process, alternating, best of ROUNDS (default 15); outputs are
-checked equal.  Ratios B/A below 1: B faster.
+checked equal modulo p.  Ratios B/A below 1: B faster.
 """
 
 from __future__ import annotations
@@ -43,7 +43,8 @@ def main() -> None:
         B.forward(xb, P, tw, twq)
         A.inverse(xa, P, itw, itwq)
         B.inverse(xb, P, itw, itwq)
-        assert (xa == xb).all(), "the two versions disagree"
+        # lazy reductions may differ between versions: equal modulo p is the contract
+        assert (xa % P == xb % P).all(), "the two versions disagree"
         reps = max(3, int(3e6 // (n * logn)))
         best: dict = {}
         for _ in range(ROUNDS):

@@ -35,8 +35,8 @@ from functools import lru_cache
 from pathlib import Path
 
 #: Kernel modules, in load order (``polyconv.engines.<name>``).
-KERNEL_MODULES = ("_kernels_arith", "_kernels_crt", "_kernels_ntt", "_kernels_batch",
-                  "_kernels_stream")
+KERNEL_MODULES = ("_kernels_arith", "_kernels_simd", "_kernels_crt", "_kernels_ntt",
+                  "_kernels_batch", "_kernels_stream")
 
 _ENGINES_DIR = Path(__file__).resolve().parent
 _MARKER = "polyconv-kernels.json"
@@ -227,6 +227,8 @@ def kernels(name: str = "_kernels_ntt"):
         raise JitUnavailableError(why)
     before = state()
     start = time.perf_counter()
+    if before == "compile":
+        _purge_stale_cache()
     try:
         for module in KERNEL_MODULES:
             _loaded[module] = _import_kernels(module)
@@ -239,6 +241,25 @@ def kernels(name: str = "_kernels_ntt"):
     if _decide_cache()["enabled"]:
         _write_marker(seconds)
     return _loaded[name]
+
+
+def _purge_stale_cache() -> None:
+    """Delete numba's cache files of every kernel module when the sources changed.
+
+    numba checks only the stamp of a function's own source file, so a kernel that calls or
+    inlines code of another kernel module (``_kernels_batch`` calls ``_kernels_ntt``, which
+    inlines ``_kernels_simd`` and ``_kernels_arith``) would otherwise load its old machine code
+    after a change there.  Called when the marker's fingerprint (all kernel sources) differs.
+    """
+    directory = _decide_cache()["dir"]
+    if not directory:
+        return
+    for name in KERNEL_MODULES:
+        for path in Path(directory).glob(f"{name}.*.nb[ic]"):
+            try:
+                path.unlink()
+            except OSError:
+                pass  # another process may be replacing it: numba then re-checks the stamp
 
 
 def _import_kernels(module: str):
