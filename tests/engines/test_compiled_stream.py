@@ -81,6 +81,7 @@ def test_kronecker_unpack_through_streams_matches_python(streams):
     rng = random.Random(7)
     for width in (9, 16, 24, 40):
         coeffs = [rng.randrange(-(2**(8 * width - 2)), 2**(8 * width - 2)) for _ in range(300)]
+        coeffs[-1] = -abs(coeffs[-1]) - 1  # a negative packed integer
         z = sum(c << (8 * width * k) for k, c in enumerate(coeffs))
         assert _intpack.unpack_signed(gmpy2.mpz(z), width, len(coeffs)).tolist() == coeffs
 
