@@ -8,8 +8,10 @@ The arithmetic runs in the numba kernels of :mod:`polyconv.engines._kernels_ntt`
 * :func:`convolve_exact`: the exact signed product of integer sequences from NTT products modulo
   enough primes that ``P = prod p_i > 2 B`` for an a-priori bound ``B >= max |c_k|`` (for example
   ``||a||_2 ||b||_2``, Cauchy-Schwarz), recombined by Garner's algorithm (Knuth, TAOCP vol. 2,
-  section 4.3.2) straight into int64 when ``B < 2^63``, else into two's-complement byte rows read
-  by ``int.from_bytes`` (the fastest of the routes measured to Python ints);
+  section 4.3.2) straight into int64 when ``B < 2^63``, else into a ``marshal`` stream of Python
+  ints read by ``marshal.loads`` (:mod:`polyconv.engines._pyints`: the fastest route measured,
+  ~50 ns a 130-bit value with the Garner work; two's-complement rows and ``int.from_bytes`` when
+  the stream check fails);
 * :func:`convolve_mod`: the product modulo any ``m`` (operands in ``[0, m)``): the exact
   non-negative product from primes with ``P > min(n1, n2) (m - 1)^2``, reduced modulo ``m`` during
   the recombination (``m < 2^62``) or afterwards.
