@@ -197,6 +197,41 @@ def rows_stream(rows, signed, borrowed, out):
     return pos
 
 
+@njit("int64(uint64[:, ::1], uint8[::1])", cache=CACHE)
+def words_stream(words, out):
+    """Signed integers given as rows of little-endian 64-bit two's complement words (the top
+    word read as signed), written as a marshal list into ``out``; returns the bytes used.  As
+    :func:`rows_stream` without the byte assembly (128-bit sums: two words a value)."""
+    count, nw64 = words.shape
+    nw = 2 * nw64
+    x = np.zeros((nw + 1, BLOCK), dtype=np.uint64)
+    carry = np.empty(BLOCK, dtype=np.uint64)
+    negative = np.empty(BLOCK, dtype=np.uint8)
+    dg = np.empty(((32 * nw + 14) // 15, BLOCK), dtype=np.uint16)
+    pos = _start(out, count)
+    for start in range(0, count, BLOCK):
+        m = min(BLOCK, count - start)
+        for j in range(nw64):
+            lo, hi = x[2 * j], x[2 * j + 1]
+            for c in range(m):
+                v = words[start + c, j]
+                lo[c] = v & _M32
+                hi[c] = v >> np.uint64(32)
+        top = x[nw - 1]
+        for c in range(m):
+            negative[c] = np.uint8(1) if top[c] >= np.uint64(1 << 31) else np.uint8(0)
+            carry[c] = np.uint64(negative[c])
+        for w in range(nw):  # ~x + 1 where negative
+            xw = x[w]
+            for c in range(m):
+                t = ((xw[c] ^ _M32) + carry[c]) if negative[c] else xw[c]
+                xw[c] = t & _M32
+                carry[c] = t >> np.uint64(32)
+        _digits15(x, m, dg)
+        pos = _write(dg, negative, m, out, pos)
+    return pos
+
+
 # ------------------------------------------------------------------ and back: ints to byte rows
 #
 # ``marshal.dumps(list_of_ints, 2)`` (version 2: no object references) writes the same stream
