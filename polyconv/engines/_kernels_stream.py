@@ -197,13 +197,13 @@ def rows_stream(rows, signed, borrowed, out):
     return pos
 
 
-@njit("int64(uint64[:, ::1], uint8[::1])", cache=CACHE)
-def words_stream(words, out):
-    """Signed integers given as rows of little-endian 64-bit two's complement words (the top
-    word read as signed), written as a marshal list into ``out``; returns the bytes used.  As
-    :func:`rows_stream` without the byte assembly (128-bit sums: two words a value)."""
-    count, nw64 = words.shape
-    nw = 2 * nw64
+@njit("int64(uint64[::1], uint64[::1], uint8[::1])", cache=CACHE)
+def words128_stream(high, low, out):
+    """Signed 128-bit two's complement values ``high 2^64 + low`` (``high`` read as signed),
+    written as a marshal list into ``out``; returns the bytes used.  As :func:`rows_stream`
+    without the byte assembly (the 128-bit schoolbook sums)."""
+    count = high.shape[0]
+    nw = 4
     x = np.zeros((nw + 1, BLOCK), dtype=np.uint64)
     carry = np.empty(BLOCK, dtype=np.uint64)
     negative = np.empty(BLOCK, dtype=np.uint8)
@@ -211,15 +211,13 @@ def words_stream(words, out):
     pos = _start(out, count)
     for start in range(0, count, BLOCK):
         m = min(BLOCK, count - start)
-        for j in range(nw64):
-            lo, hi = x[2 * j], x[2 * j + 1]
-            for c in range(m):
-                v = words[start + c, j]
-                lo[c] = v & _M32
-                hi[c] = v >> np.uint64(32)
-        top = x[nw - 1]
         for c in range(m):
-            negative[c] = np.uint8(1) if top[c] >= np.uint64(1 << 31) else np.uint8(0)
+            v, h = low[start + c], high[start + c]
+            x[0, c] = v & _M32
+            x[1, c] = v >> np.uint64(32)
+            x[2, c] = h & _M32
+            x[3, c] = h >> np.uint64(32)
+            negative[c] = np.uint8(1) if h >= np.uint64(1 << 63) else np.uint8(0)
             carry[c] = np.uint64(negative[c])
         for w in range(nw):  # ~x + 1 where negative
             xw = x[w]

@@ -85,11 +85,10 @@ def from_words128(high: np.ndarray, low: np.ndarray) -> np.ndarray:
     high, low = high.ravel(), low.ravel()
     kernels = ready()
     if kernels is not None:
-        words = np.empty((high.shape[0], 2), dtype=np.uint64)
-        words[:, 0] = low
-        words[:, 1] = high.view(np.uint64)
         buf = buffer(high.shape[0], 128, "Python ints from 128-bit words")
-        return objects(buf, kernels.words_stream(words, buf), high.shape[0])
+        used = kernels.words128_stream(np.ascontiguousarray(high).view(np.uint64),
+                                       np.ascontiguousarray(low, dtype=np.uint64), buf)
+        return objects(buf, used, high.shape[0])
     out = np.empty(high.shape[0], dtype=object)
     out[:] = [(h << 64) + v for h, v in zip(high.view(np.int64).tolist(), low.tolist(),
                                             strict=True)]
