@@ -111,6 +111,9 @@ def unpack_signed(z: gmpy2.mpz, width: int, count: int) -> np.ndarray:
     """
     if width > 64:
         return _unpack_signed_wide(z, 8 * width, count)
+    if width > 8 and _pyints.ready() is not None:  # the slots and their borrows in one kernel
+        rows = slot_rows(gmpy2.f_mod_2exp(z, 8 * width * count), width, count)
+        return _pyints.rows_to_objects(rows, True, borrowed=True)
     if width > 16:  # up to 64 bytes, byte rows and int.from_bytes are faster (measured)
         return rows_to_ints(unpack_rows(z, width, count), signed=True)
     if z < 0:

@@ -83,12 +83,12 @@ def from_words128(high: np.ndarray, low: np.ndarray) -> np.ndarray:
     signed), as a 1-D object array: by the stream when :func:`ready`, else two object
     operations per value."""
     high, low = high.ravel(), low.ravel()
-    words = np.empty((high.shape[0], 2), dtype=np.uint64)
-    words[:, 0] = low
-    words[:, 1] = high.view(np.uint64)
-    fast = rows_to_objects(words.view(np.uint8), signed=True)
-    if fast is not None:
-        return fast
+    kernels = ready()
+    if kernels is not None:
+        buf = buffer(high.shape[0], 128, "Python ints from 128-bit words")
+        used = kernels.words128_stream(np.ascontiguousarray(high).view(np.uint64),
+                                       np.ascontiguousarray(low, dtype=np.uint64), buf)
+        return objects(buf, used, high.shape[0])
     out = np.empty(high.shape[0], dtype=object)
     out[:] = [(h << 64) + v for h, v in zip(high.view(np.int64).tolist(), low.tolist(),
                                             strict=True)]

@@ -8,8 +8,10 @@ The arithmetic runs in the numba kernels of :mod:`polyconv.engines._kernels_ntt`
 * :func:`convolve_exact`: the exact signed product of integer sequences from NTT products modulo
   enough primes that ``P = prod p_i > 2 B`` for an a-priori bound ``B >= max |c_k|`` (for example
   ``||a||_2 ||b||_2``, Cauchy-Schwarz), recombined by Garner's algorithm (Knuth, TAOCP vol. 2,
-  section 4.3.2) straight into int64 when ``B < 2^63``, else into two's-complement byte rows read
-  by ``int.from_bytes`` (the fastest of the routes measured to Python ints);
+  section 4.3.2) straight into int64 when ``B < 2^63``, else into a ``marshal`` stream of Python
+  ints read by ``marshal.loads`` (:mod:`polyconv.engines._pyints`: the fastest route measured,
+  ~50 ns a 130-bit value with the Garner work; two's-complement rows and ``int.from_bytes`` when
+  the stream check fails);
 * :func:`convolve_mod`: the product modulo any ``m`` (operands in ``[0, m)``): the exact
   non-negative product from primes with ``P > min(n1, n2) (m - 1)^2``, reduced modulo ``m`` during
   the recombination (``m < 2^62``) or afterwards.
@@ -261,6 +263,16 @@ def _garner_constants(primes: tuple[int, ...]) -> tuple[np.ndarray, np.ndarray, 
     return np.array(primes, dtype=np.int64), inv, invq
 
 
+@lru_cache(maxsize=64)
+def _modulus_words(primes: tuple[int, ...], sign_word: bool) -> tuple[np.ndarray, int]:
+    """``P = prod p_i`` as little-endian 32-bit words (exactly as many as it needs, or with room
+    for a sign bit) and its bit length."""
+    total = math.prod(primes)
+    bits = total.bit_length()
+    words = bits // 32 + 1 if sign_word else -(-bits // 32)
+    return np.frombuffer(total.to_bytes(4 * words, "little"), dtype=np.uint32).copy(), bits
+
+
 def recombine(res: np.ndarray, primes: tuple[int, ...], as_int64: bool) -> np.ndarray:
     """Signed CRT values (``|c| < P/2``) of residue rows: int64 (the caller proved
     ``|c| < 2^63``) or an object array of Python ints."""
@@ -271,16 +283,14 @@ def recombine(res: np.ndarray, primes: tuple[int, ...], as_int64: bool) -> np.nd
         out = np.empty(count, dtype=np.int64)
         k.garner_int64(res, arr, inv, invq, out)
         return out
-    total = math.prod(primes)
     streams = _pyints.ready()
     if streams is not None:  # Python ints straight from a marshal stream (fastest measured)
-        words = -(-total.bit_length() // 32)
-        modulus_words = np.frombuffer(total.to_bytes(4 * words, "little"), dtype=np.uint32).copy()
-        buf = _pyints.buffer(count, total.bit_length(), "Python ints from CRT residues")
+        modulus_words, bits = _modulus_words(primes, False)
+        buf = _pyints.buffer(count, bits, "Python ints from CRT residues")
         used = streams.garner_stream(res, arr, inv, invq, modulus_words, buf)
         return _pyints.objects(buf, used, count)
-    words = total.bit_length() // 32 + 1  # room for the sign bit
-    modulus_words = np.frombuffer(total.to_bytes(4 * words, "little"), dtype=np.uint32).copy()
+    modulus_words, _ = _modulus_words(primes, True)
+    words = modulus_words.shape[0]
     rows = np.empty((count, words), dtype=np.uint32)
     k.garner_words(res, arr, inv, invq, modulus_words, rows)
     return _intpack.rows_to_ints(rows.view(np.uint8).reshape(count, 4 * words), signed=True)

@@ -95,6 +95,8 @@ def _objects_as_ints(x: np.ndarray) -> np.ndarray:
     lo = min(flat) if flat.size else 0
     if -INT64_LIMIT <= lo and hi < INT64_LIMIT:
         return x.astype(np.int64)
+    if set(map(type, flat.tolist())) == {int}:  # already Python ints (one C-level pass)
+        return x
     out = np.empty(x.shape, dtype=object)
     out.ravel()[:] = [int(v) for v in flat]
     return out

@@ -81,6 +81,7 @@ def test_kronecker_unpack_through_streams_matches_python(streams):
     rng = random.Random(7)
     for width in (9, 16, 24, 40):
         coeffs = [rng.randrange(-(2**(8 * width - 2)), 2**(8 * width - 2)) for _ in range(300)]
+        coeffs[-1] = -abs(coeffs[-1]) - 1  # a negative packed integer
         z = sum(c << (8 * width * k) for k, c in enumerate(coeffs))
         assert _intpack.unpack_signed(gmpy2.mpz(z), width, len(coeffs)).tolist() == coeffs
 
@@ -148,3 +149,14 @@ def test_portable_routes_when_kernels_are_not_loaded(streams, monkeypatch):
     high = np.array([-1, 3], dtype=np.int64)
     low = np.array([7, 2**64 - 1], dtype=np.uint64)
     assert _pyints.from_words128(high, low).tolist() == [-(2**64) + 7, 3 * 2**64 + 2**64 - 1]
+
+
+def test_garner_words_route_when_streams_are_unavailable(streams, monkeypatch):
+    # recombine falls back to Garner words + int.from_bytes; reference: the Python-int CRT
+    primes = tuple(p for p, _, _ in nc.PRIMES[:5])
+    total = math.prod(primes)
+    values = [v for v in _values(random.Random(9), total.bit_length(), True)
+              if abs(v) <= total // 2]
+    res = np.array([[v % p for v in values] for p in primes], dtype=np.int64)
+    monkeypatch.setattr(_pyints, "ready", lambda: None)
+    assert nc.recombine(res, primes, as_int64=False).tolist() == values
