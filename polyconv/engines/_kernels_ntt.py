@@ -44,7 +44,6 @@ from ._kernels_simd import (
     dit_pair,
     dit_quad,
     dit_short,
-    load_spread_vector,
     load_vector,
     pointwise_vector,
     product_short,
@@ -141,26 +140,12 @@ def _dit_stages(x, p, tw, twq, h_first, h_last):
             h <<= 1
 
 
-@njit("void(uint32[::1], uint64, uint32[::1], uint32[::1], int64)", cache=CACHE)
-def _dif_block(x, p, tw, twq, h_first):
-    """The forward stages ``h_first .. 1`` of ``x`` (``VECTOR_LENGTH <= len(x) <= BLOCK``):
-    half-lengths down to 16 in vector steps, then ``8 .. 1`` inside 32-word blocks."""
-    _dif_stages(x, p, tw, twq, h_first, LANES)
+@njit("void(uint32[::1], uint64, uint32[::1], uint32[::1])", cache=CACHE)
+def _dif_block(x, p, tw, twq):
+    """All forward stages of ``x`` (``VECTOR_LENGTH <= len(x) <= BLOCK``): half-lengths
+    ``n/2 .. 16`` in vector steps, then ``8 .. 1`` inside 32-word blocks."""
+    _dif_stages(x, p, tw, twq, x.shape[0] >> 1, LANES)
     dif_short(x, tw, twq, p)
-
-
-@njit("void(uint32[::1], uint64, uint32[::1], uint32[::1], int64)", cache=CACHE)
-def _forward_from(x, p, tw, twq, h_first):
-    """The forward stages ``h_first .. 1`` of ``x`` (``len(x) >= VECTOR_LENGTH``): those whose
-    butterflies span more than :data:`BLOCK` words over the whole array, the others block by
-    block."""
-    n = x.shape[0]
-    if n <= BLOCK:
-        _dif_block(x, p, tw, twq, h_first)
-    else:
-        _dif_stages(x, p, tw, twq, h_first, BLOCK)
-        for s in range(0, n, BLOCK):
-            _dif_block(x[s:s + BLOCK], p, tw, twq, BLOCK >> 1)
 
 
 @njit("void(uint32[::1], uint64, uint32[::1], uint32[::1])", cache=CACHE)
@@ -173,11 +158,17 @@ def _dit_block(x, p, tw, twq):
 @njit("void(uint32[::1], uint64, uint32[::1], uint32[::1])", cache=CACHE)
 def forward(x, p, tw, twq):
     """In-place forward NTT of ``x`` (power-of-two length, entries in ``[0, 2p)``): DIF,
-    bit-reversed output in ``[0, 2p)``."""
-    if x.shape[0] < VECTOR_LENGTH:
+    bit-reversed output in ``[0, 2p)``.  Stages whose butterflies span more than
+    :data:`BLOCK` words run over the whole array, the others block by block."""
+    n = x.shape[0]
+    if n < VECTOR_LENGTH:
         _scalar_stages(x, p, tw, twq, True)
+    elif n <= BLOCK:
+        _dif_block(x, p, tw, twq)
     else:
-        _forward_from(x, p, tw, twq, x.shape[0] >> 1)
+        _dif_stages(x, p, tw, twq, n >> 1, BLOCK)
+        for s in range(0, n, BLOCK):
+            _dif_block(x[s:s + BLOCK], p, tw, twq)
 
 
 @njit("void(uint32[::1], uint64, uint32[::1], uint32[::1])", cache=CACHE)
@@ -216,35 +207,6 @@ def load_residues(x, a, p):
     x[m:] = 0
 
 
-@njit("int64(uint32[::1], int64[::1], uint64, uint32[::1], uint32[::1])", cache=CACHE)
-def _load_first(x, a, p, tw, twq):
-    """:func:`load_residues`, and with it the first forward stage when ``a`` fills at most half
-    of ``x`` (``len(x) >= VECTOR_LENGTH``): that stage's butterflies ``(r, 0) -> (r, r w^j)``
-    are written by the load (:func:`polyconv.engines._kernels_simd.load_spread_vector`), which
-    saves the padding and a pass.  Returns the half-length of the next forward stage."""
-    n = x.shape[0]
-    m = a.shape[0]
-    if 2 * m > n:
-        load_residues(x, a, p)
-        return n >> 1
-    half = n >> 1
-    pi = np.int64(p)
-    inv = 1.0 / float(p)
-    full = m - m % LANES
-    for i in range(0, full, LANES):
-        load_spread_vector(x, a, i, pi, inv, tw, twq)
-    pp = np.uint32(p)
-    for i in range(full, m):
-        v = a[i]
-        r = v - np.int64(float(v) * inv) * pi
-        r = r + 2 * pi if r < 0 else r
-        x[i] = np.uint32(r - pi if r >= pi else r)
-        x[half + i] = np.uint32(twist(x[i], tw[half + i], twq[half + i], pp))
-    x[m:half] = 0
-    x[half + m:] = 0
-    return n >> 2
-
-
 @njit("void(uint32[::1], uint32[::1], uint64, uint64, uint64, uint64)", cache=CACHE)
 def pointwise(x, y, p, p_neg_inv, f, fq):
     """``x <- x y f R^-1 mod p`` (Montgomery product, then a Shoup product by ``f``), in
@@ -275,14 +237,14 @@ def store_residues(x, p, out):
 
 
 @njit("void(uint32[::1], uint32[::1], uint64, uint32[::1], uint32[::1], uint32[::1], "
-      "uint32[::1], uint64, uint64, uint64, int64, boolean)", cache=CACHE)
-def _block_product(x, y, p, tw, twq, itw, itwq, p_neg_inv, f, fq, h_first, square):
-    """One block (``VECTOR_LENGTH <= len <= BLOCK`` words) of a product whose wider stages are
-    done: ``y``'s forward stages ``h_first`` down to 16, then, 32 words at a time, its stages
+      "uint32[::1], uint64, uint64, uint64, boolean)", cache=CACHE)
+def _block_product(x, y, p, tw, twq, itw, itwq, p_neg_inv, f, fq, square):
+    """One block (``VECTOR_LENGTH <= len <= BLOCK`` words) of a product whose stages wider than
+    the block are done: ``y``'s forward stages down to 16, then, 32 words at a time, its stages
     8..1, the product by ``x`` and the inverse stages 1..8 (one pass:
     :func:`polyconv.engines._kernels_simd.product_short`), then the inverse stages 16 up.
     ``square``: ``y`` is ``x``, not yet transformed."""
-    _dif_stages(y, p, tw, twq, h_first, LANES)
+    _dif_stages(y, p, tw, twq, y.shape[0] >> 1, LANES)
     if square:
         square_short(x, x, tw, twq, itw, itwq, p, p_neg_inv, f, fq)
     else:
@@ -298,14 +260,13 @@ def product_mod_prime(a, b, p, tw, twq, itw, itwq, p_neg_inv, f, fq, fa, fb, out
 
     ``f = R / n mod p`` (``R = 2^32``) with Shoup quotient ``fq`` undoes the Montgomery factor
     and scales the inverse transform.  ``a is b`` (a square) costs one forward transform less.
-    Each load does the first forward stage when it can (:func:`_load_first`); the second
-    forward transform, the pointwise product and the inverse run block by block
+    The second forward transform, the pointwise product and the inverse run block by block
     (:func:`_block_product`) once the stages wider than :data:`BLOCK` are done.
     """
     n = fa.shape[0]
     square = a.shape[0] == b.shape[0] and a.ctypes.data == b.ctypes.data
+    load_residues(fa, a, p)
     if n < VECTOR_LENGTH:
-        load_residues(fa, a, p)
         forward(fa, p, tw, twq)
         if not square:
             load_residues(fb, b, p)
@@ -314,18 +275,17 @@ def product_mod_prime(a, b, p, tw, twq, itw, itwq, p_neg_inv, f, fq, fa, fb, out
         inverse(fa, p, itw, itwq)
         store_residues(fa, p, out)
         return
-    h = _load_first(fa, a, p, tw, twq)
     y = fa
     if not square:
-        _forward_from(fa, p, tw, twq, h)
-        h = _load_first(fb, b, p, tw, twq)
+        forward(fa, p, tw, twq)
+        load_residues(fb, b, p)
         y = fb
     if n <= BLOCK:
-        _block_product(fa, y, p, tw, twq, itw, itwq, p_neg_inv, f, fq, h, square)
+        _block_product(fa, y, p, tw, twq, itw, itwq, p_neg_inv, f, fq, square)
     else:
-        _dif_stages(y, p, tw, twq, h, BLOCK)
+        _dif_stages(y, p, tw, twq, n >> 1, BLOCK)
         for s in range(0, n, BLOCK):
             _block_product(fa[s:s + BLOCK], y[s:s + BLOCK], p, tw, twq, itw, itwq, p_neg_inv,
-                           f, fq, BLOCK >> 1, square)
+                           f, fq, square)
         _dit_stages(fa, p, itw, itwq, BLOCK, n >> 1)
     store_residues(fa, p, out)

@@ -256,51 +256,25 @@ def _splat64(builder, scalar, ty=_V64):
     return builder.shuffle_vector(v, ir.Constant(ty, ir.Undefined), ir.Constant(_V, [0] * LANES))
 
 
-def _residues(builder, v, p, inv):
-    """``v mod p`` for 16 int64 ``v`` of any sign, as uint32: ``r = v - trunc(v / p) p`` with
-    the float64 quotient ``fl(fl(v) inv)``, ``inv = fl(1 / p)``, which lies within ``2^-17`` of
-    ``v / p`` for ``|v| < 2^63``, so ``r`` is in ``(-2p, 2p)``; then ``r + 2p`` if negative,
-    ``r - p`` if ``>= p`` (exact wrap-around int64 arithmetic)."""
-    pw = _splat64(builder, p)
-    quotient = builder.fmul(builder.sitofp(v, _VF), _splat64(builder, inv, _VF))
-    r = builder.sub(v, builder.mul(builder.fptosi(quotient, _V64), pw))
-    negative = builder.icmp_signed("<", r, ir.Constant(_V64, [0] * LANES))
-    r = builder.select(negative, builder.add(r, builder.add(pw, pw)), r)
-    r = builder.select(builder.icmp_signed(">=", r, pw), builder.sub(r, pw), r)
-    return builder.trunc(r, _V)
-
-
 @intrinsic
 def load_vector(typingctx, x, a, i, p, inv):
-    """``x[i + k] = a[i + k] mod p`` for 16 int64 entries of any sign (:func:`_residues`)."""
+    """``x[i + k] = a[i + k] mod p`` for 16 int64 entries of any sign: ``r = a - trunc(a / p) p``
+    with the float64 quotient ``fl(fl(a) inv)``, ``inv = fl(1 / p)``, which lies within
+    ``2^-17`` of ``a / p`` for ``|a| < 2^63``, so ``r`` is in ``(-2p, 2p)``; then ``r + 2p`` if
+    negative, ``r - p`` if ``>= p`` (exact wrap-around int64 arithmetic)."""
     def codegen(context, builder, sig, args):
         xa = _array(context, builder, sig.args[0], args[0])
         aa = _array(context, builder, sig.args[1], args[1])
-        r = _residues(builder, _load_wide(builder, aa, args[2]), args[3], args[4])
-        _store(builder, r, xa, args[2])
+        pw = _splat64(builder, args[3])
+        v = _load_wide(builder, aa, args[2])
+        quotient = builder.fmul(builder.sitofp(v, _VF), _splat64(builder, args[4], _VF))
+        r = builder.sub(v, builder.mul(builder.fptosi(quotient, _V64), pw))
+        negative = builder.icmp_signed("<", r, ir.Constant(_V64, [0] * LANES))
+        r = builder.select(negative, builder.add(r, builder.add(pw, pw)), r)
+        r = builder.select(builder.icmp_signed(">=", r, pw), builder.sub(r, pw), r)
+        _store(builder, builder.trunc(r, _V), xa, args[2])
         return context.get_dummy_value()
     return types.void(x, a, i, p, inv), codegen
-
-
-@intrinsic
-def load_spread_vector(typingctx, x, a, i, p, inv, tw, twq):
-    """The load and the first forward stage of an operand that fills at most half of ``x``:
-    ``r = a[i + k] mod p`` (:func:`_residues`), ``x[i + k] = r`` and ``x[h + i + k] = r w_{2h}^
-    (i + k)`` (``h = len(x) / 2``; the DIF butterfly of ``(r, 0)``, in ``[0, 2p)``)."""
-    def codegen(context, builder, sig, args):
-        xa = _array(context, builder, sig.args[0], args[0])
-        aa = _array(context, builder, sig.args[1], args[1])
-        ta = _array(context, builder, sig.args[5], args[5])
-        qa = _array(context, builder, sig.args[6], args[6])
-        r = _residues(builder, _load_wide(builder, aa, args[2]), args[3], args[4])
-        _store(builder, r, xa, args[2])
-        upper = builder.add(args[2], builder.lshr(builder.extract_value(xa.shape, 0),
-                                                  ir.Constant(_I64, 1)))
-        pv, _ = _moduli(builder, args[3])
-        twisted = _shoup(builder, r, _load(builder, ta, upper), _load(builder, qa, upper), pv)
-        _store(builder, twisted, xa, upper)
-        return context.get_dummy_value()
-    return types.void(x, a, i, p, inv, tw, twq), codegen
 
 
 @intrinsic
