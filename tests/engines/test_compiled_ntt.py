@@ -14,6 +14,7 @@ import pytest
 flint = pytest.importorskip("flint")
 pytest.importorskip("numba")
 
+from polyconv.engines import _wrap  # noqa: E402
 from polyconv.engines import jit_state as jit  # noqa: E402
 from polyconv.engines import ntt_compiled as nc  # noqa: E402
 
@@ -210,3 +211,25 @@ def test_every_transform_length_matches_flint(kernels, m):
                 _nmod(a % m, b % m, m), len(a) + len(b) - 1)
             assert nc.convolve_mod_prime(a, a, m).tolist() == _padded(
                 _nmod(a % m, a % m, m), 2 * len(a) - 1)
+
+
+def test_products_just_above_a_power_of_two_match_flint(kernels):
+    """Lengths m + r with r <= m / 8 take a cyclic m-point product and a short product of the
+    top ends (engines/_wrap.py): unbalanced and balanced operands, squares, ``keep`` cutting
+    inside and beyond the wrapped part, exact multi-prime products; python-flint nmod_poly and
+    fmpz_poly are the references."""
+    rng = np.random.default_rng(29)
+    m = 2**13
+    for n1, n2 in ((m // 2 + 1, m // 2 + 1), (m, m // 8 + 1), (m // 8 + 1, m), (m - 5, 30),
+                   (m // 2 + m // 16, m // 2 + m // 16)):
+        assert _wrap.wrap_length(n1, n2, 2 * m) == m  # the route under test is taken
+        a, b = np.full(n1, P - 1), rng.integers(0, P, n2)
+        full = _padded(_nmod(a, b, P), n1 + n2 - 1)
+        assert nc.convolve_mod_prime(a, b, P).tolist() == full
+        assert nc.convolve_mod_prime(a, b, P, keep=7).tolist() == full[:7]
+        assert nc.convolve_mod_prime(a, b, P, keep=m + 3).tolist() == full[:m + 3]
+        assert nc.convolve_mod_prime(b, b, P).tolist() == _padded(_nmod(b, b, P), 2 * n2 - 1)
+        sa = rng.integers(-2**40, 2**40, n1)
+        sb = rng.integers(-2**40, 2**40, n2)
+        got = nc.convolve_exact(sa, sb, min(n1, n2) * 2**80)
+        assert [int(v) for v in got] == _padded(_fmpz(sa, sb), n1 + n2 - 1)
