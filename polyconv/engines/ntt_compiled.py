@@ -27,8 +27,9 @@ from functools import lru_cache
 import numpy as np
 
 from ..numerics.limits import INT64_LIMIT, magnitude_fits_int64, residues_fit_int64
-from . import _intpack, _wrap, jit_state
+from . import _intpack, jit_state
 from ._common import powers_mod
+from ._wrap import tops, unwrap, wrap_length
 
 #: NTT primes ``p = c 2^k + 1`` between ``2^29`` and ``2^30`` (so ``4p < 2^32``: lazy butterflies
 #: stay in uint32) with a primitive root ``g``: ``(p, g, k)``, longest transforms first.  Found
@@ -176,12 +177,12 @@ def multiply_mod_primes(a: np.ndarray, b: np.ndarray, primes: tuple[int, ...],
     longer than a power of two takes the cyclic route of :mod:`polyconv.engines._wrap`.
     """
     n = transform_length(a.shape[-1], b.shape[-1])
-    m = _wrap.wrap_length(a.shape[-1], b.shape[-1], n)
+    m = wrap_length(a.shape[-1], b.shape[-1], n)
     if m:  # a little longer than m: a cyclic m-point product and a short one of the top ends
-        top_a, top_b = _wrap.tops(a, b, m)
+        top_a, top_b = tops(a, b, m)
         top = multiply_mod_primes(top_a, top_b, primes, top_a.shape[-1] + top_b.shape[-1] - 1)
         cyclic = _products(a, b, primes, m, m, None)
-        return _wrap.unwrap(cyclic, top, np.array(primes, dtype=np.int64), count, out)
+        return unwrap(cyclic, top, np.array(primes, dtype=np.int64), count, out)
     return _products(a, b, primes, count, n, out)
 
 
