@@ -233,3 +233,7 @@ def test_products_just_above_a_power_of_two_match_flint(kernels):
         sb = rng.integers(-2**40, 2**40, n2)
         got = nc.convolve_exact(sa, sb, min(n1, n2) * 2**80)
         assert [int(v) for v in got] == _padded(_fmpz(sa, sb), n1 + n2 - 1)
+    # operands beyond int64: residue matrices (one row per prime) take the same route
+    wide = np.array([int(v) << 70 for v in rng.integers(-2**30, 2**30, m // 2 + 1)], dtype=object)
+    got = nc.convolve_exact(wide, wide[::-1].copy(), (m // 2 + 1) * 2**200)
+    assert [int(v) for v in got] == _fmpz(wide, wide[::-1])  # python-flint fmpz_poly
