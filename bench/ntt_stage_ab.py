@@ -4,7 +4,8 @@
 Run: git show REV:polyconv/engines/_kernels_ntt.py > /tmp/kernels_a.py
      PYTHONPATH=. nice -n 10 python bench/ntt_stage_ab.py /tmp/kernels_a.py [ROUNDS]
 
-A is the given file (loaded as a sibling module, so its relative imports resolve), B the
+A is the given file (loaded as a sibling module, so its relative imports resolve: it uses the
+working tree's ``_kernels_simd``, ``_kernels_arith``, ``_kernels_crt``), B the
 working tree's; both run in one process, alternating, best of ROUNDS (default 15); outputs are
 checked equal modulo p.  Ratios B/A below 1: B faster.
 """

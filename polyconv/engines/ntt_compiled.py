@@ -31,6 +31,7 @@ import numpy as np
 from ..numerics.limits import INT64_LIMIT, magnitude_fits_int64, residues_fit_int64
 from . import _intpack, _pyints, jit_state
 from ._common import powers_mod
+from ._wrap import tops, unwrap, wrap_length
 
 #: NTT primes ``p = c 2^k + 1`` between ``2^29`` and ``2^30`` (so ``4p < 2^32``: lazy butterflies
 #: stay in uint32) with a primitive root ``g``: ``(p, g, k)``, longest transforms first.  Found
@@ -174,11 +175,24 @@ def multiply_mod_primes(a: np.ndarray, b: np.ndarray, primes: tuple[int, ...],
     """Rows ``(a * b mod p_i)[:count]`` for each prime, as a ``(len(primes), count)`` int64 array.
 
     ``a`` and ``b`` are int64 vectors (any values: reduced inside) or ``(len(primes), n)``
-    int64 residue matrices (one row per prime, already in ``[0, p_i)``).
+    int64 residue matrices (one row per prime, already in ``[0, p_i)``).  A product a little
+    longer than a power of two takes the cyclic route of :mod:`polyconv.engines._wrap`.
     """
+    n = transform_length(a.shape[-1], b.shape[-1])
+    m = wrap_length(a.shape[-1], b.shape[-1], n)
+    if m:  # a little longer than m: a cyclic m-point product and a short one of the top ends
+        top_a, top_b = tops(a, b, m)
+        top = multiply_mod_primes(top_a, top_b, primes, top_a.shape[-1] + top_b.shape[-1] - 1)
+        cyclic = _products(a, b, primes, m, m, None)
+        return unwrap(cyclic, top, np.array(primes, dtype=np.int64), count, out)
+    return _products(a, b, primes, count, n, out)
+
+
+def _products(a: np.ndarray, b: np.ndarray, primes: tuple[int, ...], count: int, n: int,
+              out: np.ndarray | None) -> np.ndarray:
+    """:func:`multiply_mod_primes` with ``n``-point transforms (cyclic products when ``n`` is
+    shorter than the product)."""
     k = _kernels()
-    n1, n2 = a.shape[-1], b.shape[-1]
-    n = transform_length(n1, n2)
     if len(primes) > 1 and n <= STACKED_TABLES_LENGTH and a.ndim == 1 and b.ndim == 1 and (
             out is None or out.flags.c_contiguous):
         res = np.empty((len(primes), count), dtype=np.int64) if out is None else out

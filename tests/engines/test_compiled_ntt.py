@@ -14,6 +14,7 @@ import pytest
 flint = pytest.importorskip("flint")
 pytest.importorskip("numba")
 
+from polyconv.engines import _wrap  # noqa: E402
 from polyconv.engines import jit_state as jit  # noqa: E402
 from polyconv.engines import ntt_compiled as nc  # noqa: E402
 
@@ -190,3 +191,49 @@ def test_short_multi_prime_square_and_one_point(kernels):
     one = np.array([-(2**62) + 1])
     assert [int(v) for v in nc.convolve_exact(one, one, 2**124)] == _fmpz(one, one)
     assert nc.convolve_mod_prime(np.array([P - 1]), np.array([P - 1]), P).tolist() == [1]
+
+
+@pytest.mark.parametrize("m", [P, 754974721])
+def test_every_transform_length_matches_flint(kernels, m):
+    """Each transform length 2^0 .. 2^17 takes its own branch of the vector kernels (scalar
+    below 32 words, fused 32-word blocks, radix 8/4/2 steps, stages wider than a block): products
+    whose length just fits or just spills, of all-max residues (the lazy reductions' worst
+    case), of int64 values of any sign (the vector residue load) and squares, all against
+    python-flint's nmod_poly."""
+    rng = np.random.default_rng(17)
+    for lg in range(18):
+        big = 2**lg
+        cases = [(np.full(big // 2 + 1, m - 1), np.full(max(1, big - big // 2), m - 1)),
+                 (rng.integers(-2**63, 2**63 - 1, big, dtype=np.int64),
+                  rng.integers(-2**63, 2**63 - 1, max(1, big // 3), dtype=np.int64))]
+        for a, b in cases:
+            assert nc.convolve_mod_prime(a, b, m).tolist() == _padded(
+                _nmod(a % m, b % m, m), len(a) + len(b) - 1)
+            assert nc.convolve_mod_prime(a, a, m).tolist() == _padded(
+                _nmod(a % m, a % m, m), 2 * len(a) - 1)
+
+
+def test_products_just_above_a_power_of_two_match_flint(kernels):
+    """Lengths m + r with r <= m / 8 take a cyclic m-point product and a short product of the
+    top ends (engines/_wrap.py): unbalanced and balanced operands, squares, ``keep`` cutting
+    inside and beyond the wrapped part, exact multi-prime products; python-flint nmod_poly and
+    fmpz_poly are the references."""
+    rng = np.random.default_rng(29)
+    m = 2**13
+    for n1, n2 in ((m // 2 + 1, m // 2 + 1), (m, m // 8 + 1), (m // 8 + 1, m), (m - 5, 30),
+                   (m // 2 + m // 16, m // 2 + m // 16)):
+        assert _wrap.wrap_length(n1, n2, 2 * m) == m  # the route under test is taken
+        a, b = np.full(n1, P - 1), rng.integers(0, P, n2)
+        full = _padded(_nmod(a, b, P), n1 + n2 - 1)
+        assert nc.convolve_mod_prime(a, b, P).tolist() == full
+        assert nc.convolve_mod_prime(a, b, P, keep=7).tolist() == full[:7]
+        assert nc.convolve_mod_prime(a, b, P, keep=m + 3).tolist() == full[:m + 3]
+        assert nc.convolve_mod_prime(b, b, P).tolist() == _padded(_nmod(b, b, P), 2 * n2 - 1)
+        sa = rng.integers(-2**40, 2**40, n1)
+        sb = rng.integers(-2**40, 2**40, n2)
+        got = nc.convolve_exact(sa, sb, min(n1, n2) * 2**80)
+        assert [int(v) for v in got] == _padded(_fmpz(sa, sb), n1 + n2 - 1)
+    # operands beyond int64: residue matrices (one row per prime) take the same route
+    wide = np.array([int(v) << 70 for v in rng.integers(-2**30, 2**30, m // 2 + 1)], dtype=object)
+    got = nc.convolve_exact(wide, wide[::-1].copy(), (m // 2 + 1) * 2**200)
+    assert [int(v) for v in got] == _fmpz(wide, wide[::-1])  # python-flint fmpz_poly
