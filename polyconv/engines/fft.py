@@ -10,6 +10,7 @@ work of complex ones.  Transforms come from :mod:`polyconv.numerics.transforms` 
 from __future__ import annotations
 
 import math
+import threading
 
 import numpy as np
 
@@ -41,12 +42,12 @@ def convolve_fft(a: np.ndarray, b: np.ndarray, n_fft: int, keep: int, threads: i
         touches entries that mode drops).
     keep : int
         How many leading entries of the result to return (``keep <= n_fft``).
-    fused : bool
-        Allow the fused circular product (Notes); False: separate transform calls always (the
-        calibration measures both).
     threads : int
         Threads allowed.  With two or more, two 1-D forward transforms run concurrently and
         batched transforms are split by the library.
+    fused : bool
+        Allow the fused circular product (Notes); False: separate transform calls always (the
+        calibration measures both).
 
     Returns
     -------
@@ -59,16 +60,20 @@ def convolve_fft(a: np.ndarray, b: np.ndarray, n_fft: int, keep: int, threads: i
     has a fused circular product (:func:`polyconv.numerics.transforms.circular_product`), the
     rows are zero padded once and transformed, multiplied by the kernel's spectrum and
     transformed back in that one call: the same FFT plan and the same pointwise products, with
-    no spectrum arrays and no Python in between (measured 0.6-0.85x the time of separate
-    rfft/multiply/irfft calls at ``N = 2^7 .. 2^23`` on one thread, bench/RESULTS.md).
+    no spectrum arrays and no Python in between (measured 0.45-0.95x the time of separate
+    rfft/multiply/irfft calls, padding included, at ``N = 2^7 .. 2^23`` on one thread).
     """
     dtype = a.dtype if a.dtype == b.dtype else np.result_type(a, b)
+    if dtype.kind not in "fc":  # integers: transformed as float64 (as the library would)
+        dtype = np.dtype(np.float64)
     if fused and takes_fused(a.ndim == 1, b.ndim == 1, threads):
         if a.ndim == 1 and b.ndim == 1:  # the common case, without the batch bookkeeping
-            out, kernel = np.zeros(n_fft, dtype), np.zeros(n_fft, dtype)
+            out = np.zeros(n_fft, dtype)
             out[: a.shape[0]] = a
-            kernel[: b.shape[0]] = b
-            return tf.circular_product(out, kernel, threads)[:keep]
+            kernel = borrow_kernel(b, n_fft, dtype)
+            tf.circular_product(out, kernel, threads)
+            return_kernel(kernel, b.shape[0])
+            return out[:keep]
         rows, kernel = (a, b) if b.ndim == 1 else (b, a)
         out = tf.zero_padded(rows, n_fft, dtype)
         tf.circular_product(out, tf.zero_padded(kernel, n_fft, dtype), threads)
@@ -102,6 +107,41 @@ def _separate_calls(a, b, n_fft, keep, threads, dtype):
     fb = tf.rfft(tf.zero_padded(b, n_fft, dtype), -1, threads)
     product = spectral_product(fa, fb)
     return tf.irfft(product, n_fft, -1, threads)[..., :keep]
+
+
+#: Largest kernel buffer kept between calls (entries): 8 MiB of float64.
+SCRATCH_LIMIT = 2**20
+_scratch = threading.local()
+
+
+def borrow_kernel(b: np.ndarray, n_fft: int, dtype) -> np.ndarray:
+    """``b`` zero padded to ``n_fft``, in this thread's kernel buffer when it has one.
+
+    The fused call only reads its kernel (ducc0 copies it before transforming), so the buffer
+    can serve the next product: only ``b`` is written again, and the entries a longer previous
+    kernel left beyond it are cleared.  The buffer is taken out of the thread's slot while in
+    use (a product started meanwhile in this thread, e.g. from a signal handler, gets its own
+    array) and handed back by :func:`return_kernel`; one per thread (``threading.local``), at
+    most :data:`SCRATCH_LIMIT` entries.
+    """
+    m = b.shape[0]
+    held = getattr(_scratch, "kernel", None)
+    _scratch.kernel = None
+    if held is None or held[0].shape[0] != n_fft or held[0].dtype != dtype:
+        kernel = np.zeros(n_fft, dtype)
+        kernel[:m] = b
+        return kernel
+    kernel, used = held
+    kernel[:m] = b
+    if used > m:
+        kernel[m:used] = 0
+    return kernel
+
+
+def return_kernel(kernel: np.ndarray, m: int) -> None:
+    """Keep ``kernel`` (nonzero in its first ``m`` entries only) for this thread's next product."""
+    if kernel.shape[0] <= SCRATCH_LIMIT:
+        _scratch.kernel = (kernel, m)
 
 
 def takes_fused(a_1d: bool, b_1d: bool, threads: int) -> bool:

@@ -92,3 +92,22 @@ def test_cost_tables_without_fused_constants_still_load():
     # without them the fused prediction falls back to the separate calls' constants
     assert fft.predict_fft(table, 2**12, 1.0, 1, False, True) == fft.predict_fft(
         table, 2**12, 1.0, 1, False, False)
+
+
+@needs_fused
+def test_kernel_buffer_reuse_across_lengths_and_threads():
+    # reference: numpy.convolve on int64 (exact); kernels of falling and rising length at one
+    # transform length exercise the clearing of the reused buffer, threads its isolation
+    from concurrent.futures import ThreadPoolExecutor
+
+    rng = np.random.default_rng(11)
+    pairs = [_integer_pair(rng, 300, m) for m in (200, 3, 150, 1, 211, 90)]
+
+    def worst(pairs):
+        return max(np.max(np.abs(fft.convolve_fft(a.astype(float), b.astype(float), 512,
+                                                  a.shape[0] + b.shape[0] - 1)
+                                 - np.convolve(a, b))) for a, b in pairs)
+
+    assert worst(pairs) < 0.5  # integers below 2^31 in magnitude: rounding far below 1/2
+    with ThreadPoolExecutor(2) as pool:
+        assert max(pool.map(worst, [pairs, pairs[::-1], pairs, pairs[::-1]])) < 0.5
