@@ -13,8 +13,8 @@ product of 450- by 900-bit coefficients 410 us) against 1-30 us of arithmetic.  
   offsets), multiplied once by GMP, and read back the same way: adding ``h`` to every slot of the
   product puts each coefficient ``c_k + h`` in ``[1, 2^w)`` when ``|c_k| < 2^(w-1)``, so
   ``gmpy2.unpack`` reads the slots with no borrows (common practice, no source);
-* int64 operands whose sums stay below ``2^127`` go to the compiled 128-bit schoolbook rows of
-  :func:`polyconv.engines.ntt_batch.multiply_rows_exact` when the kernels are loaded.
+* short int64 products whose sums stay below ``2^127`` go to the compiled 128-bit schoolbook
+  rows (:func:`polyconv.pipeline.small.wide_rows`) when the kernels are loaded.
 
 Results are lists of Python ints (never gmpy2.mpz in numpy arrays: an object array of 61 mpz
 costs 47 us to fill against 1 us for ints, measured).
@@ -27,13 +27,14 @@ from functools import lru_cache
 import gmpy2
 import numpy as np
 
-from ..engines import jit_state, ntt_batch
+from ..pipeline import small
 
 #: Products whose packed operands hold at most this many bits each take :func:`product_values`
 #: (beyond, the planned engines' byte rows, two-point scheme and threads pay).
 SMALL_PACKED_BITS = 2**17
-#: int64 products with at most this many multiply-adds use the 128-bit rows (ntt_batch's limit).
-ROWS_128_WORK = ntt_batch.SCHOOLBOOK_WORK_128
+#: int64 products with at most this many multiply-adds use the 128-bit rows (beyond, one GMP
+#: product is faster: measured, 511 x 511 of 40-bit coefficients, rows 300 us, GMP 150 us).
+ROWS_128_WORK = 128 * 128
 
 
 @lru_cache(maxsize=128)
@@ -87,8 +88,10 @@ def objects(values: list) -> np.ndarray:
 
 
 def bits_of(values) -> int:
-    """``b`` with every ``|v| < 2^b``."""
-    return max(abs(int(v)) for v in values).bit_length() if len(values) else 0
+    """``b`` with every ``|v| < 2^b`` (a list or an object array of Python ints)."""
+    if isinstance(values, np.ndarray):
+        values = values.tolist()
+    return max(max(values), -min(values)).bit_length() if values else 0
 
 
 def product(x: np.ndarray, y: np.ndarray, bits: int, count: int | None = None
@@ -98,9 +101,9 @@ def product(x: np.ndarray, y: np.ndarray, bits: int, count: int | None = None
     with the kernels loaded); None otherwise.  ``bits`` as in :func:`product_values`."""
     n1, n2 = x.shape[0], y.shape[0]
     if (bits < 127 and x.dtype == np.int64 and y.dtype == np.int64
-            and n1 * n2 <= ROWS_128_WORK and jit_state.state() == "compiled"):
-        keep = None if count is None or count >= n1 + n2 - 1 else count
-        return ntt_batch.multiply_rows_exact(x, y, 1 << bits, keep, as_int64=False)[0]
+            and n1 * n2 <= ROWS_128_WORK and small.batch_kernels() is not None):
+        full = n1 + n2 - 1
+        return small.wide_rows(x, y, None, full if count is None else min(count, full))
     if not is_small(n1, n2, bits):
         return None
     xs = x.tolist()

@@ -53,7 +53,7 @@ _LIMIT_128 = 2**127
 _batch = None  # the batched kernel module, once loaded in this process
 
 
-def _kernels():
+def batch_kernels():
     """The module of ``rows_schoolbook_128`` when the kernels are ready here, else None."""
     global _batch
     if _batch is None and jit_state.state() == "compiled":
@@ -108,9 +108,10 @@ def _rows(x) -> np.ndarray:
     return (x if x.flags.c_contiguous else x.copy()).reshape(1, -1)
 
 
-def _wide_rows(x, y, m: int | None, count: int) -> np.ndarray:
-    """The product of int64 operands whose sums stay below ``2^127`` by the 128-bit compiled
-    rows: Python ints (``high 2^64 + low``), or their residues modulo ``m``."""
+def wide_rows(x, y, m: int | None, count: int) -> np.ndarray:
+    """The product (first ``count`` coefficients) of int64 operands (1-D arrays or lists) whose
+    sums stay below ``2^127`` by the 128-bit compiled rows: Python ints (``high 2^64 + low``),
+    or their residues modulo ``m``.  :func:`batch_kernels` must have returned the kernels."""
     high = np.empty((1, count), dtype=np.uint64)
     low = np.empty((1, count), dtype=np.uint64)
     _batch.rows_schoolbook_128(_rows(x), _rows(y), high, low)
@@ -185,9 +186,9 @@ def tiny_product(a, b, mode: str, method: str, modulus, length, axis) -> np.ndar
         return out
     if work > PYTHON_WORK:
         ready = (-INT64_LIMIT <= min(lo_x, lo_y) and max(hi_x, hi_y) < INT64_LIMIT
-                 and (_batch is not None or _kernels() is not None))  # int64, kernels loaded
+                 and (_batch is not None or batch_kernels() is not None))  # int64, kernels loaded
         if ready and bound < _LIMIT_128 and work <= (WORK_128 if m is None else 4 * PYTHON_WORK):
-            return _wide_rows(x, y, m, n1 + n2 - 1)
+            return wide_rows(x, y, m, n1 + n2 - 1)
         if work > 4 * PYTHON_WORK:  # wide and not tiny: the compiled primes, else planning
             if ready and (m is None or m < ntt_compiled.KERNEL_MODULUS_LIMIT):
                 return _compiled(x, y, m, bound)
