@@ -30,8 +30,12 @@ import numpy as np
 from ..pipeline import small
 
 #: Products whose packed operands hold at most this many bits each take :func:`product_values`
-#: (beyond, the planned engines' byte rows, two-point scheme and threads pay).
-SMALL_PACKED_BITS = 2**17
+#: (beyond, the planned engines' byte rows and two-point scheme on two threads).  Measured,
+#: power over Z, ms at limits 2^17 / 2^19 / 2^21 / 2^23, busy machine, best of 7 interleaved:
+#: 16 terms of 64 bits ^50 15.6 / 11.7 / 5.9 / 9.0; 64 terms of 64 bits ^8 1.18 / 0.71 / 0.65 /
+#: 0.63; 256 terms of 64 bits ^4 1.54 / 0.87 / 0.78 / 0.76 (the helper thread of the two-point
+#: scheme finds no free core when the machine is busy).
+SMALL_PACKED_BITS = 2**21
 #: int64 products with at most this many multiply-adds use the 128-bit rows (beyond, one GMP
 #: product is faster: measured, 511 x 511 of 40-bit coefficients, rows 300 us, GMP 150 us).
 ROWS_128_WORK = 128 * 128
@@ -96,16 +100,20 @@ def bits_of(values) -> int:
 
 def product(x: np.ndarray, y: np.ndarray, bits: int, count: int | None = None
             ) -> np.ndarray | None:
-    """The product (first ``count`` coefficients) of 1-D integer arrays (int64 or Python ints)
-    as an object array, when short (:func:`is_small`; or int64 operands for the 128-bit rows
-    with the kernels loaded); None otherwise.  ``bits`` as in :func:`product_values`."""
+    """The product (first ``count`` coefficients, zero padded beyond the full product) of 1-D
+    integer arrays (int64 or Python ints) as an object array, when short (:func:`is_small`; or
+    int64 operands for the 128-bit rows with the kernels loaded); None otherwise.  ``bits`` as
+    in :func:`product_values`."""
     n1, n2 = x.shape[0], y.shape[0]
+    full = n1 + n2 - 1
     if (bits < 127 and x.dtype == np.int64 and y.dtype == np.int64
             and n1 * n2 <= ROWS_128_WORK and small.batch_kernels() is not None):
-        full = n1 + n2 - 1
-        return small.wide_rows(x, y, None, full if count is None else min(count, full))
-    if not is_small(n1, n2, bits):
+        out = small.wide_rows(x, y, None, full if count is None else min(count, full))
+    elif is_small(n1, n2, bits):
+        xs = x.tolist()
+        out = objects(product_values(xs, xs if y is x else y.tolist(), bits, count))
+    else:
         return None
-    xs = x.tolist()
-    ys = xs if y is x else y.tolist()
-    return objects(product_values(xs, ys, bits, count))
+    if count is not None and count > full:  # zero padded, as convolve(length=) does
+        out = np.concatenate([out, np.zeros(count - full, dtype=object)])
+    return out

@@ -67,5 +67,14 @@ def test_product_routes_equal_flint(batch_kernels):
 
 
 def test_long_products_are_declined():
-    x = np.array([3 << 2000] * 200, dtype=object)
+    x = np.array([3 << 2000] * 600, dtype=object)  # 600 slots of 4021 bits: over the limit
     assert small_products.product(x, x, 4020) is None
+
+
+def test_truncation_beyond_the_full_product_is_zero_padded():
+    """length above n1 + n2 - 1 pads with zeros, as polyconv.convolve(length=) does."""
+    ring = _Integers()
+    x = np.array([3 << 100, -1], dtype=object)
+    y = np.array([5, 7 << 90], dtype=object)
+    out = ring.mul(x, y, length=6)
+    assert [int(v) for v in out] == _flint(x.tolist(), y.tolist()) + [0, 0, 0]
