@@ -267,6 +267,8 @@ class _Wide:
         if x.dtype == np.int64:
             top = max(int(x.max()), -1 - int(x.min())) if x.size else 0
             return cls(x, None, top.bit_length())
+        if x.dtype == object and x.size:  # Python ints: byte rows only if a long product needs
+            return cls(None, None, small_products.bits_of(x), x)
         rows = _intpack.values_to_rows(x)
         return cls(None, rows, _intpack.row_bits(rows))
 
