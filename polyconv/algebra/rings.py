@@ -27,6 +27,9 @@ from . import small_products
 # ----------------------------------------------------------------------------- product counting
 
 _product_log: list | None = None
+#: int64 products of at most this many multiply-adds whose sums fit int64 are summed directly by
+#: numpy.convolve (1-4 us up to 64 x 64, against 5-10 us through the batched kernels' wrapper)
+_DIRECT_WORK = 64 * 64
 
 
 @contextmanager
@@ -81,6 +84,13 @@ def _small_product(x: np.ndarray, y: np.ndarray, modulus: int | None, length: in
     if modulus is not None and magnitudes != (modulus - 1, modulus - 1):
         return None
     n1, n2 = x.shape[0], y.shape[0]
+    if (modulus is None and magnitudes is not None and n1 * n2 <= _DIRECT_WORK
+            and x.dtype == np.int64 and y.dtype == np.int64
+            and min(n1, n2) * magnitudes[0] * magnitudes[1] < _INT64_LIMIT):
+        out = np.convolve(x, y)  # no partial sum leaves int64: direct summation, ~1 ns a term
+        if mode == "valid":
+            return out[min(n1, n2) - 1: max(n1, n2)]
+        return out if length is None else _fit(out, length)
     keep = max(n1, n2) if mode == "valid" else length
     out = ntt_batch.small_product(x, y, modulus, keep, magnitudes=magnitudes)
     if out is None or mode == "full":

@@ -16,7 +16,7 @@ import numpy as np
 from ..numerics.limits import max_abs
 from .checks import _check_chain, _check_length, _check_modulus, _sequence
 from .exact_quotient import series_inverse
-from .rings import _fit, _Integers, _not_invertible_message, _Ring, _ring_for
+from .rings import _INT64_LIMIT, _fit, _Integers, _not_invertible_message, _Ring, _ring_for
 
 # ----------------------------------------------------------------------------- inverse series
 
@@ -100,6 +100,12 @@ def _inverse_base(ring: _Ring, a: np.ndarray, n: int, first) -> np.ndarray:
     for k in range(1, n):
         value = -first * sum(map(operator.mul, coeffs[1:k + 1], reversed(b)))  # a_i b_(k-i)
         b.append(value % m if m is not None else value)
+    if isinstance(ring, _Integers):  # Python ints: int64 when every one fits
+        if max(max(b), -min(b)) < _INT64_LIMIT:
+            return np.array(b, dtype=np.int64)
+        out = np.empty(n, dtype=object)
+        out[:] = b
+        return out
     return ring.to_result(ring.convert(np.array(b, dtype=object)))
 
 
