@@ -97,8 +97,9 @@ def _inverse_base(ring: _Ring, a: np.ndarray, n: int, first) -> np.ndarray:
     coeffs = a[:n].tolist() + [0] * max(0, n - a.shape[0])
     m = ring.modulus
     b = [first]
-    for k in range(1, n):
-        value = -first * sum(map(operator.mul, coeffs[1:k + 1], reversed(b)))  # a_i b_(k-i)
+    tail = coeffs[1:n]  # map stops at the shorter: a_i b_(k-i) for i = 1..k
+    for _ in range(1, n):
+        value = -first * sum(map(operator.mul, tail, reversed(b)))
         b.append(value % m if m is not None else value)
     if isinstance(ring, _Integers):  # Python ints: int64 when every one fits
         if max(max(b), -min(b)) < _INT64_LIMIT:
