@@ -229,8 +229,13 @@ class _Integers(_Ring):
         return np.zeros(n, dtype=np.int64)
 
     def to_result(self, x: np.ndarray) -> np.ndarray:
-        if x.dtype == object and max_abs(x) < _INT64_LIMIT:
-            return x.astype(np.int64)
+        if x.dtype != object:
+            return x
+        if x.ndim != 1 or not x.size:
+            return x.astype(np.int64) if max_abs(x) < _INT64_LIMIT else x
+        values = x.tolist()  # list min/max: C loops, no numpy object reductions
+        if max(max(values), -min(values)) < _INT64_LIMIT:
+            return np.array(values, dtype=np.int64)
         return x
 
     # Work form: byte rows (see polyconv.engines._intpack), so that products whose coefficients
