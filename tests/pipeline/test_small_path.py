@@ -104,7 +104,8 @@ def test_wide_rows_route_equals_flint(batch_kernels, n1, n2, bits, m):
         if trial == 0:
             a[:] = -top  # the most negative entries: the extreme two-word sums
             b[:] = -top
-        out = convolve(a, b, modulus=m)
+        x, y = (a.tolist(), b.tolist()) if trial % 2 else (a, b)  # lists of ints too
+        out = convolve(x, y, modulus=m)
         assert [int(v) for v in out] == _flint(a.tolist(), b.tolist(), m)
-        planned, _ = convolve_prepared(a, b, modulus=m)
+        planned, _ = convolve_prepared(x, y, modulus=m)
         assert out.dtype == planned.dtype
