@@ -36,6 +36,9 @@ from ..pipeline import small
 #: 0.63; 256 terms of 64 bits ^4 1.54 / 0.87 / 0.78 / 0.76 (the helper thread of the two-point
 #: scheme finds no free core when the machine is busy).
 SMALL_PACKED_BITS = 2**21
+#: From this many bits per packed operand :func:`product_values` evaluates at two points (two
+#: products of half the size; GMP's cost per bit grows with the size).
+TWO_POINT_BITS = 2**18
 #: int64 products with at most this many multiply-adds use the 128-bit rows (beyond, one GMP
 #: product is faster: measured, 511 x 511 of 40-bit coefficients, rows 300 us, GMP 150 us).
 ROWS_128_WORK = 128 * 128
@@ -77,11 +80,47 @@ def product_values(x: list, y: list, bits: int, count: int | None = None) -> lis
     n = len(x) + len(y) - 1
     count = n if count is None else min(count, n)
     w = bits + 1
+    if max(len(x), len(y)) * w >= TWO_POINT_BITS:
+        return _two_point(x, y, bits, count)
     h = 1 << bits
     packed = _packed(x, w, h)
     z = gmpy2.square(packed) if y is x else packed * _packed(y, w, h)
+    return _digits(z, w, count)
+
+
+def _digits(z: gmpy2.mpz, w: int, count: int) -> list:
+    """The signed ``w``-bit slots ``0..count-1`` of ``z`` (each in ``(-2^(w-1), 2^(w-1))``)."""
+    h = 1 << (w - 1)
     digits = gmpy2.unpack(gmpy2.f_mod_2exp(z + _offsets(count, w), w * count), w)
     return [int(d) - h for d in digits]  # every slot is >= 1: unpack returns all count
+
+
+def _two_point(x: list, y: list, bits: int, count: int) -> list:
+    """:func:`product_values` by evaluation at ``2^s`` and ``-2^s`` with ``2s >= bits + 1``
+    (D. Harvey, J. Symbolic Comput. 44 (2009), "KS2"): ``x(+-2^s) = X_e +- 2^s X_o`` from
+    the even and odd coefficients packed in ``2s``-bit slots, two products of half the size,
+    and ``(z_+ + z_-) / 2``, ``(z_+ - z_-) / 2^(s+1)`` are the even and odd coefficients in
+    ``2s``-bit slots."""
+    s = (bits + 2) // 2
+    w = 2 * s
+    h = 1 << (w - 1)
+
+    def at_both(v: list) -> tuple:
+        even = _packed(v[0::2], w, h)
+        odd = _packed(v[1::2], w, h) << s if len(v) > 1 else 0
+        return even + odd, even - odd
+
+    xp, xm = at_both(x)
+    if y is x:
+        zp, zm = gmpy2.square(xp), gmpy2.square(xm)
+    else:
+        yp, ym = at_both(y)
+        zp, zm = xp * yp, xm * ym
+    out = [0] * count
+    out[0::2] = _digits((zp + zm) >> 1, w, (count + 1) // 2)
+    if count > 1:
+        out[1::2] = _digits((zp - zm) >> (s + 1), w, count // 2)
+    return out
 
 
 def objects(values: list) -> np.ndarray:

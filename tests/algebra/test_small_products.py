@@ -27,9 +27,12 @@ def _bits(x, y):
     return max(min(len(x), len(y)) * top_x * top_y, top_x, top_y).bit_length()
 
 
+@pytest.mark.parametrize("two_point", [False, True])
 @pytest.mark.parametrize("n1,n2,bits", [(1, 1, 70), (3, 2, 100), (16, 31, 300), (64, 64, 900),
                                         (200, 7, 65)])
-def test_product_values_equals_flint(n1, n2, bits):
+def test_product_values_equals_flint(monkeypatch, n1, n2, bits, two_point):
+    """One product, and (forced at every size) the evaluation at +-2^s."""
+    monkeypatch.setattr(small_products, "TWO_POINT_BITS", 1 if two_point else 2**60)
     rng = np.random.default_rng(n1 + 7 * n2 + bits)
     for trial in range(4):
         x = [int(v) << (bits - 40) for v in rng.integers(-2**39, 2**39, n1)]
