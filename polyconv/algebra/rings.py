@@ -182,20 +182,14 @@ class _Integers(_Ring):
 
     def mul(self, x: np.ndarray, y: np.ndarray, *, length: int | None = None,
             mode: str = "full") -> np.ndarray:
-        """Short products beyond int64 by :mod:`polyconv.algebra.small_products` (no planning);
+        """Short products beyond int64 by :func:`small_products.ring_product` (no planning);
         the rest through :func:`_mul`."""
-        n1, n2 = x.shape[0], y.shape[0]
-        if (mode == "full" or (mode == "valid" and length is None)) and (
-                x.dtype == object or y.dtype == object or max(n1, n2) <= 512):
-            bound = min(n1, n2) * max_abs(x) * max_abs(y)
-            if bound >= _INT64_LIMIT:
-                keep = length if mode == "full" else max(n1, n2)
-                out = small_products.product(x, y, bound.bit_length(), keep)
-                if out is not None:
-                    if _product_log is not None:
-                        _product_log.append((n1, n2, mode, length))
-                    return out if mode == "full" else out[min(n1, n2) - 1:]
-        return _mul(x, y, None, length=length, mode=mode)
+        out = small_products.ring_product(x, y, length, mode)
+        if out is None:
+            return _mul(x, y, None, length=length, mode=mode)
+        if _product_log is not None:
+            _product_log.append((x.shape[0], y.shape[0], mode, length))
+        return out
 
     def convert(self, x: np.ndarray) -> np.ndarray:
         if x.dtype == object:

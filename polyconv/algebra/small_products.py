@@ -27,6 +27,7 @@ from functools import lru_cache
 import gmpy2
 import numpy as np
 
+from ..numerics.limits import INT64_LIMIT, max_abs
 from ..pipeline import small
 
 #: Products whose packed operands hold at most this many bits each take :func:`product_values`
@@ -156,3 +157,22 @@ def product(x: np.ndarray, y: np.ndarray, bits: int, count: int | None = None
     if count is not None and count > full:  # zero padded, as convolve(length=) does
         out = np.concatenate([out, np.zeros(count - full, dtype=object)])
     return out
+
+
+def ring_product(x: np.ndarray, y: np.ndarray, length: int | None, mode: str
+                 ) -> np.ndarray | None:
+    """The exact ring's product (``mode`` "full", truncated to ``length``, or "valid") of 1-D
+    int64 / object arrays when its bound ``min(n1, n2) max|x| max|y|`` is beyond int64 and
+    :func:`product` takes it; None otherwise (int64 products and long ones are planned)."""
+    n1, n2 = x.shape[0], y.shape[0]
+    if not (mode == "full" or (mode == "valid" and length is None)) or (
+            x.dtype != object and y.dtype != object and max(n1, n2) > 512):
+        return None
+    bound = min(n1, n2) * max_abs(x) * max_abs(y)
+    if bound < INT64_LIMIT:
+        return None
+    out = product(x, y, bound.bit_length(), length if mode == "full" else max(n1, n2))
+    if out is None or mode == "full":
+        return out
+    return out[min(n1, n2) - 1:]
+
