@@ -3,22 +3,22 @@
     python bench/exactness_campaign.py [--products 100000] [--seconds 3600] [--seed 1]
 
 Each draw picks lengths (mostly short, one in ten up to 2^12, one in fifty up to 2^15), an
-adversarial magnitude pattern (random, all at the maximum, alternating signs, zeros, a single huge
-value among small ones, values near 2^63, 2^64 or 2^1024, sparse), an operand form (numpy int64 /
-uint64 / object arrays, or plain lists of Python ints) and a modulus class (none, small, NTT
-primes, odd moduli between 2^31 and 2^52, powers of two, 2^62 - 57, huge primes, even
+adversarial magnitude pattern (random, all at the maximum, alternating signs, zeros, a single
+huge value among small ones, values near 2^63, 2^64 or 2^1024, sparse), an operand form (numpy
+int64 / uint64 / object arrays, or plain lists of Python ints) and a modulus class (none, small,
+NTT primes, odd moduli between 2^31 and 2^52, powers of two, 2^62 - 57, huge primes, even
 composites); it forces every exact engine ("direct-exact", "fft-exact", "limbs", "kronecker",
-"ntt", and the compiled "ntt-compiled" in all its modes: one NTT prime, exact from one or several
-primes with Garner CRT, any modulus reduced inside or after the recombination; "ntt-batch", the
-batched engine, on its one-row path; an engine that
-refuses with a ValueError is skipped) and "auto", and compares every
-coefficient with python-flint's fmpz_poly product (reduced by the modulus).  One draw in fifty
-also checks ``polyconv.product`` and ``polyconv.power``.  Stops at the first mismatch with a
-reproducer, or when ``--products`` products or ``--seconds`` are reached; prints the tally per
-engine, per compiled-engine mode and per modulus class.  The compiled kernels are loaded
-(compiled or from the cache) before the clock starts, and the campaign refuses to count a
-compiled product when they did not load (the engine would have fallen back to numpy code).
-Long campaigns live here, not in the test suite.
+"ntt", and the compiled "ntt-compiled" in all its modes: one NTT prime, exact from one or
+several primes with Garner CRT, any modulus reduced inside or after the recombination;
+"ntt-batch", the batched engine, on its one-row path; an engine that refuses with a ValueError
+is skipped) and "auto", and compares every coefficient with python-flint's fmpz_poly product
+(reduced by the modulus). One draw in fifty also checks ``polyconv.product``,
+``polyconv.power``, and over the integers ``inverse_series`` and ``poly_divmod``. Stops at the
+first mismatch with a reproducer, or when ``--products`` products or ``--seconds`` are reached;
+prints the tally per engine, per compiled-engine mode and per modulus class. The compiled
+kernels are loaded (compiled or from the cache) before the clock starts, and the campaign
+refuses to count a compiled product when they did not load (the engine would have fallen back to
+numpy code). Long campaigns live here, not in the test suite.
 """
 
 from __future__ import annotations
@@ -206,7 +206,7 @@ def main() -> int:
     print(f"{sum(engines.values())} exact products in {draws} draws ({seconds:.0f} s), "
           "0 mismatches against python-flint")
     print("per engine:")
-    for engine in ENGINES + ("product", "power"):
+    for engine in ENGINES + ("product", "power", "inverse_series", "poly_divmod"):
         print(f"  {engine:16s} {engines[engine]}")
     print("ntt-compiled per mode:")
     for mode in COMPILED_MODES:
@@ -248,6 +248,37 @@ def check_chain(rng: random.Random, tally: Counter, seed: int) -> bool:
         print(f"MISMATCH power k={k} n={len(base)} seed={seed}")
         return False
     tally["power"] += 1
+    return check_division(rng, tally, seed, factors[-1])
+
+
+def check_division(rng: random.Random, tally: Counter, seed: int, values: np.ndarray) -> bool:
+    """inverse_series and poly_divmod over the integers (recurrence blocks, halving, short
+    products beyond int64): ``a b = 1 mod x^n`` by flint's product, and flint's divmod."""
+    n = rng.randint(1, 400)
+    a = [rng.choice([1, -1])] + [int(v) for v in values[1:n]]
+    b = [int(v) for v in polyconv.inverse_series(np.array(a, dtype=np.int64), n)]
+    check = ([int(v) for v in (flint.fmpz_poly(a) * flint.fmpz_poly(b)).coeffs()] + [0] * n)[:n]
+    if len(b) != n or check != [1] + [0] * (n - 1):
+        print(f"MISMATCH inverse_series n={n} seed={seed}")
+        return False
+    tally["inverse_series"] += 1
+    bits = rng.choice([8, 40, 100])
+    na, nd = rng.randint(2, 700), rng.randint(2, 300)
+    top = 2**bits
+    dividend = [rng.randrange(-top, top) for _ in range(na)]
+    divisor = [rng.randrange(-top, top) for _ in range(nd - 1)] + [rng.choice([1, -1])]
+    q, r = polyconv.poly_divmod(np.array(dividend, dtype=object),
+                                np.array(divisor, dtype=object))
+    fq, fr = divmod(flint.fmpz_poly(dividend), flint.fmpz_poly(divisor))
+    want_q = [int(v) for v in fq.coeffs()] or [0]
+    want_r = [int(v) for v in fr.coeffs()] or [0]
+    got_q, got_r = [int(v) for v in q], [int(v) for v in r]
+    if (got_q + [0] * na)[:max(len(got_q), len(want_q))] != (
+            want_q + [0] * na)[:max(len(got_q), len(want_q))] or (
+            got_r + [0] * nd)[:nd] != (want_r + [0] * nd)[:nd]:
+        print(f"MISMATCH poly_divmod na={na} nd={nd} bits={bits} seed={seed}")
+        return False
+    tally["poly_divmod"] += 1
     return True
 
 

@@ -10,13 +10,11 @@ quotient (divide and conquer), so every product has the true sizes of its operan
 
 from __future__ import annotations
 
-import operator
-
-import gmpy2
 import numpy as np
 
 from ..numerics.limits import max_abs
 from .checks import _check_modulus, _combine, _sequence
+from .exact_quotient import quotient_bits, quotient_halving
 from .rings import (
     _INT64_LIMIT,
     _as_objects,
@@ -32,9 +30,6 @@ from .series import _inverse
 
 #: quotients at most this long are computed by schoolbook long division
 _SCHOOLBOOK_QUOTIENT = 32
-#: reversed quotients at most this long are solved by their recurrence in the exact halving
-#: (measured at 600/241 and 1200/481 with 100-bit coefficients: 32 beats 8 by 1.2-1.3x)
-_HALVING_BASE = 256
 
 
 class ZeroDivisorError(ZeroDivisionError, ValueError):
@@ -189,7 +184,8 @@ def _divmod_integers(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarr
     bound of :func:`quotient_bits` proves that; when it is no larger than twice the typical size
     (the guess below), one Newton quotient modulo ``2^B`` is the answer.  Otherwise the guess is
     tried once and proved by the full product ``q b``; if the proof fails the coefficients
-    really grow, and :func:`_quotient_halving` computes the quotient exactly instead.
+    really grow, and :func:`~polyconv.algebra.exact_quotient.quotient_halving` computes the
+    quotient exactly instead.
     """
     integers = _Integers()
     d = b.shape[0] - 1
@@ -205,7 +201,7 @@ def _divmod_integers(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarr
     if not np.any(diff[d:] != 0):
         return q, diff[:d]
     sign = int(b[-1])  # +-1: divide sign*a by the monic sign*b, then r = sign * r'
-    q = _quotient_halving(_as_objects(a) * sign, _as_objects(b) * sign)
+    q = quotient_halving(_as_objects(a) * sign, _as_objects(b) * sign)
     r = integers.sub(a[:d], integers.mul(q[:d], b[:d], length=d))
     return q, r
 
@@ -214,100 +210,6 @@ def _quotient_mod_power(a: np.ndarray, b: np.ndarray, bits: int) -> np.ndarray:
     """The quotient modulo ``2^bits`` by Newton's method, in ``[-2^(bits-1), 2^(bits-1))``."""
     ring = _Modular(1 << bits)
     return _symmetric(_quotient_newton(ring, ring.convert(a), ring.convert(b)), 1 << bits)
-
-
-def quotient_bits(a: np.ndarray, b: np.ndarray, limit: int | None = None) -> int:
-    """A bound ``beta`` with ``|q_k| < 2^beta`` for the quotient of ``a`` by ``b`` (leading
-    coefficient ``+-1``).
-
-    With ``rev(b) = +-(1 + c_1 x + ... + c_d x^d)`` the reversed quotient is
-    ``rev(a) h mod x^qlen`` with ``h = 1 / (1 + c_1 x + ...)``, whose coefficients satisfy
-    ``|h_k| <= sum_i |c_i| |h_(k-i)|``.  For any ``rho >= 1`` with ``sum_i |c_i| rho^-i <= 1``
-    this gives ``|h_k| <= rho^k`` by induction, hence ``|q_k| <= ||a||_1 rho^(qlen - 1)``.
-    ``rho = 2 max_i |c_i|^(1/i)`` qualifies (each term is at most ``2^-i``; Fujiwara's root
-    bound, Monatsh. Math. 1916); the smallest qualifying ``rho`` is found by bisection on
-    ``log2 rho`` between ``max_i log2|c_i| / i`` and that, each test keeping a relative margin
-    of ``2^-20`` over float rounding.  With ``limit``, the bisection is skipped when even its
-    lower end would give more than ``limit`` bits: the (valid, looser) Fujiwara bound is
-    returned then.
-    """
-    d = b.shape[0] - 1
-    qlen = a.shape[0] - d
-    index, logs = _log2_coefficients(b[:d][::-1])  # i and log2|c_i| of the nonzero c_i
-    r = 0.0
-    norm_bits = max_abs(a).bit_length() + a.shape[0].bit_length()  # ||a||_1 <= n max|a|
-    if index.size:
-        low = float(np.max(logs / index))
-        high = low + 1.0  # Fujiwara: sum <= 1 - 2^-d there
-        steps = 0 if limit is not None and norm_bits + low * (qlen - 1) > limit else 40
-        for _ in range(steps):
-            mid = 0.5 * (low + high)
-            if _sum_terms(logs, index, mid) <= 1.0 - 2.0**-20:
-                high = mid
-            else:
-                low = mid
-        r = max(high, 0.0)
-    return norm_bits + int(np.ceil(r * (qlen - 1) * (1 + 2.0**-30))) + 1
-
-
-def _log2_coefficients(c: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Positions ``i >= 1`` and ``log2|c_(i-1)|`` (rounded up) of the nonzero entries of ``c``;
-    vectorised for int64 (float64 log2 of values below 2^63, relative margin ``2^-40``)."""
-    if c.dtype == np.int64:
-        nonzero = np.flatnonzero(c)
-        values = np.abs(c[nonzero].astype(np.float64))
-        logs = np.log2(values)
-        return (nonzero + 1).astype(np.float64), logs + np.abs(logs) * 2.0**-40 + 2.0**-40
-    coeffs = [abs(int(v)) for v in c.tolist()]
-    index = np.array([i for i, v in enumerate(coeffs, start=1) if v], dtype=np.float64)
-    return index, np.array([_log2_up(v) for v in coeffs if v], dtype=np.float64)
-
-
-def _log2_up(c: int) -> float:
-    """``log2 c`` rounded up by a relative ``2^-40`` (exact powers of two stay close)."""
-    bits = c.bit_length()
-    if bits > 1000:  # float(c) would overflow: scale first
-        return bits - 1000 + _log2_up(c >> (bits - 1000)) + 2.0**-40
-    value = np.log2(float(c))
-    return float(value + abs(value) * 2.0**-40 + 2.0**-40)
-
-
-def _sum_terms(logs: np.ndarray, index: np.ndarray, r: float) -> float:
-    """``sum_i 2^(log2|c_i| - i r)`` (the terms over ``rho = 2^r``), rounded up slightly."""
-    return float(np.sum(np.exp2(np.minimum(logs - index * r, 60.0)))) * (1 + 2.0**-30)
-
-
-def _quotient_halving(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """The exact quotient of ``a`` by a monic ``b`` (object arrays), from the reversed series
-    ``Q = rev(a) / rev(b) mod x^qlen`` computed by halving: the low half ``Q_lo`` first, then
-    ``Q_hi = (rev(a) - rev(b) Q_lo) / x^k / rev(b)`` (divide and conquer on the coefficient
-    recurrence ``Q_k = A_k - sum_i B_i Q_(k-i)``, as in recursive division; von zur Gathen &
-    Gerhard, *Modern Computer Algebra*, 3rd ed., section 9.1).  Each product multiplies the
-    operands at their true sizes, so growing quotients cost what their coefficients hold."""
-    d = b.shape[0] - 1
-    qlen = a.shape[0] - d
-    rev_b = np.fromiter(map(gmpy2.mpz, b[::-1].tolist()), dtype=object, count=d + 1)
-    rev_q = _halve(a[::-1][:qlen].copy(), rev_b, qlen, _Integers())
-    out = np.empty(qlen, dtype=object)
-    out[:] = [int(v) for v in rev_q[::-1].tolist()]  # Python ints out, as everywhere
-    return out
-
-
-def _halve(top: np.ndarray, rev_b: np.ndarray, m: int, integers: _Integers) -> np.ndarray:
-    """``top / rev_b mod x^m`` exactly (``rev_b[0] = 1``; gmpy2.mpz entries, whose products
-    of a wide by a narrow integer the base-case recurrence does in GMP; object arrays of mpz
-    are built by ``numpy.fromiter``: filling one from a list costs ~0.8 us per entry)."""
-    if m <= _HALVING_BASE:
-        tail = rev_b[1:m].tolist()
-        q: list = []
-        for v in top[:m].tolist():  # Q_k = A_k - sum_(i >= 1) B_i Q_(k-i)
-            q.append(v - sum(map(operator.mul, tail, reversed(q))))
-        return np.fromiter(q, dtype=object, count=m)
-    k = m // 2
-    low = _halve(top, rev_b, k, integers)
-    carry = integers.mul(rev_b[:m], low, length=m)
-    high = _halve(_as_objects(top[k:m]) - _as_objects(carry[k:m]), rev_b, m - k, integers)
-    return np.concatenate([low, high])
 
 
 def _symmetric(x: np.ndarray, m: int) -> np.ndarray:

@@ -13,8 +13,8 @@ product of 450- by 900-bit coefficients 410 us) against 1-30 us of arithmetic.  
   offsets), multiplied once by GMP, and read back the same way: adding ``h`` to every slot of the
   product puts each coefficient ``c_k + h`` in ``[1, 2^w)`` when ``|c_k| < 2^(w-1)``, so
   ``gmpy2.unpack`` reads the slots with no borrows (common practice, no source);
-* int64 operands whose sums stay below ``2^127`` go to the compiled 128-bit schoolbook rows of
-  :func:`polyconv.engines.ntt_batch.multiply_rows_exact` when the kernels are loaded.
+* short int64 products whose sums stay below ``2^127`` go to the compiled 128-bit schoolbook
+  rows (:func:`polyconv.pipeline.small.wide_rows`) when the kernels are loaded.
 
 Results are lists of Python ints (never gmpy2.mpz in numpy arrays: an object array of 61 mpz
 costs 47 us to fill against 1 us for ints, measured).
@@ -27,13 +27,22 @@ from functools import lru_cache
 import gmpy2
 import numpy as np
 
-from ..engines import jit_state, ntt_batch
+from ..numerics.limits import INT64_LIMIT, max_abs
+from ..pipeline import small
 
 #: Products whose packed operands hold at most this many bits each take :func:`product_values`
-#: (beyond, the planned engines' byte rows, two-point scheme and threads pay).
-SMALL_PACKED_BITS = 2**17
-#: int64 products with at most this many multiply-adds use the 128-bit rows (ntt_batch's limit).
-ROWS_128_WORK = ntt_batch.SCHOOLBOOK_WORK_128
+#: (beyond, the planned engines' byte rows and two-point scheme on two threads).  Measured,
+#: power over Z, ms at limits 2^17 / 2^19 / 2^21 / 2^23, busy machine, best of 7 interleaved:
+#: 16 terms of 64 bits ^50 15.6 / 11.7 / 5.9 / 9.0; 64 terms of 64 bits ^8 1.18 / 0.71 / 0.65 /
+#: 0.63; 256 terms of 64 bits ^4 1.54 / 0.87 / 0.78 / 0.76 (the helper thread of the two-point
+#: scheme finds no free core when the machine is busy).
+SMALL_PACKED_BITS = 2**21
+#: From this many bits per packed operand :func:`product_values` evaluates at two points (two
+#: products of half the size; GMP's cost per bit grows with the size).
+TWO_POINT_BITS = 2**18
+#: int64 products with at most this many multiply-adds use the 128-bit rows (beyond, one GMP
+#: product is faster: measured, 511 x 511 of 40-bit coefficients, rows 300 us, GMP 150 us).
+ROWS_128_WORK = 128 * 128
 
 
 @lru_cache(maxsize=128)
@@ -72,11 +81,47 @@ def product_values(x: list, y: list, bits: int, count: int | None = None) -> lis
     n = len(x) + len(y) - 1
     count = n if count is None else min(count, n)
     w = bits + 1
+    if max(len(x), len(y)) * w >= TWO_POINT_BITS:
+        return _two_point(x, y, bits, count)
     h = 1 << bits
     packed = _packed(x, w, h)
     z = gmpy2.square(packed) if y is x else packed * _packed(y, w, h)
+    return _digits(z, w, count)
+
+
+def _digits(z: gmpy2.mpz, w: int, count: int) -> list:
+    """The signed ``w``-bit slots ``0..count-1`` of ``z`` (each in ``(-2^(w-1), 2^(w-1))``)."""
+    h = 1 << (w - 1)
     digits = gmpy2.unpack(gmpy2.f_mod_2exp(z + _offsets(count, w), w * count), w)
     return [int(d) - h for d in digits]  # every slot is >= 1: unpack returns all count
+
+
+def _two_point(x: list, y: list, bits: int, count: int) -> list:
+    """:func:`product_values` by evaluation at ``2^s`` and ``-2^s`` with ``2s >= bits + 1``
+    (D. Harvey, J. Symbolic Comput. 44 (2009), "KS2"): ``x(+-2^s) = X_e +- 2^s X_o`` from
+    the even and odd coefficients packed in ``2s``-bit slots, two products of half the size,
+    and ``(z_+ + z_-) / 2``, ``(z_+ - z_-) / 2^(s+1)`` are the even and odd coefficients in
+    ``2s``-bit slots."""
+    s = (bits + 2) // 2
+    w = 2 * s
+    h = 1 << (w - 1)
+
+    def at_both(v: list) -> tuple:
+        even = _packed(v[0::2], w, h)
+        odd = _packed(v[1::2], w, h) << s if len(v) > 1 else 0
+        return even + odd, even - odd
+
+    xp, xm = at_both(x)
+    if y is x:
+        zp, zm = gmpy2.square(xp), gmpy2.square(xm)
+    else:
+        yp, ym = at_both(y)
+        zp, zm = xp * yp, xm * ym
+    out = [0] * count
+    out[0::2] = _digits((zp + zm) >> 1, w, (count + 1) // 2)
+    if count > 1:
+        out[1::2] = _digits((zp - zm) >> (s + 1), w, count // 2)
+    return out
 
 
 def objects(values: list) -> np.ndarray:
@@ -87,22 +132,47 @@ def objects(values: list) -> np.ndarray:
 
 
 def bits_of(values) -> int:
-    """``b`` with every ``|v| < 2^b``."""
-    return max(abs(int(v)) for v in values).bit_length() if len(values) else 0
+    """``b`` with every ``|v| < 2^b`` (a list or an object array of Python ints)."""
+    if isinstance(values, np.ndarray):
+        values = values.tolist()
+    return max(max(values), -min(values)).bit_length() if values else 0
 
 
 def product(x: np.ndarray, y: np.ndarray, bits: int, count: int | None = None
             ) -> np.ndarray | None:
-    """The product (first ``count`` coefficients) of 1-D integer arrays (int64 or Python ints)
-    as an object array, when short (:func:`is_small`; or int64 operands for the 128-bit rows
-    with the kernels loaded); None otherwise.  ``bits`` as in :func:`product_values`."""
+    """The product (first ``count`` coefficients, zero padded beyond the full product) of 1-D
+    integer arrays (int64 or Python ints) as an object array, when short (:func:`is_small`; or
+    int64 operands for the 128-bit rows with the kernels loaded); None otherwise.  ``bits`` as
+    in :func:`product_values`."""
     n1, n2 = x.shape[0], y.shape[0]
+    full = n1 + n2 - 1
     if (bits < 127 and x.dtype == np.int64 and y.dtype == np.int64
-            and n1 * n2 <= ROWS_128_WORK and jit_state.state() == "compiled"):
-        keep = None if count is None or count >= n1 + n2 - 1 else count
-        return ntt_batch.multiply_rows_exact(x, y, 1 << bits, keep, as_int64=False)[0]
-    if not is_small(n1, n2, bits):
+            and n1 * n2 <= ROWS_128_WORK and small.batch_kernels() is not None):
+        out = small.wide_rows(x, y, None, full if count is None else min(count, full))
+    elif is_small(n1, n2, bits):
+        xs = x.tolist()
+        out = objects(product_values(xs, xs if y is x else y.tolist(), bits, count))
+    else:
         return None
-    xs = x.tolist()
-    ys = xs if y is x else y.tolist()
-    return objects(product_values(xs, ys, bits, count))
+    if count is not None and count > full:  # zero padded, as convolve(length=) does
+        out = np.concatenate([out, np.zeros(count - full, dtype=object)])
+    return out
+
+
+def ring_product(x: np.ndarray, y: np.ndarray, length: int | None, mode: str
+                 ) -> np.ndarray | None:
+    """The exact ring's product (``mode`` "full", truncated to ``length``, or "valid") of 1-D
+    int64 / object arrays when its bound ``min(n1, n2) max|x| max|y|`` is beyond int64 and
+    :func:`product` takes it; None otherwise (int64 products and long ones are planned)."""
+    n1, n2 = x.shape[0], y.shape[0]
+    if not (mode == "full" or (mode == "valid" and length is None)) or (
+            x.dtype != object and y.dtype != object and max(n1, n2) > 512):
+        return None
+    bound = min(n1, n2) * max_abs(x) * max_abs(y)
+    if bound < INT64_LIMIT:
+        return None
+    out = product(x, y, bound.bit_length(), length if mode == "full" else max(n1, n2))
+    if out is None or mode == "full":
+        return out
+    return out[min(n1, n2) - 1:]
+

@@ -9,7 +9,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from polyconv.algebra import division, poly_divmod
+from polyconv.algebra import division, exact_quotient, poly_divmod
 
 flint = pytest.importorskip("flint")
 
@@ -78,7 +78,7 @@ def test_halving_splits_equal_flint(monkeypatch, base):
     # the exact halving with recurrence blocks of `base` terms (None: the default) on a quotient
     # of 281 terms, longer than the default block: splits, carries and blocks all run
     if base is not None:
-        monkeypatch.setattr(division, "_HALVING_BASE", base)
+        monkeypatch.setattr(exact_quotient, "_HALVING_BASE", base)
     rng = np.random.default_rng(21)
     a = _random(rng, 340, 36)
     b = _random(rng, 59, 36) + [-1]

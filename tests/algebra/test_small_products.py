@@ -27,9 +27,12 @@ def _bits(x, y):
     return max(min(len(x), len(y)) * top_x * top_y, top_x, top_y).bit_length()
 
 
+@pytest.mark.parametrize("two_point", [False, True])
 @pytest.mark.parametrize("n1,n2,bits", [(1, 1, 70), (3, 2, 100), (16, 31, 300), (64, 64, 900),
                                         (200, 7, 65)])
-def test_product_values_equals_flint(n1, n2, bits):
+def test_product_values_equals_flint(monkeypatch, n1, n2, bits, two_point):
+    """One product, and (forced at every size) the evaluation at +-2^s."""
+    monkeypatch.setattr(small_products, "TWO_POINT_BITS", 1 if two_point else 2**60)
     rng = np.random.default_rng(n1 + 7 * n2 + bits)
     for trial in range(4):
         x = [int(v) << (bits - 40) for v in rng.integers(-2**39, 2**39, n1)]
@@ -67,5 +70,14 @@ def test_product_routes_equal_flint(batch_kernels):
 
 
 def test_long_products_are_declined():
-    x = np.array([3 << 2000] * 200, dtype=object)
+    x = np.array([3 << 2000] * 600, dtype=object)  # 600 slots of 4021 bits: over the limit
     assert small_products.product(x, x, 4020) is None
+
+
+def test_truncation_beyond_the_full_product_is_zero_padded():
+    """length above n1 + n2 - 1 pads with zeros, as polyconv.convolve(length=) does."""
+    ring = _Integers()
+    x = np.array([3 << 100, -1], dtype=object)
+    y = np.array([5, 7 << 90], dtype=object)
+    out = ring.mul(x, y, length=6)
+    assert [int(v) for v in out] == _flint(x.tolist(), y.tolist()) + [0, 0, 0]

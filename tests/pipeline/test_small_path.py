@@ -79,13 +79,16 @@ def test_bad_input_still_named():
         convolve([1, 2], [3], modulus=1)
 
 
-WIDE_CASES = [  # (n1, n2, bits, modulus): sums beyond int64, below 2^127 (128-bit rows)
+WIDE_CASES = [  # (n1, n2, bits, modulus): sums beyond int64 (128-bit rows)
     (8, 8, 62, None),
     (5, 7, 63, None),
     (16, 16, 59, None),
     (8, 8, 61, 2**61 - 1),
     (6, 9, 40, 998244353),
     (8, 8, 62, 2**63 + 29),   # residues as Python ints
+    (32, 32, 64, None),       # sums beyond 2^127: split into 32-bit halves, two 128-bit rows
+    (64, 64, 63, None),
+    (10, 40, 64, None),
 ]
 
 
@@ -101,7 +104,8 @@ def test_wide_rows_route_equals_flint(batch_kernels, n1, n2, bits, m):
         if trial == 0:
             a[:] = -top  # the most negative entries: the extreme two-word sums
             b[:] = -top
-        out = convolve(a, b, modulus=m)
+        x, y = (a.tolist(), b.tolist()) if trial % 2 else (a, b)  # lists of ints too
+        out = convolve(x, y, modulus=m)
         assert [int(v) for v in out] == _flint(a.tolist(), b.tolist(), m)
-        planned, _ = convolve_prepared(a, b, modulus=m)
+        planned, _ = convolve_prepared(x, y, modulus=m)
         assert out.dtype == planned.dtype
