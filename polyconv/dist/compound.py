@@ -137,7 +137,7 @@ def compound_lattice(counts, law: CountsLaw, severity: Lattice, method: str, siz
             errs = EnclosureSums(g, enc).profile
         else:
             g, errs = panjer_recursion(law, f, size)
-            g, errs = _beyond_support(g, errs, f, n_max)
+            g, errs, _ = _beyond_support(g, errs, f, n_max)
         r_point, r_l1 = float(np.max(errs)), float(np.sum(errs))
         r_cum = r_l1
     else:
@@ -154,6 +154,7 @@ def compound_lattice(counts, law: CountsLaw, severity: Lattice, method: str, siz
             errs = res.rounding_floor * np.exp(res.theta * (np.arange(size) - (size - 1))) \
                 + res.aliasing_floor
             r_cum = r_l1
+        g, errs, enc = _beyond_support(g, errs, f, n_max, enc)
     g = np.minimum(g, 1.0)
     if enc is not None:
         r_point, r_l1, r_cum = EnclosureSums(g, enc).ledger_numbers()
@@ -176,19 +177,25 @@ def compound_lattice(counts, law: CountsLaw, severity: Lattice, method: str, siz
     return Lattice._make(g, severity.step, 0.0, ledger, profile, l2, enc)
 
 
-def _beyond_support(g: np.ndarray, errs: np.ndarray, f: np.ndarray, n_max: float):
+def _beyond_support(g: np.ndarray, errs: np.ndarray, f: np.ndarray, n_max: float, enc=None):
     """A count bounded by ``n_max`` and a severity vector whose last positive entry is at
     ``top``: the compound of that vector is exactly 0 beyond ``n_max top`` (there the
-    recursion, unstable for ``a < 0``, only grows noise)."""
+    recursion, unstable for ``a < 0``, only grows noise, a transform its rounding); the pmf,
+    its bounds and an enclosure are set to 0 there."""
     nz = np.flatnonzero(f)
     if not math.isfinite(n_max) or not nz.size:
-        return g, errs
+        return g, errs, enc
     last = int(n_max) * int(nz[-1])
     if last + 1 < g.size:
         g, errs = g.copy(), errs.copy()
         g[last + 1:] = 0.0
         errs[last + 1:] = 0.0
-    return g, errs
+        if enc is not None:
+            center, radius = enc.center.copy(), enc.radius.copy()
+            center[last + 1:] = 0
+            radius[last + 1:] = 0.0
+            enc = Enclosure(center, radius)
+    return g, errs, enc
 
 
 def _profile(errs: np.ndarray, severity: Lattice, counts, law: CountsLaw
@@ -301,7 +308,7 @@ def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g:
         err = err * (1 + 4 * _U) + (rnd + 4 * _U) * on_grid
         moment = max(total - (on_grid - err), 1e-300)
         if untruncated(e) and e.l1 == 0 and law.tail_mass == 0:
-            moment = min(moment, tail_moment_bound(counts, law, f, h, size))
+            moment = min(moment, tail_moment_bound(law, f, h, size))
     moment2 = math.inf if not second_moment else truncated_second_moment(
         counts, law, severity, br, g, errs, h, (l1_in, cum_in, point_in), sev_mean_high)
     return ErrorLedger(point, l1, 0.0, tf, moment, cum, moment2)
