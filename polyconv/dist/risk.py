@@ -172,7 +172,7 @@ class Bracketer(ExpectationBounds):
     def _t_bounds(self) -> tuple[float, float]:
         if untruncated(self.ledger):
             return 0.0, 0.0
-        low, high = t_bounds(self.ledger, self.mass, self.n)
+        low, high = t_bounds(self.ledger, self.mass, self.n, _UL)  # a longdouble sum
         x_from = self._x_from_low()
         m = self.ledger.truncated_moment
         if x_from > 0 and math.isfinite(m):  # Markov: the truncated part lies at >= x_from

@@ -107,11 +107,12 @@ def capped(lattice):
     if led.truncated_from < n:
         raise ValueError("the truncated mass may lie on the grid (truncated_from < len); "
                          "a spliced answer needs it beyond the grid's end")
-    pmf = np.append(np.asarray(lattice.pmf), lattice.truncated_mass)
-    # the appended mass 1 - sum(pmf) errs by the cumulative bound K of the represented part plus
-    # the float rounding of the sum ((n + 2) u, any order; Higham section 4.2): per point at most
-    # that, in L1 l1 + that, in Euclidean norm l2 + that
-    k = cum_bound(led) + (n + 2) * UNIT_ROUNDOFF * max(float(np.sum(lattice.pmf)), 1.0)
+    # the appended mass 1 - sum(pmf), correctly rounded (math.fsum of 1 and the negated pmf),
+    # errs by the cumulative bound K of the represented part plus u of itself: per point at
+    # most that, in L1 l1 + that, in Euclidean norm l2 + that
+    t = max(math.fsum([1.0, *(-np.asarray(lattice.pmf)).tolist()]), 0.0)
+    pmf = np.append(np.asarray(lattice.pmf), t)
+    k = cum_bound(led) + 2 * UNIT_ROUNDOFF * t + 1e-300
     ledger = ErrorLedger(min(max(led.point, k), 1.0), min(led.l1 + k, 2.0), 0.0, n + 1, 0.0,
                          min(cum_bound(led) + k, 2.0))
     cache = lattice._cache
@@ -119,7 +120,7 @@ def capped(lattice):
     l2 = None if "l2" not in cache else (cache["l2"] + k) * (1 + 4 * UNIT_ROUNDOFF)
     enc = cache.get("enclosure")
     if enc is not None:  # the appended mass: its computed value, radius k as above
-        enc = Enclosure(np.append(enc.center, np.longdouble(lattice.truncated_mass)),
+        enc = Enclosure(np.append(enc.center, np.longdouble(t)),
                         np.append(enc.radius, k))
     return Lattice._make(pmf, lattice.step, lattice.origin, ledger, profile, l2, enc)
 
