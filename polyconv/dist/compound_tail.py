@@ -61,6 +61,34 @@ def tail_moment_bound(law: CountsLaw, f: np.ndarray, h: float, size: int) -> flo
     return h * best
 
 
+def wald_tail_moment(law: CountsLaw, f: np.ndarray, g: np.ndarray, ramp: float,
+                     h: float) -> float:
+    """Upper bound of ``E[S 1{S >= size}]`` as ``E[S] - sum_k x_k q_k`` evaluated in longdouble.
+
+    ``E[S] <= E[N] sum_k k f_k`` (Wald's identity; for a severity vector of total mass ``m <= 1``
+    the mean is ``P'(m) sum k f_k <= P'(1) sum k f_k``), ``E[N] = (a + b) / (1 - a)`` from the
+    law's longdouble Panjer coefficients (an ``(a, b, 0)`` law: ``P'(1) (1 - a) = a + b``),
+    relative error at most ``20 u_L``; the sums of non-negative terms within ``(n + 2) u_L``
+    (Higham, section 4.2); the on-grid exact moment ``sum k q_k >= sum k g_k - ramp`` with
+    ``ramp`` a bound of ``|sum k (g_k - q_k)|`` (an enclosure's).  In units of steps, times
+    ``h``, rounded up.  ``inf`` when the law has no longdouble coefficients or the severity's
+    mass exceeds 1.
+    """
+    if law.ab_long is None or math.fsum(f.tolist()) > 1:
+        return math.inf
+    a, b = law.ab_long
+    if not a < 1:
+        return math.inf
+    ld = np.longdouble
+    ul = float(np.finfo(ld).eps) / 2
+    mean_n = (a + b) / (1 - a)
+    ex = np.sum(np.arange(f.size, dtype=ld) * f.astype(ld))
+    on = np.sum(np.arange(g.size, dtype=ld) * g.astype(ld))
+    total = mean_n * ex * (1 + ld((f.size + 25) * ul))
+    steps = total - on * (1 - ld((g.size + 3) * ul)) + ld(ramp)
+    return max(h * float(steps) * (1 + 4 * _U) + 8 * _U * h * float(ul * total), 1e-300)
+
+
 def _logsumexp(a: np.ndarray) -> np.ndarray:
     """Row-wise ``log sum exp`` (one matrix; the rounding is far inside the margins above)."""
     top = np.max(a, axis=1)
