@@ -7,7 +7,8 @@ sometimes with their last points dropped as truncated mass, with or without a kn
 moment), steps, origins, and one or two operations among ``+``, shift, ``nfold``, ``compound``
 (Poisson, negative binomial and binomial counts; FFT route and Panjer recursion), ``layer``,
 ``all_of``, ``first_of`` and ``mixture``.  The same model is computed exactly in mpmath
-(50 digits: convolutions, Panjer's recursion with ``g_0 = P_N(f_0)``, products of cdfs) on the same
+(50 digits: convolutions, Panjer's recursion with ``g_0 = P_N(f_0)``, binomial compounds by
+enumeration, products of cdfs) on the same
 lattice, and every answer is checked:
 
 (i)   every returned quantile satisfies the lattice's own ``cdf(q) >= p``;
