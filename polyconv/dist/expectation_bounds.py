@@ -133,7 +133,7 @@ class ExpectationBounds:
             if self.enc is not None:
                 err = np.minimum(err, self._enc_excess(xm - d, m))
         err = err + (8 * _U + 2 * (n - m + 2) * _UL) * value \
-            + 4 * _U * (np.abs(xm) + np.abs(d)) * s_m  # float x_m - d
+            + 4 * _U * (abs(self.o) + h * m + np.abs(d)) * s_m  # float x_m = o + h m, - d
         x_from = self._x_from_low()
         trunc_low = self.t_low * np.maximum(x_from - d, 0.0) if self.t_low > 0 else 0.0
         trunc_high = self._truncated_excess_high(d, x_from)
@@ -197,8 +197,8 @@ class ExpectationBounds:
             if self.enc is not None:  # h sum_{j >= k} (j - k) e_j
                 err = np.minimum(err, h * self.enc.ramp[:n] * (1 + 4 * _U))
             err = err.astype(_L)
-            d = self.o + h * k  # float points: within u |d| of the exact x_k
-            moved = 2 * _U * np.abs(d)
+            d = self.o + h * k  # float points: within 2 u (|o| + h k) of the exact x_k
+            moved = 2 * _U * (abs(self.o) + h * k)  # (not u |d|: o + h k may cancel)
             x_from = self._x_from_low()
             trunc_low = np.zeros(n) if self.t_low <= 0 else np.maximum(
                 self.t_low * (1 - 4 * _U) * (np.maximum(x_from - d, 0.0) - moved), 0.0)
