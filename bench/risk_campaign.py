@@ -7,7 +7,8 @@ sometimes with their last points dropped as truncated mass, with or without a kn
 moment), steps, origins, and one or two operations among ``+``, shift, ``nfold``, ``compound``
 (Poisson, negative binomial and binomial counts; FFT route and Panjer recursion), ``layer``,
 ``all_of``, ``first_of`` and ``mixture``.  The same model is computed exactly in mpmath
-(50 digits: convolutions, Panjer's recursion with ``g_0 = P_N(f_0)``, products of cdfs) on the same
+(50 digits: convolutions, Panjer's recursion with ``g_0 = P_N(f_0)``, binomial compounds by
+enumeration, products of cdfs) on the same
 lattice, and every answer is checked:
 
 (i)   every returned quantile satisfies the lattice's own ``cdf(q) >= p``;
@@ -143,10 +144,18 @@ def check(lat: Lattice, ref: Ref, op: str, seed: int, tally: Tally, rng: random.
                     half = max(tv.high - tv.value, tv.value - tv.low)
                     tally.ratios["tvar"].append(half / err)
                     tally.by_op[("tvar", op)].append(half / err)
+    # the lattice's own points are origin + step k (exact in mpmath), off the ideal index grid
+    # by delta when the origin is a rounded float (a shift by c * step), and the retention
+    # d_idx * step is a rounded float: E[(X_own - d)+] = SL_ideal(x_d) + (delta - eps) P(X > x_d)
+    # + max(delta - eps, 0) P(X = x_d) (|delta - eps| far below one step)
+    delta = mp.mpf(lat.origin) - base_idx * mp.mpf(h)
     for d_idx in (base_idx - 1, base_idx + n // 2, base_idx + n - 1):
         sl = ref.stop_loss(d_idx, h)
-        if sl is None:
+        c_at, c_below = ref.cdf(d_idx), ref.cdf(d_idx - 1)
+        if sl is None or c_at is None or c_below is None:
             continue
+        shift = delta - (mp.mpf(d_idx * h) - d_idx * mp.mpf(h))
+        sl = sl + shift * (1 - c_at) + max(shift, 0) * (c_at - c_below)
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             b = lat.bounded("stop_loss", d_idx * h)

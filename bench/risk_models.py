@@ -2,8 +2,10 @@
 
 Each model is a Lattice built by one or two operations from random dyadic base pmfs, and the
 same model computed exactly in mpmath (50 digits) on the same lattice: convolutions, Panjer's
-recursion with ``g_0 = P_N(f_0)`` (Panjer, ASTIN Bulletin 12 (1981)), products of cdfs for
-maxima and minima, weighted sums for mixtures.
+recursion with ``g_0 = P_N(f_0)`` (Panjer, ASTIN Bulletin 12 (1981)) for Poisson and negative
+binomial counts, enumeration ``sum_n P(N = n) f^{*n}`` for binomial ones (the recursion is
+unstable there, even at 50 digits), products of cdfs for maxima and minima, weighted sums for
+mixtures.
 """
 
 from __future__ import annotations
@@ -132,10 +134,18 @@ def panjer_ref(desc, f, size):
         g0 = (p / (1 - (1 - p) * f[0])) ** r
         en = r * (1 - p) / p
     else:
+        # binomial: exact enumeration sum_n C(m, n) p^n (1-p)^(m-n) f^{*n} (all terms >= 0);
+        # Panjer's recursion is unstable for a < 0 (even at 50 digits its noise grows ~|a|^x and
+        # beyond the support n_max top, where the compound is exactly 0, it passed 1e-40)
         m, p = desc[1], mp.mpf(desc[2])
-        a, b = -p / (1 - p), (m + 1) * p / (1 - p)
-        g0 = (1 - p + p * f[0]) ** m
-        en = m * p
+        g = [mp.mpf(0)] * size
+        power = [mp.mpf(1)]
+        for n in range(m + 1):
+            w = mp.binomial(m, n) * p ** n * (1 - p) ** (m - n)
+            for k, v in enumerate(power[:size]):
+                g[k] += w * v
+            power = conv(power, f)[:size]
+        return g, m * p
     g = [g0]
     c = 1 / (1 - a * f[0])
     for x in range(1, size):

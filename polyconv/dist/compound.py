@@ -28,7 +28,12 @@ import warnings
 import numpy as np
 
 from . import accuracy
-from .compound_tail import count_tail_moment, tail_moment_bound, truncated_second_moment
+from .compound_tail import (
+    count_tail_moment,
+    tail_moment_bound,
+    truncated_second_moment,
+    wald_tail_moment,
+)
 from .counts import CountsLaw, classify
 from .enclosure import Enclosure, EnclosureSums, pick
 from .errors import TruncationWarning
@@ -137,7 +142,7 @@ def compound_lattice(counts, law: CountsLaw, severity: Lattice, method: str, siz
             errs = EnclosureSums(g, enc).profile
         else:
             g, errs = panjer_recursion(law, f, size)
-            g, errs = _beyond_support(g, errs, f, n_max)
+            g, errs, _ = _beyond_support(g, errs, f, n_max)
         r_point, r_l1 = float(np.max(errs)), float(np.sum(errs))
         r_cum = r_l1
     else:
@@ -154,6 +159,7 @@ def compound_lattice(counts, law: CountsLaw, severity: Lattice, method: str, siz
             errs = res.rounding_floor * np.exp(res.theta * (np.arange(size) - (size - 1))) \
                 + res.aliasing_floor
             r_cum = r_l1
+        g, errs, enc = _beyond_support(g, errs, f, n_max, enc)
     g = np.minimum(g, 1.0)
     if enc is not None:
         r_point, r_l1, r_cum = EnclosureSums(g, enc).ledger_numbers()
@@ -164,7 +170,8 @@ def compound_lattice(counts, law: CountsLaw, severity: Lattice, method: str, siz
         # at most e^{theta (size - 1)}); the aliased mass has L1 (so L2) at most its bound
         route_l2 = res.l2_bound
     ledger = compound_ledger(counts, law, severity, f, g, r_point, r_l1, errs, second_moment,
-                             route_l2, r_cum)
+                             route_l2, r_cum, None if enc is None else
+                             float(EnclosureSums(g, enc).ramp[0]))
     profile, carried = _profile(errs, severity, counts, law)
     if method != "recursion" and res.errors is None and res.theta * (size - 1) < 1:
         profile = None  # nearly uniform: the Euclidean bound l2 beats its running sums
@@ -176,19 +183,25 @@ def compound_lattice(counts, law: CountsLaw, severity: Lattice, method: str, siz
     return Lattice._make(g, severity.step, 0.0, ledger, profile, l2, enc)
 
 
-def _beyond_support(g: np.ndarray, errs: np.ndarray, f: np.ndarray, n_max: float):
+def _beyond_support(g: np.ndarray, errs: np.ndarray, f: np.ndarray, n_max: float, enc=None):
     """A count bounded by ``n_max`` and a severity vector whose last positive entry is at
     ``top``: the compound of that vector is exactly 0 beyond ``n_max top`` (there the
-    recursion, unstable for ``a < 0``, only grows noise)."""
+    recursion, unstable for ``a < 0``, only grows noise, a transform its rounding); the pmf,
+    its bounds and an enclosure are set to 0 there."""
     nz = np.flatnonzero(f)
     if not math.isfinite(n_max) or not nz.size:
-        return g, errs
+        return g, errs, enc
     last = int(n_max) * int(nz[-1])
     if last + 1 < g.size:
         g, errs = g.copy(), errs.copy()
         g[last + 1:] = 0.0
         errs[last + 1:] = 0.0
-    return g, errs
+        if enc is not None:
+            center, radius = enc.center.copy(), enc.radius.copy()
+            center[last + 1:] = 0
+            radius[last + 1:] = 0.0
+            enc = Enclosure(center, radius)
+    return g, errs, enc
 
 
 def _profile(errs: np.ndarray, severity: Lattice, counts, law: CountsLaw
@@ -226,7 +239,8 @@ def _log_pgf_above_one(law: CountsLaw, delta: float) -> float:
 
 def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g: np.ndarray,
                     r_point: float, r_l1: float, errs: np.ndarray, second_moment: bool = True,
-                    route_l2: float | None = None, r_cum: float | None = None) -> ErrorLedger:
+                    route_l2: float | None = None, r_cum: float | None = None,
+                    enc_ramp: float | None = None) -> ErrorLedger:
     """Error ledger of a compound computed from the severity vector ``f`` (route rounding
     ``r_point``, ``r_l1``).
 
@@ -246,7 +260,10 @@ def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g:
       (Cauchy-Schwarz), far below the per-point sum on long grids.
     * ``second_moment=False`` leaves the truncated part's second moment unknown (``inf``: the
       standard deviation is then refused), for callers that need no std.
-    * ``r_cum``: a bound of the route's cumulative (signed) error sums (default ``r_l1``).
+    * ``r_cum``: a bound of the route's cumulative (signed) error sums (default ``r_l1``);
+      ``enc_ramp``: a bound of ``|sum_k k (g_k - q_k)|`` from an enclosure (the truncated
+      moment is then also computed in longdouble, :func:`polyconv.dist.compound_tail.
+      wald_tail_moment`).
     """
     e = severity.errors
     h = severity.step
@@ -301,7 +318,9 @@ def compound_ledger(counts, law: CountsLaw, severity: Lattice, f: np.ndarray, g:
         err = err * (1 + 4 * _U) + (rnd + 4 * _U) * on_grid
         moment = max(total - (on_grid - err), 1e-300)
         if untruncated(e) and e.l1 == 0 and law.tail_mass == 0:
-            moment = min(moment, tail_moment_bound(counts, law, f, h, size))
+            moment = min(moment, tail_moment_bound(law, f, h, size))
+            if enc_ramp is not None:
+                moment = min(moment, wald_tail_moment(law, f, g, enc_ramp, h))
     moment2 = math.inf if not second_moment else truncated_second_moment(
         counts, law, severity, br, g, errs, h, (l1_in, cum_in, point_in), sev_mean_high)
     return ErrorLedger(point, l1, 0.0, tf, moment, cum, moment2)

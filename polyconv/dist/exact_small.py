@@ -4,8 +4,10 @@ Every float64 number is a dyadic rational ``m 2^e``, so a pmf given as floats ha
 cumulative sums, and the law of a maximum (``F = prod F_i``), of a minimum (``S = prod S_i``,
 ``S_i = 1 - F_i``) or of a mixture (``sum w_i p_i``) of such inputs is an exact dyadic rational
 at every point, computed here in Python integers (each pmf scaled by a power of two to integers;
-products of integers are exact).  When every input is exact and whole (error ledger zero,
-nothing truncated) this *is* the exact model of the result, and rounding it to longdouble gives
+products of integers are exact).  When every input is exact (error ledger zero) and whole
+(nothing truncated; for a minimum a truncated input is allowed: below its truncation point, where
+the grid of ``first_of`` stops, its survival function is ``1 - F`` exactly) this *is* the exact
+model of the result, and rounding it to longdouble gives
 an :class:`~polyconv.dist.enclosure.Enclosure` with radius ``u_L |q_k|`` (round to nearest:
 relative error at most ``u_L``, IEEE 754; subnormal longdouble results do not occur for the
 sizes allowed here, and a tiny absolute ``1e-4940`` is added anyway).  The returned pmf is the
@@ -74,8 +76,10 @@ def enclosure(kind: str, ds: list, offs: list[int], length: int,
     offsets ``offs``; None unless every input is exact and whole and the grid is small."""
     if length * len(ds) > EXACT_MAX_POINTS:
         return None
-    if any(d.errors.l1 > 0 or d.errors.point > 0 or not untruncated(d.errors)
-           or d.truncated_mass > 0 for d in ds):
+    if any(d.errors.l1 > 0 or d.errors.point > 0 for d in ds):
+        return None
+    truncated = [not untruncated(d.errors) or d.truncated_mass > 0 for d in ds]
+    if kind != "min" and any(truncated):
         return None
     if kind == "mix":
         exact = [Fraction(0)] * length
@@ -86,6 +90,12 @@ def enclosure(kind: str, ds: list, offs: list[int], length: int,
                     exact[o + j] += fw * Fraction(float(v))
     else:
         cdfs = [_padded_cdf(d, o, length) for d, o in zip(ds, offs, strict=True)]
+        # a truncated input (its represented part exact) survives with 1 - F: its truncated
+        # mass lies at or beyond first_of's grid (which stops at its truncated_from)
+        cdfs = [(c, e, 1 << -e if cut else t) if e <= 0 else (c, e, t)
+                for (c, e, t), cut in zip(cdfs, truncated, strict=True)]
+        if any(cut and e > 0 for (_, e, _), cut in zip(cdfs, truncated, strict=True)):
+            return None
         scale = Fraction(2) ** sum(e for _, e, _ in cdfs)
         prev = Fraction(1) if kind == "min" else Fraction(0)
         exact = []

@@ -132,8 +132,13 @@ class ExpectationBounds:
                 err = np.minimum(err, self._l2_excess(xm - d, n - m))
             if self.enc is not None:
                 err = np.minimum(err, self._enc_excess(xm - d, m))
-        err = err + (8 * _U + 2 * (n - m + 2) * _UL) * value \
-            + 4 * _U * (np.abs(xm) + np.abs(d)) * s_m  # float x_m - d
+        # float x_m = o + h m and x_m - d: within r = 4 u (|o| + h m + |d|) of the exact reals;
+        # when x_{m-1} lies within r of d it may be above d: charged on S_{m-1} = S_m + p_{m-1}
+        r = 4 * _U * (abs(self.o) + h * m + np.abs(d))
+        below = np.maximum(m - 1, 0)
+        close = (m > 0) & (d - (self.o + h * below) <= 2 * r)
+        s_near = s_m + np.where(close, np.asarray(self.pmf)[below], 0.0)
+        err = err + (8 * _U + 2 * (n - m + 2) * _UL) * value + r * s_near * (1 + 2 * _U)
         x_from = self._x_from_low()
         trunc_low = self.t_low * np.maximum(x_from - d, 0.0) if self.t_low > 0 else 0.0
         trunc_high = self._truncated_excess_high(d, x_from)
@@ -197,8 +202,8 @@ class ExpectationBounds:
             if self.enc is not None:  # h sum_{j >= k} (j - k) e_j
                 err = np.minimum(err, h * self.enc.ramp[:n] * (1 + 4 * _U))
             err = err.astype(_L)
-            d = self.o + h * k  # float points: within u |d| of the exact x_k
-            moved = 2 * _U * np.abs(d)
+            d = self.o + h * k  # float points: within 2 u (|o| + h k) of the exact x_k
+            moved = 2 * _U * (abs(self.o) + h * k)  # (not u |d|: o + h k may cancel)
             x_from = self._x_from_low()
             trunc_low = np.zeros(n) if self.t_low <= 0 else np.maximum(
                 self.t_low * (1 - 4 * _U) * (np.maximum(x_from - d, 0.0) - moved), 0.0)

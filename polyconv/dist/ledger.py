@@ -220,10 +220,12 @@ def power_moment(x: ErrorLedger, abs_x: float, n: int) -> float:
     return n * x.truncated_moment + _mul(n * (n - 1) * abs_x, tx)
 
 
-def t_bounds(ledger: ErrorLedger, mass: float, n_terms: int) -> tuple[float, float]:
+def t_bounds(ledger: ErrorLedger, mass: float, n_terms: int,
+             unit: float = 2.0 ** -53) -> tuple[float, float]:
     """``(low, high)`` of the exact truncated total ``1 - sum(q)``, with the summation rounding
-    of ``sum p^`` (``n_terms`` additions)."""
-    rnd = (n_terms + 2) * 2.0 ** -53 * max(mass, 1.0)
+    of ``sum p^`` (``n_terms`` additions in unit roundoff ``unit``, plus two float64
+    roundings: the sum's and ``1 - mass``)."""
+    rnd = ((n_terms + 2) * unit + 2 * 2.0 ** -53) * max(mass, 1.0)
     t = 1.0 - mass
     k = cum_bound(ledger)
     return max(0.0, t - k - rnd), min(1.0, max(t, 0.0) + k + rnd)

@@ -138,7 +138,7 @@ def power(f: np.ndarray, n: int) -> Enclosure | None:
     the relative bound composes along the powering and the radius is ``rho / (1 - rho)`` times
     the longdouble value.
     """
-    cost, size, acc, k = 0, f.size, 1, n
+    cost, size, k = 0, f.size, n
     while k > 1:  # squarings and multiplications, in the order below
         cost += size * size
         size = 2 * size - 1
@@ -154,16 +154,22 @@ def power(f: np.ndarray, n: int) -> Enclosure | None:
             else:
                 m = min(result.size, base.size)
                 result = np.convolve(result, base)
-                rho_r = (1 + rho_r) * (1 + rho_b) * (1 + m * _UL / (1 - m * _UL)) - 1
+                rho_r = _compose(rho_r, rho_b, m)
         n >>= 1
         if n:
             m = base.size
             base = np.convolve(base, base)
-            rho_b = (1 + rho_b) ** 2 * (1 + m * _UL / (1 - m * _UL)) - 1
-        acc += 1
+            rho_b = _compose(rho_b, rho_b, m)
     rho = rho_r * (1 + 1e-12)
     radius = result.astype(float) * (rho / (1 - rho)) * (1 + 4 * _U) + 1e-320
     return Enclosure(result, radius)
+
+
+def _compose(rho_a: float, rho_b: float, m: int) -> float:
+    """``(1 + rho_a)(1 + rho_b)(1 + gamma_m) - 1`` without losing the tiny terms to float64's
+    ``1 + x`` (log1p / expm1, each within an ulp; the margin ``1e-12`` covers them)."""
+    gamma = m * _UL / (1 - m * _UL)
+    return math.expm1(math.log1p(rho_a) + math.log1p(rho_b) + math.log1p(gamma)) * (1 + 1e-12)
 
 
 def l2_norm(errors: np.ndarray) -> float:

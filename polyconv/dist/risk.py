@@ -172,7 +172,7 @@ class Bracketer(ExpectationBounds):
     def _t_bounds(self) -> tuple[float, float]:
         if untruncated(self.ledger):
             return 0.0, 0.0
-        low, high = t_bounds(self.ledger, self.mass, self.n)
+        low, high = t_bounds(self.ledger, self.mass, self.n, _UL)  # a longdouble sum
         x_from = self._x_from_low()
         m = self.ledger.truncated_moment
         if x_from > 0 and math.isfinite(m):  # Markov: the truncated part lies at >= x_from
@@ -269,14 +269,21 @@ class Bracketer(ExpectationBounds):
         rs = (_U + (n - k + 2) * _UL) * tail
         maybe_below = k >= self.tf
         c = self.C[a:b] if "C" in self.__dict__ else self._c_on(a, b)
+        # each end is a sum of three or four floats: its own rounding (at most u of the partial
+        # sums per operation, all within the value's magnitude) is charged by 4u of the value,
+        # outward (bounds within an ulp of the value need it)
         cum_low = cum - c - rc
+        cum_low -= 4 * _U * np.abs(cum_low)
         cum_high = cum + c + rc
         if self.t_high > 0:
             cum_high[maybe_below] += self.t_high
-        tail_low = np.maximum(tail - bt - rs, 0.0)
+        cum_high *= 1 + 4 * _U
+        tail_low = tail - bt - rs
+        tail_low = np.maximum(tail_low - 4 * _U * np.abs(tail_low), 0.0)
         if self.t_low > 0:
             tail_low[~maybe_below] += self.t_low
-        tail_high = tail + bt + rs + self.t_high
+            tail_low *= 1 - 4 * _U
+        tail_high = (tail + bt + rs + self.t_high) * (1 + 4 * _U)
         return cum_low, cum_high, tail_low, tail_high
 
     @staticmethod

@@ -143,3 +143,17 @@ def test_long_lattice_stop_loss_and_quantile_without_whole_arrays():
         whole = risk.Bracketer(x.pmf, 1.0, 0.0, x.errors)
         _ = whole.F_high
         assert tuple(int(v) for v in whole.quantile_range(np.asarray(p))) == (int(lo), int(hi))
+
+
+def test_stop_loss_range_holds_at_a_shifted_float_origin():
+    # source: exact sum over the lattice's own points origin + step k (fractions.Fraction of
+    # the floats): -0.3 + 3 * 0.1 is 2.8e-17 exactly, 5.6e-17 in float (cancellation)
+    pmf = [0.02813720703125, 0.05718994140625, 0.0147705078125, 0.785400390625,
+           0.0584716796875, 0.0467529296875, 0.00927734375]
+    lat = Lattice(pmf, 0.1) + (-0.3)
+    o, h = Fraction(lat.origin), Fraction(lat.step)
+    for d in (0.0, 0.1, -0.2):
+        ref = sum(max(o + k * h - Fraction(d), 0) * Fraction(p) for k, p in enumerate(pmf))
+        b = lat.bounded("stop_loss", d)
+        assert Fraction(b.low) <= ref <= Fraction(b.high)
+        assert ratio(b, float(ref)) < 100  # reached: a few units
