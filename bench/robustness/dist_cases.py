@@ -103,7 +103,9 @@ def case_dist(rng: random.Random, work: Path):
                     ref = float(p[at_or_below].sum()) + \
                         (lat.truncated_mass if x == math.inf else 0.0)
                 elif query == "sf":
-                    ref = float(p[~at_or_below].sum()) + lat.truncated_mass
+                    # the mass beyond the grid sits at finite points: none of it is above +inf
+                    ref = float(p[~at_or_below].sum()) + \
+                        (lat.truncated_mass if x != math.inf else 0.0)
                 else:
                     ref = float(np.sum(p * np.maximum(v - x, 0))) if math.isfinite(x) else \
                         (0.0 if x > 0 else math.inf)
