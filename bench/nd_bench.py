@@ -127,6 +127,12 @@ def main() -> None:
     parser.add_argument("--repeats", type=int, default=3)
     parser.add_argument("--quick", action="store_true", help="small sizes only")
     args = parser.parse_args()
+    from polyconv.engines import jit_state  # steady state: kernels loaded before any timing
+    try:
+        how, seconds = jit_state.ensure_compiled()
+        print(f"compiled kernels {how} in {seconds:.2f} s (not in any ratio)")
+    except jit_state.JitUnavailableError as exc:
+        print(f"compiled kernels unavailable ({exc})")
     if args.quick:
         float_cases = [((256, 256), (16, 16), "full"), ((512, 512), (512, 512), "full")]
         sizes = [32, 64]
