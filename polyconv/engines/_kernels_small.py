@@ -8,6 +8,8 @@ uint64 words) are exact (sums modulo ``2^192``; common practice, no source).
 
 * :func:`product_stream`: the exact coefficients, written straight as a ``marshal`` list of
   Python ints (one ``marshal.loads`` makes them all; see :mod:`polyconv.engines._pyints`).
+* :func:`tiny_auto`: either of these, or int64 sums when they fit, with the pipeline's
+  dtype rule decided in the kernel (one call per tiny product of two int64 arrays).
 * :func:`product_mod_odd`: the coefficients modulo an odd ``m < 2^63`` as int64, the 192-bit
   sums reduced once per coefficient: ``w0 + w1 R + w2 R^2`` (``R = 2^64``) by Montgomery's
   reduction ``REDC(T) = T R^-1 mod m`` (P. L. Montgomery, "Modular multiplication without trial
@@ -146,3 +148,68 @@ def product_mod_odd(a, b, m, m_neg_inv, r2, r3, out):
         t = t - m if t >= m else t
         t += s0[k] % m
         out[k] = np.int64(t - m if t >= m else t)
+
+
+@njit(inline="always")
+def _magnitude(a):
+    """``max|a|`` of an int64 array as a uint64 (``2^63`` for ``-2^63``)."""
+    top = _ZERO
+    for i in range(a.shape[0]):
+        x = a[i]
+        u = np.uint64(-x) if x < 0 else np.uint64(x)
+        if u > top:
+            top = u
+    return top
+
+
+@njit(inline="always")
+def _rounded(u):
+    """``2^bits(u) - 1`` (``R(v)`` of :func:`polyconv.pipeline.facts.integer_facts`)."""
+    r = _ZERO
+    while r < u:
+        r = (r << _ONE) | _ONE
+    return r
+
+
+@njit("int64(int64[:], int64[:], int64, uint64, uint64, uint64, int64[::1], uint8[::1])",
+      cache=CACHE)
+def tiny_auto(a, b, m, m_neg_inv, r2, r3, out, buf):
+    """The full product of int64 ``a`` and ``b`` (any strides), with the pipeline's dtype rule
+    decided here: ``m = 0``: int64 into ``out`` (returns -1) when ``min(n1, n2) R(max|a|)
+    R(max|b|) < 2^63``, else the Python ints as a marshal stream into ``buf`` (returns its
+    length, as :func:`product_stream`); odd ``m < 2^63`` (constants as for
+    :func:`product_mod_odd`): the residues into ``out`` (returns -1)."""
+    n1 = a.shape[0]
+    n2 = b.shape[0]
+    if m > 0:
+        ra = np.empty(n1, dtype=np.int64)
+        rb = np.empty(n2, dtype=np.int64)
+        for i in range(n1):
+            ra[i] = a[i] % m  # (Python's sign rule: in [0, m))
+        for j in range(n2):
+            rb[j] = b[j] % m
+        ma = _magnitude(ra)
+        mb = _magnitude(rb)
+    else:
+        ra = np.ascontiguousarray(a)
+        rb = np.ascontiguousarray(b)
+        ma = _rounded(_magnitude(a))
+        mb = _rounded(_magnitude(b))
+    high, low = _mul_u128(ma, mb)
+    terms = np.uint64(min(n1, n2))
+    if high == _ZERO and low <= np.uint64(0x7FFFFFFFFFFFFFFF) // terms:  # bound < 2^63
+        out[:] = 0
+        for i in range(n1):
+            x = ra[i]
+            if x == 0:
+                continue
+            for j in range(n2):
+                out[i + j] += x * rb[j]
+        if m > 0:
+            for k in range(out.shape[0]):
+                out[k] %= m
+        return -1
+    if m > 0:
+        product_mod_odd(ra, rb, np.uint64(m), m_neg_inv, r2, r3, out)
+        return -1
+    return product_stream(ra, rb, buf)

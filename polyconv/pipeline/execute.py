@@ -24,7 +24,7 @@ from .choose import choose
 from .facts import bound_facts, integer_facts, normalise_integers
 from .plan import Plan, needed_entries
 from .prepare import check_budget, prepare
-from .small import tiny_product
+from .small import tiny_arrays, tiny_product
 
 
 def convolve_prepared(a, b, *, mode: str = "full", method: str = "auto",
@@ -50,6 +50,11 @@ def convolve(a, b, *, mode: str = "full", method: str = "auto", modulus: int | N
     Tiny plain integer products take the short path of :mod:`polyconv.pipeline.small` (same
     values and dtype, no planning); two plain 1-D float arrays that of :func:`plain_float_pair`."""
     if type(a) is np.ndarray and type(b) is np.ndarray:
+        if (mode == "full" and method == "auto" and length is None and type(axis) is int
+                and (axis == -1 or axis == 0)):
+            out = tiny_arrays(a, b, modulus)
+            if out is not None:
+                return out
         out = plain_float_pair(a, b, mode, method, modulus, length, axis)
         if out is not None:
             return out

@@ -157,16 +157,53 @@ def wide_stream(x, y, count: int) -> np.ndarray:
 
 
 _ODD: dict = {}  # odd modulus -> its Montgomery constants
+_NO_BUFFER = np.empty(0, dtype=np.uint8)
 
 
-def wide_mod(x, y, m: int, count: int) -> np.ndarray:
-    """``x y mod m`` as int64 for residues ``x``, ``y`` of an odd ``m < 2^63``: 192-bit sums
-    reduced in the kernel (no Python ints).  :func:`small_kernels` must have returned them."""
+def _odd(m: int) -> tuple:
+    """``(-m^-1 mod 2^64, 2^128 mod m, 2^192 mod m)`` for an odd ``m`` (memoised)."""
     consts = _ODD.get(m)
     if consts is None:
         if len(_ODD) > 64:
             _ODD.clear()
         consts = _ODD[m] = ((-pow(m, -1, 2**64)) % 2**64, pow(2, 128, m), pow(2, 192, m))
+    return consts
+
+
+def tiny_arrays(a: np.ndarray, b: np.ndarray, m) -> np.ndarray | None:
+    """:func:`tiny_product` of two 1-D int64 arrays (``a``, ``b`` known to be ndarrays; mode
+    "full", method "auto", no ``length``: the caller checked) in one compiled call, the
+    pipeline's dtype rule decided in it (``tiny_auto``); None when the kernels are not loaded
+    here, the operands are not both 1-D int64, or ``m`` is not None nor an odd int below
+    ``2^63`` (measured: 3 x 2 63-bit 2.3 us against 4.5 us by :func:`tiny_product`)."""
+    if a.ndim != 1 or b.ndim != 1 or a.dtype != _INT64 or b.dtype != _INT64 or (
+            _small is None and small_kernels() is None):
+        return None
+    n1 = a.shape[0]
+    n2 = b.shape[0]
+    if n1 * n2 > TINY_WORK or not n1 or not n2:
+        return None
+    count = n1 + n2 - 1
+    out = np.empty(count, dtype=_INT64)
+    if m is None:
+        buf = np.empty(5 + count * 31, dtype=np.uint8)  # _pyints.capacity(count, 192)
+        used = _small.tiny_auto(a, b, 0, 0, 0, 0, out, buf)
+        if used < 0:
+            return out
+        objects = np.empty(count, dtype=object)
+        objects[:] = marshal.loads(buf[:used])
+        return objects
+    if type(m) is not int or not m & 1 or m < 2 or m >= INT64_LIMIT:
+        return None
+    c = _ODD.get(m) or _odd(m)
+    _small.tiny_auto(a, b, m, c[0], c[1], c[2], out, _NO_BUFFER)
+    return out
+
+
+def wide_mod(x, y, m: int, count: int) -> np.ndarray:
+    """``x y mod m`` as int64 for residues ``x``, ``y`` of an odd ``m < 2^63``: 192-bit sums
+    reduced in the kernel (no Python ints).  :func:`small_kernels` must have returned them."""
+    consts = _odd(m)
     out = np.empty(count, dtype=_INT64)
     _small.product_mod_odd(_flat(x), _flat(y), m, consts[0], consts[1], consts[2], out)
     return out
