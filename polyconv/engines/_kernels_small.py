@@ -66,7 +66,7 @@ def _sums_192(a, b, s0, s1, s2):
             _add_192(s0, s1, s2, i + j, high, low, _ALL if high >> np.uint64(63) else _ZERO)
 
 
-@njit("int64(int64[::1], int64[::1], uint8[::1])", cache=CACHE)
+@njit("int64(int64[:], int64[:], uint8[::1])", cache=CACHE)
 def product_stream(a, b, out):
     """The exact full product of int64 ``a`` and ``b`` written as a marshal list of Python ints
     into ``out`` (:func:`polyconv.engines._pyints.capacity` of ``len(a) + len(b) - 1`` values of
@@ -77,13 +77,14 @@ def product_stream(a, b, out):
     s2 = np.empty(count, dtype=np.uint64)
     _sums_192(a, b, s0, s1, s2)
     nw = 6
-    x = np.zeros((nw + 1, BLOCK), dtype=np.uint64)
-    carry = np.empty(BLOCK, dtype=np.uint64)
-    negative = np.empty(BLOCK, dtype=np.uint8)
-    dg = np.empty(((32 * nw + 14) // 15, BLOCK), dtype=np.uint16)
+    blk = min(BLOCK, count)  # (tiny products: small buffers, allocated in far less time)
+    x = np.zeros((nw + 1, blk), dtype=np.uint64)
+    carry = np.empty(blk, dtype=np.uint64)
+    negative = np.empty(blk, dtype=np.uint8)
+    dg = np.empty(((32 * nw + 14) // 15, blk), dtype=np.uint16)
     pos = _start(out, count)
-    for start in range(0, count, BLOCK):
-        m = min(BLOCK, count - start)
+    for start in range(0, count, blk):
+        m = min(blk, count - start)
         for c in range(m):
             k = start + c
             w0, w1, w2 = s0[k], s1[k], s2[k]
@@ -132,7 +133,7 @@ def _redc(high, low, m, m_neg_inv):
     return t - m if t >= m else t
 
 
-@njit("void(int64[::1], int64[::1], uint64, uint64, uint64, uint64, int64[::1])", cache=CACHE)
+@njit("void(int64[:], int64[:], uint64, uint64, uint64, uint64, int64[::1])", cache=CACHE)
 def product_mod_odd(a, b, m, m_neg_inv, r2, r3, out):
     """``out = a * b mod m`` (full product) for residues ``a``, ``b`` in ``[0, m)``, ``m < 2^63``
     odd; ``m_neg_inv = -m^-1 mod 2^64``, ``r2 = 2^128 mod m``, ``r3 = 2^192 mod m``."""
@@ -191,8 +192,8 @@ def tiny_auto(a, b, m, m_neg_inv, r2, r3, out, buf):
         ma = _magnitude(ra)
         mb = _magnitude(rb)
     else:
-        ra = np.ascontiguousarray(a)
-        rb = np.ascontiguousarray(b)
+        ra = a
+        rb = b
         ma = _rounded(_magnitude(a))
         mb = _rounded(_magnitude(b))
     high, low = _mul_u128(ma, mb)

@@ -269,7 +269,8 @@ def tiny_product(a, b, mode: str, method: str, modulus, length, axis) -> np.ndar
         elif terms * _rounded(max_x) * _rounded(max_y) >= INT64_LIMIT:
             out = out.astype(object)
         return out
-    if work > WIDE_WORK and -INT64_LIMIT <= min(lo_x, lo_y) and max(hi_x, hi_y) < INT64_LIMIT:
+    if (work > WIDE_WORK and bound >= INT64_LIMIT and -INT64_LIMIT <= min(lo_x, lo_y)
+            and max(hi_x, hi_y) < INT64_LIMIT):
         if m is None or (m & 1 and m < INT64_LIMIT):  # int64 operands, sums below 2^138
             if _small is not None or small_kernels() is not None:
                 if m is None:
