@@ -43,6 +43,10 @@ PYTHON_WORK = 24
 #: of :mod:`polyconv.engines._kernels_small` (exact: a marshal stream; modulo an odd ``m <
 #: 2^63``: reduced in the kernel).
 WIDE_WORK = 4
+#: ... except products modulo an NTT prime beyond this many multiply-adds, where one NTT modulo
+#: the prime itself is faster (measured, mod 998244353: 32 x 32 5.1 us against 10.0 us; 64 x 64
+#: 14.5 us against 11.3 us).
+PRIME_WORK = 2**11
 
 #: int64 arrays up to this length are read as lists (measured: 3 entries 0.5 us against 2.4 us
 #: for ``x.min()`` and ``x.max()``; even at about 32).
@@ -193,7 +197,8 @@ def tiny_arrays(a: np.ndarray, b: np.ndarray, m) -> np.ndarray | None:
         objects = np.empty(count, dtype=object)
         objects[:] = marshal.loads(buf[:used])
         return objects
-    if type(m) is not int or not m & 1 or m < 2 or m >= INT64_LIMIT:
+    if type(m) is not int or not m & 1 or m < 2 or m >= INT64_LIMIT or (
+            n1 * n2 > PRIME_WORK and ntt_compiled.is_ntt_prime(m)):
         return None
     c = _ODD.get(m) or _odd(m)
     _small.tiny_auto(a, b, m, c[0], c[1], c[2], out, _NO_BUFFER)
@@ -271,7 +276,8 @@ def tiny_product(a, b, mode: str, method: str, modulus, length, axis) -> np.ndar
         return out
     if (work > WIDE_WORK and bound >= INT64_LIMIT and -INT64_LIMIT <= min(lo_x, lo_y)
             and max(hi_x, hi_y) < INT64_LIMIT):
-        if m is None or (m & 1 and m < INT64_LIMIT):  # int64 operands, sums below 2^138
+        if m is None or (m & 1 and m < INT64_LIMIT and not (
+                work > PRIME_WORK and ntt_compiled.is_ntt_prime(m))):  # sums below 2^138
             if _small is not None or small_kernels() is not None:
                 if m is None:
                     return wide_stream(x, y, n1 + n2 - 1)
