@@ -154,10 +154,8 @@ def wide_stream(x, y, count: int) -> np.ndarray:
     for two 128-bit rows and four words per value in Python).  :func:`small_kernels` must have
     returned the kernels."""
     buf = np.empty(5 + count * 31, dtype=np.uint8)  # _pyints.capacity(count, 192), inlined
-    used = _small.product_stream(_flat(x), _flat(y), buf)
-    out = np.empty(count, dtype=object)
-    out[:] = marshal.loads(buf[:used])
-    return out
+    _small.product_stream(_flat(x), _flat(y), buf)
+    return np.array(marshal.loads(buf), dtype=object)  # (trailing bytes are ignored)
 
 
 _ODD: dict = {}  # odd modulus -> its Montgomery constants
@@ -191,12 +189,9 @@ def tiny_arrays(a: np.ndarray, b: np.ndarray, m) -> np.ndarray | None:
     out = np.empty(count, dtype=_INT64)
     if m is None:
         buf = np.empty(5 + count * 31, dtype=np.uint8)  # _pyints.capacity(count, 192)
-        used = _small.tiny_auto(a, b, 0, 0, 0, 0, out, buf)
-        if used < 0:
+        if _small.tiny_exact(a, b, out, buf) < 0:
             return out
-        objects = np.empty(count, dtype=object)
-        objects[:] = marshal.loads(buf[:used])
-        return objects
+        return np.array(marshal.loads(buf), dtype=object)  # (trailing bytes are ignored)
     if type(m) is not int or not m & 1 or m < 2 or m >= INT64_LIMIT or (
             n1 * n2 > PRIME_WORK and ntt_compiled.is_ntt_prime(m)):
         return None
