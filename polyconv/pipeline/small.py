@@ -44,9 +44,9 @@ PYTHON_WORK = 24
 #: 2^63``: reduced in the kernel).
 WIDE_WORK = 4
 #: ... except products modulo an NTT prime beyond this many multiply-adds, where one NTT modulo
-#: the prime itself is faster (measured, mod 998244353: 32 x 32 5.1 us against 10.0 us; 64 x 64
-#: 14.5 us against 11.3 us).
-PRIME_WORK = 2**11
+#: the prime itself is faster (measured, mod 998244353, kernel route against one NTT: 16 x 16
+#: 2.4 / 2.7 us, 24 x 24 3.6 / 2.8 us, 32 x 32 5.0 / 2.6 us).
+PRIME_WORK = 2**8
 
 #: int64 arrays up to this length are read as lists (measured: 3 entries 0.5 us against 2.4 us
 #: for ``x.min()`` and ``x.max()``; even at about 32).
