@@ -187,8 +187,8 @@ def tiny_arrays(a: np.ndarray, b: np.ndarray, m) -> np.ndarray | None:
     if n1 * n2 > TINY_WORK or not n1 or not n2:
         return None
     count = n1 + n2 - 1
-    out = np.empty(count, dtype=_INT64)
     if m is None:
+        out = np.empty(count, dtype=_INT64)
         buf = np.empty(5 + count * 31, dtype=np.uint8)  # _pyints.capacity(count, 192)
         if _small.tiny_exact(a, b, out, buf) < 0:
             return out
@@ -196,9 +196,8 @@ def tiny_arrays(a: np.ndarray, b: np.ndarray, m) -> np.ndarray | None:
     if type(m) is not int or not m & 1 or m < 2 or m >= INT64_LIMIT:
         return None
     if n1 * n2 > PRIME_WORK and ntt_compiled.is_ntt_prime(m):  # one NTT modulo m itself
-        if ntt_compiled.transform_length(n1, n2) > ntt_compiled.max_length(m):
-            return None
-        return ntt_compiled.convolve_mod_prime(a, b, m)
+        return ntt_compiled.convolve_mod_prime(a, b, m)  # (every such prime has 2^20 points)
+    out = np.empty(count, dtype=_INT64)
     c = _ODD.get(m) or _odd(m)
     _small.tiny_auto(a, b, m, c[0], c[1], c[2], out, _NO_BUFFER)
     return out
