@@ -15,12 +15,14 @@ The arithmetic is schoolbook summation (``c_k = sum_i a_i b_{k-i}``): ``numpy.co
 int64 when no partial sum can leave int64 (``min(n1, n2) max|a| max|b| < 2^63``; common
 practice, no source), which is what the direct-exact engine does at these sizes (int64 arrays
 go in as they are; lists of the tiniest products are summed in Python ints instead); wider
-products of int64 operands whose sums stay below ``2^127`` go to the compiled 128-bit schoolbook
-rows (two words per coefficient, then one Python int each, reduced modulo ``m`` if given), the
-rest to :mod:`polyconv.engines.ntt_compiled` (NTT primes in one kernel call, Garner's CRT), in
-both cases only when the kernels are already loaded, else to Python sums or the pipeline.
-Every attribute look-up costs on this path (a 3 x 2 product is ~2 us in all): the checks are
-inlined, and the kernel module is fetched once.
+products of int64 operands go to the 192-bit schoolbook kernels of
+:mod:`polyconv.engines._kernels_small` (exact: a marshal stream of Python ints; modulo an odd
+``m < 2^63``: reduced in the kernel), modulo an NTT prime beyond :data:`PRIME_WORK` to one NTT
+modulo it, the rest (even moduli, Python-int residues) to the compiled 128-bit rows or
+:mod:`polyconv.engines.ntt_compiled`, always only when the kernels are already loaded, else to
+Python sums or the pipeline.  Two 1-D int64 arrays take :func:`tiny_arrays`: one compiled call
+that also decides the dtype rule.  Every attribute look-up costs on this path (a 3 x 2 product
+is ~1.5 us in all): the checks are inlined, and the kernel modules are fetched once.
 """
 
 from __future__ import annotations
