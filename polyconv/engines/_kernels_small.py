@@ -220,3 +220,9 @@ def tiny_auto(a, b, m, m_neg_inv, r2, r3, out, buf):
 def tiny_exact(a, b, out, buf):
     """:func:`tiny_auto` without a modulus (four arguments: a shorter dispatch)."""
     return tiny_auto(a, b, 0, _ZERO, _ZERO, _ZERO, out, buf)
+
+
+@njit("UniTuple(uint64, 2)(int64[:], int64[:])", cache=CACHE)
+def magnitudes(a, b):
+    """``(max|a|, max|b|)`` as uint64 (one pass each; ``2^63`` for ``-2^63``)."""
+    return _magnitude(a), _magnitude(b)

@@ -19,7 +19,7 @@ from ..engines.registry import REGISTRY
 from ..numerics.checks import random_evaluation_check
 from ..numerics.limits import INT64_LIMIT
 from ..tuning import costs as _costs
-from . import shaping
+from . import shaping, small
 from .choose import choose
 from .facts import bound_facts, integer_facts, normalise_integers
 from .plan import Plan, needed_entries
@@ -126,10 +126,14 @@ def plain_int_pair(a: np.ndarray, b: np.ndarray, mode, method, modulus, length,
     n1, n2 = a.shape[0], b.shape[0]
     if n1 == 0 or n2 == 0:
         return None  # the preparing path names the empty operand
-    lo, hi = int(a.min()), int(a.max())
-    max_x = hi if hi >= -lo else -lo
-    lo, hi = int(b.min()), int(b.max())
-    max_y = hi if hi >= -lo else -lo
+    kernels = small._small or small.small_kernels()
+    if kernels is not None:  # one compiled pass per operand (measured at 2^10: 0.9 us against
+        max_x, max_y = map(int, kernels.magnitudes(a, b))  # 3.2 us for four numpy reductions)
+    else:
+        lo, hi = int(a.min()), int(a.max())
+        max_x = hi if hi >= -lo else -lo
+        lo, hi = int(b.min()), int(b.max())
+        max_y = hi if hi >= -lo else -lo
     key = (n1, n2, max_x.bit_length(), max_y.bit_length(), _costs.generation)
     the_plan = _plain_int_plans.get(key)
     if the_plan is None:
