@@ -15,19 +15,23 @@ The arithmetic is schoolbook summation (``c_k = sum_i a_i b_{k-i}``): ``numpy.co
 int64 when no partial sum can leave int64 (``min(n1, n2) max|a| max|b| < 2^63``; common
 practice, no source), which is what the direct-exact engine does at these sizes (int64 arrays
 go in as they are; lists of the tiniest products are summed in Python ints instead); wider
-products of int64 operands whose sums stay below ``2^127`` go to the compiled 128-bit schoolbook
-rows (two words per coefficient, then one Python int each, reduced modulo ``m`` if given), the
-rest to :mod:`polyconv.engines.ntt_compiled` (NTT primes in one kernel call, Garner's CRT), in
-both cases only when the kernels are already loaded, else to Python sums or the pipeline.
-Every attribute look-up costs on this path (a 3 x 2 product is ~2 us in all): the checks are
-inlined, and the kernel module is fetched once.
+products of int64 operands go to the 192-bit schoolbook kernels of
+:mod:`polyconv.engines._kernels_small` (exact: a marshal stream of Python ints; modulo an odd
+``m < 2^63``: reduced in the kernel), modulo an NTT prime beyond :data:`PRIME_WORK` to one NTT
+modulo it, the rest (even moduli, Python-int residues) to the compiled 128-bit rows or
+:mod:`polyconv.engines.ntt_compiled`, always only when the kernels are already loaded, else to
+Python sums or the pipeline.  Two 1-D int64 arrays take :func:`tiny_arrays`: one compiled call
+that also decides the dtype rule.  Every attribute look-up costs on this path (a 3 x 2 product
+is ~1.5 us in all): the checks are inlined, and the kernel modules are fetched once.
 """
 
 from __future__ import annotations
 
+import marshal
+
 import numpy as np
 
-from ..engines import jit_state, ntt_compiled
+from ..engines import _pyints, jit_state, ntt_compiled
 from ..numerics.limits import INT64_LIMIT
 
 #: Products of at most this many multiply-adds take the short path (schoolbook costs ~1 ns per
@@ -37,11 +41,14 @@ TINY_WORK = 2**12
 #: from lists (measured: 3 x 2 0.8 us against 2.4 us; 8 x 8 4 us against 3 us), and beats the
 #: 128-bit compiled rows for sums beyond int64 (the call and two words per output cost ~1.5 us).
 PYTHON_WORK = 24
-#: The 128-bit schoolbook rows take exact products of at most this many multiply-adds (beyond,
-#: the NTT primes; measured per row in polyconv.engines.ntt_batch: 512 x 512 327 / 371 us);
-#: modular ones up to ``4 PYTHON_WORK`` (measured, mod 998244353 at 32 x 32: 16 us against 11 us
-#: for the NTT primes, whose residues need no Python-int reduction).
-WORK_128 = 2**12
+#: Beyond this many multiply-adds, int64 operands with sums past int64 go to the 192-bit kernels
+#: of :mod:`polyconv.engines._kernels_small` (exact: a marshal stream; modulo an odd ``m <
+#: 2^63``: reduced in the kernel).
+WIDE_WORK = 4
+#: ... except products modulo an NTT prime beyond this many multiply-adds, where one NTT modulo
+#: the prime itself is faster (measured, mod 998244353, kernel route against one NTT: 16 x 16
+#: 2.4 / 2.7 us, 24 x 24 3.6 / 2.8 us, 32 x 32 5.0 / 2.6 us).
+PRIME_WORK = 2**8
 
 #: int64 arrays up to this length are read as lists (measured: 3 entries 0.5 us against 2.4 us
 #: for ``x.min()`` and ``x.max()``; even at about 32).
@@ -51,6 +58,7 @@ _INT64 = np.dtype(np.int64)
 _ARRAY = np.ndarray
 _LIMIT_128 = 2**127
 _batch = None  # the batched kernel module, once loaded in this process
+_small = None  # the short-product kernel module, once loaded (and streams checked)
 
 
 def batch_kernels():
@@ -124,22 +132,85 @@ def wide_rows(x, y, m: int | None, count: int) -> np.ndarray:
     return np.array(values, dtype=_INT64 if m <= INT64_LIMIT else object)
 
 
-def split_rows(x, y, count: int) -> np.ndarray:
-    """The exact product of int64 operands whose sums pass ``2^127`` (63-bit operands over more
-    than a few terms), as Python ints: ``x = 2^32 x_h + x_l`` (``|x_h| < 2^31``, ``0 <= x_l <
-    2^32``) makes both ``x_h y`` and ``x_l y`` 128-bit sums (below ``2^(95 + log2 n)``), two rows
-    of one kernel call, and ``c = 2^32 (x_h y) + x_l y`` one Python expression per coefficient
-    (measured: 1.5-2x faster than NTT primes and Garner at 32 x 32 and 64 x 64)."""
-    x = np.asarray(x, dtype=_INT64)
-    high = np.empty((2, count), dtype=np.uint64)
-    low = np.empty((2, count), dtype=np.uint64)
-    y = _rows(y)
-    _batch.rows_schoolbook_128(np.stack([x >> 32, x & 0xFFFFFFFF]), np.concatenate([y, y]),
-                               high, low)
-    (h1, h2), (l1, l2) = high.view(np.int64).tolist(), low.tolist()
-    out = np.empty(count, dtype=object)
-    out[:] = [(((p << 64) + q) << 32) + (r << 64) + v for p, q, r, v in zip(h1, l1, h2, l2,
-                                                                              strict=True)]
+def small_kernels():
+    """The module of ``product_stream`` and ``product_mod_odd`` when the kernels are ready here
+    and marshal streams read back correctly (:func:`polyconv.engines._pyints.ready`), else
+    None."""
+    global _small
+    if _small is None and jit_state.state() == "compiled" and _pyints.ready() is not None:
+        _small = jit_state.kernels("_kernels_small")
+    return _small
+
+
+def _flat(x) -> np.ndarray:
+    """``x`` (a list of ints in int64 range, or a 1-D int64 array) as a contiguous int64 array."""
+    if type(x) is list:
+        return np.array(x, dtype=_INT64)
+    return x if x.flags.c_contiguous else x.copy()
+
+
+def wide_stream(x, y, count: int) -> np.ndarray:
+    """The exact product of int64 operands (at most ``2^12`` terms each, so every sum is below
+    ``2^138``) as Python ints: 192-bit schoolbook sums written as a marshal stream by one
+    compiled call, read by one ``marshal.loads`` (measured, 32 x 32 63-bit: 9 us against 24 us
+    for two 128-bit rows and four words per value in Python).  :func:`small_kernels` must have
+    returned the kernels."""
+    buf = np.empty(5 + count * 31, dtype=np.uint8)  # _pyints.capacity(count, 192), inlined
+    _small.product_stream(_flat(x), _flat(y), buf)
+    return np.array(marshal.loads(buf), dtype=object)  # (trailing bytes are ignored)
+
+
+_ODD: dict = {}  # odd modulus -> its Montgomery constants
+_NO_BUFFER = np.empty(0, dtype=np.uint8)
+
+
+def _odd(m: int) -> tuple:
+    """``(-m^-1 mod 2^64, 2^128 mod m, 2^192 mod m)`` for an odd ``m`` (memoised)."""
+    consts = _ODD.get(m)
+    if consts is None:
+        if len(_ODD) > 64:
+            _ODD.clear()
+        consts = _ODD[m] = ((-pow(m, -1, 2**64)) % 2**64, pow(2, 128, m), pow(2, 192, m))
+    return consts
+
+
+def tiny_arrays(a: np.ndarray, b: np.ndarray, m) -> np.ndarray | None:
+    """:func:`tiny_product` of two 1-D int64 arrays (``a``, ``b`` known to be ndarrays; mode
+    "full", method "auto", no ``length``: the caller checked) in one compiled call, the
+    pipeline's dtype rule decided in it (``tiny_auto``); None when the kernels are not loaded
+    here, the operands are not both 1-D int64, or ``m`` is not None nor an odd int below
+    ``2^63`` (measured: 3 x 2 63-bit 2.4 us against 4.0 us by :func:`tiny_product`); beyond
+    :data:`PRIME_WORK` modulo an NTT prime, one NTT modulo it."""
+    if a.ndim != 1 or b.ndim != 1 or a.dtype != _INT64 or b.dtype != _INT64 or (
+            _small is None and small_kernels() is None):
+        return None
+    n1 = a.shape[0]
+    n2 = b.shape[0]
+    if n1 * n2 > TINY_WORK or not n1 or not n2:
+        return None
+    count = n1 + n2 - 1
+    if m is None:
+        out = np.empty(count, dtype=_INT64)
+        buf = np.empty(5 + count * 31, dtype=np.uint8)  # _pyints.capacity(count, 192)
+        if _small.tiny_exact(a, b, out, buf) < 0:
+            return out
+        return np.array(marshal.loads(buf), dtype=object)  # (trailing bytes are ignored)
+    if type(m) is not int or not m & 1 or m < 2 or m >= INT64_LIMIT:
+        return None
+    if n1 * n2 > PRIME_WORK and ntt_compiled.is_ntt_prime(m):  # one NTT modulo m itself
+        return ntt_compiled.convolve_mod_prime(a, b, m)  # (every such prime has 2^20 points)
+    out = np.empty(count, dtype=_INT64)
+    c = _ODD.get(m) or _odd(m)
+    _small.tiny_auto(a, b, m, c[0], c[1], c[2], out, _NO_BUFFER)
+    return out
+
+
+def wide_mod(x, y, m: int, count: int) -> np.ndarray:
+    """``x y mod m`` as int64 for residues ``x``, ``y`` of an odd ``m < 2^63``: 192-bit sums
+    reduced in the kernel (no Python ints).  :func:`small_kernels` must have returned them."""
+    consts = _odd(m)
+    out = np.empty(count, dtype=_INT64)
+    _small.product_mod_odd(_flat(x), _flat(y), m, consts[0], consts[1], consts[2], out)
     return out
 
 
@@ -203,14 +274,19 @@ def tiny_product(a, b, mode: str, method: str, modulus, length, axis) -> np.ndar
         elif terms * _rounded(max_x) * _rounded(max_y) >= INT64_LIMIT:
             out = out.astype(object)
         return out
+    if (work > WIDE_WORK and bound >= INT64_LIMIT and -INT64_LIMIT <= min(lo_x, lo_y)
+            and max(hi_x, hi_y) < INT64_LIMIT):
+        if m is None or (m & 1 and m < INT64_LIMIT and not (
+                work > PRIME_WORK and ntt_compiled.is_ntt_prime(m))):  # sums below 2^138
+            if _small is not None or small_kernels() is not None:
+                if m is None:
+                    return wide_stream(x, y, n1 + n2 - 1)
+                return wide_mod(x, y, m, n1 + n2 - 1)
     if work > PYTHON_WORK:
         ready = (-INT64_LIMIT <= min(lo_x, lo_y) and max(hi_x, hi_y) < INT64_LIMIT
                  and (_batch is not None or batch_kernels() is not None))  # int64, kernels loaded
-        if ready and work <= (WORK_128 if m is None else 4 * PYTHON_WORK):
-            if bound < _LIMIT_128:
-                return wide_rows(x, y, m, n1 + n2 - 1)
-            if m is None:
-                return split_rows(x, y, n1 + n2 - 1)
+        if ready and work <= 4 * PYTHON_WORK and bound < _LIMIT_128:
+            return wide_rows(x, y, m, n1 + n2 - 1)
         if work > 4 * PYTHON_WORK:  # wide and not tiny: the compiled primes, else planning
             if ready and (m is None or m < ntt_compiled.KERNEL_MODULUS_LIMIT):
                 return _compiled(x, y, m, bound)
