@@ -26,7 +26,7 @@ from . import jit_state as _jit
 from ._kernels_arith import M32 as _M32
 from ._kernels_batch import _product_128
 from ._kernels_crt import BLOCK
-from ._kernels_stream import _digits15, _start, _write
+from ._kernels_stream import _digits15, _magnitudes, _start, _write
 
 CACHE = _jit.cache_enabled()
 
@@ -96,12 +96,7 @@ def product_stream(a, b, out):
             x[5, c] = w2 >> np.uint64(32)
             negative[c] = np.uint8(1) if w2 >> np.uint64(63) else np.uint8(0)
             carry[c] = np.uint64(negative[c])
-        for w in range(nw):  # ~x + 1 where negative: the magnitudes
-            xw = x[w]
-            for c in range(m):
-                t = ((xw[c] ^ _M32) + carry[c]) if negative[c] else xw[c]
-                xw[c] = t & _M32
-                carry[c] = t >> np.uint64(32)
+        _magnitudes(x, nw, m, negative, carry)
         _digits15(x, m, dg)
         pos = _write(dg, negative, m, out, pos)
     return pos

@@ -48,6 +48,19 @@ def _start(out, count):
     return _put_int32(out, 1, count)
 
 
+@njit("void(uint64[:, ::1], int64, int64, uint8[::1], uint64[::1])", cache=CACHE,
+      inline="always")
+def _magnitudes(x, words, m, negative, carry):
+    """Two's complement 32-bit word columns ``x[:words, :m]`` to magnitudes in place: ``~x + 1``
+    where ``negative`` (``carry`` must hold ``negative`` on entry; it is clobbered)."""
+    for w in range(words):
+        xw = x[w]
+        for c in range(m):
+            t = ((xw[c] ^ _M32) + carry[c]) if negative[c] else xw[c]
+            xw[c] = t & _M32
+            carry[c] = t >> np.uint64(32)
+
+
 @njit("void(uint64[:, ::1], int64, uint16[:, ::1])", cache=CACHE, inline="always")
 def _digits15(x, m, dg):
     """``dg[d, c]``: bits ``[15 d, 15 d + 15)`` of the value with 32-bit words ``x[:, c]``
@@ -186,12 +199,7 @@ def rows_stream(rows, signed, borrowed, out):
         for c in range(m):
             negative[c] = np.uint8(1) if signed and top[c] >= np.uint64(1 << 31) else np.uint8(0)
             carry[c] = np.uint64(negative[c])
-        for w in range(words):  # ~x + 1 where negative
-            xw = x[w]
-            for c in range(m):
-                t = ((xw[c] ^ _M32) + carry[c]) if negative[c] else xw[c]
-                xw[c] = t & _M32
-                carry[c] = t >> np.uint64(32)
+        _magnitudes(x, words, m, negative, carry)
         _digits15(x, m, dg)
         pos = _write(dg, negative, m, out, pos)
     return pos
@@ -219,12 +227,7 @@ def words128_stream(high, low, out):
             x[3, c] = h >> np.uint64(32)
             negative[c] = np.uint8(1) if h >= np.uint64(1 << 63) else np.uint8(0)
             carry[c] = np.uint64(negative[c])
-        for w in range(nw):  # ~x + 1 where negative
-            xw = x[w]
-            for c in range(m):
-                t = ((xw[c] ^ _M32) + carry[c]) if negative[c] else xw[c]
-                xw[c] = t & _M32
-                carry[c] = t >> np.uint64(32)
+        _magnitudes(x, nw, m, negative, carry)
         _digits15(x, m, dg)
         pos = _write(dg, negative, m, out, pos)
     return pos
