@@ -133,24 +133,31 @@ def one_ntt_mod(a, b, tab, consts, out):
 _LOW32 = np.uint64(0xFFFFFFFF)
 
 
-@njit(inline="always")  # no signature: inlined into the kernel below only
-def _product_128(x, y):
-    """``x y`` for int64 ``x``, ``y`` as a 128-bit two's-complement pair ``(high, low)`` of
-    uint64 words: the magnitudes' product from four 32 x 32-bit products (schoolbook on half
-    words), negated when the signs differ (common practice, no source)."""
-    negative = (x < 0) != (y < 0)
-    ux = np.uint64(-x) if x < 0 else np.uint64(x)  # -(-2^63) wraps to -2^63: 2^63 as uint64
-    uy = np.uint64(-y) if y < 0 else np.uint64(y)
-    a0 = ux & _LOW32
-    a1 = ux >> np.uint64(32)
-    b0 = uy & _LOW32
-    b1 = uy >> np.uint64(32)
+@njit(inline="always")  # no signature: inlined into the kernels that call it
+def mul_u128(x, y):
+    """``x y`` for uint64 ``x``, ``y`` as ``(high, low)`` uint64 words, from four 32 x 32-bit
+    products (schoolbook on half words; common practice, no source)."""
+    a0 = x & _LOW32
+    a1 = x >> np.uint64(32)
+    b0 = y & _LOW32
+    b1 = y >> np.uint64(32)
     p00 = a0 * b0
     p01 = a0 * b1
     p10 = a1 * b0
     mid = (p00 >> np.uint64(32)) + (p01 & _LOW32) + (p10 & _LOW32)
     low = (p00 & _LOW32) | (mid << np.uint64(32))
     high = a1 * b1 + (p01 >> np.uint64(32)) + (p10 >> np.uint64(32)) + (mid >> np.uint64(32))
+    return high, low
+
+
+@njit(inline="always")  # no signature: inlined into the kernel below only
+def _product_128(x, y):
+    """``x y`` for int64 ``x``, ``y`` as a 128-bit two's-complement pair ``(high, low)`` of
+    uint64 words: the magnitudes' product (:func:`mul_u128`), negated when the signs differ."""
+    negative = (x < 0) != (y < 0)
+    ux = np.uint64(-x) if x < 0 else np.uint64(x)  # -(-2^63) wraps to -2^63: 2^63 as uint64
+    uy = np.uint64(-y) if y < 0 else np.uint64(y)
+    high, low = mul_u128(ux, uy)
     if negative:
         low = ~low + np.uint64(1)
         high = ~high + (np.uint64(1) if low == 0 else np.uint64(0))

@@ -24,7 +24,7 @@ from numba import njit
 
 from . import jit_state as _jit
 from ._kernels_arith import M32 as _M32
-from ._kernels_batch import _product_128
+from ._kernels_batch import _product_128, mul_u128
 from ._kernels_crt import BLOCK
 from ._kernels_stream import _digits15, _magnitudes, _start, _write
 
@@ -103,27 +103,10 @@ def product_stream(a, b, out):
 
 
 @njit(inline="always")
-def _mul_u128(x, y):
-    """``x y`` for uint64 ``x``, ``y`` as ``(high, low)`` uint64 words (four half-word
-    products; common practice, no source)."""
-    a0 = x & _M32
-    a1 = x >> np.uint64(32)
-    b0 = y & _M32
-    b1 = y >> np.uint64(32)
-    p00 = a0 * b0
-    p01 = a0 * b1
-    p10 = a1 * b0
-    mid = (p00 >> np.uint64(32)) + (p01 & _M32) + (p10 & _M32)
-    low = (p00 & _M32) | (mid << np.uint64(32))
-    high = a1 * b1 + (p01 >> np.uint64(32)) + (p10 >> np.uint64(32)) + (mid >> np.uint64(32))
-    return high, low
-
-
-@njit(inline="always")
 def _redc(high, low, m, m_neg_inv):
     """``(high 2^64 + low) 2^-64 mod m`` for ``high < m < 2^63`` odd (Montgomery's REDC)."""
     u = low * m_neg_inv
-    uh, _ = _mul_u128(u, m)
+    uh, _ = mul_u128(u, m)
     t = high + uh + (_ONE if low != _ZERO else _ZERO)  # low + (u m mod 2^64) is 0 or 2^64
     return t - m if t >= m else t
 
@@ -138,8 +121,8 @@ def product_mod_odd(a, b, m, m_neg_inv, r2, r3, out):
     s2 = np.empty(count, dtype=np.uint64)
     _sums_192(a, b, s0, s1, s2)  # non-negative operands: no sign words
     for k in range(count):
-        h1, l1 = _mul_u128(s1[k] % m, r2)
-        h2, l2 = _mul_u128(s2[k] % m, r3)
+        h1, l1 = mul_u128(s1[k] % m, r2)
+        h2, l2 = mul_u128(s2[k] % m, r3)
         t = _redc(h1, l1, m, m_neg_inv) + _redc(h2, l2, m, m_neg_inv)  # each < m < 2^63
         t = t - m if t >= m else t
         t += s0[k] % m
@@ -191,7 +174,7 @@ def tiny_auto(a, b, m, m_neg_inv, r2, r3, out, buf):
         rb = b
         ma = _rounded(_magnitude(a))
         mb = _rounded(_magnitude(b))
-    high, low = _mul_u128(ma, mb)
+    high, low = mul_u128(ma, mb)
     terms = np.uint64(min(n1, n2))
     if high == _ZERO and low <= np.uint64(0x7FFFFFFFFFFFFFFF) // terms:  # bound < 2^63
         out[:] = 0
