@@ -3,19 +3,21 @@
 Loaded with the kernel modules (:data:`polyconv.engines.jit_state.KERNEL_MODULES`); used by
 :mod:`polyconv.algebra.series_recur`.  For ``a_0 = s = +-1`` the coefficients of ``b = 1/a``
 satisfy ``b_k = -s sum_(i=1..k) a_i b_(k-i)`` (the coefficient comparison in ``a b = 1``;
-Knuth, TAOCP vol. 2, 3rd ed., section 4.7).  The ``a_i`` are int64, the ``b_k`` grow by about
-the width of ``a`` per term, so they are multi-word integers here:
+Knuth, TAOCP vol. 2, 3rd ed., section 4.7).  The ``a_i`` are int64; the ``b_k`` grow by about
+the width of ``a`` per term, so they are multi-digit integers here.
 
-* :func:`inverse_words`: the recurrence on two's complement rows of 32-bit words (held in
-  uint64).  A product ``|a_i| b_j`` is summed word by word without carries into two int64
-  columns, the low and the high halves of the 64-bit word products (each below ``2^32``, so
-  ``2^31`` of them fit an int64), and a negative ``b_j = U - 2^(32 w)`` adds ``-|a_i| 2^(32 w)``
-  (common practice for schoolbook multi-word sums, no source; Knuth 4.3.1 for the carries).
-  The carries run once per term.  Widths come from the proof: with ``|a_i| < 2^(32 h_i)`` and
-  ``|b_j| < 2^(32 w_j - 1)``, ``|b_k| <= k max |a_i| |b_(k-i)| < 2^(32 (max(w_j + h_i) + 1) - 1)``
-  for ``k < 2^32``, so that many words hold ``b_k`` exactly; each row is then trimmed to its
-  shortest two's complement form.
-* :func:`words_stream`: those rows as a ``marshal`` list of Python ints (the stream format of
+* :func:`inverse_digits`: the recurrence on *balanced* digits of 24 bits: ``b_j = sum_c
+  d_(c,j) 2^(24 c)`` and ``a_i = sum_t e_(t,i) 2^(24 t)`` with every digit in ``[-2^23, 2^23)``
+  (signed digits need no sign extension: a value's digits above its width are zero).  Digit
+  ``c`` of the sum is ``S_c = sum_t sum_i e_(t,i) d_(c-t, k-i)``, a dot product along ``j = k -
+  i`` of two contiguous int32 rows (the digits are stored one row per digit position, ``a``'s
+  reversed), each product below ``2^46`` and at most ``3 k`` of them, so exact in int64 for
+  ``k < 2^15``; then one carry pass makes ``b_k``'s digits balanced again (common practice for
+  multi-digit sums with delayed carries, no source; Knuth 4.3.1 for the carries).  Widths come
+  from the proof: a value with ``w`` balanced digits is below ``2^(24 w - 1)``, so ``|b_k| <=
+  k max |a_i| |b_(k-i)| < 2^(24 (max(w_j + h_i) + 1) - 1)`` for ``k < 2^24`` (``h_i`` digits of
+  ``a_i``): that many digits hold ``b_k``; the top zero digits are then dropped.
+* :func:`digits_stream`: those columns as a ``marshal`` list of Python ints (the stream format of
   :mod:`polyconv.engines._kernels_stream`; CPython's Python/marshal.c, ``r_PyLong``).
 """
 
@@ -25,116 +27,92 @@ import numpy as np
 from numba import njit
 
 from . import jit_state as _jit
-from ._kernels_arith import M32 as _M32
 
 CACHE = _jit.cache_enabled()
 
-_SIGN = np.uint64(0x80000000)
+_HALF = 1 << 23
+_MASK = (1 << 24) - 1
+
+#: Most terms :func:`inverse_digits` accepts (its int64 digit sums are exact below ``2^15``).
+MAX_TERMS = 1 << 14
 
 
-@njit("UniTuple(int64, 2)(uint32[::1], int64, int64)", cache=CACHE, inline="always")
-def _trim(row, start, width):
-    """Shortest two's complement width of the ``width`` words at ``row[start:]`` (at least 1)
-    and whether the value is negative (1) or not (0)."""
-    top = np.uint64(row[start + width - 1])
-    neg = 1 if top & _SIGN else 0
-    fill = np.uint32(0xFFFFFFFF) if neg else np.uint32(0)
-    w = width
-    while w > 1 and row[start + w - 1] == fill and ((row[start + w - 2] & _SIGN) != 0) == neg:
-        w -= 1
-    return w, neg
-
-
-@njit("int64(int64[::1], int64, uint32[::1], int64[::1], int64[::1], uint8[::1])", cache=CACHE)
-def inverse_words(a, n, words, start, width, negative):
-    """``b = 1/a mod x^n`` for ``a[0] = +-1`` (``a`` int64, any length ``>= 1``) as rows of
-    32-bit two's complement words: row ``k`` is ``words[start[k]:start[k] + width[k]]``, its
-    sign ``negative[k]``.  ``words`` must have room for :func:`word_capacity` words.  Returns
-    the number of words used."""
-    na = min(a.shape[0], n)
-    lo = np.empty(na, dtype=np.uint64)  # |a_i| in 32-bit halves
-    hi = np.empty(na, dtype=np.uint64)
-    neg_a = np.empty(na, dtype=np.uint8)
-    h = np.empty(na, dtype=np.int64)    # words of |a_i| (0 for a_i = 0)
-    for i in range(na):
+@njit("int64(int64[::1], int64)", cache=CACHE)
+def digit_count(a, n):
+    """Balanced 24-bit digits ``D`` of the widest ``|a_i|`` (``1 <= i < n``; 1, 2 or 3), so
+    that :func:`inverse_digits` needs digit rows ``1 + (n - 1) (D + 1)``."""
+    most = 1
+    for i in range(1, min(a.shape[0], n)):
         v = a[i]
-        m = np.uint64(v) if v >= 0 else np.uint64(0) - np.uint64(v)
-        lo[i], hi[i] = m & _M32, m >> np.uint64(32)
-        neg_a[i] = 1 if v < 0 else 0
-        h[i] = 0 if m == 0 else (1 if hi[i] == 0 else 2)
+        if v >= _HALF * (1 << 24) - _HALF or v < -(_HALF * (1 << 24)):
+            most = 3
+        elif (v >= _HALF or v < -_HALF) and most < 2:
+            most = 2
+    return most
+
+
+@njit("int64(int64[::1], int64, int64, int32[:, ::1], int64[::1])", cache=CACHE)
+def inverse_digits(a, n, depth, digits, width):
+    """``b = 1/a mod x^n`` for ``a[0] = +-1`` (``a`` int64, ``n <= MAX_TERMS``): ``b_j =
+    sum_c digits[c, j] 2^(24 c)`` for ``c < width[j]``, balanced digits; ``digits`` must be zero
+    and have ``1 + (n - 1) (depth + 1)`` rows (``depth`` = :func:`digit_count`).  Returns the
+    most digits of a ``b_j``."""
+    na = min(a.shape[0], n)
+    er = np.zeros(max(na - 1, 1) * depth, dtype=np.int32)  # digit t of a_i at (na-1-i) D + t
+    h = np.zeros(na, dtype=np.int64)
+    for i in range(1, na):
+        x = a[i]
+        for t in range(depth):
+            q = x >> 24
+            r = x & _MASK
+            if r >= _HALF:
+                r -= 1 << 24
+                q += 1
+            er[(na - 1 - i) * depth + t] = np.int32(r)
+            if r != 0:
+                h[i] = t + 1
+            x = q
+    first = np.full(digits.shape[0], n, dtype=np.int64)  # first j with a digit in that row
     flip = a[0] > 0  # b_k = -s * sum: negate the sum when s = +1
-    cap = words.shape[0]
-    col_lo = np.zeros(cap + 3, dtype=np.int64)
-    col_hi = np.zeros(cap + 3, dtype=np.int64)
-    words[0] = np.uint32(1) if a[0] > 0 else np.uint32(0xFFFFFFFF)
-    start[0], width[0], negative[0] = 0, 1, 0 if a[0] > 0 else 1
-    used = 1
+    for t in range(depth):
+        digits[t, t] = 1 if a[0] > 0 else -1
+    width[0] = 1
+    first[0] = 0
+    most = 1
     for k in range(1, n):
         top = min(k, na - 1)
         size = 1
         for i in range(1, top + 1):
             if h[i] and width[k - i] + h[i] + 1 > size:
                 size = width[k - i] + h[i] + 1
-        for c in range(size + 1):
-            col_lo[c] = 0
-            col_hi[c] = 0
-        for i in range(1, top + 1):
-            if h[i] == 0:
-                continue
-            j = k - i
-            w = width[j]
-            row = words[start[j]: start[j] + w]
-            for half in range(h[i]):
-                m = lo[i] if half == 0 else hi[i]
-                if m == 0:
-                    continue
-                cl = col_lo[half: half + w]
-                ch = col_hi[half: half + w]
-                if neg_a[i]:
-                    for c in range(w):
-                        p = m * np.uint64(row[c])
-                        cl[c] -= np.int64(p & _M32)
-                        ch[c] -= np.int64(p >> np.uint64(32))
-                    if negative[j]:
-                        col_lo[half + w] += np.int64(m)
-                else:
-                    for c in range(w):
-                        p = m * np.uint64(row[c])
-                        cl[c] += np.int64(p & _M32)
-                        ch[c] += np.int64(p >> np.uint64(32))
-                    if negative[j]:
-                        col_lo[half + w] -= np.int64(m)
         carry = np.int64(0)
-        at = used
+        w = 0
         for c in range(size):
-            t = col_lo[c] + (col_hi[c - 1] if c else np.int64(0))
-            t = (-t if flip else t) + carry
-            words[at + c] = np.uint32(np.uint64(t) & _M32)
-            carry = t >> 32
-        w, neg = _trim(words, at, size)
-        start[k], width[k], negative[k] = at, w, neg
-        used = at + w
-    return used
-
-
-@njit("int64(int64[::1], int64)", cache=CACHE)
-def word_capacity(a, n):
-    """Words :func:`inverse_words` may need: row ``k`` takes at most ``1 + k (H + 1)`` words
-    while it is computed (``H`` the most words of an ``|a_i|``, ``i >= 1``), so ``1 + sum_k``."""
-    most = 1
-    for i in range(1, min(a.shape[0], n)):
-        v = a[i]
-        if v >= 2**32 or v <= -(2**32):
-            most = 2
-    return n + (most + 1) * (n * (n - 1) // 2) + 2 * most + 4
-
-
-@njit("uint64(uint64[::1], int64)", cache=CACHE, inline="always")
-def _digit(mag, d):
-    """Bits ``[15 d, 15 d + 15)`` of the 32-bit words ``mag`` (one zero word above the top)."""
-    w = (15 * d) >> 5
-    off = np.uint64((15 * d) & 31)
-    return ((mag[w] | (mag[w + 1] << np.uint64(32))) >> off) & np.uint64(0x7FFF)
+            total = np.int64(0)
+            lo = max(first[max(c - depth + 1, 0)], k - top)
+            if lo < k:
+                ar = er[(na - 1 - k + lo) * depth: (na - 1) * depth]
+                br = digits[c, lo * depth: k * depth]
+                for j in range((k - lo) * depth):
+                    total += np.int64(ar[j]) * np.int64(br[j])
+            v = (-total if flip else total) + carry
+            q = v >> 24
+            r = v & _MASK
+            if r >= _HALF:
+                r -= 1 << 24
+                q += 1
+            for t in range(depth):
+                digits[c + t, k * depth + t] = np.int32(r)
+            carry = q
+            if r != 0:
+                w = c + 1
+        w = max(w, 1)
+        width[k] = w
+        for c in range(w):
+            if first[c] > k:
+                first[c] = k
+        most = max(most, w)
+    return most
 
 
 @njit("int64(uint8[::1], int64, int64)", cache=CACHE, inline="always")
@@ -146,41 +124,50 @@ def _int32(out, pos, v):
     return pos + 4
 
 
-@njit("int64(uint32[::1], int64[::1], int64[::1], uint8[::1], uint8[::1])", cache=CACHE)
-def words_stream(words, start, width, negative, out):
-    """The rows of :func:`inverse_words` as a marshal list of Python ints into ``out`` (room for
-    :func:`polyconv.engines._pyints.capacity` of ``len(start)`` values of ``32 max(width)``
-    bits); returns the bytes used."""
-    count = start.shape[0]
+@njit("int64(int64[::1], int64)", cache=CACHE, inline="always")
+def _digit15(mag, d):
+    """Bits ``[15 d, 15 d + 15)`` of the unsigned 24-bit digits ``mag`` (a zero digit above)."""
+    q = (15 * d) // 24
+    off = (15 * d) % 24
+    return ((mag[q] | (mag[q + 1] << 24)) >> off) & 0x7FFF
+
+
+@njit("int64(int32[:, ::1], int64, int64[::1], uint8[::1])", cache=CACHE)
+def digits_stream(digits, depth, width, out):
+    """The values of :func:`inverse_digits` as a marshal list of Python ints into ``out`` (room
+    for :func:`polyconv.engines._pyints.capacity` of ``len(width)`` values of ``24 max(width)``
+    bits); returns the bytes used.  Each value's magnitude (its digits negated when the top one
+    is negative) is made unsigned 24-bit digits by one borrow pass, then cut into 15-bit ones."""
+    count = width.shape[0]
     most = 1
     for k in range(count):
         most = max(most, width[k])
-    mag = np.empty(most + 1, dtype=np.uint64)
+    mag = np.zeros(most + 1, dtype=np.int64)
     out[0] = 0x5B  # "[" and the int32 count
     pos = _int32(out, 1, count)
     for k in range(count):
         w = width[k]
-        s = start[k]
-        carry = np.uint64(1) if negative[k] else np.uint64(0)
-        for c in range(w):  # |b_k|: ~x + 1 for a negative row
-            x = np.uint64(words[s + c])
-            t = ((x ^ _M32) + carry) if negative[k] else x
-            mag[c] = t & _M32
-            carry = t >> np.uint64(32)
+        negative = digits[w - 1, k * depth] < 0
+        borrow = np.int64(0)
+        for c in range(w):
+            d = np.int64(digits[c, k * depth])
+            u = (-d if negative else d) + borrow
+            borrow = -1 if u < 0 else 0
+            mag[c] = u + (1 << 24) if u < 0 else u
         mag[w] = 0
-        digits = (32 * w + 14) // 15
-        while digits > 0 and _digit(mag, digits - 1) == 0:
-            digits -= 1
-        if digits <= 2:  # below 2^30: an int32 item
-            v = np.int64(mag[0] & np.uint64(0x3FFFFFFF))
+        nd = (24 * w + 14) // 15
+        while nd > 0 and _digit15(mag, nd - 1) == 0:
+            nd -= 1
+        if nd <= 2:  # below 2^30: an int32 item
+            v = _digit15(mag, 0) | (_digit15(mag, 1) << 15) if nd else np.int64(0)
             out[pos] = 0x69
-            pos = _int32(out, pos + 1, -v if negative[k] else v)
+            pos = _int32(out, pos + 1, -v if negative else v)
         else:
             out[pos] = 0x6C
-            pos = _int32(out, pos + 1, -digits if negative[k] else digits)
-            for d in range(digits):
-                v = _digit(mag, d)
-                out[pos] = np.uint8(v & np.uint64(0xFF))
-                out[pos + 1] = np.uint8(v >> np.uint64(8))
+            pos = _int32(out, pos + 1, -nd if negative else nd)
+            for d in range(nd):
+                v = _digit15(mag, d)
+                out[pos] = np.uint8(v & 0xFF)
+                out[pos + 1] = np.uint8(v >> 8)
                 pos += 2
     return pos
