@@ -47,11 +47,11 @@ def inverse_compiled(a: np.ndarray, n: int) -> np.ndarray | None:
         return None
     a = np.ascontiguousarray(a[:n])
     depth = kernels.digit_count(a, n)
-    rows = (n - 1) * (depth + 1) + depth + 1
+    rows = kernels.rows_needed(n, depth)
     budget.check_allocation(4.0 * rows * n * depth, f"inverse_series(a, length={n}) digits")
     digits = np.zeros((rows, n * depth), dtype=np.int32)
     width = np.empty(n, dtype=np.int64)
     most = kernels.inverse_digits(a, n, depth, digits, width)
-    buf = _pyints.buffer(n, 24 * most, "Python ints of inverse_series")
+    buf = _pyints.buffer(n, 32 * most, "Python ints of inverse_series")
     used = kernels.digits_stream(digits, depth, width, buf)
     return _pyints.objects(buf, used, n)
