@@ -17,6 +17,7 @@ from ..numerics.limits import max_abs
 from .checks import _check_chain, _check_length, _check_modulus, _sequence
 from .exact_quotient import series_inverse
 from .rings import _INT64_LIMIT, _fit, _Integers, _not_invertible_message, _Ring, _ring_for
+from .series_recur import inverse_compiled
 
 # ----------------------------------------------------------------------------- inverse series
 
@@ -123,7 +124,13 @@ def _inverse(ring: _Ring, a: np.ndarray, n: int, first) -> np.ndarray:
     """``1/a mod x^n`` by Newton iteration, given ``first = 1/a[0]``; exact integers by the
     recurrence in blocks of :func:`polyconv.algebra.exact_quotient.series_inverse` (products of
     the narrow ``a_i`` by the growing ``b_j`` at their true sizes; measured 3-6x faster than
-    Newton's Kronecker products at 64-256 terms, which pad ``a`` to the width of ``b``)."""
+    Newton's Kronecker products at 64-256 terms, which pad ``a`` to the width of ``b``); int64
+    ``a`` by the compiled recurrence when the kernels are loaded
+    (:func:`polyconv.algebra.series_recur.inverse_compiled`)."""
+    if isinstance(ring, _Integers) and first in (1, -1):
+        compiled = inverse_compiled(a, n)
+        if compiled is not None:
+            return ring.to_result(compiled)
     b = _inverse_base(ring, a, min(n, _BASE_TERMS), first)
     if n > b.shape[0]:  # up front: the last step's size, before any Newton step runs
         _check_inverse_growth(ring, b, n, n)

@@ -21,7 +21,7 @@ __all__ = ["inverse_compiled"]
 #: Up to this many terms the compiled recurrence is used (its ``~n^3/6`` word products for
 #: 64-bit ``a``); longer inverses keep the blocked route of
 #: :func:`polyconv.algebra.exact_quotient.series_inverse`.
-RECUR_TERMS = 512  # (<= _kernels_recur.MAX_TERMS)
+RECUR_TERMS = 512
 
 _kernels: list = []
 
@@ -46,12 +46,13 @@ def inverse_compiled(a: np.ndarray, n: int) -> np.ndarray | None:
     if kernels is None:
         return None
     a = np.ascontiguousarray(a[:n])
-    depth = kernels.digit_count(a, n)
-    rows = kernels.rows_needed(n, depth)
-    budget.check_allocation(4.0 * rows * n * depth, f"inverse_series(a, length={n}) digits")
-    digits = np.zeros((rows, n * depth), dtype=np.int32)
+    cap = kernels.word_capacity(a, n)
+    budget.check_allocation(4.0 * cap, f"inverse_series(a, length={n}) words")
+    words = np.empty(cap, dtype=np.uint32)
+    start = np.empty(n, dtype=np.int64)
     width = np.empty(n, dtype=np.int64)
-    most = kernels.inverse_digits(a, n, depth, digits, width)
-    buf = _pyints.buffer(n, 32 * most, "Python ints of inverse_series")
-    used = kernels.digits_stream(digits, depth, width, buf)
+    negative = np.empty(n, dtype=np.uint8)
+    kernels.inverse_words(a, n, words, start, width, negative)
+    buf = _pyints.buffer(n, 32 * int(width.max()), "Python ints of inverse_series")
+    used = kernels.words_stream(words, start, width, negative, buf)
     return _pyints.objects(buf, used, n)

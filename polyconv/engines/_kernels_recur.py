@@ -3,24 +3,19 @@
 Loaded with the kernel modules (:data:`polyconv.engines.jit_state.KERNEL_MODULES`); used by
 :mod:`polyconv.algebra.series_recur`.  For ``a_0 = s = +-1`` the coefficients of ``b = 1/a``
 satisfy ``b_k = -s sum_(i=1..k) a_i b_(k-i)`` (the coefficient comparison in ``a b = 1``;
-Knuth, TAOCP vol. 2, 3rd ed., section 4.7).  The ``a_i`` are int64; the ``b_k`` grow by about
-the width of ``a`` per term, so they are multi-digit integers here.
+Knuth, TAOCP vol. 2, 3rd ed., section 4.7).  The ``a_i`` are int64, the ``b_k`` grow by about
+the width of ``a`` per term, so they are multi-word integers here:
 
-* :func:`inverse_digits`: the recurrence on *balanced* digits of 32 bits: ``b_j = sum_c
-  d_(c,j) 2^(32 c)`` and ``a_i = sum_t e_(t,i) 2^(32 t)`` with every digit in ``[-2^31, 2^31)``
-  (signed digits need no sign extension: a value's digits above its width are zero).  Digit
-  ``c`` of the sum is ``S_c = sum_t sum_i e_(t,i) d_(c-t, k-i)``: one dot product of two
-  contiguous int32 rows (``a``'s digits reversed, ``b``'s stored so that the ``D`` digit
-  positions ``c - t`` of each ``b_j`` lie side by side).  When ``max|e| D n < 2^31`` the int64
-  sum is exact; otherwise it is exact modulo ``2^64`` (wrapping) and a float64 sum of the same
-  products, off by less than ``3 n 2^-53 sum|terms| < 2^41`` for ``n <= 2^14`` (rounding error
-  of a sum, Higham, *Accuracy and Stability of Numerical Algorithms*, 2nd ed., section 4.2),
-  gives the multiple of ``2^64`` (common practice, no source).  Then one carry pass makes
-  ``b_k``'s digits balanced again (Knuth 4.3.1).  Widths come from the proof: ``w`` balanced
-  digits hold values below ``2^(32 w - 1)``, so ``|b_k| <= k max |a_i| |b_(k-i)| <
-  2^(32 (max(w_j + h_i) + 1) - 1)`` for ``k < 2^31`` (``h_i`` digits of ``a_i``); the top zero
-  digits are then dropped.
-* :func:`digits_stream`: those values as a ``marshal`` list of Python ints (the stream format of
+* :func:`inverse_words`: the recurrence on two's complement rows of 32-bit words (uint32).
+  A product ``|a_i| b_j`` is summed word by word without carries into two int64
+  columns, the low and the high halves of the 64-bit word products (each below ``2^32``, so
+  ``2^31`` of them fit an int64), and a negative ``b_j = U - 2^(32 w)`` adds ``-|a_i| 2^(32 w)``
+  (common practice for schoolbook multi-word sums, no source; Knuth 4.3.1 for the carries).
+  The carries run once per term.  Widths come from the proof: with ``|a_i| < 2^(32 h_i)`` and
+  ``|b_j| < 2^(32 w_j - 1)``, ``|b_k| <= k max |a_i| |b_(k-i)| < 2^(32 (max(w_j + h_i) + 1) - 1)``
+  for ``k < 2^32``, so that many words hold ``b_k`` exactly; each row is then trimmed to its
+  shortest two's complement form.
+* :func:`words_stream`: those rows as a ``marshal`` list of Python ints (the stream format of
   :mod:`polyconv.engines._kernels_stream`; CPython's Python/marshal.c, ``r_PyLong``).
 """
 
@@ -30,156 +25,116 @@ import numpy as np
 from numba import njit
 
 from . import jit_state as _jit
+from ._kernels_arith import M32 as _M32
 
 CACHE = _jit.cache_enabled()
 
-_HALF = 1 << 31
-_MASK = (1 << 32) - 1
-_TWO64 = 2.0**64
-
-#: Most terms :func:`inverse_digits` accepts (the float64 error bound above).
-MAX_TERMS = 1 << 14
+_SIGN = np.uint64(0x80000000)
 
 
-@njit("int64(int64[::1], int64)", cache=CACHE)
-def digit_count(a, n):
-    """Balanced 32-bit digits ``D`` of the widest ``a_i`` (``1 <= i < n``; 1, 2 or 3)."""
-    most = 1
-    for i in range(1, min(a.shape[0], n)):
-        v = a[i]
-        if v >= (1 << 63) - _HALF:  # (2^31 - 1)(2^32 + 1) is the largest with 2 digits
-            most = 3
-        elif (v >= _HALF or v < -_HALF) and most < 2:
-            most = 2
-    return most
+@njit("UniTuple(int64, 2)(uint32[::1], int64, int64)", cache=CACHE, inline="always")
+def _trim(row, start, width):
+    """Shortest two's complement width of the ``width`` words at ``row[start:]`` (at least 1)
+    and whether the value is negative (1) or not (0)."""
+    top = np.uint64(row[start + width - 1])
+    neg = 1 if top & _SIGN else 0
+    fill = np.uint32(0xFFFFFFFF) if neg else np.uint32(0)
+    w = width
+    while w > 1 and row[start + w - 1] == fill and ((row[start + w - 2] & _SIGN) != 0) == neg:
+        w -= 1
+    return w, neg
 
 
-def rows_needed(n: int, depth: int) -> int:
-    """Digit positions :func:`inverse_digits` may write: ``b_k`` is computed on at most ``1 + k
-    (D + 1)`` of them, each written to ``D`` interleaved rows, read in groups of ``_GROUP``."""
-    return (n - 1) * (depth + 1) + 1 + depth + _GROUP
-
-
-@njit("UniTuple(int64, 2)(int64, int64)", cache=CACHE, inline="always")
-def _split(v, carry):
-    """``v = r + 2^32 q`` with ``r`` balanced; returns ``(r, q + carry)``."""
-    q = v >> 32
-    r = v & _MASK
-    if r >= _HALF:
-        r -= 1 << 32
-        q += 1
-    return r, q + carry
-
-
-#: Digit positions summed in one pass over ``a``'s digits (the rows share its loads).
-_GROUP = 4
-
-
-@njit("void(int32[::1], int32[:, ::1], int64, int64, int64, int64, int64, boolean, int64[::1], "
-      "float64[::1])", cache=CACHE, fastmath={"reassoc", "contract"}, inline="always")
-def _column_sums(er, digits, g, lo, k, na, depth, exact, sums, approx):
-    """``sums[u]`` (and, unless ``exact``, its float64 value ``approx[u]``): the dot product of
-    ``a``'s reversed digits with row ``g + u`` of ``digits`` over the terms ``lo .. k - 1``
-    (rows with no digit there contribute zeros)."""
-    for u in range(_GROUP):
-        sums[u] = 0
-        approx[u] = 0.0
-    if lo >= k:
-        return
-    m = (k - lo) * depth
-    ar = er[(na - 1 - k + lo) * depth: (na - 1) * depth]
-    r0 = digits[g, lo * depth: k * depth]
-    r1 = digits[g + 1, lo * depth: k * depth]
-    r2 = digits[g + 2, lo * depth: k * depth]
-    r3 = digits[g + 3, lo * depth: k * depth]
-    s0 = s1 = s2 = s3 = np.int64(0)
-    if exact:
-        for j in range(m):
-            x = np.int64(ar[j])
-            s0 += x * np.int64(r0[j])
-            s1 += x * np.int64(r1[j])
-            s2 += x * np.int64(r2[j])
-            s3 += x * np.int64(r3[j])
-    else:
-        f0 = f1 = f2 = f3 = 0.0
-        for j in range(m):
-            x = np.int64(ar[j])
-            y = np.float64(ar[j])
-            s0 += x * np.int64(r0[j])
-            s1 += x * np.int64(r1[j])
-            s2 += x * np.int64(r2[j])
-            s3 += x * np.int64(r3[j])
-            f0 += y * np.float64(r0[j])
-            f1 += y * np.float64(r1[j])
-            f2 += y * np.float64(r2[j])
-            f3 += y * np.float64(r3[j])
-        approx[0], approx[1], approx[2], approx[3] = f0, f1, f2, f3
-    sums[0], sums[1], sums[2], sums[3] = s0, s1, s2, s3
-
-
-@njit("int64(int64[::1], int64, int64, int32[:, ::1], int64[::1])", cache=CACHE,
-      fastmath={"reassoc", "contract"})
-def inverse_digits(a, n, depth, digits, width):
-    """``b = 1/a mod x^n`` for ``a[0] = +-1`` (``a`` int64, ``n <= MAX_TERMS``): ``b_j =
-    sum_c digits[c, D j] 2^(32 c)`` for ``c < width[j]`` (``digits[c + t, D j + t]`` holds the
-    same digit for ``t < D``), balanced digits; ``digits`` must be zero, with
-    :func:`rows_needed` rows and ``D n`` columns (``D = depth`` = :func:`digit_count`).  Returns
-    the most digits of a ``b_j``."""
+@njit("int64(int64[::1], int64, uint32[::1], int64[::1], int64[::1], uint8[::1])", cache=CACHE)
+def inverse_words(a, n, words, start, width, negative):
+    """``b = 1/a mod x^n`` for ``a[0] = +-1`` (``a`` int64, any length ``>= 1``) as rows of
+    32-bit two's complement words: row ``k`` is ``words[start[k]:start[k] + width[k]]``, its
+    sign ``negative[k]``.  ``words`` must have room for :func:`word_capacity` words.  Returns
+    the number of words used."""
     na = min(a.shape[0], n)
-    er = np.zeros(max(na - 1, 1) * depth, dtype=np.int32)  # digit t of a_i at (na-1-i) D + t
-    h = np.zeros(na, dtype=np.int64)
-    biggest = 0
-    for i in range(1, na):
-        x = a[i]
-        for t in range(depth):
-            r, x = _split(x, 0)
-            er[(na - 1 - i) * depth + t] = np.int32(r)
-            if r != 0:
-                h[i] = t + 1
-            biggest = max(biggest, abs(r))
-    exact = biggest * depth * n < _HALF
-    first = np.full(digits.shape[0], n, dtype=np.int64)  # first j with a digit in that row
+    lo = np.empty(na, dtype=np.uint64)  # |a_i| in 32-bit halves
+    hi = np.empty(na, dtype=np.uint64)
+    neg_a = np.empty(na, dtype=np.uint8)
+    h = np.empty(na, dtype=np.int64)    # words of |a_i| (0 for a_i = 0)
+    for i in range(na):
+        v = a[i]
+        m = np.uint64(v) if v >= 0 else np.uint64(0) - np.uint64(v)
+        lo[i], hi[i] = m & _M32, m >> np.uint64(32)
+        neg_a[i] = 1 if v < 0 else 0
+        h[i] = 0 if m == 0 else (1 if hi[i] == 0 else 2)
     flip = a[0] > 0  # b_k = -s * sum: negate the sum when s = +1
-    for t in range(depth):
-        digits[t, t] = 1 if a[0] > 0 else -1
-    width[0] = 1
-    first[0] = 0
-    most = 1
+    cap = words.shape[0]
+    col_lo = np.zeros(cap + 3, dtype=np.int64)
+    col_hi = np.zeros(cap + 3, dtype=np.int64)
+    words[0] = np.uint32(1) if a[0] > 0 else np.uint32(0xFFFFFFFF)
+    start[0], width[0], negative[0] = 0, 1, 0 if a[0] > 0 else 1
+    used = 1
     for k in range(1, n):
         top = min(k, na - 1)
         size = 1
         for i in range(1, top + 1):
             if h[i] and width[k - i] + h[i] + 1 > size:
                 size = width[k - i] + h[i] + 1
+        for c in range(size + 1):
+            col_lo[c] = 0
+            col_hi[c] = 0
+        for i in range(1, top + 1):
+            if h[i] == 0:
+                continue
+            j = k - i
+            w = width[j]
+            row = words[start[j]: start[j] + w]
+            for half in range(h[i]):
+                m = lo[i] if half == 0 else hi[i]
+                if m == 0:
+                    continue
+                cl = col_lo[half: half + w]
+                ch = col_hi[half: half + w]
+                if neg_a[i]:
+                    for c in range(w):
+                        p = m * np.uint64(row[c])
+                        cl[c] -= np.int64(p & _M32)
+                        ch[c] -= np.int64(p >> np.uint64(32))
+                    if negative[j]:
+                        col_lo[half + w] += np.int64(m)
+                else:
+                    for c in range(w):
+                        p = m * np.uint64(row[c])
+                        cl[c] += np.int64(p & _M32)
+                        ch[c] += np.int64(p >> np.uint64(32))
+                    if negative[j]:
+                        col_lo[half + w] -= np.int64(m)
         carry = np.int64(0)
-        w = 0
-        sums = np.zeros(_GROUP, dtype=np.int64)
-        approx = np.zeros(_GROUP, dtype=np.float64)
-        for g in range(0, size, _GROUP):
-            _column_sums(er, digits, g, max(first[max(g - depth + 1, 0)], k - top), k, na,
-                         depth, exact, sums, approx)
-            for c in range(g, min(g + _GROUP, size)):
-                total, f = sums[c - g], approx[c - g]
-                if flip:
-                    total, f = -total, -f
-                if exact:
-                    r, carry = _split(total + carry, 0)
-                else:  # the true sum is total + a multiple of 2^64 (total wrapped)
-                    low = total + carry
-                    above = np.int64(np.round((f + np.float64(carry) - np.float64(low))
-                                              / _TWO64))
-                    r, carry = _split(low, above << 32)
-                for t in range(depth):
-                    digits[c + t, k * depth + t] = np.int32(r)
-                if r != 0:
-                    w = c + 1
-        w = max(w, 1)
-        width[k] = w
-        for c in range(w):
-            if first[c] > k:
-                first[c] = k
-        most = max(most, w)
-    return most
+        at = used
+        for c in range(size):
+            t = col_lo[c] + (col_hi[c - 1] if c else np.int64(0))
+            t = (-t if flip else t) + carry
+            words[at + c] = np.uint32(np.uint64(t) & _M32)
+            carry = t >> 32
+        w, neg = _trim(words, at, size)
+        start[k], width[k], negative[k] = at, w, neg
+        used = at + w
+    return used
+
+
+@njit("int64(int64[::1], int64)", cache=CACHE)
+def word_capacity(a, n):
+    """Words :func:`inverse_words` may need: row ``k`` takes at most ``1 + k (H + 1)`` words
+    while it is computed (``H`` the most words of an ``|a_i|``, ``i >= 1``), so ``1 + sum_k``."""
+    most = 1
+    for i in range(1, min(a.shape[0], n)):
+        v = a[i]
+        if v >= 2**32 or v <= -(2**32):
+            most = 2
+    return n + (most + 1) * (n * (n - 1) // 2) + 2 * most + 4
+
+
+@njit("uint64(uint64[::1], int64)", cache=CACHE, inline="always")
+def _digit(mag, d):
+    """Bits ``[15 d, 15 d + 15)`` of the 32-bit words ``mag`` (one zero word above the top)."""
+    w = (15 * d) >> 5
+    off = np.uint64((15 * d) & 31)
+    return ((mag[w] | (mag[w + 1] << np.uint64(32))) >> off) & np.uint64(0x7FFF)
 
 
 @njit("int64(uint8[::1], int64, int64)", cache=CACHE, inline="always")
@@ -191,50 +146,41 @@ def _int32(out, pos, v):
     return pos + 4
 
 
-@njit("int64(int64[::1], int64)", cache=CACHE, inline="always")
-def _digit15(mag, d):
-    """Bits ``[15 d, 15 d + 15)`` of the unsigned 32-bit digits ``mag`` (a zero digit above)."""
-    q = (15 * d) >> 5
-    off = (15 * d) & 31
-    return ((mag[q] >> off) | (mag[q + 1] << (32 - off))) & 0x7FFF
-
-
-@njit("int64(int32[:, ::1], int64, int64[::1], uint8[::1])", cache=CACHE)
-def digits_stream(digits, depth, width, out):
-    """The values of :func:`inverse_digits` as a marshal list of Python ints into ``out`` (room
-    for :func:`polyconv.engines._pyints.capacity` of ``len(width)`` values of ``32 max(width)``
-    bits); returns the bytes used.  Each value's magnitude (its digits negated when the top one
-    is negative) is made unsigned 32-bit digits by one borrow pass, then cut into 15-bit ones."""
-    count = width.shape[0]
+@njit("int64(uint32[::1], int64[::1], int64[::1], uint8[::1], uint8[::1])", cache=CACHE)
+def words_stream(words, start, width, negative, out):
+    """The rows of :func:`inverse_words` as a marshal list of Python ints into ``out`` (room for
+    :func:`polyconv.engines._pyints.capacity` of ``len(start)`` values of ``32 max(width)``
+    bits); returns the bytes used."""
+    count = start.shape[0]
     most = 1
     for k in range(count):
         most = max(most, width[k])
-    mag = np.zeros(most + 1, dtype=np.int64)
+    mag = np.empty(most + 1, dtype=np.uint64)
     out[0] = 0x5B  # "[" and the int32 count
     pos = _int32(out, 1, count)
     for k in range(count):
         w = width[k]
-        negative = digits[w - 1, k * depth] < 0
-        borrow = np.int64(0)
-        for c in range(w):
-            d = np.int64(digits[c, k * depth])
-            u = (-d if negative else d) + borrow
-            borrow = -1 if u < 0 else 0
-            mag[c] = u + (1 << 32) if u < 0 else u
+        s = start[k]
+        carry = np.uint64(1) if negative[k] else np.uint64(0)
+        for c in range(w):  # |b_k|: ~x + 1 for a negative row
+            x = np.uint64(words[s + c])
+            t = ((x ^ _M32) + carry) if negative[k] else x
+            mag[c] = t & _M32
+            carry = t >> np.uint64(32)
         mag[w] = 0
-        nd = (32 * w + 14) // 15
-        while nd > 0 and _digit15(mag, nd - 1) == 0:
-            nd -= 1
-        if nd <= 2:  # below 2^30: an int32 item
-            v = _digit15(mag, 0) | (_digit15(mag, 1) << 15) if nd else np.int64(0)
+        digits = (32 * w + 14) // 15
+        while digits > 0 and _digit(mag, digits - 1) == 0:
+            digits -= 1
+        if digits <= 2:  # below 2^30: an int32 item
+            v = np.int64(mag[0] & np.uint64(0x3FFFFFFF))
             out[pos] = 0x69
-            pos = _int32(out, pos + 1, -v if negative else v)
+            pos = _int32(out, pos + 1, -v if negative[k] else v)
         else:
             out[pos] = 0x6C
-            pos = _int32(out, pos + 1, -nd if negative else nd)
-            for d in range(nd):
-                v = _digit15(mag, d)
-                out[pos] = np.uint8(v & 0xFF)
-                out[pos + 1] = np.uint8(v >> 8)
+            pos = _int32(out, pos + 1, -digits if negative[k] else digits)
+            for d in range(digits):
+                v = _digit(mag, d)
+                out[pos] = np.uint8(v & np.uint64(0xFF))
+                out[pos + 1] = np.uint8(v >> np.uint64(8))
                 pos += 2
     return pos
