@@ -34,6 +34,7 @@ from .checks import (
     _combine,
     _sequence,
 )
+from .power_small import _log2_norm1, power_int64
 from .rings import _Integers, _Modular, _nonzero_positions, _Ring, _ring_for
 
 #: Seconds one product costs through :func:`polyconv.convolve` at small sizes (planning,
@@ -94,6 +95,9 @@ def power(a, k: int, *, modulus: int | None = None, length: int | None = None) -
     ring = _ring_for(kind, m)
     if k == 0:
         return ring.to_result(ring.one(n or 1))
+    fast = power_int64(arr, k) if m is None and n is None and kind == "integer" else None
+    if fast is not None:  # short int64 powers: no planning
+        return fast
     x = ring.convert(arr if n is None else arr[:n])
     total = k * (arr.shape[0] - 1) + 1 if n is None else n
     core, shift = _trim(ring, x)
@@ -140,15 +144,6 @@ def _power(ring: _Ring, x: np.ndarray, k: int, n: int | None) -> np.ndarray:
 def _cut(n: int | None, full: int) -> int | None:
     """The ``length`` to ask for: ``n`` when it truncates a product of ``full`` terms."""
     return n if n is not None and n < full else None
-
-
-def _log2_norm1(x: np.ndarray) -> float:
-    """``log2 sum |x_i|`` of an integer array (0 for sums up to 1), rounded up slightly."""
-    if x.dtype == object:
-        total = sum(abs(int(v)) for v in x)
-        return math.log2(total) if total > 1 else 0.0
-    total = float(np.add.reduce(np.abs(x.astype(np.float64)))) * (1 + 2.0**-40)
-    return math.log2(total) if total > 1 else 0.0
 
 
 def _log2_compositions(j: int, parts: int) -> float:

@@ -76,6 +76,10 @@ def inverse_series(a, length: int, *, modulus: int | None = None) -> np.ndarray:
     first = ring.unit_inverse(x[0])
     if first is None:
         raise ValueError(_not_invertible_message("a[0]", x[0], ring, "1/a"))
+    if isinstance(ring, _Integers):  # (already as a result: int64 when every value fits)
+        compiled = inverse_compiled(x, n)
+        if compiled is not None:
+            return compiled
     return ring.to_result(_inverse(ring, x, n, first))
 
 
@@ -130,7 +134,7 @@ def _inverse(ring: _Ring, a: np.ndarray, n: int, first) -> np.ndarray:
     if isinstance(ring, _Integers) and first in (1, -1):
         compiled = inverse_compiled(a, n)
         if compiled is not None:
-            return ring.to_result(compiled)
+            return compiled
     b = _inverse_base(ring, a, min(n, _BASE_TERMS), first)
     if n > b.shape[0]:  # up front: the last step's size, before any Newton step runs
         _check_inverse_growth(ring, b, n, n)

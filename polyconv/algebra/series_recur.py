@@ -10,11 +10,14 @@ otherwise :func:`inverse_compiled` returns None and the caller keeps its portabl
 
 from __future__ import annotations
 
+import marshal
+
 import numpy as np
 
 from ..engines import _pyints
 from ..engines import jit_state as jit
 from ..numerics import budget
+from .rings import _INT64_LIMIT
 
 __all__ = ["inverse_compiled"]
 
@@ -37,22 +40,20 @@ def _ready():
 
 
 def inverse_compiled(a: np.ndarray, n: int) -> np.ndarray | None:
-    """``1/a mod x^n`` exactly as a 1-D object array of Python ints, for int64 ``a`` with
-    ``a[0] = +-1``; None when the compiled route does not apply (kernels not loaded, ``a`` not
-    int64, ``n`` beyond :data:`RECUR_TERMS`)."""
+    """``1/a mod x^n`` exactly, for int64 ``a`` with ``a[0] = +-1``, as the public functions
+    return integers (int64 when every coefficient fits, else an object array of Python ints);
+    None when the compiled route does not apply (kernels not loaded, ``a`` not int64, ``n``
+    beyond :data:`RECUR_TERMS`)."""
     if a.dtype != np.int64 or n > RECUR_TERMS or a.ndim != 1 or not a.shape[0]:
         return None
     kernels = _ready()
     if kernels is None:
         return None
     a = np.ascontiguousarray(a[:n])
-    cap = kernels.word_capacity(a, n)
-    budget.check_allocation(4.0 * cap, f"inverse_series(a, length={n}) words")
-    words = np.empty(cap, dtype=np.uint32)
-    start = np.empty(n, dtype=np.int64)
-    width = np.empty(n, dtype=np.int64)
-    negative = np.empty(n, dtype=np.uint8)
-    kernels.inverse_words(a, n, words, start, width, negative)
-    buf = _pyints.buffer(n, 32 * int(width.max()), "Python ints of inverse_series")
-    used = kernels.words_stream(words, start, width, negative, buf)
-    return _pyints.objects(buf, used, n)
+    words = n + 3 * (n * (n - 1) // 2) + 8  # _kernels_recur.word_capacity at its largest
+    budget.check_allocation(8.0 * words, f"inverse_series(a, length={n}) words")
+    stream = kernels.inverse_stream(a, n)
+    values = marshal.loads(stream)
+    if max(max(values), -min(values)) < _INT64_LIMIT:  # as _Integers.to_result
+        return np.array(values, dtype=np.int64)
+    return np.fromiter(values, dtype=object, count=n)

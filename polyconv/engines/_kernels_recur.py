@@ -16,7 +16,8 @@ the width of ``a`` per term, so they are multi-word integers here:
   for ``k < 2^32``, so that many words hold ``b_k`` exactly; each row is then trimmed to its
   shortest two's complement form.
 * :func:`words_stream`: those rows as a ``marshal`` list of Python ints (the stream format of
-  :mod:`polyconv.engines._kernels_stream`; CPython's Python/marshal.c, ``r_PyLong``).
+  :mod:`polyconv.engines._kernels_stream`; CPython's Python/marshal.c, ``r_PyLong``);
+* :func:`inverse_stream`: both in one call (one dispatch: most of the cost at 16 terms).
 """
 
 from __future__ import annotations
@@ -184,3 +185,21 @@ def words_stream(words, start, width, negative, out):
                 out[pos + 1] = np.uint8(v >> np.uint64(8))
                 pos += 2
     return pos
+
+
+@njit("uint8[::1](int64[::1], int64)", cache=CACHE)
+def inverse_stream(a, n):
+    """The marshal stream of ``1/a mod x^n`` (:func:`inverse_words`, then
+    :func:`words_stream` into a buffer of the exact size its rows need; at most about
+    ``4 word_capacity(a, n)`` bytes, which the caller checks against the memory budget)."""
+    words = np.empty(word_capacity(a, n), dtype=np.uint32)
+    start = np.empty(n, dtype=np.int64)
+    width = np.empty(n, dtype=np.int64)
+    negative = np.empty(n, dtype=np.uint8)
+    inverse_words(a, n, words, start, width, negative)
+    size = 5
+    for k in range(n):  # a type byte, an int32, two bytes per 15-bit digit
+        size += 5 + 2 * ((32 * width[k] + 14) // 15)
+    out = np.empty(size, dtype=np.uint8)
+    used = words_stream(words, start, width, negative, out)
+    return out[:used]
