@@ -46,6 +46,37 @@ def _trim(row, start, width):
     return w, neg
 
 
+@njit("void(uint32[::1], int64, int64, uint32, int64, int64[::1], int64[::1])", cache=CACHE,
+      inline="always")
+def _single(row, lo, hi, m32, mask, cl, ch):
+    """``+-m`` times words ``lo .. hi - 1`` of ``row`` into the columns (sign by ``mask``; ``m``
+    a uint32, so that the compiler multiplies 32 x 32 -> 64 bits)."""
+    m = np.uint64(m32)
+    for c in range(lo, hi):
+        p = m * np.uint64(row[c])
+        cl[c] += (np.int64(p & _M32) ^ mask) - mask
+        ch[c] += (np.int64(p >> np.uint64(32)) ^ mask) - mask
+
+
+@njit("void(uint32[::1], int64[::1], int64[::1], int64, int64, uint32, uint32, int64, int64, "
+      "int64[::1], int64[::1])", cache=CACHE, inline="always")
+def _pair(words, start, width, ja, jb, ma32, mb32, sa, sb, cl, ch):
+    """``+-ma b_ja +- mb b_jb`` (their words ``U``) into the columns in one pass over both
+    rows (each column read and written once for two word products)."""
+    ra = words[start[ja]: start[ja] + width[ja]]
+    rb = words[start[jb]: start[jb] + width[jb]]
+    both = min(width[ja], width[jb])
+    ma, mb = np.uint64(ma32), np.uint64(mb32)
+    for c in range(both):
+        p = ma * np.uint64(ra[c])
+        q = mb * np.uint64(rb[c])
+        cl[c] += ((np.int64(p & _M32) ^ sa) - sa) + ((np.int64(q & _M32) ^ sb) - sb)
+        ch[c] += (((np.int64(p >> np.uint64(32)) ^ sa) - sa)
+                  + ((np.int64(q >> np.uint64(32)) ^ sb) - sb))
+    _single(ra, both, width[ja], ma32, sa, cl, ch)
+    _single(rb, both, width[jb], mb32, sb, cl, ch)
+
+
 @njit("int64(int64[::1], int64, uint32[::1], int64[::1], int64[::1], uint8[::1])", cache=CACHE)
 def inverse_words(a, n, words, start, width, negative):
     """``b = 1/a mod x^n`` for ``a[0] = +-1`` (``a`` int64, any length ``>= 1``) as rows of
@@ -53,16 +84,21 @@ def inverse_words(a, n, words, start, width, negative):
     sign ``negative[k]``.  ``words`` must have room for :func:`word_capacity` words.  Returns
     the number of words used."""
     na = min(a.shape[0], n)
-    lo = np.empty(na, dtype=np.uint64)  # |a_i| in 32-bit halves
-    hi = np.empty(na, dtype=np.uint64)
+    lo = np.empty(na, dtype=np.uint32)  # |a_i| in 32-bit halves
+    hi = np.empty(na, dtype=np.uint32)
     neg_a = np.empty(na, dtype=np.uint8)
     h = np.empty(na, dtype=np.int64)    # words of |a_i| (0 for a_i = 0)
+    mask = np.empty(na, dtype=np.int64)  # -1 for a negative a_i: (x ^ mask) - mask = -x
     for i in range(na):
         v = a[i]
         m = np.uint64(v) if v >= 0 else np.uint64(0) - np.uint64(v)
-        lo[i], hi[i] = m & _M32, m >> np.uint64(32)
+        lo[i], hi[i] = np.uint32(m & _M32), np.uint32(m >> np.uint64(32))
         neg_a[i] = 1 if v < 0 else 0
         h[i] = 0 if m == 0 else (1 if hi[i] == 0 else 2)
+        mask[i] = -1 if v < 0 else 0
+    wide = False
+    for i in range(1, na):
+        wide = wide or h[i] == 2
     flip = a[0] > 0  # b_k = -s * sum: negate the sum when s = +1
     cap = words.shape[0]
     col_lo = np.zeros(cap + 3, dtype=np.int64)
@@ -79,32 +115,30 @@ def inverse_words(a, n, words, start, width, negative):
         for c in range(size + 1):
             col_lo[c] = 0
             col_hi[c] = 0
-        for i in range(1, top + 1):
-            if h[i] == 0:
-                continue
+        for i in range(1, top + 1):  # b_j = U - 2^(32 w) when negative: -|a_i| 2^(32 w)
             j = k - i
-            w = width[j]
-            row = words[start[j]: start[j] + w]
-            for half in range(h[i]):
+            if h[i] and negative[j]:
+                sign = np.int64(1) if neg_a[i] else np.int64(-1)
+                col_lo[width[j]] += sign * np.int64(lo[i])
+                col_lo[width[j] + 1] += sign * np.int64(hi[i])
+        for half in range(2 if wide else 1):  # word products of the U: pairs of terms
+            cl = col_lo[half:]
+            ch = col_hi[half:]
+            pending = 0
+            for i in range(1, top + 1):
                 m = lo[i] if half == 0 else hi[i]
                 if m == 0:
                     continue
-                cl = col_lo[half: half + w]
-                ch = col_hi[half: half + w]
-                if neg_a[i]:
-                    for c in range(w):
-                        p = m * np.uint64(row[c])
-                        cl[c] -= np.int64(p & _M32)
-                        ch[c] -= np.int64(p >> np.uint64(32))
-                    if negative[j]:
-                        col_lo[half + w] += np.int64(m)
-                else:
-                    for c in range(w):
-                        p = m * np.uint64(row[c])
-                        cl[c] += np.int64(p & _M32)
-                        ch[c] += np.int64(p >> np.uint64(32))
-                    if negative[j]:
-                        col_lo[half + w] -= np.int64(m)
+                if pending == 0:
+                    pending = i
+                    continue
+                _pair(words, start, width, k - pending, k - i, lo[pending] if half == 0
+                      else hi[pending], m, mask[pending], mask[i], cl, ch)
+                pending = 0
+            if pending:
+                j = k - pending
+                _single(words[start[j]: start[j] + width[j]], 0, width[j],
+                        lo[pending] if half == 0 else hi[pending], mask[pending], cl, ch)
         carry = np.int64(0)
         at = used
         for c in range(size):
