@@ -7,14 +7,19 @@ Knuth, TAOCP vol. 2, 3rd ed., section 4.7).  The ``a_i`` are int64, the ``b_k`` 
 the width of ``a`` per term, so they are multi-word integers here:
 
 * :func:`inverse_words`: the recurrence on two's complement rows of 32-bit words (uint32).
-  A product ``|a_i| b_j`` is summed word by word without carries into two int64
-  columns, the low and the high halves of the 64-bit word products (each below ``2^32``, so
-  ``2^31`` of them fit an int64), and a negative ``b_j = U - 2^(32 w)`` adds ``-|a_i| 2^(32 w)``
-  (common practice for schoolbook multi-word sums, no source; Knuth 4.3.1 for the carries).
-  The carries run once per term.  Widths come from the proof: with ``|a_i| < 2^(32 h_i)`` and
-  ``|b_j| < 2^(32 w_j - 1)``, ``|b_k| <= k max |a_i| |b_(k-i)| < 2^(32 (max(w_j + h_i) + 1) - 1)``
-  for ``k < 2^32``, so that many words hold ``b_k`` exactly; each row is then trimmed to its
-  shortest two's complement form.
+  A product ``|a_i| b_j`` is summed word by word without carries into two int64 columns, the
+  low and the high halves of the 64-bit word products (each below ``2^32``, so ``2^31`` of
+  them fit an int64), and a negative ``b_j = U - 2^(32 w)`` adds ``-|a_i| 2^(32 w)`` (common
+  practice for schoolbook multi-word sums, no source; Knuth 4.3.1 for the carries); the
+  carries run once per term.  The sums go two terms at a time (:func:`_pair`: each column read
+  and written once per two word products), a negative ``a_i`` by the branch-free
+  ``(x ^ -1) + 1 = -x``, a 64-bit ``|a_i|`` in two 32-bit passes so that the compiler
+  vectorises 32 x 32 -> 64-bit products (measured once, busy machine: about 15% faster than
+  64-bit multipliers at 256 64-bit terms; pairs 10-20% faster than single terms at 16 bits).
+  Widths come from the proof: with ``|a_i| < 2^(32 h_i)`` and ``|b_j| < 2^(32 w_j - 1)``,
+  ``|b_k| <= k max |a_i| |b_(k-i)| < 2^(32 (max(w_j + h_i) + 1) - 1)`` for ``k < 2^32``, so
+  that many words hold ``b_k`` exactly; each row is then trimmed to its shortest two's
+  complement form.
 * :func:`words_stream`: those rows as a ``marshal`` list of Python ints (the stream format of
   :mod:`polyconv.engines._kernels_stream`; CPython's Python/marshal.c, ``r_PyLong``);
 * :func:`inverse_stream`: both in one call (one dispatch: most of the cost at 16 terms).
