@@ -63,21 +63,22 @@ def power_int64(a: np.ndarray, k: int) -> np.ndarray | None:
         return None
     log_norm = _log2_norm1(a)
     steps = _chain(k)
-    if len(steps) > 1 and steps[-2] * log_norm >= 62:  # all but the last product in int64
-        return None
     last = steps[-1] * log_norm
-    if last >= 126:
+    if last >= 126 or (len(steps) > 1 and steps[-2] * log_norm >= 62):
+        return None  # the last product over 128 bits, or one before it over int64
+    before = steps[-2] if len(steps) > 1 else 1  # the last product: a^before times a^after
+    after = before if steps[-1] % 2 == 0 else 1
+    if last >= 62 and ((before * (n - 1) + 1) * (after * (n - 1) + 1) > MAX_WORK
+                       or small.batch_kernels() is None or _pyints.ready() is None):
         return None
     _check_chain(_Integers(), k * (n - 1) + 1, last + 1, f"power(a, k={k})")
     acc = a
     for e in steps[:-1]:
         acc = np.convolve(acc, acc if e % 2 == 0 else a)
-    other = acc if steps[-1] % 2 == 0 else a
+    other = acc if after > 1 else a
     if last < 62:
         return np.convolve(acc, other)
     kernels = small.batch_kernels()
-    if kernels is None or acc.shape[0] * other.shape[0] > MAX_WORK or _pyints.ready() is None:
-        return None
     count = acc.shape[0] + other.shape[0] - 1
     high = np.empty((1, count), dtype=np.uint64)
     low = np.empty((1, count), dtype=np.uint64)

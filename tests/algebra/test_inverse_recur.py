@@ -155,6 +155,9 @@ def test_short_power_route_taken_and_declined(batch_kernels):
     assert power_small.power_int64(np.array([0, 1, 2]), 3) is None        # trimmed generally
     assert power_small.power_int64(np.array([2**40, 1]), 4) is None       # over 2^127
     assert power_small.power_int64(np.array([3, 1]), 1) is None
+    wide = np.full(200, 2**15 - 1, dtype=np.int64)  # a^2 a^2: 399 x 399 terms, over MAX_WORK
+    assert power_small.power_int64(wide, 4) is None
+    assert [int(v) for v in polyconv.power(wide, 4)] == _flint_power(wide, 4)  # python-flint
     assert polyconv.power(np.array([0, 1, 2]), 3).tolist() == [0, 0, 0, 1, 6, 12, 8]  # (x(1+2x))^3
 
 
