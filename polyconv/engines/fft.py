@@ -14,6 +14,7 @@ import threading
 
 import numpy as np
 
+from ..numerics import negacyclic as ng
 from ..numerics import transforms as tf
 from ._common import FLOAT_KINDS, Engine, Job, Option, fft_rate, spectral_product
 from ._threads import helper_thread
@@ -62,10 +63,17 @@ def convolve_fft(a: np.ndarray, b: np.ndarray, n_fft: int, keep: int, threads: i
     transformed back in that one call: the same FFT plan and the same pointwise products, with
     no spectrum arrays and no Python in between (measured 0.45-0.95x the time of separate
     rfft/multiply/irfft calls, padding included, at ``N = 2^7 .. 2^23`` on one thread).
+    Two real float64 1-D operands on one thread at ``N = 2^12 .. 2^20`` (even) go instead
+    through :func:`polyconv.numerics.negacyclic.real_product`: the same product as one complex
+    negacyclic product of length ``N / 2`` (three complex transforms, no real-FFT
+    post-processing), under the same error bound, measured 0.7-0.85x the fused call's time.
     """
     dtype = a.dtype if a.dtype == b.dtype else np.result_type(a, b)
     if dtype.kind not in "fc":  # integers: transformed as float64 (as the library would)
         dtype = np.dtype(np.float64)
+    if (a.ndim == 1 and b.ndim == 1 and threads == 1 and dtype == np.float64
+            and ng.ready(n_fft)):
+        return ng.real_product(a, b, n_fft, keep)  # (see the Notes)
     if fused and takes_fused(a.ndim == 1, b.ndim == 1, threads):
         if a.ndim == 1 and b.ndim == 1:  # the common case, without the batch bookkeeping
             out = np.zeros(n_fft, dtype)
