@@ -47,8 +47,8 @@ def convolve_fft(a: np.ndarray, b: np.ndarray, n_fft: int, keep: int, threads: i
         Threads allowed.  With two or more, two 1-D forward transforms run concurrently and
         batched transforms are split by the library.
     fused : bool
-        Allow the fused circular product (Notes); False: separate transform calls always (the
-        calibration measures both).
+        Allow the fused circular product and the negacyclic real product (Notes); False:
+        separate transform calls always (the calibration measures both).
 
     Returns
     -------
@@ -71,7 +71,7 @@ def convolve_fft(a: np.ndarray, b: np.ndarray, n_fft: int, keep: int, threads: i
     dtype = a.dtype if a.dtype == b.dtype else np.result_type(a, b)
     if dtype.kind not in "fc":  # integers: transformed as float64 (as the library would)
         dtype = np.dtype(np.float64)
-    if (a.ndim == 1 and b.ndim == 1 and threads == 1 and dtype == np.float64
+    if (fused and a.ndim == 1 and b.ndim == 1 and threads == 1 and dtype == np.float64
             and ng.ready(n_fft)):
         return ng.real_product(a, b, n_fft, keep)  # (see the Notes)
     if fused and takes_fused(a.ndim == 1, b.ndim == 1, threads):
