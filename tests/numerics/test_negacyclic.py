@@ -34,7 +34,7 @@ def test_roots_are_within_the_table_error_of_mpmath(order, scale):
                         [order // 8, order // 4 - 1, order - 1]])
     got = ng.roots(r, order, scale)
     worst = 0.0
-    for k, z in zip(r.tolist(), got.tolist()):
+    for k, z in zip(r.tolist(), got.tolist(), strict=True):
         exact = mpmath.expjpi(mpmath.mpf(2 * k) / order) / scale  # exp(2 pi i k / order) / s
         worst = max(worst, float(abs(mpmath.mpc(z) - exact) * scale))
     assert worst <= float(ng.TABLE_ERROR)  # modulus error relative to |root| = 1 / scale
@@ -67,7 +67,7 @@ def _exact_product(x: np.ndarray, y: np.ndarray) -> list[Fraction]:
 
 
 def _max_error(got: np.ndarray, exact: list[Fraction]) -> float:
-    return float(max(abs(Fraction(g) - e) for g, e in zip(got.tolist(), exact)))
+    return float(max(abs(Fraction(g) - e) for g, e in zip(got.tolist(), exact, strict=True)))
 
 
 def _operands(kind: str, n1: int, n2: int, rng):
