@@ -113,8 +113,9 @@ def split(m: int) -> int:
 
     A power of two dividing ``m`` (so at most one of the two sub-lengths is not a power of two,
     as the level count of mixed-radix lengths assumes): no split up to ``2^15`` points (one
-    transform is as fast or faster: 0.58 against 0.64-0.74 of the lean recipe at 2^15), else about ``sqrt(m) / 4`` rows (measured best on the development
-    machine from ``2^15`` to ``2^22``)."""
+    transform is as fast or faster: 0.58 against 0.64-0.74 of the lean recipe at ``2^15``),
+    else about ``sqrt(m) / 4`` rows (measured best on the development machine from ``2^16`` to
+    ``2^20``)."""
     if m <= SPLIT_FROM:
         return 1
     two = m & -m
@@ -275,16 +276,22 @@ def _certifiable() -> bool:
 #: passed its self-test.
 USABLE = tf.LIBRARY == "ducc0" and LONG_DOUBLE_OK and _certifiable() and _agrees()
 #: Real transform lengths ``N`` it is used for (measured faster than the fused real product of
-#: ducc0 from 2^12 on; above 2^21 its tables would take over 64 MiB).
-FROM, UP_TO = 2**12, 2**21
+#: ducc0 from 2^13 on (even at 2^12); above 2^21 its tables would take over 64 MiB).
+FROM, UP_TO = 2**13, 2**21
+
+
+def eligible(n_fft: int) -> bool:
+    """Whether :func:`real_product` is usable here at real length ``n_fft`` (even, in
+    ``[FROM, UP_TO]``)."""
+    return USABLE and not n_fft & 1 and FROM <= n_fft <= UP_TO
 
 
 def ready(n_fft: int) -> bool:
     """Whether the fft engine runs :func:`real_product` at real length ``n_fft``: even and in
     ``[FROM, UP_TO]`` (a choice by length alone, so a product's last bits do not depend on
     what ran before), and the memory budget grants the tables eight times over.  The tables
-    are made on first use (0.2-35 ms at ``N = 2^12 .. 2^21``, 1-3x one product there)."""
-    if not USABLE or n_fft & 1 or not FROM <= n_fft <= UP_TO:
+    are made on first use (0.2-35 ms at ``N = 2^13 .. 2^21``, 1-3x one product there)."""
+    if not eligible(n_fft):
         return False
     if n_fft // 2 in _cache:
         return True

@@ -132,3 +132,28 @@ def test_engine_takes_the_path_by_length_and_keeps_the_bound():
     assert _max_error(first, exact) <= polyconv.error_bound(x, y)
     # the separate-calls route of the calibration does not use it
     assert np.allclose(fft.convolve_fft(x, y, n_fft, 8999, 1, fused=False), first, atol=1e-9)
+
+
+def test_pricing_uses_its_own_rates_and_tables_without_them_still_load():
+    from polyconv.tuning import costs
+
+    table = costs.default_costs()
+    n_fft = 2**16
+    with_rates = fft.predict_fft(table, n_fft, 1.0, 1, False, True, True)
+    rate = table["fft"]["negacyclic_rate_by_log2n"]["16"]  # the shipped constant
+    assert math.isclose(with_rates, table["fft"]["fused_overhead"] + rate * n_fft * 16)
+    table["fft"].pop("negacyclic_rate_by_log2n")
+    assert costs.table_problem(table) is None  # a file calibrated before it is still valid
+    assert fft.predict_fft(table, n_fft, 1.0, 1, False, True, True) == fft.predict_fft(
+        table, n_fft, 1.0, 1, False, True)  # falls back to the fused constants
+
+
+@needs_path
+def test_calibration_measures_the_three_routes():
+    from polyconv.tuning import calibrate
+
+    table: dict = {}
+    calibrate.measure_fft(table, np.random.default_rng(0), 0.002, 14)
+    assert set(table["fft"]["negacyclic_rate_by_log2n"]) == {"13", "14"}
+    assert set(table["fft"]["fused_rate_by_log2n"]) == {str(k) for k in range(4, 15)}
+    assert all(v > 0 for v in table["fft"]["negacyclic_rate_by_log2n"].values())
