@@ -6,13 +6,14 @@ and the residue of a real polynomial modulo ``x^m + i`` is the conjugate of its 
 ``x^m - i``, ``c`` is determined by ``w = c mod (x^m - i)``: writing ``c = c_lo + x^m c_hi``
 (``deg c_lo, c_hi < m``), ``w = c_lo + i c_hi``, so ``c_lo = Re w`` and ``c_hi = Im w``
 ("right-angle convolution": R. Crandall and B. Fagin, "Discrete weighted transforms and
-large-integer arithmetic", Math. Comp. 62 (1994) 305-324, section 4; Crandall & Pomerance,
-*Prime Numbers*, 2nd ed., 2005, section 9.5.3).  The product modulo ``x^m - i`` is a weighted
-cyclic product: with ``zeta = exp(i pi / (2m))`` (``zeta^m = i``), ``x = zeta y`` turns it into a
-cyclic product of length ``m`` of ``a_j zeta^j`` and ``b_j zeta^j``, untwisted by
-``zeta^(-j)`` (Crandall & Fagin, Theorem 2).  So one real product costs three complex transforms
-of length ``m`` and no real-FFT post-processing pass: measured 0.45-0.7x the time of ducc0's
-fused real product of length ``N`` from ``N = 2^13`` on (bench/RESULTS.md, float2 section).
+large-integer arithmetic", Math. Comp. 62 (1994) 305-324; Crandall & Pomerance, *Prime
+Numbers*, 2nd ed., 2005, chapter 9; cited from memory).  The product modulo ``x^m - i`` is a
+weighted cyclic product: with ``zeta = exp(i pi / (2m))`` (``zeta^m = i``), ``x = zeta y``
+turns it into a cyclic product of length ``m`` of ``a_j zeta^j`` and ``b_j zeta^j``, untwisted by
+``zeta^(-j)`` (the weighted transforms of Crandall & Fagin).  So one real product costs three
+complex transforms of length ``m`` and no real-FFT post-processing pass: measured 0.4-0.9x the
+time of ducc0's fused real product of length ``N`` from ``N = 2^13`` on (bench/RESULTS.md,
+float2 section).
 
 Long transforms are split ``m = R C`` as in the four-step method (D. H. Bailey, "FFTs in
 external or hierarchical memory", J. Supercomputing 4 (1990) 23-35): ``R``-point transforms down
@@ -24,16 +25,18 @@ same steps backwards, so no transposition is ever made.  The column part of the 
 ``1/m`` into the inverse one); the row part ``zeta^(C j1)`` is one scalar per row.
 
 Error (the certificate, :mod:`polyconv.numerics.bounds`).  Every table entry here is a root of
-unity ``exp(2 pi i r / 4m)`` (times ``1/m``), formed in long double from two long-double tables
-(argument reduction exact in integers) and rounded once to float64: error at most
-``TABLE_ERROR = 1.25 eps`` in modulus (analysis in :func:`roots`; tests/numerics check it
-against mpmath).  Counting Percival's factors along the chain (each of the library's FFT levels
-``L = (1+eps)(1+sqrt5 eps)(1+beta)``, ``n = log2 N``): a forward transform here is one twist
-(real times complex ``(1+eps)(1+t)``, or complex ``(1+sqrt5 eps)(1+t)`` when the operand is
-folded), ``n - 1`` levels and, when split, one twiddle product ``(1+sqrt5 eps)(1+t)``; the
-inverse is ``n - 1`` levels, a twiddle product and the untwist.  Whenever
-``(1+sqrt5 eps)(1+t)^2 <= (1+eps)(1+beta)`` (``t = TABLE_ERROR``; true for every measured
-``beta >= 2 eps``, checked exactly by :func:`fits_percival`), each transform's factor is at most
+unity ``exp(2 pi i r / 4m)`` (times ``1/m``), a coarse root kept as a sum of two float64 from
+long double times a fine one (argument reduction exact in integers), rounded once at the end:
+error at most ``TABLE_ERROR = 1.25 eps`` in modulus (analysis in :func:`roots`; tests/numerics
+check it against mpmath).  Counting Percival's factors along the chain (each of the library's
+FFT levels ``L = (1+eps)(1+sqrt5 eps)(1+beta)``, ``n = log2 N``): a forward transform here is
+one twist (real times complex ``(1+eps)(1+t)``, or complex ``(1+sqrt5 eps)(1+t)`` when the
+operand is folded), ``n - 1`` levels and, when split, one twiddle product
+``(1+sqrt5 eps)(1+t)``; the inverse is ``n - 1`` levels, a twiddle product and the untwist.
+Whenever
+``(1+sqrt5 eps)(1+t)^2 <= (1+eps)(1+beta)`` (``t = TABLE_ERROR``; true for ``beta >= 3.75
+eps``, so for both measured libraries, 5 and 6 eps; checked exactly by :func:`fits_percival`
+at import), two table products fit in one level and each transform's factor is at most
 ``L^n``, so Percival's bound at length ``N`` with the library's ``beta`` covers the product:
 the same theorem, constants and length as the fused real product.
 """
