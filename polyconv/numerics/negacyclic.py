@@ -12,7 +12,7 @@ weighted cyclic product: with ``zeta = exp(i pi / (2m))`` (``zeta^m = i``), ``x 
 turns it into a cyclic product of length ``m`` of ``a_j zeta^j`` and ``b_j zeta^j``, untwisted by
 ``zeta^(-j)`` (the weighted transforms of Crandall & Fagin).  So one real product costs three
 complex transforms of length ``m`` and no real-FFT post-processing pass: measured 0.4-0.9x the
-time of ducc0's fused real product of length ``N`` from ``N = 2^13`` on (bench/RESULTS.md,
+time of ducc0's fused real product of length ``N`` from ``N = 2^12`` on (bench/RESULTS.md,
 float2 section).
 
 Long transforms are split ``m = R C`` as in the four-step method (D. H. Bailey, "FFTs in
@@ -178,11 +178,12 @@ def tables(m: int) -> Tables:
     return t
 
 
-def _twisted(a: np.ndarray, t: Tables) -> np.ndarray:
+def _twisted(a: np.ndarray, t: Tables, u: np.ndarray) -> np.ndarray:
     """``a`` folded to ``m`` complex points (``a_j + i a_(j+m)``) and twisted by ``zeta^j``
-    (the row part only when split: the column part is in the twiddle table)."""
+    (the row part only when split: the column part is in the twiddle table), written into
+    ``u``.  (An unfolded real operand: one rounding per part, ``a_j Re zeta^j`` and ``a_j Im
+    zeta^j``, its zero imaginary part contributing exact zeros.)"""
     m, n = t.m, a.shape[0]
-    u = np.empty(m, dtype=np.complex128)
     if t.rows == 1:
         if n <= m:
             np.multiply(t.twist[:n], a, out=u[:n])
@@ -202,6 +203,22 @@ def _twisted(a: np.ndarray, t: Tables) -> np.ndarray:
     u.real, u.imag[: n - m], u.imag[n - m:] = a[:m], a[m:], 0
     u2 *= t.twist[:, None]
     return u
+
+
+#: Largest ``m`` whose two work arrays are kept between products (per thread: 8 MiB at most).
+SCRATCH_POINTS = 2**18
+_scratch = threading.local()
+
+
+def _work_arrays(m: int) -> tuple[np.ndarray, np.ndarray]:
+    """Two complex work arrays of ``m`` points: this thread's kept pair (taken out of its slot
+    while in use, so a product started meanwhile, e.g. from a signal handler, gets new ones)
+    or new arrays (fresh large arrays cost page faults on every product)."""
+    held = getattr(_scratch, "pair", None)
+    _scratch.pair = None
+    if held is not None and held[0].shape[0] == m:
+        return held
+    return np.empty(m, dtype=np.complex128), np.empty(m, dtype=np.complex128)
 
 
 def _forward(u: np.ndarray, t: Tables) -> None:
@@ -226,9 +243,10 @@ def real_product(a: np.ndarray, b: np.ndarray, n_fft: int, keep: int) -> np.ndar
 
 
 def _real_product(a: np.ndarray, b: np.ndarray, t: Tables, keep: int) -> np.ndarray:
-    u = _twisted(a, t)
+    work = _work_arrays(t.m)
+    u = _twisted(a, t, work[0])
     _forward(u, t)
-    v = _twisted(b, t) if b is not a else u
+    v = _twisted(b, t, work[1]) if b is not a else u
     if v is not u:
         _forward(v, t)
     u *= v
@@ -247,6 +265,8 @@ def _real_product(a: np.ndarray, b: np.ndarray, t: Tables, keep: int) -> np.ndar
     out[:low] = u.real[:low]
     if keep > m:
         out[m:] = u.imag[: keep - m]
+    if m <= SCRATCH_POINTS:
+        _scratch.pair = work
     return out
 
 
@@ -279,8 +299,8 @@ def _certifiable() -> bool:
 #: passed its self-test.
 USABLE = tf.LIBRARY == "ducc0" and LONG_DOUBLE_OK and _certifiable() and _agrees()
 #: Real transform lengths ``N`` it is used for (measured faster than the fused real product of
-#: ducc0 from 2^13 on (even at 2^12); above 2^21 its tables would take over 64 MiB).
-FROM, UP_TO = 2**13, 2**21
+#: ducc0 from 2^12 on (about even at 2^12); above 2^21 its tables would take over 64 MiB).
+FROM, UP_TO = 2**12, 2**21
 
 
 def eligible(n_fft: int) -> bool:
@@ -293,7 +313,7 @@ def ready(n_fft: int) -> bool:
     """Whether the fft engine runs :func:`real_product` at real length ``n_fft``: even and in
     ``[FROM, UP_TO]`` (a choice by length alone, so a product's last bits do not depend on
     what ran before), and the memory budget grants the tables eight times over.  The tables
-    are made on first use (0.2-35 ms at ``N = 2^13 .. 2^21``, 1-3x one product there)."""
+    are made on first use (0.2-35 ms at ``N = 2^12 .. 2^21``, 1-3x one product there)."""
     if not eligible(n_fft):
         return False
     if n_fft // 2 in _cache:
