@@ -157,3 +157,18 @@ def test_calibration_measures_the_three_routes():
     assert set(table["fft"]["negacyclic_rate_by_log2n"]) == {"12", "13", "14"}
     assert set(table["fft"]["fused_rate_by_log2n"]) == {str(k) for k in range(4, 15)}
     assert all(v > 0 for v in table["fft"]["negacyclic_rate_by_log2n"].values())
+
+
+@needs_path
+@pytest.mark.parametrize("mode", ["full", "same", "valid"])
+def test_modes_match_numpy(mode):
+    # reference: numpy.convolve (direct sums); "valid" runs at N >= max(n1, n2) only, where the
+    # negated wrap-around, like the cyclic one, lands in entries the mode drops
+    rng = np.random.default_rng(5)
+    x, y = rng.standard_normal(6000), rng.standard_normal(2500)
+    plan = polyconv.plan(x, y, mode=mode)
+    assert ng.eligible(plan.transform_length)  # this size does take the negacyclic route
+    got = polyconv.convolve(x, y, mode=mode)
+    want = np.convolve(x, y, mode=mode)
+    assert got.shape == want.shape
+    assert np.max(np.abs(got - want)) <= 2 * polyconv.error_bound(x, y) + 1e-12
