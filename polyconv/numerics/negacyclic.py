@@ -21,8 +21,11 @@ the columns of the ``(R, C)`` view (SIMD across columns), a twiddle product, ``C
 transforms along the rows.  The spectrum stays in the four-step's permuted order (bin
 ``k1 + R k2`` at ``[k1, k2]``), which a pointwise product does not mind, and the inverse runs the
 same steps backwards, so no transposition is ever made.  The column part of the twist,
-``zeta^(j2)``, commutes with the column transforms and is folded into the twiddle table (and
-``1/m`` into the inverse one); the row part ``zeta^(C j1)`` is one scalar per row.
+``zeta^(j2)``, commutes with the column transforms and is folded into the twiddle table; the
+row part ``zeta^(C j1)`` is one scalar per row.  The ``1/m`` of the inverse is folded into the
+second operand's twist (so no intermediate exceeds the size of the result, as in ducc0's fused
+real product).  Unsplit, the inverse is a forward transform read backwards
+(``F_k = m w_(-k)``), whose untwist is a product with the forward twist table itself.
 
 Error (the certificate, :mod:`polyconv.numerics.bounds`).  Every table entry here is a root of
 unity ``exp(2 pi i r / 4m)`` (times ``1/m``), a coarse root kept as a sum of two float64 from
@@ -32,8 +35,8 @@ check it against mpmath).  Counting Percival's factors along the chain (each of 
 FFT levels ``L = (1+eps)(1+sqrt5 eps)(1+beta)``, ``n = log2 N``): a forward transform here is
 one twist (real times complex ``(1+eps)(1+t)``, or complex ``(1+sqrt5 eps)(1+t)`` when the
 operand is folded), ``n - 1`` levels and, when split, one twiddle product
-``(1+sqrt5 eps)(1+t)``; the inverse is ``n - 1`` levels, a twiddle product and the untwist.
-Whenever
+``(1+sqrt5 eps)(1+t)``; the inverse is ``n - 1`` levels, a twiddle product when split and
+the untwist (sign changes and the reversed read are exact).  Whenever
 ``(1+sqrt5 eps)(1+t)^2 <= (1+eps)(1+beta)`` (``t = TABLE_ERROR``; true for ``beta >= 3.75
 eps``, so for both measured libraries, 5 and 6 eps; checked exactly by :func:`fits_percival`
 at import), two table products fit in one level and each transform's factor is at most
@@ -131,32 +134,26 @@ SPLIT_FROM = 2**15
 
 
 class Tables:
-    """The twist and twiddle tables of the ``m``-point negacyclic product with ``rows`` rows."""
+    """The twist and twiddle tables of the ``m``-point negacyclic product with ``rows`` rows.
+
+    The ``1/m`` of the inverse transform is folded into the second operand's twist
+    (``twist_b``), so the spectrum product and every later value stay at the size of the
+    result, as in the fused real product (no overflow a product of that size would not have).
+    """
 
     def __init__(self, m: int, rows: int):
         self.m, self.rows, self.cols = m, rows, m // rows
         order, cols = 4 * m, m // rows
-        if rows == 1:
-            j = np.arange(m, dtype=np.int64)
-            self.twist = roots(j, order)
-            self.untwist = _conjugate_over(self.twist, m, lambda: roots(-j, order, m))
+        j = np.arange(m if rows == 1 else rows, dtype=np.int64) * (1 if rows == 1 else cols)
+        self.twist = roots(j, order)
+        self.twist_b = roots(j, order, m) if m & (m - 1) else self.twist * (1.0 / m)
+        if rows == 1:  # the inverse is a forward transform read backwards (see _real_product)
             return
+        self.untwist = roots(-j, order)
         j1 = np.arange(rows, dtype=np.int64)[:, None]
         j2 = np.arange(cols, dtype=np.int64)[None, :]
-        self.twist, self.untwist = roots(cols * j1[:, 0], order), roots(-cols * j1[:, 0], order)
         self.forward = roots(j2 - 4 * j2 * j1 % order, order)
-        self.inverse = _conjugate_over(self.forward, m,
-                                       lambda: roots(4 * j2 * j1 % order - j2, order, m))
-
-
-def _conjugate_over(table: np.ndarray, m: int, otherwise) -> np.ndarray:
-    """``conj(table) / m``: exactly so for a power of two ``m`` (the entries' signs and
-    exponents change, nothing is rounded), else ``otherwise()`` (made from long double)."""
-    if m & (m - 1):
-        return otherwise()
-    out = np.conj(table)
-    out *= 1.0 / m
-    return out
+        self.inverse = np.conj(self.forward)  # (exact)
 
 
 _cache: dict = {}
@@ -178,30 +175,31 @@ def tables(m: int) -> Tables:
     return t
 
 
-def _twisted(a: np.ndarray, t: Tables, u: np.ndarray) -> np.ndarray:
+def _twisted(a: np.ndarray, t: Tables, u: np.ndarray, twist: np.ndarray) -> np.ndarray:
     """``a`` folded to ``m`` complex points (``a_j + i a_(j+m)``) and twisted by ``zeta^j``
-    (the row part only when split: the column part is in the twiddle table), written into
-    ``u``.  (An unfolded real operand: one rounding per part, ``a_j Re zeta^j`` and ``a_j Im
-    zeta^j``, its zero imaginary part contributing exact zeros.)"""
+    (the row part only when split: the column part is in the twiddle table; ``twist`` is
+    ``t.twist`` or ``t.twist_b``), written into ``u``.  (An unfolded real operand: one
+    rounding per part, ``a_j Re zeta^j`` and ``a_j Im zeta^j``, its zero imaginary part
+    contributing exact zeros.)"""
     m, n = t.m, a.shape[0]
     if t.rows == 1:
         if n <= m:
-            np.multiply(t.twist[:n], a, out=u[:n])
+            np.multiply(twist[:n], a, out=u[:n])
             u[n:] = 0
             return u
         u.real, u.imag[: n - m], u.imag[n - m:] = a[:m], a[m:], 0
-        u *= t.twist
+        u *= twist
         return u
     u2, c = u.reshape(t.rows, t.cols), t.cols
     if n <= m:
         q, r = divmod(n, c)
-        np.multiply(a[: q * c].reshape(q, c), t.twist[:q, None], out=u2[:q])
+        np.multiply(a[: q * c].reshape(q, c), twist[:q, None], out=u2[:q])
         if r:
-            np.multiply(a[q * c:], t.twist[q], out=u2[q, :r])
+            np.multiply(a[q * c:], twist[q], out=u2[q, :r])
         u[n:] = 0
         return u
     u.real, u.imag[: n - m], u.imag[n - m:] = a[:m], a[m:], 0
-    u2 *= t.twist[:, None]
+    u2 *= twist[:, None]
     return u
 
 
@@ -244,27 +242,34 @@ def real_product(a: np.ndarray, b: np.ndarray, n_fft: int, keep: int) -> np.ndar
 
 def _real_product(a: np.ndarray, b: np.ndarray, t: Tables, keep: int) -> np.ndarray:
     work = _work_arrays(t.m)
-    u = _twisted(a, t, work[0])
+    u = _twisted(a, t, work[0], t.twist)
     _forward(u, t)
-    v = _twisted(b, t, work[1]) if b is not a else u
-    if v is not u:
-        _forward(v, t)
+    v = _twisted(b, t, work[1], t.twist_b)  # (scaled by 1/m)
+    _forward(v, t)
     u *= v
+    m = t.m
+    out = np.empty(keep, dtype=np.float64)
+    low = min(keep, m)
     if t.rows == 1:
-        tf.c2c_inplace(u, 0, False)
-        u *= t.untwist
+        # the inverse as a forward transform: F_k = w_(-k), and w_j zeta^-j = -i F_(m-j)
+        # zeta^(m-j) for j >= 1 (zeta^-m = -i), so one product with the forward twist gives
+        # G = F zeta^k, and c_lo[j] = Im G[m-j], c_hi[j] = -Re G[m-j] (c_lo[0] + i c_hi[0] = G[0])
+        tf.c2c_inplace(u, 0, True)
+        u *= t.twist
+        out[0] = u[0].real
+        out[1:low] = u.imag[m - 1: m - low: -1]
+        if keep > m:
+            out[m] = u[0].imag
+            np.negative(u.real[m - 1: 2 * m - keep: -1], out=out[m + 1:])
     else:
         u2 = u.reshape(t.rows, t.cols)
         tf.c2c_inplace(u2, 1, False)
         u2 *= t.inverse
         tf.c2c_inplace(u2, 0, False)
         u2 *= t.untwist[:, None]
-    m = t.m
-    out = np.empty(keep, dtype=np.float64)
-    low = min(keep, m)
-    out[:low] = u.real[:low]
-    if keep > m:
-        out[m:] = u.imag[: keep - m]
+        out[:low] = u.real[:low]
+        if keep > m:
+            out[m:] = u.imag[: keep - m]
     if m <= SCRATCH_POINTS:
         _scratch.pair = work
     return out

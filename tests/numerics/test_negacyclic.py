@@ -172,3 +172,14 @@ def test_modes_match_numpy(mode):
     want = np.convolve(x, y, mode=mode)
     assert got.shape == want.shape
     assert np.max(np.abs(got - want)) <= 2 * polyconv.error_bound(x, y) + 1e-12
+
+
+@needs_path
+def test_products_near_the_top_of_the_float_range_stay_finite():
+    # reference: numpy.convolve (direct sums); outputs near 1e306 must come out finite, as the
+    # 1/m of the inverse is applied before the inverse transform, not after it
+    rng = np.random.default_rng(9)
+    x, y = rng.random(4096) * 1e153, rng.random(4096) * 1e150
+    got, want = polyconv.convolve(x, y), np.convolve(x, y)
+    assert np.isfinite(want).all() and np.isfinite(got).all()
+    assert np.max(np.abs(got - want)) <= 1e-10 * np.max(np.abs(want))
