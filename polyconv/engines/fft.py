@@ -66,7 +66,7 @@ def convolve_fft(a: np.ndarray, b: np.ndarray, n_fft: int, keep: int, threads: i
     transformed back in that one call: the same FFT plan and the same pointwise products, with
     no spectrum arrays and no Python in between (measured 0.45-0.95x the time of separate
     rfft/multiply/irfft calls, padding included, at ``N = 2^7 .. 2^23`` on one thread).
-    Two real float64 1-D operands on one thread at ``N = 2^12 .. 2^21`` (even) go instead
+    Two real float64 1-D operands on one thread at ``N = 2^13 .. 2^21`` (even) go instead
     through :func:`polyconv.numerics.negacyclic.real_product`: the same product as one complex
     negacyclic product of length ``N / 2`` (three complex transforms, no real-FFT
     post-processing), under the same error bound, measured 0.7-0.85x the fused call's time.

@@ -31,7 +31,7 @@ is mixed-radix, not a plain radix-2 transform:
   Its results differ from separate calls' in the last bits (rounding order of the product);
   tests/pipeline/test_float_fused.py holds both within the bound against exact products;
 * the negacyclic real product (:mod:`polyconv.numerics.negacyclic`, which the fft engine runs
-  for two real 1-D operands at ``N = 2^12 .. 2^21``: three complex transforms of length
+  for two real 1-D operands at ``N = 2^13 .. 2^21``: three complex transforms of length
   ``N/2`` with twist and twiddle tables of error at most 1.25 eps) has along each transform at
   most the roundings of ``log2 N`` of the theorem's levels whenever ``(1+sqrt5 eps)(1+1.25
   eps)^2 <= (1+eps)(1+beta)``, checked exactly at import (else it is not used); so the same

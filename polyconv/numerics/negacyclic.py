@@ -12,7 +12,7 @@ weighted cyclic product: with ``zeta = exp(i pi / (2m))`` (``zeta^m = i``), ``x 
 turns it into a cyclic product of length ``m`` of ``a_j zeta^j`` and ``b_j zeta^j``, untwisted by
 ``zeta^(-j)`` (the weighted transforms of Crandall & Fagin).  So one real product costs three
 complex transforms of length ``m`` and no real-FFT post-processing pass: measured 0.4-0.9x the
-time of ducc0's fused real product of length ``N`` from ``N = 2^12`` on (bench/RESULTS.md,
+time of ducc0's fused real product of length ``N`` from ``N = 2^13`` on (bench/RESULTS.md,
 float2 section).
 
 Long transforms are split ``m = R C`` as in the four-step method (D. H. Bailey, "FFTs in
@@ -304,8 +304,8 @@ def _certifiable() -> bool:
 #: passed its self-test.
 USABLE = tf.LIBRARY == "ducc0" and LONG_DOUBLE_OK and _certifiable() and _agrees()
 #: Real transform lengths ``N`` it is used for (measured faster than the fused real product of
-#: ducc0 from 2^12 on (about even at 2^12); above 2^21 its tables would take over 64 MiB).
-FROM, UP_TO = 2**12, 2**21
+#: ducc0 from 2^13 on (1.00-1.04x its time at 2^12); above 2^21 its tables would take over 64 MiB).
+FROM, UP_TO = 2**13, 2**21
 
 
 def eligible(n_fft: int) -> bool:
@@ -318,7 +318,7 @@ def ready(n_fft: int) -> bool:
     """Whether the fft engine runs :func:`real_product` at real length ``n_fft``: even and in
     ``[FROM, UP_TO]`` (a choice by length alone, so a product's last bits do not depend on
     what ran before), and the memory budget grants the tables eight times over.  The tables
-    are made on first use (0.2-35 ms at ``N = 2^12 .. 2^21``, 1-3x one product there)."""
+    are made on first use (0.2-35 ms at ``N = 2^13 .. 2^21``, 1-3x one product there)."""
     if not eligible(n_fft):
         return False
     if n_fft // 2 in _cache:

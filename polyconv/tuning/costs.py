@@ -59,7 +59,7 @@ OPTIONAL_KEYS = frozenset({("exact", "direct_float"), ("exact", "limbs_mod_wide"
                            # the fused circular product's constants: absent where the FFT
                            # library has none (scipy's pocketfft) and in older files
                            ("fft", "fused_overhead"), ("fft", "fused_rate_by_log2n"),
-                           # the negacyclic real product's rates (ducc0 only, N = 2^12..2^21)
+                           # the negacyclic real product's rates (ducc0 only, N = 2^13..2^21)
                            ("fft", "negacyclic_rate_by_log2n"),
                            ("overlap_add", "fused_overhead"), ("overlap_add", "fused_per_point"),
                            ("overlap_add", "fused_per_sample_large")})

@@ -154,7 +154,7 @@ def test_calibration_measures_the_three_routes():
 
     table: dict = {}
     calibrate.measure_fft(table, np.random.default_rng(0), 0.002, 14)
-    assert set(table["fft"]["negacyclic_rate_by_log2n"]) == {"12", "13", "14"}
+    assert set(table["fft"]["negacyclic_rate_by_log2n"]) == {"13", "14"}
     assert set(table["fft"]["fused_rate_by_log2n"]) == {str(k) for k in range(4, 15)}
     assert all(v > 0 for v in table["fft"]["negacyclic_rate_by_log2n"].values())
 
@@ -165,7 +165,7 @@ def test_modes_match_numpy(mode):
     # reference: numpy.convolve (direct sums); "valid" runs at N >= max(n1, n2) only, where the
     # negated wrap-around, like the cyclic one, lands in entries the mode drops
     rng = np.random.default_rng(5)
-    x, y = rng.standard_normal(6000), rng.standard_normal(2500)
+    x, y = rng.standard_normal(12000), rng.standard_normal(5000)
     plan = polyconv.plan(x, y, mode=mode)
     assert ng.eligible(plan.transform_length)  # this size does take the negacyclic route
     got = polyconv.convolve(x, y, mode=mode)
