@@ -72,13 +72,19 @@ def main() -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--base", type=Path, required=True, help="the earlier polyconv folder")
     parser.add_argument("--clock", choices=["wall", "cpu"], default="wall")
+    parser.add_argument("--sizes", default="6-22",
+                        help="log2 n of the equal-length rows, e.g. 12-16 (default 6-22)")
+    parser.add_argument("--no-long-short", action="store_true", help="skip the 2^22 x m rows")
     args = parser.parse_args()
     before = load_before(args.base.resolve())
     clock = time.process_time if args.clock == "cpu" else time.perf_counter
     rng = np.random.default_rng(1)
     print("| sizes | lean ms | before ms | after ms | before / lean | after / lean | "
           "after / before | engine | max difference |\n|---|---|---|---|---|---|---|---|---|")
-    for n1, n2 in CASES:
+    low, _, high = args.sizes.partition("-")
+    cases = [(2**e, 2**e) for e in range(int(low), int(high or low) + 1)]
+    cases += [] if args.no_long_short else CASES[-5:]
+    for n1, n2 in cases:
         x, y = rng.standard_normal(n1), rng.standard_normal(n2)
         c = contenders(before, x, y)
         big = n1 >= 2**19

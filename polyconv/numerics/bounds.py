@@ -30,6 +30,12 @@ is mixed-radix, not a plain radix-2 transform:
   the power-of-two lengths of the certified path); so the same theorem and constants apply.
   Its results differ from separate calls' in the last bits (rounding order of the product);
   tests/pipeline/test_float_fused.py holds both within the bound against exact products;
+* the negacyclic real product (:mod:`polyconv.numerics.negacyclic`, which the fft engine runs
+  for two real 1-D operands at ``N = 2^13 .. 2^21``: three complex transforms of length
+  ``N/2`` with twist and twiddle tables of error at most 1.25 eps) has along each transform at
+  most the roundings of ``log2 N`` of the theorem's levels whenever ``(1+sqrt5 eps)(1+1.25
+  eps)^2 <= (1+eps)(1+beta)``, checked exactly at import (else it is not used); so the same
+  bound at the same length ``N`` applies;
 * twiddle error ``beta`` = :data:`TWIDDLE_ERROR`, measured per library and version range
   (:data:`MEASURED_TWIDDLE_ERROR`) from unit-impulse responses, which return the roots of unity
   as the transform produces them, against roots at exact reference angles (long double from a

@@ -219,6 +219,19 @@ def fft_inplace(x: np.ndarray, axis: int, forward: bool, threads: int) -> None:
         x[...] = (_sfft.fft if forward else _sfft.ifft)(x, axis=axis, workers=threads)
 
 
+def c2c_inplace(x: np.ndarray, axis: int, forward: bool) -> None:
+    """Unscaled complex FFT of complex128 ``x`` along ``axis``, in place, on one thread (the
+    sign of the exponent negative when ``forward``): the passes of
+    :mod:`polyconv.numerics.negacyclic`, which folds every scale into its tables."""
+    if _kernels is _DUCC:
+        _dfft.c2c(x, (axis,), forward, 0, x, 1)
+    elif _kernels is _DIRECT:
+        _pp.c2c(x, (axis,), forward, 0, x, 1)
+    else:  # pragma: no cover - public scipy.fft only
+        x[...] = (_sfft.fft if forward else _sfft.ifft)(x, axis=axis, norm="backward"
+                                                       if forward else "forward")
+
+
 def _fused_agrees() -> bool:
     """ducc0's fused circular product against numpy.convolve (any failure: no)."""
     try:

@@ -30,6 +30,7 @@ from ..engines._common import LARGE_ARRAY, fft_rate
 from ..engines.direct import convolve_direct
 from ..engines.fft import convolve_fft
 from ..engines.overlap_add import convolve_overlap_add
+from ..numerics import negacyclic as ng
 from ..numerics import transforms as tf
 from .calibrate_exact import measure_exact
 from .costs import default_costs
@@ -119,22 +120,26 @@ def measure_fft(table: dict, rng: np.random.Generator, budget: float, top: int) 
     """``table["fft"]``: the fixed cost and ``rate_by_log2n`` for ``N = 2^4 .. 2^top`` (one
     1-D real product of two ``N/2``-point operands, one thread, separate transform calls), and
     where the library has the fused circular product, ``fused_overhead`` and
-    ``fused_rate_by_log2n`` likewise for it (each size timed both ways back to back)."""
-    variants = (False, True) if tf.FUSED else (False,)
-    rates = {v: {} for v in variants}
+    ``fused_rate_by_log2n`` likewise for it, and ``negacyclic_rate_by_log2n`` for the
+    negacyclic real product at the lengths it takes (each size timed every way back to back)."""
+    variants = ["separate", "fused"] if tf.FUSED else ["separate"]
+    rates: dict = {v: {} for v in variants + ["negacyclic"]}
     fixed: dict = {}
     for k in range(4, top + 1):
         n_fft = 2**k
         n = n_fft // 2
         x, y = rng.standard_normal(n), rng.standard_normal(n)
-        for v in variants:
-            t = best_time(lambda x=x, y=y, n_fft=n_fft, v=v: convolve_fft(x, y, n_fft, n_fft - 1,
-                                                                          1, fused=v), budget)
-            fixed.setdefault(v, 0.8 * t)
-            rates[v][str(k)] = max(t - fixed[v], 1e-12) / (n_fft * k)
-    table["fft"] = {"overhead": fixed[False], "rate_by_log2n": rates[False]}
+        for v in variants + (["negacyclic"] if ng.eligible(n_fft) else []):
+            t = best_time(lambda x=x, y=y, n_fft=n_fft, v=v: convolve_fft(
+                x, y, n_fft, n_fft - 1, 1, fused=v != "separate", negacyclic=v == "negacyclic"),
+                budget)
+            base = fixed.setdefault("fused" if v == "negacyclic" else v, 0.8 * t)
+            rates[v][str(k)] = max(t - base, 1e-12) / (n_fft * k)
+    table["fft"] = {"overhead": fixed["separate"], "rate_by_log2n": rates["separate"]}
     if tf.FUSED:
-        table["fft"].update(fused_overhead=fixed[True], fused_rate_by_log2n=rates[True])
+        table["fft"].update(fused_overhead=fixed["fused"], fused_rate_by_log2n=rates["fused"])
+    if rates["negacyclic"]:
+        table["fft"]["negacyclic_rate_by_log2n"] = rates["negacyclic"]
 
 
 def measure_overlap_add(table: dict, rng: np.random.Generator, budget: float, quick: bool) -> None:

@@ -59,10 +59,13 @@ OPTIONAL_KEYS = frozenset({("exact", "direct_float"), ("exact", "limbs_mod_wide"
                            # the fused circular product's constants: absent where the FFT
                            # library has none (scipy's pocketfft) and in older files
                            ("fft", "fused_overhead"), ("fft", "fused_rate_by_log2n"),
+                           # the negacyclic real product's rates (ducc0 only, N = 2^13..2^21)
+                           ("fft", "negacyclic_rate_by_log2n"),
                            ("overlap_add", "fused_overhead"), ("overlap_add", "fused_per_point"),
                            ("overlap_add", "fused_per_sample_large")})
 #: Tables keyed by size (log2 of a length or bit count): any keys, at least one numeric entry.
-_SIZE_TABLES = frozenset({"rate_by_log2n", "fused_rate_by_log2n", "mul_rate_by_log2bits"})
+_SIZE_TABLES = frozenset({"rate_by_log2n", "fused_rate_by_log2n", "negacyclic_rate_by_log2n",
+                          "mul_rate_by_log2bits"})
 
 
 def table_problem(table: object, reference: dict | None = None, where: tuple = ()) -> str | None:
