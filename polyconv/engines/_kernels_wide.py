@@ -79,10 +79,11 @@ def rows_products(a, b, primes, tw, twq, itw, itwq, p_neg_inv, f, fq, out):
                           f[i], fq[i], fa, fb, out[i])
 
 
-@njit(types.int64(_RO_F64, types.uint8[::1]), cache=CACHE)
-def crt_stream(sums, out):
-    """The integers ``V_c = sum_j sums[j, c] 2^(15 j)`` written as a marshal list into ``out``;
-    returns the bytes used.
+@njit(types.int64(_RO_F64, types.uint8[::1], types.int64, types.int64), cache=CACHE)
+def crt_stream(sums, out, pos, total):
+    """The integers ``V_c = sum_j sums[j, c] 2^(15 j)`` written into a marshal list of ``total``
+    values in ``out`` from byte ``pos`` on (``pos = 0``: the list's header first, so a list is
+    written in column chunks); returns the position after them.
 
     Every ``sums[j, c]`` is an integer below ``2^53`` in magnitude, and every ``V_c`` satisfies
     ``-2^(15 L) <= V_c < 2^(15 L)`` (``L = sums.shape[0]``), so carry propagation leaves 15-bit
@@ -100,7 +101,8 @@ def crt_stream(sums, out):
     neg = np.empty(BLOCK, dtype=np.int64)
     top = np.empty(BLOCK, dtype=np.int64)
     dg = np.empty((rows, BLOCK), dtype=np.uint16)
-    pos = _start(out, count)
+    if pos == 0:
+        pos = _start(out, total)
     for start in range(0, count, BLOCK):
         m = min(BLOCK, count - start)
         carry[:m] = 0

@@ -38,6 +38,7 @@ from __future__ import annotations
 
 import marshal
 import math
+import threading
 from functools import lru_cache
 
 import numpy as np
@@ -54,8 +55,15 @@ MAX_DIGITS = 255
 #: BLAS threads of the two matrix products (:mod:`polyconv.engines._blas`: one is the fastest
 #: and steadiest on a shared machine; two gain up to 2x on an idle one).
 BLAS_THREADS = 1
-#: Tables of at most this many bytes (all primes, one length) are kept for the process.
-CACHED_TABLE_BYTES = 2**25
+#: Twiddle tables of at most this many bytes in all are kept for the process (16 bytes per
+#: point and prime; building them costs ~30 ns per point, about what the product does).
+CACHED_TABLE_BYTES = 2**30
+#: Transforms up to this length run all their primes in one kernel call (stacked tables).
+STACKED_LENGTH = 2**13
+#: Primes whose operand residues are held at once (longer transforms).
+PRIME_GROUP = 8
+#: Output coefficients per CRT matrix product (bounds its memory).
+CRT_CHUNK = 2**12
 
 
 def _is_prime(n: int) -> bool:
@@ -118,39 +126,62 @@ def transform_length(n1: int, n2: int) -> int:
     return 1 << max(0, (n1 + n2 - 2).bit_length())
 
 
+_long_tables: dict[int, tuple] = {}
+_scratch = threading.local()
+#: Work arrays up to this many bytes each are kept per thread and reused: fresh ones of a few
+#: MB come from ``mmap`` and pay a page fault per 4 KiB on first touch (measured: 1.3 ms of a
+#: 4 ms product at n = 2^10, 1000 bits).
+SCRATCH_BYTES = 2**26
+
+
+def scratch(name: str, shape: tuple, dtype) -> np.ndarray:
+    """A C-contiguous work array of ``shape`` (contents undefined), reused per thread."""
+    dtype = np.dtype(dtype)
+    size = math.prod(shape)
+    have = getattr(_scratch, name, None)
+    if have is None or have.dtype != dtype or have.shape[0] < size:
+        have = np.empty(size, dtype=dtype)
+        if have.nbytes <= SCRATCH_BYTES:
+            setattr(_scratch, name, have)
+    return have[:size].reshape(shape)
+
+
 def _tables(p: int, n: int) -> tuple:
     """``n``-point twiddles modulo ``p`` (forward, inverse, Shoup quotients; the layout of
-    :func:`polyconv.engines.ntt_compiled.tables`)."""
+    :func:`polyconv.engines.ntt_compiled.tables`: a shorter transform reads a prefix, since
+    ``w_{2h} = g^((p - 1) / 2h)`` does not depend on the length)."""
+    have = _long_tables.get(p)
+    if have is not None and have[0] >= n:
+        return have[1]
     g = {q: g for q, g, _ in prime_table()}[p]
     root = pow(g, (p - 1) // n, p)
     tw, twq = _stage_table(root, n, p)
     itw, itwq = _stage_table(pow(root, p - 2, p), n, p)
-    return tw, twq, itw, itwq
+    entry = (tw, twq, itw, itwq)
+    held = sum(16 * v[0] for q, v in _long_tables.items() if q != p)
+    if held + 16 * n <= CACHED_TABLE_BYTES:
+        _long_tables[p] = (n, entry)
+    return entry
 
 
-def _build_stacked(primes: tuple[int, ...], n: int) -> tuple:
-    budget.check_allocation(16.0 * len(primes) * n, "twiddle tables of the wide NTT engine")
-    rows = [_tables(p, n) for p in primes]
-    stacked = [np.ascontiguousarray(np.stack([r[i] for r in rows])) for i in range(4)]
-    neg_inv = np.array([(-pow(p, -1, 2**32)) % 2**32 for p in primes], dtype=np.uint64)
+@lru_cache(maxsize=256)
+def scale_factors(primes: tuple[int, ...], n: int) -> tuple[np.ndarray, ...]:
+    """``-p^-1 mod 2^32`` and ``f_i = 2^32 n^-1 (P/p_i)^-1 mod p_i`` with Shoup quotients (the
+    transform's scale and the CRT's ``u_i`` in one factor)."""
     total = math.prod(primes)
-    f = np.array([(2**32 * pow(n, -1, p) * pow(total // p, -1, p)) % p for p in primes],
-                 dtype=np.uint64)
-    fq = np.array([(int(v) << 32) // p for v, p in zip(f, primes, strict=True)],
-                  dtype=np.uint64)
-    return (np.array(primes, dtype=np.uint64), *stacked, neg_inv, f, fq)
+    neg_inv = np.array([(-pow(p, -1, 2**32)) % 2**32 for p in primes], dtype=np.uint64)
+    f = [(2**32 * pow(n, -1, p) * pow(total // p, -1, p)) % p for p in primes]
+    fq = [(v << 32) // p for v, p in zip(f, primes, strict=True)]
+    return neg_inv, np.array(f, dtype=np.uint64), np.array(fq, dtype=np.uint64)
 
 
-_cached_stacked = lru_cache(maxsize=4)(_build_stacked)
-
-
+@lru_cache(maxsize=8)
 def stacked_tables(primes: tuple[int, ...], n: int) -> tuple:
-    """The arguments of :func:`polyconv.engines._kernels_wide.rows_products` after ``a, b``: the
-    primes, stacked tables, ``-p^-1 mod 2^32``, and ``f_i = 2^32 n^-1 (P/p_i)^-1 mod p_i`` with
-    Shoup quotients; kept for the process up to :data:`CACHED_TABLE_BYTES`."""
-    if 16 * len(primes) * n <= CACHED_TABLE_BYTES:
-        return _cached_stacked(primes, n)
-    return _build_stacked(primes, n)
+    """The primes and their ``n``-point tables stacked row by row (short transforms: all the
+    primes' products in one kernel call, :func:`polyconv.engines._kernels_wide.rows_products`)."""
+    rows = [_tables(p, n) for p in primes]
+    stacked = [np.ascontiguousarray(np.stack([r[i][:n] for r in rows])) for i in range(4)]
+    return (np.array(primes, dtype=np.uint64), *stacked)
 
 
 def _digits15(value: int, rows: int) -> list[int]:
@@ -184,7 +215,7 @@ def digit_matrix(x) -> np.ndarray | None:
     kernels = _pyints.ready()
     if kernels is None:
         return None
-    values = x.tolist() if isinstance(x, np.ndarray) else x
+    values = x.tolist() if isinstance(x, np.ndarray) else list(x)
     try:
         data = np.frombuffer(marshal.dumps(values, 2), dtype=np.uint8)
     except ValueError:  # unmarshallable items (gmpy2.mpz, numpy scalars)
@@ -196,14 +227,54 @@ def digit_matrix(x) -> np.ndarray | None:
     if digits > MAX_DIGITS:
         return None
     budget.check_allocation(8.0 * digits * len(values), "digit matrix of the wide NTT engine")
-    out = np.empty((len(values), digits), dtype=np.float64)
+    out = scratch("digits", (len(values), digits), np.float64)
     jit_state.kernels("_kernels_wide").stream_digits(data, out)
     return out
 
 
-def _residues(digits: np.ndarray, primes: tuple[int, ...]) -> np.ndarray:
-    """``T D`` as int64 (signed, exact: below ``2^53``; the transform kernel reduces it)."""
-    return (residue_matrix(primes, digits.shape[1]) @ digits.T).astype(np.int64)
+def _operand_digits(a, b) -> np.ndarray | None:
+    """Digits of ``a`` then ``b`` in one matrix (one stream), or None as :func:`digit_matrix`."""
+    if b is a:
+        return digit_matrix(a)
+    la = a.tolist() if isinstance(a, np.ndarray) else list(a)
+    lb = b.tolist() if isinstance(b, np.ndarray) else list(b)
+    return digit_matrix(la + lb)
+
+
+def _products(digits: np.ndarray, n1: int, square: bool, primes: tuple[int, ...], n: int,
+              yf: np.ndarray) -> None:
+    """``yf[i] = c u_i mod p_i`` (float64) for every prime: residues ``T D^T`` (exact: below
+    ``2^53``; the transform kernel reduces them), then the NTT products."""
+    count = yf.shape[1]
+    t = residue_matrix(primes, digits.shape[1])
+    neg_inv, f, fq = scale_factors(primes, n)
+    if n <= STACKED_LENGTH:
+        r = np.matmul(t, digits.T, out=scratch("residues", (len(primes), digits.shape[0]),
+                                               np.float64))
+        ra = scratch("ra", (len(primes), n1), np.int64)
+        np.copyto(ra, r[:, :n1], casting="unsafe")
+        rb = ra
+        if not square:
+            rb = scratch("rb", (len(primes), r.shape[1] - n1), np.int64)
+            np.copyto(rb, r[:, n1:], casting="unsafe")
+        y = scratch("y", (len(primes), count), np.int64)
+        jit_state.kernels("_kernels_wide").rows_products(ra, rb, *stacked_tables(primes, n),
+                                                         neg_inv, f, fq, y)
+        yf[:len(primes)] = y
+        return
+    ntt = jit_state.kernels("_kernels_ntt")
+    fa, fb = np.empty(n, dtype=np.uint32), np.empty(n, dtype=np.uint32)
+    y = np.empty(count, dtype=np.int64)
+    for g in range(0, len(primes), PRIME_GROUP):
+        r = t[g:g + PRIME_GROUP] @ digits.T
+        for i in range(r.shape[0]):
+            p = primes[g + i]
+            ra = r[i, :n1].astype(np.int64)
+            rb = ra if square else r[i, n1:].astype(np.int64)
+            tw, twq, itw, itwq = _tables(p, n)
+            ntt.product_mod_prime(ra, rb, p, tw, twq, itw, itwq, int(neg_inv[g + i]),
+                                  int(f[g + i]), int(fq[g + i]), fa, fb, y)
+            yf[g + i] = y
 
 
 def convolve_wide(a, b, bound: int, keep: int | None = None) -> np.ndarray | None:
@@ -227,27 +298,29 @@ def convolve_wide(a, b, bound: int, keep: int | None = None) -> np.ndarray | Non
     primes = primes_for(bound, n)
     if primes is None or count <= 0:
         return None
-    try:
-        da = digit_matrix(a)
-        db = da if b is a else digit_matrix(b)
-        if da is None or db is None:
-            return None
-        kernels = jit_state.kernels("_kernels_wide")
-    except jit_state.JitUnavailableError:
+    if _pyints.ready() is None:
         return None
+    kernels = jit_state.kernels("_kernels_wide")
     k = len(primes)
     w, inv = crt_matrix(primes)
-    budget.check_allocation(8.0 * (2 * k + w.shape[0]) * max(count, n),
-                            "residue rows of the wide NTT engine")
+    rows = w.shape[0]
+    chunk = min(count, CRT_CHUNK)
+    group = k if n <= STACKED_LENGTH else PRIME_GROUP
+    budget.check_allocation(8.0 * ((k + 1) * count + 3 * group * (n1 + n2) + rows * chunk)
+                            + 16.0 * k * n, "residue rows and tables of the wide NTT engine")
     with blas_threads(BLAS_THREADS):
-        ra = _residues(da, primes)
-        rb = ra if db is da else _residues(db, primes)
-        y = np.empty((k, count), dtype=np.int64)
-        kernels.rows_products(ra, rb, *stacked_tables(primes, n), y)
-        yf = np.empty((k + 1, count), dtype=np.float64)
-        yf[:k] = y
-        np.rint(inv @ yf[:k], out=yf[k])
-        sums = w @ yf
-    buf = _pyints.buffer(count, 15 * w.shape[0], "Python ints of the wide NTT engine")
-    used = kernels.crt_stream(sums, buf)
-    return _pyints.objects(buf, used, count)
+        digits = _operand_digits(a, b)
+        if digits is None:
+            return None
+        yf = scratch("yf", (k + 1, count), np.float64)
+        _products(digits, n1, b is a, primes, n, yf)
+        buf = scratch("stream", (_pyints.capacity(count, 15 * rows),), np.uint8)
+        sums = scratch("sums", (rows * chunk,), np.float64)
+        pos = 0
+        for c0 in range(0, count, chunk):
+            block = yf[:, c0:c0 + chunk]
+            np.rint(inv @ block[:k], out=block[k])
+            part = sums[:rows * block.shape[1]].reshape(rows, block.shape[1])
+            np.matmul(w, block, out=part)
+            pos = kernels.crt_stream(part, buf, pos, count)
+    return _pyints.objects(buf, pos, count)
