@@ -33,9 +33,10 @@ from .ntt_wide import MAX_DIGITS, convolve_wide, primes_for, transform_length
 NAME = "ntt-wide"
 
 #: Defaults when the cost table has no ``ntt_wide`` section (measured on the development machine
-#: with bench/wide_outputs.py, default BLAS threads: see bench/RESULTS.md, section crtwide).
-DEFAULTS = {"overhead": 3e-5, "per_prime": 4e-7, "per_nlogn": 6e-10, "per_mac": 2.5e-11,
-            "per_digit": 2.8e-9}
+#: by a least-squares fit over 100-3000 bits, n = 4..4096, one BLAS thread; the overhead as
+#: seen through convolve: see bench/RESULTS.md, section crtwide).
+DEFAULTS = {"overhead": 6e-5, "per_prime": 7.1e-7, "per_nlogn": 1.65e-9, "per_mac": 4.1e-11,
+            "per_digit": 1.2e-9}
 
 
 def plan_shape(facts) -> tuple[int, int, int, int] | str:
