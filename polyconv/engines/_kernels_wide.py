@@ -9,6 +9,10 @@ do the passes around them:
   signed 15-bit digits, one column per value (the operands' side of the residue product);
 * :func:`rows_products`: row ``i`` of ``out`` is ``a[i] b[i] mod p_i``, one NTT product per
   prime with the transforms of :mod:`polyconv.engines._kernels_ntt` and the stacked tables;
+* :func:`rows_power`: row ``i`` of ``out`` is ``a[i]^e mod p_i``: one forward transform, the
+  ``e``-th power of every spectral value (left-to-right binary powering, Knuth, TAOCP vol. 2,
+  section 4.6.3: the convolution theorem turns the power of the polynomial into pointwise
+  powers) and one inverse transform per prime;
 * :func:`crt_stream`: signed column sums of 15-bit digit weights (the CRT matrix product) to
   digits by carry propagation, the sign from the last carry, magnitudes, and the ``marshal``
   stream of the Python ints (the format of :mod:`polyconv.engines._kernels_stream`).
@@ -20,7 +24,14 @@ import numpy as np
 from numba import njit, types
 
 from . import jit_state as _jit
-from ._kernels_ntt import product_mod_prime
+from ._kernels_ntt import (
+    forward,
+    inverse,
+    load_residues,
+    pointwise,
+    product_mod_prime,
+    store_residues,
+)
 from ._kernels_stream import _get_int32, _put_int32, _start
 
 CACHE = _jit.cache_enabled()
@@ -77,6 +88,46 @@ def rows_products(a, b, primes, tw, twq, itw, itwq, p_neg_inv, f, fq, out):
     for i in range(primes.shape[0]):
         product_mod_prime(a[i], b[i], primes[i], tw[i], twq[i], itw[i], itwq[i], p_neg_inv[i],
                           f[i], fq[i], fa, fb, out[i])
+
+
+@njit("void(int64[:, ::1], int64, uint64[::1], uint32[:, ::1], uint32[:, ::1], uint32[:, ::1], "
+      "uint32[:, ::1], uint64[::1], uint64[::1], uint64[::1], uint64[::1], uint64[::1], "
+      "int64[:, ::1])", cache=CACHE)
+def rows_power(a, e, primes, tw, twq, itw, itwq, p_neg_inv, one, oneq, f, fq, out):
+    """``out[i] = (a[i]^e f_i' mod p_i)[:out.shape[1]]`` (``e >= 2``; ``tw.shape[1]``-point
+    transforms, at least ``e (len(a[i]) - 1) + 1`` points) for every prime.
+
+    The pointwise products are Montgomery products by :func:`polyconv.engines._kernels_ntt.
+    pointwise` with the Shoup factor ``one = 2^32 mod p`` (so ``x y R^-1 R = x y``), except the
+    last, whose factor ``f`` also undoes the transform's ``n`` and folds in the caller's
+    constant, as in :func:`rows_products`.
+    """
+    n = tw.shape[1]
+    x = np.empty(n, dtype=np.uint32)
+    r = np.empty(n, dtype=np.uint32)
+    bits = 0
+    while (e >> (bits + 1)) > 0:
+        bits += 1
+    steps = bits
+    for b in range(bits):
+        steps += (e >> b) & 1
+    for i in range(primes.shape[0]):
+        p = primes[i]
+        load_residues(x, a[i], p)
+        forward(x, p, tw[i], twq[i])
+        r[:] = x
+        done = 0
+        for b in range(bits - 1, -1, -1):
+            done += 1
+            last = done == steps
+            pointwise(r, r, p, p_neg_inv[i], f[i] if last else one[i], fq[i] if last else oneq[i])
+            if (e >> b) & 1:
+                done += 1
+                last = done == steps
+                pointwise(r, x, p, p_neg_inv[i], f[i] if last else one[i],
+                          fq[i] if last else oneq[i])
+        inverse(r, p, itw[i], itwq[i])
+        store_residues(r, p, out[i])
 
 
 @njit(types.int64(_RO_F64, types.uint8[::1], types.int64, types.int64), cache=CACHE)

@@ -300,27 +300,40 @@ def convolve_wide(a, b, bound: int, keep: int | None = None) -> np.ndarray | Non
         return None
     if _pyints.ready() is None:
         return None
-    kernels = jit_state.kernels("_kernels_wide")
     k = len(primes)
-    w, inv = crt_matrix(primes)
-    rows = w.shape[0]
-    chunk = min(count, CRT_CHUNK)
     group = k if n <= STACKED_LENGTH else PRIME_GROUP
-    budget.check_allocation(8.0 * ((k + 1) * count + 3 * group * (n1 + n2) + rows * chunk)
-                            + 16.0 * k * n, "residue rows and tables of the wide NTT engine")
+    check_memory(primes, count, n, 3 * group * (n1 + n2))
     with blas_threads(BLAS_THREADS):
         digits = _operand_digits(a, b)
         if digits is None:
             return None
         yf = scratch("yf", (k + 1, count), np.float64)
         _products(digits, n1, b is a, primes, n, yf)
-        buf = scratch("stream", (_pyints.capacity(count, 15 * rows),), np.uint8)
-        sums = scratch("sums", (rows * chunk,), np.float64)
-        pos = 0
-        for c0 in range(0, count, chunk):
-            block = yf[:, c0:c0 + chunk]
-            np.rint(inv @ block[:k], out=block[k])
-            part = sums[:rows * block.shape[1]].reshape(rows, block.shape[1])
-            np.matmul(w, block, out=part)
-            pos = kernels.crt_stream(part, buf, pos, count)
+        return recombine(yf, primes)
+
+
+def check_memory(primes: tuple[int, ...], count: int, n: int, operand_rows: int) -> None:
+    rows = crt_matrix(primes)[0].shape[0]
+    budget.check_allocation(8.0 * ((len(primes) + 1) * count + operand_rows
+                                   + rows * min(count, CRT_CHUNK)) + 16.0 * len(primes) * n,
+                            "residue rows and tables of the wide NTT engine")
+
+
+def recombine(yf: np.ndarray, primes: tuple[int, ...]) -> np.ndarray:
+    """The signed values ``c`` from ``yf[i] = c u_i mod p_i`` (row ``k`` is work space): ``t``
+    rounded from ``sum y_i / p_i``, the CRT matrix product in column chunks, the stream."""
+    k, count = len(primes), yf.shape[1]
+    w, inv = crt_matrix(primes)
+    rows = w.shape[0]
+    chunk = min(count, CRT_CHUNK)
+    kernels = jit_state.kernels("_kernels_wide")
+    buf = scratch("stream", (_pyints.capacity(count, 15 * rows),), np.uint8)
+    sums = scratch("sums", (rows * chunk,), np.float64)
+    pos = 0
+    for c0 in range(0, count, chunk):
+        block = yf[:, c0:c0 + chunk]
+        np.rint(inv @ block[:k], out=block[k])
+        part = sums[:rows * block.shape[1]].reshape(rows, block.shape[1])
+        np.matmul(w, block, out=part)
+        pos = kernels.crt_stream(part, buf, pos, count)
     return _pyints.objects(buf, pos, count)
