@@ -7,8 +7,9 @@ do the passes around them:
 * :func:`stream_digits`: the ints of a ``marshal`` list (CPython's Python/marshal.c: ``i`` and an
   int32, or ``l``, a signed int32 digit count and little-endian 15-bit digits) as a matrix of
   signed 15-bit digits, one column per value (the operands' side of the residue product);
-* :func:`rows_products`: row ``i`` of ``out`` is ``a[i] b[i] mod p_i``, one NTT product per
-  prime with the transforms of :mod:`polyconv.engines._kernels_ntt` and the stacked tables;
+* :func:`rows_products`: row ``i`` of ``yf`` is ``a b mod p_i`` (times a constant), one NTT
+  product per prime with the transforms of :mod:`polyconv.engines._kernels_ntt` and the stacked
+  tables, and the CRT's rounded quotient row;
 * :func:`rows_power`: row ``i`` of ``out`` is ``a[i]^e mod p_i``: one forward transform, the
   ``e``-th power of every spectral value (left-to-right binary powering, Knuth, TAOCP vol. 2,
   section 4.6.3: the convolution theorem turns the power of the polynomial into pointwise
@@ -74,20 +75,43 @@ def stream_digits(buf, out):
             pos += 2 * digits
 
 
-@njit("void(int64[:, ::1], int64[:, ::1], uint64[::1], uint32[:, ::1], uint32[:, ::1], "
-      "uint32[:, ::1], uint32[:, ::1], uint64[::1], uint64[::1], uint64[::1], int64[:, ::1])",
-      cache=CACHE)
-def rows_products(a, b, primes, tw, twq, itw, itwq, p_neg_inv, f, fq, out):
-    """``out[i] = (a[i] b[i] f_i' mod p_i)[:out.shape[1]]`` for every prime (``a is b``: squares),
-    row ``i`` of the stacked tables (``tw.shape[1]``-point transforms) and constants belonging to
-    ``primes[i]``; entries of ``a``, ``b`` any int64 (reduced inside).  ``f`` is the transform's
-    scale factor times any constant the caller folds in (the CRT's ``(P/p_i)^-1``)."""
+@njit("void(float64[:, ::1], int64, boolean, uint64[::1], uint32[:, ::1], uint32[:, ::1], "
+      "uint32[:, ::1], uint32[:, ::1], uint64[::1], uint64[::1], uint64[::1], float64[::1], "
+      "float64[:, ::1])", cache=CACHE)
+def rows_products(r, n1, square, primes, tw, twq, itw, itwq, p_neg_inv, f, fq, inv, yf):
+    """``yf[i] = (a b f_i' mod p_i)[:yf.shape[1]]`` for every prime, and ``yf[k] =
+    round(sum_i yf[i] inv[i])`` (the CRT's ``t``), with ``a = r[i, :n1]`` and ``b = r[i, n1:]``
+    (``square``: ``b`` is ``a``): integer residue sums below ``2^53`` in float64, reduced inside.
+    Row ``i`` of the stacked tables (``tw.shape[1]``-point transforms) and the constants belong
+    to ``primes[i]``; ``f`` is the transform's scale factor times any constant the caller folds
+    in (the CRT's ``(P/p_i)^-1``)."""
     n = tw.shape[1]
+    k = primes.shape[0]
+    count = yf.shape[1]
     fa = np.empty(n, dtype=np.uint32)
     fb = np.empty(n, dtype=np.uint32)
-    for i in range(primes.shape[0]):
-        product_mod_prime(a[i], b[i], primes[i], tw[i], twq[i], itw[i], itwq[i], p_neg_inv[i],
-                          f[i], fq[i], fa, fb, out[i])
+    ra = np.empty(n1, dtype=np.int64)
+    rb = np.empty(max(1, r.shape[1] - n1), dtype=np.int64)
+    y = np.empty(count, dtype=np.int64)
+    t = yf[k]
+    t[:] = 0.0
+    for i in range(k):
+        row = r[i]
+        for j in range(n1):
+            ra[j] = np.int64(row[j])
+        if not square:
+            for j in range(rb.shape[0]):
+                rb[j] = np.int64(row[n1 + j])
+        product_mod_prime(ra, ra if square else rb, primes[i], tw[i], twq[i], itw[i], itwq[i],
+                          p_neg_inv[i], f[i], fq[i], fa, fb, y)
+        out = yf[i]
+        w = inv[i]
+        for c in range(count):
+            v = float(y[c])
+            out[c] = v
+            t[c] += v * w
+    for c in range(count):
+        t[c] = np.floor(t[c] + 0.5)
 
 
 @njit("void(int64[:, ::1], int64, uint64[::1], uint32[:, ::1], uint32[:, ::1], uint32[:, ::1], "

@@ -243,29 +243,22 @@ def _operand_digits(a, b) -> np.ndarray | None:
 
 def _products(digits: np.ndarray, n1: int, square: bool, primes: tuple[int, ...], n: int,
               yf: np.ndarray) -> None:
-    """``yf[i] = c u_i mod p_i`` (float64) for every prime: residues ``T D^T`` (exact: below
-    ``2^53``; the transform kernel reduces them), then the NTT products."""
-    count = yf.shape[1]
+    """``yf[i] = c u_i mod p_i`` (float64) for every prime and ``yf[k] = t``: residues ``T D^T``
+    (exact: below ``2^53``; the transform kernel reduces them), the NTT products, the rounded
+    ``sum_i y_i / p_i``."""
+    k, count = len(primes), yf.shape[1]
     t = residue_matrix(primes, digits.shape[1])
     neg_inv, f, fq = scale_factors(primes, n)
+    inv = crt_matrix(primes)[1]
     if n <= STACKED_LENGTH:
-        r = np.matmul(t, digits.T, out=scratch("residues", (len(primes), digits.shape[0]),
-                                               np.float64))
-        ra = scratch("ra", (len(primes), n1), np.int64)
-        np.copyto(ra, r[:, :n1], casting="unsafe")
-        rb = ra
-        if not square:
-            rb = scratch("rb", (len(primes), r.shape[1] - n1), np.int64)
-            np.copyto(rb, r[:, n1:], casting="unsafe")
-        y = scratch("y", (len(primes), count), np.int64)
-        jit_state.kernels("_kernels_wide").rows_products(ra, rb, *stacked_tables(primes, n),
-                                                         neg_inv, f, fq, y)
-        yf[:len(primes)] = y
+        r = np.matmul(t, digits.T, out=scratch("residues", (k, digits.shape[0]), np.float64))
+        jit_state.kernels("_kernels_wide").rows_products(
+            r, n1, square, *stacked_tables(primes, n), neg_inv, f, fq, inv, yf)
         return
     ntt = jit_state.kernels("_kernels_ntt")
     fa, fb = np.empty(n, dtype=np.uint32), np.empty(n, dtype=np.uint32)
     y = np.empty(count, dtype=np.int64)
-    for g in range(0, len(primes), PRIME_GROUP):
+    for g in range(0, k, PRIME_GROUP):
         r = t[g:g + PRIME_GROUP] @ digits.T
         for i in range(r.shape[0]):
             p = primes[g + i]
@@ -275,6 +268,15 @@ def _products(digits: np.ndarray, n1: int, square: bool, primes: tuple[int, ...]
             ntt.product_mod_prime(ra, rb, p, tw, twq, itw, itwq, int(neg_inv[g + i]),
                                   int(f[g + i]), int(fq[g + i]), fa, fb, y)
             yf[g + i] = y
+    rounded_quotients(yf, inv)
+
+
+def rounded_quotients(yf: np.ndarray, inv: np.ndarray) -> None:
+    """``yf[k] = round(sum_i yf[i] / p_i)`` in column chunks (the module's ``t``)."""
+    k = inv.shape[0]
+    for c0 in range(0, yf.shape[1], CRT_CHUNK):
+        block = yf[:, c0:c0 + CRT_CHUNK]
+        np.rint(inv @ block[:k], out=block[k])
 
 
 def convolve_wide(a, b, bound: int, keep: int | None = None) -> np.ndarray | None:
@@ -320,10 +322,10 @@ def check_memory(primes: tuple[int, ...], count: int, n: int, operand_rows: int)
 
 
 def recombine(yf: np.ndarray, primes: tuple[int, ...]) -> np.ndarray:
-    """The signed values ``c`` from ``yf[i] = c u_i mod p_i`` (row ``k`` is work space): ``t``
-    rounded from ``sum y_i / p_i``, the CRT matrix product in column chunks, the stream."""
-    k, count = len(primes), yf.shape[1]
-    w, inv = crt_matrix(primes)
+    """The signed values ``c`` from ``yf[i] = c u_i mod p_i`` and ``yf[k] = t``: the CRT matrix
+    product in column chunks, the stream."""
+    count = yf.shape[1]
+    w = crt_matrix(primes)[0]
     rows = w.shape[0]
     chunk = min(count, CRT_CHUNK)
     kernels = jit_state.kernels("_kernels_wide")
@@ -332,7 +334,6 @@ def recombine(yf: np.ndarray, primes: tuple[int, ...]) -> np.ndarray:
     pos = 0
     for c0 in range(0, count, chunk):
         block = yf[:, c0:c0 + chunk]
-        np.rint(inv @ block[:k], out=block[k])
         part = sums[:rows * block.shape[1]].reshape(rows, block.shape[1])
         np.matmul(w, block, out=part)
         pos = kernels.crt_stream(part, buf, pos, count)

@@ -55,6 +55,7 @@ def power_wide(a, e: int, bound: int) -> np.ndarray | None:
                                                       neg_inv, one, oneq, f, fq, y)
         yf = nw.scratch("yf", (k + 1, count), np.float64)
         yf[:k] = y
+        nw.rounded_quotients(yf, nw.crt_matrix(primes)[1])
         return nw.recombine(yf, primes)
 
 
