@@ -77,11 +77,12 @@ def stream_digits(buf, out):
 
 @njit("void(float64[:, ::1], int64, boolean, uint64[::1], uint32[:, ::1], uint32[:, ::1], "
       "uint32[:, ::1], uint32[:, ::1], uint64[::1], uint64[::1], uint64[::1], float64[::1], "
-      "float64[:, ::1])", cache=CACHE)
-def rows_products(r, n1, square, primes, tw, twq, itw, itwq, p_neg_inv, f, fq, inv, yf):
-    """``yf[i] = (a b f_i' mod p_i)[:yf.shape[1]]`` for every prime, and ``yf[k] =
-    round(sum_i yf[i] inv[i])`` (the CRT's ``t``), with ``a = r[i, :n1]`` and ``b = r[i, n1:]``
+      "float64[:, ::1], float64[::1])", cache=CACHE, nogil=True)
+def rows_products(r, n1, square, primes, tw, twq, itw, itwq, p_neg_inv, f, fq, inv, yf, t):
+    """``yf[i] = (a b f_i' mod p_i)[:yf.shape[1]]`` for every prime, and ``t += sum_i yf[i]
+    inv[i]`` (the CRT's quotient, before rounding), with ``a = r[i, :n1]`` and ``b = r[i, n1:]``
     (``square``: ``b`` is ``a``): integer residue sums below ``2^53`` in float64, reduced inside.
+    Releases the GIL (a helper thread may run some of the primes).
     Row ``i`` of the stacked tables (``tw.shape[1]``-point transforms) and the constants belong
     to ``primes[i]``; ``f`` is the transform's scale factor times any constant the caller folds
     in (the CRT's ``(P/p_i)^-1``)."""
@@ -93,8 +94,6 @@ def rows_products(r, n1, square, primes, tw, twq, itw, itwq, p_neg_inv, f, fq, i
     ra = np.empty(n1, dtype=np.int64)
     rb = np.empty(max(1, r.shape[1] - n1), dtype=np.int64)
     y = np.empty(count, dtype=np.int64)
-    t = yf[k]
-    t[:] = 0.0
     for i in range(k):
         row = r[i]
         for j in range(n1):
@@ -110,8 +109,6 @@ def rows_products(r, n1, square, primes, tw, twq, itw, itwq, p_neg_inv, f, fq, i
             v = float(y[c])
             out[c] = v
             t[c] += v * w
-    for c in range(count):
-        t[c] = np.floor(t[c] + 0.5)
 
 
 @njit("void(int64[:, ::1], int64, uint64[::1], uint32[:, ::1], uint32[:, ::1], uint32[:, ::1], "
@@ -154,7 +151,7 @@ def rows_power(a, e, primes, tw, twq, itw, itwq, p_neg_inv, one, oneq, f, fq, ou
         store_residues(r, p, out[i])
 
 
-@njit(types.int64(_RO_F64, types.uint8[::1], types.int64, types.int64), cache=CACHE)
+@njit(types.int64(_RO_F64, types.uint8[::1], types.int64, types.int64), cache=CACHE, nogil=True)
 def crt_stream(sums, out, pos, total):
     """The integers ``V_c = sum_j sums[j, c] 2^(15 j)`` written into a marshal list of ``total``
     values in ``out`` from byte ``pos`` on (``pos = 0``: the list's header first, so a list is

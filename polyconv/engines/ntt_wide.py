@@ -46,6 +46,7 @@ import numpy as np
 from ..numerics import budget
 from . import _pyints, jit_state
 from ._blas import blas_threads
+from ._threads import helper_thread
 from .ntt_compiled import _stage_table
 
 #: Most primes (float64 exactness of the CRT product: ``255 x 2^45 + 2^23 < 2^53``).
@@ -241,19 +242,40 @@ def _operand_digits(a, b) -> np.ndarray | None:
     return digit_matrix(la + lb)
 
 
+def both(first, second, threads: int):
+    """``first()`` on the helper thread while this one runs ``second()`` (``threads >= 2``),
+    else one after the other; their results."""
+    if threads < 2:
+        return first(), second()
+    job = helper_thread().submit(first)
+    other = second()
+    return job.result(), other
+
+
 def _products(digits: np.ndarray, n1: int, square: bool, primes: tuple[int, ...], n: int,
-              yf: np.ndarray) -> None:
+              yf: np.ndarray, threads: int = 1) -> None:
     """``yf[i] = c u_i mod p_i`` (float64) for every prime and ``yf[k] = t``: residues ``T D^T``
     (exact: below ``2^53``; the transform kernel reduces them), the NTT products, the rounded
-    ``sum_i y_i / p_i``."""
+    ``sum_i y_i / p_i``; short transforms on ``threads`` threads (half the primes each)."""
     k, count = len(primes), yf.shape[1]
     t = residue_matrix(primes, digits.shape[1])
     neg_inv, f, fq = scale_factors(primes, n)
     inv = crt_matrix(primes)[1]
     if n <= STACKED_LENGTH:
         r = np.matmul(t, digits.T, out=scratch("residues", (k, digits.shape[0]), np.float64))
-        jit_state.kernels("_kernels_wide").rows_products(
-            r, n1, square, *stacked_tables(primes, n), neg_inv, f, fq, inv, yf)
+        tables = stacked_tables(primes, n)
+        kernel = jit_state.kernels("_kernels_wide").rows_products
+        half = k // 2 if threads >= 2 and k >= 2 else k
+        sums = np.zeros((2, count), dtype=np.float64)
+
+        def part(lo: int, hi: int, row: int):
+            return lambda: kernel(r[lo:hi], n1, square, *(x[lo:hi] for x in tables),
+                                  neg_inv[lo:hi], f[lo:hi], fq[lo:hi], inv[lo:hi], yf[lo:hi],
+                                  sums[row])
+
+        both(part(0, half, 0), part(half, k, 1), threads)
+        np.add(sums[0], sums[1], out=yf[k])
+        np.floor(yf[k] + 0.5, out=yf[k])
         return
     ntt = jit_state.kernels("_kernels_ntt")
     fa, fb = np.empty(n, dtype=np.uint32), np.empty(n, dtype=np.uint32)
@@ -279,7 +301,8 @@ def rounded_quotients(yf: np.ndarray, inv: np.ndarray) -> None:
         np.rint(inv @ block[:k], out=block[k])
 
 
-def convolve_wide(a, b, bound: int, keep: int | None = None) -> np.ndarray | None:
+def convolve_wide(a, b, bound: int, keep: int | None = None, threads: int = 1
+                  ) -> np.ndarray | None:
     """Exact product of two integer sequences (1-D arrays or lists of Python ints) as a 1-D
     object array of Python ints; None when the kernels or the primes do not serve this product
     (the caller runs another exact engine).
@@ -293,6 +316,9 @@ def convolve_wide(a, b, bound: int, keep: int | None = None) -> np.ndarray | Non
         the primes come from it (:func:`primes_for`).
     keep : int, optional
         Only the first ``keep`` coefficients.
+    threads : int
+        2: the helper thread (:mod:`polyconv.engines._threads`) takes half the primes' products
+        and half the CRT columns.
     """
     n1, n2 = len(a), len(b)
     count = n1 + n2 - 1 if keep is None else min(keep, n1 + n2 - 1)
@@ -310,8 +336,8 @@ def convolve_wide(a, b, bound: int, keep: int | None = None) -> np.ndarray | Non
         if digits is None:
             return None
         yf = scratch("yf", (k + 1, count), np.float64)
-        _products(digits, n1, b is a, primes, n, yf)
-        return recombine(yf, primes)
+        _products(digits, n1, b is a, primes, n, yf, threads)
+        return recombine(yf, primes, threads)
 
 
 def check_memory(primes: tuple[int, ...], count: int, n: int, operand_rows: int) -> None:
@@ -321,9 +347,24 @@ def check_memory(primes: tuple[int, ...], count: int, n: int, operand_rows: int)
                             "residue rows and tables of the wide NTT engine")
 
 
-def recombine(yf: np.ndarray, primes: tuple[int, ...]) -> np.ndarray:
+def recombine(yf: np.ndarray, primes: tuple[int, ...], threads: int = 1) -> np.ndarray:
     """The signed values ``c`` from ``yf[i] = c u_i mod p_i`` and ``yf[k] = t``: the CRT matrix
-    product in column chunks, the stream."""
+    product in column chunks and the stream, the halves of the columns on two threads when
+    ``threads >= 2`` (each its own stream: positions depend on the values before)."""
+    count = yf.shape[1]
+    if threads < 2 or count < 2 * 256:
+        return _pyints.objects(*_stream(yf, primes), count)
+    half = count // 2
+    (buf1, used1), (buf2, used2) = both(lambda: _stream(yf[:, :half], primes),
+                                        lambda: _stream(yf[:, half:], primes), threads)
+    out = np.empty(count, dtype=object)
+    out[:half] = marshal.loads(buf1[:used1])
+    out[half:] = marshal.loads(buf2[:used2])
+    return out
+
+
+def _stream(yf: np.ndarray, primes: tuple[int, ...]) -> tuple[np.ndarray, int]:
+    """The marshal stream of the values of ``yf``'s columns (this thread's work arrays)."""
     count = yf.shape[1]
     w = crt_matrix(primes)[0]
     rows = w.shape[0]
@@ -337,4 +378,4 @@ def recombine(yf: np.ndarray, primes: tuple[int, ...]) -> np.ndarray:
         part = sums[:rows * block.shape[1]].reshape(rows, block.shape[1])
         np.matmul(w, block, out=part)
         pos = kernels.crt_stream(part, buf, pos, count)
-    return _pyints.objects(buf, pos, count)
+    return buf, pos

@@ -162,6 +162,16 @@ def test_same_result_with_two_blas_threads(kernels, monkeypatch):
         assert nw.convolve_wide(a, b, bound_of(a, b)).tolist() == want
 
 
+def test_two_threads_same_values(kernels):
+    # the helper thread takes half the primes and half the CRT columns (separate streams)
+    rng = random.Random(12)
+    a, b = draw(rng, 900, 1200), draw(rng, 700, 800)
+    got = nw.convolve_wide(a, b, bound_of(a, b), threads=2)
+    assert got.tolist() == flint_product(a, b)
+    assert nw.convolve_wide(a, a, bound_of(a, a), keep=1000, threads=2).tolist() == \
+        flint_product(a, a)[:1000]
+
+
 def test_blas_threads_restored():
     found = _blas._setter()
     if found is None:
