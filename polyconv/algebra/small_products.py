@@ -53,6 +53,12 @@ ROWS_128_WORK = 128 * 128
 #: 1600 bits: n = 64 0.97-0.99 / 0.83-0.85 / 0.88-0.91 / 0.88-1.06; n = 128 0.65 / 0.61-0.62 /
 #: 0.63-0.69 / 0.75-0.90; n = 256-512 0.42-0.92).
 WIDE_MIN_LENGTH = 96
+#: :func:`power_values` from bounds of this many bits or powers of this many terms (below, the
+#: chain's first products stay in int64 and win: measured, us direct / chain, 16 x 16-bit ^4
+#: 47 / 34, 32 x 16-bit ^4 53 / 47; 64 x 16-bit ^4 68 / 78, 16 x 16-bit ^8 59 / 81, 16 x
+#: 64-bit ^3 51 / 53, 8 x 64-bit ^8 64 / 76).
+POWER_MIN_BITS = 128
+POWER_MIN_TERMS = 192
 
 
 @lru_cache(maxsize=128)
@@ -194,11 +200,13 @@ def ring_product(x: np.ndarray, y: np.ndarray, length: int | None, mode: str
 
 def power_values(x: np.ndarray, k: int) -> np.ndarray | None:
     """``x^k`` (every coefficient) of a 1-D int64 or object array as an object array, when the
-    kernels are loaded and the coefficient bound ``||x||_1^k`` (the triangle inequality) is
-    beyond int64; None otherwise (the caller runs its chain of products)."""
+    kernels are loaded and the coefficient bound ``||x||_1^k`` (the triangle inequality) has at
+    least :data:`POWER_MIN_BITS` bits or the power :data:`POWER_MIN_TERMS` terms; None otherwise
+    (the caller runs its chain of products)."""
     if k < 2 or x.ndim != 1 or not x.size or _pyints.ready() is None:
         return None
     bound = sum(abs(v) for v in x.tolist()) ** k
-    if bound < INT64_LIMIT:
+    if bound < INT64_LIMIT or (bound.bit_length() < POWER_MIN_BITS
+                               and k * (x.shape[0] - 1) + 1 < POWER_MIN_TERMS):
         return None
     return ntt_wide_power.power_wide(x, k, bound)
