@@ -103,10 +103,8 @@ def power(a, k: int, *, modulus: int | None = None, length: int | None = None) -
     room = total - k * shift
     _check_chain(ring, total, _power_bits(ring, core, k, None if n is None else room),
                  f"power(a, k={k}{'' if n is None else f', length={n}'})")
-    if n is None and isinstance(ring, _Integers):  # pointwise powers of spectra (crtwide)
-        direct = small_products.power_values(core, k)
-        if direct is not None:
-            return ring.to_result(_place(direct, k * shift, total))
+    if isinstance(ring, _Integers) and (d := small_products.power_values(core, k, n)) is not None:
+        return ring.to_result(_place(d, k * shift, total))  # pointwise powers of the spectra
     work = ring.to_work(core)
     powered = _power(ring, work, k, None if n is None else room)
     powered = ring.from_work(powered if powered is not work else ring.to_work(core.copy()))

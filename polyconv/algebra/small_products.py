@@ -198,12 +198,12 @@ def ring_product(x: np.ndarray, y: np.ndarray, length: int | None, mode: str
 
 
 
-def power_values(x: np.ndarray, k: int) -> np.ndarray | None:
+def power_values(x: np.ndarray, k: int, length: int | None = None) -> np.ndarray | None:
     """``x^k`` (every coefficient) of a 1-D int64 or object array as an object array, when the
     kernels are loaded and the coefficient bound ``||x||_1^k`` (the triangle inequality) has at
     least :data:`POWER_MIN_BITS` bits or the power :data:`POWER_MIN_TERMS` terms; None otherwise
-    (the caller runs its chain of products)."""
-    if k < 2 or x.ndim != 1 or not x.size or _pyints.ready() is None:
+    and for a truncated power (``length`` given): the caller runs its chain of products."""
+    if length is not None or k < 2 or x.ndim != 1 or not x.size or _pyints.ready() is None:
         return None
     bound = sum(abs(v) for v in x.tolist()) ** k
     if bound < INT64_LIMIT or (bound.bit_length() < POWER_MIN_BITS
