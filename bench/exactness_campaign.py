@@ -10,7 +10,8 @@ NTT primes, odd moduli between 2^31 and 2^52, powers of two, 2^62 - 57, huge pri
 composites); it forces every exact engine ("direct-exact", "fft-exact", "limbs", "kronecker",
 "ntt", and the compiled "ntt-compiled" in all its modes: one NTT prime, exact from one or
 several primes with Garner CRT, any modulus reduced inside or after the recombination;
-"ntt-batch", the batched engine, on its one-row path; an engine that refuses with a ValueError
+"ntt-batch", the batched engine, on its one-row path; "ntt-wide", the multi-modular engine with
+the matrix-product CRT, where outputs need Python ints; an engine that refuses with a ValueError
 is skipped) and "auto", and compares every coefficient with python-flint's fmpz_poly product
 (reduced by the modulus). One draw in fifty also checks ``polyconv.product``,
 ``polyconv.power``, and over the integers ``inverse_series`` and ``poly_divmod``. Stops at the
@@ -38,7 +39,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
 import polyconv  # noqa: E402
 
 ENGINES = ("auto", "direct-exact", "fft-exact", "limbs", "kronecker", "ntt", "ntt-compiled",
-           "ntt-batch")
+           "ntt-batch", "ntt-wide")
 MODULUS_CLASSES = {
     "none": [None],
     "small": [2, 3, 7, 97, 65537, 2**20 + 7],
@@ -170,7 +171,7 @@ def main() -> int:
         draws += 1
         n1, n2 = draw_lengths(rng)
         bits = rng.choice([1, 2, 8, 15, 16, 18, 20, 26, 31, 32, 40, 53, 62, 63, 64, 100, 500,
-                           2000])
+                           1000, 2000, 3000])
         style = rng.choice(STYLES)
         if (bits > 64 or style in ("near-2^1024", "single-huge")) and n1 * n2 > 2**20:
             n1, n2 = min(n1, 2**10), min(n2, 2**10)
@@ -190,6 +191,9 @@ def main() -> int:
             if got.dtype.kind == "f" or [int(v) for v in got] != want:
                 print(f"MISMATCH engine={engine} n1={n1} n2={n2} bits={bits} style={style} "
                       f"modulus={modulus} seed={args.seed} draw={draws}")
+                return 1
+            if engine in ("ntt-compiled", "ntt-wide") and jit_module().state() != "compiled":
+                print("compiled kernels unloaded: the engine fell back; stopping")
                 return 1
             if engine == "ntt-compiled":
                 if jit_module().state() != "compiled":

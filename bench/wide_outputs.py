@@ -1,13 +1,16 @@
 """Products with wide outputs (Python ints out) vs python-flint, end to end, same run.
 
 Run: python bench/wide_outputs.py [--bits 40,63,128,1000] [--log2n 6,7,8,10,12] [--rounds 3]
-(markdown; ~1-3 minutes)
+[--blas-threads 1] (markdown; ~1-3 minutes)
 
 polyconv.convolve on numpy arrays (int64 up to 63 bits, object arrays of Python ints beyond)
 against flint from Python lists: ``fmpz_poly(a.tolist()) * fmpz_poly(b.tolist())`` then
-``.coeffs()``.  Ratios are polyconv / flint, the best of ``--rounds`` interleaved rounds (each a
-best-of-several timing of both sides); below 1: polyconv faster.  The compiled kernels are
-loaded before the table (their one-off time is not in any ratio).
+``.coeffs()`` (flint's fmpz objects), and the same with the coefficients made Python ints
+(``[int(c) for c in ...]``: what polyconv returns).  Ratios are polyconv / flint, the best of
+``--rounds`` interleaved rounds (each a best-of-several timing of both sides); below 1: polyconv
+faster.  The compiled kernels are loaded before the table (their one-off time is not in any
+ratio).  ``--blas-threads`` sets the OpenBLAS threads of the ntt-wide engine's matrix products
+(default: the engine's own setting, one).
 """
 
 from __future__ import annotations
@@ -55,12 +58,18 @@ def main() -> None:
     parser.add_argument("--bits", default="40,63,128,1000")
     parser.add_argument("--log2n", default="6,7,8,10,12")
     parser.add_argument("--rounds", type=int, default=3)
+    parser.add_argument("--blas-threads", type=int, default=0)
     args = parser.parse_args()
+    if args.blas_threads:
+        from polyconv.engines import ntt_wide
+
+        ntt_wide.BLAS_THREADS = args.blas_threads
     start = time.perf_counter()
     jit_state.kernels()
     print(f"kernels ready in {time.perf_counter() - start:.2f} s (not in any ratio)\n")
-    print("| bits | n | polyconv ms | flint ms | ratio | engine |")
-    print("|---|---|---|---|---|---|")
+    print("| bits | n | polyconv ms | flint ms | ratio | flint -> ints ms | ratio (ints) "
+          "| engine |")
+    print("|---|---|---|---|---|---|---|---|")
     for bits in (int(v) for v in args.bits.split(",")):
         for lg in (int(v) for v in args.log2n.split(",")):
             a, b = operands(bits, 1 << lg, 1000 * bits + lg)
@@ -69,17 +78,21 @@ def main() -> None:
             def flint_side(la=la, lb=lb):
                 return (fmpz_poly(la) * fmpz_poly(lb)).coeffs()
 
+            def flint_ints(la=la, lb=lb):
+                return [int(c) for c in (fmpz_poly(la) * fmpz_poly(lb)).coeffs()]
+
             def ours(a=a, b=b):
                 return polyconv.convolve(a, b)
 
             rounds = []
             for _ in range(args.rounds):
-                t_flint, t_ours = best(flint_side), best(ours)
-                rounds.append((t_ours / t_flint, t_ours, t_flint))
-            ratio, t_ours, t_flint = min(rounds)
+                t_flint, t_ours, t_ints = best(flint_side), best(ours), best(flint_ints)
+                rounds.append((t_ours / t_flint, t_ours, t_flint, t_ints))
+            ratio, t_ours, t_flint, t_ints = min(rounds)
+            ratio_ints = min(r[1] / r[3] for r in rounds)
             engine = polyconv.plan(a, b).engine
             print(f"| {bits} | 2^{lg} | {1e3 * t_ours:.3f} | {1e3 * t_flint:.3f} | {ratio:.2f} "
-                  f"| {engine} |", flush=True)
+                  f"| {1e3 * t_ints:.3f} | {ratio_ints:.2f} | {engine} |", flush=True)
 
 
 if __name__ == "__main__":

@@ -25,7 +25,7 @@ from ..engines import jit_state as jit
 from ..engines import ntt_batch
 from ..numerics.limits import max_abs
 from ..pipeline.inputs import check_sequences
-from . import rings
+from . import rings, small_products
 from .checks import (
     _check_chain,
     _check_exponent,
@@ -107,6 +107,8 @@ def power(a, k: int, *, modulus: int | None = None, length: int | None = None) -
     room = total - k * shift
     _check_chain(ring, total, _power_bits(ring, core, k, None if n is None else room),
                  f"power(a, k={k}{'' if n is None else f', length={n}'})")
+    if isinstance(ring, _Integers) and (d := small_products.power_values(core, k, n)) is not None:
+        return ring.to_result(_place(d, k * shift, total))  # pointwise powers of the spectra
     work = ring.to_work(core)
     powered = _power(ring, work, k, None if n is None else room)
     powered = ring.from_work(powered if powered is not work else ring.to_work(core.copy()))

@@ -14,7 +14,11 @@ product of 450- by 900-bit coefficients 410 us) against 1-30 us of arithmetic.  
   product puts each coefficient ``c_k + h`` in ``[1, 2^w)`` when ``|c_k| < 2^(w-1)``, so
   ``gmpy2.unpack`` reads the slots with no borrows (common practice, no source);
 * short int64 products whose sums stay below ``2^127`` go to the compiled 128-bit schoolbook
-  rows (:func:`polyconv.pipeline.small.wide_rows`) when the kernels are loaded.
+  rows (:func:`polyconv.pipeline.small.wide_rows`) when the kernels are loaded;
+* products of at least :data:`WIDE_MIN_LENGTH` coefficients on both sides go to the
+  multi-modular engine (:func:`polyconv.engines.ntt_wide.convolve_wide`) when the kernels are
+  loaded and it takes them: measured 0.4-0.9x the GMP product from there (squarings and
+  products, 200-1600-bit coefficients, n = 128..512).
 
 Results are lists of Python ints (never gmpy2.mpz in numpy arrays: an object array of 61 mpz
 costs 47 us to fill against 1 us for ints, measured).
@@ -27,6 +31,7 @@ from functools import lru_cache
 import gmpy2
 import numpy as np
 
+from ..engines import _pyints, ntt_wide, ntt_wide_power
 from ..numerics.limits import INT64_LIMIT, max_abs
 from ..pipeline import small
 
@@ -43,6 +48,17 @@ TWO_POINT_BITS = 2**18
 #: int64 products with at most this many multiply-adds use the 128-bit rows (beyond, one GMP
 #: product is faster: measured, 511 x 511 of 40-bit coefficients, rows 300 us, GMP 150 us).
 ROWS_128_WORK = 128 * 128
+#: Products with at least this many coefficients in each operand go to the multi-modular engine
+#: when its kernels are loaded (measured, ntt-wide / GMP, square and product, 200 / 500 / 1000 /
+#: 1600 bits: n = 64 0.97-0.99 / 0.83-0.85 / 0.88-0.91 / 0.88-1.06; n = 128 0.65 / 0.61-0.62 /
+#: 0.63-0.69 / 0.75-0.90; n = 256-512 0.42-0.92).
+WIDE_MIN_LENGTH = 96
+#: :func:`power_values` from bounds of this many bits or powers of this many terms (below, the
+#: chain's first products stay in int64 and win: measured, us direct / chain, 16 x 16-bit ^4
+#: 47 / 34, 32 x 16-bit ^4 53 / 47; 64 x 16-bit ^4 68 / 78, 16 x 16-bit ^8 59 / 81, 16 x
+#: 64-bit ^3 51 / 53, 8 x 64-bit ^8 64 / 76).
+POWER_MIN_BITS = 128
+POWER_MIN_TERMS = 192
 
 
 @lru_cache(maxsize=128)
@@ -146,14 +162,18 @@ def product(x: np.ndarray, y: np.ndarray, bits: int, count: int | None = None
     in :func:`product_values`."""
     n1, n2 = x.shape[0], y.shape[0]
     full = n1 + n2 - 1
+    out = None
     if (bits < 127 and x.dtype == np.int64 and y.dtype == np.int64
             and n1 * n2 <= ROWS_128_WORK and small.batch_kernels() is not None):
         out = small.wide_rows(x, y, None, full if count is None else min(count, full))
-    elif is_small(n1, n2, bits):
+    elif min(n1, n2) >= WIDE_MIN_LENGTH and _pyints.ready() is not None:
+        # the bound 2^bits - 1 proves the prime count; None when the engine declines
+        out = ntt_wide.convolve_wide(x, x if y is x else y, (1 << bits) - 1, count)
+    if out is None:
+        if not is_small(n1, n2, bits):
+            return None
         xs = x.tolist()
         out = objects(product_values(xs, xs if y is x else y.tolist(), bits, count))
-    else:
-        return None
     if count is not None and count > full:  # zero padded, as convolve(length=) does
         out = np.concatenate([out, np.zeros(count - full, dtype=object)])
     return out
@@ -176,3 +196,17 @@ def ring_product(x: np.ndarray, y: np.ndarray, length: int | None, mode: str
         return out
     return out[min(n1, n2) - 1:]
 
+
+
+def power_values(x: np.ndarray, k: int, length: int | None = None) -> np.ndarray | None:
+    """``x^k`` (every coefficient) of a 1-D int64 or object array as an object array, when the
+    kernels are loaded and the coefficient bound ``||x||_1^k`` (the triangle inequality) has at
+    least :data:`POWER_MIN_BITS` bits or the power :data:`POWER_MIN_TERMS` terms; None otherwise
+    and for a truncated power (``length`` given): the caller runs its chain of products."""
+    if length is not None or k < 2 or x.ndim != 1 or not x.size or _pyints.ready() is None:
+        return None
+    bound = sum(abs(v) for v in x.tolist()) ** k
+    if bound < INT64_LIMIT or (bound.bit_length() < POWER_MIN_BITS
+                               and k * (x.shape[0] - 1) + 1 < POWER_MIN_TERMS):
+        return None
+    return ntt_wide_power.power_wide(x, k, bound)

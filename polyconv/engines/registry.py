@@ -20,6 +20,7 @@ from . import (
     ntt,
     ntt_batch_plan,
     ntt_compiled_plan,
+    ntt_wide_plan,
     overlap_add,
 )
 from ._common import Engine
@@ -36,6 +37,7 @@ REGISTRY: dict[str, Engine] = {e.name: e for e in (
     ntt.ENGINE,
     ntt_compiled_plan.ENGINE,
     ntt_batch_plan.ENGINE,
+    ntt_wide_plan.ENGINE,
 )}
 
 FLOAT_ENGINES = tuple(name for name, e in REGISTRY.items() if not e.exact)

@@ -11,6 +11,7 @@ the engine itself:
   batched call, ``per_mac_wrap`` (exact int64 schoolbook rows) and ``per_mac_mod`` (schoolbook
   rows modulo a prime), fitted to ``c0 + r (c_row + c_mac n^2)`` over rows and lengths, and
   ``per_mac_128`` (128-bit sums) from long rows less their Python-int outputs;
+* ``ntt_wide``: :mod:`polyconv.tuning.calibrate_wide`;
 * ``jit``: the time this process took to make the kernels ready (compiling them ahead of time if
   the cache was cold); a cold compile is recorded as ``compile_seconds``, a warm load as
   ``load_seconds``.
@@ -25,6 +26,7 @@ import numpy as np
 from ..engines import jit_state
 from ..engines import ntt_batch as nb
 from ..engines import ntt_compiled as nc
+from .calibrate_wide import measure_wide
 
 
 def measure_compiled(quick: bool, best_time: Callable, fit: Callable,
@@ -69,7 +71,8 @@ def measure_compiled(quick: bool, best_time: Callable, fit: Callable,
     t = best_time(lambda: nc._residue_rows(wide, primes), budget)
     out["per_object_in"] = t / count
     batch = _measure_batch(rng, budget, best_time, fit, out["per_object_out"])
-    return {"ntt_compiled": out, "ntt_batch": batch, "jit": timing}
+    return {"ntt_compiled": out, "ntt_batch": batch, "jit": timing,
+            **measure_wide(quick, best_time, fit)}
 
 
 def _measure_batch(rng, budget: float, best_time: Callable, fit: Callable,

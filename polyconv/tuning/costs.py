@@ -55,7 +55,7 @@ OPTIONAL_KEYS = frozenset({("exact", "direct_float"), ("exact", "limbs_mod_wide"
                            # the compiled engine's sections: absent where the kernels cannot run
                            # (numba missing, POLYCONV_JIT=0); readers fall back to the defaults
                            ("exact", "jit"), ("exact", "ntt_compiled"),
-                           ("exact", "ntt_batch"),
+                           ("exact", "ntt_batch"), ("exact", "ntt_wide"),
                            # the fused circular product's constants: absent where the FFT
                            # library has none (scipy's pocketfft) and in older files
                            ("fft", "fused_overhead"), ("fft", "fused_rate_by_log2n"),

@@ -5,6 +5,8 @@ Reference: python-flint's ``fmpz_poly`` product (truncated by slicing its coeffi
 
 from __future__ import annotations
 
+import random
+
 import numpy as np
 import pytest
 
@@ -70,8 +72,48 @@ def test_product_routes_equal_flint(batch_kernels):
 
 
 def test_long_products_are_declined():
-    x = np.array([3 << 2000] * 600, dtype=object)  # 600 slots of 4021 bits: over the limit
-    assert small_products.product(x, x, 4020) is None
+    # 600 slots of 8005 bits: over the GMP limit, and 4002-bit operands are beyond the
+    # multi-modular engine's 255 digits of 15 bits
+    x = np.array([3 << 4000] * 600, dtype=object)
+    assert small_products.product(x, x, 8004) is None
+
+
+def test_long_products_by_the_multimodular_engine():
+    """With the kernels loaded, products of >= WIDE_MIN_LENGTH terms on both sides go to
+    ntt_wide (checked against python-flint's fmpz_poly product)."""
+    from polyconv.engines import jit_state
+
+    try:
+        jit_state.kernels()
+    except jit_state.JitUnavailableError as exc:
+        pytest.skip(str(exc))
+    rng = random.Random(4)
+    n = small_products.WIDE_MIN_LENGTH
+    x = np.array([rng.getrandbits(2000) - (1 << 1999) for _ in range(n + 500)], dtype=object)
+    y = np.array([rng.getrandbits(900) for _ in range(n)], dtype=object)
+    bits = (n * max(map(abs, x)) * max(map(abs, y))).bit_length()
+    assert [int(v) for v in small_products.product(x, y, bits)] == _flint(x.tolist(),
+                                                                          y.tolist())
+    assert [int(v) for v in small_products.product(x, x, 2 * bits, 7)] == _flint(
+        x.tolist(), x.tolist())[:7]
+
+
+def test_power_values_against_flint():
+    """x^k by pointwise powers of the spectra (python-flint's fmpz_poly ** k as the oracle)."""
+    from polyconv.engines import jit_state
+
+    try:
+        jit_state.kernels()
+    except jit_state.JitUnavailableError as exc:
+        pytest.skip(str(exc))
+    rng = random.Random(8)
+    for n, bits, k in ((16, 64, 50), (1, 200, 3), (2, 3, 70), (7, 500, 9), (40, 20, 5)):
+        x = [rng.getrandbits(bits) - (1 << (bits - 1)) for _ in range(n)]
+        x[0], x[-1] = x[0] or 3, x[-1] or -2  # ||x||_1^k beyond int64
+        got = small_products.power_values(np.array(x, dtype=object), k)
+        want = [int(v) for v in (flint.fmpz_poly(x) ** k).coeffs()]
+        assert got is not None and [int(v) for v in got] == want + [0] * (len(got) - len(want))
+    assert small_products.power_values(np.array([1, 2, 3]), 4) is None  # fits int64
 
 
 def test_truncation_beyond_the_full_product_is_zero_padded():

@@ -1,0 +1,218 @@
+"""Compiled (numba) kernels of the wide multi-modular engine (:mod:`polyconv.engines.ntt_wide`).
+
+Loaded with the kernel modules (:data:`polyconv.engines.jit_state.KERNEL_MODULES`); every kernel
+has one explicit signature.  The engine's two matrix products run in float64 BLAS; these kernels
+do the passes around them:
+
+* :func:`stream_digits`: the ints of a ``marshal`` list (CPython's Python/marshal.c: ``i`` and an
+  int32, or ``l``, a signed int32 digit count and little-endian 15-bit digits) as a matrix of
+  signed 15-bit digits, one column per value (the operands' side of the residue product);
+* :func:`rows_products`: row ``i`` of ``yf`` is ``a b mod p_i`` (times a constant), one NTT
+  product per prime with the transforms of :mod:`polyconv.engines._kernels_ntt` and the stacked
+  tables, and the CRT's rounded quotient row;
+* :func:`rows_power`: row ``i`` of ``out`` is ``a[i]^e mod p_i``: one forward transform, the
+  ``e``-th power of every spectral value (left-to-right binary powering, Knuth, TAOCP vol. 2,
+  section 4.6.3: the convolution theorem turns the power of the polynomial into pointwise
+  powers) and one inverse transform per prime;
+* :func:`crt_stream`: signed column sums of 15-bit digit weights (the CRT matrix product) to
+  digits by carry propagation, the sign from the last carry, magnitudes, and the ``marshal``
+  stream of the Python ints (the format of :mod:`polyconv.engines._kernels_stream`).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit, types
+
+from . import jit_state as _jit
+from ._kernels_ntt import (
+    forward,
+    inverse,
+    load_residues,
+    pointwise,
+    product_mod_prime,
+    store_residues,
+)
+from ._kernels_stream import _get_int32, _put_int32, _start
+
+CACHE = _jit.cache_enabled()
+
+_RO_BYTES = types.Array(types.uint8, 1, "C", readonly=True)
+_RO_F64 = types.Array(types.float64, 2, "C", readonly=True)
+
+#: Values per block of :func:`crt_stream` (its loops run over a block's columns).
+BLOCK = 128
+_MASK = np.int64(0x7FFF)
+
+
+@njit(types.void(_RO_BYTES, types.float64[:, ::1]), cache=CACHE)
+def stream_digits(buf, out):
+    """``out[c, d]``: digit ``d`` (bits ``[15 d, 15 d + 15)``) of ``|v_c|``, negated when
+    ``v_c < 0``, for the ints ``v_c`` of a marshal list (checked by
+    :func:`polyconv.engines._kernels_stream.stream_width`; ``out`` has a column per digit of
+    the widest value)."""
+    count, nd = out.shape
+    pos = 5
+    for c in range(count):
+        kind = buf[pos]
+        n = _get_int32(buf, pos + 1)
+        pos += 5
+        sign = -1.0 if n < 0 else 1.0
+        row = out[c]
+        row[:] = 0.0
+        if kind == 0x69:
+            m = -n if n < 0 else n
+            d = 0
+            while m and d < nd:
+                row[d] = sign * float(m & _MASK)
+                m >>= 15
+                d += 1
+        else:
+            digits = -n if n < 0 else n
+            for d in range(min(digits, nd)):
+                row[d] = sign * float(np.int64(buf[pos + 2 * d])
+                                      | (np.int64(buf[pos + 2 * d + 1]) << 8))
+            pos += 2 * digits
+
+
+@njit("void(float64[:, ::1], int64, boolean, uint64[::1], uint32[:, ::1], uint32[:, ::1], "
+      "uint32[:, ::1], uint32[:, ::1], uint64[::1], uint64[::1], uint64[::1], float64[::1], "
+      "float64[:, ::1], float64[::1])", cache=CACHE, nogil=True)
+def rows_products(r, n1, square, primes, tw, twq, itw, itwq, p_neg_inv, f, fq, inv, yf, t):
+    """``yf[i] = (a b f_i' mod p_i)[:yf.shape[1]]`` for every prime, and ``t += sum_i yf[i]
+    inv[i]`` (the CRT's quotient, before rounding), with ``a = r[i, :n1]`` and ``b = r[i, n1:]``
+    (``square``: ``b`` is ``a``): integer residue sums below ``2^53`` in float64, reduced inside.
+    Releases the GIL (a helper thread may run some of the primes).
+    Row ``i`` of the stacked tables (``tw.shape[1]``-point transforms) and the constants belong
+    to ``primes[i]``; ``f`` is the transform's scale factor times any constant the caller folds
+    in (the CRT's ``(P/p_i)^-1``)."""
+    n = tw.shape[1]
+    k = primes.shape[0]
+    count = yf.shape[1]
+    fa = np.empty(n, dtype=np.uint32)
+    fb = np.empty(n, dtype=np.uint32)
+    ra = np.empty(n1, dtype=np.int64)
+    rb = np.empty(max(1, r.shape[1] - n1), dtype=np.int64)
+    y = np.empty(count, dtype=np.int64)
+    for i in range(k):
+        row = r[i]
+        for j in range(n1):
+            ra[j] = np.int64(row[j])
+        if not square:
+            for j in range(rb.shape[0]):
+                rb[j] = np.int64(row[n1 + j])
+        product_mod_prime(ra, ra if square else rb, primes[i], tw[i], twq[i], itw[i], itwq[i],
+                          p_neg_inv[i], f[i], fq[i], fa, fb, y)
+        out = yf[i]
+        w = inv[i]
+        for c in range(count):
+            v = float(y[c])
+            out[c] = v
+            t[c] += v * w
+
+
+@njit("void(int64[:, ::1], int64, uint64[::1], uint32[:, ::1], uint32[:, ::1], uint32[:, ::1], "
+      "uint32[:, ::1], uint64[::1], uint64[::1], uint64[::1], uint64[::1], uint64[::1], "
+      "int64[:, ::1])", cache=CACHE)
+def rows_power(a, e, primes, tw, twq, itw, itwq, p_neg_inv, one, oneq, f, fq, out):
+    """``out[i] = (a[i]^e f_i' mod p_i)[:out.shape[1]]`` (``e >= 2``; ``tw.shape[1]``-point
+    transforms, at least ``e (len(a[i]) - 1) + 1`` points) for every prime.
+
+    The pointwise products are Montgomery products by :func:`polyconv.engines._kernels_ntt.
+    pointwise` with the Shoup factor ``one = 2^32 mod p`` (so ``x y R^-1 R = x y``), except the
+    last, whose factor ``f`` also undoes the transform's ``n`` and folds in the caller's
+    constant, as in :func:`rows_products`.
+    """
+    n = tw.shape[1]
+    x = np.empty(n, dtype=np.uint32)
+    r = np.empty(n, dtype=np.uint32)
+    bits = 0
+    while (e >> (bits + 1)) > 0:
+        bits += 1
+    steps = bits
+    for b in range(bits):
+        steps += (e >> b) & 1
+    for i in range(primes.shape[0]):
+        p = primes[i]
+        load_residues(x, a[i], p)
+        forward(x, p, tw[i], twq[i])
+        r[:] = x
+        done = 0
+        for b in range(bits - 1, -1, -1):
+            done += 1
+            last = done == steps
+            pointwise(r, r, p, p_neg_inv[i], f[i] if last else one[i], fq[i] if last else oneq[i])
+            if (e >> b) & 1:
+                done += 1
+                last = done == steps
+                pointwise(r, x, p, p_neg_inv[i], f[i] if last else one[i],
+                          fq[i] if last else oneq[i])
+        inverse(r, p, itw[i], itwq[i])
+        store_residues(r, p, out[i])
+
+
+@njit(types.int64(_RO_F64, types.uint8[::1], types.int64, types.int64), cache=CACHE, nogil=True)
+def crt_stream(sums, out, pos, total):
+    """The integers ``V_c = sum_j sums[j, c] 2^(15 j)`` written into a marshal list of ``total``
+    values in ``out`` from byte ``pos`` on (``pos = 0``: the list's header first, so a list is
+    written in column chunks); returns the position after them.
+
+    Every ``sums[j, c]`` is an integer below ``2^53`` in magnitude, and every ``V_c`` satisfies
+    ``-2^(15 L) <= V_c < 2^(15 L)`` (``L = sums.shape[0]``), so carry propagation leaves 15-bit
+    digits and a last carry of 0 (``V_c >= 0``) or -1 (negative: the magnitude is the digits'
+    complement plus one).  Per block of values: the carries, the magnitudes and the top digit in
+    loops over the block's columns (vectorised), then one scalar pass writes the stream.
+
+    Raises
+    ------
+    ValueError
+        If a last carry is neither (the caller's bound was wrong: never silently).
+    """
+    rows, count = sums.shape
+    carry = np.empty(BLOCK, dtype=np.int64)
+    neg = np.empty(BLOCK, dtype=np.int64)
+    top = np.empty(BLOCK, dtype=np.int64)
+    dg = np.empty((rows, BLOCK), dtype=np.uint16)
+    if pos == 0:
+        pos = _start(out, total)
+    for start in range(0, count, BLOCK):
+        m = min(BLOCK, count - start)
+        carry[:m] = 0
+        for j in range(rows):
+            row = sums[j, start:start + m]
+            drow = dg[j]
+            for c in range(m):
+                v = np.int64(row[c]) + carry[c]
+                drow[c] = np.uint16(v & _MASK)
+                carry[c] = v >> 15
+        bad = False
+        for c in range(m):
+            bad |= carry[c] != 0 and carry[c] != -1
+            neg[c] = -carry[c]
+            carry[c] = neg[c]
+            top[c] = 0
+        if bad:
+            raise ValueError("a CRT value outside the range of its prime product")
+        for j in range(rows):  # complement plus one where negative; the top nonzero digit
+            drow = dg[j]
+            for c in range(m):
+                t = (np.int64(drow[c]) ^ (_MASK * neg[c])) + carry[c]
+                d = t & _MASK
+                drow[c] = np.uint16(d)
+                carry[c] = t >> 15
+                top[c] = j + 1 if d != 0 else top[c]
+        for c in range(m):
+            t = top[c]
+            if t <= 2:  # below 2^30: an int32 item
+                v = (np.int64(dg[0, c]) | (np.int64(dg[1, c]) << 15)) if t else np.int64(0)
+                out[pos] = 0x69
+                pos = _put_int32(out, pos + 1, -v if neg[c] else v)
+            else:
+                out[pos] = 0x6C
+                pos = _put_int32(out, pos + 1, -t if neg[c] else t)
+                for d in range(t):
+                    v = dg[d, c]
+                    out[pos] = np.uint8(v & np.uint16(0xFF))
+                    out[pos + 1] = np.uint8(v >> np.uint16(8))
+                    pos += 2
+    return pos
