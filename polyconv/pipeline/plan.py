@@ -219,7 +219,7 @@ class Plan(PlanHead):
         elif self.threads > 1:
             lines.append(f"  threads:     {self.threads}")
         if self.settings:
-            lines.append("  settings:    " + ", ".join(f"{k}={v}" for k, v in self.settings))
+            lines.append("  settings:    " + ", ".join(f"{k}={_fmt_setting(v)}" for k, v in self.settings))
         if self.modulus is not None:
             lines.append(f"  modulus:     {self.modulus} (outputs in [0, modulus))")
         if self.exact:
@@ -238,6 +238,13 @@ def format_seconds(t: float) -> str:
     if t < 1.0:
         return f"{t * 1e3:.2f} ms"
     return f"{t:.2f} s"
+
+
+def _fmt_setting(value) -> str:
+    """A setting as text; an integer wider than 64 bits as ``< 2^k`` (its bit length)."""
+    if isinstance(value, int) and not isinstance(value, bool) and value.bit_length() > 64 and value > 0:
+        return f"< 2^{value.bit_length()}"
+    return str(value)
 
 
 def _fmt_bound(bound: float) -> str:

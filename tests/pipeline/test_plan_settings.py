@@ -87,3 +87,22 @@ def test_float_plans_carry_the_empty_record():
 def test_an_unknown_engine_parameter_is_refused_by_name():
     with pytest.raises(TypeError, match=r"engine 'newcomer' offered settings \['colour'"):
         engine_settings("newcomer", {"colour": "blue", "product_int64": True})
+
+
+def test_a_wide_prime_bound_prints_as_a_power_of_two_that_covers_the_product():
+    # The printed "ntt_bound=< 2^k" must cover every coefficient of the exact product;
+    # reference product: python-flint fmpz_poly multiply (general-purpose library).
+    flint = pytest.importorskip("flint")
+    rng = np.random.default_rng(5)
+    a = [int(v) << 900 for v in rng.integers(-2**40, 2**40, size=40)]
+    b = [int(v) << 900 for v in rng.integers(-2**40, 2**40, size=30)]
+    the_plan = _offered(np.array(a, dtype=object), np.array(b, dtype=object), "ntt-wide")
+    if the_plan is None:
+        pytest.skip("ntt-wide is not offered here (compiled kernels absent)")
+    text = str(the_plan)
+    (setting,) = [s for s in text.split("settings:")[1].split("\n")[0].split(", ")
+                  if s.strip().startswith("ntt_bound=")]
+    k = int(setting.split("< 2^")[1])
+    exact = [int(c) for c in (flint.fmpz_poly(a) * flint.fmpz_poly(b)).coeffs()]
+    assert max(abs(c) for c in exact) < 2**k
+    assert len(text) < 2000  # no 2000-digit integer in the report
