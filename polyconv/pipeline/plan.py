@@ -219,7 +219,8 @@ class Plan(PlanHead):
         elif self.threads > 1:
             lines.append(f"  threads:     {self.threads}")
         if self.settings:
-            lines.append("  settings:    " + ", ".join(f"{k}={_fmt_setting(v)}" for k, v in self.settings))
+            shown = (f"{k}={_fmt_setting(v)}" for k, v in self.settings)
+            lines.append("  settings:    " + ", ".join(shown))
         if self.modulus is not None:
             lines.append(f"  modulus:     {self.modulus} (outputs in [0, modulus))")
         if self.exact:
@@ -242,7 +243,7 @@ def format_seconds(t: float) -> str:
 
 def _fmt_setting(value) -> str:
     """A setting as text; an integer wider than 64 bits as ``< 2^k`` (its bit length)."""
-    if isinstance(value, int) and not isinstance(value, bool) and value.bit_length() > 64 and value > 0:
+    if isinstance(value, int) and not isinstance(value, bool) and value > 2**64:
         return f"< 2^{value.bit_length()}"
     return str(value)
 
