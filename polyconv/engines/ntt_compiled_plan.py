@@ -11,9 +11,16 @@ import math
 import numpy as np
 
 from ..numerics.limits import magnitude_fits_int64
-from . import jit_state
+from . import jit_state, ntt_stream
 from ._common import INTEGER_KINDS, Engine, Job, Option
-from .ntt_compiled import KERNEL_MODULUS_LIMIT, is_ntt_prime, max_length, prime_count, run_planned
+from .ntt_compiled import (
+    KERNEL_MODULUS_LIMIT,
+    _count,
+    is_ntt_prime,
+    max_length,
+    prime_count,
+    run_planned,
+)
 
 # The prediction charges the state of the kernels (:mod:`polyconv.engines.jit_state`): nothing
 # once they are compiled in this process, a warm-cache load or a whole compile otherwise, so a
@@ -113,7 +120,16 @@ def option(job: Job) -> Option | str:
 
 
 def run_engine(plan, a: np.ndarray, b: np.ndarray, keep: int | None) -> np.ndarray | None:
-    """The plan's product of two rows; None when the kernels turned out not to load."""
+    """The plan's product of two rows; None when the kernels turned out not to load.  Short
+    exact products with a Python-int operand and Python ints out read the operands' marshal
+    streams (:mod:`polyconv.engines.ntt_stream`: the same primes and values, one kernel call)."""
+    bound = plan.setting("ntt_bound")
+    if (plan.modulus is None and (a.dtype == object or b.dtype == object)
+            and not magnitude_fits_int64(bound) and ntt_stream.fits(a.shape[-1], b.shape[-1])):
+        found = ntt_stream.streams(a, b)
+        if found is not None:
+            return ntt_stream.product(found[0], found[1], a.shape[-1], b.shape[-1], bound,
+                                      _count(a, b, keep))
     return run_planned(a, b, plan.modulus, plan.setting("ntt_bound"), keep,
                        plan.setting("product_int64", False))
 
