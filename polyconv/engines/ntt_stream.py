@@ -5,7 +5,7 @@ pays, per product, two byte-row conversions, two residue kernels, one Python cal
 (object operands are residue matrices) and the Garner kernel: ~57 us for two 64-term 128-bit
 operands (9 primes), of which the arithmetic is under half.  Here the operands go in as
 ``marshal.dumps(list, 2)`` streams (CPython's C loop, ~20 ns per 128-bit value) and one compiled
-call (:func:`polyconv.engines._kernels_small.stream_product`) reads their 15-bit digits, forms
+call (:func:`polyconv.engines._kernels_objects.stream_product`) reads their 15-bit digits, forms
 the residues modulo every prime, runs the NTT products and writes the Garner recombination as a
 marshal stream of Python ints (Knuth, TAOCP vol. 2, section 4.3.2; the streams are those of
 :mod:`polyconv.engines._pyints`, checked once per process).  The same values as
@@ -38,7 +38,7 @@ def kernels():
     process and marshal streams read back correctly, else None (no compile is started)."""
     global _kernels
     if _kernels is None and jit_state.state() == "compiled" and _pyints.ready() is not None:
-        _kernels = jit_state.kernels("_kernels_small")
+        _kernels = jit_state.kernels("_kernels_objects")
     return _kernels
 
 
@@ -63,7 +63,7 @@ def streams(a: np.ndarray, b: np.ndarray) -> tuple | None:
 @lru_cache(maxsize=128)
 def _packed(primes: tuple[int, ...], n: int) -> tuple:
     """The tables and constants of ``primes`` for ``n``-point transforms, packed as
-    :func:`polyconv.engines._kernels_small.stream_product` takes them, and ``P``'s bits."""
+    :func:`polyconv.engines._kernels_objects.stream_product` takes them, and ``P``'s bits."""
     arr, tw, twq, itw, itwq, neg_inv, f, fq = _stacked_tables(primes, n)
     tab = np.ascontiguousarray(np.stack([tw, twq, itw, itwq]))
     consts = np.ascontiguousarray(np.stack([arr, neg_inv, f, fq]))
