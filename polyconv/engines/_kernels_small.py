@@ -279,3 +279,25 @@ def magnitudes(a, b):
     """``(max|a|, max|b|)`` as uint64 (one pass each; ``2^63`` for ``-2^63``)."""
     return _magnitude(a), _magnitude(b)
 
+
+
+#: Entries below this in magnitude have exact float64 squares (``< 2^52``).
+_SQUARE_LIMIT = 1 << 26
+#: Sums of squares below this are exact in float64 whatever the order of summation.
+_SUM_LIMIT = 1 << 53
+
+
+@njit("int64(int64[:])", cache=CACHE)
+def square_sum(a):
+    """``sum a_i^2`` exactly, or -1 when some ``|a_i| >= 2^26`` or the sum reaches ``2^53`` (then
+    a float64 sum of the squares could round; below, every partial sum is an integer under
+    ``2^53``, so any float64 summation gives exactly this value)."""
+    total = 0
+    for i in range(a.shape[0]):
+        x = a[i]
+        if x >= _SQUARE_LIMIT or x <= -_SQUARE_LIMIT:
+            return -1
+        total += x * x
+        if total >= _SUM_LIMIT:
+            return -1
+    return total

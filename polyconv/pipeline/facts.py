@@ -14,6 +14,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..engines import jit_state
 from ..engines.exact_fft import centered_residues
 from ..engines.kronecker import reduce_operand
 from ..numerics import bounds
@@ -172,5 +173,26 @@ def _round_norm(norm: float) -> float:
 
 def _largest_row_norm(x: np.ndarray) -> float:
     if x.ndim == 1:
-        return bounds.norm2_upper(x)
-    return max(bounds.norm2_upper(row) for row in x.reshape(-1, x.shape[-1]))
+        return _norm2_upper(x)
+    return max(_norm2_upper(row) for row in x.reshape(-1, x.shape[-1]))
+
+
+_kernels = None  # the short-product kernel module, once loaded in this process
+
+
+def _norm2_upper(x: np.ndarray) -> float:
+    """:func:`polyconv.numerics.bounds.norm2_upper` of a 1-D array, the same float: for int64
+    entries below ``2^26`` whose squares sum below ``2^53`` the float64 sum of the squares is
+    exact whatever its order (every partial sum is an integer under ``2^53``), so the exact sum
+    from one compiled pass (``square_sum``: 0.2 ms at ``n = 2^18`` against 0.6 ms) gives it."""
+    global _kernels
+    if x.dtype == np.int64 and (_kernels is not None or jit_state.state() == "compiled"):
+        _kernels = _kernels or jit_state.kernels("_kernels_small")
+        total = _kernels.square_sum(x)
+        if total > 0:
+            n = x.shape[0]
+            gamma = (n + 2) * 2.0**-53 / (1 - (n + 2) * 2.0**-53)  # as norm2_upper
+            return math.nextafter(math.sqrt(float(total) * (1 + 3 * gamma)), math.inf)
+        if total == 0:
+            return 0.0
+    return bounds.norm2_upper(x)
