@@ -76,10 +76,11 @@ def normalise_integers(x: np.ndarray, modulus: int | None) -> tuple[np.ndarray, 
     if kind == "b" or (kind in "iu" and x.dtype.itemsize < 8) or kind == "i":
         x = x.astype(np.int64, copy=False)
     elif kind == "O":
-        x = _objects_as_ints(x)
+        x, lo, hi = _objects_as_ints(x)
     if x.size == 0:
         return x, 0
-    lo, hi = int(x.min()), int(x.max())
+    if kind != "O":  # (object arrays: their extremes are known)
+        lo, hi = int(x.min()), int(x.max())
     if modulus is None or (lo >= 0 and hi < modulus):  # nothing to reduce
         return x, max(-lo, hi)
     x = reduce_operand(x, modulus) if x.ndim == 1 else np.stack(
@@ -89,18 +90,19 @@ def normalise_integers(x: np.ndarray, modulus: int | None) -> tuple[np.ndarray, 
     return x, modulus - 1
 
 
-def _objects_as_ints(x: np.ndarray) -> np.ndarray:
-    """Object arrays of Python ints or gmpy2.mpz: int64 when every entry fits, else Python ints."""
-    flat = x.ravel()
-    hi = max(flat) if flat.size else 0
-    lo = min(flat) if flat.size else 0
+def _objects_as_ints(x: np.ndarray) -> tuple[np.ndarray, int, int]:
+    """Object arrays of Python ints or gmpy2.mpz: int64 when every entry fits, else Python ints;
+    and the smallest and largest entry (Python ints; 0 for an empty array)."""
+    values = x.ravel().tolist()
+    hi = int(max(values)) if values else 0
+    lo = int(min(values)) if values else 0
     if -INT64_LIMIT <= lo and hi < INT64_LIMIT:
-        return x.astype(np.int64)
-    if set(map(type, flat.tolist())) == {int}:  # already Python ints (one C-level pass)
-        return x
+        return x.astype(np.int64), lo, hi
+    if set(map(type, values)) == {int}:  # already Python ints (one C-level pass)
+        return x, lo, hi
     out = np.empty(x.shape, dtype=object)
-    out.ravel()[:] = [int(v) for v in flat]
-    return out
+    out.ravel()[:] = [int(v) for v in values]
+    return out, lo, hi
 
 
 def integer_facts(x: np.ndarray, y: np.ndarray, modulus: int | None,
