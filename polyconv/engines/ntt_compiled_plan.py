@@ -13,6 +13,7 @@ import numpy as np
 from ..numerics.limits import magnitude_fits_int64
 from . import jit_state, ntt_stream
 from ._common import INTEGER_KINDS, Engine, Job, Option
+from ._wrap import wrap_length
 from .ntt_compiled import (
     KERNEL_MODULUS_LIMIT,
     _count,
@@ -20,6 +21,7 @@ from .ntt_compiled import (
     max_length,
     prime_count,
     run_planned,
+    transform_length,
 )
 
 # The prediction charges the state of the kernels (:mod:`polyconv.engines.jit_state`): nothing
@@ -28,7 +30,8 @@ from .ntt_compiled import (
 # it.
 #
 # Cost (constants in the cost table's ``exact.ntt_compiled`` section, ``N`` the power-of-two
-# transform length, ``k`` primes, ``C`` output coefficients, per batch row)::
+# transform length (a product a little longer than ``N / 2`` is priced as its cyclic route:
+# :func:`transform_seconds`), ``k`` primes, ``C`` output coefficients, per batch row)::
 #
 #     t = jit + c0 + rows (k (c_nlogn N lg N + c_pt N) + [CRT] (c_crt + c_res k C + c_digit k^2 C)
 #                           + (c_obj + c_od k^2) C [objects out]
@@ -61,6 +64,22 @@ def product_bound(facts) -> int:
         cs = math.ceil(math.nextafter(facts.norm_a * facts.norm_b * (1 + 2**-40), math.inf))
         bound = min(bound, cs)
     return bound
+
+
+def _points_seconds(c: dict, n: int) -> float:
+    return c["per_nlogn"] * n * max(1, math.log2(n)) + c["per_point"] * n
+
+
+def transform_seconds(c: dict, n1: int, n2: int, n: int) -> float:
+    """Seconds of one prime's product of lengths ``n1``, ``n2`` with ``n``-point transforms, or
+    by the cyclic route of :mod:`polyconv.engines._wrap` when the product is a little longer
+    than ``n / 2``: an ``n / 2``-point cyclic product, the short product of the top ends and
+    one more call (measured at ``m = 2^14``, ``r = m / 16``: 0.75 of the ``2m``-point time)."""
+    m = wrap_length(n1, n2, n)
+    if not m:
+        return _points_seconds(c, n)
+    r = n1 + n2 - 1 - m
+    return _points_seconds(c, m) + _points_seconds(c, transform_length(r, r)) + c["overhead"]
 
 
 def crt_seconds(c: dict, k: int, out_len: int, modulus: int | None) -> float:
@@ -96,7 +115,7 @@ def _compiled_option(facts, exact_costs: dict, rows: int, n_full: int, out_len: 
     c = {**DEFAULTS, **exact_costs.get("ntt_compiled", {})}
     j = {**JIT_DEFAULTS, **exact_costs.get("jit", {})}
     charge = {"compiled": 0.0, "cached": j["load_seconds"]}.get(state, j["compile_seconds"])
-    per_row = k * (c["per_nlogn"] * n_full * max(1, math.log2(n_full)) + c["per_point"] * n_full)
+    per_row = k * transform_seconds(c, facts.n1, facts.n2, n_full)
     per_row += crt_seconds(c, k, out_len, m)
     if objects_out:
         per_row += (c["per_object_out"] + c["per_object_digit"] * k * k) * out_len
