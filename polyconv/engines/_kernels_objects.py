@@ -33,48 +33,55 @@ _RO_BYTES = types.Array(types.uint8, 1, "C", readonly=True)
 
 @njit(inline="always")
 def _list_bits(buf):
-    """The bit length of the largest ``|v|`` of a marshal list of ints (a ``marshal.dumps(list,
-    2)`` stream: ``[``, an int32 count, then per item ``i`` and an int32, or ``l``, the signed
-    digit count and 15-bit digits, the top one nonzero), or -1 when the stream holds anything
-    else (another item type, a zero digit count, a truncated stream)."""
+    """``(bits, negative)``: the bit length of the largest ``|v|`` of a marshal list of ints (a
+    ``marshal.dumps(list, 2)`` stream: ``[``, an int32 count, then per item ``i`` and an int32,
+    or ``l``, the signed digit count and 15-bit digits, the top one nonzero) and 1 when some
+    ``v < 0`` (else 0); ``(-1, 0)`` when the stream holds anything else (another item type, a
+    zero digit count, a truncated stream)."""
     size = buf.shape[0]
     if size < 5 or buf[0] != 0x5B:
-        return -1
+        return -1, 0
     count = _get_int32(buf, 1)
     pos = 5
     top = 0
+    negative = 0
     for _ in range(count):
         if pos + 5 > size:
-            return -1
+            return -1, 0
         kind = buf[pos]
         n = _get_int32(buf, pos + 1)
         pos += 5
+        if n < 0:
+            negative = 1
         if kind == 0x69:
             v = -n if n < 0 else n
             bits = 0
         elif kind == 0x6C and n != 0:
             nd = -n if n < 0 else n
             if pos + 2 * nd > size:
-                return -1
+                return -1, 0
             v = np.int64(buf[pos + 2 * nd - 2]) | (np.int64(buf[pos + 2 * nd - 1]) << 8)
             if v == 0 or v >= 1 << 15:
-                return -1
+                return -1, 0
             bits = 15 * (nd - 1)
             pos += 2 * nd
         else:
-            return -1
+            return -1, 0
         while v:
             bits += 1
             v >>= 1
         top = max(top, bits)
-    return top if pos == size else -1
+    return (top, negative) if pos == size else (-1, 0)
 
 
-@njit(types.UniTuple(types.int64, 2)(_RO_BYTES, _RO_BYTES), cache=CACHE)
+@njit(types.UniTuple(types.int64, 4)(_RO_BYTES, _RO_BYTES), cache=CACHE)
 def stream_bits(da, db):
-    """:func:`_list_bits` of two streams (bit lengths of ``max|a|`` and ``max|b|``; -1: not a
-    list of ints)."""
-    return _list_bits(da), _list_bits(db)
+    """:func:`_list_bits` of two streams: ``(bits_a, bits_b, negative_a, negative_b)`` (bit
+    lengths of ``max|a|`` and ``max|b|``, -1: not a list of ints; 1 where an entry is
+    negative)."""
+    bits_a, neg_a = _list_bits(da)
+    bits_b, neg_b = _list_bits(db)
+    return bits_a, bits_b, neg_a, neg_b
 
 
 _MASK30 = (1 << 30) - 1

@@ -159,15 +159,18 @@ def option(job: Job) -> Option | str:
 
 def run_engine(plan, a: np.ndarray, b: np.ndarray, keep: int | None) -> np.ndarray | None:
     """The plan's product of two rows; None when the kernels turned out not to load.  Short
-    exact products with a Python-int operand and Python ints out read the operands' marshal
-    streams (:mod:`polyconv.engines.ntt_stream`: the same primes and values, one kernel call)."""
-    bound = plan.setting("ntt_bound")
-    if (plan.modulus is None and (a.dtype == object or b.dtype == object)
-            and not magnitude_fits_int64(bound) and ntt_stream.fits(a.shape[-1], b.shape[-1])):
-        found = ntt_stream.streams(a, b)
+    exact products with a Python-int operand and Python ints out, and such products modulo
+    ``m >= 2^62``, read the operands' marshal streams (:mod:`polyconv.engines.ntt_stream`: one
+    kernel call)."""
+    bound, m = plan.setting("ntt_bound"), plan.modulus
+    if ((a.dtype == object or b.dtype == object) and ntt_stream.fits(a.shape[-1], b.shape[-1])
+            and (not magnitude_fits_int64(bound) if m is None else m >= KERNEL_MODULUS_LIMIT)):
+        found = ntt_stream.streams(a, b)  # (residues in [0, m) with a modulus: normalised)
         if found is not None:
-            return ntt_stream.product(found[0], found[1], a.shape[-1], b.shape[-1], bound,
-                                      _count(a, b, keep))
+            n1, n2, count = a.shape[-1], b.shape[-1], _count(a, b, keep)
+            if m is None:
+                return ntt_stream.product(found[0], found[1], n1, n2, bound, count)
+            return ntt_stream.product_mod(found[0], found[1], n1, n2, m, count)
     return run_planned(a, b, plan.modulus, plan.setting("ntt_bound"), keep,
                        plan.setting("product_int64", False))
 

@@ -43,9 +43,10 @@ def kernels():
 
 
 def streams(a: np.ndarray, b: np.ndarray) -> tuple | None:
-    """``(da, db, bits_a, bits_b)``: the marshal streams of two 1-D object arrays and the bit
-    lengths of ``max|a|``, ``max|b|``; None when the kernels are not ready or an entry is not an
-    exact Python int (bools, ``gmpy2.mpz``, numpy scalars, int subclasses, floats)."""
+    """``(da, db, bits_a, bits_b, negative)``: the marshal streams of two 1-D arrays of
+    integers, the bit lengths of ``max|a|``, ``max|b|`` and whether an entry is negative; None
+    when the kernels are not ready or an entry is not an exact Python int (bools,
+    ``gmpy2.mpz``, numpy scalars, int subclasses, floats)."""
     k = _kernels or kernels()
     if k is None:
         return None
@@ -54,10 +55,10 @@ def streams(a: np.ndarray, b: np.ndarray) -> tuple | None:
         db = da if b is a else np.frombuffer(marshal.dumps(b.tolist(), 2), dtype=np.uint8)
     except ValueError:  # unmarshallable entries (int subclasses, mpz, numpy scalars)
         return None
-    bits_a, bits_b = k.stream_bits(da, db)
+    bits_a, bits_b, neg_a, neg_b = k.stream_bits(da, db)
     if bits_a < 0 or bits_b < 0:
         return None
-    return da, db, bits_a, bits_b
+    return da, db, bits_a, bits_b, bool(neg_a or neg_b)
 
 
 @lru_cache(maxsize=128)
@@ -87,3 +88,13 @@ def product(da: np.ndarray, db: np.ndarray, n1: int, n2: int, bound: int,
     buf = _pyints.buffer(count, bits, "Python ints from CRT residues")
     used = _kernels.stream_product(da, db, tab, consts, garner, words, count, buf)
     return _pyints.objects(buf, used, count)
+
+
+def product_mod(da: np.ndarray, db: np.ndarray, n1: int, n2: int, m: int,
+                count: int) -> np.ndarray:
+    """:func:`product` of residues in ``[0, m)`` reduced modulo ``m`` (the exact product is
+    below ``min(n1, n2) (m - 1)^2``): int64 for ``m <= 2^63``, else Python ints."""
+    values = product(da, db, n1, n2, max(min(n1, n2) * (m - 1) ** 2, 2**63), count)
+    out = np.empty(count, dtype=object)
+    out[:] = [v % m for v in values.tolist()]
+    return out.astype(np.int64) if m <= 2**63 else out

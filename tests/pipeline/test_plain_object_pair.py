@@ -120,3 +120,65 @@ def test_planned_object_rows_take_the_stream_route():
     assert cut.tolist() == _flint(rows_a[0], rows_b[0])[:11]
     rows = convolve_integer_rows(a[1], b[1])
     assert rows.tolist() == _flint(rows_a[1], rows_b[1])
+
+
+def _flint_mod(a, b, m) -> list[int]:
+    return [v % m for v in _flint(a, b)]  # reduction is a ring homomorphism (common practice)
+
+
+#: a 200-bit prime (sympy.nextprime(2**199 + 12345), checked below with sympy.isprime), a
+#: Mersenne prime and an even modulus above 2^64
+P200 = 803469022129495137770981046170581301261101496891396417663059
+MODULI = [P200, 2**127 - 1, 2**100]
+
+
+def test_p200_is_prime():
+    sympy = pytest.importorskip("sympy")
+    assert sympy.isprime(P200) and P200.bit_length() == 200
+
+
+@pytest.mark.parametrize("m", MODULI)
+@pytest.mark.parametrize("n1,n2", [(1, 1), (3, 2), (8, 5), (64, 64), (2048, 2048)])
+def test_residues_modulo_a_wide_modulus_equal_flint(m, n1, n2):
+    """Residues in [0, m) (zeros, m - 1, small and wide values) modulo a 200-bit prime, 2^127 - 1
+    and 2^100: flint's product reduced modulo m, dtype as the planned path."""
+    rng = random.Random(n1 * 31 + n2 + m % 1000)
+    for _ in range(2):
+        a = _objects(rng.choice([0, 1, m - 1, rng.randrange(m), rng.randrange(2**70)])
+                     for _ in range(n1))
+        b = _objects(rng.choice([0, m - 1, rng.randrange(m)]) for _ in range(n2))
+        out = convolve(a, b, modulus=m)
+        assert out.tolist() == _flint_mod(a, b, m)
+        planned, plan = convolve_prepared(a, b, modulus=m)
+        assert out.dtype == planned.dtype and polyconv.plan(a, b, modulus=m).engine == plan.engine
+
+
+def test_wide_modulus_declines_what_is_not_residues():
+    """Negative entries, entries >= m, and moduli up to 2^64 take the preparing path (which
+    reduces): the values are still flint's."""
+    m = P200
+    a = _objects([5, -7, 2**150])
+    b = _objects([m + 3, 2, m - 1])
+    assert plain_object_pair(a, b[1:], "full", "auto", m, None, -1) is None  # a negative
+    assert plain_object_pair(b, b, "full", "auto", m, None, -1) is None  # m + 3 >= m
+    small = _objects([2**63 + 5, 3])  # (64 bits: stays a Python int in the pipeline)
+    assert plain_object_pair(small, small, "full", "auto", 2**64, None, -1) is None
+    assert plain_object_pair(small, small, "full", "auto", 2**64 + 13, None, -1) is not None
+    for x, y in ((a, b), (b, b), (a, a)):
+        assert convolve(x, y, modulus=m).tolist() == _flint_mod(x, y, m)
+    assert convolve(small, small, modulus=2**64).tolist() == _flint_mod(small, small, 2**64)
+
+
+def test_planned_modular_object_rows_take_the_stream_route():
+    """Forced ntt-compiled products modulo a 200-bit prime (rows of a batch, a truncation)
+    reduce the stream's exact products: flint's values."""
+    rng = random.Random(12)
+    a = np.empty((2, 30), dtype=object)
+    a[:] = [[rng.randrange(P200) for _ in range(30)] for _ in range(2)]
+    b = np.empty((2, 9), dtype=object)
+    b[:] = [[rng.randrange(P200) for _ in range(9)] for _ in range(2)]
+    out = polyconv.convolve(a, b, modulus=P200, method="ntt-compiled")
+    for r in range(2):
+        assert out[r].tolist() == _flint_mod(a[r], b[r], P200)
+    cut = polyconv.convolve(a[1], b[1], modulus=P200, length=7, method="ntt-compiled")
+    assert cut.tolist() == _flint_mod(a[1], b[1], P200)[:7]
