@@ -278,7 +278,7 @@ def small_tables(rng) -> None:
     print("|---|---|---|---|---|---|")
     for rows, n in ((1000, 4), (200, 16), (50, 64), (10, 256)):
         for setting, m, top in (("16-bit", None, 2**15), ("mod 998244353", P, None),
-                                ("40-bit", None, 2**39)):
+                                ("40-bit", None, 2**39), ("63-bit", None, 2**62)):
             lo = 0 if m else -top
             a = rng.integers(lo, m or top, (rows, n))
             b = rng.integers(lo, m or top, (rows, n))

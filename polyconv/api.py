@@ -15,7 +15,7 @@ import numpy as np
 from .pipeline import execute, nd, prepare
 from .pipeline.nd_plan import NdPlan
 from .pipeline.plan import Plan
-from .pipeline.small import tiny_product
+from .pipeline.small import tiny_arrays, tiny_product
 
 
 def plan(a, b, *, mode: str = "full", method: str = "auto", modulus: int | None = None,
@@ -121,6 +121,11 @@ def convolve(a, b, *, mode: str = "full", method: str = "auto", modulus: int | N
     """
     if axes is None:
         if type(a) is np.ndarray and type(b) is np.ndarray:  # the common case
+            if (mode == "full" and method == "auto" and length is None and axis == -1
+                    and type(axis) is int):  # tiny 1-D int64 products: one compiled call
+                out = tiny_arrays(a, b, modulus)
+                if out is not None:
+                    return out
             return execute.convolve(a, b, mode=mode, method=method, modulus=modulus,
                                     length=length, axis=axis)
         out = tiny_product(a, b, mode, method, modulus, length, axis)  # tiny plain lists

@@ -10,6 +10,9 @@ quotient (divide and conquer), so every product has the true sizes of its operan
 
 from __future__ import annotations
 
+import operator
+
+import gmpy2
 import numpy as np
 
 from ..numerics.limits import max_abs
@@ -202,8 +205,28 @@ def _divmod_integers(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarr
         return q, diff[:d]
     sign = int(b[-1])  # +-1: divide sign*a by the monic sign*b, then r = sign * r'
     q = quotient_halving(_as_objects(a) * sign, _as_objects(b) * sign)
+    if d and max_abs(b[:d]).bit_length() * _NARROW_FACTOR <= max_abs(q[:d]).bit_length():
+        return q, _remainder_sums(a, q, b, d)
     r = integers.sub(a[:d], integers.mul(q[:d], b[:d], length=d))
     return q, r
+
+
+#: The remainder of a quotient whose coefficients are this many times wider than the divisor's
+#: is summed term by term (:func:`_remainder_sums`) rather than by one product.
+_NARROW_FACTOR = 8
+
+
+def _remainder_sums(a: np.ndarray, q: np.ndarray, b: np.ndarray, d: int) -> np.ndarray:
+    """``r_k = a_k - sum_(i <= k) q_i b_(k-i)`` for ``k < d`` (the low ``d`` coefficients of
+    ``a - q b``), each product of a wide ``q_i`` by a narrow ``b_j`` in GMP at their true sizes:
+    a Kronecker product pads ``b``'s slots to the width of ``q``'s (measured, 100-bit operands,
+    remainder alone: 300/121 7.5 -> 4.3 ms, 600/241 42 -> 27 ms, 1200/481 208 -> 189 ms)."""
+    qs = list(map(gmpy2.mpz, q[:d].tolist()))
+    bs = list(map(gmpy2.mpz, b[:d].tolist()))
+    top = a[:d].tolist()
+    out = np.empty(d, dtype=object)
+    out[:] = [int(top[k] - sum(map(operator.mul, qs[:k + 1], bs[k::-1]))) for k in range(d)]
+    return out
 
 
 def _quotient_mod_power(a: np.ndarray, b: np.ndarray, bits: int) -> np.ndarray:

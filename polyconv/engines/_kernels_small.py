@@ -26,7 +26,7 @@ from . import jit_state as _jit
 from ._kernels_arith import M32 as _M32
 from ._kernels_batch import _product_128, mul_u128
 from ._kernels_crt import BLOCK
-from ._kernels_stream import _digits15, _magnitudes, _start, _write
+from ._kernels_stream import _digits15, _magnitudes, _put_int32, _start, _write
 
 CACHE = _jit.cache_enabled()
 
@@ -129,6 +129,78 @@ def product_mod_odd(a, b, m, m_neg_inv, r2, r3, out):
         out[k] = np.int64(t - m if t >= m else t)
 
 
+#: Products of at most this many coefficients plus one are summed and written one coefficient
+#: at a time (:func:`_stream_direct`: no work arrays; measured 3 x 2, 63-bit: 0.5 us against
+#: 0.7 us for :func:`product_stream`).
+DIRECT_COUNT = 12
+
+
+@njit(inline="always")
+def _put_192(out, pos, w0, w1, w2):
+    """Write the 192-bit two's complement value ``w2 2^128 + w1 2^64 + w0`` (below ``2^191`` in
+    magnitude) as one marshal item at ``out[pos:]`` (up to 31 bytes: the digits are written in
+    place first, the header after); returns the position after it."""
+    negative = w2 >> np.uint64(63) != _ZERO
+    if negative:  # the magnitude: ~w + 1
+        w0 = ~w0 + _ONE
+        c = _ONE if w0 == _ZERO else _ZERO
+        w1 = ~w1 + c
+        c = _ONE if (c != _ZERO and w1 == _ZERO) else _ZERO
+        w2 = ~w2 + c
+    top = 0
+    first = _ZERO
+    for d in range(13):  # 15-bit digits of at most 192 bits
+        bit = 15 * d
+        word = bit >> 6
+        off = np.uint64(bit & 63)
+        lo = w0 if word == 0 else (w1 if word == 1 else w2)
+        v = lo >> off
+        if off > np.uint64(49) and word < 2:
+            v |= (w1 if word == 0 else w2) << (np.uint64(64) - off)
+        v &= np.uint64(0x7FFF)
+        if d < 2:
+            first |= v << np.uint64(15 * d)
+        out[pos + 5 + 2 * d] = np.uint8(v & np.uint64(0xFF))
+        out[pos + 6 + 2 * d] = np.uint8(v >> np.uint64(8))
+        if v:
+            top = d + 1
+    if top <= 2:  # below 2^30: an int32 item
+        out[pos] = 0x69
+        v = np.int64(first)
+        return _put_int32(out, pos + 1, -v if negative else v)
+    out[pos] = 0x6C
+    _put_int32(out, pos + 1, -top if negative else top)
+    return pos + 5 + 2 * top
+
+
+@njit(inline="always")
+def _stream_direct(a, b, out):
+    """:func:`product_stream` one coefficient at a time (the sums in three words, then
+    :func:`_put_192`), for the tiniest products."""
+    n1 = a.shape[0]
+    n2 = b.shape[0]
+    count = n1 + n2 - 1
+    pos = _start(out, count)
+    for k in range(count):
+        w0 = _ZERO
+        w1 = _ZERO
+        w2 = _ZERO
+        for i in range(max(0, k - n2 + 1), min(k, n1 - 1) + 1):
+            high, low = _product_128(a[i], b[k - i])
+            t = w0 + low
+            c0 = _ONE if t < low else _ZERO
+            w0 = t
+            u = w1 + high
+            c1 = _ONE if u < high else _ZERO
+            v = u + c0
+            if v < c0:
+                c1 += _ONE
+            w1 = v
+            w2 += (_ALL if high >> np.uint64(63) else _ZERO) + c1
+        pos = _put_192(out, pos, w0, w1, w2)
+    return pos
+
+
 @njit(inline="always")
 def _magnitude(a):
     """``max|a|`` of an int64 array as a uint64 (``2^63`` for ``-2^63``)."""
@@ -191,6 +263,8 @@ def tiny_auto(a, b, m, m_neg_inv, r2, r3, out, buf):
     if m > 0:
         product_mod_odd(ra, rb, np.uint64(m), m_neg_inv, r2, r3, out)
         return -1
+    if n1 + n2 <= DIRECT_COUNT:
+        return _stream_direct(ra, rb, buf)
     return product_stream(ra, rb, buf)
 
 
@@ -204,3 +278,26 @@ def tiny_exact(a, b, out, buf):
 def magnitudes(a, b):
     """``(max|a|, max|b|)`` as uint64 (one pass each; ``2^63`` for ``-2^63``)."""
     return _magnitude(a), _magnitude(b)
+
+
+
+#: Entries below this in magnitude have exact float64 squares (``< 2^52``).
+_SQUARE_LIMIT = 1 << 26
+#: Sums of squares below this are exact in float64 whatever the order of summation.
+_SUM_LIMIT = 1 << 53
+
+
+@njit("int64(int64[:])", cache=CACHE)
+def square_sum(a):
+    """``sum a_i^2`` exactly, or -1 when some ``|a_i| >= 2^26`` or the sum reaches ``2^53`` (then
+    a float64 sum of the squares could round; below, every partial sum is an integer under
+    ``2^53``, so any float64 summation gives exactly this value)."""
+    total = 0
+    for i in range(a.shape[0]):
+        x = a[i]
+        if x >= _SQUARE_LIMIT or x <= -_SQUARE_LIMIT:
+            return -1
+        total += x * x
+        if total >= _SUM_LIMIT:
+            return -1
+    return total

@@ -50,9 +50,10 @@ from .ntt_compiled import (
 )
 
 #: Rows with ``n1 n2`` at most this many multiply-adds use schoolbook summation modulo a prime:
-#: measured on the development machine (256 rows of n x n, microseconds per row, schoolbook /
-#: NTT): n = 64 2.0 / 2.8, 96 4.1 / 5.5, 128 6.9 / 5.9.
-SCHOOLBOOK_WORK = 112 * 112
+#: measured on the development machine with the SIMD transforms (256 rows of n x n,
+#: microseconds per row, schoolbook / NTT): n = 16 0.33 / 0.68, 24 0.91 / 0.86, 32 0.82 / 0.57,
+#: 64 2.33 / 0.81, 128 7.5 / 1.3 (before them: 64 2.0 / 2.8, 128 6.9 / 5.9).
+SCHOOLBOOK_WORK = 20 * 20
 #: The same for exact int64 rows in wrapping arithmetic, against two-prime NTT + Garner (64 rows,
 #: us per row): n = 128 3.5 / 16.2, 256 13.5 / 34.1, 384 29.3 / 62.6.
 SCHOOLBOOK_WORK_WRAP = 512 * 512

@@ -13,8 +13,10 @@ primes, ``C`` output coefficients, ``N`` the transform length, ``r`` rows)::
 
     t = jit + c0 + r (c_wrap n1 n2)                          exact, B < 2^63, n1 n2 <= 512^2
     t = jit + c0 + r (c_128 n1 n2 + c_obj C)                 exact, B < 2^127, n1 n2 <= 512^2
-    t = jit + c0 + r k (c_mod n1 n2  or  c_nlogn N lg N + c_pt N) + r c_digit k^2 C
+    t = jit + c0 + r k (c_mod n1 n2  or  c_nlogn N lg N + c_pt N) + r [CRT]
         + r c_obj C [Python ints out]                        otherwise
+
+(``[CRT]``: Garner's recombination, :func:`polyconv.engines.ntt_compiled_plan.crt_seconds`)
 
 with the JIT charge of :mod:`polyconv.engines.ntt_compiled_plan` (nothing once the kernels are
 ready in this process).  Only int64 operands and rows whose transforms have at most
@@ -39,7 +41,7 @@ from .ntt_batch import (
 )
 from .ntt_compiled import is_ntt_prime, max_length, prime_count
 from .ntt_compiled_plan import DEFAULTS as NTT_DEFAULTS
-from .ntt_compiled_plan import JIT_DEFAULTS, product_bound
+from .ntt_compiled_plan import JIT_DEFAULTS, crt_seconds, product_bound
 
 NAME = "ntt-batch"
 
@@ -99,9 +101,9 @@ def option(job: Job) -> Option | str:
             per_prime, how = c["per_mac_mod"] * n1 * n2, "schoolbook"
         else:
             per_prime, how = t["per_nlogn"] * n * math.log2(n) + t["per_point"] * n, "NTT"
-        per_row = k * per_prime + (t["per_digit"] * k * k * job.out_len if k > 1 else 0.0)
+        per_row = k * per_prime + crt_seconds(t, k, job.out_len, facts.modulus)
         if objects_out:
-            per_row += t["per_object_out"] * job.out_len
+            per_row += (t["per_object_out"] + t["per_object_digit"] * k * k) * job.out_len
         what = f"{how} products modulo {'one prime' if k == 1 else f'{k} primes, Garner CRT'}"
     # one row of transforms runs as ntt-compiled's one product would (it delegates), with
     # that engine's overhead: the one-product engine keeps such jobs (measured 0-20% faster)

@@ -15,6 +15,7 @@ import math
 
 import numpy as np
 
+from ..engines import ntt_stream
 from ..engines.registry import REGISTRY
 from ..numerics.checks import random_evaluation_check
 from ..numerics.limits import INT64_LIMIT
@@ -55,7 +56,10 @@ def convolve(a, b, *, mode: str = "full", method: str = "auto", modulus: int | N
             out = tiny_arrays(a, b, modulus)
             if out is not None:
                 return out
-        out = plain_float_pair(a, b, mode, method, modulus, length, axis)
+        if a.dtype == _OBJECT and b.dtype == _OBJECT:
+            out = plain_object_pair(a, b, mode, method, modulus, length, axis)
+        else:
+            out = plain_float_pair(a, b, mode, method, modulus, length, axis)
         if out is not None:
             return out
         out = tiny_product(a, b, mode, method, modulus, length, axis)
@@ -146,6 +150,67 @@ def plain_int_pair(a: np.ndarray, b: np.ndarray, mode, method, modulus, length,
                 _plain_int_plans.clear()
             _plain_int_plans[key] = the_plan
     return shaping.shape_result(run_exact(the_plan, a, b), the_plan, 0, None)
+
+
+_OBJECT = np.dtype(object)
+
+
+def plain_object_pair(a: np.ndarray, b: np.ndarray, mode, method, modulus, length,
+                      axis) -> np.ndarray | None:
+    """The exact product of two non-empty 1-D object arrays of Python ints with the default
+    arguments (no modulus, or a modulus above ``2^64`` of which they are already residues),
+    planned and run as :func:`convolve_prepared` would (the same facts,
+    plan, values and output dtype), without the classification and normalisation of array-likes
+    (type checks, min/max: ~25 us for two 64-term operands).  The entries are checked and
+    measured from their ``marshal`` streams in one compiled call
+    (:func:`polyconv.engines.ntt_stream.streams`); a plan for the compiled NTT then reads those
+    streams (:func:`polyconv.engines.ntt_stream.product`).  None for anything else, or when the
+    kernels are not loaded here (the caller prepares)."""
+    m = modulus
+    if (a.ndim != 1 or b.ndim != 1 or mode != "full" or method != "auto" or length is not None
+            or type(axis) is not int or axis not in (-1, 0)
+            or (m is not None and (type(m) is not int or m <= _WIDE_MODULUS))):
+        return None
+    n1, n2 = a.shape[0], b.shape[0]
+    if n1 == 0 or n2 == 0 or not ntt_stream.fits(n1, n2):
+        return None
+    found = ntt_stream.streams(a, b)
+    if found is None:
+        return None
+    da, db, bits_a, bits_b, negative = found
+    if m is None and (bits_a == 64 or bits_b == 64):  # (-2^63 becomes an int64, 2^63 not)
+        return None
+    if m is not None and (negative or max(bits_a, bits_b) >= m.bit_length()):
+        return None  # (not already residues in [0, m): the pipeline reduces them)
+    x = a if bits_a >= 64 else a.astype(np.int64)  # as facts.normalise_integers does
+    y = b if bits_b >= 64 else b.astype(np.int64)
+    max_x, max_y = (1 << bits_a) - 1, (1 << bits_b) - 1
+    key = (n1, n2, bits_a, bits_b, m, _costs.generation)
+    the_plan = _plain_object_plans.get(key)
+    if the_plan is None:
+        facts = integer_facts(x, y, m, max_x, max_y)
+        the_plan = choose("bigint", n1, n2, (), (), (), "full", "auto", None, facts)
+        bits = facts.bound.bit_length() + 1 if m is None else (m - 1).bit_length()
+        granted = check_budget(the_plan, "bigint", bits, None)
+        if granted and facts == bound_facts(n1, n2, max_x, max_y, m):
+            if len(_plain_object_plans) >= 512:
+                _plain_object_plans.clear()
+            _plain_object_plans[key] = the_plan
+    if the_plan.engine == "ntt-compiled" and the_plan.certificate == "construction" and not (
+            the_plan.output_int64):
+        out = (ntt_stream.product(da, db, n1, n2, the_plan.setting("ntt_bound"), n1 + n2 - 1)
+               if m is None else ntt_stream.product_mod(da, db, n1, n2, m, n1 + n2 - 1))
+    else:
+        out = run_exact(the_plan, x, y)
+    return shaping.shape_result(out, the_plan, 0, None)
+
+
+#: :func:`plain_object_pair` takes moduli above this (smaller ones give int64 residues)
+_WIDE_MODULUS = 2**64
+
+
+#: plans of :func:`plain_object_pair`, keyed and kept as those of :func:`plain_int_pair`
+_plain_object_plans: dict = {}
 
 
 def convolve_integer_rows(x: np.ndarray, y: np.ndarray, *, mode: str = "full",

@@ -14,6 +14,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..engines import jit_state
 from ..engines.exact_fft import centered_residues
 from ..engines.kronecker import reduce_operand
 from ..numerics import bounds
@@ -75,10 +76,11 @@ def normalise_integers(x: np.ndarray, modulus: int | None) -> tuple[np.ndarray, 
     if kind == "b" or (kind in "iu" and x.dtype.itemsize < 8) or kind == "i":
         x = x.astype(np.int64, copy=False)
     elif kind == "O":
-        x = _objects_as_ints(x)
+        x, lo, hi = _objects_as_ints(x)
     if x.size == 0:
         return x, 0
-    lo, hi = int(x.min()), int(x.max())
+    if kind != "O":  # (object arrays: their extremes are known)
+        lo, hi = int(x.min()), int(x.max())
     if modulus is None or (lo >= 0 and hi < modulus):  # nothing to reduce
         return x, max(-lo, hi)
     x = reduce_operand(x, modulus) if x.ndim == 1 else np.stack(
@@ -88,18 +90,19 @@ def normalise_integers(x: np.ndarray, modulus: int | None) -> tuple[np.ndarray, 
     return x, modulus - 1
 
 
-def _objects_as_ints(x: np.ndarray) -> np.ndarray:
-    """Object arrays of Python ints or gmpy2.mpz: int64 when every entry fits, else Python ints."""
-    flat = x.ravel()
-    hi = max(flat) if flat.size else 0
-    lo = min(flat) if flat.size else 0
+def _objects_as_ints(x: np.ndarray) -> tuple[np.ndarray, int, int]:
+    """Object arrays of Python ints or gmpy2.mpz: int64 when every entry fits, else Python ints;
+    and the smallest and largest entry (Python ints; 0 for an empty array)."""
+    values = x.ravel().tolist()
+    hi = int(max(values)) if values else 0
+    lo = int(min(values)) if values else 0
     if -INT64_LIMIT <= lo and hi < INT64_LIMIT:
-        return x.astype(np.int64)
-    if set(map(type, flat.tolist())) == {int}:  # already Python ints (one C-level pass)
-        return x
+        return x.astype(np.int64), lo, hi
+    if set(map(type, values)) == {int}:  # already Python ints (one C-level pass)
+        return x, lo, hi
     out = np.empty(x.shape, dtype=object)
-    out.ravel()[:] = [int(v) for v in flat]
-    return out
+    out.ravel()[:] = [int(v) for v in values]
+    return out, lo, hi
 
 
 def integer_facts(x: np.ndarray, y: np.ndarray, modulus: int | None,
@@ -172,5 +175,26 @@ def _round_norm(norm: float) -> float:
 
 def _largest_row_norm(x: np.ndarray) -> float:
     if x.ndim == 1:
-        return bounds.norm2_upper(x)
-    return max(bounds.norm2_upper(row) for row in x.reshape(-1, x.shape[-1]))
+        return _norm2_upper(x)
+    return max(_norm2_upper(row) for row in x.reshape(-1, x.shape[-1]))
+
+
+_kernels = None  # the short-product kernel module, once loaded in this process
+
+
+def _norm2_upper(x: np.ndarray) -> float:
+    """:func:`polyconv.numerics.bounds.norm2_upper` of a 1-D array, the same float: for int64
+    entries below ``2^26`` whose squares sum below ``2^53`` the float64 sum of the squares is
+    exact whatever its order (every partial sum is an integer under ``2^53``), so the exact sum
+    from one compiled pass (``square_sum``: 0.2 ms at ``n = 2^18`` against 0.6 ms) gives it."""
+    global _kernels
+    if x.dtype == np.int64 and (_kernels is not None or jit_state.state() == "compiled"):
+        _kernels = _kernels or jit_state.kernels("_kernels_small")
+        total = _kernels.square_sum(x)
+        if total > 0:
+            n = x.shape[0]
+            gamma = (n + 2) * 2.0**-53 / (1 - (n + 2) * 2.0**-53)  # as norm2_upper
+            return math.nextafter(math.sqrt(float(total) * (1 + 3 * gamma)), math.inf)
+        if total == 0:
+            return 0.0
+    return bounds.norm2_upper(x)

@@ -4,9 +4,12 @@ Formula of :func:`polyconv.engines.ntt_compiled_plan.option`; constants fitted t
 the engine itself:
 
 * ``overhead``, ``per_nlogn``, ``per_point``: one-prime products, ``c0 + c N lg N + c_pt N``;
-* ``per_digit``: Garner to int64 over ``k`` primes, per ``k^2`` and output coefficient;
-* ``per_object_out``: Garner to Python ints beyond the int64 route, per coefficient;
-* ``per_object_in``: residues of Python-int operands, per coefficient;
+* ``per_crt``, ``per_residue``, ``per_digit``: Garner to int64 over ``k`` primes, fitted to
+  ``c_crt + c_res k C + c_digit k^2 C`` for ``C`` output coefficients;
+* ``per_object_out``, ``per_object_digit``: Garner to Python ints beyond the int64 route, per
+  coefficient and per ``k^2`` and coefficient;
+* ``per_object_in``, ``per_input_step``: Python-int operands, per value (marshal stream and its
+  check) and per value, prime and 30-bit word (their residues);
 * ``ntt_batch`` (:mod:`polyconv.engines.ntt_batch_plan`): ``overhead`` and ``per_row`` of one
   batched call, ``per_mac_wrap`` (exact int64 schoolbook rows) and ``per_mac_mod`` (schoolbook
   rows modulo a prime), fitted to ``c0 + r (c_row + c_mac n^2)`` over rows and lengths, and
@@ -23,7 +26,7 @@ from collections.abc import Callable
 
 import numpy as np
 
-from ..engines import jit_state
+from ..engines import jit_state, ntt_stream
 from ..engines import ntt_batch as nb
 from ..engines import ntt_compiled as nc
 from .calibrate_wide import measure_wide
@@ -53,23 +56,29 @@ def measure_compiled(quick: bool, best_time: Callable, fit: Callable,
     c0, c_nlogn, c_pt = fit(rows, times)
     out = {"overhead": c0, "per_nlogn": c_nlogn, "per_point": c_pt}
 
-    count = 2**14
-    digit_rows, digit_times, extra = [], [], []
-    for k in (2, 3, 5, 8):
+    digit_rows, digit_times, extra_rows, extra = [], [], [], []
+    for k in (1, 2, 3, 5, 8, 17):
         primes = tuple(q for q, _, _ in nc.PRIMES[:k])
-        res = np.stack([rng.integers(0, q, count) for q in primes])
-        t64 = best_time(lambda r=res, q=primes: nc.recombine(r, q, True), budget)
-        digit_times.append(t64)
-        digit_rows.append([1.0, k * k * count])
-        t_obj = best_time(lambda r=res, q=primes: nc.recombine(r, q, False), budget)
-        extra.append(max(t_obj - t64, 0.0) / count)
-    _, out["per_digit"] = fit(digit_rows, digit_times)
-    out["per_object_out"] = float(np.median(extra))
+        for count in (127, 2047, 2**14):
+            res = np.stack([rng.integers(0, q, count) for q in primes])
+            t64 = best_time(lambda r=res, q=primes: nc.recombine(r, q, True), budget)
+            if k < 17:  # (17 primes: past any int64 product)
+                digit_times.append(t64)
+                digit_rows.append([1.0, k * count, k * k * count])
+            if count == 2047 and k > 1:
+                t_obj = best_time(lambda r=res, q=primes: nc.recombine(r, q, False), budget)
+                extra.append(max(t_obj - t64, 1e-9))
+                extra_rows.append([float(count), float(k * k * count)])
+    out["per_crt"], out["per_residue"], out["per_digit"] = fit(digit_rows, digit_times)
+    out["per_object_out"], out["per_object_digit"] = fit(extra_rows, extra)
 
-    wide = np.array([int(v) << 80 for v in rng.integers(-2**40, 2**40, count)], dtype=object)
-    primes = nc.primes_for(2**300, 2 * count)
+    count = 1024  # operands beyond int64: the stream check per value, Horner steps per word
+    wide = np.array([int(v) << 440 for v in rng.integers(-2**40, 2**40, count)], dtype=object)
+    primes = nc.primes_for(2**1000, 2 * count)
     t = best_time(lambda: nc._residue_rows(wide, primes), budget)
-    out["per_object_in"] = t / count
+    out["per_input_step"] = t / (count * len(primes) * 16)  # 480-bit values: 16 30-bit words
+    t = best_time(lambda: ntt_stream.streams(wide, wide), budget)
+    out["per_object_in"] = t / (2 * count)
     batch = _measure_batch(rng, budget, best_time, fit, out["per_object_out"])
     return {"ntt_compiled": out, "ntt_batch": batch, "jit": timing,
             **measure_wide(quick, best_time, fit)}

@@ -86,3 +86,27 @@ def test_halving_splits_equal_flint(monkeypatch, base):
     fq, fr = _flint_divmod(a, b)
     assert _strip_zeros(q) == fq
     assert _strip_zeros(r) == (fr or [0])
+
+
+@pytest.mark.parametrize("na,nb,lead", [(150, 60, 1), (150, 60, -1), (40, 2, 1), (40, 3, -1),
+                                        (200, 100, 1)])
+def test_remainder_of_growing_quotient_summed_term_by_term(na, nb, lead):
+    """Quotients many times wider than the divisor: the remainder summed term by term (GMP
+    products at their true sizes) equals flint's, with zero and negative coefficients in the
+    divisor, and q b + r = a with Python ints (the definition)."""
+    rng = np.random.default_rng(na + nb)
+    a = _random(rng, na, 40)
+    b = _random(rng, nb - 1, 40) + [lead]
+    if nb > 3:
+        b[0] = 0  # (a zero constant term: the divisor has a zero root)
+        b[1] = -b[1]
+    q, r = poly_divmod(np.array(a, dtype=object), np.array(b, dtype=object))
+    eq, er = _flint_divmod(a, b)
+    assert [int(v) for v in q] == eq and _strip_zeros(r) == _strip_zeros(er or [0])
+    assert max(abs(int(v)) for v in q).bit_length() >= division._NARROW_FACTOR * 40
+    prod = [0] * (len(q) + nb - 1)
+    for i, u in enumerate(q):
+        for j, v in enumerate(b):
+            prod[i + j] += int(u) * v
+    rr = [int(v) for v in r] + [0] * (len(prod) - len(r))
+    assert [p + s for p, s in zip(prod, rr, strict=True)] == a

@@ -69,3 +69,28 @@ def test_plain_int_pair_declines_other_requests():
     assert plain_int_pair(a.astype(np.int32), a, "full", "auto", None, None, -1) is None
     assert plain_int_pair(a.reshape(10, 10), a, "full", "auto", None, None, -1) is None
     assert plain_int_pair(a[:0], a, "full", "auto", None, None, -1) is None
+
+
+def test_compiled_norms_are_the_float_bound():
+    """The facts' norms of int64 operands (an exact compiled sum of squares below 2^53) equal
+    numerics.bounds.norm2_upper and bound the exact norm from Python ints (math.isqrt of the
+    integer sum of squares) from above, within a relative 2^-40."""
+    import math
+
+    from polyconv.engines import jit_state as jit
+    from polyconv.numerics.bounds import norm2_upper
+    from polyconv.pipeline.facts import _norm2_upper
+
+    try:
+        jit.kernels("_kernels_small")
+    except jit.JitUnavailableError as exc:
+        pytest.skip(str(exc))
+    rng = np.random.default_rng(8)
+    for n, bits in [(1, 1), (7, 26), (1000, 16), (2**14, 20), (2**18, 16), (3, 27), (50, 63)]:
+        x = rng.integers(-2**(bits - 1), 2**(bits - 1), n)
+        x[0] = -2**(bits - 1)
+        for y in (x, x[::2], np.zeros(n, dtype=np.int64)):
+            got = _norm2_upper(y)
+            assert got == norm2_upper(y)
+            exact = sum(v * v for v in y.tolist())
+            assert got >= math.sqrt(exact) and got <= (math.isqrt(exact) + 1) * (1 + 2**-40)

@@ -70,3 +70,32 @@ def test_tiny_arrays_decline(small_kernels):
     assert tiny_arrays(a[:0], a, None) is None
     long = np.arange(4097, dtype=np.int64)
     assert tiny_arrays(long, long[:1], None) is None
+
+
+def _schoolbook(a, b):
+    """c_k = sum_i a_i b_{k-i} in Python ints (the definition; common practice, no source)."""
+    out = [0] * (len(a) + len(b) - 1)
+    for i, u in enumerate(a):
+        for j, v in enumerate(b):
+            out[i + j] += u * v
+    return out
+
+
+def test_tiniest_wide_products_one_coefficient_at_a_time(small_kernels):
+    """Lengths 1..8 with sums past int64 (written one coefficient at a time in the kernel):
+    signs, zeros, +-(2^63 - 1) and -2^63, against the Python-int schoolbook sum and flint."""
+    rng = np.random.default_rng(12)
+    edges = np.array([0, 1, -1, 2**63 - 1, -(2**63 - 1), -(2**63), 2**62, -(2**31), 2**32],
+                     dtype=np.int64)
+    for n1 in range(1, 9):
+        for n2 in range(1, 9):
+            for trial in range(6):
+                if trial < 3:
+                    a, b = rng.choice(edges, n1), rng.choice(edges, n2)
+                else:
+                    a = rng.integers(-2**63, 2**63 - 1, n1, endpoint=True)
+                    b = rng.integers(-2**63, 2**63 - 1, n2, endpoint=True)
+                out = tiny_arrays(a, b, None)
+                ref = _schoolbook(a.tolist(), b.tolist())
+                assert [int(v) for v in out] == ref == _flint(a, b, None)
+                assert out.dtype == convolve_prepared(a, b)[0].dtype
