@@ -48,9 +48,8 @@ from . import _pyints, jit_state
 from ._blas import blas_threads
 from ._threads import helper_thread
 from .ntt_compiled import _stage_table
+from .ntt_wide_primes import MAX_PRIMES, prime_table, primes_for  # noqa: F401 (re-exported)
 
-#: Most primes (float64 exactness of the CRT product: ``255 x 2^45 + 2^23 < 2^53``).
-MAX_PRIMES = 255
 #: Most 15-bit digits of an operand (the residue product: ``255 x 2^45 < 2^53``).
 MAX_DIGITS = 255
 #: BLAS threads of the two matrix products (:mod:`polyconv.engines._blas`: one is the fastest
@@ -65,62 +64,6 @@ STACKED_LENGTH = 2**13
 PRIME_GROUP = 8
 #: Output coefficients per CRT matrix product (bounds its memory).
 CRT_CHUNK = 2**12
-
-
-def _is_prime(n: int) -> bool:
-    """Deterministic Miller-Rabin for ``n < 3.2 10^9`` (bases 2, 7, 61: G. Jaeschke, Math.
-    Comp. 61 (1993) 915-926)."""
-    if n < 2 or n % 2 == 0:
-        return n == 2
-    d, s = n - 1, 0
-    while d % 2 == 0:
-        d, s = d // 2, s + 1
-    for a in (2, 7, 61):
-        if a % n == 0:
-            continue
-        x = pow(a, d, n)
-        if x in (1, n - 1):
-            continue
-        for _ in range(s - 1):
-            x = x * x % n
-            if x == n - 1:
-                break
-        else:
-            return False
-    return True
-
-
-@lru_cache(maxsize=1)
-def prime_table() -> tuple[tuple[int, int, int], ...]:
-    """``(p, g, e)``: the :data:`MAX_PRIMES` + 1 primes ``p = c 2^e + 1`` with ``2^29 < p <
-    2^30`` and the largest ``e`` (longest transforms first; ``e`` is the exact power of two in
-    ``p - 1``), with ``g`` the least quadratic non-residue (so ``g^((p - 1) / 2^s)`` has order
-    ``2^s``: Euler's criterion)."""
-    found: list[tuple[int, int, int]] = []
-    e = 29
-    while len(found) <= MAX_PRIMES and e > 1:
-        for c in range((2**30 - 2) >> e, (2**29 >> e), -1):
-            p = (c << e) + 1
-            if c % 2 == 1 and 2**29 < p < 2**30 and _is_prime(p):
-                g = next(g for g in range(2, p) if pow(g, (p - 1) // 2, p) == p - 1)
-                found.append((p, g, e))
-        e -= 1
-    return tuple(found[:MAX_PRIMES + 1])
-
-
-def primes_for(bound: int, length: int) -> tuple[int, ...] | None:
-    """Fewest primes of :func:`prime_table` admitting ``length``-point transforms with product
-    ``P > 4 bound`` (the CRT's margin: ``|c| < P/4``), or None when they are not enough or more
-    than :data:`MAX_PRIMES` would be needed."""
-    target = 4 * bound
-    chosen, product = [], 1
-    for p, _, e in prime_table():
-        if length <= 1 << e:
-            chosen.append(p)
-            product *= p
-            if product > target:
-                return tuple(chosen) if len(chosen) <= MAX_PRIMES else None
-    return None
 
 
 def transform_length(n1: int, n2: int) -> int:
@@ -320,7 +263,35 @@ def convolve_wide(a, b, bound: int, keep: int | None = None, threads: int = 1
         2: the helper thread (:mod:`polyconv.engines._threads`) takes half the primes' products
         and half the CRT columns.
     """
-    n1, n2 = len(a), len(b)
+    return _convolve(lambda: _operand_digits(a, b), len(a), len(b), b is a, bound, keep, threads)
+
+
+def convolve_streams(da: np.ndarray, db: np.ndarray, n1: int, n2: int, bits: int, bound: int,
+                     keep: int | None = None) -> np.ndarray | None:
+    """:func:`convolve_wide` of two operands given as their ``marshal.dumps(list, 2)`` streams
+    (``db is da`` for a square), already checked by
+    :func:`polyconv.engines.ntt_stream.streams`: lengths ``n1``, ``n2``, every ``|v| < 2^bits``
+    (so ``ceil(bits / 15)`` digits hold each value).  Saves dumping the operands again."""
+    return _convolve(lambda: _stream_digits(da, db, n1, n2, bits), n1, n2, db is da, bound,
+                     keep, 1)
+
+
+def _stream_digits(da, db, n1: int, n2: int, bits: int) -> np.ndarray | None:
+    digits = max(1, -(-bits // 15))
+    if digits > MAX_DIGITS:
+        return None
+    rows = n1 if db is da else n1 + n2
+    budget.check_allocation(8.0 * digits * rows, "digit matrix of the wide NTT engine")
+    out = scratch("digits", (rows, digits), np.float64)
+    kernel = jit_state.kernels("_kernels_wide").stream_digits
+    kernel(da, out[:n1])
+    if db is not da:
+        kernel(db, out[n1:])
+    return out
+
+
+def _convolve(operand_digits, n1: int, n2: int, square: bool, bound: int, keep: int | None,
+              threads: int) -> np.ndarray | None:
     count = n1 + n2 - 1 if keep is None else min(keep, n1 + n2 - 1)
     n = transform_length(n1, n2)
     primes = primes_for(bound, n)
@@ -332,11 +303,11 @@ def convolve_wide(a, b, bound: int, keep: int | None = None, threads: int = 1
     group = k if n <= STACKED_LENGTH else PRIME_GROUP
     check_memory(primes, count, n, 3 * group * (n1 + n2))
     with blas_threads(BLAS_THREADS):
-        digits = _operand_digits(a, b)
+        digits = operand_digits()
         if digits is None:
             return None
         yf = scratch("yf", (k + 1, count), np.float64)
-        _products(digits, n1, b is a, primes, n, yf, threads)
+        _products(digits, n1, square, primes, n, yf, threads)
         return recombine(yf, primes, threads)
 
 

@@ -15,7 +15,7 @@ import math
 
 import numpy as np
 
-from ..engines import ntt_stream
+from ..engines import ntt_stream, ntt_wide
 from ..engines.registry import REGISTRY
 from ..numerics.checks import random_evaluation_check
 from ..numerics.limits import INT64_LIMIT
@@ -200,6 +200,10 @@ def plain_object_pair(a: np.ndarray, b: np.ndarray, mode, method, modulus, lengt
             the_plan.output_int64):
         out = (ntt_stream.product(da, db, n1, n2, the_plan.setting("ntt_bound"), n1 + n2 - 1)
                if m is None else ntt_stream.product_mod(da, db, n1, n2, m, n1 + n2 - 1))
+    elif (the_plan.engine == "ntt-wide" and m is None and the_plan.certificate == "construction"
+          and (out := ntt_wide.convolve_streams(da, db, n1, n2, max(bits_a, bits_b),
+                                                the_plan.setting("ntt_bound"))) is not None):
+        out = _reduce_row(out, the_plan, np.int64 if the_plan.output_int64 else object)
     else:
         out = run_exact(the_plan, x, y)
     return shaping.shape_result(out, the_plan, 0, None)

@@ -4,6 +4,7 @@ its float64 exactness bounds; the planner's choice and certificate."""
 
 from __future__ import annotations
 
+import marshal
 import math
 import random
 
@@ -210,3 +211,24 @@ def test_refusals():
     wide = np.array([1 << 4000] * 3, dtype=object)
     with pytest.raises(ValueError, match="ntt-wide"):
         polyconv.convolve(wide, wide, method="ntt-wide")  # digits beyond MAX_DIGITS
+
+
+@pytest.mark.parametrize("n1, n2, bits1, bits2, square", [
+    (64, 64, 1000, 1000, False), (64, 64, 1000, 1000, True), (33, 70, 1000, 20, False),
+    (100, 9, 1500, 900, False), (64, 64, 999, 1001, False)])
+def test_products_from_marshal_streams_equal_flint(kernels, n1, n2, bits1, bits2, square):
+    # plain 1-D object arrays reach ntt-wide through their marshal streams (plain_object_pair
+    # -> nw.convolve_streams): values against python-flint's fmpz_poly product.
+    rng = random.Random(n1 * 7919 + bits1 + n2)
+    a = draw(rng, n1, bits1)
+    a[rng.randrange(n1)] = -(2**bits1 - 1)  # the widest value at the digit boundary
+    b = a if square else draw(rng, n2, bits2)
+    x = np.array(a, dtype=object)
+    y = x if square else np.array(b, dtype=object)
+    got = polyconv.convolve(x, y)
+    assert got.dtype == object
+    assert got.tolist() == flint_product(a, b)
+    da = np.frombuffer(marshal.dumps(a, 2), dtype=np.uint8)
+    db = da if square else np.frombuffer(marshal.dumps(b, 2), dtype=np.uint8)
+    direct = nw.convolve_streams(da, db, len(a), len(b), max(bits1, bits2), bound_of(a, b))
+    assert direct is not None and direct.tolist() == flint_product(a, b)
