@@ -5,7 +5,7 @@ Formulas are the option functions of the exact engines; each engine's constants 
 squares on relative error, non-negative) to timings of the engine itself:
 
 * ``direct_int64`` / ``direct_object``: ``c0 + c_mac n1 n2`` (objects: times
-  ``1 + words / 4``);
+  :func:`polyconv.engines.exact_direct.object_mac_factor`);
 * ``rounded``: ``c0 + s F(N) + c_pt N`` with ``F`` the float FFT model of
   :func:`polyconv.engines._common.fft_rate`;
 * ``limbs``: ``c0 + s F(N) T / 3 + c_pt N (ka + kb)`` for ``T`` transforms;
@@ -22,7 +22,7 @@ import gmpy2
 import numpy as np
 
 from ..engines._common import fft_rate
-from ..engines.exact_direct import convolve_exact_direct
+from ..engines.exact_direct import convolve_exact_direct, object_mac_factor
 from ..engines.exact_fft import convolve_limbs, convolve_limbs_mod, convolve_rounded
 from ..engines.kronecker import convolve_kronecker, kronecker_seconds
 from ..engines.ntt import convolve_ntt_mod_prime
@@ -49,7 +49,7 @@ def measure_exact(table: dict, quick: bool, best_time: Callable, fit: Callable,
                      dtype=object)
         times.append(best_time(lambda a=a: convolve_exact_direct(a, a), budget))
         words = -(-(2 * bits + 8) // 64)
-        rows.append([1.0, n * n * (1 + words / 4)])
+        rows.append([1.0, n * n * object_mac_factor(words)])
     c0, cmac = fit(rows, times)
     exact["direct_object"] = {"overhead": c0, "per_mac": cmac}
 
