@@ -75,8 +75,16 @@ def main() -> int:
     parser.add_argument("--sizes", default="6-22",
                         help="log2 n of the equal-length rows, e.g. 12-16 (default 6-22)")
     parser.add_argument("--no-long-short", action="store_true", help="skip the 2^22 x m rows")
+    parser.add_argument("--kernels", action="store_true",
+                        help="load this tree's compiled kernels first (the compiled passes)")
     args = parser.parse_args()
     before = load_before(args.base.resolve())
+    if args.kernels:
+        from polyconv.engines import fft, jit_state
+
+        jit_state.kernels()
+        ok = fft.negacyclic_kernels() is not None
+        print(f"kernels {jit_state.state()}, compiled passes {ok}")
     clock = time.process_time if args.clock == "cpu" else time.perf_counter
     rng = np.random.default_rng(1)
     print("| sizes | lean ms | before ms | after ms | before / lean | after / lean | "

@@ -17,6 +17,7 @@ import numpy as np
 from ..numerics import negacyclic as ng
 from ..numerics import transforms as tf
 from ..numerics.tables import value_at_size
+from . import jit_state
 from ._common import FLOAT_KINDS, Engine, Job, Option, fft_rate, spectral_product
 from ._threads import helper_thread
 
@@ -24,6 +25,35 @@ from ._threads import helper_thread
 #: overhead); beyond it the stacked array no longer fits in cache and separate calls are faster
 #: (measured: 1.25x slower stacked at 2^17 points on one thread).
 STACK_LIMIT = 2**15
+
+
+_passes: list = []  # [module or None] once decided in this process
+
+
+def negacyclic_kernels():
+    """The compiled passes of the negacyclic product (:mod:`._kernels_negacyclic`) when the
+    kernels are already loaded in this process (never loads them) and they gave the numpy
+    passes' bits on a self-check (unsplit and split, folded and not, zeros, signs, 2^-600 ..
+    2^600 scales; checked once), else None: the numpy passes run, with the same bits."""
+    if _passes:
+        return _passes[0]
+    if jit_state.state() != "compiled":
+        return None
+    kernels = jit_state.kernels("_kernels_negacyclic")
+    rng = np.random.default_rng(12)
+    good = True
+    for m, rows, n1, n2, keep in ((64, 1, 40, 25, 64), (64, 1, 100, 20, 119), (64, 1, 9, 9, 17),
+                                  (64, 4, 40, 25, 64), (64, 4, 100, 20, 119), (48, 1, 60, 30, 89),
+                                  (64, 8, 33, 7, 39)):
+        t = ng.Tables(m, rows)
+        x = rng.standard_normal(n1) * 2.0 ** rng.integers(-600, 600, n1)
+        y = rng.standard_normal(n2) * (rng.random(n2) < 0.8)
+        with np.errstate(all="ignore"):
+            want = ng._real_product(x, y, t, keep)
+            got = ng._real_product(x, y, t, keep, kernels)
+        good &= want.tobytes() == got.tobytes()
+    _passes.append(kernels if good else None)
+    return _passes[0]
 
 
 def _padded_spectrum(x: np.ndarray, n_fft: int, dtype) -> np.ndarray:
@@ -76,7 +106,7 @@ def convolve_fft(a: np.ndarray, b: np.ndarray, n_fft: int, keep: int, threads: i
         dtype = np.dtype(np.float64)
     if (fused and negacyclic and a.ndim == 1 and b.ndim == 1 and threads == 1
             and dtype == np.float64 and ng.ready(n_fft)):
-        return ng.real_product(a, b, n_fft, keep)  # (see the Notes)
+        return ng.real_product(a, b, n_fft, keep, negacyclic_kernels())  # (see the Notes)
     if fused and takes_fused(a.ndim == 1, b.ndim == 1, threads):
         if a.ndim == 1 and b.ndim == 1:  # the common case, without the batch bookkeeping
             out = np.zeros(n_fft, dtype)

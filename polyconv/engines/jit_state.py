@@ -37,7 +37,8 @@ from pathlib import Path
 #: Kernel modules, in load order (``polyconv.engines.<name>``).
 KERNEL_MODULES = ("_kernels_arith", "_kernels_simd", "_kernels_crt", "_kernels_ntt",
                   "_kernels_batch", "_kernels_stream", "_kernels_small",
-                  "_kernels_recur", "_kernels_wide", "_kernels_objects")
+                  "_kernels_recur", "_kernels_wide", "_kernels_objects",
+                  "_kernels_negacyclic")
 
 _ENGINES_DIR = Path(__file__).resolve().parent
 _MARKER = "polyconv-kernels.json"

@@ -229,28 +229,53 @@ def _forward(u: np.ndarray, t: Tables) -> None:
     tf.c2c_inplace(u2, 1, True)
 
 
-def real_product(a: np.ndarray, b: np.ndarray, n_fft: int, keep: int) -> np.ndarray:
+def real_product(a: np.ndarray, b: np.ndarray, n_fft: int, keep: int,
+                 passes=None) -> np.ndarray:
     """The first ``keep`` entries of the length-``n_fft`` negacyclic product of 1-D float64
     ``a`` and ``b`` (their linear product when ``n1 + n2 - 1 <= n_fft``); ``n_fft`` even.
 
     One thread; float64 only.  See the module notes for the method and its error.  NaN, inf
     and overflow spread as in any FFT product, without warnings (the caller's policy decides).
+    ``passes``: a module with compiled twist / untwist passes computing the same expressions
+    per element (:mod:`polyconv.engines._kernels_negacyclic`; the caller checked they give the
+    same bits), or None for the numpy passes.
     """
     with np.errstate(all="ignore"):
-        return _real_product(a, b, tables(n_fft // 2), keep)
+        return _real_product(a, b, tables(n_fft // 2), keep, passes)
 
 
-def _real_product(a: np.ndarray, b: np.ndarray, t: Tables, keep: int) -> np.ndarray:
+def _twist(a: np.ndarray, t: Tables, u: np.ndarray, twist: np.ndarray, passes) -> np.ndarray:
+    if passes is None or not a.flags.c_contiguous:
+        return _twisted(a, t, u, twist)
+    if t.rows == 1:
+        passes.twist_unsplit(a, twist, u)
+    else:
+        passes.twist_split(a, twist, u.reshape(t.rows, t.cols))
+    return u
+
+
+def _real_product(a: np.ndarray, b: np.ndarray, t: Tables, keep: int,
+                  passes=None) -> np.ndarray:
     work = _work_arrays(t.m)
-    u = _twisted(a, t, work[0], t.twist)
+    u = _twist(a, t, work[0], t.twist, passes)
     _forward(u, t)
-    v = _twisted(b, t, work[1], t.twist_b)  # (scaled by 1/m)
+    v = _twist(b, t, work[1], t.twist_b, passes)  # (scaled by 1/m)
     _forward(v, t)
     u *= v
     m = t.m
     out = np.empty(keep, dtype=np.float64)
     low = min(keep, m)
-    if t.rows == 1:
+    if passes is not None:
+        if t.rows == 1:
+            tf.c2c_inplace(u, 0, True)  # (the numpy branch below says why)
+            passes.untwist_unsplit(u, t.twist, out)
+        else:
+            u2 = u.reshape(t.rows, t.cols)
+            tf.c2c_inplace(u2, 1, False)
+            u2 *= t.inverse
+            tf.c2c_inplace(u2, 0, False)
+            passes.untwist_split(u2, t.untwist, out)
+    elif t.rows == 1:
         # the inverse as a forward transform: F_k = w_(-k), and w_j zeta^-j = -i F_(m-j)
         # zeta^(m-j) for j >= 1 (zeta^-m = -i), so one product with the forward twist gives
         # G = F zeta^k, and c_lo[j] = Im G[m-j], c_hi[j] = -Re G[m-j] (c_lo[0] + i c_hi[0] = G[0])
