@@ -24,6 +24,14 @@ from . import jit_state as _jit
 
 CACHE = _jit.cache_enabled()
 
+_RO_F64 = types.Array(types.float64, 1, "C", readonly=True)
+_C128 = types.complex128[::1]
+#: Signatures with the real operand writable or read-only (operands of the distributions and
+#: the CLI arrive as read-only views).
+_TWIST_UNSPLIT = [types.void(types.float64[::1], _C128, _C128), types.void(_RO_F64, _C128, _C128)]
+_TWIST_SPLIT = [types.void(types.float64[::1], _C128, types.complex128[:, ::1]),
+                types.void(_RO_F64, _C128, types.complex128[:, ::1])]
+
 
 @intrinsic
 def _fma(typingctx, x, y, z):
@@ -41,7 +49,7 @@ def _mul(a, b, c, d):
     return _fma(a, c, -(b * d)), _fma(a, d, b * c)
 
 
-@njit("void(float64[::1], complex128[::1], complex128[::1])", cache=CACHE)
+@njit(_TWIST_UNSPLIT, cache=CACHE)
 def twist_unsplit(a, twist, u):
     """``u = fold(a) * twist`` for the unsplit product (``m = len(u)``): for ``len(a) <= m``
     ``u[j] = twist[j] (a_j + 0i)`` and zeros after (``np.multiply(twist[:n], a)``); else
@@ -62,7 +70,7 @@ def twist_unsplit(a, twist, u):
         u[j] = complex(re, im)
 
 
-@njit("void(float64[::1], complex128[::1], complex128[:, ::1])", cache=CACHE)
+@njit(_TWIST_SPLIT, cache=CACHE)
 def twist_split(a, twist, u2):
     """The split product's twist (row part ``twist[q]`` per row of the ``(R, C)`` view ``u2``):
     for ``len(a) <= m`` ``u2[q, k] = (a_(qC+k) + 0i) twist[q]`` and zeros after
