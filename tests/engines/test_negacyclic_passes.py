@@ -47,7 +47,7 @@ def _operands(rng, kind: str, n: int) -> np.ndarray:
     return rng.standard_normal(n)
 
 
-@pytest.mark.parametrize("n_fft", [2**13, 2**16, 2**17, 3 * 2**13, 5 * 2**12])
+@pytest.mark.parametrize("n_fft", [2**12, 2**13, 2**16, 2**17, 3 * 2**13, 5 * 2**12])
 @pytest.mark.parametrize("kind", ["impulse", "ones", "signed_zeros", "scales", "random"])
 def test_compiled_passes_give_numpy_bits(passes, n_fft, kind):
     rng = np.random.default_rng(n_fft + len(kind))
