@@ -149,7 +149,7 @@ def parse(doc: SpecDoc) -> AggregateSpec:
             raise root.error("lines", "must be a list of tables ([[lines]])")
         grid = root.table("grid", {})
         grid.check_keys(("step",))
-        common = grid.number("step", None, positive=True)
+        common = grid.lattice_step("step", None)
         lines = []
         for i in range(len(raw)):
             sec = line_mod.Section(raw[i], ("lines", i), doc)

@@ -98,8 +98,8 @@ def parse_line(sec: Section, name: str, default_step: float | None = None, *,
         else sec.table("grid")
     grid.check_keys(("step", "points", "max_points", "rule", "method"))
     if default_step is None or grid.has("step"):
-        step = grid.number("step", None, positive=True) if step_optional \
-            else grid.number("step", positive=True)
+        step = grid.lattice_step("step", None) if step_optional \
+            else grid.lattice_step("step")
     else:
         step = default_step
     points = grid.integer("points", None, minimum=2, maximum=1 << 24)

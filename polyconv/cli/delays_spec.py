@@ -69,7 +69,7 @@ def parse(doc: SpecDoc) -> DelaySpec:
     unit = root.string("unit", "units")
     grid = root.table("grid")
     grid.check_keys(("step", "max_points", "rule"))
-    step = grid.number("step", positive=True)
+    step = grid.lattice_step("step")
     max_points = grid.integer("max_points", 1 << 20, minimum=2, maximum=1 << 24)
     rule = grid.string("rule", "nearest", RULES)
     rep = root.table("report", {})

@@ -204,6 +204,11 @@ class Section:
         return check_number(v, lambda msg: self.error(key, msg), positive=positive,
                             minimum=minimum, maximum=maximum, below=below)
 
+    def lattice_step(self, key: str, default: Any = _MISSING) -> float:
+        """A lattice step: positive and at least the smallest normal double, as the library
+        requires (:func:`polyconv.dist.from_law.check_step_value`)."""
+        return self.number(key, default, positive=True, minimum=sys.float_info.min)
+
     def integer(self, key: str, default: Any = _MISSING, *, minimum: int | None = None,
                 maximum: int | None = None) -> int:
         """An integer value (``2.0`` is refused: write ``2``)."""

@@ -30,6 +30,7 @@ from __future__ import annotations
 
 import math
 import numbers
+import sys
 import warnings
 from typing import NamedTuple
 
@@ -186,10 +187,19 @@ def check_rule(rule) -> str:
 
 
 def check_step_value(step) -> float:
-    """Validate a lattice step: a positive finite real."""
+    """Validate a lattice step: a positive finite real, at least the smallest normal double.
+
+    A subnormal step is refused: the rounding model behind every bound (``|fl(x) - x| <= u|x|``,
+    Higham, *Accuracy and Stability of Numerical Algorithms*, 2nd ed., sec. 2.2) holds only
+    without underflow, and halving such a step reaches 0.
+    """
     h = float(step) if isinstance(step, numbers.Real) and not isinstance(step, bool) else None
     if h is None or not (math.isfinite(h) and h > 0):
         raise ValueError(f"step must be a positive finite number; got {step!r}")
+    if h < sys.float_info.min:
+        raise ValueError(f"step must be at least {sys.float_info.min!r} (the smallest normal "
+                         f"double; below it rounding is not relative and the bounds fail); "
+                         f"got {step!r}")
     return h
 
 

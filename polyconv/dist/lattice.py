@@ -31,6 +31,7 @@ import numpy as np
 from . import accuracy, propagate, risk
 from .answers import LatticeAnswers
 from .errors import TruncationWarning
+from .from_law import check_step_value
 from .ledger import ErrorLedger, validate
 from .queries import LatticeQueries
 
@@ -97,9 +98,7 @@ class Lattice(LatticeQueries, LatticeAnswers):
             raise ValueError(f"pmf must be a non-empty 1-D array; got shape {arr.shape}")
         if not np.all(np.isfinite(arr)):
             raise ValueError("pmf must be finite (no nan or inf)")
-        step = _real(step, "step")
-        if step <= 0:
-            raise ValueError(f"step must be positive; got {step!r}")
+        step = check_step_value(_real(step, "step"))
         origin = _real(origin, "origin")
         n = arr.size
         if errors is not None:

@@ -21,6 +21,7 @@ no source).
 from __future__ import annotations
 
 import math
+import sys
 import warnings
 from typing import NamedTuple
 
@@ -134,6 +135,8 @@ def _suggest(access: LawAccess, h: float, rule: str, rtol: float, layer, reach: 
     gaps: list[float] = []
     for _ in range(40):
         trial = span / 2.0 if span > 0 and trial > span else trial / 2.0
+        if not trial >= sys.float_info.min:  # halving ran into underflow: no step to suggest
+            break
         origin = lattice_origin(access, trial)
         size = int(min(max((far - origin) / trial + 2, 2), SUGGEST_MAX_POINTS))
         pmf, _, _, truncated = rule_pmf(access, origin, trial, size, rule)

@@ -328,6 +328,20 @@ def test_delays_stage_with_overflowing_counts_is_refused(tmp_path):
     assert not (tmp_path / "r").exists()
 
 
+@pytest.mark.parametrize("command", ["aggregate", "delays"])
+def test_subnormal_grid_step_is_refused_by_name(tmp_path, command):
+    # robustness campaign (seed 132): step = 5e-324 in a delays spec ended in "float division by
+    # zero" when the coarse-step check halved it to 0.  The smallest normal double is 2^-1022
+    # (IEEE 754-2008, binary64); below it rounding is no longer relative
+    text = (SEVERITY_EXPON.format(mean=3.0, step="5e-324") if command == "aggregate" else
+            "[grid]\nstep = 5e-324\n[network]\nin_sequence = [\"a\"]\n[stage.a]\n"
+            "law = \"gamma\"\nparams = { a = 4.0, scale = 2.5 }\n")
+    spec = write(tmp_path, "tiny.toml", text)
+    code, _, err = run_json([command, str(spec), "-o", str(tmp_path / "r"), "--quiet"])
+    assert code == 2 and "key 'grid.step'" in err and "at least" in err and "5e-324" in err
+    assert "division" not in err and not (tmp_path / "r").exists()
+
+
 # --------------------------------------------------------------------------- figures
 
 

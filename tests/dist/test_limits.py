@@ -157,6 +157,23 @@ def test_step_far_too_small_for_the_law_is_refused_up_front():
             Lattice.from_law(stats.gamma(2), step=1e-300, rule=rule)
 
 
+@pytest.mark.parametrize("step", [5e-324, 1e-310, 2.0 ** -1023])
+def test_subnormal_step_is_refused_by_name(step):
+    # robustness campaign: a subnormal step reached "float division by zero" in the coarse-step
+    # check; 2^-1022 is the smallest normal binary64 number (IEEE 754-2008), and the relative
+    # rounding model behind the bounds holds only above it (Higham, Accuracy and Stability of
+    # Numerical Algorithms, 2nd ed., sec. 2.2)
+    from scipy import stats
+
+    from polyconv.dist import Lattice
+
+    with pytest.raises(ValueError, match="step must be at least"):
+        Lattice([0.5, 0.5], step=step)
+    with pytest.raises(ValueError, match="step must be at least"):
+        Lattice.from_law(stats.gamma(2), step=step, size=64)
+    assert Lattice([0.5, 0.5], step=2.0 ** -1022).mean() == 2.0 ** -1023  # the first normal
+
+
 def test_negative_binomial_log_pgf_near_one_has_no_domain_error():
     # robustness campaign: nbinom with variance 1e308 (p = 3e-308, q rounds to 1) raised
     # "math domain error" at f0 = 1 in the largest-claim table.  log P(f0) = n (log p -
