@@ -10,6 +10,8 @@ do the passes around them:
 * :func:`rows_products`: row ``i`` of ``yf`` is ``a b mod p_i`` (times a constant), one NTT
   product per prime with the transforms of :mod:`polyconv.engines._kernels_ntt` and the stacked
   tables, and the CRT's rounded quotient row;
+* :func:`lanes_direct`: the same rows for short products by the schoolbook sum, the primes
+  side by side in SIMD lanes;
 * :func:`rows_power`: row ``i`` of ``out`` is ``a[i]^e mod p_i``: one forward transform, the
   ``e``-th power of every spectral value (left-to-right binary powering, Knuth, TAOCP vol. 2,
   section 4.6.3: the convolution theorem turns the power of the polynomial into pointwise
@@ -109,6 +111,114 @@ def rows_products(r, n1, square, primes, tw, twq, itw, itwq, p_neg_inv, f, fq, i
             v = float(y[c])
             out[c] = v
             t[c] += v * w
+
+
+#: Lanes of the direct products' accumulators are padded to a multiple of this (one AVX-512
+#: register of uint64; the padding lanes hold zeros).
+LANE_PAD = 8
+#: Products summed in a uint64 lane between folds: after a fold a lane is below ``2^62 + 2^32``,
+#: and ``12 (2^30 - 1)^2 + 2^62 + 2^32 < 2^64`` (every prime is below ``2^30``).
+FOLD_EVERY = 12
+_LOW32 = np.uint64(0xFFFFFFFF)
+_SHIFT32 = np.uint64(32)
+
+
+@njit(cache=CACHE, inline="always")
+def _reduced(v, p, inv):
+    """``v mod p`` in ``[0, p)`` for an int64 ``|v| < 2^63`` and ``p < 2^30`` (a float64
+    quotient estimate: ``|v / p| < 2^34``, so three roundings leave it within ``2^-18`` and its
+    floor off by at most one; then one correction each way)."""
+    r = v - np.int64(np.floor(float(v) * inv)) * p
+    r = r + p if r < 0 else r
+    return r - p if r >= p else r
+
+
+@njit(cache=CACHE, inline="always")
+def _fold(v, c):
+    """``v = h 2^32 + l`` to ``h (2^32 mod p) + l`` (``c = 2^32 mod p < 2^30``): the same residue,
+    below ``2^62 + 2^32``."""
+    return (v >> _SHIFT32) * c + (v & _LOW32)
+
+
+@njit(types.void(_RO_F64, types.int64, types.boolean, types.uint64[::1], types.uint64[::1],
+                 types.float64[::1], types.float64[:, ::1]), cache=CACHE, nogil=True)
+def lanes_direct(r, n1, square, primes, scale, inv, yf):
+    """``yf[i, j] = c_j s_i mod p_i`` for every prime (as float64) and ``yf[k, j] = round(sum_i
+    yf[i, j] / p_i)`` (the CRT's quotient), with ``c = a * b`` by the schoolbook sum, the
+    primes side by side in SIMD lanes: the short products' route, where three transforms of a
+    few hundred points cost more than the ``n1 n2`` multiply-adds.
+
+    ``r`` holds one row per value and one column per prime (integer residue sums, ``|r| <
+    2^53``): ``a = r[:n1]``, ``b = r[n1:]`` (``square``: ``b`` is ``a``).  The shorter operand is
+    multiplied by ``s_i`` first (so the outputs need only a reduction).  Each output lane sums
+    products of residues below ``2^30`` in uint64, folded every :data:`FOLD_EVERY` terms
+    (:func:`_fold`, exact modulo ``p_i``), four terms per pass over the lanes.
+    """
+    rows, k = r.shape
+    n2 = n1 if square else rows - n1
+    count = yf.shape[1]
+    if yf.shape[0] != k + 1 or primes.shape[0] != k or scale.shape[0] != k or inv.shape[0] != k \
+            or n1 < 1 or n2 < 1 or count > n1 + n2 - 1:
+        raise ValueError("lanes_direct: inconsistent shapes")
+    kp = -(-k // LANE_PAD) * LANE_PAD
+    ra = np.zeros((n1, kp), dtype=np.uint32)
+    rb = np.zeros((n2, kp), dtype=np.uint32)
+    fold = np.zeros(kp, dtype=np.uint64)
+    p = np.empty(k, dtype=np.int64)
+    s = np.empty(k, dtype=np.int64)
+    for lane in range(k):
+        p[lane] = np.int64(primes[lane])
+        s[lane] = np.int64(scale[lane])
+        fold[lane] = np.uint64((1 << 32) % p[lane])
+    scale_b = n2 <= n1
+    for i in range(n1):
+        src, dst = r[i], ra[i]
+        for lane in range(k):
+            v = _reduced(np.int64(src[lane]), p[lane], inv[lane])
+            if not scale_b:
+                v = _reduced(v * s[lane], p[lane], inv[lane])
+            dst[lane] = np.uint32(v)
+    for i in range(n2):
+        src, dst = r[i if square else n1 + i], rb[i]
+        for lane in range(k):
+            v = _reduced(np.int64(src[lane]), p[lane], inv[lane])
+            if scale_b:
+                v = _reduced(v * s[lane], p[lane], inv[lane])
+            dst[lane] = np.uint32(v)
+    acc = np.empty(kp, dtype=np.uint64)
+    val = np.empty(k, dtype=np.float64)
+    for j in range(count):
+        i = max(0, j - n2 + 1)
+        hi = min(j, n1 - 1)
+        acc[:] = 0
+        passes = 0
+        while i + 3 <= hi:
+            x0, x1, x2, x3 = ra[i], ra[i + 1], ra[i + 2], ra[i + 3]
+            y0, y1, y2, y3 = rb[j - i], rb[j - i - 1], rb[j - i - 2], rb[j - i - 3]
+            for lane in range(kp):
+                acc[lane] += (np.uint64(x0[lane]) * np.uint64(y0[lane])
+                              + np.uint64(x1[lane]) * np.uint64(y1[lane])
+                              + np.uint64(x2[lane]) * np.uint64(y2[lane])
+                              + np.uint64(x3[lane]) * np.uint64(y3[lane]))
+            i += 4
+            passes += 1
+            if passes * 4 == FOLD_EVERY:
+                for lane in range(kp):
+                    acc[lane] = _fold(acc[lane], fold[lane])
+                passes = 0
+        while i <= hi:  # at most 3 more terms: 8 + 3 <= FOLD_EVERY since the last fold
+            x, y = ra[i], rb[j - i]
+            for lane in range(kp):
+                acc[lane] += np.uint64(x[lane]) * np.uint64(y[lane])
+            i += 1
+        for lane in range(k):
+            val[lane] = float(_reduced(np.int64(_fold(acc[lane], fold[lane])), p[lane],
+                                       inv[lane]))
+        t = 0.0
+        for lane in range(k):
+            yf[lane, j] = val[lane]
+            t += val[lane] * inv[lane]
+        yf[k, j] = np.floor(t + 0.5)
 
 
 @njit("void(int64[:, ::1], int64, uint64[::1], uint32[:, ::1], uint32[:, ::1], uint32[:, ::1], "

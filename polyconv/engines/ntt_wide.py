@@ -64,6 +64,9 @@ STACKED_LENGTH = 2**13
 PRIME_GROUP = 8
 #: Output coefficients per CRT matrix product (bounds its memory).
 CRT_CHUNK = 2**12
+#: Largest ``n1 n2`` whose residue products are schoolbook sums in SIMD lanes rather than
+#: transforms (measured: bench/RESULTS.md, section "wide lanes").
+DIRECT_MAX_TERMS = 2**13
 
 
 def transform_length(n1: int, n2: int) -> int:
@@ -236,6 +239,40 @@ def _products(digits: np.ndarray, n1: int, square: bool, primes: tuple[int, ...]
     rounded_quotients(yf, inv)
 
 
+def lanes(k: int) -> int:
+    """SIMD lanes of the direct route for ``k`` primes (padded to whole 8-lane registers)."""
+    return -(-k // 8) * 8
+
+
+def uses_direct(n1: int, n2: int) -> bool:
+    """Whether the residue products are schoolbook sums (:func:`_direct_products`) rather than
+    transforms: from the measured costs (bench/RESULTS.md, section "wide lanes")."""
+    return n1 * n2 <= DIRECT_MAX_TERMS
+
+
+@lru_cache(maxsize=256)
+def crt_scales(primes: tuple[int, ...]) -> tuple[np.ndarray, np.ndarray]:
+    """The primes as uint64 and ``u_i = (P / p_i)^-1 mod p_i`` (the CRT's factors, without the
+    transform's)."""
+    total = math.prod(primes)
+    return (np.array(primes, dtype=np.uint64),
+            np.array([pow(total // p, -1, p) for p in primes], dtype=np.uint64))
+
+
+def _direct_products(digits: np.ndarray, n1: int, square: bool, primes: tuple[int, ...],
+                     count: int) -> np.ndarray:
+    """The rows ``yf`` of :func:`_products` by schoolbook sums with the primes in SIMD lanes
+    (:func:`polyconv.engines._kernels_wide.lanes_direct`): residues ``D T^T`` (one row per
+    value), then the kernel."""
+    k = len(primes)
+    t = residue_matrix(primes, digits.shape[1])
+    r = np.matmul(digits, t.T, out=scratch("lanes", (digits.shape[0], k), np.float64))
+    yf = scratch("yf", (k + 1, count), np.float64)
+    jit_state.kernels("_kernels_wide").lanes_direct(
+        r, n1, square, *crt_scales(primes), crt_matrix(primes)[1], yf)
+    return yf
+
+
 def rounded_quotients(yf: np.ndarray, inv: np.ndarray) -> None:
     """``yf[k] = round(sum_i yf[i] / p_i)`` in column chunks (the module's ``t``)."""
     k = inv.shape[0]
@@ -306,8 +343,11 @@ def _convolve(operand_digits, n1: int, n2: int, square: bool, bound: int, keep: 
         digits = operand_digits()
         if digits is None:
             return None
-        yf = scratch("yf", (k + 1, count), np.float64)
-        _products(digits, n1, square, primes, n, yf, threads)
+        if uses_direct(n1, n2):
+            yf = _direct_products(digits, n1, square, primes, count)
+        else:
+            yf = scratch("yf", (k + 1, count), np.float64)
+            _products(digits, n1, square, primes, n, yf, threads)
         return recombine(yf, primes, threads)
 
 

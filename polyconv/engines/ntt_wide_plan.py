@@ -15,7 +15,10 @@ primes, ``d`` digits of the wider operand, ``L`` digits of ``P``, ``C`` output c
                          + c_digit (d (n1 + n2) + L C))
 
 ``c_mac`` is the float64 BLAS multiply-add of the two matrix products (measured with the BLAS
-threads in force), ``c_digit`` the digit passes (marshal streams in and out, carries).
+threads in force), ``c_digit`` the digit passes (marshal streams in and out, carries).  Short
+products (:func:`~polyconv.engines.ntt_wide.uses_direct`) take schoolbook sums with the primes
+in SIMD lanes instead of transforms: there ``k (c_prime + c_nlogn N lg N)`` is replaced by
+``c_lane K n1 n2``, ``K`` the lane count (``k`` rounded up to a multiple of 8).
 """
 
 from __future__ import annotations
@@ -28,15 +31,23 @@ from ..numerics.limits import magnitude_fits_int64
 from . import jit_state
 from ._common import INTEGER_KINDS, Engine, Job, Option
 from .ntt_compiled_plan import JIT_DEFAULTS, product_bound
-from .ntt_wide import MAX_DIGITS, convolve_wide, primes_for, transform_length
+from .ntt_wide import (
+    MAX_DIGITS,
+    convolve_wide,
+    lanes,
+    primes_for,
+    transform_length,
+    uses_direct,
+)
 
 NAME = "ntt-wide"
 
 #: Defaults when the cost table has no ``ntt_wide`` section (measured on the development machine
-#: by a least-squares fit over 100-3000 bits, n = 4..4096, one BLAS thread; the overhead as
+#: by a least-squares fit over 100-3000 bits, n = 4..4096, one BLAS thread; per_lane_term from
+#: the direct route's kernel at 64 x 64 and 64 x 16, 1000 bits: 1.6-2.4e-10; the overhead as
 #: seen through convolve: see bench/RESULTS.md, section crtwide).
 DEFAULTS = {"overhead": 6e-5, "per_prime": 7.1e-7, "per_nlogn": 1.65e-9, "per_mac": 4.1e-11,
-            "per_digit": 1.2e-9}
+            "per_digit": 1.2e-9, "per_lane_term": 2.0e-10}
 
 
 def plan_shape(facts) -> tuple[int, int, int, int] | str:
@@ -58,8 +69,11 @@ def plan_shape(facts) -> tuple[int, int, int, int] | str:
 
 def seconds(c: dict, n1: int, n2: int, k: int, d: int, digits_out: int, count: int) -> float:
     """Predicted seconds of one product (without the JIT charge and ``c0``)."""
-    n = transform_length(n1, n2)
-    ntt = k * (c["per_prime"] + c["per_nlogn"] * n * max(1, math.log2(n)))
+    if uses_direct(n1, n2):
+        ntt = c["per_lane_term"] * lanes(k) * n1 * n2
+    else:
+        n = transform_length(n1, n2)
+        ntt = k * (c["per_prime"] + c["per_nlogn"] * n * max(1, math.log2(n)))
     macs = k * d * (n1 + n2) + (k + 1) * digits_out * count
     return ntt + c["per_mac"] * macs + c["per_digit"] * (d * (n1 + n2) + digits_out * count)
 

@@ -24,9 +24,11 @@ def features(n1: int, n2: int, k: int, d: int, digits_out: int) -> list[float]:
     """The fit's columns for one product (the terms of ``ntt_wide_plan.seconds``)."""
     n = nw.transform_length(n1, n2)
     count = n1 + n2 - 1
-    return [1.0, float(k), k * n * max(1, math.log2(n)),
+    direct = nw.uses_direct(n1, n2)
+    return [1.0, 0.0 if direct else float(k), 0.0 if direct else k * n * max(1, math.log2(n)),
             float(k * d * (n1 + n2) + (k + 1) * digits_out * count),
-            float(d * (n1 + n2) + digits_out * count)]
+            float(d * (n1 + n2) + digits_out * count),
+            float(nw.lanes(k) * n1 * n2) if direct else 0.0]
 
 
 def measure_wide(quick: bool, best_time: Callable, fit: Callable) -> dict:
@@ -35,7 +37,7 @@ def measure_wide(quick: bool, best_time: Callable, fit: Callable) -> dict:
     budget = 0.02 if quick else 0.05
     rows, times = [], []
     for bits in ((200, 1000) if quick else (100, 300, 1000, 2000)):
-        for n in ((16, 256, 1024) if quick else (4, 16, 64, 256, 1024, 4096)):
+        for n in ((16, 64, 256, 1024) if quick else (4, 16, 32, 64, 90, 256, 1024, 4096)):
             a, b = ([gen.getrandbits(bits) - (1 << (bits - 1)) for _ in range(n)]
                     for _ in range(2))
             bound = n * max(map(abs, a)) * max(map(abs, b))
@@ -48,6 +50,7 @@ def measure_wide(quick: bool, best_time: Callable, fit: Callable) -> dict:
             times.append(best_time(lambda x=x, y=y, bound=bound: nw.convolve_wide(x, y, bound),
                                    budget))
             rows.append(features(n, n, len(primes), d, digits_out))
-    c0, c_prime, c_nlogn, c_mac, c_digit = fit(rows, times)
+    c0, c_prime, c_nlogn, c_mac, c_digit, c_lane = fit(rows, times)
     return {"ntt_wide": {"overhead": c0 + PIPELINE_SECONDS, "per_prime": c_prime,
-                         "per_nlogn": c_nlogn, "per_mac": c_mac, "per_digit": c_digit}}
+                         "per_nlogn": c_nlogn, "per_mac": c_mac, "per_digit": c_digit,
+                         "per_lane_term": c_lane}}

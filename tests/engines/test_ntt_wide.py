@@ -144,6 +144,53 @@ def test_small_cases_against_schoolbook(kernels):
     assert nw.convolve_wide(a, a, bound_of(a, a), keep=7).tolist() == schoolbook(a, a)[:7]
 
 
+@pytest.mark.parametrize("route", ["direct", "transforms"])
+def test_short_products_both_routes_against_flint(kernels, monkeypatch, route):
+    # the schoolbook route with the primes in SIMD lanes (uses_direct) and the transforms give
+    # python-flint's fmpz_poly product on both sides of the crossover, squares and keep included
+    monkeypatch.setattr(nw, "DIRECT_MAX_TERMS", 2**40 if route == "direct" else 0)
+    rng = random.Random(21)
+    for n1, n2, bits in ((1, 1, 300), (2, 1, 700), (3, 200, 1000), (16, 64, 1000), (64, 16, 999),
+                         (13, 11, 3000), (64, 64, 1000), (100, 97, 200), (5, 5, 3500)):
+        a, b = draw(rng, n1, bits), draw(rng, n2, bits)
+        assert nw.convolve_wide(a, b, bound_of(a, b)).tolist() == flint_product(a, b)
+        assert nw.convolve_wide(a, a, bound_of(a, a)).tolist() == flint_product(a, a)
+        assert nw.convolve_wide(a, b, bound_of(a, b), keep=n1).tolist() == \
+            flint_product(a, b)[:n1]
+
+
+def test_direct_lanes_extreme_residues_against_python_ints(kernels):
+    # every residue at p_i - 1 or at the largest sums the residue product allows (|r| near
+    # 2^53): the most a uint64 lane takes between folds (FOLD_EVERY terms, a fold leaves it
+    # below 2^62 + 2^32); each output checked against sum_i r_ai r_b(j-i) u_i mod p_i in
+    # Python ints (u_i = (P/p_i)^-1 mod p_i, the CRT factor; common practice, no source)
+    from polyconv.engines import _kernels_wide as kw
+
+    assert kw.FOLD_EVERY * (2**30 - 1) ** 2 + 2**62 + 2**32 < 2**64
+    primes = nw.primes_for(2**2500, 2**7)
+    k = len(primes)
+    total = math.prod(primes)
+    p_arr, scale = nw.crt_scales(primes)
+    inv = nw.crt_matrix(primes)[1]
+    rng = np.random.default_rng(3)
+    for n1, n2, kind in ((64, 64, "top"), (40, 25, "wide"), (1, 30, "wide"), (7, 7, "top")):
+        if kind == "top":
+            r = np.array([[p - 1 for p in primes]] * (n1 + n2), dtype=np.float64)
+        else:
+            r = rng.integers(-(2**53) + 1, 2**53, size=(n1 + n2, k)).astype(np.float64)
+        yf = np.empty((k + 1, n1 + n2 - 1))
+        kernels.lanes_direct(r, n1, False, p_arr, scale, inv, yf)
+        for i, p in enumerate(primes):
+            a = [int(v) % p for v in r[:n1, i]]
+            b = [int(v) % p for v in r[n1:, i]]
+            u = pow(total // p, -1, p)
+            want = [v * u % p for v in schoolbook(a, b)]
+            assert yf[i].tolist() == want
+        quotient = [round(sum(int(yf[i, j]) / p for i, p in enumerate(primes)))
+                    for j in range(n1 + n2 - 1)]
+        assert yf[k].tolist() == quotient
+
+
 def test_long_transforms_per_prime(kernels, monkeypatch):
     # the per-prime route of transforms longer than STACKED_LENGTH, and CRT column chunks
     monkeypatch.setattr(nw, "STACKED_LENGTH", 2**6)
