@@ -11,7 +11,10 @@ For coefficients of hundreds to a few thousand bits (Python ints), with ``k`` pr
    inside the transform kernel.
 2. ``k`` **NTT products** (:mod:`polyconv.engines._kernels_ntt`, J. M. Pollard, Math. Comp. 25
    (1971) 365-374), each scaled by ``u_i = (P/p_i)^-1 mod p_i`` in the kernel's last pass, so row
-   ``i`` holds ``y_i = c u_i mod p_i``.
+   ``i`` holds ``y_i = c u_i mod p_i``.  Short products (``n1 n2 <=``
+   :data:`DIRECT_MAX_TERMS`) take the schoolbook sums instead, all primes at once in SIMD lanes
+   (:func:`polyconv.engines._kernels_wide.lanes_direct`): at 64 x 64 the ``n1 n2 k`` lane
+   products cost less than ``3 k`` transforms of 128 points.
 3. **CRT as a matrix product**: ``X = sum_i y_i (P/p_i) = c + t P`` with ``t = sum_i y_i / p_i -
    c / P``.  ``|c| <= B < P/4``, so ``t`` is the nearest integer to ``sum_i y_i / p_i``; its
    float64 value is off by less than ``k 2^-52 + k^2 2^-53 < 2^-36`` (``k <= 255``), so rounding
