@@ -23,6 +23,8 @@ do the passes around them:
 
 from __future__ import annotations
 
+import sys
+
 import numpy as np
 from numba import njit, types
 
@@ -45,6 +47,8 @@ _RO_F64 = types.Array(types.float64, 2, "C", readonly=True)
 #: Values per block of :func:`crt_stream` (its loops run over a block's columns).
 BLOCK = 128
 _MASK = np.int64(0x7FFF)
+#: The stream's digits are little-endian 16-bit words: stored as such on little-endian machines.
+_LITTLE = sys.byteorder == "little"
 
 
 @njit(types.void(_RO_BYTES, types.float64[:, ::1]), cache=CACHE)
@@ -320,9 +324,15 @@ def crt_stream(sums, out, pos, total):
             else:
                 out[pos] = 0x6C
                 pos = _put_int32(out, pos + 1, -t if neg[c] else t)
-                for d in range(t):
-                    v = dg[d, c]
-                    out[pos] = np.uint8(v & np.uint16(0xFF))
-                    out[pos + 1] = np.uint8(v >> np.uint16(8))
-                    pos += 2
+                if _LITTLE:  # one 16-bit store per digit (unaligned stores are fine)
+                    digits = out[pos:pos + 2 * t].view(np.uint16)
+                    for d in range(t):
+                        digits[d] = dg[d, c]
+                    pos += 2 * t
+                else:
+                    for d in range(t):
+                        v = dg[d, c]
+                        out[pos] = np.uint8(v & np.uint16(0xFF))
+                        out[pos + 1] = np.uint8(v >> np.uint16(8))
+                        pos += 2
     return pos
