@@ -323,7 +323,9 @@ def _claims(tmp_path: Path, old: str, new: str) -> Path:
 
 
 SPEC_EDITS = [
-    ("step = 100.0 ", "step = 5e-324 ", "cover.deductible"),
+    # a subnormal step is refused by its own key (below 2^-1022, the smallest normal double:
+    # IEEE 754-2008 binary64), before the deductible it cannot resolve is looked at
+    ("step = 100.0 ", "step = 5e-324 ", "grid.step"),
     ("limit = 100000.0", "limit = 1e300", "grid.max_points"),
     ('law = "lognorm"               # scipy.stats.lognorm: median = scale, shape s\n'
      "params = { s = 1.25, scale = 5200.0 }", "values = [1e300]\nprobabilities = [1.0]",
