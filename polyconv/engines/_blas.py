@@ -13,7 +13,6 @@ The count is process-wide while set, so a concurrent BLAS call elsewhere runs wi
 
 from __future__ import annotations
 
-import contextlib
 import ctypes
 import threading
 from functools import lru_cache
@@ -49,21 +48,42 @@ def _setter() -> tuple | None:
     return None
 
 
-@contextlib.contextmanager
-def blas_threads(count: int = 1):
+class blas_threads:  # noqa: N801 - used as a context manager, like a function
     """Run the block with ``count`` OpenBLAS threads (restored afterwards; no-op without
-    OpenBLAS)."""
-    found = _setter()
-    if found is None:
-        yield
-        return
-    setter, getter = found
-    with _lock:
-        before = getter()
-        if before != count:
-            setter(count)
+    OpenBLAS).  A class rather than a generator context manager: entering and leaving cost
+    ~1 us instead of ~3 us, which short products notice."""
+
+    __slots__ = ("count", "_before", "_held")
+
+    def __init__(self, count: int = 1):
+        self.count = count
+        self._before = None
+        self._held = False
+
+    def __enter__(self) -> None:
+        found = _setter()
+        if found is None:
+            return
+        setter, getter = found
+        _lock.acquire()
+        self._held = True
         try:
-            yield
+            before = getter()
+            if before != self.count:
+                setter(self.count)
+                self._before = before
+        except BaseException:
+            self._held = False
+            _lock.release()
+            raise
+
+    def __exit__(self, *exc) -> None:
+        if not self._held:
+            return
+        try:
+            if self._before is not None:
+                _setter()[0](self._before)
+                self._before = None
         finally:
-            if before != count:
-                setter(before)
+            self._held = False
+            _lock.release()
