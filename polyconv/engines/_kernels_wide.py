@@ -75,9 +75,15 @@ def stream_digits(buf, out):
                 d += 1
         else:
             digits = -n if n < 0 else n
-            for d in range(min(digits, nd)):
-                row[d] = sign * float(np.int64(buf[pos + 2 * d])
-                                      | (np.int64(buf[pos + 2 * d + 1]) << 8))
+            used = min(digits, nd)
+            if _LITTLE:  # the digits as little-endian 16-bit words (any alignment)
+                words = buf[pos:pos + 2 * used].view(np.uint16)
+                for d in range(used):
+                    row[d] = sign * float(words[d])
+            else:
+                for d in range(used):
+                    row[d] = sign * float(np.int64(buf[pos + 2 * d])
+                                          | (np.int64(buf[pos + 2 * d + 1]) << 8))
             pos += 2 * digits
 
 
