@@ -224,11 +224,17 @@ def lanes_direct(r, n1, square, primes, scale, inv, yf):
         for lane in range(k):
             val[lane] = float(_reduced(np.int64(_fold(acc[lane], fold[lane])), p[lane],
                                        inv[lane]))
-        t = 0.0
         for lane in range(k):
             yf[lane, j] = val[lane]
-            t += val[lane] * inv[lane]
-        yf[k, j] = np.floor(t + 0.5)
+    t = yf[k]  # the quotients, summed a prime at a time (vectorised over the outputs)
+    t[:] = 0.0
+    for lane in range(k):
+        row = yf[lane]
+        w = inv[lane]
+        for j in range(count):
+            t[j] += row[j] * w
+    for j in range(count):
+        t[j] = np.floor(t[j] + 0.5)
 
 
 @njit("void(int64[:, ::1], int64, uint64[::1], uint32[:, ::1], uint32[:, ::1], uint32[:, ::1], "
