@@ -150,19 +150,55 @@ def _fold(v, c):
     return (v >> _SHIFT32) * c + (v & _LOW32)
 
 
+@njit(cache=CACHE, nogil=True)
+def _lane_product(x, y, fold, p, inv, k, out):
+    """``out[j, i] = (x * y)_j mod p_i`` for ``j < out.shape[0]`` and the first ``k`` lanes:
+    schoolbook sums of residues below ``2^30`` in uint64 lanes, folded every
+    :data:`FOLD_EVERY` terms (:func:`_fold`, exact modulo ``p_i``), four terms per pass."""
+    nx, kp = x.shape
+    ny = y.shape[0]
+    acc = np.empty(kp, dtype=np.uint64)
+    for j in range(out.shape[0]):
+        i = max(0, j - ny + 1)
+        hi = min(j, nx - 1)
+        acc[:] = 0
+        passes = 0
+        while i + 3 <= hi:
+            x0, x1, x2, x3 = x[i], x[i + 1], x[i + 2], x[i + 3]
+            y0, y1, y2, y3 = y[j - i], y[j - i - 1], y[j - i - 2], y[j - i - 3]
+            for lane in range(kp):
+                acc[lane] += (np.uint64(x0[lane]) * np.uint64(y0[lane])
+                              + np.uint64(x1[lane]) * np.uint64(y1[lane])
+                              + np.uint64(x2[lane]) * np.uint64(y2[lane])
+                              + np.uint64(x3[lane]) * np.uint64(y3[lane]))
+            i += 4
+            passes += 1
+            if passes * 4 == FOLD_EVERY:
+                for lane in range(kp):
+                    acc[lane] = _fold(acc[lane], fold[lane])
+                passes = 0
+        while i <= hi:  # at most 3 more terms: 8 + 3 <= FOLD_EVERY since the last fold
+            u, v = x[i], y[j - i]
+            for lane in range(kp):
+                acc[lane] += np.uint64(u[lane]) * np.uint64(v[lane])
+            i += 1
+        row = out[j]
+        for lane in range(k):
+            row[lane] = _reduced(np.int64(_fold(acc[lane], fold[lane])), p[lane], inv[lane])
+
+
 @njit(types.void(_RO_F64, types.int64, types.boolean, types.uint64[::1], types.uint64[::1],
                  types.float64[::1], types.float64[:, ::1]), cache=CACHE, nogil=True)
 def lanes_direct(r, n1, square, primes, scale, inv, yf):
     """``yf[i, j] = c_j s_i mod p_i`` for every prime (as float64) and ``yf[k, j] = round(sum_i
-    yf[i, j] / p_i)`` (the CRT's quotient), with ``c = a * b`` by the schoolbook sum, the
-    primes side by side in SIMD lanes: the short products' route, where three transforms of a
-    few hundred points cost more than the ``n1 n2`` multiply-adds.
+    yf[i, j] / p_i)`` (the CRT's quotient), with ``c = a * b`` by schoolbook sums, the
+    primes side by side in SIMD lanes (:func:`_lane_product`): the short products' route,
+    where three transforms of a few hundred points cost more than the ``n1 n2`` multiply-adds
+    (one Karatsuba step was measured no faster at 64 x 64: three times the output reductions).
 
     ``r`` holds one row per value and one column per prime (integer residue sums, ``|r| <
     2^53``): ``a = r[:n1]``, ``b = r[n1:]`` (``square``: ``b`` is ``a``).  The shorter operand is
-    multiplied by ``s_i`` first (so the outputs need only a reduction).  Each output lane sums
-    products of residues below ``2^30`` in uint64, folded every :data:`FOLD_EVERY` terms
-    (:func:`_fold`, exact modulo ``p_i``), four terms per pass over the lanes.
+    multiplied by ``s_i`` first (so the outputs need only a reduction).
     """
     rows, k = r.shape
     n2 = n1 if square else rows - n1
@@ -195,37 +231,12 @@ def lanes_direct(r, n1, square, primes, scale, inv, yf):
             if scale_b:
                 v = _reduced(v * s[lane], p[lane], inv[lane])
             dst[lane] = np.uint32(v)
-    acc = np.empty(kp, dtype=np.uint64)
-    val = np.empty(k, dtype=np.float64)
+    c = np.empty((count, kp), dtype=np.int64)
+    _lane_product(ra, rb, fold, p, inv, k, c)
     for j in range(count):
-        i = max(0, j - n2 + 1)
-        hi = min(j, n1 - 1)
-        acc[:] = 0
-        passes = 0
-        while i + 3 <= hi:
-            x0, x1, x2, x3 = ra[i], ra[i + 1], ra[i + 2], ra[i + 3]
-            y0, y1, y2, y3 = rb[j - i], rb[j - i - 1], rb[j - i - 2], rb[j - i - 3]
-            for lane in range(kp):
-                acc[lane] += (np.uint64(x0[lane]) * np.uint64(y0[lane])
-                              + np.uint64(x1[lane]) * np.uint64(y1[lane])
-                              + np.uint64(x2[lane]) * np.uint64(y2[lane])
-                              + np.uint64(x3[lane]) * np.uint64(y3[lane]))
-            i += 4
-            passes += 1
-            if passes * 4 == FOLD_EVERY:
-                for lane in range(kp):
-                    acc[lane] = _fold(acc[lane], fold[lane])
-                passes = 0
-        while i <= hi:  # at most 3 more terms: 8 + 3 <= FOLD_EVERY since the last fold
-            x, y = ra[i], rb[j - i]
-            for lane in range(kp):
-                acc[lane] += np.uint64(x[lane]) * np.uint64(y[lane])
-            i += 1
+        row = c[j]
         for lane in range(k):
-            val[lane] = float(_reduced(np.int64(_fold(acc[lane], fold[lane])), p[lane],
-                                       inv[lane]))
-        for lane in range(k):
-            yf[lane, j] = val[lane]
+            yf[lane, j] = float(row[lane])
     t = yf[k]  # the quotients, summed a prime at a time (vectorised over the outputs)
     t[:] = 0.0
     for lane in range(k):
