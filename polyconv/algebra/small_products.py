@@ -34,6 +34,7 @@ import numpy as np
 from ..engines import _pyints, ntt_wide, ntt_wide_power
 from ..numerics.limits import INT64_LIMIT, max_abs
 from ..pipeline import small
+from ..tuning.threads import THREADS
 
 #: Products whose packed operands hold at most this many bits each take :func:`product_values`
 #: (beyond, the planned engines' byte rows and two-point scheme on two threads).  Measured,
@@ -209,4 +210,4 @@ def power_values(x: np.ndarray, k: int, length: int | None = None) -> np.ndarray
     if bound < INT64_LIMIT or (bound.bit_length() < POWER_MIN_BITS
                                and k * (x.shape[0] - 1) + 1 < POWER_MIN_TERMS):
         return None
-    return ntt_wide_power.power_wide(x, k, bound)
+    return ntt_wide_power.power_wide(x, k, bound, THREADS)

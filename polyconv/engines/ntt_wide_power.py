@@ -20,7 +20,7 @@ from . import ntt_wide as nw
 from ._blas import blas_threads
 
 
-def power_wide(a, e: int, bound: int) -> np.ndarray | None:
+def power_wide(a, e: int, bound: int, threads: int = 1) -> np.ndarray | None:
     """``a^e`` (all ``e (n - 1) + 1`` coefficients) as a 1-D object array of Python ints, by
     pointwise powers of the spectra modulo each prime
     (:func:`polyconv.engines._kernels_wide.rows_power`); None as
@@ -33,6 +33,9 @@ def power_wide(a, e: int, bound: int) -> np.ndarray | None:
         A non-empty integer sequence; ``e >= 2``.
     bound : int
         A proven bound of every coefficient of ``a^e`` (``||a||_1^e``: the triangle inequality).
+    threads : int
+        2: the helper thread takes half the CRT columns (:func:`polyconv.engines.ntt_wide.
+        recombine`; measured at a^50, 16 terms of 64 bits: 1.31 -> 0.97 ms of a 2.1 ms power).
     """
     count = e * (len(a) - 1) + 1
     n = 1 << max(0, (count - 1).bit_length())
@@ -56,7 +59,7 @@ def power_wide(a, e: int, bound: int) -> np.ndarray | None:
         yf = nw.scratch("yf", (k + 1, count), np.float64)
         yf[:k] = y
         nw.rounded_quotients(yf, nw.crt_matrix(primes)[1])
-        return nw.recombine(yf, primes)
+        return nw.recombine(yf, primes, threads)
 
 
 @lru_cache(maxsize=64)
