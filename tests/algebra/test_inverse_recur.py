@@ -94,6 +94,20 @@ def test_compiled_inverse_extreme_words(recur_kernels, extreme):
             assert [int(v) for v in polyconv.inverse_series(arr, n)] == _schoolbook_inverse(a, n)
 
 
+@pytest.mark.parametrize("signs", ["all positive", "all negative", "alternating", "runs"])
+def test_compiled_inverse_sign_patterns(recur_kernels, signs):
+    # the kernel sums the terms of positive and of negative a_i in separate columns: every
+    # pattern of signs against Knuth's recurrence on Python ints (TAOCP vol. 2, 4.7)
+    rng = np.random.default_rng(17)
+    mags = [int(v) for v in rng.integers(1, 2**63 - 1, 40, dtype=np.int64)]
+    pick = {"all positive": lambda i: 1, "all negative": lambda i: -1,
+            "alternating": lambda i: -1 if i % 2 else 1, "runs": lambda i: -1 if i % 10 < 5 else 1}
+    for first in (1, -1):
+        a = [first] + [pick[signs](i) * m for i, m in enumerate(mags)]
+        got = polyconv.inverse_series(np.array(a, dtype=np.int64), 41)
+        assert [int(v) for v in got] == _schoolbook_inverse(a, 41)
+
+
 def test_compiled_inverse_short_and_long_operands(recur_kernels):
     rng = np.random.default_rng(7)
     a = _coefficients(rng, 10, 20, 1, False)
