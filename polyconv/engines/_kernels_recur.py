@@ -15,8 +15,9 @@ the width of ``a`` per term, so they are multi-word integers here:
   separate columns (:func:`_pair`, :func:`_single`: no sign per product; the carry pass
   subtracts; measured at 64 terms of 64 bits: 87 -> 64 us), two terms at a time (each column
   read and written once per two word products), a 64-bit ``|a_i|`` in two 32-bit passes so
-  that the compiler vectorises 32 x 32 -> 64-bit products (measured once, busy machine: about 15% faster than
-  64-bit multipliers at 256 64-bit terms; pairs 10-20% faster than single terms at 16 bits).
+  that the compiler vectorises 32 x 32 -> 64-bit products (measured once, busy machine: about
+  15% faster than 64-bit multipliers at 256 64-bit terms; pairs 10-20% faster than single
+  terms at 16 bits).
   Widths come from the proof: with ``|a_i| < 2^(32 h_i)`` and ``|b_j| < 2^(32 w_j - 1)``,
   ``|b_k| <= k max |a_i| |b_(k-i)| < 2^(32 (max(w_j + h_i) + 1) - 1)`` for ``k < 2^32``, so
   that many words hold ``b_k`` exactly; each row is then trimmed to its shortest two's
