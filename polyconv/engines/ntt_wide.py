@@ -273,8 +273,9 @@ def _direct_products(digits: np.ndarray, n1: int, square: bool, primes: tuple[in
     (:func:`polyconv.engines._kernels_wide.lanes_direct`): residues ``D T^T`` (one row per
     value), then the kernel."""
     k = len(primes)
+    rows = digits.shape[0]
     t = residue_matrix(primes, digits.shape[1])
-    r = np.matmul(digits, t.T, out=scratch("lanes", (digits.shape[0], k), np.float64))
+    r = np.matmul(digits, t.T, out=scratch("lanes", (rows, k), np.float64))
     yf = scratch("yf", (k + 1, count), np.float64)
     jit_state.kernels("_kernels_wide").lanes_direct(
         r, n1, square, *crt_scales(primes), crt_matrix(primes)[1], yf)
@@ -346,12 +347,13 @@ def _convolve(operand_digits, n1: int, n2: int, square: bool, bound: int, keep: 
         return None
     k = len(primes)
     group = k if n <= STACKED_LENGTH else PRIME_GROUP
-    check_memory(primes, count, n, 3 * group * (n1 + n2))
+    direct = uses_direct(n1, n2)
+    check_memory(primes, count, n, 3 * group * (n1 + n2), (n1 + n2) if direct else 0)
     with blas_threads(BLAS_THREADS):
         digits = operand_digits()
         if digits is None:
             return None
-        if uses_direct(n1, n2):
+        if direct:
             yf = _direct_products(digits, n1, square, primes, count)
         else:
             yf = scratch("yf", (k + 1, count), np.float64)
@@ -359,11 +361,17 @@ def _convolve(operand_digits, n1: int, n2: int, square: bool, bound: int, keep: 
         return recombine(yf, primes, threads)
 
 
-def check_memory(primes: tuple[int, ...], count: int, n: int, operand_rows: int) -> None:
+def check_memory(primes: tuple[int, ...], count: int, n: int, operand_rows: int,
+                 lane_values: int = 0) -> None:
+    """Refuse before allocating: the residue rows, the CRT's work arrays and either the
+    transforms' tables or, for the direct route of ``lane_values = n1 + n2`` operand values,
+    the lanes of :func:`_direct_products` (uint32 residues, int64 reduced sums)."""
     rows = crt_matrix(primes)[0].shape[0]
-    budget.check_allocation(8.0 * ((len(primes) + 1) * count + operand_rows
-                                   + rows * min(count, CRT_CHUNK)) + 16.0 * len(primes) * n,
-                            "residue rows and tables of the wide NTT engine")
+    k = len(primes)
+    route = ((4.0 * lane_values + 8.0 * count) * lanes(k) if lane_values
+             else 16.0 * k * n)
+    budget.check_allocation(8.0 * ((k + 1) * count + operand_rows + rows * min(count, CRT_CHUNK))
+                            + route, "residue rows and tables of the wide NTT engine")
 
 
 def recombine(yf: np.ndarray, primes: tuple[int, ...], threads: int = 1) -> np.ndarray:

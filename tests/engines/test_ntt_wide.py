@@ -191,6 +191,26 @@ def test_direct_lanes_extreme_residues_against_python_ints(kernels):
         assert yf[k].tolist() == quotient
 
 
+def test_direct_route_checks_its_lanes_against_the_budget(kernels):
+    # the direct route's own arrays (residue lanes, reduced sums: 12 (n1 + n2) + 8 count bytes
+    # per lane) are in the estimate checked before anything is allocated
+    from polyconv.numerics import budget
+
+    rng = random.Random(23)
+    a, b = draw(rng, 4000, 3000), draw(rng, 2, 3000)
+    assert nw.uses_direct(len(a), len(b))
+    primes = nw.primes_for(bound_of(a, b), nw.transform_length(len(a), len(b)))
+    k, count, values = len(primes), len(a) + len(b) - 1, len(a) + len(b)
+    rows = nw.crt_matrix(primes)[0].shape[0]
+    others = 8.0 * ((k + 1) * count + 3 * k * values + rows * min(count, nw.CRT_CHUNK))
+    lanes_bytes = (4.0 * values + 8.0 * count) * nw.lanes(k)
+    with budget.using_budget(int(others + 0.5 * lanes_bytes)):  # refused for the lanes
+        with pytest.raises(budget.MemoryBudgetError, match="wide NTT engine"):
+            nw.convolve_wide(a, b, bound_of(a, b))
+    with budget.using_budget(int(others + 1.01 * lanes_bytes)):  # granted: no tables needed
+        assert nw.convolve_wide(a, b, bound_of(a, b)).tolist() == flint_product(a, b)
+
+
 def test_long_transforms_per_prime(kernels, monkeypatch):
     # the per-prime route of transforms longer than STACKED_LENGTH, and CRT column chunks
     monkeypatch.setattr(nw, "STACKED_LENGTH", 2**6)
