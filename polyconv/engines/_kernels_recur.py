@@ -206,25 +206,21 @@ def inverse_words(a, n, words, start, width, negative):
                 j = k - pending
                 _single64(words[start[j]: start[j] + width[j]], width[j], lo[pending],
                           hi[pending], cl, ch)
-        for half in range(0 if wide else 1):  # word products of the U: pairs of one sign
-            for sign in range(2):  # the terms of positive a_i, then of negative a_i
-                cl = col_lo[half:] if sign == 0 else neg_lo[half:]
-                ch = col_hi[half:] if sign == 0 else neg_hi[half:]
+        for sign in range(0 if wide else 2):  # 32-bit a_i: pairs of one sign
+            cl = col_lo if sign == 0 else neg_lo
+            ch = col_hi if sign == 0 else neg_hi
+            pending = 0
+            for i in range(1, top + 1):
+                if h[i] == 0 or neg_a[i] != sign:
+                    continue
+                if pending == 0:
+                    pending = i
+                    continue
+                _pair(words, start, width, k - pending, k - i, lo[pending], lo[i], cl, ch)
                 pending = 0
-                for i in range(1, top + 1):
-                    m = lo[i] if half == 0 else hi[i]
-                    if m == 0 or neg_a[i] != sign:
-                        continue
-                    if pending == 0:
-                        pending = i
-                        continue
-                    _pair(words, start, width, k - pending, k - i, lo[pending] if half == 0
-                            else hi[pending], m, cl, ch)
-                    pending = 0
-                if pending:
-                    j = k - pending
-                    _single(words[start[j]: start[j] + width[j]], 0, width[j],
-                              lo[pending] if half == 0 else hi[pending], cl, ch)
+            if pending:
+                j = k - pending
+                _single(words[start[j]: start[j] + width[j]], 0, width[j], lo[pending], cl, ch)
         carry = np.int64(0)
         at = used
         for c in range(size):

@@ -187,6 +187,20 @@ def _lane_product(x, y, fold, p, inv, k, out):
             row[lane] = _reduced(np.int64(_fold(acc[lane], fold[lane])), p[lane], inv[lane])
 
 
+@njit(cache=CACHE, nogil=True)
+def _load_lanes(src, p, s, inv, scaled, dst):
+    """``dst[i, lane] = src[i, lane] mod p_lane`` (times ``s_lane`` if ``scaled``), in
+    ``[0, p)``, for the first ``len(p)`` lanes (the padding lanes keep their zeros)."""
+    k = p.shape[0]
+    for i in range(src.shape[0]):
+        row, out = src[i], dst[i]
+        for lane in range(k):
+            v = _reduced(np.int64(row[lane]), p[lane], inv[lane])
+            if scaled:
+                v = _reduced(v * s[lane], p[lane], inv[lane])
+            out[lane] = np.uint32(v)
+
+
 @njit(types.void(_RO_F64, types.int64, types.boolean, types.uint64[::1], types.uint64[::1],
                  types.float64[::1], types.float64[:, ::1]), cache=CACHE, nogil=True)
 def lanes_direct(r, n1, square, primes, scale, inv, yf):
@@ -217,20 +231,8 @@ def lanes_direct(r, n1, square, primes, scale, inv, yf):
         s[lane] = np.int64(scale[lane])
         fold[lane] = np.uint64((1 << 32) % p[lane])
     scale_b = n2 <= n1
-    for i in range(n1):
-        src, dst = r[i], ra[i]
-        for lane in range(k):
-            v = _reduced(np.int64(src[lane]), p[lane], inv[lane])
-            if not scale_b:
-                v = _reduced(v * s[lane], p[lane], inv[lane])
-            dst[lane] = np.uint32(v)
-    for i in range(n2):
-        src, dst = r[i if square else n1 + i], rb[i]
-        for lane in range(k):
-            v = _reduced(np.int64(src[lane]), p[lane], inv[lane])
-            if scale_b:
-                v = _reduced(v * s[lane], p[lane], inv[lane])
-            dst[lane] = np.uint32(v)
+    _load_lanes(r[:n1], p, s, inv, not scale_b, ra)
+    _load_lanes(r[:n1] if square else r[n1:], p, s, inv, scale_b, rb)
     c = np.empty((count, kp), dtype=np.int64)
     _lane_product(ra, rb, fold, p, inv, k, c)
     for j in range(count):

@@ -248,7 +248,8 @@ def _products(digits: np.ndarray, n1: int, square: bool, primes: tuple[int, ...]
 
 
 def lanes(k: int) -> int:
-    """SIMD lanes of the direct route for ``k`` primes (padded to whole 8-lane registers)."""
+    """SIMD lanes of the direct route for ``k`` primes (padded to whole 8-lane registers, as
+    :data:`polyconv.engines._kernels_wide.LANE_PAD`; that module is not imported here)."""
     return -(-k // 8) * 8
 
 
