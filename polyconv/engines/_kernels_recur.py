@@ -189,7 +189,7 @@ def inverse_words(a, n, words, start, width, negative):
         for c in range(size + 1):
             neg_lo[c] = 0
             neg_hi[c] = 0
-        for sign in range(2 if wide else 0):  # 64-bit a_i: both halves in one pass
+        for sign in range(2):  # pairs of terms of one sign (64-bit a_i: both halves at once)
             cl = col_lo if sign == 0 else neg_lo
             ch = col_hi if sign == 0 else neg_hi
             pending = 0
@@ -199,28 +199,19 @@ def inverse_words(a, n, words, start, width, negative):
                 if pending == 0:
                     pending = i
                     continue
-                _pair64(words, start, width, k - pending, k - i, lo[pending], hi[pending],
-                        lo[i], hi[i], cl, ch)
+                if wide:
+                    _pair64(words, start, width, k - pending, k - i, lo[pending], hi[pending],
+                            lo[i], hi[i], cl, ch)
+                else:
+                    _pair(words, start, width, k - pending, k - i, lo[pending], lo[i], cl, ch)
                 pending = 0
             if pending:
                 j = k - pending
-                _single64(words[start[j]: start[j] + width[j]], width[j], lo[pending],
-                          hi[pending], cl, ch)
-        for sign in range(0 if wide else 2):  # 32-bit a_i: pairs of one sign
-            cl = col_lo if sign == 0 else neg_lo
-            ch = col_hi if sign == 0 else neg_hi
-            pending = 0
-            for i in range(1, top + 1):
-                if h[i] == 0 or neg_a[i] != sign:
-                    continue
-                if pending == 0:
-                    pending = i
-                    continue
-                _pair(words, start, width, k - pending, k - i, lo[pending], lo[i], cl, ch)
-                pending = 0
-            if pending:
-                j = k - pending
-                _single(words[start[j]: start[j] + width[j]], 0, width[j], lo[pending], cl, ch)
+                row = words[start[j]: start[j] + width[j]]
+                if wide:
+                    _single64(row, width[j], lo[pending], hi[pending], cl, ch)
+                else:
+                    _single(row, 0, width[j], lo[pending], cl, ch)
         carry = np.int64(0)
         at = used
         for c in range(size):
